@@ -1,0 +1,44 @@
+/**
+ * Every failure the product reports carries a stable code (listed in DEVELOPERS.md) and a
+ * message that says what was wrong, where, and what to do.
+ */
+export const ErrorCodes = {
+  CONFIG_READ: 'CV_CONFIG_READ',
+  CONFIG_INVALID: 'CV_CONFIG_INVALID',
+  USAGE: 'CV_USAGE',
+  CUTOFF_BELOW_FLOOR: 'CV_CUTOFF_BELOW_FLOOR',
+  PRECHECK_REFUSED: 'CV_PRECHECK_REFUSED',
+  PORT_OPEN: 'CV_PORT_OPEN',
+  RIG_SILENT: 'CV_RIG_SILENT',
+  LOAD_NOT_CONFIRMED: 'CV_LOAD_NOT_CONFIRMED',
+  RUN_FOLDER: 'CV_RUN_FOLDER',
+  CALIBRATION_INVALID: 'CV_CALIBRATION_INVALID',
+  CALIBRATION_FIT: 'CV_CALIBRATION_FIT',
+} as const;
+
+export type ErrorCode = (typeof ErrorCodes)[keyof typeof ErrorCodes];
+
+export class CellvigilError extends Error {
+  readonly code: ErrorCode;
+  /** Exit code of the command this error ends: 2 for usage/configuration, 1 otherwise. */
+  readonly exitCode: number;
+
+  constructor(code: ErrorCode, message: string, exitCode = 1) {
+    super(message);
+    this.name = 'CellvigilError';
+    this.code = code;
+    this.exitCode = exitCode;
+  }
+}
+
+/** The one place errors are made. `what` is the problem, `where` the file/key/option, `fix` what to do. */
+export function makeError(code: ErrorCode, what: string, where: string, fix: string): CellvigilError {
+  const usage =
+    code === ErrorCodes.CONFIG_READ ||
+    code === ErrorCodes.CONFIG_INVALID ||
+    code === ErrorCodes.USAGE ||
+    code === ErrorCodes.CUTOFF_BELOW_FLOOR ||
+    code === ErrorCodes.PRECHECK_REFUSED ||
+    code === ErrorCodes.CALIBRATION_INVALID;
+  return new CellvigilError(code, `${what} (${where}). ${fix}`, usage ? 2 : 1);
+}
