@@ -14,6 +14,7 @@ export const ErrorCodes = {
   RUN_FOLDER: 'CV_RUN_FOLDER',
   CALIBRATION_INVALID: 'CV_CALIBRATION_INVALID',
   CALIBRATION_FIT: 'CV_CALIBRATION_FIT',
+  CALIBRATION_WRITE: 'CV_CALIBRATION_WRITE',
 } as const;
 
 export type ErrorCode = (typeof ErrorCodes)[keyof typeof ErrorCodes];

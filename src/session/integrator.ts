@@ -1,0 +1,41 @@
+const MS_PER_HOUR = 3_600_000;
+
+export interface IntegratorStep {
+  dAh: number;
+  dWh: number;
+}
+
+/**
+ * Trapezoidal charge and energy on host time. The current counts only while the load is
+ * switched on: with the load off no current flows, whatever an uncorrected offset shows.
+ */
+export class Integrator {
+  chargeAh = 0;
+  energyWh = 0;
+  /** Time the load was on, ms. */
+  onMs = 0;
+  /** Charge carried across flagged gaps (a figure of doubt, reported with the uncertainty). */
+  bridgedAh = 0;
+  private prev: { i: number; p: number } | null = null;
+
+  add(dtMs: number, volts: number, amps: number, loadOn: boolean, gap: boolean): IntegratorStep {
+    const i = loadOn ? amps : 0;
+    const p = loadOn ? volts * amps : 0;
+    const prev = this.prev;
+    this.prev = { i, p };
+    if (prev === null || dtMs <= 0) return { dAh: 0, dWh: 0 };
+    const dAh = ((prev.i + i) / 2) * (dtMs / MS_PER_HOUR);
+    const dWh = ((prev.p + p) / 2) * (dtMs / MS_PER_HOUR);
+    this.chargeAh += dAh;
+    this.energyWh += dWh;
+    if (loadOn || prev.i !== 0) this.onMs += dtMs;
+    if (gap) this.bridgedAh += Math.abs(dAh);
+    return { dAh, dWh };
+  }
+
+  /** Starts from totals recorded earlier (resuming a run); the next frame starts a new segment. */
+  restore(totals: { chargeAh: number; energyWh: number; onMs: number; bridgedAh: number }): void {
+    Object.assign(this, totals);
+    this.prev = null;
+  }
+}

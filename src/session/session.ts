@@ -1,0 +1,273 @@
+import { FLAG_LOAD_ON, FLAG_RIG_FAULT } from '../protocol/messages.js';
+import { Integrator } from './integrator.js';
+import { Limits, type LimitSettings } from './limits.js';
+import type { Action, EndReason, Measurement, SessionEnd, SessionState } from './session-types.js';
+
+export interface SessionSettings extends LimitSettings {
+  channel: number;
+  /** Lowest cutoff of the whole string that anyone may set (the chemistry's floor × cells). */
+  floorV: number;
+  /** Returns why a resting voltage must not be discharged, or null when it may. */
+  checkRest: (restV: number) => string | null;
+  /** @default 1000 */
+  precheckMs?: number;
+  /** @default 5 */
+  precheckFrames?: number;
+  /** No valid frame for this long ends the run as link_lost. @default 3000 */
+  staleLinkMs?: number;
+  /** No valid frame at all this long after start: the rig is silent. @default 5000 */
+  silentMs?: number;
+  /** Heartbeat period while the load may be on; the protocol asks for at least one a second. @default 500 */
+  beatMs?: number;
+  /** How long to wait for a LOAD command to be confirmed before repeating it. @default 1000 */
+  confirmMs?: number;
+}
+
+/**
+ * The discharge as an explicit state machine: waiting -> precheck -> starting -> discharging
+ * -> stopping -> ended. Pure and synchronous: measurements and time in, actions out. Safety
+ * limits are checked in one place (Limits) and every transition is an event with its reason.
+ */
+export class Session {
+  readonly integrator = new Integrator();
+  private readonly limits: Limits;
+  private readonly s: Required<Omit<SessionSettings, keyof LimitSettings>> & SessionSettings;
+  private stateValue: SessionState = 'waiting';
+  private startedAt: number | null = null;
+  private lastFrameAt: number | null = null;
+  private lastBeatAt = -Infinity;
+  private commandAt = -Infinity;
+  private commandTries = 0;
+  private rest: { sum: number; n: number; since: number } | null = null;
+  private endReason: EndReason | null = null;
+  private endDetail = '';
+  private unexpectedOff = 0;
+  /** Resting voltage measured before the load went on. */
+  openCircuitV: number | null = null;
+  /** (U_open − U_load) / I_load from the first loaded frame. */
+  dcResistanceOhm: number | null = null;
+  /** Last voltage read with the load on. */
+  lastLoadedV: number | null = null;
+  loadOn = false;
+
+  constructor(settings: SessionSettings) {
+    this.s = {
+      precheckMs: 1000,
+      precheckFrames: 5,
+      staleLinkMs: 3000,
+      silentMs: 5000,
+      beatMs: 500,
+      confirmMs: 1000,
+      ...settings,
+    };
+    this.limits = new Limits(settings);
+  }
+
+  get state(): SessionState {
+    return this.stateValue;
+  }
+
+  get cutoffV(): number {
+    return this.limits.cutoffVolts;
+  }
+
+  /** Starts the clock for "rig silent"; call once when the source is open. */
+  begin(nowMs: number): Action[] {
+    this.startedAt = nowMs;
+    return [{ type: 'send', command: { command: 'HELLO' } }];
+  }
+
+  frame(m: Measurement): Action[] {
+    const out: Action[] = [];
+    if (this.stateValue === 'ended') return out;
+    this.lastFrameAt = m.hostMs;
+    this.loadOn = (m.flags & FLAG_LOAD_ON) !== 0;
+    this.integrator.add(m.dtMs, m.volts, m.amps, this.loadOn, m.gap);
+    if (this.loadOn) this.lastLoadedV = m.volts;
+    switch (this.stateValue) {
+      case 'waiting':
+        this.to('precheck', 'first valid frame from the rig', out);
+        this.precheck(m, out);
+        break;
+      case 'precheck':
+        this.precheck(m, out);
+        break;
+      case 'starting':
+        if (this.loadOn) this.confirmOn(m, out);
+        else this.checkLimits(m, out);
+        break;
+      case 'discharging':
+        this.checkLimits(m, out);
+        break;
+      case 'stopping':
+        if (!this.loadOn) this.finish(true, out);
+        break;
+    }
+    return out;
+  }
+
+  /** An acknowledgement from the rig (`A,LOAD,<ch>,<0|1>`). */
+  ack(command: string, args: string[]): Action[] {
+    const out: Action[] = [];
+    // A LOAD 1 is confirmed by the next frame instead, which also gives the loaded voltage.
+    if (command === 'LOAD' && Number(args[0]) === this.s.channel && args[1] === '0' && this.stateValue === 'stopping')
+      this.finish(true, out);
+    return out;
+  }
+
+  tick(nowMs: number): Action[] {
+    const out: Action[] = [];
+    const st = this.stateValue;
+    if (st === 'ended') return out;
+    if (st === 'waiting') {
+      if (this.startedAt !== null && nowMs - this.startedAt > this.s.silentMs)
+        this.end('refused', `rig_silent: no valid frame in ${this.s.silentMs / 1000} s`, true, out);
+      return out;
+    }
+    const stale = this.lastFrameAt !== null && nowMs - this.lastFrameAt > this.s.staleLinkMs;
+    if (stale && st !== 'stopping') {
+      if (st === 'precheck') {
+        this.end('link_lost', `no valid frame for ${this.s.staleLinkMs / 1000} s during the precheck`, true, out);
+        return out;
+      }
+      this.beginStop('link_lost', `no valid frame for ${this.s.staleLinkMs / 1000} s`, nowMs, out);
+      return out;
+    }
+    if ((st === 'starting' || st === 'discharging') && nowMs - this.lastBeatAt >= this.s.beatMs) {
+      this.lastBeatAt = nowMs;
+      out.push({ type: 'send', command: { command: 'BEAT' } });
+    }
+    if ((st === 'starting' || st === 'stopping') && nowMs - this.commandAt >= this.s.confirmMs) {
+      if (this.commandTries >= 3 || (st === 'stopping' && stale)) {
+        if (st === 'starting') this.beginStop('fault', 'load_not_confirmed: the rig never reported the load on', nowMs, out);
+        else this.finish(false, out);
+      } else {
+        this.commandTries++;
+        this.commandAt = nowMs;
+        out.push(this.loadCommand(st === 'starting'));
+      }
+    }
+    return out;
+  }
+
+  /** A stop asked for by the user (signal, live control). */
+  requestStop(nowMs: number, by: string): Action[] {
+    const out: Action[] = [];
+    const st = this.stateValue;
+    if (st === 'waiting' || st === 'precheck') this.end('stopped', `stopped by ${by} before the load was switched on`, true, out);
+    else if (st === 'starting' || st === 'discharging') this.beginStop('stopped', `stopped by ${by}`, nowMs, out);
+    return out;
+  }
+
+  /** Changes the cutoff (whole string, V); refuses anything below the floor. */
+  setCutoff(volts: number): { ok: true } | { ok: false; why: string } {
+    if (!Number.isFinite(volts) || volts < this.s.floorV)
+      return { ok: false, why: `cutoff ${volts} V is below the safety floor of ${this.s.floorV.toFixed(3)} V` };
+    this.limits.setCutoff(volts);
+    return { ok: true };
+  }
+
+  get result(): { reason: EndReason | null; detail: string } {
+    return { reason: this.endReason, detail: this.endDetail };
+  }
+
+  private precheck(m: Measurement, out: Action[]): void {
+    if (this.loadOn) {
+      this.rest = null;
+      if (m.hostMs - this.commandAt >= this.s.confirmMs) {
+        this.commandAt = m.hostMs;
+        out.push({ type: 'event', name: 'load_found_on', detail: { action: 'switching it off before the precheck' } });
+        out.push(this.loadCommand(false));
+      }
+      return;
+    }
+    if (m.thermistor !== 'ok') {
+      this.end('refused', `thermistor_${m.thermistor}: the cell temperature cannot be read; check the NTC wiring`, true, out);
+      return;
+    }
+    if (m.celsius > this.s.maxTemperatureC) {
+      this.end('refused', `the cell is at ${m.celsius.toFixed(1)} °C, above the limit of ${this.s.maxTemperatureC} °C; let it cool`, true, out);
+      return;
+    }
+    if (this.rest === null) this.rest = { sum: 0, n: 0, since: m.hostMs };
+    this.rest.sum += m.volts;
+    this.rest.n++;
+    if (this.rest.n < this.s.precheckFrames || m.hostMs - this.rest.since < this.s.precheckMs) return;
+    const restV = this.rest.sum / this.rest.n;
+    this.openCircuitV = restV;
+    const refusal = this.s.checkRest(restV);
+    if (refusal !== null) {
+      this.end('refused', refusal, true, out);
+      return;
+    }
+    out.push({ type: 'event', name: 'precheck_passed', detail: { rest_V: restV, temperature_C: m.celsius } });
+    this.to('starting', 'precheck passed: switching the load on', out);
+    this.commandAt = m.hostMs;
+    this.commandTries = 0;
+    this.lastBeatAt = m.hostMs;
+    out.push({ type: 'send', command: { command: 'BEAT' } }, this.loadCommand(true));
+  }
+
+  private confirmOn(m: Measurement, out: Action[]): void {
+    if (this.openCircuitV !== null && m.amps > 0) {
+      this.dcResistanceOhm = (this.openCircuitV - m.volts) / m.amps;
+    }
+    this.to('discharging', 'the rig reports the load on', out);
+    out.push({
+      type: 'event',
+      name: 'load_on',
+      detail: { open_circuit_V: this.openCircuitV, loaded_V: m.volts, current_A: m.amps, dc_resistance_ohm: this.dcResistanceOhm },
+    });
+  }
+
+  private checkLimits(m: Measurement, out: Action[]): void {
+    const trip = this.limits.check({
+      atMs: m.hostMs,
+      volts: m.volts,
+      amps: m.amps,
+      celsius: m.celsius,
+      thermistor: m.thermistor,
+      loadOn: this.loadOn,
+      rigFault: (m.flags & FLAG_RIG_FAULT) !== 0,
+    });
+    if (trip) {
+      this.beginStop(trip.reason, trip.detail, m.hostMs, out);
+      return;
+    }
+    if (this.stateValue === 'discharging') {
+      this.unexpectedOff = this.loadOn ? 0 : this.unexpectedOff + 1;
+      if (this.unexpectedOff >= 3) this.beginStop('fault', 'load_dropped: the rig reports the load off without a command', m.hostMs, out);
+    }
+  }
+
+  private beginStop(reason: EndReason, detail: string, nowMs: number, out: Action[]): void {
+    this.endReason = reason;
+    this.endDetail = detail;
+    this.to('stopping', `${reason}: ${detail}`, out);
+    this.commandAt = nowMs;
+    this.commandTries = 0;
+    // No heartbeat from here on: if the LOAD 0 is lost, the rig's own watchdog still cuts the load.
+    out.push(this.loadCommand(false));
+  }
+
+  private finish(confirmed: boolean, out: Action[]): void {
+    if (!confirmed) out.push({ type: 'event', name: 'load_off_unconfirmed', detail: { note: 'no confirmation; heartbeats stopped so the rig watchdog cuts the load within 5 s' } });
+    this.end(this.endReason ?? 'stopped', this.endDetail, confirmed, out);
+  }
+
+  private end(reason: SessionEnd, detail: string, loadOffConfirmed: boolean, out: Action[]): void {
+    if (reason !== 'refused') this.endReason = reason;
+    this.endDetail = detail;
+    this.to('ended', `${reason}: ${detail}`, out);
+    out.push({ type: 'end', reason, detail, loadOffConfirmed });
+  }
+
+  private to(next: SessionState, why: string, out: Action[]): void {
+    out.push({ type: 'event', name: 'state', detail: { from: this.stateValue, to: next, why } });
+    this.stateValue = next;
+  }
+
+  private loadCommand(on: boolean): Action {
+    return { type: 'send', command: { command: 'LOAD', channel: this.s.channel, on } };
+  }
+}

@@ -1,0 +1,100 @@
+import { CHEMISTRY_IDS } from './cell-model.js';
+
+/**
+ * JSON schema of config/sim-scenarios.yaml. Every object is closed so a misspelt key is an
+ * error rather than a silently ignored setting; defaults are filled in by the validator.
+ */
+const num = { type: 'number' } as const;
+const nonNegative = { type: 'number', minimum: 0 } as const;
+const positive = { type: 'number', exclusiveMinimum: 0 } as const;
+const probability = { type: 'number', minimum: 0, maximum: 1 } as const;
+const token = { type: 'string', pattern: '^[A-Za-z0-9._-]{1,32}$' } as const;
+
+const scenario = {
+  type: 'object',
+  additionalProperties: false,
+  required: ['description', 'cell', 'thermal', 'load', 'front_end', 'rig', 'faults'],
+  properties: {
+    description: { type: 'string', minLength: 1 },
+    cell: {
+      type: 'object',
+      additionalProperties: false,
+      required: ['chemistry', 'cells', 'capacity_Ah', 'initial_soc'],
+      properties: {
+        chemistry: { type: 'string', enum: [...CHEMISTRY_IDS] },
+        cells: { type: 'integer', minimum: 1, maximum: 64 },
+        capacity_Ah: positive,
+        initial_soc: probability,
+        internal_ohm_per_cell: nonNegative,
+      },
+    },
+    thermal: {
+      type: 'object',
+      additionalProperties: false,
+      required: ['ambient_C', 'heat_capacity_J_per_K', 'conductance_W_per_K'],
+      properties: {
+        ambient_C: { type: 'number', minimum: -40, maximum: 80 },
+        heat_capacity_J_per_K: positive,
+        conductance_W_per_K: positive,
+        load_heat_fraction: { ...probability, default: 0 },
+        extra_heat_W: { ...nonNegative, default: 0 },
+      },
+    },
+    load: {
+      type: 'object',
+      additionalProperties: false,
+      required: ['load_ohm', 'mosfet_ohm'],
+      properties: { load_ohm: positive, mosfet_ohm: nonNegative },
+    },
+    front_end: {
+      type: 'object',
+      additionalProperties: false,
+      required: ['current_gain_error', 'voltage_gain_error', 'noise_counts'],
+      oneOf: [{ required: ['current_offset_A'] }, { required: ['current_offset_V'] }],
+      properties: {
+        current_offset_A: num,
+        current_offset_V: num,
+        current_gain_error: { type: 'number', minimum: 0, maximum: 1 },
+        voltage_gain_error: { type: 'number', minimum: -0.5, maximum: 0.5 },
+        noise_counts: nonNegative,
+      },
+    },
+    rig: {
+      type: 'object',
+      additionalProperties: false,
+      required: ['rig_id', 'firmware', 'clock_error', 'frame_period_ms'],
+      properties: {
+        rig_id: token,
+        firmware: token,
+        clock_error: { type: 'number', exclusiveMinimum: -1, maximum: 1 },
+        frame_period_ms: { type: 'number', minimum: 1, maximum: 60000 },
+        channel: { type: 'integer', minimum: 0, maximum: 15, default: 0 },
+      },
+    },
+    faults: {
+      type: 'object',
+      additionalProperties: false,
+      required: ['drop_probability', 'garbage_probability', 'burst_frames', 'seed'],
+      properties: {
+        drop_probability: probability,
+        garbage_probability: probability,
+        burst_frames: { type: 'integer', minimum: 1, maximum: 1000 },
+        seed: { type: 'integer', minimum: 0, maximum: 4294967295 },
+      },
+    },
+  },
+} as const;
+
+export const SCENARIO_FILE_SCHEMA = {
+  type: 'object',
+  additionalProperties: false,
+  required: ['scenarios'],
+  properties: {
+    scenarios: {
+      type: 'object',
+      minProperties: 1,
+      propertyNames: { pattern: '^[a-z0-9][a-z0-9-]{0,31}$' },
+      additionalProperties: scenario,
+    },
+  },
+} as const;

@@ -1,0 +1,14 @@
+import { open, rename } from 'node:fs/promises';
+
+/** Replaces a JSON file atomically: write a temporary file, fsync it, rename it over the old one. */
+export async function writeJsonAtomic(path: string, value: unknown): Promise<void> {
+  const tmp = `${path}.tmp`;
+  const fh = await open(tmp, 'w');
+  try {
+    await fh.write(JSON.stringify(value, null, 2) + '\n');
+    await fh.sync();
+  } finally {
+    await fh.close();
+  }
+  await rename(tmp, path);
+}

@@ -1,0 +1,80 @@
+import { RateEstimator } from './rate-estimator.js';
+import { Unwrapper } from './unwrap.js';
+
+export interface TimeBaseOptions {
+  /** Host gap between frames that is flagged as a gap rather than bridged quietly. @default 2000 */
+  longGapMs?: number;
+  /** How far a frame's time may be placed before its arrival (burst spreading). @default 1000 */
+  maxLagMs?: number;
+}
+
+export interface Stamp {
+  /** Host monotonic ms used for integration. */
+  hostMs: number;
+  /** ms since the previous stamped frame (0 for the first). */
+  dtMs: number;
+  /** Frames missing before this one, from the sequence number. */
+  lost: number;
+  /** True when dtMs is a long gap (link stall, host suspend, rig restart). */
+  gap: boolean;
+  /** True when the rig's counters went backwards: it restarted. */
+  rigRestart: boolean;
+}
+
+/**
+ * Places each frame on the host's monotonic clock. The integral spans host time only; within
+ * a burst (several frames delivered together) the frames are spread back by their tick
+ * spacing scaled to host time, and never placed later than their arrival or more than
+ * `maxLagMs` before it.
+ */
+export class TimeBase {
+  private readonly longGapMs: number;
+  private readonly maxLagMs: number;
+  private readonly ticks = new Unwrapper(2 ** 32);
+  private readonly seqs = new Unwrapper(65536);
+  private readonly rate = new RateEstimator();
+  private prev: { hostMs: number; tick: number; arrival: number } | null = null;
+
+  constructor(options: TimeBaseOptions = {}) {
+    this.longGapMs = options.longGapMs ?? 2000;
+    this.maxLagMs = options.maxLagMs ?? 1000;
+  }
+
+  stamp(seq: number, tickMs: number, arrivalMs: number): Stamp {
+    const t = this.ticks.next(tickMs);
+    const s = this.seqs.next(seq);
+    const prev = this.prev;
+    const rigRestart = t.step !== null && t.step < 0;
+    if (prev === null || rigRestart) {
+      if (rigRestart) {
+        this.ticks.reset();
+        this.seqs.reset();
+        this.ticks.next(tickMs);
+        this.seqs.next(seq);
+        this.rate.reset();
+      }
+      const hostMs = prev === null ? arrivalMs : Math.max(prev.hostMs, arrivalMs);
+      this.prev = { hostMs, tick: rigRestart ? tickMs : t.value, arrival: arrivalMs };
+      this.rate.add(rigRestart ? tickMs : t.value, arrivalMs);
+      return { hostMs, dtMs: prev === null ? 0 : hostMs - prev.hostMs, lost: 0, gap: prev !== null, rigRestart };
+    }
+    this.rate.add(t.value, arrivalMs);
+    const scale = this.rate.hostPerTick() ?? 1;
+    const predicted = prev.hostMs + (t.value - prev.tick) * scale;
+    const lower = Math.max(prev.hostMs, arrivalMs - this.maxLagMs);
+    const hostMs = Math.min(arrivalMs, Math.max(lower, predicted));
+    const dtMs = hostMs - prev.hostMs;
+    this.prev = { hostMs, tick: t.value, arrival: arrivalMs };
+    return {
+      hostMs,
+      dtMs,
+      lost: Math.max(0, (s.step ?? 1) - 1),
+      gap: arrivalMs - prev.arrival > this.longGapMs,
+      rigRestart: false,
+    };
+  }
+
+  rigClockErrorPpm(): number | null {
+    return this.rate.errorPpm();
+  }
+}
