@@ -1,0 +1,74 @@
+import type { CommandModule } from 'yargs';
+import { startRun } from '../../run/daemon.js';
+import { DEFAULT_LISTEN, DEFAULT_ROTATE_BYTES, type RunRequest } from '../../run/run-request.js';
+
+interface RunArgs {
+  port: string | undefined;
+  sim: string | undefined;
+  speed: number;
+  rig: string | undefined;
+  calibration: string | undefined;
+  chemistry: string | undefined;
+  'chemistries-file': string | undefined;
+  cells: number | undefined;
+  cutoff: number | undefined;
+  label: string | undefined;
+  runs: string;
+  listen: string;
+  live: boolean;
+  once: boolean;
+  baud: number | undefined;
+  channel: number;
+  'rotate-mb': number;
+}
+
+export const runCommand: CommandModule<object, RunArgs> = {
+  command: 'run',
+  describe: 'Discharge a cell: acquire, integrate, enforce the limits, log',
+  builder: (y) =>
+    y
+      .option('port', { type: 'string', describe: 'Serial device of the rig (or a pseudo-terminal)', conflicts: 'sim' })
+      .option('sim', {
+        type: 'string',
+        describe: 'Use the built-in simulated rig with this scenario (config/sim-scenarios.yaml)',
+        coerce: (v: unknown) => (v === '' || v === true ? 'demo' : String(v)),
+      })
+      .option('speed', { type: 'number', default: 1, describe: 'Clock speed of the simulated rig (1 = real time)' })
+      .option('rig', { type: 'string', describe: 'Rig profile (YAML); default config/rigs/bench-20mohm.yaml' })
+      .option('calibration', { type: 'string', describe: 'Calibration file of this rig (JSON)' })
+      .option('chemistry', { type: 'string', describe: 'Chemistry profile id (see `cellvigil chemistries`); required with --port' })
+      .option('chemistries-file', { type: 'string', describe: 'Another chemistry profile file' })
+      .option('cells', { type: 'number', describe: 'Cells in series (default 1, or the scenario\'s)' })
+      .option('cutoff', { type: 'number', describe: 'End-of-discharge voltage per cell (never below the chemistry\'s floor)' })
+      .option('label', { type: 'string', describe: 'Label in the run folder\'s name' })
+      .option('runs', { type: 'string', default: 'runs', describe: 'Folder that holds the run folders' })
+      .option('listen', { type: 'string', default: DEFAULT_LISTEN, describe: 'host:port of the live feed' })
+      .option('live', { type: 'boolean', default: true, describe: 'Serve the live feed (--no-live to switch it off)' })
+      .option('once', { type: 'boolean', default: false, describe: 'Exit when the run ends (for scripts)' })
+      .option('baud', { type: 'number', describe: 'Serial baud rate (default: the rig profile\'s frame.baud)' })
+      .option('channel', { type: 'number', default: 0, describe: 'Rig channel the cell is on' })
+      .option('rotate-mb', { type: 'number', default: DEFAULT_ROTATE_BYTES / 1048576, describe: 'Start a new sample file after this many MiB' }),
+  handler: async (args) => {
+    const req: RunRequest = {
+      speed: args.speed,
+      runs: args.runs,
+      listen: args.live ? args.listen : null,
+      once: args.once,
+      channel: args.channel,
+      rotateBytes: Math.max(4096, Math.round(args['rotate-mb'] * 1048576)),
+      ...(args.port !== undefined ? { port: args.port } : {}),
+      ...(args.sim !== undefined ? { sim: args.sim } : {}),
+      ...(args.rig !== undefined ? { rig: args.rig } : {}),
+      ...(args.calibration !== undefined ? { calibration: args.calibration } : {}),
+      ...(args.chemistry !== undefined ? { chemistry: args.chemistry } : {}),
+      ...(args['chemistries-file'] !== undefined ? { chemistriesFile: args['chemistries-file'] } : {}),
+      ...(args.cells !== undefined ? { cells: args.cells } : {}),
+      ...(args.cutoff !== undefined ? { cutoff: args.cutoff } : {}),
+      ...(args.label !== undefined ? { label: args.label } : {}),
+      ...(args.baud !== undefined ? { baud: args.baud } : {}),
+    };
+    const run = await startRun(req, { out: process.stdout, err: process.stderr, signals: true });
+    const outcome = await run.done;
+    process.exitCode = outcome.exitCode;
+  },
+};

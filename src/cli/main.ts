@@ -1,0 +1,33 @@
+#!/usr/bin/env node
+import yargs from 'yargs';
+import { hideBin } from 'yargs/helpers';
+import { CellvigilError } from '../core/errors.js';
+import { chemistriesCommand } from './commands/chemistries.js';
+import { runCommand } from './commands/run.js';
+
+/** One entry per command; each lives in ./commands/<name>.ts. */
+const commands = [runCommand, chemistriesCommand];
+
+async function main(): Promise<void> {
+  let cli = yargs(hideBin(process.argv))
+    .scriptName('cellvigil')
+    .strict()
+    .demandCommand(1, 'Name a command: cellvigil <command> --help shows its options.')
+    .recommendCommands()
+    .wrap(Math.min(100, process.stdout.columns || 100))
+    .fail((msg, err) => {
+      throw err ?? new CellvigilError('CV_USAGE', `${msg.replace(/\.?$/, '.')} Run cellvigil --help for the commands and options.`, 2);
+    });
+  for (const c of commands) cli = cli.command(c as never);
+  await cli.parseAsync();
+}
+
+main().catch((e: unknown) => {
+  if (e instanceof CellvigilError) {
+    process.stderr.write(`cellvigil: ${e.code}: ${e.message}\n`);
+    process.exitCode = e.exitCode;
+  } else {
+    process.stderr.write(`cellvigil: unexpected failure: ${(e as Error)?.stack ?? String(e)}\n`);
+    process.exitCode = 1;
+  }
+});

@@ -1,0 +1,399 @@
+/**
+ * `cellvigil run`: wires a source, the pure core and the sinks together. Lines travel one way
+ * (source -> pipeline -> sinks); the only way back to the rig is the session's actions.
+ */
+import { join } from 'node:path';
+import { applyCalibration } from '../calibration/calibration.js';
+import { checkRestingVoltage } from '../chemistry/limits.js';
+import { HostClock, PacedClock, type Clock, type TimerHandle } from '../core/clock.js';
+import { CellvigilError, ErrorCodes, makeError } from '../core/errors.js';
+import { PACKAGE_VERSION } from '../core/paths.js';
+import { encodeCommand } from '../protocol/codec.js';
+import { Session } from '../session/session.js';
+import type { Action, SessionEnd } from '../session/session-types.js';
+import { writeJsonAtomic } from '../sinks/atomic-json.js';
+import { LogFile } from '../sinks/log-file.js';
+import { formatSampleRow, SAMPLE_HEADER, type SampleRow } from '../sinks/sample-row.js';
+import { SerialSource } from '../sources/serial-source.js';
+import { SimSource } from '../sources/sim-source.js';
+import type { Source } from '../sources/source.js';
+import { cautionLines } from './cautions.js';
+import { EventLog, type EventRecord } from './event-log.js';
+import { Pipeline } from './pipeline.js';
+import { buildResult, CLOCK_WARN_PPM, exitCodeFor, type RunResult } from './result.js';
+import { resolveRunConfig, type RunConfig } from './run-config.js';
+import { createRunFolder } from './run-folder.js';
+import type { RunRequest } from './run-request.js';
+import { StatusPrinter } from './status-line.js';
+
+/** Anything that follows a run live (the status line, the live feed). */
+export interface RunObserver {
+  sample?(row: SampleRow, loadOn: boolean): void;
+  event?(rec: EventRecord): void;
+  ended?(result: RunResult): void;
+}
+
+export interface RunOutcome {
+  exitCode: number;
+  folder: string;
+  result: RunResult;
+}
+
+export interface RunHandle {
+  readonly folder: string;
+  readonly config: RunConfig;
+  readonly done: Promise<RunOutcome>;
+  /** Asks for a stop (load off, result written). */
+  stop(by: string): void;
+  /** Sets the cutoff per cell; refused below the chemistry's floor. */
+  setCutoffPerCell(volts: number, by: string): { ok: true } | { ok: false; error: string };
+  /** A note from the user in the event log. */
+  mark(note: string, by: string): void;
+  addObserver(o: RunObserver): void;
+}
+
+export interface RunIo {
+  out: NodeJS.WritableStream & { isTTY?: boolean };
+  err: NodeJS.WritableStream;
+  /** Handle SIGINT/SIGTERM (the CLI does; tests driving startRun in-process do not). */
+  signals?: boolean;
+}
+
+const TICK_MS = 100;
+const FLUSH_EVERY_MS = 1000;
+const CHECKPOINT_EVERY_MS = 5000;
+const STATUS_EVERY_MS = 250;
+
+export async function startRun(req: RunRequest, io: RunIo): Promise<RunHandle> {
+  const cfg = await resolveRunConfig(req);
+  const { profile, chain, chemistry, cells, cutoff, scenario } = cfg;
+  const startedWall = Date.now();
+  const label = req.label ?? (scenario ? `sim-${scenario.name}` : `${cells}x${chemistry.id}`);
+  const folder = await createRunFolder(req.runs, label, startedWall);
+
+  // Measurement time: the simulated rig runs on a virtual clock at --speed; a real rig on the host's.
+  const paced = scenario ? new PacedClock(0, startedWall) : null;
+  const clock: Clock = paced ?? new HostClock();
+  const real = new HostClock();
+  const source: Source = scenario
+    ? new SimSource({ scenario, clock, profile })
+    : new SerialSource({ path: req.port!, baudRate: req.baud ?? profile.frame.baud });
+
+  const session = new Session({
+    channel: req.channel,
+    cutoffV: cutoff.total,
+    floorV: cfg.floorV,
+    maxTemperatureC: cfg.maxTemperatureC,
+    maxCurrentA: cfg.maxCurrentA,
+    checkRest: (restV) => {
+      const check = checkRestingVoltage(chemistry, cells, restV, cutoff.perCell, cfg.chemistries);
+      return check.ok ? null : check.error.message;
+    },
+  });
+  const originMs = clock.now();
+  const pipeline = new Pipeline({
+    channel: req.channel,
+    adcBits: profile.adc.bits,
+    converter: chain,
+    corrector: applyCalibration(cfg.calibration),
+    session,
+    originMs,
+  });
+
+  const samples = new LogFile({ dir: folder, name: 'samples-', ext: '.csv', header: SAMPLE_HEADER, rotateBytes: req.rotateBytes });
+  const events = new EventLog(folder);
+  const status = new StatusPrinter(io.out);
+  const observers: RunObserver[] = [];
+  const manifest = {
+    format: 'cellvigil-run',
+    format_version: 1,
+    cellvigil_version: PACKAGE_VERSION,
+    node_version: process.version,
+    label,
+    started_wall: new Date(startedWall).toISOString(),
+    source: { kind: source.kind, description: source.description, ...(scenario ? { scenario: scenario.name, speed: req.speed } : {}) },
+    channel: req.channel,
+    rig: { file: cfg.rigPath, profile },
+    calibration: { file: cfg.calibrationPath, id: pipeline.calibrationId, content: cfg.calibration },
+    chemistry: { id: chemistry.id, profile: chemistry },
+    cells,
+    cutoff_V: cutoff.total,
+    cutoff_per_cell_V: cutoff.perCell,
+    cutoff_source: cutoff.source,
+    floor_V: cfg.floorV,
+    limits: { max_temperature_C: cfg.maxTemperatureC, max_current_A: cfg.maxCurrentA },
+    samples: { prefix: 'samples-', rotate_bytes: req.rotateBytes },
+  };
+  try {
+    await writeJsonAtomic(join(folder, 'manifest.json'), manifest);
+  } catch (e) {
+    throw makeError(ErrorCodes.RUN_FOLDER, `cannot write the manifest: ${(e as Error).message}`, folder, 'Choose a run folder you can write to (--runs). Nothing was switched on.');
+  }
+
+  const hostS = (): number => (clock.now() - originMs) / 1000;
+  const logEvent = (name: string, detail: Record<string, unknown> = {}): void => {
+    const rec = events.write(hostS(), clock.wallNow(), name, detail);
+    for (const o of observers) o.event?.(rec);
+  };
+
+  let ended = false;
+  let diskError: Error | null = null;
+  let loadedSamples = 0;
+  let gaps = 0;
+  let clockWarned = false;
+  let stopRequests = 0;
+  let resolveDone!: (o: RunOutcome) => void;
+  let rejectDone!: (e: unknown) => void;
+  const done = new Promise<RunOutcome>((res, rej) => {
+    resolveDone = res;
+    rejectDone = rej;
+  });
+  const timers: { clock: Clock; handle: TimerHandle }[] = [];
+  const every = (c: Clock, ms: number, fn: () => void): void => {
+    timers.push({ clock: c, handle: c.setTimer(fn, ms, true) });
+  };
+
+  const dispatch = (actions: Action[]): void => {
+    for (const a of actions) {
+      if (ended) return;
+      if (a.type === 'send') {
+        const line = encodeCommand(a.command);
+        const queued = source.write(line);
+        if (a.command.command !== 'BEAT') logEvent('command', { line: line.trim(), queued });
+      } else if (a.type === 'event') {
+        logEvent(a.name, a.detail);
+        if (a.name === 'state') status.line(`state: ${String(a.detail['from'])} -> ${String(a.detail['to'])} (${String(a.detail['why'])})`);
+      } else {
+        void finish(a.reason, a.detail, a.loadOffConfirmed);
+      }
+    }
+  };
+
+  const onLine = (text: string): void => {
+    if (ended) return;
+    const out = pipeline.line(text, clock.now(), clock.wallNow());
+    switch (out.kind) {
+      case 'sample': {
+        try {
+          samples.append(formatSampleRow(out.row));
+        } catch (e) {
+          onDiskError(e as Error);
+        }
+        const loadOn = session.loadOn;
+        if (loadOn) loadedSamples++;
+        if (out.lost > 0) logEvent('frames_lost', { count: out.lost, seq: out.row.seq });
+        if (out.gap) {
+          gaps++;
+          logEvent('gap', { seq: out.row.seq, note: 'a long gap between frames; its charge is interpolated and counted as doubt in the uncertainty' });
+        }
+        if (out.rigRestart) logEvent('rig_restart', { seq: out.row.seq, tick_ms: out.row.tickMs });
+        status.update({ hostS: out.row.hostS, volts: out.row.volts, amps: out.row.amps, celsius: out.row.celsius, chargeAh: out.row.chargeAh, energyWh: out.row.energyWh, state: out.row.state });
+        for (const o of observers) o.sample?.(out.row, loadOn);
+        dispatch(out.actions);
+        break;
+      }
+      case 'rejected':
+        events.rejected(hostS(), clock.wallNow(), out.reason, out.detail, text);
+        break;
+      case 'message':
+        if (out.event) logEvent(out.event.name, out.event.detail);
+        dispatch(out.actions);
+        break;
+      case 'ignored':
+        break;
+    }
+  };
+
+  const onDiskError = (e: Error): void => {
+    if (diskError) return;
+    diskError = e;
+    status.line(`cellvigil: ${ErrorCodes.RUN_FOLDER}: writing the run folder failed: ${e.message}. Switching the load off.`);
+    dispatch(session.requestStop(clock.now(), 'a failure writing the run folder'));
+  };
+
+  const flushLogs = async (): Promise<void> => {
+    try {
+      await Promise.all([samples.flush(), events.flush()]);
+    } catch (e) {
+      onDiskError(e as Error);
+    }
+  };
+
+  const checkpoint = (): object => ({
+    host_s: Number(hostS().toFixed(3)),
+    wall_time: new Date(clock.wallNow()).toISOString(),
+    state: session.state,
+    charge_Ah: session.integrator.chargeAh,
+    energy_Wh: session.integrator.energyWh,
+    load_on_s: session.integrator.onMs / 1000,
+    bridged_Ah: session.integrator.bridgedAh,
+    frames_accepted: pipeline.counters.accepted,
+    frames_rejected: pipeline.counters.rejected,
+    frames_lost: pipeline.counters.lost,
+    rows_written: pipeline.counters.accepted,
+    sample_file: samples.files.at(-1) ?? null,
+    cutoff_V: session.cutoffV,
+    calibration_id: pipeline.calibrationId,
+  });
+  let checkpointing = false;
+  const writeCheckpoint = async (): Promise<void> => {
+    if (checkpointing || diskError) return;
+    checkpointing = true;
+    try {
+      await writeJsonAtomic(join(folder, 'checkpoint.json'), checkpoint());
+    } catch (e) {
+      onDiskError(e as Error);
+    } finally {
+      checkpointing = false;
+    }
+  };
+
+  const checkClock = (): void => {
+    const ppm = pipeline.timeBase.rigClockErrorPpm();
+    if (clockWarned || ppm === null || Math.abs(ppm) <= CLOCK_WARN_PPM) return;
+    clockWarned = true;
+    const pct = (ppm / 1e4).toFixed(1);
+    logEvent('clock_warning', { rig_clock_error_ppm: Math.round(ppm) });
+    status.line(`warning: the rig's clock runs ${pct} % ${ppm > 0 ? 'fast' : 'slow'} against the host's; cellvigil times every frame by the host clock, so figures are not affected.`);
+  };
+
+  const onSignal = (sig: NodeJS.Signals): void => {
+    stopRequests++;
+    logEvent('signal', { signal: sig });
+    if (stopRequests > 1) status.line(`${sig} again: the load is being switched off first; the run ends as soon as the rig confirms it.`);
+    else status.line(`${sig}: switching the load off and finishing the run…`);
+    dispatch(session.requestStop(clock.now(), sig));
+  };
+  const signalHandlers: [NodeJS.Signals, (s: NodeJS.Signals) => void][] = io.signals ? [['SIGINT', onSignal], ['SIGTERM', onSignal]] : [];
+
+  const finish = async (end: SessionEnd, detail: string, loadOffConfirmed: boolean): Promise<void> => {
+    if (ended) return;
+    ended = true;
+    try {
+      for (const t of timers) t.clock.clearTimer(t.handle);
+      for (const [sig, h] of signalHandlers) process.off(sig, h);
+      checkClock();
+      const result = buildResult({
+        end,
+        detail,
+        loadOffConfirmed,
+        chargeAh: session.integrator.chargeAh,
+        energyWh: session.integrator.energyWh,
+        onMs: session.integrator.onMs,
+        bridgedAh: session.integrator.bridgedAh,
+        nominalAh: pipeline.nominalAh,
+        loadedSamples,
+        lastLoadedV: session.lastLoadedV,
+        cutoffV: session.cutoffV,
+        counters: pipeline.counters,
+        rigClockErrorPpm: pipeline.timeBase.rigClockErrorPpm(),
+        calibration: cfg.calibration,
+        calibrationId: pipeline.calibrationId,
+        ampsPerCount: chain.ampsPerCount,
+        voltsPerCount: chain.voltsPerCount,
+        chemistry: chemistry.id,
+        cells,
+        openCircuitV: session.openCircuitV,
+        dcResistanceOhm: session.dcResistanceOhm,
+        gaps,
+        startedWallMs: startedWall,
+        endedWallMs: clock.wallNow(),
+      });
+      events.summarise(hostS(), clock.wallNow());
+      const rec = events.write(hostS(), clock.wallNow(), 'run_ended', { end_reason: end, detail, load_off_confirmed: loadOffConfirmed });
+      for (const o of observers) o.event?.(rec);
+      await source.close().catch(() => undefined);
+      paced?.stop();
+      await Promise.all([samples.close(), events.close()]).catch((e: Error) => onDiskError(e));
+      if (!diskError) {
+        await writeJsonAtomic(join(folder, 'checkpoint.json'), checkpoint()).catch((e: Error) => onDiskError(e));
+        await writeJsonAtomic(join(folder, 'result.json'), result).catch((e: Error) => onDiskError(e));
+      }
+      status.end();
+      for (const o of observers) o.ended?.(result);
+      const exitCode = diskError ? 1 : exitCodeFor(end, detail);
+      printSummary(io, result, folder, cfg, diskError);
+      resolveDone({ exitCode, folder, result });
+    } catch (e) {
+      rejectDone(e);
+    }
+  };
+
+  // Start: cautions first, then the rig.
+  status.line(`cellvigil ${PACKAGE_VERSION}: ${cells} × ${chemistry.id} on ${source.description}; cutoff ${cutoff.total.toFixed(3)} V (${cutoff.perCell} V per cell, ${cutoff.source}), limit ${cfg.maxTemperatureC} °C.`);
+  status.line('Cautions:');
+  for (const c of cautionLines(chemistry)) status.line(`  - ${c}`);
+  status.line(`Run folder: ${folder}`);
+  logEvent('run_started', { source: source.description, chemistry: chemistry.id, cells, cutoff_V: cutoff.total, version: PACKAGE_VERSION });
+  logEvent('cautions', { lines: cautionLines(chemistry) });
+  if (cfg.calibration) {
+    logEvent('calibration', { id: cfg.calibration.id, file: cfg.calibrationPath, date: cfg.calibration.date });
+  } else {
+    logEvent('calibration', { id: 'none', note: 'no calibration: nominal analog chain only' });
+    status.line('No calibration given: figures use the nominal analog chain, whose offset and gain errors are unknown (see `cellvigil calibrate`).');
+  }
+
+  try {
+    await source.open({
+      line: onLine,
+      overlong: (n) => {
+        pipeline.counters.rejected++;
+        pipeline.counters.rejectedBy.overlong = (pipeline.counters.rejectedBy.overlong ?? 0) + 1;
+        events.rejected(hostS(), clock.wallNow(), 'overlong', `${n} bytes without a line end`, '');
+      },
+      closed: (reason) => {
+        if (!ended) logEvent('link_closed', { reason });
+      },
+    });
+  } catch (e) {
+    ended = true;
+    await Promise.all([samples.close(), events.close()]).catch(() => undefined);
+    throw e instanceof CellvigilError ? e : makeError(ErrorCodes.PORT_OPEN, (e as Error).message, source.description, 'Check the rig connection.');
+  }
+  for (const [sig, h] of signalHandlers) process.on(sig, h);
+  every(clock, TICK_MS, () => dispatch(session.tick(clock.now())));
+  every(real, FLUSH_EVERY_MS, () => void flushLogs());
+  every(real, CHECKPOINT_EVERY_MS, () => {
+    checkClock();
+    void writeCheckpoint();
+  });
+  every(real, STATUS_EVERY_MS, () => status.draw(real.now()));
+  dispatch(session.begin(clock.now()));
+  paced?.start(req.speed);
+
+  return {
+    folder,
+    config: cfg,
+    done,
+    stop: (by) => dispatch(session.requestStop(clock.now(), by)),
+    setCutoffPerCell: (volts, by) => {
+      const r = session.setCutoff(volts * cells);
+      if (!r.ok) {
+        logEvent('cutoff_refused', { requested_V_per_cell: volts, by, why: r.why });
+        return { ok: false, error: r.why };
+      }
+      logEvent('cutoff_changed', { cutoff_V: session.cutoffV, cutoff_V_per_cell: volts, by });
+      return { ok: true };
+    },
+    mark: (note, by) => logEvent('mark', { note, by }),
+    addObserver: (o) => observers.push(o),
+  };
+}
+
+function printSummary(io: RunIo, r: RunResult, folder: string, cfg: RunConfig, diskError: Error | null): void {
+  const w = (s: string): boolean => io.out.write(`${s}\n`);
+  w('');
+  if (r.end_reason === 'refused') {
+    io.err.write(`cellvigil: ${r.end_detail.startsWith('rig_silent') ? ErrorCodes.RIG_SILENT : ErrorCodes.PRECHECK_REFUSED}: ${r.end_detail}\n`);
+  }
+  w(`Run ended: ${r.end_reason} (${r.end_detail})${r.load_off_confirmed ? '' : ' — load-off NOT confirmed by the rig; its watchdog cuts the load within 5 s'}`);
+  const u = r.uncertainty.capacity_Ah;
+  w(`  capacity      ${(r.capacity_Ah * 1000).toFixed(1)} mAh ± ${(u.expanded * 1000).toFixed(1)} mAh (k = 2)`);
+  w(`  energy        ${r.energy_Wh.toFixed(4)} Wh ± ${r.uncertainty.energy_Wh.expanded.toFixed(4)} Wh (k = 2)`);
+  w(`  load on       ${r.duration_s.toFixed(1)} s; mean ${r.mean_voltage_V?.toFixed(3) ?? '—'} V, end ${r.end_voltage_V?.toFixed(3) ?? '—'} V, cutoff ${r.cutoff_V.toFixed(3)} V`);
+  w(`  frames        ${r.frames_accepted} accepted, ${r.frames_rejected} rejected, ${r.frames_lost} lost`);
+  w(`  rig clock     ${r.rig_clock_error_ppm === null ? 'too short a run to estimate' : `${r.rig_clock_error_ppm} ppm${r.rig_clock_warning ? ' (more than 1 %; the host clock was used)' : ''}`}`);
+  w(`  calibration   ${r.calibration_id}${cfg.calibration ? '' : ' (nominal chain)'}`);
+  if (diskError) io.err.write(`cellvigil: ${ErrorCodes.RUN_FOLDER}: ${diskError.message} (${folder}). Free space or fix permissions; the load was switched off.\n`);
+  w(`  run folder    ${folder}`);
+}

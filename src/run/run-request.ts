@@ -1,0 +1,32 @@
+/** What the user asked `run` for, as the CLI parsed it (DESIGN.md "Commands"). */
+export interface RunRequest {
+  /** Serial device path (a real rig or a pseudo-terminal). */
+  port?: string;
+  /** Simulated-rig scenario name (config/sim-scenarios.yaml). */
+  sim?: string;
+  /** Virtual-clock speed of the simulated rig; 1 is real time. */
+  speed: number;
+  /** Rig profile file; the package's bench profile when absent. */
+  rig?: string;
+  calibration?: string;
+  chemistry?: string;
+  chemistriesFile?: string;
+  cells?: number;
+  /** End-of-discharge volts per cell. */
+  cutoff?: number;
+  label?: string;
+  runs: string;
+  /** host:port of the live feed, or null for none. */
+  listen: string | null;
+  once: boolean;
+  resume?: string;
+  /** Serial baud rate; the rig profile's frame.baud when absent. */
+  baud?: number;
+  /** Sample file size before rotation. */
+  rotateBytes: number;
+  /** Rig channel to discharge. */
+  channel: number;
+}
+
+export const DEFAULT_ROTATE_BYTES = 16 * 1024 * 1024;
+export const DEFAULT_LISTEN = '127.0.0.1:8507';
