@@ -4,9 +4,11 @@ import { hideBin } from 'yargs/helpers';
 import { CellvigilError } from '../core/errors.js';
 import { chemistriesCommand } from './commands/chemistries.js';
 import { runCommand } from './commands/run.js';
+import { simCommand } from './commands/sim.js';
+import { watchCommand } from './commands/watch.js';
 
 /** One entry per command; each lives in ./commands/<name>.ts. */
-const commands = [runCommand, chemistriesCommand];
+const commands = [runCommand, chemistriesCommand, simCommand, watchCommand];
 
 async function main(): Promise<void> {
   let cli = yargs(hideBin(process.argv))
@@ -16,7 +18,9 @@ async function main(): Promise<void> {
     .recommendCommands()
     .wrap(Math.min(100, process.stdout.columns || 100))
     .fail((msg, err) => {
-      throw err ?? new CellvigilError('CV_USAGE', `${msg.replace(/\.?$/, '.')} Run cellvigil --help for the commands and options.`, 2);
+      if (err instanceof CellvigilError) throw err;
+      const what = (msg ?? err?.message ?? 'bad usage').replace(/\.?$/, '.');
+      throw new CellvigilError('CV_USAGE', `${what} Run cellvigil --help for the commands and options.`, 2);
     });
   for (const c of commands) cli = cli.command(c as never);
   await cli.parseAsync();

@@ -42,6 +42,7 @@ export interface RunOutcome {
 export interface RunHandle {
   readonly folder: string;
   readonly config: RunConfig;
+  readonly source: Source;
   readonly done: Promise<RunOutcome>;
   /** Asks for a stop (load off, result written). */
   stop(by: string): void;
@@ -364,6 +365,7 @@ export async function startRun(req: RunRequest, io: RunIo): Promise<RunHandle> {
   return {
     folder,
     config: cfg,
+    source,
     done,
     stop: (by) => dispatch(session.requestStop(clock.now(), by)),
     setCutoffPerCell: (volts, by) => {
