@@ -9,6 +9,7 @@ import { HostClock, PacedClock, type Clock, type TimerHandle } from '../core/clo
 import { CellvigilError, ErrorCodes, makeError } from '../core/errors.js';
 import { PACKAGE_VERSION } from '../core/paths.js';
 import { encodeCommand } from '../protocol/codec.js';
+import { FLAG_LOAD_ON } from '../protocol/messages.js';
 import { Session } from '../session/session.js';
 import type { Action, SessionEnd } from '../session/session-types.js';
 import { writeJsonAtomic } from '../sinks/atomic-json.js';
@@ -23,6 +24,8 @@ import { Pipeline } from './pipeline.js';
 import { buildResult, CLOCK_WARN_PPM, exitCodeFor, type RunResult } from './result.js';
 import { resolveRunConfig, type RunConfig } from './run-config.js';
 import { createRunFolder } from './run-folder.js';
+import { findResumePoint } from './resume.js';
+import { findUnfinishedRun } from './unfinished-run.js';
 import type { RunRequest } from './run-request.js';
 import { StatusPrinter } from './status-line.js';
 
@@ -61,16 +64,24 @@ export interface RunIo {
 }
 
 const TICK_MS = 100;
+/**
+ * After the daemon died with the load on, the rig kept discharging until its watchdog cut the
+ * load: 5 s after the last heartbeat, which came up to 0.5 s before death, which came up to 1 s
+ * (one flush) after the last logged row. The middle of that range, ± 0.75 s.
+ */
+const UNLOGGED_AFTER_DEATH_S = 5 + 0.5 - 0.25;
 const FLUSH_EVERY_MS = 1000;
 const CHECKPOINT_EVERY_MS = 5000;
 const STATUS_EVERY_MS = 250;
 
 export async function startRun(req: RunRequest, io: RunIo): Promise<RunHandle> {
-  const cfg = await resolveRunConfig(req);
+  const resumeDir = req.resume ?? (req.port !== undefined && !req.fresh ? await findUnfinishedRun(req.runs, req.port, Date.now()) : null);
+  const resume = resumeDir !== null ? await findResumePoint(resumeDir) : null;
+  const cfg = await resolveRunConfig(req, resume?.run.manifest ?? null);
   const { profile, chain, chemistry, cells, cutoff, scenario } = cfg;
-  const startedWall = Date.now();
-  const label = req.label ?? (scenario ? `sim-${scenario.name}` : `${cells}x${chemistry.id}`);
-  const folder = await createRunFolder(req.runs, label, startedWall);
+  const startedWall = resume ? Date.parse(resume.run.manifest.started_wall) : Date.now();
+  const label = resume?.run.manifest.label ?? req.label ?? (scenario ? `sim-${scenario.name}` : `${cells}x${chemistry.id}`);
+  const folder = resume ? resume.run.dir : await createRunFolder(req.runs, label, startedWall);
 
   // Measurement time: the simulated rig runs on a virtual clock at --speed; a real rig on the host's.
   const paced = scenario ? new PacedClock(0, startedWall) : null;
@@ -86,12 +97,15 @@ export async function startRun(req: RunRequest, io: RunIo): Promise<RunHandle> {
     floorV: cfg.floorV,
     maxTemperatureC: cfg.maxTemperatureC,
     maxCurrentA: cfg.maxCurrentA,
+    linkTimeoutMs: req.linkTimeoutS * 1000,
     checkRest: (restV) => {
       const check = checkRestingVoltage(chemistry, cells, restV, cutoff.perCell, cfg.chemistries);
       return check.ok ? null : check.error.message;
     },
   });
-  const originMs = clock.now();
+  // A resumed run's row times carry on from its last row, plus the wall time it was down.
+  const originMs = resume ? clock.now() - (resume.lastHostS * 1000 + Math.max(0, Date.now() - resume.lastWallMs)) : clock.now();
+  if (resume) session.restore(resume.totals);
   const pipeline = new Pipeline({
     channel: req.channel,
     adcBits: profile.adc.bits,
@@ -101,7 +115,19 @@ export async function startRun(req: RunRequest, io: RunIo): Promise<RunHandle> {
     originMs,
   });
 
-  const samples = new LogFile({ dir: folder, name: 'samples-', ext: '.csv', header: SAMPLE_HEADER, rotateBytes: req.rotateBytes });
+  if (resume) {
+    pipeline.counters.accepted = resume.rows;
+    pipeline.counters.rejected = resume.counters.rejected;
+    pipeline.counters.lost = resume.counters.lost;
+  }
+  const samples = new LogFile({
+    dir: folder,
+    name: 'samples-',
+    ext: '.csv',
+    header: SAMPLE_HEADER,
+    rotateBytes: resume?.run.manifest.samples.rotate_bytes ?? req.rotateBytes,
+    firstIndex: resume?.nextIndex ?? 1,
+  });
   const events = new EventLog(folder);
   const status = new StatusPrinter(io.out);
   const observers: RunObserver[] = [];
@@ -126,7 +152,7 @@ export async function startRun(req: RunRequest, io: RunIo): Promise<RunHandle> {
     samples: { prefix: 'samples-', rotate_bytes: req.rotateBytes },
   };
   try {
-    await writeJsonAtomic(join(folder, 'manifest.json'), manifest);
+    if (!resume) await writeJsonAtomic(join(folder, 'manifest.json'), manifest);
   } catch (e) {
     throw makeError(ErrorCodes.RUN_FOLDER, `cannot write the manifest: ${(e as Error).message}`, folder, 'Choose a run folder you can write to (--runs). Nothing was switched on.');
   }
@@ -143,6 +169,7 @@ export async function startRun(req: RunRequest, io: RunIo): Promise<RunHandle> {
   let gaps = 0;
   let clockWarned = false;
   let stopRequests = 0;
+  let unloggedPending = resume?.last?.loadOn === true;
   let resolveDone!: (o: RunOutcome) => void;
   let rejectDone!: (e: unknown) => void;
   const done = new Promise<RunOutcome>((res, rej) => {
@@ -175,6 +202,10 @@ export async function startRun(req: RunRequest, io: RunIo): Promise<RunHandle> {
     const out = pipeline.line(text, clock.now(), clock.wallNow());
     switch (out.kind) {
       case 'sample': {
+        if (unloggedPending) {
+          unloggedPending = false;
+          bridgeUnlogged(out.row);
+        }
         try {
           samples.append(formatSampleRow(out.row));
         } catch (e) {
@@ -203,6 +234,24 @@ export async function startRun(req: RunRequest, io: RunIo): Promise<RunHandle> {
       case 'ignored':
         break;
     }
+  };
+
+  /** The first frame after resuming: estimate what flowed while nothing was logging. */
+  const bridgeUnlogged = (row: SampleRow): void => {
+    const last = resume!.last!;
+    const sinceS = row.hostS - resume!.lastHostS;
+    const stillOn = (row.flags & FLAG_LOAD_ON) !== 0;
+    const darkS = Math.max(0, stillOn ? sinceS : Math.min(sinceS, UNLOGGED_AFTER_DEATH_S));
+    session.integrator.addUnlogged(darkS * 1000, last.volts, last.amps);
+    row.chargeAh = session.integrator.chargeAh;
+    row.energyWh = session.integrator.energyWh;
+    logEvent('unlogged_discharge', {
+      estimated_s: darkS,
+      charge_Ah: (darkS / 3600) * last.amps,
+      basis: stillOn
+        ? 'the load stayed on through the interruption: the last logged current over the whole gap'
+        : "the rig's watchdog cut the load: the last logged current for about 5.25 s (± 0.75 s)",
+    });
   };
 
   const onDiskError = (e: Error): void => {
@@ -325,7 +374,13 @@ export async function startRun(req: RunRequest, io: RunIo): Promise<RunHandle> {
   status.line('Cautions:');
   for (const c of cautionLines(chemistry)) status.line(`  - ${c}`);
   status.line(`Run folder: ${folder}`);
-  logEvent('run_started', { source: source.description, chemistry: chemistry.id, cells, cutoff_V: cutoff.total, version: PACKAGE_VERSION });
+  if (resume) {
+    const downS = Math.max(0, Date.now() - resume.lastWallMs) / 1000;
+    status.line(`Resuming an interrupted run: ${(resume.totals.chargeAh * 1000).toFixed(1)} mAh so far from ${resume.rows} logged rows; down for ${downS.toFixed(0)} s. The precheck runs again before the load goes back on.`);
+    logEvent('resumed', { rows: resume.rows, charge_Ah: resume.totals.chargeAh, energy_Wh: resume.totals.energyWh, down_s: downS, cut_bytes: resume.cutBytes, source: source.description });
+  } else {
+    logEvent('run_started', { source: source.description, chemistry: chemistry.id, cells, cutoff_V: cutoff.total, version: PACKAGE_VERSION });
+  }
   logEvent('cautions', { lines: cautionLines(chemistry) });
   if (cfg.calibration) {
     logEvent('calibration', { id: cfg.calibration.id, file: cfg.calibrationPath, date: cfg.calibration.date });
@@ -343,7 +398,15 @@ export async function startRun(req: RunRequest, io: RunIo): Promise<RunHandle> {
         events.rejected(hostS(), clock.wallNow(), 'overlong', `${n} bytes without a line end`, '');
       },
       closed: (reason) => {
-        if (!ended) logEvent('link_closed', { reason });
+        if (ended) return;
+        logEvent('link_closed', { reason });
+        status.line(`The rig's port went away (${reason}); reopening it. The rig's watchdog cuts the load after 5 s without heartbeats.`);
+        dispatch(session.linkDown(clock.now()));
+      },
+      reopened: () => {
+        if (ended) return;
+        status.line('The rig is back; reading its load state before anything else.');
+        dispatch(session.linkUp(clock.now()));
       },
     });
   } catch (e) {

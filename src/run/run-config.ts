@@ -9,6 +9,7 @@ import { resolveCutoff, validateCells, type ResolvedCutoff } from '../chemistry/
 import { ErrorCodes, makeError } from '../core/errors.js';
 import { packagePath } from '../core/paths.js';
 import { loadScenarios, pickScenario, type SimScenario } from '../sim/scenarios.js';
+import type { RunManifest } from '../replay/run-manifest.js';
 import type { RunRequest } from './run-request.js';
 
 export const DEFAULT_RIG_PATH = packagePath('config/rigs/bench-20mohm.yaml');
@@ -42,7 +43,28 @@ function currentLimit(profile: RigProfile, chain: AnalogChain): number {
   return rigLimit !== undefined ? Math.min(rigLimit, fullScaleA) : fullScaleA;
 }
 
-export async function resolveRunConfig(req: RunRequest): Promise<RunConfig> {
+/** A resumed run keeps its rig, chemistry, cells, cutoff and channel: a different one asked for is refused. */
+function checkSameRun(req: RunRequest, m: RunManifest): void {
+  const where = `--resume ${req.resume ?? ''}`;
+  const clash = (what: string, asked: unknown, had: unknown): never => {
+    throw makeError(
+      ErrorCodes.USAGE,
+      `the run was started with ${what} ${String(had)}, not ${String(asked)}`,
+      where,
+      `Leave ${what} out when resuming (the run's own settings apply), or start a new run for a different cell.`,
+    );
+  };
+  if (req.chemistry !== undefined && req.chemistry !== m.chemistry.id) clash('--chemistry', req.chemistry, m.chemistry.id);
+  if (req.cells !== undefined && req.cells !== m.cells) clash('--cells', req.cells, m.cells);
+  if (req.cutoff !== undefined && Math.abs(req.cutoff - m.cutoff_per_cell_V) > 1e-9) clash('--cutoff', req.cutoff, m.cutoff_per_cell_V);
+  if (req.channel !== m.channel) clash('--channel', req.channel, m.channel);
+}
+
+export async function resolveRunConfig(req: RunRequest, resumed: RunManifest | null = null): Promise<RunConfig> {
+  if (resumed) {
+    checkSameRun(req, resumed);
+    req = { ...req, chemistry: resumed.chemistry.id, cells: resumed.cells, cutoff: resumed.cutoff_per_cell_V };
+  }
   if ((req.port === undefined) === (req.sim === undefined)) {
     throw makeError(ErrorCodes.USAGE, 'a run needs exactly one rig', '--port / --sim', 'Give --port <device> for a real rig or --sim [scenario] for the simulated one.');
   }
@@ -56,8 +78,9 @@ export async function resolveRunConfig(req: RunRequest): Promise<RunConfig> {
     throw makeError(ErrorCodes.USAGE, `channel ${req.channel} is not 0..15`, '--channel', 'Give the rig channel the cell is on, 0 to 15.');
   }
   const scenario = req.sim !== undefined ? pickScenario(loadScenarios(DEFAULT_SCENARIOS_PATH), req.sim) : null;
-  const rigPath = resolve(req.rig ?? DEFAULT_RIG_PATH);
-  const profile = await loadRigProfile(rigPath);
+  const rigPath = resumed?.rig.file ?? resolve(req.rig ?? DEFAULT_RIG_PATH);
+  // A resumed run converts counts through the same chain it started with: the manifest's copy.
+  const profile = resumed ? resumed.rig.profile : await loadRigProfile(rigPath);
   const chain = new AnalogChain(profile);
   const chemistries = loadChemistries(req.chemistriesFile ?? DEFAULT_CHEMISTRIES_PATH);
   const chemistryId = req.chemistry ?? scenario?.cell.chemistry;
@@ -69,11 +92,11 @@ export async function resolveRunConfig(req: RunRequest): Promise<RunConfig> {
       `Name it, e.g. --chemistry li-ion; one of: ${chemistries.map((c) => c.id).join(', ')}. Cutoff and limits depend on it.`,
     );
   }
-  const chemistry = findChemistry(chemistries, chemistryId);
+  const chemistry = resumed ? resumed.chemistry.profile : findChemistry(chemistries, chemistryId);
   const cells = validateCells(req.cells ?? scenario?.cell.cells ?? 1);
   const cutoff = resolveCutoff(chemistry, cells, req.cutoff);
-  const calibrationPath = req.calibration !== undefined ? resolve(req.calibration) : null;
-  const calibration = calibrationPath !== null ? await loadCalibration(calibrationPath) : null;
+  const calibrationPath = req.calibration !== undefined ? resolve(req.calibration) : (resumed?.calibration.file ?? null);
+  const calibration = req.calibration !== undefined ? await loadCalibration(calibrationPath!) : (resumed?.calibration.content ?? null);
   return {
     request: req,
     rigPath,

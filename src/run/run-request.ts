@@ -19,7 +19,12 @@ export interface RunRequest {
   /** host:port of the live feed, or null for none. */
   listen: string | null;
   once: boolean;
+  /** Run folder of an interrupted run to continue. */
   resume?: string;
+  /** Start a new run even when an unfinished one on the same port could be resumed. */
+  fresh?: boolean;
+  /** How long the rig's port may stay gone before the run ends as link_lost, s. */
+  linkTimeoutS: number;
   /** Serial baud rate; the rig profile's frame.baud when absent. */
   baud?: number;
   /** Sample file size before rotation. */

@@ -16,21 +16,33 @@ export class Integrator {
   onMs = 0;
   /** Charge carried across flagged gaps (a figure of doubt, reported with the uncertainty). */
   bridgedAh = 0;
-  private prev: { i: number; p: number } | null = null;
+  private prev: { i: number; p: number; on: boolean } | null = null;
 
   add(dtMs: number, volts: number, amps: number, loadOn: boolean, gap: boolean): IntegratorStep {
     const i = loadOn ? amps : 0;
     const p = loadOn ? volts * amps : 0;
     const prev = this.prev;
-    this.prev = { i, p };
+    this.prev = { i, p, on: loadOn };
     if (prev === null || dtMs <= 0) return { dAh: 0, dWh: 0 };
     const dAh = ((prev.i + i) / 2) * (dtMs / MS_PER_HOUR);
     const dWh = ((prev.p + p) / 2) * (dtMs / MS_PER_HOUR);
     this.chargeAh += dAh;
     this.energyWh += dWh;
-    if (loadOn || prev.i !== 0) this.onMs += dtMs;
+    if (loadOn || prev.on) this.onMs += dtMs;
     if (gap) this.bridgedAh += Math.abs(dAh);
     return { dAh, dWh };
+  }
+
+  /**
+   * Charge that flowed while nobody was logging (the daemon down, the rig's load still on),
+   * estimated by the caller; counted in the totals and, in full, as doubt.
+   */
+  addUnlogged(dtMs: number, volts: number, amps: number): void {
+    const dAh = amps * (dtMs / MS_PER_HOUR);
+    this.chargeAh += dAh;
+    this.energyWh += volts * amps * (dtMs / MS_PER_HOUR);
+    this.onMs += dtMs;
+    this.bridgedAh += Math.abs(dAh);
   }
 
   /** Starts from totals recorded earlier (resuming a run); the next frame starts a new segment. */

@@ -1,3 +1,4 @@
+import { ErrorCodes, makeError } from '../core/errors.js';
 import { FLAG_LOAD_ON, FLAG_RIG_FAULT } from '../protocol/messages.js';
 import { Integrator } from './integrator.js';
 import { Limits, type LimitSettings } from './limits.js';
@@ -13,8 +14,10 @@ export interface SessionSettings extends LimitSettings {
   precheckMs?: number;
   /** @default 5 */
   precheckFrames?: number;
-  /** No valid frame for this long ends the run as link_lost. @default 3000 */
+  /** No valid frame for this long, the port still open, ends the run as link_lost. @default 3000 */
   staleLinkMs?: number;
+  /** The port gone (unplugged) this long ends the run as link_lost. @default 60000 */
+  linkTimeoutMs?: number;
   /** No valid frame at all this long after start: the rig is silent. @default 5000 */
   silentMs?: number;
   /** Heartbeat period while the load may be on; the protocol asks for at least one a second. @default 500 */
@@ -22,6 +25,9 @@ export interface SessionSettings extends LimitSettings {
   /** How long to wait for a LOAD command to be confirmed before repeating it. @default 1000 */
   confirmMs?: number;
 }
+
+/** Volts compared with a floor get this slack, so that 3 × 0.9 V is not refused as below 2.7000000000000002. */
+const FLOOR_SLACK_V = 1e-9;
 
 /**
  * The discharge as an explicit state machine: waiting -> precheck -> starting -> discharging
@@ -42,6 +48,12 @@ export class Session {
   private endReason: EndReason | null = null;
   private endDetail = '';
   private unexpectedOff = 0;
+  /** Set while the port is gone; the time it went. */
+  private linkDownAt: number | null = null;
+  /** The time the port came back; staleness counts from here too. */
+  private linkUpAt = -Infinity;
+  /** After an interruption the first frame's load flag is read before anything else. */
+  private reread = false;
   /** Resting voltage measured before the load went on. */
   openCircuitV: number | null = null;
   /** (U_open − U_load) / I_load from the first loaded frame. */
@@ -55,11 +67,20 @@ export class Session {
       precheckMs: 1000,
       precheckFrames: 5,
       staleLinkMs: 3000,
+      linkTimeoutMs: 60_000,
       silentMs: 5000,
       beatMs: 500,
       confirmMs: 1000,
       ...settings,
     };
+    // The floor holds whoever builds the session, not only for changes made while it runs.
+    if (!(settings.cutoffV >= settings.floorV - FLOOR_SLACK_V))
+      throw makeError(
+        ErrorCodes.CUTOFF_BELOW_FLOOR,
+        `cutoff ${settings.cutoffV} V is below the safety floor of ${settings.floorV.toFixed(3)} V`,
+        'session settings: cutoffV',
+        'Choose a cutoff at or above the floor; the floor cannot be lowered.',
+      );
     this.limits = new Limits(settings);
   }
 
@@ -82,6 +103,7 @@ export class Session {
     if (this.stateValue === 'ended') return out;
     this.lastFrameAt = m.hostMs;
     this.loadOn = (m.flags & FLAG_LOAD_ON) !== 0;
+    if (this.reread) this.afterInterruption(out);
     this.integrator.add(m.dtMs, m.volts, m.amps, this.loadOn, m.gap);
     if (this.loadOn) this.lastLoadedV = m.volts;
     switch (this.stateValue) {
@@ -106,6 +128,31 @@ export class Session {
     return out;
   }
 
+  /** The port went away (unplugged): wait up to linkTimeoutMs for it to return. */
+  linkDown(nowMs: number): Action[] {
+    if (this.stateValue === 'ended' || this.linkDownAt !== null) return [];
+    this.linkDownAt = nowMs;
+    return [{ type: 'event', name: 'link_down', detail: { state: this.stateValue, waiting_s: this.s.linkTimeoutMs / 1000 } }];
+  }
+
+  /** The port is back: the next frame's load flag decides what happens. */
+  linkUp(nowMs: number): Action[] {
+    if (this.stateValue === 'ended' || this.linkDownAt === null) return [];
+    const downS = (nowMs - this.linkDownAt) / 1000;
+    this.linkDownAt = null;
+    this.linkUpAt = nowMs;
+    this.reread = true;
+    return [{ type: 'event', name: 'link_up', detail: { down_s: downS } }, { type: 'send', command: { command: 'HELLO' } }];
+  }
+
+  /**
+   * Continues a run from totals recorded earlier (resuming after the daemon died). The
+   * precheck runs again before the load goes back on.
+   */
+  restore(totals: { chargeAh: number; energyWh: number; onMs: number; bridgedAh: number }): void {
+    this.integrator.restore(totals);
+  }
+
   /** An acknowledgement from the rig (`A,LOAD,<ch>,<0|1>`). */
   ack(command: string, args: string[]): Action[] {
     const out: Action[] = [];
@@ -124,7 +171,18 @@ export class Session {
         this.end('refused', `rig_silent: no valid frame in ${this.s.silentMs / 1000} s`, true, out);
       return out;
     }
-    const stale = this.lastFrameAt !== null && nowMs - this.lastFrameAt > this.s.staleLinkMs;
+    const lastSign = Math.max(this.lastFrameAt ?? -Infinity, this.linkUpAt, this.linkDownAt ?? -Infinity);
+    const down = this.linkDownAt !== null;
+    const stale = this.lastFrameAt !== null && nowMs - lastSign > (down ? this.s.linkTimeoutMs : this.s.staleLinkMs);
+    if (down && st !== 'stopping' && !stale) return out;
+    if (stale && down && st !== 'stopping') {
+      if (st === 'precheck') {
+        this.end('link_lost', `the rig's port was gone for ${this.s.linkTimeoutMs / 1000} s during the precheck`, true, out);
+        return out;
+      }
+      this.beginStop('link_lost', `the rig's port was gone for ${this.s.linkTimeoutMs / 1000} s; LOAD 0 is sent if it returns, and the rig's own watchdog has cut the load`, nowMs, out);
+      return out;
+    }
     if (stale && st !== 'stopping') {
       if (st === 'precheck') {
         this.end('link_lost', `no valid frame for ${this.s.staleLinkMs / 1000} s during the precheck`, true, out);
@@ -161,7 +219,7 @@ export class Session {
 
   /** Changes the cutoff (whole string, V); refuses anything below the floor. */
   setCutoff(volts: number): { ok: true } | { ok: false; why: string } {
-    if (!Number.isFinite(volts) || volts < this.s.floorV)
+    if (!Number.isFinite(volts) || volts < this.s.floorV - FLOOR_SLACK_V)
       return { ok: false, why: `cutoff ${volts} V is below the safety floor of ${this.s.floorV.toFixed(3)} V` };
     this.limits.setCutoff(volts);
     return { ok: true };
@@ -208,6 +266,21 @@ export class Session {
     out.push({ type: 'send', command: { command: 'BEAT' } }, this.loadCommand(true));
   }
 
+  /** First frame after the port came back: the load flag says what the rig did meanwhile. */
+  private afterInterruption(out: Action[]): void {
+    this.reread = false;
+    const st = this.stateValue;
+    if (st !== 'starting' && st !== 'discharging') return;
+    if (this.loadOn) {
+      out.push({ type: 'event', name: 'load_still_on', detail: { note: 'the load stayed on through the interruption' } });
+      return;
+    }
+    // The rig's watchdog cut the load; that time was rest. Check the cell again before switching on.
+    this.rest = null;
+    this.unexpectedOff = 0;
+    this.to('precheck', "the rig cut the load while the link was down; checking the resting voltage before switching it on again", out);
+  }
+
   private confirmOn(m: Measurement, out: Action[]): void {
     if (this.openCircuitV !== null && m.amps > 0) {
       this.dcResistanceOhm = (this.openCircuitV - m.volts) / m.amps;
@@ -228,7 +301,7 @@ export class Session {
       celsius: m.celsius,
       thermistor: m.thermistor,
       loadOn: this.loadOn,
-      rigFault: (m.flags & FLAG_RIG_FAULT) !== 0,
+      rigFault: this.stateValue === 'discharging' && (m.flags & FLAG_RIG_FAULT) !== 0,
     });
     if (trip) {
       this.beginStop(trip.reason, trip.detail, m.hostMs, out);

@@ -3,30 +3,57 @@ import type { Clock } from '../core/clock.js';
 import { ErrorCodes, makeError } from '../core/errors.js';
 import type { SimRig } from './sim-rig.js';
 
+const REOPEN_EVERY_MS = 200;
+
 /**
  * The simulated rig on a serial device (one end of a pseudo-terminal pair), so the daemon's
  * real serial path can be exercised without hardware. Runs in real time on the host clock.
+ * The rig has its own supply: when the link goes away it keeps running (and its watchdog
+ * keeps counting), and it reopens the device when it comes back.
  */
 export async function attachSimRig(rig: SimRig, path: string, baudRate: number): Promise<{ close(): Promise<void> }> {
-  const port = new SerialPort({ path, baudRate, autoOpen: false });
-  await new Promise<void>((resolve, reject) =>
-    port.open((err) =>
-      err
-        ? reject(makeError(ErrorCodes.PORT_OPEN, `cannot open the simulator's side of the link: ${err.message}`, `--port ${path}`, 'Create a pseudo-terminal pair first (see docs/simulated-rig.md) and pass one end.'))
-        : resolve(),
-    ),
-  );
-  port.on('data', (chunk: Buffer) => rig.receive(chunk.toString('latin1')));
-  // Errors after opening (the other side closing) end nothing here: a rig keeps running unheard.
-  port.on('error', () => undefined);
+  let port: SerialPort | null = null;
+  let closing = false;
+  let retry: NodeJS.Timeout | null = null;
+
+  const connect = async (): Promise<void> => {
+    const p = new SerialPort({ path, baudRate, autoOpen: false });
+    await new Promise<void>((resolve, reject) => p.open((err) => (err ? reject(err) : resolve())));
+    port = p;
+    p.on('data', (chunk: Buffer) => rig.receive(chunk.toString('latin1')));
+    let gone = false;
+    const onGone = (): void => {
+      if (gone) return;
+      gone = true;
+      if (port === p) port = null;
+      if (!closing) reopen();
+    };
+    p.on('close', onGone);
+    p.on('error', onGone);
+  };
+  const reopen = (): void => {
+    retry = setTimeout(() => {
+      retry = null;
+      if (!closing) connect().catch(reopen);
+    }, REOPEN_EVERY_MS);
+  };
+
+  try {
+    await connect();
+  } catch (err) {
+    throw makeError(ErrorCodes.PORT_OPEN, `cannot open the simulator's side of the link: ${(err as Error).message}`, `--port ${path}`, 'Create a pseudo-terminal pair first (see docs/simulated-rig.md) and pass one end.');
+  }
   rig.start((text) => {
-    if (port.isOpen) port.write(text);
+    if (port?.isOpen) port.write(text);
   });
   return {
     close: async () => {
+      closing = true;
+      if (retry) clearTimeout(retry);
       rig.stop();
-      if (!port.isOpen) return;
-      await new Promise<void>((resolve) => port.drain(() => port.close(() => resolve())));
+      const p = port;
+      if (!p?.isOpen) return;
+      await new Promise<void>((resolve) => p.drain(() => p.close(() => resolve())));
     },
   };
 }

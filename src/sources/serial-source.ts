@@ -7,13 +7,21 @@ export interface SerialSourceOptions {
   path: string;
   /** @default 115200 */
   baudRate?: number;
+  /** Longest wait between attempts to reopen a port that went away. @default 1000 */
+  maxRetryMs?: number;
 }
 
-/** A real device or a pseudo-terminal, through serialport's native binding. */
+/**
+ * A real device or a pseudo-terminal, through serialport's native binding. A port that goes
+ * away (USB unplugged) is reopened with a short backoff, so a returning rig is heard again
+ * within about a second of coming back.
+ */
 export class SerialSource implements Source {
   readonly kind = 'serial' as const;
   readonly description: string;
   private port: SerialPort | null = null;
+  private wanted = false;
+  private retryTimer: NodeJS.Timeout | null = null;
   private readonly options: SerialSourceOptions;
 
   constructor(options: SerialSourceOptions) {
@@ -22,33 +30,51 @@ export class SerialSource implements Source {
   }
 
   async open(handlers: SourceHandlers): Promise<void> {
+    this.wanted = true;
+    try {
+      await this.connect(handlers);
+    } catch (err) {
+      this.wanted = false;
+      throw makeError(
+        ErrorCodes.PORT_OPEN,
+        `Could not open serial port: ${(err as Error).message}`,
+        `--port ${this.options.path}`,
+        'Check the path (ls /dev/ttyUSB* /dev/ttyACM*), that no other program holds the port, and that you may read it (group dialout).',
+      );
+    }
+  }
+
+  private async connect(handlers: SourceHandlers): Promise<void> {
     const port = new SerialPort({ path: this.options.path, baudRate: this.options.baudRate ?? 115200, autoOpen: false });
-    await new Promise<void>((resolve, reject) => {
-      port.open((err) => {
-        if (err) {
-          reject(
-            makeError(
-              ErrorCodes.PORT_OPEN,
-              `Could not open serial port: ${err.message}`,
-              `--port ${this.options.path}`,
-              'Check the path (ls /dev/ttyUSB* /dev/ttyACM*), that no other program holds the port, and that you may read it (group dialout).',
-            ),
-          );
-        } else resolve();
-      });
-    });
+    await new Promise<void>((resolve, reject) => port.open((err) => (err ? reject(err) : resolve())));
     this.port = port;
+    // A fresh splitter per connection: a half line from before the break is not glued to the next.
     const splitter = new LineSplitter({ onOverlong: (n) => handlers.overlong(n) });
     port.pipe(splitter);
     splitter.on('data', (line: string) => handlers.line(line));
-    let closed = false;
-    const onClose = (reason: string): void => {
-      if (closed) return;
-      closed = true;
+    let gone = false;
+    const onGone = (reason: string): void => {
+      if (gone) return;
+      gone = true;
+      port.unpipe(splitter);
+      if (this.port === port) this.port = null;
+      if (!this.wanted) return;
       handlers.closed(reason);
+      this.retry(handlers, 100);
     };
-    port.on('close', () => onClose('port closed'));
-    port.on('error', (err: Error) => onClose(`port error: ${err.message}`));
+    port.on('close', () => onGone('port closed'));
+    port.on('error', (err: Error) => onGone(`port error: ${err.message}`));
+  }
+
+  private retry(handlers: SourceHandlers, delayMs: number): void {
+    this.retryTimer = setTimeout(() => {
+      this.retryTimer = null;
+      if (!this.wanted) return;
+      this.connect(handlers).then(
+        () => handlers.reopened?.(),
+        () => this.retry(handlers, Math.min(delayMs * 2, this.options.maxRetryMs ?? 1000)),
+      );
+    }, delayMs);
   }
 
   write(line: string): boolean {
@@ -58,6 +84,9 @@ export class SerialSource implements Source {
   }
 
   async close(): Promise<void> {
+    this.wanted = false;
+    if (this.retryTimer) clearTimeout(this.retryTimer);
+    this.retryTimer = null;
     const port = this.port;
     this.port = null;
     if (!port || !port.isOpen) return;

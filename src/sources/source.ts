@@ -9,6 +9,8 @@ export interface SourceHandlers {
   overlong(length: number): void;
   /** The connection ended (port unplugged, file finished); `reason` is for the event log. */
   closed(reason: string): void;
+  /** A source that reconnects by itself (a serial port plugged back in) is open again. */
+  reopened?(): void;
 }
 
 export interface Source {

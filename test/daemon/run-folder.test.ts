@@ -16,6 +16,7 @@ function request(over: Partial<RunRequest>): RunRequest {
     listen: null,
     once: true,
     rotateBytes: 16 * 1024 * 1024,
+    linkTimeoutS: 60,
     channel: 0,
     ...over,
   };

@@ -24,6 +24,10 @@ export interface PtyRig {
   sim: ChildProcess;
   socat: ChildProcess;
   readTruth(): SimTruthFile;
+  /** Kills socat: both ends of the link vanish, as when a USB adapter is pulled. */
+  unplug(): Promise<void>;
+  /** Starts socat again with the same paths. */
+  plugIn(): Promise<void>;
   stop(): Promise<void>;
 }
 
@@ -45,8 +49,12 @@ export async function startPtyRig(scenario: string, simArgs: string[] = []): Pro
   const hostPath = join(dir, 'host');
   const rigPath = join(dir, 'rig');
   const truthPath = join(dir, 'truth.json');
-  const socat = spawn('socat', [`pty,raw,echo=0,link=${hostPath}`, `pty,raw,echo=0,link=${rigPath}`], { stdio: 'ignore' });
-  await waitFor(() => existsSync(hostPath) && existsSync(rigPath), 5000, 'socat to create the pty pair');
+  const startSocat = async (): Promise<ChildProcess> => {
+    const p = spawn('socat', [`pty,raw,echo=0,link=${hostPath}`, `pty,raw,echo=0,link=${rigPath}`], { stdio: 'ignore' });
+    await waitFor(() => existsSync(hostPath) && existsSync(rigPath), 5000, 'socat to create the pty pair');
+    return p;
+  };
+  let socat = await startSocat();
   const sim = spawn(process.execPath, [CLI, 'sim', scenario, '--port', rigPath, '--truth', truthPath, ...simArgs], { stdio: ['ignore', 'pipe', 'pipe'] });
   let simErr = '';
   sim.stderr!.on('data', (d: Buffer) => (simErr += d.toString()));
@@ -59,7 +67,17 @@ export async function startPtyRig(scenario: string, simArgs: string[] = []): Pro
     hostPath,
     truthPath,
     sim,
-    socat,
+    get socat() {
+      return socat;
+    },
+    unplug: async () => {
+      socat.kill('SIGTERM');
+      await exited(socat);
+      await waitFor(() => !existsSync(hostPath), 5000, 'socat to remove its links');
+    },
+    plugIn: async () => {
+      socat = await startSocat();
+    },
     readTruth: () => JSON.parse(readFileSync(truthPath, 'utf8')) as SimTruthFile,
     stop: async () => {
       sim.kill('SIGTERM');

@@ -20,6 +20,9 @@ interface RunArgs {
   baud: number | undefined;
   channel: number;
   'rotate-mb': number;
+  resume: string | undefined;
+  new: boolean;
+  'link-timeout': number;
 }
 
 export const runCommand: CommandModule<object, RunArgs> = {
@@ -47,6 +50,9 @@ export const runCommand: CommandModule<object, RunArgs> = {
       .option('once', { type: 'boolean', default: false, describe: 'Exit when the run ends (for scripts)' })
       .option('baud', { type: 'number', describe: 'Serial baud rate (default: the rig profile\'s frame.baud)' })
       .option('channel', { type: 'number', default: 0, describe: 'Rig channel the cell is on' })
+      .option('resume', { type: 'string', describe: 'Continue an interrupted run from its folder (same rig, chemistry and limits)' })
+      .option('new', { type: 'boolean', default: false, describe: 'Start a new run even if an unfinished run on this port could be resumed' })
+      .option('link-timeout', { type: 'number', default: 60, describe: 'Seconds the rig\'s port may stay unplugged before the run ends as link_lost' })
       .option('rotate-mb', { type: 'number', default: DEFAULT_ROTATE_BYTES / 1048576, describe: 'Start a new sample file after this many MiB' }),
   handler: async (args) => {
     const req: RunRequest = {
@@ -56,6 +62,9 @@ export const runCommand: CommandModule<object, RunArgs> = {
       once: args.once,
       channel: args.channel,
       rotateBytes: Math.max(4096, Math.round(args['rotate-mb'] * 1048576)),
+      linkTimeoutS: args['link-timeout'],
+      fresh: args.new,
+      ...(args.resume !== undefined ? { resume: args.resume } : {}),
       ...(args.port !== undefined ? { port: args.port } : {}),
       ...(args.sim !== undefined ? { sim: args.sim } : {}),
       ...(args.rig !== undefined ? { rig: args.rig } : {}),
