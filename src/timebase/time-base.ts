@@ -1,6 +1,9 @@
 import { RateEstimator } from './rate-estimator.js';
 import { Unwrapper } from './unwrap.js';
 
+/** Span over which a lag common to all frames is looked for. */
+const LAG_WINDOW_MS = 2000;
+
 export interface TimeBaseOptions {
   /** Host gap between frames that is flagged as a gap rather than bridged quietly. @default 2000 */
   longGapMs?: number;
@@ -34,6 +37,8 @@ export class TimeBase {
   private readonly seqs = new Unwrapper(65536);
   private readonly rate = new RateEstimator();
   private prev: { hostMs: number; tick: number; arrival: number } | null = null;
+  private windowStart = -Infinity;
+  private windowMinLag = Infinity;
 
   constructor(options: TimeBaseOptions = {}) {
     this.longGapMs = options.longGapMs ?? 2000;
@@ -54,13 +59,24 @@ export class TimeBase {
         this.rate.reset();
       }
       const hostMs = prev === null ? arrivalMs : Math.max(prev.hostMs, arrivalMs);
+      this.windowStart = arrivalMs;
+      this.windowMinLag = Infinity;
       this.prev = { hostMs, tick: rigRestart ? tickMs : t.value, arrival: arrivalMs };
       this.rate.add(rigRestart ? tickMs : t.value, arrivalMs);
       return { hostMs, dtMs: prev === null ? 0 : hostMs - prev.hostMs, lost: 0, gap: prev !== null, rigRestart };
     }
     this.rate.add(t.value, arrivalMs);
     const scale = this.rate.hostPerTick() ?? 1;
-    const predicted = prev.hostMs + (t.value - prev.tick) * scale;
+    let predicted = prev.hostMs + (t.value - prev.tick) * scale;
+    // A lag behind arrival that every frame of a window shares (built up before the rate was
+    // known, a slow rig clock read as a true one) is removed at once; in bursts the last frame
+    // of each burst arrives on time, so their spreading is left alone.
+    this.windowMinLag = Math.min(this.windowMinLag, arrivalMs - predicted);
+    if (arrivalMs - this.windowStart >= LAG_WINDOW_MS) {
+      if (this.windowMinLag > 0) predicted += this.windowMinLag;
+      this.windowStart = arrivalMs;
+      this.windowMinLag = Infinity;
+    }
     const lower = Math.max(prev.hostMs, arrivalMs - this.maxLagMs);
     const hostMs = Math.min(arrivalMs, Math.max(lower, predicted));
     const dtMs = hostMs - prev.hostMs;

@@ -16,8 +16,10 @@ export class Unwrapper {
       step += this.modulus;
       this.base += this.modulus;
     } else if (step > this.modulus / 2) {
-      // An earlier frame arriving late across the wrap; keep it negative rather than rewinding.
+      // A counter stepping back across the wrap (a late frame, a restart): it belongs to the
+      // previous lap, and a following forward wrap must land back on this one.
       step -= this.modulus;
+      this.base -= this.modulus;
     }
     this.last = raw;
     return { value: this.base + raw, step };

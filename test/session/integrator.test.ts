@@ -1,0 +1,103 @@
+import { describe, expect, it } from 'vitest';
+import { Integrator } from '../../src/session/integrator.js';
+
+/** Feeds samples of i(t), v(t) every `stepS` seconds from 0 to `totalS`. */
+function integrate(totalS: number, stepS: number, amps: (t: number) => number, volts: (t: number) => number = () => 3.7, loadOn: (t: number) => boolean = () => true): Integrator {
+  const integ = new Integrator();
+  const n = Math.round(totalS / stepS);
+  for (let k = 0; k <= n; k++) {
+    const t = k * stepS;
+    integ.add(k === 0 ? 0 : stepS * 1000, volts(t), amps(t), loadOn(t), false);
+  }
+  return integ;
+}
+
+describe('integrator: charge is the time integral of current (physics)', () => {
+  it('1 A for 10 min is 1/6 Ah = 166.7 mAh (physics; CHECKS.md)', () => {
+    const integ = integrate(600, 0.1, () => 1);
+    expect(integ.chargeAh * 1000).toBeCloseTo(166.667, 3);
+    expect(integ.chargeAh).toBeCloseTo(1 / 6, 12);
+    expect(integ.onMs).toBeCloseTo(600_000, 6);
+  });
+
+  it('a linear ramp 0 -> 2 A over 1 h is exactly 1 Ah (∫ 2t/T dt = T; the trapezoid rule is exact for straight lines)', () => {
+    const integ = integrate(3600, 1, (t) => (2 * t) / 3600);
+    expect(integ.chargeAh).toBeCloseTo(1, 12);
+  });
+
+  it('an exponential decay matches its analytic integral I0·τ·(1 − e^(−T/τ)) within the trapezoid error bound', () => {
+    // I0 = 2 A, τ = 1800 s, T = 3600 s, h = 1 s. Composite trapezoid rule error bound (numerical
+    // analysis textbooks): |E| ≤ T·h²/12·max|I''| = 3600/12 · 2/1800² A·s.
+    const i0 = 2;
+    const tau = 1800;
+    const integ = integrate(3600, 1, (t) => i0 * Math.exp(-t / tau));
+    const exactAh = (i0 * tau * (1 - Math.exp(-3600 / tau))) / 3600;
+    const boundAh = ((3600 / 12) * (i0 / tau ** 2)) / 3600;
+    expect(Math.abs(integ.chargeAh - exactAh)).toBeLessThanOrEqual(boundAh);
+    expect(Math.abs(integ.chargeAh - exactAh) / exactAh).toBeLessThan(1e-6);
+  });
+
+  it('a sine ripple on a DC current integrates to the DC part over whole periods (∫ sin over a period = 0; the trapezoid sum of a sampled sine over whole periods is 0 too)', () => {
+    // 1.5 A + 0.5 A·sin(2πt/60 s) for 10 whole periods, sampled every 0.25 s
+    const integ = integrate(600, 0.25, (t) => 1.5 + 0.5 * Math.sin((2 * Math.PI * t) / 60));
+    expect(Math.abs(integ.chargeAh - (1.5 * 600) / 3600)).toBeLessThan(1e-9);
+  });
+
+  it('energy is ∫V·I dt: 3.7 V at 0.5 A for 2 h is 3.7 Wh (physics: P = V·I)', () => {
+    const integ = integrate(7200, 1, () => 0.5, () => 3.7);
+    expect(integ.energyWh).toBeCloseTo(3.7, 10);
+    expect(integ.chargeAh).toBeCloseTo(1, 10);
+  });
+
+  it('energy with a voltage falling linearly 4.2 -> 3.0 V at 1 A for 1 h is the mean voltage times 1 Ah: 3.6 Wh', () => {
+    const integ = integrate(3600, 1, () => 1, (t) => 4.2 - (1.2 * t) / 3600);
+    expect(integ.energyWh).toBeCloseTo(3.6, 10);
+  });
+
+  it('current counts only while the load flag is on: an offset with the load off adds nothing', () => {
+    const off = integrate(600, 1, () => 0.033, () => 3.7, () => false);
+    expect(off.chargeAh).toBe(0);
+    expect(off.energyWh).toBe(0);
+    expect(off.onMs).toBe(0);
+    // on for the middle 10 minutes of 30: 1 A for 600 s, plus half a step at each switching edge
+    const mixed = integrate(1800, 1, () => 1, () => 3.7, (t) => t >= 600 && t < 1200);
+    expect(mixed.chargeAh).toBeCloseTo(600 / 3600, 12);
+    expect(mixed.onMs).toBe(601_000);
+  });
+
+  it('onMs counts an interval that starts with the load on even if the current read 0 A', () => {
+    const integ = new Integrator();
+    integ.add(0, 3.7, 0, true, false);
+    integ.add(1000, 3.7, 0, false, false);
+    expect(integ.onMs).toBe(1000);
+  });
+
+  it('a flagged gap is integrated but booked as bridged charge', () => {
+    const integ = new Integrator();
+    integ.add(0, 3.7, 1, true, false);
+    integ.add(1000, 3.7, 1, true, false);
+    integ.add(5000, 3.7, 1, true, true);
+    expect(integ.chargeAh).toBeCloseTo(6 / 3600, 12);
+    expect(integ.bridgedAh).toBeCloseTo(5 / 3600, 12);
+  });
+
+  it('a zero or negative time step adds nothing', () => {
+    const integ = new Integrator();
+    integ.add(0, 3.7, 1, true, false);
+    expect(integ.add(0, 3.7, 1, true, false)).toEqual({ dAh: 0, dWh: 0 });
+    expect(integ.add(-5, 3.7, 1, true, false)).toEqual({ dAh: 0, dWh: 0 });
+    expect(integ.chargeAh).toBe(0);
+  });
+
+  it('restore continues from saved totals and starts a new segment', () => {
+    const integ = new Integrator();
+    integ.restore({ chargeAh: 1, energyWh: 3.7, onMs: 3_600_000, bridgedAh: 0.01 });
+    integ.add(3_600_000, 3.7, 1, true, false); // first frame after a resume: no interval yet
+    expect(integ.chargeAh).toBe(1);
+    integ.add(3_600_000, 3.7, 1, true, false);
+    expect(integ.chargeAh).toBeCloseTo(2, 12);
+    expect(integ.energyWh).toBeCloseTo(7.4, 12);
+    expect(integ.onMs).toBe(7_200_000);
+    expect(integ.bridgedAh).toBe(0.01);
+  });
+});
