@@ -22,6 +22,11 @@ export interface CalibrationPoint {
   samples?: number;
   /** The chain's nominal value for raw_mean (V, A or °C). */
   nominal: number;
+  /**
+   * Standard uncertainty of `nominal` from the averaging (standard error of the mean count,
+   * with quantisation when the noise is too small to dither), in the same unit.
+   */
+  nominal_u?: number;
   /** The reference instrument's reading. */
   reference: number;
   /** Standard uncertainty of the reference reading (same unit). */
@@ -84,6 +89,7 @@ const QUANTITY_SCHEMA: SchemaObject = {
           raw_sd: nonNegative,
           samples: { type: 'integer', minimum: 1 },
           nominal: finite,
+          nominal_u: nonNegative,
           reference: finite,
           reference_u: nonNegative,
         },
@@ -150,15 +156,17 @@ export function sealCalibration(content: CalibrationContent): Calibration {
 
 /**
  * Fits one quantity's points: gain and offset, or offset only. The residual of each point is
- * recomputable from the stored fit, so it is not stored twice.
+ * recomputable from the stored fit, so it is not stored twice. A point's weight comes from the
+ * reference's uncertainty combined with the nominal's (effective variance: the gain is close
+ * to 1 by construction, so the nominal's u counts one for one).
  */
 export function fitQuantity(
   quantity: Quantity,
   points: readonly CalibrationPoint[],
   model: QuantityFit['model'],
   where = `${quantity} calibration`,
-): { calibration: QuantityCalibration; outliers: number[] } {
-  const xy = points.map((p) => ({ x: p.nominal, y: p.reference, u: p.reference_u }));
+): { calibration: QuantityCalibration; outliers: number[]; standardized: number[] } {
+  const xy = points.map((p) => ({ x: p.nominal, y: p.reference, u: Math.hypot(p.reference_u, p.nominal_u ?? 0) }));
   const options: FitOptions = { quantity, where };
   const r = model === 'gain_offset' ? fitLine(xy, options) : fitOffset(xy, options);
   const fit: QuantityFit = {
@@ -171,7 +179,7 @@ export function fitQuantity(
     residual_sd: r.residual_sd,
     dof: r.dof,
   };
-  return { calibration: { points: points.map((p) => ({ ...p })), fit }, outliers: r.outliers };
+  return { calibration: { points: points.map((p) => ({ ...p })), fit }, outliers: r.outliers, standardized: r.standardized };
 }
 
 /** Parses and checks calibration JSON, including that its id matches its content. */

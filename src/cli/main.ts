@@ -2,13 +2,16 @@
 import yargs from 'yargs';
 import { hideBin } from 'yargs/helpers';
 import { CellvigilError } from '../core/errors.js';
+import { assessCommand } from './commands/assess.js';
+import { calibrateCommand } from './commands/calibrate.js';
 import { chemistriesCommand } from './commands/chemistries.js';
+import { reportCommand } from './commands/report.js';
 import { runCommand } from './commands/run.js';
 import { simCommand } from './commands/sim.js';
 import { watchCommand } from './commands/watch.js';
 
 /** One entry per command; each lives in ./commands/<name>.ts. */
-const commands = [runCommand, chemistriesCommand, simCommand, watchCommand];
+const commands = [runCommand, chemistriesCommand, simCommand, watchCommand, reportCommand, calibrateCommand, assessCommand];
 
 async function main(): Promise<void> {
   let cli = yargs(hideBin(process.argv))

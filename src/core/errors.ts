@@ -15,6 +15,12 @@ export const ErrorCodes = {
   CALIBRATION_INVALID: 'CV_CALIBRATION_INVALID',
   CALIBRATION_FIT: 'CV_CALIBRATION_FIT',
   CALIBRATION_WRITE: 'CV_CALIBRATION_WRITE',
+  CALIBRATION_CAPTURE: 'CV_CALIBRATION_CAPTURE',
+  TOKEN_FILE: 'CV_TOKEN_FILE',
+  LIVE_UNPROTECTED: 'CV_LIVE_UNPROTECTED',
+  LIVE_LISTEN: 'CV_LIVE_LISTEN',
+  WATCH_REFUSED: 'CV_WATCH_REFUSED',
+  RUN_DATA: 'CV_RUN_DATA',
 } as const;
 
 export type ErrorCode = (typeof ErrorCodes)[keyof typeof ErrorCodes];
@@ -40,6 +46,9 @@ export function makeError(code: ErrorCode, what: string, where: string, fix: str
     code === ErrorCodes.USAGE ||
     code === ErrorCodes.CUTOFF_BELOW_FLOOR ||
     code === ErrorCodes.PRECHECK_REFUSED ||
-    code === ErrorCodes.CALIBRATION_INVALID;
+    code === ErrorCodes.CALIBRATION_INVALID ||
+    code === ErrorCodes.TOKEN_FILE ||
+    code === ErrorCodes.LIVE_UNPROTECTED ||
+    code === ErrorCodes.WATCH_REFUSED;
   return new CellvigilError(code, `${what} (${where}). ${fix}`, usage ? 2 : 1);
 }

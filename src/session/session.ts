@@ -176,7 +176,7 @@ export class Session {
     const stale = this.lastFrameAt !== null && nowMs - lastSign > (down ? this.s.linkTimeoutMs : this.s.staleLinkMs);
     if (down && st !== 'stopping' && !stale) return out;
     if (stale && down && st !== 'stopping') {
-      if (st === 'precheck') {
+      if (st === 'precheck' && !this.loadOn) {
         this.end('link_lost', `the rig's port was gone for ${this.s.linkTimeoutMs / 1000} s during the precheck`, true, out);
         return out;
       }
@@ -184,7 +184,7 @@ export class Session {
       return out;
     }
     if (stale && st !== 'stopping') {
-      if (st === 'precheck') {
+      if (st === 'precheck' && !this.loadOn) {
         this.end('link_lost', `no valid frame for ${this.s.staleLinkMs / 1000} s during the precheck`, true, out);
         return out;
       }
@@ -212,8 +212,9 @@ export class Session {
   requestStop(nowMs: number, by: string): Action[] {
     const out: Action[] = [];
     const st = this.stateValue;
-    if (st === 'waiting' || st === 'precheck') this.end('stopped', `stopped by ${by} before the load was switched on`, true, out);
-    else if (st === 'starting' || st === 'discharging') this.beginStop('stopped', `stopped by ${by}`, nowMs, out);
+    // A load found on during the precheck is switched off and confirmed like any other.
+    if ((st === 'waiting' || st === 'precheck') && !this.loadOn) this.end('stopped', `stopped by ${by} before the load was switched on`, true, out);
+    else if (st !== 'stopping' && st !== 'ended') this.beginStop('stopped', `stopped by ${by}`, nowMs, out);
     return out;
   }
 

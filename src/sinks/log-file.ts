@@ -1,5 +1,6 @@
-import { open, type FileHandle } from 'node:fs/promises';
+import { access, open, type FileHandle } from 'node:fs/promises';
 import { join } from 'node:path';
+import { compressClosedFile, GZ_EXT, settleRotated, type CompressOutcome } from './compress.js';
 
 export interface LogFileOptions {
   dir: string;
@@ -15,6 +16,15 @@ export interface LogFileOptions {
   firstIndex?: number;
   /** Held in memory before `append` reports the disk is not keeping up. @default 32 MiB */
   maxPendingBytes?: number;
+  /**
+   * With `rotate`: gzip each file once the log has moved on to the next one, in the background,
+   * to `<file>.gz` (see compress.ts for the crash-safe order of steps). The file being written
+   * is never compressed. On the first write, leftovers of an interrupted compression in the
+   * folder are settled and closed plain files below `firstIndex` are compressed. @default false
+   */
+  compressClosed?: boolean;
+  /** Told about every compression, done or failed (a failure keeps the plain file). */
+  onCompressed?: (outcome: CompressOutcome) => void;
 }
 
 /**
@@ -27,9 +37,14 @@ export class LogFile {
   private pendingBytes = 0;
   private handle: FileHandle | null = null;
   private fileBytes = 0;
+  /** Bytes of the header this process wrote at the top of the current file. */
+  private headerBytes = 0;
   private index: number;
   private chain: Promise<void> = Promise.resolve();
   private failure: Error | null = null;
+  /** Compressions run one after another, apart from the writes, so a slow gzip never delays a flush. */
+  private compressions: Promise<void> = Promise.resolve();
+  private settled = false;
   readonly files: string[] = [];
 
   constructor(private readonly o: LogFileOptions) {
@@ -63,11 +78,32 @@ export class LogFile {
     return this.chain;
   }
 
+  /** Writes what is queued, closes the file and waits for compressions under way. The last file stays plain. */
   async close(): Promise<void> {
-    await this.flush();
-    await this.chain;
-    if (this.handle) await this.handle.close();
-    this.handle = null;
+    try {
+      await this.flush();
+      await this.chain;
+      if (this.handle) await this.handle.close();
+      this.handle = null;
+    } finally {
+      await this.compressions;
+    }
+  }
+
+  private compressLater(path: string): void {
+    this.compressions = this.compressions.then(async () => {
+      const outcome = await compressClosedFile(path);
+      this.o.onCompressed?.(outcome);
+    });
+  }
+
+  /** Run once before the first file is opened: finishes what an interrupted run left half done. */
+  private async settle(): Promise<void> {
+    this.settled = true;
+    if (!this.o.compressClosed || this.o.rotateBytes === undefined) return;
+    const ext = this.o.ext ?? '.csv';
+    const closed = await settleRotated(this.o.dir, this.o.name, ext, this.index);
+    for (const i of closed) this.compressLater(join(this.o.dir, `${this.o.name}${String(i).padStart(4, '0')}${ext}`));
   }
 
   private currentPath(): string {
@@ -76,13 +112,19 @@ export class LogFile {
   }
 
   private async openFile(): Promise<void> {
+    if (!this.settled) await this.settle();
+    // A number already taken by a compressed file is never reused: a plain file beside it
+    // would hide its rows from readers, which prefer the plain file.
+    while (this.o.rotateBytes !== undefined && (await exists(this.currentPath() + GZ_EXT))) this.index++;
     const path = this.currentPath();
     this.handle = await open(path, 'a');
     this.fileBytes = (await this.handle.stat()).size;
     this.files.push(path);
+    this.headerBytes = 0;
     if (this.fileBytes === 0 && this.o.header) {
       await this.handle.write(this.o.header + '\n');
-      this.fileBytes += this.o.header.length + 1;
+      this.headerBytes = this.o.header.length + 1;
+      this.fileBytes += this.headerBytes;
     }
   }
 
@@ -93,12 +135,15 @@ export class LogFile {
     let batchBytes = 0;
     for (const row of rows) {
       const limit = this.o.rotateBytes;
-      if (limit !== undefined && this.fileBytes + batchBytes + row.length + 1 > limit && this.fileBytes + batchBytes > 0) {
+      // A file always takes at least one row, so a limit below header + row cannot rotate forever.
+      const holdsRows = this.fileBytes + batchBytes > this.headerBytes;
+      if (limit !== undefined && this.fileBytes + batchBytes + row.length + 1 > limit && holdsRows) {
         await this.writeBatch(batch, batchBytes);
         batch = [];
         batchBytes = 0;
         await this.handle!.sync();
         await this.handle!.close();
+        if (this.o.compressClosed) this.compressLater(this.currentPath());
         this.index++;
         await this.openFile();
       }
@@ -113,5 +158,14 @@ export class LogFile {
     if (batch.length === 0) return;
     await this.handle!.write(batch.join('\n') + '\n');
     this.fileBytes += bytes;
+  }
+}
+
+async function exists(path: string): Promise<boolean> {
+  try {
+    await access(path);
+    return true;
+  } catch {
+    return false;
   }
 }

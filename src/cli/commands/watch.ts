@@ -33,7 +33,7 @@ export const watchCommand: CommandModule<object, WatchArgs> = {
       redrawPending = false;
       const lines = statusBlock(view);
       // Move to the start of the previous block and clear it, then write the new one.
-      out.write(`${drawn > 0 ? `\x1b[${drawn}F\x1b[J` : ''}${lines.map((l) => l.slice(0, Math.max(20, (out.columns ?? 100) - 1))).join('\n')}\n`);
+      out.write(`${drawn > 0 ? `\x1b[${drawn}F\x1b[J` : ''}${lines.map((l) => l.slice(0, Math.max(20, (out.columns || 100) - 1))).join('\n')}\n`);
       drawn = lines.length;
     };
     const update = (important: boolean): void => {

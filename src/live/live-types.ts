@@ -1,0 +1,146 @@
+/**
+ * The live feed's data: what the daemon hands the hub, and the messages the hub sends to
+ * viewers. The message shapes are a contract (docs/live-feed.md); the schemas in
+ * message-schemas.ts describe the same shapes for validation.
+ */
+
+/** Version of every live-feed message; a viewer refuses a message with another version. */
+export const LIVE_VERSION = 1;
+
+export interface LiveRunInfo {
+  label: string;
+  run_folder: string;
+  chemistry: string;
+  cells: number;
+  /** Whole string, volts. */
+  cutoff_V: number;
+  /** Lowest cutoff anyone may set for the whole string, volts. */
+  floor_V: number;
+  calibration_id: string;
+  started_wall: string;
+  source: string;
+  max_temperature_C: number;
+}
+
+export interface LiveSample {
+  /** Seconds since the run started, on the daemon's monotonic clock. */
+  host_s: number;
+  voltage_V: number;
+  current_A: number;
+  temperature_C: number | null;
+  charge_Ah: number;
+  energy_Wh: number;
+  state: string;
+  load_on: boolean;
+}
+
+export interface LiveStateChange {
+  host_s: number;
+  from: string;
+  to: string;
+  why: string;
+}
+
+export interface LiveAlarm {
+  host_s: number;
+  kind: string;
+  detail: string;
+}
+
+export interface LiveMark {
+  host_s: number;
+  note: string;
+}
+
+export type ControlRequest = { type: 'stop' } | { type: 'set-cutoff'; cutoff_V: number } | { type: 'mark'; note: string };
+export type ControlReply = { ok: true } | { ok: false; error: string };
+export type ControlHandler = (c: ControlRequest) => ControlReply;
+
+/** Columns of a history point, in order. */
+export const HISTORY_FIELDS = ['host_s', 'voltage_V', 'current_A', 'temperature_C', 'charge_Ah', 'energy_Wh'] as const;
+export type HistoryPoint = [number, number, number, number | null, number, number];
+
+export interface FeedStatus {
+  /** The latest sample, or null before the first one. */
+  sample: LiveSample | null;
+  state: string;
+  cutoff_V: number | null;
+  /** Seconds until the voltage reaches the cutoff at the recent slope; null when unknown. */
+  time_to_cutoff_s: number | null;
+  /** The recent voltage slope the estimate uses, volts per second. */
+  slope_V_per_s: number | null;
+  ended: boolean;
+}
+
+export interface HelloMessage {
+  type: 'hello';
+  v: typeof LIVE_VERSION;
+  run: LiveRunInfo | null;
+  status: FeedStatus;
+  history: { fields: typeof HISTORY_FIELDS; stride: number; points: HistoryPoint[] };
+  alarms: LiveAlarm[];
+  events: Array<({ kind: 'state' } & LiveStateChange) | ({ kind: 'mark' } & LiveMark)>;
+  result: Record<string, unknown> | null;
+}
+
+export interface SampleMessage extends LiveSample {
+  type: 'sample';
+  v: typeof LIVE_VERSION;
+  time_to_cutoff_s: number | null;
+}
+
+export interface StateMessage extends LiveStateChange {
+  type: 'state';
+  v: typeof LIVE_VERSION;
+}
+
+export interface AlarmMessage extends LiveAlarm {
+  type: 'alarm';
+  v: typeof LIVE_VERSION;
+}
+
+export interface MarkMessage extends LiveMark {
+  type: 'mark';
+  v: typeof LIVE_VERSION;
+}
+
+export interface ResultMessage {
+  type: 'result';
+  v: typeof LIVE_VERSION;
+  result: Record<string, unknown>;
+}
+
+export interface CutoffMessage {
+  type: 'cutoff';
+  v: typeof LIVE_VERSION;
+  cutoff_V: number;
+}
+
+export interface AckMessage {
+  type: 'ack';
+  v: typeof LIVE_VERSION;
+  id: string | null;
+  request: ControlRequest['type'];
+}
+
+export interface ErrorMessage {
+  type: 'error';
+  v: typeof LIVE_VERSION;
+  id: string | null;
+  code: LiveErrorCode;
+  error: string;
+}
+
+export type LiveErrorCode = 'malformed' | 'unauthorized' | 'refused' | 'too_large';
+
+/** What the hub broadcasts to every viewer. */
+export type BroadcastMessage = HelloMessage | SampleMessage | StateMessage | AlarmMessage | MarkMessage | ResultMessage | CutoffMessage;
+/** Everything a viewer can receive. */
+export type ServerMessage = BroadcastMessage | AckMessage | ErrorMessage;
+
+/** A control message as it arrives from a viewer, after validation. */
+export type ClientMessage = (
+  | { type: 'stop' }
+  | { type: 'set-cutoff'; cutoff_V: number }
+  | { type: 'mark'; note: string }
+) & { v: typeof LIVE_VERSION; token: string; id?: string };

@@ -1,0 +1,112 @@
+import { WebSocket } from 'ws';
+import { HostClock, type Clock, type TimerHandle } from '../core/clock.js';
+import { ErrorCodes, makeError, type CellvigilError } from '../core/errors.js';
+import type { ServerMessage } from './live-types.js';
+import { checkServerMessage } from './message-schemas.js';
+
+export interface WatchClientOptions {
+  /** ws:// or wss:// address of /live. */
+  url: string;
+  onMessage: (m: ServerMessage) => void;
+  /** Connection news for the status line: 'live', 'reconnecting in 4 s', … */
+  onLink: (text: string) => void;
+  clock?: Clock;
+  /** @default 500 */
+  backoffMinMs?: number;
+  /** @default 15000 */
+  backoffMaxMs?: number;
+}
+
+export interface WatchClient {
+  stop(): void;
+  /** Resolves after stop(); rejects when the daemon refuses the viewer (a wrong token, a wrong address). */
+  done: Promise<void>;
+}
+
+/**
+ * A live-feed connection that comes back by itself: after a drop or a daemon restart it
+ * retries with doubling delays (with jitter) up to a ceiling. A refusal (401, 403, 404) ends
+ * it, since retrying cannot help.
+ */
+export function watchLive(o: WatchClientOptions): WatchClient {
+  const clock = o.clock ?? new HostClock();
+  const minMs = o.backoffMinMs ?? 500;
+  const maxMs = o.backoffMaxMs ?? 15_000;
+  let ws: WebSocket | null = null;
+  let timer: TimerHandle | null = null;
+  let attempt = 0;
+  let stopped = false;
+  let finish!: () => void;
+  let refuse!: (e: CellvigilError) => void;
+  const done = new Promise<void>((resolve, reject) => {
+    finish = resolve;
+    refuse = reject;
+  });
+
+  function retry(why: string): void {
+    if (stopped) return;
+    const delay = Math.min(maxMs, minMs * 2 ** attempt) * (0.75 + Math.random() * 0.5);
+    attempt++;
+    o.onLink(`${why}; retrying in ${Math.ceil(delay / 1000)} s`);
+    timer = clock.setTimer(connect, delay);
+  }
+
+  function connect(): void {
+    timer = null;
+    if (stopped) return;
+    o.onLink('connecting');
+    const sock = new WebSocket(o.url, { maxPayload: 16 * 1024 * 1024, perMessageDeflate: false });
+    ws = sock;
+    let why = 'connection closed';
+    sock.on('unexpected-response', (_req, res) => {
+      const status = res.statusCode ?? 0;
+      res.resume();
+      sock.terminate();
+      if (status === 401 || status === 403 || status === 404) {
+        stopped = true;
+        refuse(
+          makeError(
+            ErrorCodes.WATCH_REFUSED,
+            `the daemon refused this viewer (HTTP ${status}${status === 401 ? ': viewer token missing or wrong' : status === 404 ? ': no live feed at this address' : ''})`,
+            o.url.replace(/token=[^&]*/, 'token=…'),
+            status === 401 ? 'Pass the viewer token with --token (see docs/live-feed.md).' : 'Check the address the daemon printed.',
+          ),
+        );
+      } else why = `HTTP ${status}`;
+    });
+    sock.on('error', (e: NodeJS.ErrnoException) => (why = e.code ?? e.message));
+    sock.on('open', () => o.onLink('live'));
+    sock.on('message', (data, isBinary) => {
+      if (isBinary) return;
+      let parsed: unknown;
+      try {
+        parsed = JSON.parse(data.toString());
+      } catch {
+        return;
+      }
+      const checked = checkServerMessage(parsed);
+      if (!checked.ok) {
+        o.onLink(`ignored a message the viewer does not understand: ${checked.error}`);
+        return;
+      }
+      if (checked.value.type === 'hello') attempt = 0;
+      o.onMessage(checked.value);
+    });
+    sock.on('close', () => {
+      if (ws === sock) ws = null;
+      retry(why);
+    });
+  }
+
+  connect();
+  return {
+    stop() {
+      if (stopped) return;
+      stopped = true;
+      if (timer) clock.clearTimer(timer);
+      ws?.close(1000);
+      finish();
+    },
+    done,
+  };
+}

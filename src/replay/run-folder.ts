@@ -1,0 +1,212 @@
+/**
+ * Reading a run folder (docs/run-folder.md): the manifest, the sample files in number order
+ * (plain or gzip-compressed), the event log, the checkpoint and the result. Samples and events
+ * are streamed, so a run of any length is read in bounded memory.
+ */
+import { readdir, readFile, stat } from 'node:fs/promises';
+import { basename, join } from 'node:path';
+import { Ajv } from 'ajv';
+import { ErrorCodes, makeError } from '../core/errors.js';
+import type { EventRecord } from '../run/event-log.js';
+import type { RunResult } from '../run/result.js';
+import { readLines } from './line-reader.js';
+import { readCheckpointFile, readResultFile, type Checkpoint } from './run-json.js';
+import { parseManifest, type RunManifest } from './run-manifest.js';
+import { checkSampleHeader, parseSampleLine, SampleLineError, type SampleRecord } from './sample-csv.js';
+
+export interface SampleFile {
+  path: string;
+  name: string;
+  index: number;
+  gzip: boolean;
+  bytes: number;
+}
+
+export interface RunFolder {
+  dir: string;
+  manifest: RunManifest;
+  /** In number order, each number once. */
+  sampleFiles: SampleFile[];
+  /** null when the run has no result.json (it was interrupted). */
+  result: RunResult | null;
+  checkpoint: Checkpoint | null;
+  /** null when the run has no events.jsonl. */
+  eventsPath: string | null;
+  /** Things noticed while opening the folder, for the report. */
+  notes: string[];
+}
+
+/** A line left out because an interrupted write cut it short. */
+export interface CutLine {
+  file: string;
+  line: number;
+}
+
+export interface SampleReadOptions {
+  /** File bytes read since the last call (compressed bytes for .gz files). */
+  onBytes?: (bytes: number) => void;
+  onCutLine?: (cut: CutLine) => void;
+}
+
+export async function openRunFolder(dir: string): Promise<RunFolder> {
+  let names: string[];
+  try {
+    names = await readdir(dir);
+  } catch (e) {
+    throw makeError(ErrorCodes.RUN_FOLDER, `cannot open the run folder: ${(e as Error).message}`, dir, 'Give the path of a folder written by `cellvigil run` (runs/<date>-<time>-<label>).');
+  }
+  const manifestPath = join(dir, 'manifest.json');
+  let manifestText: string;
+  try {
+    manifestText = await readFile(manifestPath, 'utf8');
+  } catch (e) {
+    throw makeError(
+      ErrorCodes.RUN_FOLDER,
+      `the folder has no readable manifest.json (${(e as NodeJS.ErrnoException).code ?? (e as Error).message})`,
+      dir,
+      'Give the path of a folder written by `cellvigil run`; every run folder starts with its manifest.json.',
+    );
+  }
+  const manifest = parseManifest(manifestText, manifestPath);
+  const notes: string[] = [];
+  const sampleFiles = await listSampleFiles(dir, names, manifest.samples.prefix, notes);
+  const result = await readResultFile(join(dir, 'result.json'));
+  const checkpoint = await readCheckpointFile(join(dir, 'checkpoint.json'));
+  if (sampleFiles.length === 0) {
+    const frames = result?.frames_accepted ?? checkpoint?.frames_accepted ?? 0;
+    if (frames > 0) {
+      throw makeError(
+        ErrorCodes.RUN_DATA,
+        `the run accepted ${frames} frames but the folder holds no sample file (${manifest.samples.prefix}0001.csv)`,
+        dir,
+        'Restore the sample files into the run folder; without the raw counts nothing can be recomputed.',
+      );
+    }
+    notes.push('The folder holds no sample file: the rig sent no frame, so there is nothing to recompute.');
+  }
+  return {
+    dir,
+    manifest,
+    sampleFiles,
+    result,
+    checkpoint,
+    eventsPath: names.includes('events.jsonl') ? join(dir, 'events.jsonl') : null,
+    notes,
+  };
+}
+
+function escapeRe(s: string): string {
+  return s.replace(/[.*+?^${}()|[\]\\]/g, '\\$&');
+}
+
+async function listSampleFiles(dir: string, names: string[], prefix: string, notes: string[]): Promise<SampleFile[]> {
+  const re = new RegExp(`^${escapeRe(prefix)}(\\d{4,})\\.csv(\\.gz)?$`);
+  const byIndex = new Map<number, SampleFile>();
+  for (const name of names) {
+    const m = re.exec(name);
+    if (!m) continue;
+    const index = Number(m[1]);
+    const gzip = m[2] !== undefined;
+    const have = byIndex.get(index);
+    if (have) {
+      // Both forms: compression was under way or its original was kept; the plain file is whole either way.
+      notes.push(`${prefix}${m[1]}.csv exists both plain and compressed; the plain file was read.`);
+      if (gzip) continue;
+    }
+    byIndex.set(index, { path: join(dir, name), name, index, gzip, bytes: 0 });
+  }
+  const files = [...byIndex.values()].sort((a, b) => a.index - b.index);
+  for (const [i, f] of files.entries()) {
+    if (f.index !== i + 1) {
+      throw makeError(
+        ErrorCodes.RUN_DATA,
+        `sample file number ${i + 1} is missing (the files go on with ${f.name})`,
+        dir,
+        'Restore the missing file; rows are never split across files, so without it the run cannot be recomputed.',
+      );
+    }
+    f.bytes = (await stat(f.path)).size;
+  }
+  return files;
+}
+
+/** Every sample row of the run, in order. A row cut off at the very end (an interrupted write) is left out and reported. */
+export async function* readRunSamples(run: RunFolder, o: SampleReadOptions = {}): AsyncGenerator<SampleRecord> {
+  const lastFile = run.sampleFiles.length - 1;
+  for (const [fi, f] of run.sampleFiles.entries()) {
+    const mayBeCut = fi === lastFile;
+    let header = false;
+    for await (const line of readLines(f.path, { gzip: f.gzip, ...(o.onBytes ? { onBytes: o.onBytes } : {}) })) {
+      if (!header) {
+        if (!line.terminated && mayBeCut) {
+          o.onCutLine?.({ file: f.name, line: line.number });
+          continue;
+        }
+        checkSampleHeader(line.text, f.name);
+        header = true;
+        continue;
+      }
+      let rec: SampleRecord;
+      try {
+        rec = parseSampleLine(line.text);
+      } catch (e) {
+        if (!(e instanceof SampleLineError)) throw e;
+        if (!line.terminated && mayBeCut) {
+          o.onCutLine?.({ file: f.name, line: line.number });
+          continue;
+        }
+        throw makeError(
+          ErrorCodes.RUN_DATA,
+          `a sample row is malformed: ${e.message}`,
+          `${join(basename(run.dir), f.name)} line ${line.number}`,
+          'Rows are written by `cellvigil run` and never edited; restore the file from a backup, or move the damaged rows to another file and recompute what remains.',
+        );
+      }
+      if (rec.channel !== run.manifest.channel) {
+        throw makeError(
+          ErrorCodes.RUN_DATA,
+          `a row for channel ${rec.channel} in a run on channel ${run.manifest.channel}`,
+          `${join(basename(run.dir), f.name)} line ${line.number}`,
+          'The file does not belong to this run folder; move it back to its own run.',
+        );
+      }
+      yield rec;
+    }
+    if (!header && !mayBeCut) {
+      throw makeError(ErrorCodes.RUN_DATA, 'the file is empty, without even its header row', join(basename(run.dir), f.name), 'Restore the file from a backup; the files after it need it.');
+    }
+  }
+}
+
+const validateEvent = new Ajv({ strict: true }).compile({
+  type: 'object',
+  required: ['host_s', 'event'],
+  properties: { host_s: { type: 'number' }, wall_time: { type: 'string' }, event: { type: 'string', minLength: 1 } },
+});
+
+/** Every event of the run, in order; a last line cut off by an interruption is left out and reported. */
+export async function* readRunEvents(run: RunFolder, o: { onCutLine?: (cut: CutLine) => void } = {}): AsyncGenerator<EventRecord> {
+  if (run.eventsPath === null) return;
+  for await (const line of readLines(run.eventsPath)) {
+    let data: unknown;
+    let problem: string | null = null;
+    try {
+      data = JSON.parse(line.text);
+      if (!validateEvent(data)) problem = `not an event: ${validateEvent.errors?.[0]?.message ?? 'invalid'}`;
+    } catch (e) {
+      problem = `not JSON: ${(e as Error).message}`;
+    }
+    if (problem === null) {
+      yield data as EventRecord;
+    } else if (!line.terminated) {
+      o.onCutLine?.({ file: 'events.jsonl', line: line.number });
+    } else {
+      throw makeError(
+        ErrorCodes.RUN_DATA,
+        `an event line is ${problem}`,
+        `${join(basename(run.dir), 'events.jsonl')} line ${line.number}`,
+        'Each line of events.jsonl is one JSON object with host_s and event; restore the file or delete the damaged line.',
+      );
+    }
+  }
+}

@@ -1,0 +1,450 @@
+/**
+ * Every figure of a run, recomputed from its raw counts: counts -> the rig profile's analog
+ * chain -> a calibration (the run's own or another) -> the same trapezoidal integrator the
+ * daemon uses. `RunRecompute` is the pure core fed one row at a time; `recomputeRun` streams a
+ * run folder through it.
+ */
+import { applyCalibration, type Calibration, type Corrector } from '../calibration/calibration.js';
+import { AnalogChain } from '../chain/analog-chain.js';
+import { PACKAGE_VERSION } from '../core/paths.js';
+import { FLAG_LOAD_ON } from '../protocol/messages.js';
+import { readRunEvents, readRunSamples, type RunFolder } from '../replay/run-folder.js';
+import type { Checkpoint } from '../replay/run-json.js';
+import type { RunManifest } from '../replay/run-manifest.js';
+import type { SampleRecord } from '../replay/sample-csv.js';
+import { runUncertainty } from '../results/uncertainty.js';
+import { buildResult, CLOCK_WARN_PPM, type RunResult } from '../run/result.js';
+import { Integrator } from '../session/integrator.js';
+import { RateEstimator } from '../timebase/rate-estimator.js';
+import { Unwrapper } from '../timebase/unwrap.js';
+import { CurveBuilder, loadedVoltageAtCharge, type CurveBucket } from './curve.js';
+import { DcResistanceTracker, type ResistanceSummary } from './dc-resistance.js';
+import { EventDigest, type EventDigestResult } from './event-digest.js';
+import { ratedCapacityVerdict, type Verdict } from './verdicts.js';
+import { VoltageSteps, type VoltageStepRow } from './voltage-steps.js';
+
+export interface RecomputeOptions {
+  /** The calibration to apply: absent, the run's own (from its manifest); null, none (nominal chain). */
+  calibration?: Calibration | null;
+  /** Where that calibration was read from, for the report. */
+  calibrationFile?: string;
+  /** Voltage step of the capacity table, V per cell. @default 0.05 */
+  stepPerCellV?: number;
+  /** The cell's rated capacity, Ah. */
+  ratedAh?: number | null;
+  /** Allowed deviation of the mean current from 0.2 It for a verdict. @default 0.05 */
+  rateTolerance?: number;
+  /** Bytes of sample files read so far and in all. */
+  onProgress?: (doneBytes: number, totalBytes: number) => void;
+}
+
+/** result.json as a recompute writes it: the daemon's keys and a few more. */
+export type RecomputedResult = Omit<RunResult, 'end_reason'> & {
+  /** `interrupted`: the run has no result and no end in its event log. */
+  end_reason: RunResult['end_reason'] | 'interrupted';
+  midpoint_voltage_V: number | null;
+  average_current_A: number | null;
+  rated_Ah: number | null;
+  c_rate: number | null;
+  percent_of_rated: number | null;
+  capacity_by_voltage: Array<{ V_per_cell: number; V: number; capacity_Ah: number | null; energy_Wh: number | null; load_on_s: number | null }>;
+  verdict: { standard: string; label: string; outcome: string; summary: string } | null;
+  recomputed: { cellvigil_version: string; calibration_file: string | null; from_rows: number; cut_lines: number };
+};
+
+export interface RunFigures {
+  folder: string;
+  manifest: RunManifest;
+  result: RecomputedResult;
+  /** The run's result.json as it was, or null. */
+  original: RunResult | null;
+  calibration: {
+    applied: Calibration | null;
+    id: string;
+    /** True when the applied calibration is the run's own (its manifest's). */
+    own: boolean;
+    file: string | null;
+    /** Calibration ids the rows were made with during the live run. */
+    liveIds: string[];
+  };
+  steps: VoltageStepRow[];
+  stepPerCellV: number;
+  resistance: ResistanceSummary;
+  verdict: Verdict | null;
+  frames: { accepted: number; rejected: number; lost: number; gaps: number; rigRestarts: number; loadedFrames: number; meanIntervalS: number | null };
+  clock: { errorPpm: number | null; warning: boolean };
+  temperature: { startC: number | null; minC: number | null; maxC: number | null; endC: number | null };
+  current: { minA: number | null; maxA: number | null; noiseA: number | null };
+  voltageNoiseV: number | null;
+  loadSwitchOns: number;
+  /** The live run's totals in the last row integrated (for comparison). */
+  liveTotals: { chargeAh: number; energyWh: number } | null;
+  curve: readonly CurveBucket[];
+  events: EventDigestResult;
+  cautions: string[];
+  notes: string[];
+}
+
+/** Frames this far apart on the host clock are a gap (the daemon's time base flags the same). */
+const LONG_GAP_MS = 2000;
+/** Loaded current steps larger than this (relative) are load changes, not noise. */
+const LEVEL_CHANGE = 0.2;
+/** The first seconds after switch-on, left out of the current range (contact settling). */
+const SETTLE_S = 5;
+/** Distinct codes tracked for the quantisation term; beyond this they are plenty anyway. */
+const MAX_CODES = 65536;
+const rn = (x: number | null, digits: number): number | null => (x === null || !Number.isFinite(x) ? null : Number(x.toFixed(digits)));
+
+/** Running sum of squared differences between consecutive loaded readings. */
+class DiffNoise {
+  private ss = 0;
+  private n = 0;
+  add(a: number, b: number): void {
+    this.ss += (b - a) ** 2;
+    this.n++;
+  }
+  /** s of one reading: the difference of two independent readings has variance 2s². */
+  sd(): number | null {
+    return this.n >= 10 ? Math.sqrt(this.ss / (2 * this.n)) : null;
+  }
+}
+
+export class RunRecompute {
+  private readonly chain: AnalogChain;
+  private readonly corrector: Corrector;
+  private readonly integrator = new Integrator();
+  private readonly digest = new EventDigest();
+  private readonly curve = new CurveBuilder();
+  private readonly steps: VoltageSteps;
+  private readonly resistance = new DcResistanceTracker({ levelChange: LEVEL_CHANGE });
+  private readonly rate = new RateEstimator();
+  private readonly ticks = new Unwrapper(2 ** 32);
+  private readonly seqs = new Unwrapper(65536);
+  private readonly noiseI = new DiffNoise();
+  private readonly noiseV = new DiffNoise();
+  private readonly codesI = new Set<number>();
+  private readonly codesV = new Set<number>();
+  private readonly liveIds = new Set<string>();
+  private readonly stepPerCellV: number;
+  private resumeAt: number[] = [];
+  private rows = 0;
+  private ended = false;
+  private nominalAh = 0;
+  private prevNominalA = 0;
+  private prev: { hostMs: number; loadOn: boolean; vRaw: number; iRaw: number; amps: number } | null = null;
+  private firstHostS: number | null = null;
+  private lastHostS: number | null = null;
+  private lastWall: string | null = null;
+  private loadedFrames = 0;
+  private lost = 0;
+  private gaps = 0;
+  private rigRestarts = 0;
+  private switchOns = 0;
+  private firstOnS: number | null = null;
+  private lastLoadedV: number | null = null;
+  private minA = Infinity;
+  private maxA = -Infinity;
+  private restTemps: number[] = [];
+  private startC: number | null = null;
+  private minC = Infinity;
+  private maxC = -Infinity;
+  private endC: number | null = null;
+  private liveTotals: { chargeAh: number; energyWh: number } | null = null;
+
+  constructor(
+    private readonly manifest: RunManifest,
+    private readonly calibration: Calibration | null,
+    private readonly o: Omit<RecomputeOptions, 'calibration' | 'onProgress'> = {},
+  ) {
+    this.chain = new AnalogChain(manifest.rig.profile);
+    this.corrector = applyCalibration(calibration);
+    this.stepPerCellV = o.stepPerCellV ?? 0.05;
+    this.steps = new VoltageSteps({ stepPerCellV: this.stepPerCellV, cells: manifest.cells, cutoffPerCellV: manifest.cutoff_per_cell_V });
+  }
+
+  /** Feed every event first: a resumed run starts new integration segments where it resumed. */
+  event(e: Parameters<EventDigest['add']>[0]): void {
+    this.digest.add(e);
+    this.resumeAt = this.digest.result().resumedAtS;
+  }
+
+  sample(s: SampleRecord): void {
+    this.rows++;
+    this.liveIds.add(s.calibrationId);
+    const c = this.corrector;
+    const chain = this.chain;
+    const nominalA = chain.amps(s.iRaw);
+    const volts = c.voltage(chain.volts(s.vRaw));
+    const amps = c.current(nominalA);
+    const celsius = chain.thermistorState(s.tRaw) === 'ok' ? c.temperature(chain.celsius(s.tRaw)) : Number.NaN;
+    const loadOn = (s.flags & FLAG_LOAD_ON) !== 0;
+    const hostMs = s.hostS * 1000;
+    const prev = this.prev;
+    // A new segment: the host clock went back, or the daemon resumed the run here.
+    const resumed = prev !== null && (hostMs < prev.hostMs || this.resumeAt.some((t) => t * 1000 > prev.hostMs && t * 1000 <= hostMs));
+    if (resumed) {
+      this.integrator.restore({ chargeAh: this.integrator.chargeAh, energyWh: this.integrator.energyWh, onMs: this.integrator.onMs, bridgedAh: this.integrator.bridgedAh });
+      this.prevNominalA = 0;
+    }
+    const fresh = prev === null || resumed;
+    const dtMs = fresh ? 0 : hostMs - prev.hostMs;
+
+    const t = this.ticks.next(s.tickMs);
+    const q = this.seqs.next(s.seq);
+    const rigRestart = t.step !== null && t.step < 0;
+    if (rigRestart) {
+      this.rigRestarts++;
+      this.ticks.reset();
+      this.seqs.reset();
+      this.ticks.next(s.tickMs);
+      this.seqs.next(s.seq);
+      this.rate.reset();
+      this.rate.add(s.tickMs, hostMs);
+    } else {
+      this.rate.add(t.value, hostMs);
+      if (!fresh) this.lost += Math.max(0, (q.step ?? 1) - 1);
+    }
+    const gap = !fresh && (dtMs > LONG_GAP_MS || rigRestart);
+    if (gap) this.gaps++;
+
+    // The row that shows the end was integrated only when its frame ended the run; a run ended
+    // by the rig's acknowledgement between frames left it out, and its logged totals did not move.
+    let integrate = !this.ended;
+    if (integrate && s.state === 'ended') {
+      this.ended = true;
+      const t = this.liveTotals;
+      integrate = t === null || !prev?.loadOn || s.chargeAh !== t.chargeAh || s.energyWh !== t.energyWh;
+    }
+    if (integrate) {
+      this.integrator.add(dtMs, volts, amps, loadOn, gap);
+      const onA = loadOn ? nominalA : 0;
+      this.nominalAh += ((this.prevNominalA + onA) / 2) * (dtMs / 3_600_000);
+      this.prevNominalA = onA;
+      this.liveTotals = { chargeAh: s.chargeAh, energyWh: s.energyWh };
+      this.measure(s, prev, volts, amps, celsius, loadOn, fresh);
+      this.lastWall = s.wallTime;
+    }
+    this.resistance.add({ hostS: s.hostS, volts, amps, loadOn });
+    this.curve.add({ hostS: s.hostS, chargeAh: this.integrator.chargeAh, energyWh: this.integrator.energyWh, volts, amps, celsius, loadOn });
+    this.prev = { hostMs, loadOn, vRaw: s.vRaw, iRaw: s.iRaw, amps };
+    this.firstHostS ??= s.hostS;
+    this.lastHostS = s.hostS;
+  }
+
+  private measure(s: SampleRecord, prev: RunRecompute['prev'], volts: number, amps: number, celsius: number, loadOn: boolean, fresh: boolean): void {
+    const onS = this.integrator.onMs / 1000;
+    if (Number.isFinite(celsius)) {
+      this.endC = celsius;
+      this.minC = Math.min(this.minC, celsius);
+      this.maxC = Math.max(this.maxC, celsius);
+      if (this.firstOnS === null && !loadOn) {
+        this.restTemps.push(celsius);
+        if (this.restTemps.length > 10) this.restTemps.shift();
+      }
+    }
+    if (!loadOn) return;
+    if (fresh || !prev!.loadOn) {
+      this.switchOns++;
+      if (this.firstOnS === null) {
+        this.firstOnS = s.hostS;
+        this.startC = this.restTemps.length > 0 ? this.restTemps.reduce((a, b) => a + b, 0) / this.restTemps.length : Number.isFinite(celsius) ? celsius : null;
+      }
+    } else if (Math.abs(amps - prev!.amps) <= LEVEL_CHANGE * Math.max(Math.abs(amps), Math.abs(prev!.amps))) {
+      this.noiseI.add(prev!.iRaw, s.iRaw);
+      this.noiseV.add(prev!.vRaw, s.vRaw);
+    }
+    this.loadedFrames++;
+    this.lastLoadedV = volts;
+    if (onS >= SETTLE_S) {
+      this.minA = Math.min(this.minA, amps);
+      this.maxA = Math.max(this.maxA, amps);
+    }
+    if (this.codesI.size < MAX_CODES) this.codesI.add(s.iRaw);
+    if (this.codesV.size < MAX_CODES) this.codesV.add(s.vRaw);
+    this.steps.add(volts, true, this.integrator.chargeAh, this.integrator.energyWh, onS);
+  }
+
+  finish(ctx: { folder: string; original: RunResult | null; checkpoint: Checkpoint | null; calibrationFile: string | null; cutLines: number; notes: string[] }): RunFigures {
+    const m = this.manifest;
+    const cal = this.calibration;
+    const ev = this.digest.result();
+    const notes = [...ctx.notes];
+    const integ = this.integrator;
+    const hours = integ.onMs / 3_600_000;
+    const avgA = hours > 0 ? integ.chargeAh / hours : null;
+    const ratedAh = this.o.ratedAh ?? null;
+    const cutoffV = ev.cutoffChanges.at(-1)?.cutoffV ?? m.cutoff_V;
+    const rejected = ctx.original?.frames_rejected ?? Math.max(ctx.checkpoint?.frames_rejected ?? 0, ev.rejectedLines);
+    const errorPpm = this.rate.errorPpm();
+    const resistance = this.resistance.result();
+    const on = resistance.switch_on?.first ?? null;
+    const end = ev.end ?? (ctx.original ? { reason: ctx.original.end_reason, detail: ctx.original.end_detail ?? '', loadOffConfirmed: ctx.original.load_off_confirmed ?? true } : null);
+
+    // Noise from raw counts, turned into corrected units through the chain and the calibration's gain.
+    const sdI = this.noiseI.sd();
+    const sdV = this.noiseV.sd();
+    const gainI = cal?.current?.fit.gain ?? 1;
+    const gainV = cal?.voltage?.fit.gain ?? 1;
+    const noiseA = sdI === null ? null : sdI * this.chain.ampsPerCount * gainI;
+    const noiseV = sdV === null ? null : sdV * this.chain.voltsPerCount * gainV;
+    // Noise below half a count does not dither the ADC: only distinct codes round independently.
+    const quantisationSamples = {
+      current: sdI !== null && sdI >= 0.5 ? this.loadedFrames : this.codesI.size,
+      voltage: sdV !== null && sdV >= 0.5 ? this.loadedFrames : this.codesV.size,
+    };
+
+    const base = buildResult({
+      end: end && end.reason !== 'interrupted' ? (end.reason as RunResult['end_reason']) : 'stopped',
+      detail: end?.detail ?? 'interrupted: the run folder has no result and its event log no end; figures are from the rows written',
+      loadOffConfirmed: end?.loadOffConfirmed ?? false,
+      chargeAh: integ.chargeAh,
+      energyWh: integ.energyWh,
+      onMs: integ.onMs,
+      bridgedAh: integ.bridgedAh,
+      nominalAh: this.nominalAh,
+      loadedSamples: this.loadedFrames,
+      lastLoadedV: this.lastLoadedV,
+      cutoffV,
+      counters: { accepted: this.rows, rejected, lost: this.lost },
+      rigClockErrorPpm: errorPpm,
+      calibration: cal,
+      calibrationId: cal?.id ?? 'none',
+      ampsPerCount: this.chain.ampsPerCount,
+      voltsPerCount: this.chain.voltsPerCount,
+      chemistry: m.chemistry.id,
+      cells: m.cells,
+      openCircuitV: on?.uBeforeV ?? null,
+      dcResistanceOhm: on?.ohm ?? null,
+      gaps: this.gaps,
+      startedWallMs: Date.parse(m.started_wall),
+      endedWallMs: this.lastWall !== null ? Date.parse(this.lastWall) : Date.parse(m.started_wall),
+    });
+    const uncertainty = runUncertainty({
+      chargeAh: integ.chargeAh,
+      energyWh: integ.energyWh,
+      nominalAh: this.nominalAh,
+      onS: integ.onMs / 1000,
+      samples: this.loadedFrames,
+      ampsPerCount: this.chain.ampsPerCount,
+      voltsPerCount: this.chain.voltsPerCount,
+      meanVoltageV: base.mean_voltage_V ?? 0,
+      bridgedAh: integ.bridgedAh,
+      calibration: cal,
+      ...(noiseA !== null ? { currentNoiseA: noiseA } : {}),
+      ...(noiseV !== null ? { voltageNoiseV: noiseV } : {}),
+      quantisationSamples,
+    });
+
+    const startC = this.startC;
+    const minA = Number.isFinite(this.minA) ? this.minA : null;
+    const maxA = Number.isFinite(this.maxA) ? this.maxA : null;
+    const verdict = ratedCapacityVerdict({
+      chemistryId: m.chemistry.id,
+      cells: m.cells,
+      cutoffPerCellV: cutoffV / m.cells,
+      ratedAh,
+      averageCurrentA: avgA ?? 0,
+      minCurrentA: minA ?? avgA ?? 0,
+      maxCurrentA: maxA ?? avgA ?? 0,
+      durationS: integ.onMs / 1000,
+      endReason: end?.reason ?? 'interrupted',
+      startTemperatureC: startC,
+      loadSwitchOns: this.switchOns,
+      ...(this.o.rateTolerance !== undefined ? { rateTolerance: this.o.rateTolerance } : {}),
+    });
+    const steps = this.steps.rows();
+    const midpoint = integ.chargeAh > 0 ? loadedVoltageAtCharge(this.curve.buckets, integ.chargeAh / 2) : null;
+
+    const liveIds = [...this.liveIds];
+    const appliedId = cal?.id ?? 'none';
+    if (liveIds.some((id) => id !== appliedId)) {
+      notes.push(`The live run made its rows with calibration ${liveIds.join(', ')}; this recompute applies ${appliedId} to every row.`);
+    } else if (this.liveTotals && integ.chargeAh > 0) {
+      const d = integ.chargeAh / this.liveTotals.chargeAh - 1;
+      notes.push(`Same calibration as the live run: the recomputed capacity differs from the live total in the log by ${(d * 100).toExponential(1)} %.`);
+    }
+    if (ctx.cutLines > 0) notes.push(`${ctx.cutLines} line${ctx.cutLines > 1 ? 's were' : ' was'} cut off by the interruption of the run and left out.`);
+    if (ev.resumedAtS.length > 0) notes.push(`The run was resumed ${ev.resumedAtS.length} time${ev.resumedAtS.length > 1 ? 's' : ''}; each resumption starts a new integration segment.`);
+    if (!end) notes.push('The run was interrupted: it has no result.json and its event log no end.');
+    const spanS = this.firstHostS !== null && this.lastHostS !== null ? this.lastHostS - this.firstHostS : 0;
+
+    const result: RecomputedResult = {
+      ...base,
+      end_reason: end ? base.end_reason : 'interrupted',
+      uncertainty,
+      midpoint_voltage_V: rn(midpoint, 5),
+      average_current_A: rn(avgA, 6),
+      rated_Ah: ratedAh,
+      c_rate: ratedAh !== null && avgA !== null ? rn(avgA / ratedAh, 4) : null,
+      percent_of_rated: ratedAh !== null ? rn((integ.chargeAh / ratedAh) * 100, 2) : null,
+      capacity_by_voltage: steps.map((s) => ({
+        V_per_cell: s.perCellV,
+        V: s.totalV,
+        capacity_Ah: rn(s.chargeAh, 6),
+        energy_Wh: rn(s.energyWh, 6),
+        load_on_s: rn(s.loadOnS, 3),
+      })),
+      verdict: verdict ? { standard: verdict.standard, label: verdict.label, outcome: verdict.outcome, summary: verdict.summary } : null,
+      recomputed: { cellvigil_version: PACKAGE_VERSION, calibration_file: ctx.calibrationFile, from_rows: this.rows, cut_lines: ctx.cutLines },
+    };
+    return {
+      folder: ctx.folder,
+      manifest: m,
+      result,
+      original: ctx.original,
+      calibration: { applied: cal, id: appliedId, own: appliedId === m.calibration.id, file: ctx.calibrationFile, liveIds },
+      steps,
+      stepPerCellV: this.stepPerCellV,
+      resistance,
+      verdict,
+      frames: {
+        accepted: this.rows,
+        rejected,
+        lost: this.lost,
+        gaps: this.gaps,
+        rigRestarts: this.rigRestarts,
+        loadedFrames: this.loadedFrames,
+        meanIntervalS: this.rows > 1 ? spanS / (this.rows - 1) : null,
+      },
+      clock: { errorPpm: rn(errorPpm, 0), warning: errorPpm !== null && Math.abs(errorPpm) > CLOCK_WARN_PPM },
+      temperature: {
+        startC,
+        minC: Number.isFinite(this.minC) ? this.minC : null,
+        maxC: Number.isFinite(this.maxC) ? this.maxC : null,
+        endC: this.endC,
+      },
+      current: { minA, maxA, noiseA },
+      voltageNoiseV: noiseV,
+      loadSwitchOns: this.switchOns,
+      liveTotals: this.liveTotals,
+      curve: this.curve.buckets,
+      events: ev,
+      cautions: m.chemistry.profile.cautions,
+      notes,
+    };
+  }
+}
+
+/** Recomputes a run folder, streaming its events and samples. */
+export async function recomputeRun(run: RunFolder, o: RecomputeOptions = {}): Promise<RunFigures> {
+  const calibration = o.calibration === undefined ? run.manifest.calibration.content : o.calibration;
+  const core = new RunRecompute(run.manifest, calibration, o);
+  let cutLines = 0;
+  const notes = [...run.notes];
+  const onCutLine = (c: { file: string; line: number }): void => {
+    cutLines++;
+    notes.push(`${c.file} line ${c.line} was cut off (the run was interrupted while writing it) and is left out.`);
+  };
+  for await (const e of readRunEvents(run, { onCutLine })) core.event(e);
+  const total = run.sampleFiles.reduce((t, f) => t + f.bytes, 0);
+  let done = 0;
+  const onBytes = o.onProgress
+    ? (n: number): void => {
+        done += n;
+        o.onProgress!(done, total);
+      }
+    : undefined;
+  for await (const s of readRunSamples(run, { onCutLine, ...(onBytes ? { onBytes } : {}) })) core.sample(s);
+  const calibrationFile = o.calibration === undefined ? run.manifest.calibration.file : (o.calibrationFile ?? null);
+  return core.finish({ folder: run.dir, original: run.result, checkpoint: run.checkpoint, calibrationFile, cutLines, notes });
+}

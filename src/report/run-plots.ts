@@ -1,0 +1,101 @@
+/** The plots of a run (or of several overlaid) from its bounded curve. */
+import type { CurveBucket } from './curve.js';
+import { CURRENT_COLOUR, RULE_COLOUR, TEMPERATURE_COLOUR, VOLTAGE_COLOUR } from './html-page.js';
+import { linePlot, type PlotSeries } from './svg-plot.js';
+
+export interface TimeUnit {
+  name: string;
+  seconds: number;
+}
+
+/** Hours for long runs, minutes for medium ones, seconds for short ones. */
+export function timeUnitFor(spanS: number): TimeUnit {
+  if (spanS > 2 * 3600) return { name: 'h', seconds: 3600 };
+  if (spanS > 120) return { name: 'min', seconds: 60 };
+  return { name: 's', seconds: 1 };
+}
+
+export function spanOf(curve: readonly CurveBucket[]): { t0: number; t1: number } {
+  return { t0: curve[0]?.t0 ?? 0, t1: curve.at(-1)?.t1 ?? 0 };
+}
+
+/** Loaded voltage against charge delivered. */
+export function voltageChargeSeries(curve: readonly CurveBucket[], name: string, color: string): PlotSeries {
+  return {
+    name,
+    color,
+    points: curve.filter((b) => b.nOn > 0).map((b) => [(b.q0 + b.q1) / 2, b.vOnSum / b.nOn] as const),
+  };
+}
+
+type Pick = (b: CurveBucket) => { mean: number; lo: number; hi: number } | null;
+
+const pickVoltage: Pick = (b) => ({ mean: b.vSum / b.n, lo: b.vMin, hi: b.vMax });
+const pickCurrent: Pick = (b) => ({ mean: b.iSum / b.n, lo: b.iMin, hi: b.iMax });
+const pickTemperature: Pick = (b) => (b.tempN > 0 ? { mean: b.tempSum / b.tempN, lo: Number.NaN, hi: Number.NaN } : null);
+
+function timeSeries(curve: readonly CurveBucket[], pick: Pick, unit: TimeUnit, origin: number, name: string, color: string, band: boolean): PlotSeries {
+  const points: Array<readonly [number, number]> = [];
+  const bandPts: Array<readonly [number, number, number]> = [];
+  for (const b of curve) {
+    const v = pick(b);
+    if (!v) continue;
+    const x = ((b.t0 + b.t1) / 2 - origin) / unit.seconds;
+    points.push([x, v.mean]);
+    if (band && v.hi - v.lo > 0) bandPts.push([x, v.lo, v.hi]);
+  }
+  // A band only where it adds something: pulses or noise wider than the line.
+  return bandPts.length > 1 ? { name, color, points, band: bandPts } : { name, color, points };
+}
+
+export function voltageChargePlot(series: PlotSeries[], cutoffV: number | null): string {
+  return linePlot({
+    id: 'voltage-charge',
+    title: 'Loaded voltage against charge delivered',
+    x: { label: 'charge delivered (Ah)', min: 0 },
+    y: { label: 'voltage (V)' },
+    series,
+    ...(cutoffV !== null ? { rules: [{ y: cutoffV, label: `cutoff ${cutoffV.toFixed(3)} V`, color: RULE_COLOUR }] } : {}),
+  });
+}
+
+/** Voltage, current and temperature against time since the start, one panel each. */
+export function timePlots(curve: readonly CurveBucket[], cutoffV: number | null): string {
+  const { t0, t1 } = spanOf(curve);
+  const unit = timeUnitFor(t1 - t0);
+  const x = { label: `time since the start (${unit.name})`, min: 0 };
+  const temp = timeSeries(curve, pickTemperature, unit, t0, 'temperature', TEMPERATURE_COLOUR, false);
+  return [
+    linePlot({
+      id: 'voltage-time',
+      title: 'Voltage against time (shaded: lowest to highest reading)',
+      x,
+      y: { label: 'voltage (V)' },
+      series: [timeSeries(curve, pickVoltage, unit, t0, 'voltage', VOLTAGE_COLOUR, true)],
+      ...(cutoffV !== null ? { rules: [{ y: cutoffV, label: `cutoff ${cutoffV.toFixed(3)} V`, color: RULE_COLOUR }] } : {}),
+      height: 240,
+    }),
+    linePlot({
+      id: 'current-time',
+      title: 'Current against time (shaded: lowest to highest reading)',
+      x,
+      y: { label: 'current (A)', min: 0 },
+      series: [timeSeries(curve, pickCurrent, unit, t0, 'current', CURRENT_COLOUR, true)],
+      height: 240,
+    }),
+    linePlot({ id: 'temperature-time', title: 'Cell temperature against time', x, y: { label: 'temperature (°C)' }, series: [temp], height: 240 }),
+  ].join('\n');
+}
+
+/** Loaded voltage of several runs against time since each one's start. */
+export function overlayVoltageTime(runs: Array<{ curve: readonly CurveBucket[]; name: string; color: string }>): string {
+  const longest = Math.max(0, ...runs.map((r) => spanOf(r.curve).t1 - spanOf(r.curve).t0));
+  const unit = timeUnitFor(longest);
+  return linePlot({
+    id: 'overlay-voltage-time',
+    title: 'Voltage against time, all runs',
+    x: { label: `time since each run's start (${unit.name})`, min: 0 },
+    y: { label: 'voltage (V)' },
+    series: runs.map((r) => timeSeries(r.curve, pickVoltage, unit, spanOf(r.curve).t0, r.name, r.color, false)),
+  });
+}

@@ -1,0 +1,139 @@
+/**
+ * The wall clock may step (NTP, a user changing the date); integrals run on the monotonic
+ * clock only, and the wall clock is a label. A host suspend is a gap: flagged, counted, and its
+ * charge reported as bridged rather than silently integrated.
+ */
+import { describe, expect, it } from 'vitest';
+import { VirtualClock, type Clock, type TimerHandle } from '../../src/core/clock.js';
+import type { LineOutcome, Pipeline } from '../../src/run/pipeline.js';
+import type { Session } from '../../src/session/session.js';
+import { formatSampleRow } from '../../src/sinks/sample-row.js';
+import { BENCH_CHAIN, benchPipeline, dataLine, FRAME_MS, HEALTHY, warmUp } from './helpers.js';
+
+const HOUR = 3_600_000;
+
+/** A host clock whose wall time can be stepped while its monotonic time runs on evenly. */
+class SteppingClock implements Clock {
+  private readonly mono = new VirtualClock(0, Date.UTC(2026, 2, 29, 0, 30));
+  private wallStep = 0;
+  now(): number {
+    return this.mono.now();
+  }
+  wallNow(): number {
+    return this.mono.wallNow() + this.wallStep;
+  }
+  setTimer(fn: () => void, ms: number, repeat?: boolean): TimerHandle {
+    return this.mono.setTimer(fn, ms, repeat);
+  }
+  clearTimer(h: TimerHandle): void {
+    this.mono.clearTimer(h);
+  }
+  advance(ms: number): void {
+    this.mono.advance(ms);
+  }
+  stepWall(ms: number): void {
+    this.wallStep += ms;
+  }
+}
+
+interface Fed {
+  outcome: LineOutcome;
+  wallMs: number;
+}
+
+/** Feeds one loaded frame every FRAME_MS on `clock`, as the daemon does: arrival = now(), label = wallNow(). */
+function feed(p: Pipeline, clock: SteppingClock, seq: number, frames: number, beforeFrame: (k: number) => void = () => undefined): Fed[] {
+  const out: Fed[] = [];
+  for (let k = 0; k < frames; k++) {
+    beforeFrame(k);
+    clock.advance(FRAME_MS);
+    const wallMs = clock.wallNow();
+    const outcome = p.line(dataLine({ seq: seq + k, tickMs: (seq + k) * FRAME_MS, loadOn: true }), clock.now(), wallMs);
+    out.push({ outcome, wallMs });
+  }
+  return out;
+}
+
+function started(): { pipeline: Pipeline; session: Session; clock: SteppingClock; next: { seq: number; tick: number; at: number } } {
+  const { pipeline, session } = benchPipeline();
+  const clock = new SteppingClock();
+  const next = warmUp(pipeline, session);
+  clock.advance(next.at - FRAME_MS);
+  return { pipeline, session, clock, next };
+}
+
+describe('wall clock steps', () => {
+  it('+3 h and −5 h mid-run change no integral, and wall_time follows the wall clock', () => {
+    const FRAMES = 3000;
+    const plain = started();
+    const jumpy = started();
+    const a = feed(plain.pipeline, plain.clock, plain.next.seq, FRAMES);
+    const b = feed(jumpy.pipeline, jumpy.clock, jumpy.next.seq, FRAMES, (k) => {
+      if (k === 1000) jumpy.clock.stepWall(3 * HOUR);
+      if (k === 2000) jumpy.clock.stepWall(-5 * HOUR);
+    });
+
+    for (let k = 0; k < FRAMES; k++) {
+      const x = a[k]!.outcome;
+      const y = b[k]!.outcome;
+      if (x.kind !== 'sample' || y.kind !== 'sample') throw new Error(`frame ${k} was not a sample`);
+      expect(y.row.chargeAh).toBe(x.row.chargeAh);
+      expect(y.row.energyWh).toBe(x.row.energyWh);
+      expect(y.row.hostS).toBe(x.row.hostS);
+      expect(y.gap).toBe(false);
+      // The wall_time column is the wall clock at arrival, steps and all.
+      expect(formatSampleRow(y.row).split(',')[1]).toBe(new Date(b[k]!.wallMs).toISOString());
+    }
+    expect(b[1000]!.wallMs - b[999]!.wallMs).toBe(3 * HOUR + FRAME_MS);
+    expect(b[2000]!.wallMs - b[1999]!.wallMs).toBe(-5 * HOUR + FRAME_MS);
+    expect(jumpy.session.integrator).toEqual(plain.session.integrator);
+    expect(jumpy.pipeline.counters).toEqual(plain.pipeline.counters);
+    expect(jumpy.session.state).toBe('discharging');
+
+    // Charge is the time integral of current (physics): a constant current I held for t gives I·t.
+    const amps = BENCH_CHAIN.amps(HEALTHY.iRaw);
+    const onHours = jumpy.session.integrator.onMs / HOUR;
+    // The first loaded interval is a trapezoid from 0 A, so half an interval is missing.
+    expect(jumpy.session.integrator.chargeAh).toBeCloseTo(amps * (onHours - FRAME_MS / 2 / HOUR), 12);
+  });
+});
+
+describe('host suspend', () => {
+  it('10 minutes asleep is flagged as one gap, the lost frames are counted and its charge is all bridged', () => {
+    const SLEEP_MS = 10 * 60_000;
+    const run = started();
+    const steps: { dAh: number; dBridged: number; gap: boolean }[] = [];
+    const { pipeline: p, session: s, clock } = run;
+    let seq = run.next.seq;
+    const one = (extraMs: number, skipped: number, flags: number): LineOutcome => {
+      clock.advance(FRAME_MS + extraMs);
+      seq += skipped;
+      const before = { ah: s.integrator.chargeAh, bridged: s.integrator.bridgedAh };
+      const o = p.line(dataLine({ seq, tickMs: seq * FRAME_MS, loadOn: (flags & 1) !== 0, flags }), clock.now(), clock.wallNow());
+      seq++;
+      steps.push({ dAh: s.integrator.chargeAh - before.ah, dBridged: s.integrator.bridgedAh - before.bridged, gap: o.kind === 'sample' && o.gap });
+      return o;
+    };
+    for (let k = 0; k < 100; k++) one(0, 0, 1);
+    // Asleep: the rig's tick runs on and the frames it sent meanwhile are lost. Its watchdog,
+    // hearing no heartbeat, has cut the load: the first frame back reports load off and a rig fault.
+    const back = one(SLEEP_MS, SLEEP_MS / FRAME_MS, 0x02);
+    for (let k = 0; k < 20; k++) one(0, 0, 0x02);
+
+    expect(back.kind).toBe('sample');
+    if (back.kind !== 'sample') return;
+    expect(back.gap).toBe(true);
+    expect(back.lost).toBe(SLEEP_MS / FRAME_MS);
+    expect(steps.filter((x) => x.gap)).toHaveLength(1);
+    expect(p.counters.lost).toBe(SLEEP_MS / FRAME_MS);
+    // Whatever the trapezoid carried across the gap is reported as bridged, not as measured charge.
+    const gapStep = steps[100]!;
+    expect(gapStep.dAh).toBeGreaterThan(0);
+    expect(gapStep.dBridged).toBe(gapStep.dAh);
+    expect(s.integrator.bridgedAh).toBe(gapStep.dAh);
+    expect(steps.filter((x, i) => i !== 100 && x.dBridged !== 0)).toEqual([]);
+    // The rig fault ends the discharge.
+    expect(['stopping', 'ended']).toContain(s.state);
+    expect(s.result.reason).toBe('fault');
+  });
+});
