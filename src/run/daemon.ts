@@ -3,7 +3,8 @@
  * (source -> pipeline -> sinks); the only way back to the rig is the session's actions.
  */
 import { join } from 'node:path';
-import { applyCalibration } from '../calibration/calibration.js';
+import { applyCalibration, loadCalibration, type Calibration } from '../calibration/calibration.js';
+import { DEFAULT_CHEMISTRIES_PATH, findChemistry, loadChemistries } from '../chemistry/chemistries.js';
 import { checkRestingVoltage } from '../chemistry/limits.js';
 import { HostClock, PacedClock, type Clock, type TimerHandle } from '../core/clock.js';
 import { CellvigilError, ErrorCodes, makeError } from '../core/errors.js';
@@ -24,6 +25,7 @@ import { Pipeline } from './pipeline.js';
 import { buildResult, CLOCK_WARN_PPM, exitCodeFor, type RunResult } from './result.js';
 import { resolveRunConfig, type RunConfig } from './run-config.js';
 import { createRunFolder } from './run-folder.js';
+import { watchFile } from './file-watch.js';
 import { findResumePoint } from './resume.js';
 import { findUnfinishedRun } from './unfinished-run.js';
 import type { RunRequest } from './run-request.js';
@@ -170,6 +172,8 @@ export async function startRun(req: RunRequest, io: RunIo): Promise<RunHandle> {
   let clockWarned = false;
   let stopRequests = 0;
   let unloggedPending = resume?.last?.loadOn === true;
+  let calibration: Calibration | null = cfg.calibration;
+  const watchers: { close(): Promise<void> }[] = [];
   let resolveDone!: (o: RunOutcome) => void;
   let rejectDone!: (e: unknown) => void;
   const done = new Promise<RunOutcome>((res, rej) => {
@@ -254,6 +258,44 @@ export async function startRun(req: RunRequest, io: RunIo): Promise<RunHandle> {
     });
   };
 
+  /** A calibration file rewritten mid-run applies from the next sample, if it validates. */
+  const reloadCalibration = async (path: string): Promise<void> => {
+    if (ended) return;
+    try {
+      const next = await loadCalibration(path);
+      if (ended || next.id === pipeline.calibrationId) return;
+      const old = pipeline.calibrationId;
+      pipeline.setCorrector(applyCalibration(next));
+      calibration = next;
+      logEvent('calibration_changed', { old_id: old, new_id: next.id, file: path });
+      status.line(`Calibration ${next.id} applies from the next sample (was ${old}).`);
+    } catch (e) {
+      if (ended) return;
+      const message = (e as Error).message;
+      logEvent('calibration_rejected', { file: path, error: message, kept_id: pipeline.calibrationId });
+      status.line(`The edited calibration was rejected and ${pipeline.calibrationId} stays in force: ${message}`);
+    }
+  };
+
+  /** A chemistry file edited mid-run: new floor, temperature limit and default cutoff, if it validates. */
+  const reloadChemistry = (path: string): void => {
+    if (ended) return;
+    try {
+      const next = findChemistry(loadChemistries(path), chemistry.id, path);
+      const floorV = next.floor_V_per_cell.value * cells;
+      const wanted = cutoff.fromUser ? cutoff.total : next.cutoff_V_per_cell.value * cells;
+      const cutoffV = Math.max(wanted, floorV);
+      const r = session.updateLimits({ floorV, maxTemperatureC: next.max_temperature_C.value, cutoffV });
+      if (!r.ok) throw new Error(r.why);
+      logEvent('chemistry_changed', { file: path, chemistry: next.id, floor_V: floorV, cutoff_V: cutoffV, max_temperature_C: next.max_temperature_C.value });
+      status.line(`Chemistry profile reloaded: cutoff ${cutoffV.toFixed(3)} V, floor ${floorV.toFixed(3)} V, limit ${next.max_temperature_C.value} °C.`);
+    } catch (e) {
+      const message = (e as Error).message;
+      logEvent('chemistry_rejected', { file: path, error: message });
+      status.line(`The edited chemistry file was rejected; the limits in force stay: ${message}`);
+    }
+  };
+
   const onDiskError = (e: Error): void => {
     if (diskError) return;
     diskError = e;
@@ -321,6 +363,7 @@ export async function startRun(req: RunRequest, io: RunIo): Promise<RunHandle> {
     ended = true;
     try {
       for (const t of timers) t.clock.clearTimer(t.handle);
+      await Promise.all(watchers.map((w) => w.close())).catch(() => undefined);
       for (const [sig, h] of signalHandlers) process.off(sig, h);
       checkClock();
       const result = buildResult({
@@ -337,7 +380,7 @@ export async function startRun(req: RunRequest, io: RunIo): Promise<RunHandle> {
         cutoffV: session.cutoffV,
         counters: pipeline.counters,
         rigClockErrorPpm: pipeline.timeBase.rigClockErrorPpm(),
-        calibration: cfg.calibration,
+        calibration,
         calibrationId: pipeline.calibrationId,
         ampsPerCount: chain.ampsPerCount,
         voltsPerCount: chain.voltsPerCount,
@@ -415,6 +458,11 @@ export async function startRun(req: RunRequest, io: RunIo): Promise<RunHandle> {
     throw e instanceof CellvigilError ? e : makeError(ErrorCodes.PORT_OPEN, (e as Error).message, source.description, 'Check the rig connection.');
   }
   for (const [sig, h] of signalHandlers) process.on(sig, h);
+  if (cfg.calibrationPath !== null) watchers.push(watchFile(cfg.calibrationPath, () => void reloadCalibration(cfg.calibrationPath!)));
+  if (!resume) {
+    const chemistriesPath = req.chemistriesFile ?? DEFAULT_CHEMISTRIES_PATH;
+    watchers.push(watchFile(chemistriesPath, () => reloadChemistry(chemistriesPath)));
+  }
   every(clock, TICK_MS, () => dispatch(session.tick(clock.now())));
   every(real, FLUSH_EVERY_MS, () => void flushLogs());
   every(real, CHECKPOINT_EVERY_MS, () => {

@@ -33,7 +33,7 @@ export interface LimitInput {
  */
 export class Limits {
   private cutoffV: number;
-  private readonly maxT: number;
+  private maxT: number;
   private readonly maxI: number;
   private readonly cutoff: Debounce;
   private readonly hot: Debounce;
@@ -59,6 +59,11 @@ export class Limits {
   setCutoff(volts: number): void {
     this.cutoffV = volts;
     this.cutoff.reset();
+  }
+
+  /** Changes the temperature limit mid-run (a chemistry file edited and validated). */
+  setMaxTemperature(celsius: number): void {
+    this.maxT = celsius;
   }
 
   check(x: LimitInput): LimitTrip | null {

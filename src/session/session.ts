@@ -226,6 +226,19 @@ export class Session {
     return { ok: true };
   }
 
+  /**
+   * New limits from an edited chemistry file: the floor, the temperature limit and the cutoff
+   * (which the caller has already raised to the floor if needed).
+   */
+  updateLimits(x: { floorV: number; maxTemperatureC: number; cutoffV: number }): { ok: true } | { ok: false; why: string } {
+    if (!(x.cutoffV >= x.floorV - FLOOR_SLACK_V)) return { ok: false, why: `cutoff ${x.cutoffV} V is below the floor ${x.floorV} V` };
+    this.s.floorV = x.floorV;
+    this.s.maxTemperatureC = x.maxTemperatureC;
+    this.limits.setMaxTemperature(x.maxTemperatureC);
+    this.limits.setCutoff(x.cutoffV);
+    return { ok: true };
+  }
+
   get result(): { reason: EndReason | null; detail: string } {
     return { reason: this.endReason, detail: this.endDetail };
   }
