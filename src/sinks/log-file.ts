@@ -83,9 +83,11 @@ export class LogFile {
     try {
       await this.flush();
       await this.chain;
-      if (this.handle) await this.handle.close();
-      this.handle = null;
     } finally {
+      // Closed even when the last write failed (a full disk): an open handle would pin the file system.
+      const h = this.handle;
+      this.handle = null;
+      await h?.close().catch(() => undefined);
       await this.compressions;
     }
   }
