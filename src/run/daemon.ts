@@ -350,6 +350,11 @@ export async function startRun(req: RunRequest, io: RunIo): Promise<RunHandle> {
   };
 
   const onSignal = (sig: NodeJS.Signals): void => {
+    // Kept until the process exits: a signal while the result is written must not cut it short.
+    if (ended) {
+      status.line(`${sig}: the run has ended; writing its files…`);
+      return;
+    }
     stopRequests++;
     logEvent('signal', { signal: sig });
     if (stopRequests > 1) status.line(`${sig} again: the load is being switched off first; the run ends as soon as the rig confirms it.`);
@@ -364,7 +369,6 @@ export async function startRun(req: RunRequest, io: RunIo): Promise<RunHandle> {
     try {
       for (const t of timers) t.clock.clearTimer(t.handle);
       await Promise.all(watchers.map((w) => w.close())).catch(() => undefined);
-      for (const [sig, h] of signalHandlers) process.off(sig, h);
       checkClock();
       const result = buildResult({
         end,
