@@ -28,6 +28,7 @@ import { createRunFolder } from './run-folder.js';
 import { watchFile } from './file-watch.js';
 import { findResumePoint } from './resume.js';
 import { findUnfinishedRun } from './unfinished-run.js';
+import { startLiveLink, type LiveLink } from './live-link.js';
 import type { RunRequest } from './run-request.js';
 import { StatusPrinter } from './status-line.js';
 
@@ -56,6 +57,10 @@ export interface RunHandle {
   /** A note from the user in the event log. */
   mark(note: string, by: string): void;
   addObserver(o: RunObserver): void;
+  /** The live page's address, or null without a live feed. */
+  readonly liveUrl: string | null;
+  /** Stops serving the live feed (after the run, when the caller is done showing the result). */
+  closeLive(): Promise<void>;
 }
 
 export interface RunIo {
@@ -258,6 +263,18 @@ export async function startRun(req: RunRequest, io: RunIo): Promise<RunHandle> {
     });
   };
 
+  /** Whole-string volts, from the CLI handle or the live feed; the session refuses anything below the floor. */
+  const setCutoffV = (volts: number, by: string): { ok: true } | { ok: false; error: string } => {
+    if (ended) return { ok: false, error: 'the run has ended' };
+    const r = session.setCutoff(volts);
+    if (!r.ok) {
+      logEvent('cutoff_refused', { requested_V: volts, by, why: r.why });
+      return { ok: false, error: r.why };
+    }
+    logEvent('cutoff_changed', { cutoff_V: session.cutoffV, cutoff_V_per_cell: session.cutoffV / cells, by });
+    return { ok: true };
+  };
+
   /** A calibration file rewritten mid-run applies from the next sample, if it validates. */
   const reloadCalibration = async (path: string): Promise<void> => {
     if (ended) return;
@@ -436,6 +453,38 @@ export async function startRun(req: RunRequest, io: RunIo): Promise<RunHandle> {
     status.line('No calibration given: figures use the nominal analog chain, whose offset and gain errors are unknown (see `cellvigil calibrate`).');
   }
 
+  let live: LiveLink | null = null;
+  if (req.listen !== null) {
+    try {
+      live = await startLiveLink({
+        listen: req.listen,
+        info: {
+          label,
+          run_folder: folder,
+          chemistry: chemistry.id,
+          cells,
+          cutoff_V: session.cutoffV,
+          floor_V: cfg.floorV,
+          calibration_id: pipeline.calibrationId,
+          started_wall: new Date(startedWall).toISOString(),
+          source: source.description,
+          max_temperature_C: cfg.maxTemperatureC,
+        },
+        stop: (by) => dispatch(session.requestStop(clock.now(), by)),
+        setCutoff: (volts, by) => setCutoffV(volts, by),
+        mark: (note, by) => logEvent('mark', { note, by }),
+        log: (name, detail) => {
+          if (!ended) logEvent(name, detail);
+        },
+        print: (line) => status.line(line),
+      });
+      observers.push(live.observer);
+    } catch (e) {
+      await Promise.all([samples.close(), events.close()]).catch(() => undefined);
+      throw e;
+    }
+  }
+
   try {
     await source.open({
       line: onLine,
@@ -458,7 +507,7 @@ export async function startRun(req: RunRequest, io: RunIo): Promise<RunHandle> {
     });
   } catch (e) {
     ended = true;
-    await Promise.all([samples.close(), events.close()]).catch(() => undefined);
+    await Promise.all([samples.close(), events.close(), live?.server.close()]).catch(() => undefined);
     throw e instanceof CellvigilError ? e : makeError(ErrorCodes.PORT_OPEN, (e as Error).message, source.description, 'Check the rig connection.');
   }
   for (const [sig, h] of signalHandlers) process.on(sig, h);
@@ -483,17 +532,13 @@ export async function startRun(req: RunRequest, io: RunIo): Promise<RunHandle> {
     source,
     done,
     stop: (by) => dispatch(session.requestStop(clock.now(), by)),
-    setCutoffPerCell: (volts, by) => {
-      const r = session.setCutoff(volts * cells);
-      if (!r.ok) {
-        logEvent('cutoff_refused', { requested_V_per_cell: volts, by, why: r.why });
-        return { ok: false, error: r.why };
-      }
-      logEvent('cutoff_changed', { cutoff_V: session.cutoffV, cutoff_V_per_cell: volts, by });
-      return { ok: true };
-    },
+    setCutoffPerCell: (volts, by) => setCutoffV(volts * cells, by),
     mark: (note, by) => logEvent('mark', { note, by }),
     addObserver: (o) => observers.push(o),
+    liveUrl: live?.server.url ?? null,
+    closeLive: async () => {
+      await live?.server.close();
+    },
   };
 }
 

@@ -79,5 +79,18 @@ export const runCommand: CommandModule<object, RunArgs> = {
     const run = await startRun(req, { out: process.stdout, err: process.stderr, signals: true });
     const outcome = await run.done;
     process.exitCode = outcome.exitCode;
+    if (run.liveUrl !== null) {
+      if (args.once) {
+        // A moment for viewers to receive the result before the feed goes away.
+        await new Promise((r) => setTimeout(r, 500));
+      } else {
+        process.stdout.write(`The run has ended; ${run.liveUrl} keeps showing its result. Ctrl-C to exit.\n`);
+        await new Promise<void>((resolve) => {
+          process.once('SIGINT', () => resolve());
+          process.once('SIGTERM', () => resolve());
+        });
+      }
+      await run.closeLive();
+    }
   },
 };

@@ -1,0 +1,97 @@
+/**
+ * The run's side of the live feed: turns samples, events and the result into hub messages, and
+ * the hub's control requests into the run's own stop, cutoff and mark.
+ */
+import { LiveHub } from '../live/live-hub.js';
+import { startLiveServer, type LiveServer } from '../live/live-server.js';
+import type { LiveRunInfo } from '../live/live-types.js';
+import { loadTokens } from '../live/tokens.js';
+import type { EventRecord } from './event-log.js';
+import type { RunObserver } from './daemon.js';
+
+export interface LiveLinkOptions {
+  listen: string;
+  info: LiveRunInfo;
+  stop(by: string): void;
+  /** Whole-string volts; the run refuses anything below the floor. */
+  setCutoff(volts: number, by: string): { ok: true } | { ok: false; error: string };
+  mark(note: string, by: string): void;
+  log(name: string, detail: Record<string, unknown>): void;
+  print(line: string): void;
+}
+
+/** Events that deserve a viewer's attention, not just a line in the log. */
+const ALARM_EVENTS = new Set([
+  'clock_warning',
+  'link_down',
+  'load_off_unconfirmed',
+  'calibration_rejected',
+  'chemistry_rejected',
+  'gap',
+  'rig_error',
+  'unlogged_discharge',
+]);
+const LIMIT_REASONS = ['cutoff', 'over_temperature', 'link_lost', 'fault'];
+
+export interface LiveLink {
+  server: LiveServer;
+  observer: RunObserver;
+}
+
+export async function startLiveLink(o: LiveLinkOptions): Promise<LiveLink> {
+  const tokens = loadTokens();
+  const hub = new LiveHub();
+  hub.setRun(o.info);
+  hub.onControl((c) => {
+    switch (c.type) {
+      case 'stop':
+        o.stop('live control');
+        return { ok: true };
+      case 'set-cutoff':
+        return o.setCutoff(c.cutoff_V, 'live control');
+      case 'mark':
+        o.mark(c.note, 'live control');
+        return { ok: true };
+    }
+  });
+  const server = await startLiveServer({ hub, listen: o.listen, tokenStore: tokens.tokens, log: (name, detail) => o.log(`live_${name}`, detail) });
+  o.print(`live: ${server.url}`);
+  for (const url of server.lanUrls) if (url !== server.url) o.print(`live (other machines, viewer token needed): ${url}`);
+  if (tokens.generated) {
+    o.print(`Live-feed tokens were made and saved in ${tokens.path} (owner-only); they are shown this once:`);
+    o.print(`  control token (stop, set-cutoff, mark): ${tokens.tokens.control}`);
+    o.print(`  viewer token (watching from another machine): ${tokens.tokens.viewer}`);
+  }
+  const event = (rec: EventRecord): void => {
+    const d = rec as Record<string, unknown>;
+    if (rec.event === 'state') {
+      const why = String(d['why'] ?? '');
+      hub.state({ host_s: rec.host_s, from: String(d['from']), to: String(d['to']), why });
+      const reason = why.split(':')[0] ?? '';
+      if (d['to'] === 'stopping' && LIMIT_REASONS.includes(reason)) hub.alarm({ host_s: rec.host_s, kind: reason, detail: why });
+    } else if (rec.event === 'cutoff_changed') {
+      hub.cutoffChanged(Number(d['cutoff_V']));
+    } else if (ALARM_EVENTS.has(rec.event)) {
+      const { host_s: _h, wall_time: _w, event: kind, ...rest } = d;
+      hub.alarm({ host_s: rec.host_s, kind: String(kind), detail: JSON.stringify(rest) });
+    }
+  };
+  return {
+    server,
+    observer: {
+      sample: (row, loadOn) =>
+        hub.sample({
+          host_s: row.hostS,
+          voltage_V: row.volts,
+          current_A: row.amps,
+          temperature_C: Number.isFinite(row.celsius) ? row.celsius : null,
+          charge_Ah: row.chargeAh,
+          energy_Wh: row.energyWh,
+          state: row.state,
+          load_on: loadOn,
+        }),
+      event,
+      ended: (result) => hub.result(result as unknown as Record<string, unknown>),
+    },
+  };
+}
