@@ -11,6 +11,7 @@ import { CellvigilError, ErrorCodes, makeError } from '../core/errors.js';
 import { PACKAGE_VERSION } from '../core/paths.js';
 import { encodeCommand } from '../protocol/codec.js';
 import { FLAG_LOAD_ON } from '../protocol/messages.js';
+import { describeSchedule } from '../schedule/schedule.js';
 import { Session } from '../session/session.js';
 import type { Action, SessionEnd } from '../session/session-types.js';
 import { writeJsonAtomic } from '../sinks/atomic-json.js';
@@ -105,6 +106,7 @@ export async function startRun(req: RunRequest, io: RunIo): Promise<RunHandle> {
     maxTemperatureC: cfg.maxTemperatureC,
     maxCurrentA: cfg.maxCurrentA,
     linkTimeoutMs: req.linkTimeoutS * 1000,
+    schedule: cfg.schedule,
     checkRest: (restV) => {
       const check = checkRestingVoltage(chemistry, cells, restV, cutoff.perCell, cfg.chemistries);
       return check.ok ? null : check.error.message;
@@ -157,6 +159,7 @@ export async function startRun(req: RunRequest, io: RunIo): Promise<RunHandle> {
     floor_V: cfg.floorV,
     limits: { max_temperature_C: cfg.maxTemperatureC, max_current_A: cfg.maxCurrentA },
     samples: { prefix: 'samples-', rotate_bytes: req.rotateBytes },
+    ...(cfg.scheduleSource && cfg.schedule ? { schedule: { ...cfg.scheduleSource, description: describeSchedule(cfg.schedule) } } : {}),
   };
   try {
     if (!resume) await writeJsonAtomic(join(folder, 'manifest.json'), manifest);
@@ -412,6 +415,7 @@ export async function startRun(req: RunRequest, io: RunIo): Promise<RunHandle> {
         gaps,
         startedWallMs: startedWall,
         endedWallMs: clock.wallNow(),
+        schedule: cfg.schedule ? describeSchedule(cfg.schedule) : null,
       });
       events.summarise(hostS(), clock.wallNow());
       const rec = events.write(hostS(), clock.wallNow(), 'run_ended', { end_reason: end, detail, load_off_confirmed: loadOffConfirmed });
@@ -435,6 +439,7 @@ export async function startRun(req: RunRequest, io: RunIo): Promise<RunHandle> {
 
   // Start: cautions first, then the rig.
   status.line(`cellvigil ${PACKAGE_VERSION}: ${cells} × ${chemistry.id} on ${source.description}; cutoff ${cutoff.total.toFixed(3)} V (${cutoff.perCell} V per cell, ${cutoff.source}), limit ${cfg.maxTemperatureC} °C.`);
+  if (cfg.schedule) status.line(`Schedule: ${describeSchedule(cfg.schedule)}.`);
   status.line('Cautions:');
   for (const c of cautionLines(chemistry)) status.line(`  - ${c}`);
   status.line(`Run folder: ${folder}`);

@@ -28,6 +28,10 @@ export interface RunResult {
   rig_clock_warning: boolean;
   started_wall: string;
   ended_wall: string;
+  /** The discharge schedule, or null for a continuous discharge. */
+  schedule: string | null;
+  /** Load-on hours to the end point: a scheduled test's service output (null unless it reached the cutoff). */
+  service_output_h: number | null;
 }
 
 /** A rig clock off by more than this is worth a warning (its own timing would mislead). */
@@ -58,6 +62,8 @@ export interface ResultInput {
   gaps: number;
   startedWallMs: number;
   endedWallMs: number;
+  /** The schedule's description; absent or null for a continuous discharge. */
+  schedule?: string | null;
 }
 
 const r = (x: number, digits: number): number => Number(x.toFixed(digits));
@@ -102,6 +108,8 @@ export function buildResult(x: ResultInput): RunResult {
     rig_clock_warning: x.rigClockErrorPpm !== null && Math.abs(x.rigClockErrorPpm) > CLOCK_WARN_PPM,
     started_wall: new Date(x.startedWallMs).toISOString(),
     ended_wall: new Date(x.endedWallMs).toISOString(),
+    schedule: x.schedule ?? null,
+    service_output_h: x.schedule != null && x.end === 'cutoff' ? r(x.onMs / 3_600_000, 6) : null,
   };
 }
 

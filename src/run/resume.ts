@@ -61,8 +61,8 @@ export async function findResumePoint(dir: string): Promise<ResumePoint> {
   const cuts: CutLine[] = [];
   for await (const r of readRunSamples(run, { onCutLine: (c) => cuts.push(c) })) {
     const on = (r.flags & FLAG_LOAD_ON) !== 0;
-    // The integrator's rule: time counts as load-on when either end of the step had the load on.
-    if (prev && (on || prev.on)) onMs += (r.hostS - prev.hostS) * 1000;
+    // The integrator's rule: the trapezoid of the on/off indicator.
+    if (prev) onMs += (((on ? 1 : 0) + (prev.on ? 1 : 0)) / 2) * (r.hostS - prev.hostS) * 1000;
     prev = { hostS: r.hostS, on };
     chargeAh = r.chargeAh;
     energyWh = r.energyWh;

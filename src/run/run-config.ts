@@ -10,6 +10,9 @@ import { ErrorCodes, makeError } from '../core/errors.js';
 import { packagePath } from '../core/paths.js';
 import { loadScenarios, pickScenario, type SimScenario } from '../sim/scenarios.js';
 import type { RunManifest } from '../replay/run-manifest.js';
+import { parseScheduleOption, parseScheduleYaml, type Schedule } from '../schedule/schedule.js';
+import { readFile } from 'node:fs/promises';
+import { existsSync } from 'node:fs';
 import type { RunRequest } from './run-request.js';
 
 export const DEFAULT_RIG_PATH = packagePath('config/rigs/bench-20mohm.yaml');
@@ -31,6 +34,25 @@ export interface RunConfig {
   calibrationPath: string | null;
   calibration: Calibration | null;
   scenario: SimScenario | null;
+  schedule: Schedule | null;
+  /** The schedule as given (file content or option text), for the manifest and a resume. */
+  scheduleSource: { kind: 'file' | 'option'; text: string; where: string } | null;
+}
+
+/** `--schedule` names a file (YAML) or is written inline ("on 15 s every 1 min, 8 h per day, to 1.0 V"). */
+async function readScheduleSource(given: string): Promise<{ kind: 'file' | 'option'; text: string; where: string }> {
+  if (existsSync(given)) {
+    try {
+      return { kind: 'file', text: await readFile(given, 'utf8'), where: resolve(given) };
+    } catch (e) {
+      throw makeError(ErrorCodes.CONFIG_READ, `cannot read the schedule file: ${(e as Error).message}`, given, 'Check the path given for the schedule.');
+    }
+  }
+  return { kind: 'option', text: given, where: '--schedule' };
+}
+
+export function parseScheduleSource(src: { kind: 'file' | 'option'; text: string; where: string }): Schedule {
+  return src.kind === 'file' ? parseScheduleYaml(src.text, src.where) : parseScheduleOption(src.text, src.where);
 }
 
 /**
@@ -74,6 +96,9 @@ export async function resolveRunConfig(req: RunRequest, resumed: RunManifest | n
   if (req.port !== undefined && req.speed !== 1) {
     throw makeError(ErrorCodes.USAGE, 'a real rig runs in real time', '--speed', 'Leave --speed out with --port; it applies to the simulated rig only.');
   }
+  if (!(req.linkTimeoutS > 0)) {
+    throw makeError(ErrorCodes.USAGE, `link timeout ${req.linkTimeoutS} s is not a positive number`, '--link-timeout', 'Give the seconds an unplugged port may stay away, e.g. 60.');
+  }
   if (!Number.isInteger(req.channel) || req.channel < 0 || req.channel > 15) {
     throw makeError(ErrorCodes.USAGE, `channel ${req.channel} is not 0..15`, '--channel', 'Give the rig channel the cell is on, 0 to 15.');
   }
@@ -94,7 +119,12 @@ export async function resolveRunConfig(req: RunRequest, resumed: RunManifest | n
   }
   const chemistry = resumed ? resumed.chemistry.profile : findChemistry(chemistries, chemistryId);
   const cells = validateCells(req.cells ?? scenario?.cell.cells ?? 1);
-  const cutoff = resolveCutoff(chemistry, cells, req.cutoff);
+  const resumedSchedule = (resumed as { schedule?: { kind: 'file' | 'option'; text: string; where: string } } | null)?.schedule ?? null;
+  const scheduleSource = resumedSchedule ?? (req.schedule !== undefined ? await readScheduleSource(req.schedule) : null);
+  const schedule = scheduleSource ? parseScheduleSource(scheduleSource) : null;
+  // The schedule's end point is the cutoff unless --cutoff says otherwise; both meet the floor.
+  const endPoint = req.cutoff ?? schedule?.endPointVPerCell ?? undefined;
+  const cutoff = resolveCutoff(chemistry, cells, endPoint, req.cutoff !== undefined ? '--cutoff' : 'the schedule\'s end point');
   const calibrationPath = req.calibration !== undefined ? resolve(req.calibration) : (resumed?.calibration.file ?? null);
   const calibration = req.calibration !== undefined ? await loadCalibration(calibrationPath!) : (resumed?.calibration.content ?? null);
   return {
@@ -112,5 +142,7 @@ export async function resolveRunConfig(req: RunRequest, resumed: RunManifest | n
     calibrationPath,
     calibration,
     scenario,
+    schedule,
+    scheduleSource,
   };
 }

@@ -19,6 +19,8 @@ export interface RunRequest {
   /** host:port of the live feed, or null for none. */
   listen: string | null;
   once: boolean;
+  /** Discharge schedule: a YAML file or the inline form (docs/schedules.md); continuous when absent. */
+  schedule?: string;
   /** Run folder of an interrupted run to continue. */
   resume?: string;
   /** Start a new run even when an unfinished one on the same port could be resumed. */

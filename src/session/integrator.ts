@@ -28,7 +28,8 @@ export class Integrator {
     const dWh = ((prev.p + p) / 2) * (dtMs / MS_PER_HOUR);
     this.chargeAh += dAh;
     this.energyWh += dWh;
-    if (loadOn || prev.on) this.onMs += dtMs;
+    // The trapezoid of the on/off indicator: a step in which the load switched counts half.
+    this.onMs += (((loadOn ? 1 : 0) + (prev.on ? 1 : 0)) / 2) * dtMs;
     if (gap) this.bridgedAh += Math.abs(dAh);
     return { dAh, dWh };
   }

@@ -1,5 +1,6 @@
 import { ErrorCodes, makeError } from '../core/errors.js';
 import { FLAG_LOAD_ON, FLAG_RIG_FAULT } from '../protocol/messages.js';
+import { loadPlanAt, type Schedule } from '../schedule/schedule.js';
 import { Integrator } from './integrator.js';
 import { Limits, type LimitSettings } from './limits.js';
 import type { Action, EndReason, Measurement, SessionEnd, SessionState } from './session-types.js';
@@ -24,6 +25,8 @@ export interface SessionSettings extends LimitSettings {
   beatMs?: number;
   /** How long to wait for a LOAD command to be confirmed before repeating it. @default 1000 */
   confirmMs?: number;
+  /** When the load is on, as a function of time since the discharge started; continuous when absent. */
+  schedule?: Schedule | null;
 }
 
 /** Volts compared with a floor get this slack, so that 3 × 0.9 V is not refused as below 2.7000000000000002. */
@@ -54,6 +57,11 @@ export class Session {
   private linkUpAt = -Infinity;
   /** After an interruption the first frame's load flag is read before anything else. */
   private reread = false;
+  /** What the schedule wants the load to be, and since when (continuous: always on). */
+  private wantOn = true;
+  private switchAt = -Infinity;
+  private switchTries = 0;
+  private scheduleStartMs: number | null = null;
   /** Resting voltage measured before the load went on. */
   openCircuitV: number | null = null;
   /** (U_open − U_load) / I_load from the first loaded frame. */
@@ -71,6 +79,7 @@ export class Session {
       silentMs: 5000,
       beatMs: 500,
       confirmMs: 1000,
+      schedule: null,
       ...settings,
     };
     // The floor holds whoever builds the session, not only for changes made while it runs.
@@ -195,6 +204,7 @@ export class Session {
       this.lastBeatAt = nowMs;
       out.push({ type: 'send', command: { command: 'BEAT' } });
     }
+    if (st === 'discharging' && this.s.schedule) this.followSchedule(this.s.schedule, nowMs, out);
     if ((st === 'starting' || st === 'stopping') && nowMs - this.commandAt >= this.s.confirmMs) {
       if (this.commandTries >= 3 || (st === 'stopping' && stale)) {
         if (st === 'starting') this.beginStop('fault', 'load_not_confirmed: the rig never reported the load on', nowMs, out);
@@ -273,11 +283,48 @@ export class Session {
       return;
     }
     out.push({ type: 'event', name: 'precheck_passed', detail: { rest_V: restV, temperature_C: m.celsius } });
+    const sched = this.s.schedule;
+    if (sched) {
+      this.scheduleStartMs ??= m.hostMs;
+      const plan = loadPlanAt(sched, m.hostMs - this.scheduleStartMs);
+      if (!plan.on) {
+        this.wantOn = false;
+        this.switchAt = m.hostMs;
+        this.lastBeatAt = m.hostMs;
+        this.to('discharging', 'precheck passed: the schedule starts with the load off', out);
+        return;
+      }
+    }
     this.to('starting', 'precheck passed: switching the load on', out);
     this.commandAt = m.hostMs;
     this.commandTries = 0;
     this.lastBeatAt = m.hostMs;
     out.push({ type: 'send', command: { command: 'BEAT' } }, this.loadCommand(true));
+  }
+
+  /** Switches the load as the schedule says, and makes sure the rig followed. */
+  private followSchedule(sched: Schedule, nowMs: number, out: Action[]): void {
+    const plan = loadPlanAt(sched, nowMs - (this.scheduleStartMs ?? nowMs));
+    if (plan.finished) {
+      this.beginStop('stopped', 'schedule_finished: the schedule ran its course', nowMs, out);
+      return;
+    }
+    if (plan.on !== this.wantOn) {
+      this.wantOn = plan.on;
+      this.switchAt = nowMs;
+      this.switchTries = 0;
+      this.unexpectedOff = 0;
+      out.push({ type: 'event', name: 'schedule_switch', detail: { load_on: plan.on } }, this.loadCommand(plan.on));
+      return;
+    }
+    if (this.loadOn !== this.wantOn && nowMs - this.switchAt >= this.s.confirmMs * (this.switchTries + 1)) {
+      if (this.switchTries >= 3) {
+        this.beginStop('fault', `load_not_confirmed: the rig did not switch the load ${this.wantOn ? 'on' : 'off'} as the schedule asked`, nowMs, out);
+        return;
+      }
+      this.switchTries++;
+      out.push(this.loadCommand(this.wantOn));
+    }
   }
 
   /** First frame after the port came back: the load flag says what the rig did meanwhile. */
@@ -299,6 +346,8 @@ export class Session {
     if (this.openCircuitV !== null && m.amps > 0) {
       this.dcResistanceOhm = (this.openCircuitV - m.volts) / m.amps;
     }
+    this.wantOn = true;
+    this.switchAt = m.hostMs;
     this.to('discharging', 'the rig reports the load on', out);
     out.push({
       type: 'event',
@@ -321,7 +370,8 @@ export class Session {
       this.beginStop(trip.reason, trip.detail, m.hostMs, out);
       return;
     }
-    if (this.stateValue === 'discharging') {
+    // Off because the schedule said so, or still switching: not a fault.
+    if (this.stateValue === 'discharging' && this.wantOn && m.hostMs - this.switchAt > this.s.confirmMs) {
       this.unexpectedOff = this.loadOn ? 0 : this.unexpectedOff + 1;
       if (this.unexpectedOff >= 3) this.beginStop('fault', 'load_dropped: the rig reports the load off without a command', m.hostMs, out);
     }

@@ -59,17 +59,18 @@ describe('integrator: charge is the time integral of current (physics)', () => {
     expect(off.chargeAh).toBe(0);
     expect(off.energyWh).toBe(0);
     expect(off.onMs).toBe(0);
-    // on for the middle 10 minutes of 30: 1 A for 600 s, plus half a step at each switching edge
+    // on for the middle 10 minutes of 30: 1 A for 600 s; each switching step counts half
     const mixed = integrate(1800, 1, () => 1, () => 3.7, (t) => t >= 600 && t < 1200);
     expect(mixed.chargeAh).toBeCloseTo(600 / 3600, 12);
-    expect(mixed.onMs).toBe(601_000);
+    expect(mixed.onMs).toBe(600_000);
   });
 
-  it('onMs counts an interval that starts with the load on even if the current read 0 A', () => {
+  it('onMs follows the load flag, not the current: a switching step counts half even at 0 A', () => {
     const integ = new Integrator();
     integ.add(0, 3.7, 0, true, false);
+    integ.add(1000, 3.7, 0, true, false);
     integ.add(1000, 3.7, 0, false, false);
-    expect(integ.onMs).toBe(1000);
+    expect(integ.onMs).toBe(1500);
   });
 
   it('a flagged gap is integrated but booked as bridged charge', () => {

@@ -21,6 +21,7 @@ interface RunArgs {
   channel: number;
   'rotate-mb': number;
   resume: string | undefined;
+  schedule: string | undefined;
   new: boolean;
   'link-timeout': number;
 }
@@ -50,6 +51,7 @@ export const runCommand: CommandModule<object, RunArgs> = {
       .option('once', { type: 'boolean', default: false, describe: 'Exit when the run ends (for scripts)' })
       .option('baud', { type: 'number', describe: 'Serial baud rate (default: the rig profile\'s frame.baud)' })
       .option('channel', { type: 'number', default: 0, describe: 'Rig channel the cell is on' })
+      .option('schedule', { type: 'string', describe: 'Discharge schedule: a YAML file, or e.g. "on 15 s every 1 min, 8 h per day, to 1.0 V"' })
       .option('resume', { type: 'string', describe: 'Continue an interrupted run from its folder (same rig, chemistry and limits)' })
       .option('new', { type: 'boolean', default: false, describe: 'Start a new run even if an unfinished run on this port could be resumed' })
       .option('link-timeout', { type: 'number', default: 60, describe: 'Seconds the rig\'s port may stay unplugged before the run ends as link_lost' })
@@ -65,6 +67,7 @@ export const runCommand: CommandModule<object, RunArgs> = {
       linkTimeoutS: args['link-timeout'],
       fresh: args.new,
       ...(args.resume !== undefined ? { resume: args.resume } : {}),
+      ...(args.schedule !== undefined ? { schedule: args.schedule } : {}),
       ...(args.port !== undefined ? { port: args.port } : {}),
       ...(args.sim !== undefined ? { sim: args.sim } : {}),
       ...(args.rig !== undefined ? { rig: args.rig } : {}),
