@@ -188,9 +188,10 @@ export function parseCalibration(text: string, where: string): Calibration {
   try {
     data = JSON.parse(text);
   } catch (err) {
+    const what = text.trim() === '' ? 'the calibration file is empty' : `the calibration file is not valid JSON: ${jsonSyntaxDetail(text, err as Error)}`;
     throw makeError(
       ErrorCodes.CALIBRATION_INVALID,
-      `the calibration file is not valid JSON: ${(err as Error).message}`,
+      what,
       where,
       'Restore the file from the last `cellvigil calibrate` run, or calibrate again.',
     );
@@ -198,11 +199,20 @@ export function parseCalibration(text: string, where: string): Calibration {
   if (!validate(data)) {
     const problems = (validate.errors ?? []).map((e) => {
       const path = e.instancePath.split('/').slice(1).join('.') || '(top level)';
-      const extra =
-        e.keyword === 'additionalProperties'
-          ? ` (${String((e.params as { additionalProperty: string }).additionalProperty)})`
-          : '';
-      return `${path} ${e.message ?? 'is invalid'}${extra}`;
+      const params = e.params as Record<string, unknown>;
+      const got = `, got ${JSON.stringify(valueAt(data, e.instancePath)) ?? 'nothing'}`;
+      switch (e.keyword) {
+        case 'additionalProperties':
+          return `${path} ${e.message ?? 'is invalid'} (${String(params['additionalProperty'])})`;
+        case 'required':
+          return `${path} ${e.message ?? 'is invalid'}`;
+        case 'const':
+          return `${path} must be ${JSON.stringify(params['allowedValue'])}${got}`;
+        case 'enum':
+          return `${path} must be one of ${(params['allowedValues'] as unknown[]).map((v) => JSON.stringify(v)).join(', ')}${got}`;
+        default:
+          return `${path} ${e.message ?? 'is invalid'}${got}`;
+      }
     });
     throw makeError(
       ErrorCodes.CALIBRATION_INVALID,
@@ -222,6 +232,25 @@ export function parseCalibration(text: string, where: string): Calibration {
     );
   }
   return cal;
+}
+
+/** The value a JSON pointer from the validator points at. */
+function valueAt(data: unknown, pointer: string): unknown {
+  let v = data;
+  for (const raw of pointer.split('/').slice(1)) {
+    const key = raw.replace(/~1/g, '/').replace(/~0/g, '~');
+    v = v !== null && typeof v === 'object' ? (v as Record<string, unknown>)[key] : undefined;
+  }
+  return v;
+}
+
+/** JSON.parse's complaint, with the line and column where Node gives only a character position. */
+function jsonSyntaxDetail(text: string, err: Error): string {
+  const m = /at position (\d+)/.exec(err.message);
+  if (!m || /line/.test(err.message)) return err.message;
+  const before = text.slice(0, Number(m[1]));
+  const line = before.split('\n').length;
+  return `${err.message} (line ${line}, column ${before.length - before.lastIndexOf('\n')})`;
 }
 
 /** Reads and checks a calibration file. */

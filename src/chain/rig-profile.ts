@@ -203,7 +203,7 @@ function describe(e: ErrorObject, data: unknown): Problem {
     case 'type': {
       if (path === '') {
         return {
-          what: `the rig profile must be a YAML mapping, ${got}`,
+          what: `the rig profile must be a YAML mapping, ${value === null ? 'got nothing (the file is empty or only comments)' : got}`,
           fix: 'Start from config/rigs/bench-20mohm.yaml and edit its values.',
         };
       }

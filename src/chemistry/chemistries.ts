@@ -233,7 +233,15 @@ export function parseChemistries(text: string, where: string): ChemistryProfile[
   if (data === null || typeof data !== 'object' || Array.isArray(data)) {
     throw invalid(
       where,
-      [{ key: '(top level)', problem: 'must be a map of chemistry id to profile' }],
+      [
+        {
+          key: '(top level)',
+          problem:
+            data === null
+              ? 'is empty (or only comments); it must be a map of chemistry id to profile'
+              : 'must be a map of chemistry id to profile',
+        },
+      ],
       'Start the file with a chemistry id such as "li-ion:" and indent its fields below it.',
     );
   }
@@ -250,8 +258,8 @@ export function parseChemistries(text: string, where: string): ChemistryProfile[
     throw invalid(
       where,
       problems,
-      'The limits must satisfy floor <= cutoff < nominal < max_rest, min_rest < cutoff and ' +
-        '0 < max_temperature_C <= 100; correct the values named.',
+      'Correct the values named so that floor <= cutoff < nominal < max_rest, min_rest < cutoff and ' +
+        '0 < max_temperature_C <= 100.',
     );
   }
   return Object.entries(raw).map(([id, p]) => ({

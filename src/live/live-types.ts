@@ -131,7 +131,7 @@ export interface ErrorMessage {
   error: string;
 }
 
-export type LiveErrorCode = 'malformed' | 'unauthorized' | 'refused' | 'too_large';
+export type LiveErrorCode = 'malformed' | 'unauthorized' | 'refused';
 
 /** What the hub broadcasts to every viewer. */
 export type BroadcastMessage = HelloMessage | SampleMessage | StateMessage | AlarmMessage | MarkMessage | ResultMessage | CutoffMessage;

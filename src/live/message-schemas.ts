@@ -108,7 +108,7 @@ export const SERVER_MESSAGE_SCHEMAS = {
   result: message('result', { result: resultObject }, ['result']),
   cutoff: message('cutoff', { cutoff_V: num }, ['cutoff_V']),
   ack: message('ack', { id: { oneOf: [{ type: 'null' }, id] }, request: { enum: ['stop', 'set-cutoff', 'mark'] } }, ['id', 'request']),
-  error: message('error', { id: { oneOf: [{ type: 'null' }, id] }, code: { enum: ['malformed', 'unauthorized', 'refused', 'too_large'] }, error: str }, ['id', 'code', 'error']),
+  error: message('error', { id: { oneOf: [{ type: 'null' }, id] }, code: { enum: ['malformed', 'unauthorized', 'refused'] }, error: str }, ['id', 'code', 'error']),
 } as const;
 
 /** Control tokens are 64 hex digits; the bound only keeps junk short. */

@@ -30,6 +30,8 @@ export interface RunManifest {
   floor_V: number;
   limits: { max_temperature_C: number; max_current_A: number };
   samples: { prefix: string; rotate_bytes: number };
+  /** The discharge schedule as given, when the run had one. */
+  schedule?: { kind: 'file' | 'option'; text: string; where: string; description: string };
 }
 
 const positive = { type: 'number', exclusiveMinimum: 0 };
@@ -94,6 +96,11 @@ const SCHEMA: SchemaObject = {
       type: 'object',
       required: ['prefix'],
       properties: { prefix: { type: 'string', pattern: '^[A-Za-z0-9._-]+$' }, rotate_bytes: { type: 'integer', minimum: 1 } },
+    },
+    schedule: {
+      type: 'object',
+      required: ['kind', 'text', 'description'],
+      properties: { kind: { enum: ['file', 'option'] }, text, where: text, description: text },
     },
   },
 };

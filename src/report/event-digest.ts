@@ -19,6 +19,8 @@ const ALARMS = new Set([
   'frame_rejected',
   'rejected_summary',
   'signal',
+  'unlogged_discharge',
+  'calibration_rejected',
 ]);
 const SAFETY_ENDS = new Set(['over_temperature', 'link_lost', 'fault']);
 
@@ -28,6 +30,13 @@ export interface ListedEvent {
   alarm: boolean;
   /** The event's other fields, as compact text. */
   detail: string;
+}
+
+/** Where the daemon resumed an interrupted run, and the charge it estimated for the time nobody logged. */
+export interface Resumption {
+  atS: number;
+  /** Seconds of load-on time the daemon estimated while nothing was logging (0 when the load was found off). */
+  unloggedS: number;
 }
 
 export interface RunEnd {
@@ -42,8 +51,8 @@ export interface EventDigestResult {
   /** Events not listed because the list was full (they are still counted). */
   unlisted: number;
   end: RunEnd | null;
-  /** host_s of each later `run_started` (a resumed run). */
-  resumedAtS: number[];
+  /** Each `resumed` event, with its `unlogged_discharge` estimate. */
+  resumptions: Resumption[];
   /** Lines rejected, logged one by one plus those only summarised. */
   rejectedLines: number;
   /** Every `cutoff_changed`, in order. */
@@ -54,7 +63,7 @@ export interface EventDigestResult {
 const REJECTED_LISTED = 20;
 
 export class EventDigest {
-  private readonly r: EventDigestResult = { counts: {}, listed: [], unlisted: 0, end: null, resumedAtS: [], rejectedLines: 0, cutoffChanges: [] };
+  private readonly r: EventDigestResult = { counts: {}, listed: [], unlisted: 0, end: null, resumptions: [], rejectedLines: 0, cutoffChanges: [] };
 
   constructor(private readonly maxListed = 400) {}
 
@@ -62,7 +71,9 @@ export class EventDigest {
     const r = this.r;
     const { host_s: hostS, wall_time: _wall, event: name, ...rest } = e;
     r.counts[name] = (r.counts[name] ?? 0) + 1;
-    if (name === 'run_started' && r.counts[name]! > 1) r.resumedAtS.push(hostS);
+    if (name === 'resumed') r.resumptions.push({ atS: hostS, unloggedS: 0 });
+    const resumption = r.resumptions.at(-1);
+    if (name === 'unlogged_discharge' && resumption && typeof rest['estimated_s'] === 'number') resumption.unloggedS = rest['estimated_s'];
     if (name === 'run_ended') {
       r.end = { reason: String(rest['end_reason'] ?? 'stopped'), detail: String(rest['detail'] ?? ''), loadOffConfirmed: rest['load_off_confirmed'] !== false };
     }

@@ -31,6 +31,9 @@ export function figuresTable(f: RunFigures): string {
     `<tr><th>Capacity</th>${cell('capacity_Ah', r.capacity_Ah, ah(r.capacity_Ah))}${cell('uncertainty.capacity_Ah.expanded', uq.expanded, `± ${uq.expanded.toFixed(4)} Ah${rel(uq, r.capacity_Ah)}, k = 2`)}</tr>`,
     `<tr><th>Energy</th>${cell('energy_Wh', r.energy_Wh, `${r.energy_Wh.toFixed(4)} Wh`)}${cell('uncertainty.energy_Wh.expanded', ue.expanded, `± ${ue.expanded.toFixed(4)} Wh${rel(ue, r.energy_Wh)}, k = 2`)}</tr>`,
     `<tr><th>Load-on time</th>${cell('duration_s', r.duration_s, hms(r.duration_s))}<td class="small">${num(r.duration_s / 3600, 3)} h</td></tr>`,
+    ...(r.schedule !== null
+      ? [`<tr><th>Service output</th>${cell('service_output_h', r.service_output_h, r.service_output_h === null ? '—' : `${r.service_output_h.toFixed(2)} h`)}<td class="small">load-on hours to the end point; schedule: ${esc(r.schedule)}</td></tr>`]
+      : []),
     `<tr><th>Mean voltage</th>${cell('mean_voltage_V', r.mean_voltage_V, `${num(r.mean_voltage_V, 3)} V`)}<td class="small">energy ÷ charge</td></tr>`,
     `<tr><th>Mid-point voltage</th>${cell('midpoint_voltage_V', r.midpoint_voltage_V, `${num(r.midpoint_voltage_V, 3)} V`)}<td class="small">loaded voltage at half the charge delivered</td></tr>`,
     `<tr><th>End voltage</th>${cell('end_voltage_V', r.end_voltage_V, `${num(r.end_voltage_V, 3)} V`)}<td class="small">last loaded reading; cutoff ${num(r.cutoff_V, 3)} V (${num(r.cutoff_V / f.manifest.cells, 3)} V per cell)</td></tr>`,
@@ -116,9 +119,8 @@ ${budgetTable('Energy', 'Wh', r.uncertainty.energy_Wh, r.energy_Wh)}`;
 function calibrationSection(f: RunFigures): string {
   const c = f.calibration;
   const cal = c.applied;
-  const whose = c.own ? "the run's own calibration (the one in force when it was recorded)" : `another calibration than the live run's (${f.manifest.calibration.id})`;
   if (!cal) {
-    return `<p data-key="calibration_id" data-value="none">No calibration: figures use the nominal analog chain of the rig profile, whose offset and gain errors are unknown — ${esc(whose)}. The uncertainty budget assumes the errors of an uncalibrated board. Recompute with <code>cellvigil report &lt;run&gt; --calibration &lt;file&gt;</code> once the rig is calibrated.</p>`;
+    return `<p data-key="calibration_id" data-value="none">No calibration${c.own ? ' (the run was recorded without one)' : ''}: figures use the nominal analog chain of the rig profile, whose offset and gain errors are unknown, and the uncertainty budget assumes the errors of an uncalibrated board. Recompute with <code>cellvigil report &lt;run&gt; --calibration &lt;file&gt;</code> once the rig is calibrated.</p>`;
   }
   const rows = (['voltage', 'current', 'temperature'] as const).flatMap((q) => {
     const qc = cal[q];
@@ -126,6 +128,7 @@ function calibrationSection(f: RunFigures): string {
     const fit = qc.fit;
     return [`<tr><td>${q}</td><td>${fit.model === 'offset' ? 'offset only' : 'gain and offset'}</td><td class="num">${sig(fit.gain, 7)} ± ${sig(fit.u_gain, 2)}</td><td class="num">${sig(fit.offset, 4)} ± ${sig(fit.u_offset, 2)}</td><td class="num">${sig(fit.residual_sd, 2)}</td><td class="num">${qc.points.length}</td></tr>`];
   });
+  const whose = c.own ? "the run's own calibration (the one in force when it was recorded)" : `another calibration than the live run's (${f.manifest.calibration.id})`;
   return `<p data-key="calibration_id" data-value="${esc(cal.id)}">Calibration <strong>${esc(cal.id)}</strong>: ${esc(whose)}${c.file ? `, from ${esc(c.file)}` : ''}. Made ${esc(cal.date)} for the rig “${esc(cal.rig)}” against ${esc(cal.reference_instrument)}.</p>
 <table data-table="calibration"><thead><tr><th>quantity</th><th>model</th><th>gain ± u</th><th>offset ± u</th><th>residual s</th><th>points</th></tr></thead><tbody>
 ${rows.join('\n')}
@@ -144,6 +147,7 @@ function framesSection(f: RunFigures): string {
 <tr><th>lines rejected</th>${cell('frames_rejected', fr.rejected, String(fr.rejected))}<td class="small">bad checksum, wrong field count or out-of-range values; never integrated</td></tr>
 <tr><th>frames lost</th>${cell('frames_lost', fr.lost, String(fr.lost))}<td class="small">gaps in the sequence numbers; the trapezoid bridges them</td></tr>
 <tr><th>long gaps</th>${cell('gaps', fr.gaps, String(fr.gaps))}<td class="small">more than 2 s between frames${fr.rigRestarts ? `; ${fr.rigRestarts} rig restart${fr.rigRestarts > 1 ? 's' : ''}` : ''}; their charge is counted as doubt in the budget</td></tr>
+<tr><th>reading noise</th>${cell('current_noise_A', f.current.noiseA, f.current.noiseA === null ? '—' : `current ${(f.current.noiseA * 1000).toPrecision(2)} mA, voltage ${f.voltageNoiseV === null ? '—' : `${(f.voltageNoiseV * 1000).toPrecision(2)} mV`}`)}<td class="small">standard deviation of one loaded reading, from the differences of consecutive readings; it averages down in the figures</td></tr>
 <tr><th>mean frame interval</th>${cell('frame_interval_s', fr.meanIntervalS, fr.meanIntervalS === null ? '—' : `${(fr.meanIntervalS * 1000).toFixed(1)} ms`)}<td class="small">host clock</td></tr>
 <tr><th>rig clock error</th>${cell('rig_clock_error_ppm', ppm, clock)}<td class="small">the rig's tick counter against the host's clock; every frame is timed by the host clock, so this error does not enter the figures</td></tr>
 </tbody></table>`;

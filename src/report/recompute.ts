@@ -126,12 +126,12 @@ export class RunRecompute {
   private readonly codesV = new Set<number>();
   private readonly liveIds = new Set<string>();
   private readonly stepPerCellV: number;
-  private resumeAt: number[] = [];
   private rows = 0;
   private ended = false;
   private nominalAh = 0;
   private prevNominalA = 0;
-  private prev: { hostMs: number; loadOn: boolean; vRaw: number; iRaw: number; amps: number } | null = null;
+  private prev: { hostMs: number; loadOn: boolean; vRaw: number; iRaw: number; volts: number; amps: number } | null = null;
+  private nextResumption = 0;
   private firstHostS: number | null = null;
   private lastHostS: number | null = null;
   private lastWall: string | null = null;
@@ -165,7 +165,6 @@ export class RunRecompute {
   /** Feed every event first: a resumed run starts new integration segments where it resumed. */
   event(e: Parameters<EventDigest['add']>[0]): void {
     this.digest.add(e);
-    this.resumeAt = this.digest.result().resumedAtS;
   }
 
   sample(s: SampleRecord): void {
@@ -180,18 +179,33 @@ export class RunRecompute {
     const loadOn = (s.flags & FLAG_LOAD_ON) !== 0;
     const hostMs = s.hostS * 1000;
     const prev = this.prev;
-    // A new segment: the host clock went back, or the daemon resumed the run here.
-    const resumed = prev !== null && (hostMs < prev.hostMs || this.resumeAt.some((t) => t * 1000 > prev.hostMs && t * 1000 <= hostMs));
+    // A new segment where the daemon resumed the run (or the host clock went back): nothing is
+    // bridged across the time it was down; its own estimate of what flowed meanwhile is added.
+    const resumptions = this.digest.result().resumptions;
+    let unloggedS = 0;
+    let resumed = prev !== null && hostMs < prev.hostMs;
+    while (prev !== null && this.nextResumption < resumptions.length && resumptions[this.nextResumption]!.atS * 1000 <= hostMs) {
+      const r = resumptions[this.nextResumption++]!;
+      if (r.atS * 1000 >= prev.hostMs) {
+        resumed = true;
+        unloggedS += r.unloggedS;
+      }
+    }
     if (resumed) {
-      this.integrator.restore({ chargeAh: this.integrator.chargeAh, energyWh: this.integrator.energyWh, onMs: this.integrator.onMs, bridgedAh: this.integrator.bridgedAh });
+      const integ = this.integrator;
+      integ.restore({ chargeAh: integ.chargeAh, energyWh: integ.energyWh, onMs: integ.onMs, bridgedAh: integ.bridgedAh });
+      if (unloggedS > 0 && !this.ended) {
+        integ.addUnlogged(unloggedS * 1000, prev!.volts, prev!.amps);
+        this.nominalAh += this.chain.amps(prev!.iRaw) * (unloggedS / 3600);
+      }
       this.prevNominalA = 0;
     }
     const fresh = prev === null || resumed;
     const dtMs = fresh ? 0 : hostMs - prev.hostMs;
 
-    const t = this.ticks.next(s.tickMs);
+    const tick = this.ticks.next(s.tickMs);
     const q = this.seqs.next(s.seq);
-    const rigRestart = t.step !== null && t.step < 0;
+    const rigRestart = tick.step !== null && tick.step < 0;
     if (rigRestart) {
       this.rigRestarts++;
       this.ticks.reset();
@@ -201,7 +215,7 @@ export class RunRecompute {
       this.rate.reset();
       this.rate.add(s.tickMs, hostMs);
     } else {
-      this.rate.add(t.value, hostMs);
+      this.rate.add(tick.value, hostMs);
       if (!fresh) this.lost += Math.max(0, (q.step ?? 1) - 1);
     }
     const gap = !fresh && (dtMs > LONG_GAP_MS || rigRestart);
@@ -212,8 +226,8 @@ export class RunRecompute {
     let integrate = !this.ended;
     if (integrate && s.state === 'ended') {
       this.ended = true;
-      const t = this.liveTotals;
-      integrate = t === null || !prev?.loadOn || s.chargeAh !== t.chargeAh || s.energyWh !== t.energyWh;
+      const live = this.liveTotals;
+      integrate = live === null || !prev?.loadOn || s.chargeAh !== live.chargeAh || s.energyWh !== live.energyWh;
     }
     if (integrate) {
       this.integrator.add(dtMs, volts, amps, loadOn, gap);
@@ -226,7 +240,7 @@ export class RunRecompute {
     }
     this.resistance.add({ hostS: s.hostS, volts, amps, loadOn });
     this.curve.add({ hostS: s.hostS, chargeAh: this.integrator.chargeAh, energyWh: this.integrator.energyWh, volts, amps, celsius, loadOn });
-    this.prev = { hostMs, loadOn, vRaw: s.vRaw, iRaw: s.iRaw, amps };
+    this.prev = { hostMs, loadOn, vRaw: s.vRaw, iRaw: s.iRaw, volts, amps };
     this.firstHostS ??= s.hostS;
     this.lastHostS = s.hostS;
   }
@@ -318,6 +332,7 @@ export class RunRecompute {
       gaps: this.gaps,
       startedWallMs: Date.parse(m.started_wall),
       endedWallMs: this.lastWall !== null ? Date.parse(this.lastWall) : Date.parse(m.started_wall),
+      schedule: m.schedule?.description ?? null,
     });
     const uncertainty = runUncertainty({
       chargeAh: integ.chargeAh,
@@ -364,7 +379,13 @@ export class RunRecompute {
       notes.push(`Same calibration as the live run: the recomputed capacity differs from the live total in the log by ${(d * 100).toExponential(1)} %.`);
     }
     if (ctx.cutLines > 0) notes.push(`${ctx.cutLines} line${ctx.cutLines > 1 ? 's were' : ' was'} cut off by the interruption of the run and left out.`);
-    if (ev.resumedAtS.length > 0) notes.push(`The run was resumed ${ev.resumedAtS.length} time${ev.resumedAtS.length > 1 ? 's' : ''}; each resumption starts a new integration segment.`);
+    const resumed = ev.resumptions.length;
+    if (resumed > 0) {
+      const dark = ev.resumptions.reduce((t, r) => t + r.unloggedS, 0);
+      notes.push(
+        `The run was resumed ${resumed} time${resumed > 1 ? 's' : ''}; nothing is interpolated across the time it was down${dark > 0 ? `, and ${dark.toFixed(1)} s of load-on time with nothing logged are counted at the last logged current, in full as doubt in the budget` : ''}.`,
+      );
+    }
     if (!end) notes.push('The run was interrupted: it has no result.json and its event log no end.');
     const spanS = this.firstHostS !== null && this.lastHostS !== null ? this.lastHostS - this.firstHostS : 0;
 

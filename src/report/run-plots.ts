@@ -83,7 +83,7 @@ export function timePlots(curve: readonly CurveBucket[], cutoffV: number | null)
       series: [timeSeries(curve, pickCurrent, unit, t0, 'current', CURRENT_COLOUR, true)],
       height: 240,
     }),
-    linePlot({ id: 'temperature-time', title: 'Cell temperature against time', x, y: { label: 'temperature (°C)' }, series: [temp], height: 240 }),
+    linePlot({ id: 'temperature-time', title: 'Cell temperature against time', x, y: { label: 'temperature (°C)', minSpan: 4 }, series: [temp], height: 240 }),
   ].join('\n');
 }
 

@@ -16,6 +16,8 @@ export interface PlotAxis {
   label: string;
   min?: number;
   max?: number;
+  /** Smallest span shown, so that the noise of a steady reading is not blown up to full height. */
+  minSpan?: number;
 }
 
 export interface PlotSpec {
@@ -42,8 +44,13 @@ export function niceTicks(min: number, max: number, target = 6): number[] {
   return out;
 }
 
-function extent(values: number[], fixedMin?: number, fixedMax?: number): [number, number] {
+function extent(values: number[], fixedMin?: number, fixedMax?: number, minSpan = 0): [number, number] {
   const finite = values.filter(Number.isFinite);
+  if (finite.length > 0 && fixedMin === undefined && fixedMax === undefined) {
+    const lo = Math.min(...finite);
+    const hi = Math.max(...finite);
+    if (hi - lo < minSpan) return [(lo + hi) / 2 - minSpan / 2, (lo + hi) / 2 + minSpan / 2];
+  }
   let lo = fixedMin ?? (finite.length ? Math.min(...finite) : 0);
   let hi = fixedMax ?? (finite.length ? Math.max(...finite) : 1);
   if (hi === lo) {
@@ -69,8 +76,8 @@ export function linePlot(p: PlotSpec): string {
   const m = { l: 64, r: 16, t: 34, b: 46 };
   const xs = p.series.flatMap((s) => s.points.map((q) => q[0]));
   const ys = p.series.flatMap((s) => [...s.points.map((q) => q[1]), ...(s.band ?? []).flatMap((b) => [b[1], b[2]])]).concat((p.rules ?? []).map((r) => r.y));
-  const [x0, x1] = extent(xs, p.x.min, p.x.max);
-  const [y0, y1] = extent(ys, p.y.min, p.y.max);
+  const [x0, x1] = extent(xs, p.x.min, p.x.max, p.x.minSpan);
+  const [y0, y1] = extent(ys, p.y.min, p.y.max, p.y.minSpan);
   const px = (x: number): number => m.l + ((x - x0) / (x1 - x0)) * (W - m.l - m.r);
   const py = (y: number): number => H - m.b - ((y - y0) / (y1 - y0)) * (H - m.t - m.b);
   const f = (v: number): string => v.toFixed(1);

@@ -20,18 +20,18 @@ export interface LiveLinkOptions {
   print(line: string): void;
 }
 
-/** Events that deserve a viewer's attention, not just a line in the log. */
-const ALARM_EVENTS = new Set([
-  'clock_warning',
-  'link_down',
-  'load_off_unconfirmed',
-  'calibration_rejected',
-  'chemistry_rejected',
-  'gap',
-  'rig_error',
-  'unlogged_discharge',
-]);
-const LIMIT_REASONS = ['cutoff', 'over_temperature', 'link_lost', 'fault'];
+/** Events that deserve a viewer's attention, not just a line in the log, in words. */
+const ALARM_TEXT: Record<string, (d: Record<string, unknown>) => string> = {
+  clock_warning: (d) => `the rig's clock is off by ${(Number(d['rig_clock_error_ppm']) / 1e4).toFixed(1)} %; frames are timed by the host`,
+  link_down: () => "the rig's port went away; waiting for it to return",
+  load_off_unconfirmed: () => "the rig did not confirm the load off; its watchdog cuts it within 5 s",
+  calibration_rejected: (d) => `an edited calibration was rejected; ${String(d['kept_id'])} stays in force`,
+  chemistry_rejected: () => 'an edited chemistry file was rejected; the limits in force stay',
+  rig_error: (d) => `the rig reports ${String(d['code'])}: ${String(d['text'])}`,
+  unlogged_discharge: (d) => `about ${Number(d['estimated_s']).toFixed(1)} s of discharge went unlogged while the daemon was down`,
+};
+/** A run ending on these is an alarm; at the cutoff or by the user it is the normal end. */
+const LIMIT_REASONS = ['over_temperature', 'link_lost', 'fault'];
 
 export interface LiveLink {
   server: LiveServer;
@@ -54,7 +54,7 @@ export async function startLiveLink(o: LiveLinkOptions): Promise<LiveLink> {
         return { ok: true };
     }
   });
-  const server = await startLiveServer({ hub, listen: o.listen, tokenStore: tokens.tokens, log: (name, detail) => o.log(`live_${name}`, detail) });
+  const server = await startLiveServer({ hub, listen: o.listen, tokenStore: tokens.tokens, log: (name, detail) => o.log(name, detail) });
   o.print(`live: ${server.url}`);
   for (const url of server.lanUrls) if (url !== server.url) o.print(`live (other machines, viewer token needed): ${url}`);
   if (tokens.generated) {
@@ -71,9 +71,9 @@ export async function startLiveLink(o: LiveLinkOptions): Promise<LiveLink> {
       if (d['to'] === 'stopping' && LIMIT_REASONS.includes(reason)) hub.alarm({ host_s: rec.host_s, kind: reason, detail: why });
     } else if (rec.event === 'cutoff_changed') {
       hub.cutoffChanged(Number(d['cutoff_V']));
-    } else if (ALARM_EVENTS.has(rec.event)) {
-      const { host_s: _h, wall_time: _w, event: kind, ...rest } = d;
-      hub.alarm({ host_s: rec.host_s, kind: String(kind), detail: JSON.stringify(rest) });
+    } else {
+      const text = ALARM_TEXT[rec.event];
+      if (text) hub.alarm({ host_s: rec.host_s, kind: rec.event, detail: text(d) });
     }
   };
   return {

@@ -86,14 +86,17 @@ export function benchPipeline(originMs = 0): { pipeline: Pipeline; session: Sess
 
 export const FRAME_MS = 100;
 
+/** Words that open the fix part of an error message ("what, where. Fix."). */
+export const FIX = /\b(Set|Use|Give|Check|Add|Remove|Fix|Correct|Restore|Start|Undo|Make|Compare|Choose)\b/;
+
 /**
- * Feeds 20 resting frames (the precheck needs 5 frames over 1 s) and then loaded frames until
+ * Feeds 12 resting frames (the precheck needs 5 frames over 1 s) and then loaded frames until
  * the session is discharging. Returns the next seq, tick and arrival time.
  */
 export function warmUp(p: Pipeline, session: Session, startMs = 0): { seq: number; tick: number; at: number } {
   let seq = 0;
   let at = startMs;
-  for (; seq < 20; seq++, at += FRAME_MS) p.line(dataLine({ seq, tickMs: seq * FRAME_MS, loadOn: false }), at, at);
+  for (; seq < 12; seq++, at += FRAME_MS) p.line(dataLine({ seq, tickMs: seq * FRAME_MS, loadOn: false }), at, at);
   for (; session.state !== 'discharging'; seq++, at += FRAME_MS) {
     if (seq > 40) throw new Error(`the session did not reach discharging (${session.state})`);
     p.line(dataLine({ seq, tickMs: seq * FRAME_MS, loadOn: true }), at, at);
@@ -101,11 +104,11 @@ export function warmUp(p: Pipeline, session: Session, startMs = 0): { seq: numbe
   return { seq, tick: seq * FRAME_MS, at };
 }
 
-/** Everything a rejected line must leave as it was. */
-export function snapshot(p: Pipeline, s: Session): Record<string, unknown> {
+/** Everything a rejected line must leave as it was, as comparable text. */
+export function snapshot(p: Pipeline, s: Session): string {
   const { accepted, lost, otherChannel } = p.counters;
   const i = s.integrator;
-  return {
+  return JSON.stringify({
     accepted,
     lost,
     otherChannel,
@@ -117,7 +120,7 @@ export function snapshot(p: Pipeline, s: Session): Record<string, unknown> {
     state: s.state,
     loadOn: s.loadOn,
     result: s.result,
-  };
+  });
 }
 
 /**

@@ -205,6 +205,7 @@ export async function simulateRun(o: SimRunOptions): Promise<SimRun> {
     gaps,
     startedWallMs: startedWall,
     endedWallMs: clock.wallNow(),
+    schedule: null,
   });
   events.summarise(hostS(), clock.wallNow());
   events.write(hostS(), clock.wallNow(), 'run_ended', { end_reason: e.reason, detail: e.detail, load_off_confirmed: e.confirmed });
