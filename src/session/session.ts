@@ -112,7 +112,8 @@ export class Session {
     if (this.stateValue === 'ended') return out;
     this.lastFrameAt = m.hostMs;
     this.loadOn = (m.flags & FLAG_LOAD_ON) !== 0;
-    if (this.reread) this.afterInterruption(out);
+    // After a long gap (a stalled link, a suspended host) the load flag is read afresh too.
+    if (this.reread || m.gap) this.afterInterruption(out);
     this.integrator.add(m.dtMs, m.volts, m.amps, this.loadOn, m.gap);
     if (this.loadOn) this.lastLoadedV = m.volts;
     switch (this.stateValue) {

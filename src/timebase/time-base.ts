@@ -85,7 +85,9 @@ export class TimeBase {
       hostMs,
       dtMs,
       lost: Math.max(0, (s.step ?? 1) - 1),
-      gap: arrivalMs - prev.arrival > this.longGapMs,
+      // A long silence on the host's clock, or the rig's ticks showing far more time than the
+      // host saw: the monotonic clock stands still while the host is suspended.
+      gap: arrivalMs - prev.arrival > this.longGapMs || (t.value - prev.tick) * scale - (arrivalMs - prev.arrival) > this.longGapMs,
       rigRestart: false,
     };
   }

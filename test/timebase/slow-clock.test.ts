@@ -29,3 +29,15 @@ describe('a rig clock far off, frames delivered evenly', () => {
     });
   }
 });
+
+// The host's monotonic clock stands still while the host is suspended; the rig's does not.
+describe('a host suspended for ten minutes', () => {
+  it('is flagged as a gap although the host clock barely moved', () => {
+    const tb = new TimeBase();
+    for (let k = 0; k < 100; k++) expect(tb.stamp(k, k * 100, 1000 + k * 100).gap).toBe(false);
+    const after = tb.stamp(100, 99 * 100 + 600_000, 1000 + 99 * 100 + 150);
+    expect(after.gap).toBe(true);
+    // Nothing is integrated over time the host did not see.
+    expect(after.dtMs).toBeLessThanOrEqual(150);
+  });
+});
