@@ -143,6 +143,12 @@ export function buildSimRig(scenario: SimScenario, clock: Clock, profile: RigPro
   });
 }
 
+/** A key below `parent` as the user would look for it; odd names (spaces, punctuation) quoted. */
+function childKey(parent: string, child: string): string {
+  const shown = /^[A-Za-z0-9_-]+$/.test(child) ? child : JSON.stringify(child);
+  return parent === '(top level)' ? shown : `${parent}.${shown}`;
+}
+
 function schemaError(file: string, err: ErrorObject): Error {
   const key = err.instancePath.split('/').filter(Boolean).join('.') || '(top level)';
   const p = err.params as Record<string, unknown>;
@@ -150,13 +156,13 @@ function schemaError(file: string, err: ErrorObject): Error {
   let where = key;
   switch (err.keyword) {
     case 'required':
-      where = `${key}.${String(p.missingProperty)}`;
+      where = childKey(key, String(p.missingProperty));
       fix = `Add the key "${String(p.missingProperty)}".`;
       break;
     case 'additionalProperties': {
-      where = `${key}.${String(p.additionalProperty)}`;
+      where = childKey(key, String(p.additionalProperty));
       const allowed = Object.keys((err.parentSchema?.properties as object | undefined) ?? {});
-      fix = `Remove or rename "${String(p.additionalProperty)}"; the keys allowed here are: ${allowed.join(', ')}.`;
+      fix = `Remove or rename ${JSON.stringify(String(p.additionalProperty))}; the keys allowed here are: ${allowed.join(', ')}.`;
       break;
     }
     case 'type':

@@ -1,3 +1,6 @@
+import { fixedDecimal } from './fixed-decimal.js';
+import { isoTime } from './iso-time.js';
+
 /** The columns of samples-NNNN.csv (DESIGN.md "Run folder"); the order is a contract. */
 export const SAMPLE_COLUMNS = [
   'host_s',
@@ -39,28 +42,17 @@ export interface SampleRow {
   calibrationId: string;
 }
 
+const FLAG_TEXT = Array.from({ length: 256 }, (_, n) => n.toString(16).toUpperCase().padStart(2, '0'));
+
 function num(x: number, digits: number): string {
-  return Number.isFinite(x) ? x.toFixed(digits) : '';
+  return Number.isFinite(x) ? fixedDecimal(x, digits) : '';
 }
 
 /** One RFC 4180 row. No field can hold a comma, quote or newline, so none needs quoting. */
 export function formatSampleRow(r: SampleRow): string {
-  return [
-    r.hostS.toFixed(3),
-    new Date(r.wallMs).toISOString(),
-    r.channel,
-    r.seq,
-    r.tickMs,
-    r.vRaw,
-    r.iRaw,
-    r.tRaw,
-    r.flags.toString(16).toUpperCase().padStart(2, '0'),
-    num(r.volts, 5),
-    num(r.amps, 5),
-    num(r.celsius, 2),
-    r.chargeAh.toFixed(7),
-    r.energyWh.toFixed(7),
-    r.state,
-    r.calibrationId,
-  ].join(',');
+  const flags = FLAG_TEXT[r.flags] ?? r.flags.toString(16).toUpperCase().padStart(2, '0');
+  return (
+    `${fixedDecimal(r.hostS, 3)},${isoTime(r.wallMs)},${r.channel},${r.seq},${r.tickMs},${r.vRaw},${r.iRaw},${r.tRaw},${flags},` +
+    `${num(r.volts, 5)},${num(r.amps, 5)},${num(r.celsius, 2)},${fixedDecimal(r.chargeAh, 7)},${fixedDecimal(r.energyWh, 7)},${r.state},${r.calibrationId}`
+  );
 }

@@ -10,7 +10,7 @@ import { fitQuantity, parseCalibration, sealCalibration } from '../../src/calibr
 import { parseRigProfile } from '../../src/chain/rig-profile.js';
 import { parseChemistries } from '../../src/chemistry/chemistries.js';
 import { CellvigilError, ErrorCodes, type ErrorCode } from '../../src/core/errors.js';
-import { BENCH_RIG_TEXT, FIX } from './helpers.js';
+import { BENCH_RIG_TEXT, namesPlaceAndFix } from './helpers.js';
 
 /** A broken input and what its message must contain (a key, a line, "empty"). */
 type Case = [name: string, text: string, mentions: string[]];
@@ -31,9 +31,8 @@ function table(where: string, code: ErrorCode, parse: (text: string) => unknown,
       const e = refusal(() => parse(text));
       expect(e.code).toBe(code);
       expect(e.exitCode).toBe(2);
-      expect(e.message).toContain(where);
       for (const m of mentions) expect(e.message).toContain(m);
-      expect(e.message).toMatch(FIX);
+      expect(namesPlaceAndFix(e.message, where), e.message).toBe(true);
     });
   }
 }

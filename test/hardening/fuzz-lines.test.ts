@@ -12,7 +12,7 @@ import { benchPipeline, dataLine, FRAME_MS, referenceCrc16, snapshot, warmUp } f
 import { applyAll, byteMutation, fieldMutation, lineMutations } from './mutate.js';
 
 const LINE_RUNS = 20_000;
-const HOST_RUNS = 50_000;
+const HOST_RUNS = 55_000;
 
 /** True when `line` (with at most one trailing CR) is printable, short, and ends in a correct checksum. */
 function correctlyFramed(line: string): boolean {

@@ -86,8 +86,19 @@ export function benchPipeline(originMs = 0): { pipeline: Pipeline; session: Sess
 
 export const FRAME_MS = 100;
 
-/** Words that open the fix part of an error message ("what, where. Fix."). */
-export const FIX = /\b(Set|Use|Give|Check|Add|Remove|Fix|Correct|Restore|Start|Undo|Make|Compare|Choose)\b/;
+/** Words that open the fix part of an error message. */
+const FIX = /^(Set|Use|Give|Check|Add|Remove|Fix|Correct|Restore|Start|Undo|Make|Compare|Choose)\b/;
+
+/** True when a message made as "what (where…). Fix." names `where` and its fix opens with a verb. */
+export function namesPlaceAndFix(message: string, where: string): boolean {
+  const at = message.indexOf(`(${where}`);
+  if (at < 0) return false;
+  // The place may quote odd key names that hold ")." themselves: any closing followed by a fix will do.
+  for (let close = message.indexOf('). ', at); close >= 0; close = message.indexOf('). ', close + 1)) {
+    if (FIX.test(message.slice(close + 3))) return true;
+  }
+  return false;
+}
 
 /**
  * Feeds 12 resting frames (the precheck needs 5 frames over 1 s) and then loaded frames until
