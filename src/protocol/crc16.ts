@@ -13,11 +13,16 @@ const TABLE = (() => {
   return t;
 })();
 
-export function crc16(text: string, init = 0xffff): number {
+export const CRC_INIT = 0xffff;
+
+/** The CRC after one more byte: for callers that already walk the line byte by byte. */
+export function crc16Step(crc: number, byte: number): number {
+  return ((crc << 8) & 0xffff) ^ TABLE[((crc >> 8) ^ byte) & 0xff]!;
+}
+
+export function crc16(text: string, init = CRC_INIT): number {
   let crc = init;
-  for (let i = 0; i < text.length; i++) {
-    crc = ((crc << 8) & 0xffff) ^ TABLE[((crc >> 8) ^ text.charCodeAt(i)) & 0xff]!;
-  }
+  for (let i = 0; i < text.length; i++) crc = crc16Step(crc, text.charCodeAt(i));
   return crc;
 }
 

@@ -43,7 +43,7 @@ async function syncDir(dir: string): Promise<void> {
 }
 
 /** Compresses one closed file next to itself and removes the plain one. Never throws. */
-export async function compressClosedFile(file: string, level = 6): Promise<CompressOutcome> {
+export async function compressClosedFile(file: string): Promise<CompressOutcome> {
   const gz = file + GZ_EXT;
   const tmp = file + GZ_TMP_EXT;
   let bytesIn = 0;
@@ -51,7 +51,7 @@ export async function compressClosedFile(file: string, level = 6): Promise<Compr
     bytesIn = (await stat(file)).size;
     // pipeline() carries backpressure from the disk back to the reader, so memory stays bounded;
     // `flush` fsyncs the copy before its descriptor is closed.
-    await pipeline(createReadStream(file), createGzip({ level }), createWriteStream(tmp, { flush: true }));
+    await pipeline(createReadStream(file), createGzip(), createWriteStream(tmp, { flush: true }));
     const bytesOut = (await stat(tmp)).size;
     await rename(tmp, gz);
     await syncDir(dirname(file));
@@ -73,10 +73,10 @@ interface Rotated {
 /**
  * Finishes what a crash interrupted in a folder of rotated files `<prefix>NNNN<ext>`: removes
  * half-written `.gz.tmp` files, and where a number exists both plain and compressed drops the
- * compressed copy (the plain file is the original). Returns the numbers of plain files below
- * `before`, which are closed and may be compressed again.
+ * compressed copy (the plain file is the original). Returns the paths of the plain files
+ * numbered below `before`, which are closed and may be compressed again.
  */
-export async function settleRotated(dir: string, prefix: string, ext: string, before: number): Promise<number[]> {
+export async function settleRotated(dir: string, prefix: string, ext: string, before: number): Promise<string[]> {
   const esc = (s: string): string => s.replace(/[.*+?^${}()|[\]\\]/g, '\\$&');
   const re = new RegExp(`^${esc(prefix)}(\\d{4,})${esc(ext)}(${esc(GZ_EXT)}|${esc(GZ_TMP_EXT)})?$`);
   const found = new Map<number, Rotated>();
@@ -93,11 +93,11 @@ export async function settleRotated(dir: string, prefix: string, ext: string, be
     else r.plain = name;
     found.set(index, r);
   }
-  const closed: number[] = [];
+  const closed: string[] = [];
   for (const r of [...found.values()].sort((a, b) => a.index - b.index)) {
     if (r.plain === null) continue;
     if (r.gz !== null) await rm(join(dir, r.gz));
-    if (r.index < before) closed.push(r.index);
+    if (r.index < before) closed.push(join(dir, r.plain));
   }
   return closed;
 }

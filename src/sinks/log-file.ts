@@ -103,9 +103,8 @@ export class LogFile {
   private async settle(): Promise<void> {
     this.settled = true;
     if (!this.o.compressClosed || this.o.rotateBytes === undefined) return;
-    const ext = this.o.ext ?? '.csv';
-    const closed = await settleRotated(this.o.dir, this.o.name, ext, this.index);
-    for (const i of closed) this.compressLater(join(this.o.dir, `${this.o.name}${String(i).padStart(4, '0')}${ext}`));
+    const closed = await settleRotated(this.o.dir, this.o.name, this.o.ext ?? '.csv', this.index);
+    for (const path of closed) this.compressLater(path);
   }
 
   private currentPath(): string {
