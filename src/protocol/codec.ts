@@ -1,4 +1,4 @@
-import { CRC_INIT, crc16Step, crcHex } from './crc16.js';
+import { crc16, crcHex } from './crc16.js';
 import type { DataFrame, DecodeResult, HostCommand, RejectReason } from './messages.js';
 
 /** Longest line accepted; a data frame at its widest is about 60 characters. */
@@ -37,19 +37,16 @@ function hex4(text: string, at: number): number {
 function checkFrame(line: string): { payload: string } | DecodeResult {
   const text = line.endsWith('\r') ? line.slice(0, -1) : line;
   if (text.length > MAX_LINE_LENGTH) return reject('overlong', `${text.length} characters`);
-  // One pass checks that every byte is printable and sums the CRC of those before the last `|`.
-  const bar = text.lastIndexOf('|');
-  let crc = CRC_INIT;
   for (let i = 0; i < text.length; i++) {
     const c = text.charCodeAt(i);
     if (c < 0x20 || c > 0x7e) return reject('not_text', 'non-printable bytes');
-    if (i < bar) crc = crc16Step(crc, c);
   }
+  const bar = text.lastIndexOf('|');
   if (bar < 0 || text.length - bar !== 5) return reject('no_checksum', 'missing |XXXX');
   const payload = text.slice(0, bar);
   const given = hex4(text, bar + 1);
   if (given < 0) return reject('no_checksum', `checksum "${text.slice(bar + 1)}" is not 4 hex digits`);
-  if (given !== crc) return reject('bad_checksum', `got ${text.slice(bar + 1)}, computed ${crcHex(payload)}`);
+  if (given !== crc16(payload)) return reject('bad_checksum', `got ${text.slice(bar + 1)}, computed ${crcHex(payload)}`);
   return { payload };
 }
 

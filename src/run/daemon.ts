@@ -2,6 +2,7 @@
  * `cellvigil run`: wires a source, the pure core and the sinks together. Lines travel one way
  * (source -> pipeline -> sinks); the only way back to the rig is the session's actions.
  */
+import { rm } from 'node:fs/promises';
 import { join } from 'node:path';
 import { applyCalibration, loadCalibration, type Calibration } from '../calibration/calibration.js';
 import { DEFAULT_CHEMISTRIES_PATH, findChemistry, loadChemistries } from '../chemistry/chemistries.js';
@@ -458,6 +459,11 @@ export async function startRun(req: RunRequest, io: RunIo): Promise<RunHandle> {
     status.line('No calibration given: figures use the nominal analog chain, whose offset and gain errors are unknown (see `cellvigil calibrate`).');
   }
 
+  /** A run that never got its rig leaves no folder behind (it would look like one to resume). */
+  const abandon = async (): Promise<void> => {
+    await Promise.all([samples.close(), events.close()]).catch(() => undefined);
+    if (!resume) await rm(folder, { recursive: true, force: true }).catch(() => undefined);
+  };
   let live: LiveLink | null = null;
   if (req.listen !== null) {
     try {
@@ -485,7 +491,7 @@ export async function startRun(req: RunRequest, io: RunIo): Promise<RunHandle> {
       });
       observers.push(live.observer);
     } catch (e) {
-      await Promise.all([samples.close(), events.close()]).catch(() => undefined);
+      await abandon();
       throw e;
     }
   }
@@ -512,7 +518,8 @@ export async function startRun(req: RunRequest, io: RunIo): Promise<RunHandle> {
     });
   } catch (e) {
     ended = true;
-    await Promise.all([samples.close(), events.close(), live?.server.close()]).catch(() => undefined);
+    await live?.server.close().catch(() => undefined);
+    await abandon();
     throw e instanceof CellvigilError ? e : makeError(ErrorCodes.PORT_OPEN, (e as Error).message, source.description, 'Check the rig connection.');
   }
   for (const [sig, h] of signalHandlers) process.on(sig, h);
