@@ -4,8 +4,9 @@
  * sample carries.
  */
 import { createHash } from 'node:crypto';
-import { open, readFile, rename, rm } from 'node:fs/promises';
+import { open, rename, rm } from 'node:fs/promises';
 import { Ajv, type SchemaObject } from 'ajv';
+import { readConfigText } from '../core/config-file.js';
 import { ErrorCodes, makeError } from '../core/errors.js';
 import { fitLine, fitOffset, type FitOptions, type LinearFit } from './fit.js';
 
@@ -255,17 +256,7 @@ function jsonSyntaxDetail(text: string, err: Error): string {
 
 /** Reads and checks a calibration file. */
 export async function loadCalibration(path: string): Promise<Calibration> {
-  let text: string;
-  try {
-    text = await readFile(path, 'utf8');
-  } catch (err) {
-    throw makeError(
-      ErrorCodes.CONFIG_READ,
-      `cannot read the calibration file: ${(err as Error).message}`,
-      path,
-      'Check the path given with --calibration, or run `cellvigil calibrate` to make one.',
-    );
-  }
+  const text = await readConfigText(path, 'calibration file', 'Check the path given with --calibration, or run `cellvigil calibrate` to make one.');
   return parseCalibration(text, path);
 }
 

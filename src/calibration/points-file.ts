@@ -3,9 +3,9 @@
  * conditions to capture and what the reference meter read at each, so a calibration can be
  * taken without prompts. Format in docs/calibration.md.
  */
-import { readFile } from 'node:fs/promises';
 import { Ajv, type ErrorObject, type SchemaObject } from 'ajv';
 import { parse as parseYaml } from 'yaml';
+import { readConfigText } from '../core/config-file.js';
 import { ErrorCodes, makeError } from '../core/errors.js';
 import type { Quantity } from './calibration.js';
 import { parseAccuracy } from './reference-accuracy.js';
@@ -86,12 +86,7 @@ interface RawPoint {
 }
 
 export async function loadPointsFile(path: string): Promise<PointsFile> {
-  let text: string;
-  try {
-    text = await readFile(path, 'utf8');
-  } catch (err) {
-    throw makeError(ErrorCodes.CONFIG_READ, `cannot read the points file: ${(err as Error).message}`, path, 'Check the path given with --points or --from-points.');
-  }
+  const text = await readConfigText(path, 'points file', 'Check the path given with --points or --from-points.');
   return parsePointsFile(text, path);
 }
 

@@ -2,9 +2,9 @@
  * Reading and validating rig profiles (config/rigs/*.yaml). Every problem is reported with the
  * file, the key path, what was found, and what to set instead.
  */
-import { readFile } from 'node:fs/promises';
 import { Ajv, type ErrorObject, type SchemaObject } from 'ajv';
 import { parse as parseYaml } from 'yaml';
+import { readConfigText } from '../core/config-file.js';
 import { ErrorCodes, makeError } from '../core/errors.js';
 import type { RigProfile } from './rig-profile-types.js';
 
@@ -113,17 +113,7 @@ const validate = new Ajv({ allErrors: true, strict: true, strictRequired: false 
 
 /** Reads, parses and validates a rig profile file. */
 export async function loadRigProfile(path: string): Promise<RigProfile> {
-  let text: string;
-  try {
-    text = await readFile(path, 'utf8');
-  } catch (err) {
-    throw makeError(
-      ErrorCodes.CONFIG_READ,
-      `cannot read the rig profile: ${(err as Error).message}`,
-      path,
-      'Check the path given with --rig; the profiles shipped are in config/rigs/.',
-    );
-  }
+  const text = await readConfigText(path, 'rig profile', 'Check the path given with --rig; the profiles shipped are in config/rigs/.');
   return parseRigProfile(text, path);
 }
 

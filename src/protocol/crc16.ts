@@ -13,16 +13,11 @@ const TABLE = (() => {
   return t;
 })();
 
-export const CRC_INIT = 0xffff;
-
-/** The CRC after one more byte: for callers that already walk the line byte by byte. */
-export function crc16Step(crc: number, byte: number): number {
-  return ((crc << 8) & 0xffff) ^ TABLE[((crc >> 8) ^ byte) & 0xff]!;
-}
-
-export function crc16(text: string, init = CRC_INIT): number {
+export function crc16(text: string, init = 0xffff): number {
   let crc = init;
-  for (let i = 0; i < text.length; i++) crc = crc16Step(crc, text.charCodeAt(i));
+  for (let i = 0; i < text.length; i++) {
+    crc = ((crc << 8) & 0xffff) ^ TABLE[((crc >> 8) ^ text.charCodeAt(i)) & 0xff]!;
+  }
   return crc;
 }
 

@@ -11,7 +11,7 @@ import { packagePath } from '../core/paths.js';
 import { loadScenarios, pickScenario, type SimScenario } from '../sim/scenarios.js';
 import type { RunManifest } from '../replay/run-manifest.js';
 import { parseScheduleOption, parseScheduleYaml, type Schedule } from '../schedule/schedule.js';
-import { readFile } from 'node:fs/promises';
+import { readConfigText } from '../core/config-file.js';
 import { existsSync } from 'node:fs';
 import type { RunRequest } from './run-request.js';
 
@@ -41,13 +41,7 @@ export interface RunConfig {
 
 /** `--schedule` names a file (YAML) or is written inline ("on 15 s every 1 min, 8 h per day, to 1.0 V"). */
 async function readScheduleSource(given: string): Promise<{ kind: 'file' | 'option'; text: string; where: string }> {
-  if (existsSync(given)) {
-    try {
-      return { kind: 'file', text: await readFile(given, 'utf8'), where: resolve(given) };
-    } catch (e) {
-      throw makeError(ErrorCodes.CONFIG_READ, `cannot read the schedule file: ${(e as Error).message}`, given, 'Check the path given for the schedule.');
-    }
-  }
+  if (existsSync(given)) return { kind: 'file', text: await readConfigText(given, 'schedule file', 'Check the path given with --schedule.'), where: resolve(given) };
   return { kind: 'option', text: given, where: '--schedule' };
 }
 

@@ -3,9 +3,9 @@
  * since the discharge started. The daemon asks `loadPlanAt` what to do now and when to ask
  * again; the report turns the time the end point was reached into service output.
  */
-import { readFile } from 'node:fs/promises';
 import { Ajv } from 'ajv';
 import { parse as parseYaml } from 'yaml';
+import { readConfigText } from '../core/config-file.js';
 import { ErrorCodes, makeError } from '../core/errors.js';
 import { formatDuration, parseDuration } from './duration.js';
 import { SCHEDULE_KEYS, SCHEDULE_SCHEMA, type ScheduleSpec } from './schedule-schema.js';
@@ -194,12 +194,7 @@ export function parseScheduleYaml(text: string, where: string): Schedule {
 
 /** Reads a schedule file. */
 export async function loadSchedule(path: string): Promise<Schedule> {
-  let text: string;
-  try {
-    text = await readFile(path, 'utf8');
-  } catch (e) {
-    throw makeError(ErrorCodes.CONFIG_READ, `cannot read the schedule file: ${(e as Error).message}`, path, 'Check the path given for the schedule.');
-  }
+  const text = await readConfigText(path, 'schedule file', 'Check the path given for the schedule.');
   return parseScheduleYaml(text, path);
 }
 
