@@ -7,8 +7,13 @@
  *
  * `rig`: rest frames (load off) at 20 a second, then waits for `C,LOAD,0,1`, acknowledges it
  * and floods load-on frames. `blind` (the bare reader's run): floods at once.
+ *
+ * The pty is written and read through plain blocking file streams, not serialport: one
+ * serialport handle that both reads and writes can miss its "writable" wake-up when data
+ * arrives meanwhile, which stalls the writer until the next incoming line (seen here as
+ * 0.5 s pauses, one per host heartbeat). A rig's firmware has no such stall; the feeder must not either.
  */
-import { SerialPort } from 'serialport';
+import { createReadStream, createWriteStream } from 'node:fs';
 import { WebSocket } from 'ws';
 import { argValue, BENCH_CELL, benchChain, FrameMaker, product, sleep, type CodecModule } from './bench-kit.js';
 
@@ -33,18 +38,22 @@ async function main(): Promise<void> {
   const rest = Array.from({ length: restFrames }, () => frames.line(restV, 0, celsius, false));
   const flood = Buffer.from(Array.from({ length: floodFrames }, () => frames.line(loadedV, loadA, celsius, true)).join(''), 'latin1');
 
-  const port = new SerialPort({ path, baudRate: 115200, autoOpen: false });
-  await new Promise<void>((resolve, reject) => port.open((e) => (e ? reject(e) : resolve())));
+  const out = createWriteStream(path, { flags: 'r+' });
+  const input = createReadStream(path, { flags: 'r' });
+  await new Promise<void>((resolve, reject) => {
+    out.once('ready', () => resolve());
+    out.once('error', reject);
+  });
   const commands: string[] = [];
   let partial = '';
-  port.on('data', (chunk: Buffer) => {
-    const parts = (partial + chunk.toString('latin1')).split('\n');
+  input.on('data', (chunk: Buffer | string) => {
+    const parts = (partial + (typeof chunk === 'string' ? chunk : chunk.toString('latin1'))).split('\n');
     partial = parts.pop() ?? '';
     for (const p of parts) {
       const cmd = codec.decodeHostLine(p.replace(/\r$/, ''));
       if ('error' in cmd || cmd.command !== 'LOAD') continue;
       commands.push(`${cmd.channel},${cmd.on ? 1 : 0}`);
-      port.write(codec.frameLine(`A,LOAD,${cmd.channel},${cmd.on ? 1 : 0}`));
+      out.write(codec.frameLine(`A,LOAD,${cmd.channel},${cmd.on ? 1 : 0}`));
     }
   });
 
@@ -70,25 +79,26 @@ async function main(): Promise<void> {
 
   if (mode === 'rig') {
     for (const line of rest) {
-      port.write(line);
+      out.write(line);
       await sleep(50);
     }
     while (!commands.includes('0,1')) await sleep(5);
   }
   for (let at = 0; at < flood.length; at += 65536) {
-    if (!port.write(flood.subarray(at, at + 65536))) await new Promise((r) => port.once('drain', r));
+    if (!out.write(flood.subarray(at, at + 65536))) await new Promise<void>((r) => out.once('drain', () => r()));
   }
-  await new Promise<void>((resolve) => port.drain(() => resolve()));
+  // Every byte has left for the pty once the stream has nothing buffered.
+  if (out.writableLength > 0) await new Promise<void>((r) => out.once('drain', () => r()));
   send({ type: 'flooded', bytes: flood.length });
 
   await finish;
   // Load off after the host's stop, so the session can confirm it.
-  if (mode === 'rig') for (let k = 0; k < 3; k++) port.write(frames.line(restV, 0, celsius, false));
+  if (mode === 'rig') for (let k = 0; k < 3; k++) out.write(frames.line(restV, 0, celsius, false));
   await sleep(300);
   send({ type: 'viewer', messages, samples });
   ws?.close();
-  await new Promise<void>((resolve) => port.close(() => resolve()));
-  process.disconnect();
+  // The reading stream sits in a blocking read on the pty; leaving is the way to end it.
+  process.exit(0);
 }
 
 main().catch((e: unknown) => {

@@ -94,7 +94,7 @@ export async function loadPointsFile(path: string): Promise<PointsFile> {
 export function parsePointsFile(text: string, file: string): PointsFile {
   let data: unknown;
   try {
-    data = parseYaml(text);
+    data = parseYaml(text, { logLevel: 'error' });
   } catch (err) {
     throw makeError(
       ErrorCodes.CONFIG_INVALID,

@@ -121,7 +121,7 @@ export async function loadRigProfile(path: string): Promise<RigProfile> {
 export function parseRigProfile(text: string, where: string): RigProfile {
   let data: unknown;
   try {
-    data = parseYaml(text);
+    data = parseYaml(text, { logLevel: 'error' });
   } catch (err) {
     throw makeError(
       ErrorCodes.CONFIG_INVALID,

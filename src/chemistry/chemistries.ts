@@ -219,7 +219,7 @@ function copySourced(s: RawSourced): Sourced {
 export function parseChemistries(text: string, where: string): ChemistryProfile[] {
   let data: unknown;
   try {
-    data = parseYaml(text);
+    data = parseYaml(text, { logLevel: 'error' });
   } catch (err) {
     const line = err instanceof Error ? (err.message.split('\n')[0] ?? err.message) : String(err);
     const detail = line.replace(/:\s*$/, '');

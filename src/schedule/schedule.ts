@@ -174,7 +174,7 @@ function stepOf(
 export function parseScheduleYaml(text: string, where: string): Schedule {
   let data: unknown;
   try {
-    data = parseYaml(text);
+    data = parseYaml(text, { logLevel: 'error' });
   } catch (e) {
     throw invalid(`the schedule is not valid YAML: ${(e as Error).message.split('\n')[0] ?? ''}`, where, 'Fix the YAML syntax at the line shown.');
   }

@@ -24,6 +24,9 @@ export class Integrator {
     const prev = this.prev;
     this.prev = { i, p, on: loadOn };
     if (prev === null || dtMs <= 0) return { dAh: 0, dWh: 0 };
+    // Across a long gap only a load seen on at both ends is assumed to have stayed on; one seen
+    // off at either end may have been cut at any moment in between (the rig's watchdog).
+    if (gap && !(loadOn && prev.on)) return { dAh: 0, dWh: 0 };
     const dAh = ((prev.i + i) / 2) * (dtMs / MS_PER_HOUR);
     const dWh = ((prev.p + p) / 2) * (dtMs / MS_PER_HOUR);
     this.chargeAh += dAh;

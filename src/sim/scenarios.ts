@@ -70,7 +70,7 @@ export function loadScenarios(path: string): ScenarioSet {
   }
   let data: unknown;
   try {
-    data = parse(text);
+    data = parse(text, { logLevel: 'error' });
   } catch (e) {
     throw makeError(ErrorCodes.CONFIG_INVALID, `the scenario file is not valid YAML: ${(e as Error).message}`, path, 'Fix the YAML syntax at the line given.');
   }

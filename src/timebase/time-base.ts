@@ -65,6 +65,9 @@ export class TimeBase {
       this.rate.add(rigRestart ? tickMs : t.value, arrivalMs);
       return { hostMs, dtMs: prev === null ? 0 : hostMs - prev.hostMs, lost: 0, gap: prev !== null, rigRestart };
     }
+    // Ticks that ran on while the host stood still (suspended) would wreck the rate estimate.
+    const hostStood = (t.value - prev.tick) * (this.rate.hostPerTick() ?? 1) - (arrivalMs - prev.arrival) > this.longGapMs;
+    if (hostStood) this.rate.reset();
     this.rate.add(t.value, arrivalMs);
     const scale = this.rate.hostPerTick() ?? 1;
     let predicted = prev.hostMs + (t.value - prev.tick) * scale;
@@ -87,7 +90,7 @@ export class TimeBase {
       lost: Math.max(0, (s.step ?? 1) - 1),
       // A long silence on the host's clock, or the rig's ticks showing far more time than the
       // host saw: the monotonic clock stands still while the host is suspended.
-      gap: arrivalMs - prev.arrival > this.longGapMs || (t.value - prev.tick) * scale - (arrivalMs - prev.arrival) > this.longGapMs,
+      gap: arrivalMs - prev.arrival > this.longGapMs || hostStood,
       rigRestart: false,
     };
   }

@@ -2,6 +2,7 @@ import { mkdtempSync, readFileSync, readdirSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { PassThrough } from 'node:stream';
+import { gunzipSync } from 'node:zlib';
 import { describe, expect, it } from 'vitest';
 import { startRun } from '../../src/run/daemon.js';
 import type { RunRequest } from '../../src/run/run-request.js';
@@ -45,7 +46,10 @@ describe('a run on the simulated rig writes the run folder of the contract', () 
     expect(outcome.exitCode, io.text()).toBe(0);
     expect(run.folder).toMatch(/[/\\]\d{8}-\d{6}-layout-check$/);
     const files = readdirSync(run.folder).sort();
-    expect(files).toEqual(expect.arrayContaining(['checkpoint.json', 'events.jsonl', 'manifest.json', 'result.json', 'samples-0001.csv', 'samples-0002.csv']));
+    expect(files).toEqual(expect.arrayContaining(['checkpoint.json', 'events.jsonl', 'manifest.json', 'result.json']));
+    // Closed sample files are compressed; the last one stays plain.
+    expect(files).toContain('samples-0001.csv.gz');
+    expect(files.filter((f) => /^samples-\d{4}\.csv$/.test(f))).toHaveLength(1);
     expect(files.some((f) => f.endsWith('.tmp'))).toBe(false);
 
     const result = JSON.parse(readFileSync(join(run.folder, 'result.json'), 'utf8')) as Record<string, unknown>;
@@ -54,10 +58,12 @@ describe('a run on the simulated rig writes the run folder of the contract', () 
     expect(result['calibration_id']).toBe('none');
 
     // Every rotated file starts with the header; together they hold every accepted frame once, in order.
-    const sampleFiles = files.filter((f) => /^samples-\d{4}\.csv$/.test(f));
+    const sampleFiles = files.filter((f) => /^samples-\d{4}\.csv(\.gz)?$/.test(f));
+    expect(sampleFiles.length).toBeGreaterThan(2);
     let rows: string[] = [];
     for (const f of sampleFiles) {
-      const lines = readFileSync(join(run.folder, f), 'utf8').split('\n');
+      const bytes = readFileSync(join(run.folder, f));
+      const lines = (f.endsWith('.gz') ? gunzipSync(bytes) : bytes).toString('utf8').split('\n');
       expect(lines[0]).toBe(SAMPLE_HEADER);
       expect(lines.at(-1)).toBe('');
       rows = rows.concat(lines.slice(1, -1));

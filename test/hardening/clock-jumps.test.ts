@@ -126,7 +126,7 @@ describe('host suspend', () => {
     expect(s.integrator.bridgedAh).toBeCloseTo(s.integrator.chargeAh - before, 15);
   });
 
-  it('10 minutes asleep is flagged as one gap, the lost frames are counted and its charge is all bridged', () => {
+  it('10 minutes asleep is flagged as one gap, the lost frames are counted, and no charge is invented across it', () => {
     const SLEEP_MS = 10 * 60_000;
     const run = started();
     const steps: { dAh: number; dBridged: number; gap: boolean }[] = [];
@@ -153,11 +153,10 @@ describe('host suspend', () => {
     expect(back.lost).toBe(SLEEP_MS / FRAME_MS);
     expect(steps.filter((x) => x.gap)).toHaveLength(1);
     expect(p.counters.lost).toBe(SLEEP_MS / FRAME_MS);
-    // Whatever the trapezoid carried across the gap is reported as bridged, not as measured charge.
+    // The load was seen off after the gap: it may have been cut at any moment in it, so nothing
+    // is integrated across it (a trapezoid would credit half of ten minutes of current).
     const gapStep = steps[100]!;
-    expect(gapStep.dAh).toBeGreaterThan(0);
-    expect(gapStep.dBridged).toBe(gapStep.dAh);
-    expect(s.integrator.bridgedAh).toBe(gapStep.dAh);
-    expect(steps.filter((x, i) => i !== 100 && x.dBridged !== 0)).toEqual([]);
+    expect(gapStep.dAh).toBe(0);
+    expect(s.integrator.bridgedAh).toBe(0);
   });
 });
