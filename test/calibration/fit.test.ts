@@ -21,7 +21,7 @@ function refusal(fn: () => unknown): CellvigilError {
 }
 
 describe('fitLine against NIST StRD "Norris"', () => {
-  const csv = readFileSync(new URL('../../../shared/data/nist-strd-norris.csv', import.meta.url), 'utf8');
+  const csv = readFileSync(new URL('../fixtures/nist-strd-norris.csv', import.meta.url), 'utf8');
   const rows = csv
     .split('\n')
     .filter((l) => l.trim() !== '' && !l.startsWith('#') && !l.startsWith('y,'))
