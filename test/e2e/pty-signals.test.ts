@@ -37,7 +37,9 @@ describe('end to end over a pseudo-terminal: SIGINT twice', () => {
   it('exits 0 with the result written as stopped', () => {
     expect(exitCode, output).toBe(0);
     expect(result.end_reason).toBe('stopped');
-    expect(output).toMatch(/SIGINT again|SIGINT: the run has ended/);
+    // Whether the second signal lands during the stop or after it depends on timing; the
+    // in-process test in test/daemon/signals.test.ts pins the first case down.
+    expect(output).toMatch(/SIGINT: switching the load off/);
   });
 
   it('the host switched the load off and the rig confirmed it', () => {
