@@ -59,11 +59,20 @@ describe('files edited while a run goes on', () => {
     writeFileSync(path, '{"format": 1, "rig": "half-writ');
     const rejected = await waitForEvent(run.folder, 'calibration_rejected');
     expect(rejected).toMatchObject({ kept_id: second.id });
+    // Truncated to nothing, as an editor's crash could leave it: rejected as well.
+    writeFileSync(path, '');
+    await new Promise((r) => setTimeout(r, 1500));
     run.stop('test');
     const outcome = await run.done;
     expect(outcome.result.calibration_id).toBe(second.id);
     const rows = readFileSync(join(run.folder, 'samples-0001.csv'), 'utf8').trim().split('\n').slice(1);
     const ids = rows.map((r) => r.split(',').at(-1));
+    // No sample lost or counted twice across the reloads.
+    expect(rows.length).toBe(outcome.result.frames_accepted);
+    const seqs = rows.map((r) => Number(r.split(',')[3]));
+    for (let i = 1; i < seqs.length; i++) expect(seqs[i]!).toBeGreaterThan(seqs[i - 1]!);
+    const events = readFileSync(join(run.folder, 'events.jsonl'), 'utf8').trim().split('\n').map((l) => JSON.parse(l) as { event: string });
+    expect(events.filter((e) => e.event === 'calibration_rejected').length).toBeGreaterThanOrEqual(2);
     // Rows carry the id in force when they were made: the first, then the second, never a broken one.
     expect(new Set(ids)).toEqual(new Set([first.id, second.id]));
     expect(ids.indexOf(second.id)).toBeGreaterThan(ids.lastIndexOf(first.id));
