@@ -85,10 +85,11 @@ async function main(): Promise<void> {
     while (!commands.includes('0,1')) await sleep(5);
   }
   for (let at = 0; at < flood.length; at += 65536) {
-    if (!out.write(flood.subarray(at, at + 65536))) await new Promise<void>((r) => out.once('drain', () => r()));
+    const chunk = flood.subarray(at, at + 65536);
+    // The last chunk's callback comes once every byte has gone into the pty.
+    if (at + 65536 >= flood.length) await new Promise<void>((resolve, reject) => out.write(chunk, (e) => (e ? reject(e) : resolve())));
+    else if (!out.write(chunk)) await new Promise<void>((r) => out.once('drain', () => r()));
   }
-  // Every byte has left for the pty once the stream has nothing buffered.
-  if (out.writableLength > 0) await new Promise<void>((r) => out.once('drain', () => r()));
   send({ type: 'flooded', bytes: flood.length });
 
   await finish;

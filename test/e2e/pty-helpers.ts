@@ -7,6 +7,7 @@ import { spawn, type ChildProcess } from 'node:child_process';
 import { existsSync, mkdtempSync, readFileSync, readdirSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
+import { gunzipSync } from 'node:zlib';
 import { fileURLToPath } from 'node:url';
 
 export const CLI = fileURLToPath(new URL('../../dist/cli/main.js', import.meta.url));
@@ -113,4 +114,14 @@ export function onlyRunFolder(runs: string): string {
 
 export function readJson<T>(path: string): T {
   return JSON.parse(readFileSync(path, 'utf8')) as T;
+}
+
+/** Every row of a run's sample files, plain or compressed, in file order. */
+export function sampleRows(folder: string): string[] {
+  const files = readdirSync(folder).filter((f) => /^samples-\d{4}\.csv(\.gz)?$/.test(f)).sort();
+  return files.flatMap((f) => {
+    const bytes = readFileSync(join(folder, f));
+    const lines = (f.endsWith('.gz') ? gunzipSync(bytes) : bytes).toString('utf8').split('\n').slice(1);
+    return lines.filter((l) => l !== '');
+  });
 }

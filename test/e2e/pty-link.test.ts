@@ -1,7 +1,7 @@
-import { readFileSync, readdirSync } from 'node:fs';
+import { readFileSync } from 'node:fs';
 import { join } from 'node:path';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
-import { onlyRunFolder, readJson, startDaemon, startPtyRig, type PtyRig } from './pty-helpers.js';
+import { onlyRunFolder, readJson, sampleRows, startDaemon, startPtyRig, type PtyRig } from './pty-helpers.js';
 
 async function until(cond: () => boolean, ms: number, what: string): Promise<void> {
   const end = Date.now() + ms;
@@ -54,10 +54,7 @@ describe('end to end over a pseudo-terminal: the link goes away and comes back',
   });
 
   it('no sample is duplicated or reordered across the reconnect', () => {
-    const rows = readdirSync(folder)
-      .filter((f) => /^samples-\d{4}\.csv$/.test(f))
-      .sort()
-      .flatMap((f) => readFileSync(join(folder, f), 'utf8').split('\n').slice(1).filter((l) => l !== ''));
+    const rows = sampleRows(folder);
     const seqs = rows.map((r) => Number(r.split(',')[3]));
     for (let i = 1; i < seqs.length; i++) expect(seqs[i]!).toBeGreaterThan(seqs[i - 1]!);
   });

@@ -1,16 +1,8 @@
-import { readFileSync, readdirSync, writeFileSync } from 'node:fs';
+import { readFileSync, writeFileSync } from 'node:fs';
 import { join } from 'node:path';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { simulatedBoardCalibration } from './front-end-calibration.js';
-import { onlyRunFolder, readJson, startDaemon, startPtyRig, type PtyRig } from './pty-helpers.js';
-
-function sampleRows(folder: string): string[] {
-  const files = readdirSync(folder).filter((f) => /^samples-\d{4}\.csv$/.test(f)).sort();
-  return files.flatMap((f) => {
-    const lines = readFileSync(join(folder, f), 'utf8').split('\n').slice(1);
-    return lines.filter((l) => l !== '');
-  });
-}
+import { onlyRunFolder, readJson, sampleRows, startDaemon, startPtyRig, type PtyRig } from './pty-helpers.js';
 
 // The daemon dies with SIGKILL mid-discharge; the rig's watchdog cuts the load; the daemon is
 // started again on the same port and finishes the run.
