@@ -86,6 +86,9 @@ const STATUS_EVERY_MS = 250;
 export async function startRun(req: RunRequest, io: RunIo): Promise<RunHandle> {
   const resumeDir = req.resume ?? (req.port !== undefined && !req.fresh ? await findUnfinishedRun(req.runs, req.port, Date.now()) : null);
   const resume = resumeDir !== null ? await findResumePoint(resumeDir) : null;
+  // `run --resume <folder>` alone goes back to the port the run was on.
+  const src = resume?.run.manifest.source;
+  if (src?.kind === 'serial' && req.port === undefined && req.sim === undefined) req = { ...req, port: src.description };
   const cfg = await resolveRunConfig(req, resume?.run.manifest ?? null);
   const { profile, chain, chemistry, cells, cutoff, scenario } = cfg;
   const startedWall = resume ? Date.parse(resume.run.manifest.started_wall) : Date.now();
