@@ -8,12 +8,12 @@
  * `rig`: rest frames (load off) at 20 a second, then waits for `C,LOAD,0,1`, acknowledges it
  * and floods load-on frames. `blind` (the bare reader's run): floods at once.
  *
- * The pty is written and read through plain blocking file streams, not serialport: one
- * serialport handle that both reads and writes can miss its "writable" wake-up when data
- * arrives meanwhile, which stalls the writer until the next incoming line (seen here as
- * 0.5 s pauses, one per host heartbeat). A rig's firmware has no such stall; the feeder must not either.
+ * The pty is written and read through two serialport handles: one handle that both reads and
+ * writes can miss its "writable" wake-up when data arrives meanwhile, which stalls the writer
+ * until the next incoming line (seen here as 0.5 s pauses, one per host heartbeat). A rig's
+ * firmware has no such stall; the feeder must not either.
  */
-import { createReadStream, createWriteStream } from 'node:fs';
+import { SerialPort } from 'serialport';
 import { WebSocket } from 'ws';
 import { argValue, BENCH_CELL, benchChain, FrameMaker, product, sleep, type CodecModule } from './bench-kit.js';
 
@@ -38,16 +38,17 @@ async function main(): Promise<void> {
   const rest = Array.from({ length: restFrames }, () => frames.line(restV, 0, celsius, false));
   const flood = Buffer.from(Array.from({ length: floodFrames }, () => frames.line(loadedV, loadA, celsius, true)).join(''), 'latin1');
 
-  const out = createWriteStream(path, { flags: 'r+' });
-  const input = createReadStream(path, { flags: 'r' });
-  await new Promise<void>((resolve, reject) => {
-    out.once('ready', () => resolve());
-    out.once('error', reject);
-  });
+  const open = (): Promise<SerialPort> =>
+    new Promise((resolve, reject) => {
+      const p = new SerialPort({ path, baudRate: 115200, autoOpen: false, lock: false });
+      p.open((e) => (e ? reject(e) : resolve(p)));
+    });
+  const out = await open();
+  const input = await open();
   const commands: string[] = [];
   let partial = '';
-  input.on('data', (chunk: Buffer | string) => {
-    const parts = (partial + (typeof chunk === 'string' ? chunk : chunk.toString('latin1'))).split('\n');
+  input.on('data', (chunk: Buffer) => {
+    const parts = (partial + chunk.toString('latin1')).split('\n');
     partial = parts.pop() ?? '';
     for (const p of parts) {
       const cmd = codec.decodeHostLine(p.replace(/\r$/, ''));
@@ -85,11 +86,9 @@ async function main(): Promise<void> {
     while (!commands.includes('0,1')) await sleep(5);
   }
   for (let at = 0; at < flood.length; at += 65536) {
-    const chunk = flood.subarray(at, at + 65536);
-    // The last chunk's callback comes once every byte has gone into the pty.
-    if (at + 65536 >= flood.length) await new Promise<void>((resolve, reject) => out.write(chunk, (e) => (e ? reject(e) : resolve())));
-    else if (!out.write(chunk)) await new Promise<void>((r) => out.once('drain', () => r()));
+    if (!out.write(flood.subarray(at, at + 65536))) await new Promise<void>((r) => out.once('drain', () => r()));
   }
+  await new Promise<void>((resolve) => out.drain(() => resolve()));
   send({ type: 'flooded', bytes: flood.length });
 
   await finish;
@@ -98,8 +97,8 @@ async function main(): Promise<void> {
   await sleep(300);
   send({ type: 'viewer', messages, samples });
   ws?.close();
-  // The reading stream sits in a blocking read on the pty; leaving is the way to end it.
-  process.exit(0);
+  await Promise.all([out, input].map((p) => new Promise<void>((resolve) => p.close(() => resolve()))));
+  process.disconnect();
 }
 
 main().catch((e: unknown) => {

@@ -8,7 +8,7 @@ import { applyCalibration, type Calibration, type Corrector } from '../calibrati
 import { AnalogChain } from '../chain/analog-chain.js';
 import { PACKAGE_VERSION } from '../core/paths.js';
 import { FLAG_LOAD_ON } from '../protocol/messages.js';
-import { readRunEvents, readRunSamples, type RunFolder } from '../replay/run-folder.js';
+import { readRunEvents, readRunSampleBatches, type RunFolder } from '../replay/run-folder.js';
 import type { Checkpoint } from '../replay/run-json.js';
 import type { RunManifest } from '../replay/run-manifest.js';
 import type { SampleRecord } from '../replay/sample-csv.js';
@@ -109,6 +109,21 @@ class DiffNoise {
   }
 }
 
+/** Distinct raw counts (0 to 2^24 − 1, as sample rows allow): a bit each, cheaper than a hash set per row. */
+class DistinctCodes {
+  private readonly bits = new Uint32Array(2 ** 24 / 32);
+  size = 0;
+
+  add(code: number): void {
+    const word = code >>> 5;
+    const mask = 1 << (code & 31);
+    const have = this.bits[word]!;
+    if ((have & mask) !== 0) return;
+    this.bits[word] = have | mask;
+    this.size++;
+  }
+}
+
 export class RunRecompute {
   private readonly chain: AnalogChain;
   private readonly corrector: Corrector;
@@ -122,8 +137,8 @@ export class RunRecompute {
   private readonly seqs = new Unwrapper(65536);
   private readonly noiseI = new DiffNoise();
   private readonly noiseV = new DiffNoise();
-  private readonly codesI = new Set<number>();
-  private readonly codesV = new Set<number>();
+  private readonly codesI = new DistinctCodes();
+  private readonly codesV = new DistinctCodes();
   private readonly liveIds = new Set<string>();
   private readonly stepPerCellV: number;
   private rows = 0;
@@ -240,7 +255,16 @@ export class RunRecompute {
     }
     this.resistance.add({ hostS: s.hostS, volts, amps, loadOn });
     this.curve.add({ hostS: s.hostS, chargeAh: this.integrator.chargeAh, energyWh: this.integrator.energyWh, volts, amps, celsius, loadOn });
-    this.prev = { hostMs, loadOn, vRaw: s.vRaw, iRaw: s.iRaw, volts, amps };
+    // One object for the whole run, updated in place: a new one per row is garbage per row.
+    if (prev === null) this.prev = { hostMs, loadOn, vRaw: s.vRaw, iRaw: s.iRaw, volts, amps };
+    else {
+      prev.hostMs = hostMs;
+      prev.loadOn = loadOn;
+      prev.vRaw = s.vRaw;
+      prev.iRaw = s.iRaw;
+      prev.volts = volts;
+      prev.amps = amps;
+    }
     this.firstHostS ??= s.hostS;
     this.lastHostS = s.hostS;
   }
@@ -465,7 +489,7 @@ export async function recomputeRun(run: RunFolder, o: RecomputeOptions = {}): Pr
         o.onProgress!(done, total);
       }
     : undefined;
-  for await (const s of readRunSamples(run, { onCutLine, ...(onBytes ? { onBytes } : {}) })) core.sample(s);
+  for await (const batch of readRunSampleBatches(run, { onCutLine, ...(onBytes ? { onBytes } : {}) })) for (const s of batch) core.sample(s);
   const calibrationFile = o.calibration === undefined ? run.manifest.calibration.file : (o.calibrationFile ?? null);
   return core.finish({ folder: run.dir, original: run.result, checkpoint: run.checkpoint, calibrationFile, cutLines, notes });
 }

@@ -48,11 +48,28 @@ function num(x: number, digits: number): string {
   return Number.isFinite(x) ? fixedDecimal(x, digits) : '';
 }
 
-/** One RFC 4180 row. No field can hold a comma, quote or newline, so none needs quoting. */
+/**
+ * One RFC 4180 row. No field can hold a comma, quote or newline, so none needs quoting. Joined
+ * from an array, which makes one flat string: a template literal makes a rope of some thirty
+ * pieces that the log writer would have to flatten later, after the collector had copied it.
+ */
 export function formatSampleRow(r: SampleRow): string {
-  const flags = FLAG_TEXT[r.flags] ?? r.flags.toString(16).toUpperCase().padStart(2, '0');
-  return (
-    `${fixedDecimal(r.hostS, 3)},${isoTime(r.wallMs)},${r.channel},${r.seq},${r.tickMs},${r.vRaw},${r.iRaw},${r.tRaw},${flags},` +
-    `${num(r.volts, 5)},${num(r.amps, 5)},${num(r.celsius, 2)},${fixedDecimal(r.chargeAh, 7)},${fixedDecimal(r.energyWh, 7)},${r.state},${r.calibrationId}`
-  );
+  return [
+    fixedDecimal(r.hostS, 3),
+    isoTime(r.wallMs),
+    r.channel,
+    r.seq,
+    r.tickMs,
+    r.vRaw,
+    r.iRaw,
+    r.tRaw,
+    FLAG_TEXT[r.flags] ?? r.flags.toString(16).toUpperCase().padStart(2, '0'),
+    num(r.volts, 5),
+    num(r.amps, 5),
+    num(r.celsius, 2),
+    fixedDecimal(r.chargeAh, 7),
+    fixedDecimal(r.energyWh, 7),
+    r.state,
+    r.calibrationId,
+  ].join(',');
 }

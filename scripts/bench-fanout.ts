@@ -1,0 +1,174 @@
+/**
+ * Figure 3, live fan-out: 100 WebSocket viewers on the live server, samples at 50 a second.
+ * Latency from the hub's sample() call to each viewer's receipt, p50 and p99, against a bare
+ * ws server broadcasting the same JSON to 100 clients. Target: p99 at most 5 ms on this
+ * machine's loopback.
+ *
+ * The viewers run in a second process (as real viewers do), so that their own work does not
+ * queue behind the server's on one thread. Both processes read the same monotonic clock
+ * (process.hrtime): each sample's host_s is the time of its sample() call, and a viewer takes
+ * its receipt time the moment the message arrives.
+ */
+import { fork } from 'node:child_process';
+import { performance } from 'node:perf_hooks';
+import { fileURLToPath } from 'node:url';
+import { WebSocket, WebSocketServer } from 'ws';
+import { argValue, fmt, percentile, product, reportFigure, sleep, waitFor, type LiveHubModule, type LiveServerModule } from './bench-kit.js';
+
+const VIEWERS = 100;
+const RATE_HZ = 50;
+const SECONDS = Number(argValue('seconds') ?? 8);
+const WARMUP_S = 1;
+const TARGET_P99_MS = 5;
+
+type LiveHub = InstanceType<LiveHubModule['LiveHub']>;
+
+interface Latencies {
+  p50: number;
+  p99: number;
+  max: number;
+  n: number;
+  missing: number;
+}
+
+/** Seconds on the monotonic clock that every process on the machine shares. */
+const clockS = (): number => Number(process.hrtime.bigint()) / 1e9;
+
+type ChildMessage = { type: 'open' } | { type: 'latencies'; ms: number[] };
+
+/** The viewers' process: connects, notes each sample's delay, and hands the delays over when told. */
+async function viewersChild(url: string): Promise<void> {
+  const delays: number[] = [];
+  let counting = false;
+  const sockets = Array.from({ length: VIEWERS }, () => new WebSocket(url, { perMessageDeflate: false }));
+  for (const ws of sockets) {
+    ws.on('message', (data: Buffer) => {
+      const now = clockS();
+      if (!counting) return;
+      const text = data.toString();
+      if (!text.startsWith('{"type":"sample"')) return;
+      const at = text.indexOf('"host_s":');
+      delays.push((now - parseFloat(text.slice(at + 9))) * 1000);
+    });
+  }
+  await Promise.all(sockets.map((ws) => new Promise<void>((resolve, reject) => (ws.once('open', () => resolve()), ws.once('error', reject)))));
+  process.on('message', (m: { type: string }) => {
+    if (m.type === 'count') counting = true;
+    if (m.type === 'report') {
+      sockets.forEach((ws) => ws.terminate());
+      process.send!({ type: 'latencies', ms: delays } satisfies ChildMessage, () => process.disconnect());
+    }
+  });
+  process.send!({ type: 'open' } satisfies ChildMessage);
+}
+
+/** Starts the viewers' process on `url`; resolves once every viewer is connected. */
+async function startViewers(url: string): Promise<{ count(): void; report(): Promise<number[]> }> {
+  const child = fork(fileURLToPath(import.meta.url), ['--viewers-of', url], { stdio: ['ignore', 'inherit', 'inherit', 'ipc'] });
+  const next = (): Promise<ChildMessage> =>
+    new Promise((resolve, reject) => {
+      child.once('message', (m: ChildMessage) => resolve(m));
+      child.once('exit', (code) => reject(new Error(`the viewers' process exited (${code})`)));
+    });
+  await next();
+  return {
+    count: () => child.send({ type: 'count' }),
+    report: async () => {
+      const answer = next();
+      child.send({ type: 'report' });
+      const m = await answer;
+      return m.type === 'latencies' ? m.ms : [];
+    },
+  };
+}
+
+/** Feeds `emit` at RATE_HZ for SECONDS; samples of the first second are not counted. */
+async function drive(emit: (hostS: number) => void, viewers: Awaited<ReturnType<typeof startViewers>>): Promise<Latencies> {
+  const period = 1000 / RATE_HZ;
+  const total = SECONDS * RATE_HZ;
+  const start = performance.now();
+  for (let k = 0; k < total; k++) {
+    // Paced on the clock, not on the timer: a late tick does not shift the later ones.
+    const wait = start + k * period - performance.now();
+    if (wait > 0) await sleep(wait);
+    if (k === WARMUP_S * RATE_HZ) viewers.count();
+    emit(clockS());
+  }
+  await sleep(300);
+  const sorted = (await viewers.report()).sort((a, b) => a - b);
+  const expected = (total - WARMUP_S * RATE_HZ) * VIEWERS;
+  return { p50: percentile(sorted, 50), p99: percentile(sorted, 99), max: sorted.at(-1) ?? Number.NaN, n: sorted.length, missing: expected - sorted.length };
+}
+
+function sampleOf(hostS: number): Parameters<LiveHub['sample']>[0] {
+  return { host_s: hostS, voltage_V: 3.9123, current_A: 1.0012, temperature_C: 24.6, charge_Ah: 0.41234, energy_Wh: 1.6123, state: 'discharging', load_on: true };
+}
+
+async function liveServer(): Promise<Latencies> {
+  const { LiveHub } = await product<LiveHubModule>('live/live-hub.js');
+  const { startLiveServer } = await product<LiveServerModule>('live/live-server.js');
+  const hub = new LiveHub();
+  hub.setRun({
+    label: 'bench-fanout',
+    run_folder: 'runs/bench-fanout',
+    chemistry: 'li-ion',
+    cells: 1,
+    cutoff_V: 3,
+    floor_V: 2.5,
+    calibration_id: 'none',
+    started_wall: new Date().toISOString(),
+    source: 'benchmark',
+    max_temperature_C: 60,
+  });
+  const live = await startLiveServer({ hub, listen: '127.0.0.1:0', tokenStore: { control: 'c'.repeat(64), viewer: null }, maxViewers: VIEWERS + 10 });
+  const viewers = await startViewers(`ws://127.0.0.1:${live.port}/live`);
+  await waitFor(() => live.viewers().length === VIEWERS, 5000, 'every viewer to be attached');
+  const result = await drive((hostS) => hub.sample(sampleOf(hostS)), viewers);
+  await live.close();
+  return result;
+}
+
+/** The same JSON, from the hub's own broadcast, sent to every client by a bare ws server. */
+async function bareServer(): Promise<Latencies> {
+  const { LiveHub } = await product<LiveHubModule>('live/live-hub.js');
+  const hub = new LiveHub();
+  const wss = new WebSocketServer({ host: '127.0.0.1', port: 0, perMessageDeflate: false });
+  await new Promise<void>((resolve) => wss.once('listening', () => resolve()));
+  hub.subscribe((m) => {
+    const data = JSON.stringify(m);
+    for (const c of wss.clients) c.send(data);
+  });
+  const address = wss.address();
+  const port = typeof address === 'object' && address !== null ? address.port : 0;
+  const viewers = await startViewers(`ws://127.0.0.1:${port}/`);
+  await waitFor(() => wss.clients.size === VIEWERS, 5000, 'every client to be attached');
+  const result = await drive((hostS) => hub.sample(sampleOf(hostS)), viewers);
+  for (const c of wss.clients) c.terminate();
+  await new Promise<void>((resolve) => wss.close(() => resolve()));
+  return result;
+}
+
+async function main(): Promise<void> {
+  const base = await bareServer();
+  const live = await liveServer();
+  const ratio = live.p99 / base.p99;
+  reportFigure({
+    figure: 'fanout',
+    title: `Live fan-out: ${VIEWERS} viewers at ${RATE_HZ} samples/s, hub.sample() to receipt`,
+    measured: live.p99,
+    baseline: base.p99,
+    unit: 'ms (p99)',
+    ratio,
+    measuredText: `p50 ${fmt(live.p50)} ms, p99 ${fmt(live.p99)} ms`,
+    baselineText: `p50 ${fmt(base.p50)} ms, p99 ${fmt(base.p99)} ms`,
+    target: `p99 ≤ ${TARGET_P99_MS} ms`,
+    pass: live.p99 <= TARGET_P99_MS && live.missing === 0,
+    details: { viewers: VIEWERS, viewers_process: 'separate, same monotonic clock', rate_hz: RATE_HZ, seconds: SECONDS, warmup_s: WARMUP_S, live, bare: base },
+  });
+}
+
+const viewersOf = argValue('viewers-of');
+(viewersOf ? viewersChild(viewersOf) : main()).catch((e: unknown) => {
+  console.error(`bench-fanout: ${(e as Error).stack ?? String(e)}`);
+  process.exit(1);
+});
