@@ -81,7 +81,6 @@ export const runCommand: CommandModule<object, RunArgs> = {
     };
     const run = await startRun(req, { out: process.stdout, err: process.stderr, signals: true });
     const outcome = await run.done;
-    process.exitCode = outcome.exitCode;
     if (run.liveUrl !== null) {
       if (args.once) {
         // A moment for viewers to receive the result before the feed goes away.
@@ -95,5 +94,8 @@ export const runCommand: CommandModule<object, RunArgs> = {
       }
       await run.closeLive();
     }
+    // Exit now: everything is written, and a late Ctrl-C during the process's own teardown
+    // would otherwise turn a clean end into death by signal.
+    process.exit(outcome.exitCode);
   },
 };
