@@ -13,7 +13,7 @@ import { fork } from 'node:child_process';
 import { performance } from 'node:perf_hooks';
 import { fileURLToPath } from 'node:url';
 import { WebSocket, WebSocketServer } from 'ws';
-import { argValue, fmt, percentile, product, reportFigure, sleep, waitFor, type LiveHubModule, type LiveServerModule } from './bench-kit.js';
+import { argValue, benchRunInfo, fmt, percentile, product, reportFigure, sleep, waitFor, type LiveHubModule, type LiveServerModule } from './bench-kit.js';
 
 const VIEWERS = 100;
 const RATE_HZ = 50;
@@ -108,18 +108,7 @@ async function liveServer(): Promise<Latencies> {
   const { LiveHub } = await product<LiveHubModule>('live/live-hub.js');
   const { startLiveServer } = await product<LiveServerModule>('live/live-server.js');
   const hub = new LiveHub();
-  hub.setRun({
-    label: 'bench-fanout',
-    run_folder: 'runs/bench-fanout',
-    chemistry: 'li-ion',
-    cells: 1,
-    cutoff_V: 3,
-    floor_V: 2.5,
-    calibration_id: 'none',
-    started_wall: new Date().toISOString(),
-    source: 'benchmark',
-    max_temperature_C: 60,
-  });
+  hub.setRun(benchRunInfo('bench-fanout'));
   const live = await startLiveServer({ hub, listen: '127.0.0.1:0', tokenStore: { control: 'c'.repeat(64), viewer: null }, maxViewers: VIEWERS + 10 });
   const viewers = await startViewers(`ws://127.0.0.1:${live.port}/live`);
   await waitFor(() => live.viewers().length === VIEWERS, 5000, 'every viewer to be attached');

@@ -24,6 +24,7 @@ import {
   waitFor,
   type DaemonModule,
   type LiveHubModule,
+  type LiveLinkModule,
   type LiveServerModule,
   type PtyPair,
 } from './bench-kit.js';
@@ -97,6 +98,7 @@ async function daemonRun(pty: PtyPair, work: string, calibrationPath: string): P
   const { startRun } = await product<DaemonModule>('run/daemon.js');
   const { LiveHub } = await product<LiveHubModule>('live/live-hub.js');
   const { startLiveServer } = await product<LiveServerModule>('live/live-server.js');
+  const { toLiveSample } = await product<LiveLinkModule>('run/live-link.js');
   const runs = mkdtempSync(join(work, 'runs-'));
   // The daemon does not serve the live feed itself yet: the hub and server are wired to it
   // here through its observer interface, as the daemon will do.
@@ -138,16 +140,7 @@ async function daemonRun(pty: PtyPair, work: string, calibrationPath: string): P
   let t1 = 0;
   handle.addObserver({
     sample: (row, loadOn) => {
-      hub.sample({
-        host_s: row.hostS,
-        voltage_V: row.volts,
-        current_A: row.amps,
-        temperature_C: row.celsius,
-        charge_Ah: row.chargeAh,
-        energy_Wh: row.energyWh,
-        state: row.state,
-        load_on: loadOn,
-      });
+      hub.sample(toLiveSample(row, loadOn));
       if ((row.flags & 1) === 0) return;
       n++;
       if (n === 1) t0 = performance.now();

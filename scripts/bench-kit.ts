@@ -23,6 +23,7 @@ export type SampleRowModule = typeof import('../src/sinks/sample-row.js');
 export type AtomicJsonModule = typeof import('../src/sinks/atomic-json.js');
 export type LiveHubModule = typeof import('../src/live/live-hub.js');
 export type LiveServerModule = typeof import('../src/live/live-server.js');
+export type LiveLinkModule = typeof import('../src/run/live-link.js');
 export type RunFolderModule = typeof import('../src/replay/run-folder.js');
 export type RecomputeModule = typeof import('../src/report/recompute.js');
 export type ChemistriesModule = typeof import('../src/chemistry/chemistries.js');
@@ -357,4 +358,20 @@ export class CoreRun {
     await this.flushing;
     await Promise.all([this.samples.close(), this.events.close()]);
   }
+}
+
+/** The run a live-feed benchmark pretends to serve: one Li-ion cell at the default limits. */
+export function benchRunInfo(label: string): Parameters<InstanceType<LiveHubModule['LiveHub']>['setRun']>[0] {
+  return {
+    label,
+    run_folder: `runs/${label}`,
+    chemistry: 'li-ion',
+    cells: 1,
+    cutoff_V: 3,
+    floor_V: 2.5,
+    calibration_id: 'none',
+    started_wall: new Date().toISOString(),
+    source: 'benchmark',
+    max_temperature_C: 60,
+  };
 }

@@ -24,6 +24,7 @@ import {
   reportFigure,
   type CodecModule,
   type LiveHubModule,
+  type LiveLinkModule,
 } from './bench-kit.js';
 
 const FRAMES = Number(argValue('frames') ?? 1_700_000);
@@ -44,6 +45,7 @@ async function main(): Promise<void> {
   try {
     const codec = await product<CodecModule>('protocol/codec.js');
     const { LiveHub } = await product<LiveHubModule>('live/live-hub.js');
+    const { toLiveSample } = await product<LiveLinkModule>('run/live-link.js');
     const calibration = await benchCalibration(join(work, 'bench-rig.cal.json'));
     const folder = join(work, 'run');
     mkdirSync(folder);
@@ -73,17 +75,7 @@ async function main(): Promise<void> {
       const line = on ? frames.line(4.05 - 0.7 * f - 0.15 * f ** 8, loadA, celsius + 1.5 * f, true) : frames.line(restV, 0, celsius, false);
       const row = run.line(line.slice(0, -1), at);
       if (row) lastState = row.state;
-      if (row)
-        hub.sample({
-          host_s: row.hostS,
-          voltage_V: row.volts,
-          current_A: row.amps,
-          temperature_C: row.celsius,
-          charge_Ah: row.chargeAh,
-          energy_Wh: row.energyWh,
-          state: row.state,
-          load_on: on,
-        });
+      if (row) hub.sample(toLiveSample(row, on));
       if (i % 2 === 1) run.tick(at);
       if ((i + 1) % CHUNK === 0) {
         // Waits for the previous write first, so what waits for the disk stays bounded.

@@ -9,7 +9,7 @@ import type { Socket } from 'node:net';
 import { fileURLToPath } from 'node:url';
 import { promisify } from 'node:util';
 import { WebSocket } from 'ws';
-import { argValue, collect, fmt, memory, nextTick, product, reportFigure, waitFor, type LiveHubModule, type LiveServerModule } from './bench-kit.js';
+import { argValue, benchRunInfo, collect, fmt, memory, nextTick, product, reportFigure, waitFor, type LiveHubModule, type LiveServerModule } from './bench-kit.js';
 
 const SAMPLES = 100_000;
 const WARMUP = 5_000;
@@ -37,18 +37,7 @@ async function runCase(stalled: boolean): Promise<CaseResult> {
   const { LiveHub } = await product<LiveHubModule>('live/live-hub.js');
   const { startLiveServer } = await product<LiveServerModule>('live/live-server.js');
   const hub = new LiveHub();
-  hub.setRun({
-    label: 'bench-stalled',
-    run_folder: 'runs/bench-stalled',
-    chemistry: 'li-ion',
-    cells: 1,
-    cutoff_V: 3,
-    floor_V: 2.5,
-    calibration_id: 'none',
-    started_wall: new Date().toISOString(),
-    source: 'benchmark',
-    max_temperature_C: 60,
-  });
+  hub.setRun(benchRunInfo('bench-stalled'));
   const live = await startLiveServer({ hub, listen: '127.0.0.1:0', tokenStore: { control: 'c'.repeat(64), viewer: null } });
   const url = `ws://127.0.0.1:${live.port}/live`;
   let readerSamples = 0;

@@ -130,14 +130,7 @@ export function fitLine(points: readonly FitPoint[], options: FitOptions = {}): 
   }
 
   const dof = n - 2;
-  let ss = 0;
-  let chi2 = 0;
-  for (let i = 0; i < n; i++) {
-    const r = residuals[i]!;
-    ss += r * r;
-    chi2 += w[i]! * r * r;
-  }
-  const scale = weighted ? Math.max(1, chi2 / dof) : chi2 / dof;
+  const { ss, chi2, scale } = scatter(residuals, w, dof, weighted);
   const leverage = points.map((p, i) => w[i]! * (1 / sw + (p.x - xm) ** 2 / sxx));
   const standardized = studentize(residuals, w, leverage, chi2, dof, weighted);
   return {
@@ -153,6 +146,22 @@ export function fitLine(points: readonly FitPoint[], options: FitOptions = {}): 
     standardized,
     outliers: flag(standardized, options.outlierThreshold ?? 3),
   };
+}
+
+/**
+ * Sums of squared residuals, plain and weighted, and the factor the parameter variances take:
+ * χ²/dof, never below 1 when stated uncertainties weight the points (too small a scatter does
+ * not shrink them).
+ */
+function scatter(residuals: readonly number[], w: readonly number[], dof: number, weighted: boolean): { ss: number; chi2: number; scale: number } {
+  let ss = 0;
+  let chi2 = 0;
+  for (let i = 0; i < residuals.length; i++) {
+    const r = residuals[i]!;
+    ss += r * r;
+    chi2 += w[i]! * r * r;
+  }
+  return { ss, chi2, scale: weighted ? Math.max(1, chi2 / dof) : chi2 / dof };
 }
 
 /**
@@ -189,14 +198,7 @@ export function fitOffset(points: readonly FitPoint[], options: FitOptions = {})
     return { ...base, u_offset: points[0]!.u ?? 0, residual_sd: 0, dof: 0, standardized: [Number.NaN], outliers: [] };
   }
   const dof = n - 1;
-  let ss = 0;
-  let chi2 = 0;
-  for (let i = 0; i < n; i++) {
-    const r = residuals[i]!;
-    ss += r * r;
-    chi2 += w[i]! * r * r;
-  }
-  const scale = weighted ? Math.max(1, chi2 / dof) : chi2 / dof;
+  const { ss, chi2, scale } = scatter(residuals, w, dof, weighted);
   const standardized = studentize(residuals, w, w.map((wi) => wi / sw), chi2, dof, weighted);
   return {
     ...base,

@@ -4,8 +4,7 @@
  * taken without prompts. Format in docs/calibration.md.
  */
 import { Ajv, type ErrorObject, type SchemaObject } from 'ajv';
-import { parse as parseYaml } from 'yaml';
-import { readConfigText } from '../core/config-file.js';
+import { parseConfigYaml, readConfigText } from '../core/config-file.js';
 import { ErrorCodes, makeError } from '../core/errors.js';
 import type { Quantity } from './calibration.js';
 import { parseAccuracy } from './reference-accuracy.js';
@@ -92,17 +91,7 @@ export async function loadPointsFile(path: string): Promise<PointsFile> {
 
 /** Parses and checks a points file; every problem names the point and the key. */
 export function parsePointsFile(text: string, file: string): PointsFile {
-  let data: unknown;
-  try {
-    data = parseYaml(text, { logLevel: 'error' });
-  } catch (err) {
-    throw makeError(
-      ErrorCodes.CONFIG_INVALID,
-      `the points file is not valid YAML or JSON: ${(err as Error).message.split('\n')[0] ?? ''}`,
-      file,
-      'Fix the syntax at the line shown.',
-    );
-  }
+  const data = parseConfigYaml(text, 'points file', file, 'Fix the syntax at the line shown.');
   if (!validate(data)) {
     throw makeError(
       ErrorCodes.CONFIG_INVALID,

@@ -3,8 +3,7 @@
  * file, the key path, what was found, and what to set instead.
  */
 import { Ajv, type ErrorObject, type SchemaObject } from 'ajv';
-import { parse as parseYaml } from 'yaml';
-import { readConfigText } from '../core/config-file.js';
+import { parseConfigYaml, readConfigText } from '../core/config-file.js';
 import { ErrorCodes, makeError } from '../core/errors.js';
 import type { RigProfile } from './rig-profile-types.js';
 
@@ -119,17 +118,7 @@ export async function loadRigProfile(path: string): Promise<RigProfile> {
 
 /** Parses and validates rig profile YAML; `where` names the source in messages. */
 export function parseRigProfile(text: string, where: string): RigProfile {
-  let data: unknown;
-  try {
-    data = parseYaml(text, { logLevel: 'error' });
-  } catch (err) {
-    throw makeError(
-      ErrorCodes.CONFIG_INVALID,
-      `the rig profile is not valid YAML: ${(err as Error).message.split('\n')[0]?.replace(/:$/, '') ?? ''}`,
-      where,
-      'Fix the YAML syntax at the line shown (indentation, a missing colon or an unclosed brace).',
-    );
-  }
+  const data = parseConfigYaml(text, 'rig profile', where, 'Fix the YAML syntax at the line shown (indentation, a missing colon or an unclosed brace).');
   if (!validate(data)) {
     const problems = describeErrors(validate.errors ?? [], data);
     throw makeError(

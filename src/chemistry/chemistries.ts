@@ -1,7 +1,7 @@
 import { readFileSync } from 'node:fs';
 import { fileURLToPath } from 'node:url';
 import { Ajv, type ErrorObject } from 'ajv';
-import { parse as parseYaml } from 'yaml';
+import { parseConfigYaml } from '../core/config-file.js';
 import { ErrorCodes, makeError, type CellvigilError } from '../core/errors.js';
 import type { ChemistryProfile, Sourced } from './chemistry-types.js';
 
@@ -217,19 +217,7 @@ function copySourced(s: RawSourced): Sourced {
  * Throws a CellvigilError (CV_CONFIG_INVALID, exit code 2) naming the file, the key and the fix.
  */
 export function parseChemistries(text: string, where: string): ChemistryProfile[] {
-  let data: unknown;
-  try {
-    data = parseYaml(text, { logLevel: 'error' });
-  } catch (err) {
-    const line = err instanceof Error ? (err.message.split('\n')[0] ?? err.message) : String(err);
-    const detail = line.replace(/:\s*$/, '');
-    throw makeError(
-      ErrorCodes.CONFIG_INVALID,
-      `Chemistry file is not valid YAML: ${detail}`,
-      where,
-      'Fix the YAML syntax at the line shown (indentation, colons, quotes).',
-    );
-  }
+  const data = parseConfigYaml(text, 'chemistry file', where, 'Fix the YAML syntax at the line shown (indentation, colons, quotes).');
   if (data === null || typeof data !== 'object' || Array.isArray(data)) {
     throw invalid(
       where,

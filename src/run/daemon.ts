@@ -242,7 +242,7 @@ export async function startRun(req: RunRequest, io: RunIo): Promise<RunHandle> {
           logEvent('gap', { seq: out.row.seq, note: 'a long gap between frames; its charge is interpolated and counted as doubt in the uncertainty' });
         }
         if (out.rigRestart) logEvent('rig_restart', { seq: out.row.seq, tick_ms: out.row.tickMs });
-        status.update({ hostS: out.row.hostS, volts: out.row.volts, amps: out.row.amps, celsius: out.row.celsius, chargeAh: out.row.chargeAh, energyWh: out.row.energyWh, state: out.row.state });
+        status.update(out.row);
         for (const o of observers) o.sample?.(out.row, loadOn);
         dispatch(out.actions);
         break;
@@ -510,9 +510,8 @@ export async function startRun(req: RunRequest, io: RunIo): Promise<RunHandle> {
     await source.open({
       line: onLine,
       overlong: (n) => {
-        pipeline.counters.rejected++;
-        pipeline.counters.rejectedBy.overlong = (pipeline.counters.rejectedBy.overlong ?? 0) + 1;
-        events.rejected(hostS(), clock.wallNow(), 'overlong', `${n} bytes without a line end`, '');
+        const out = pipeline.overlong(n);
+        if (out.kind === 'rejected') events.rejected(hostS(), clock.wallNow(), out.reason, out.detail, '');
       },
       closed: (reason) => {
         if (ended) return;

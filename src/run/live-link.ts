@@ -4,7 +4,8 @@
  */
 import { LiveHub } from '../live/live-hub.js';
 import { startLiveServer, type LiveServer } from '../live/live-server.js';
-import type { LiveRunInfo } from '../live/live-types.js';
+import type { LiveRunInfo, LiveSample } from '../live/live-types.js';
+import type { SampleRow } from '../sinks/sample-row.js';
 import { loadTokens } from '../live/tokens.js';
 import type { EventRecord } from './event-log.js';
 import type { RunObserver } from './daemon.js';
@@ -32,6 +33,20 @@ const ALARM_TEXT: Record<string, (d: Record<string, unknown>) => string> = {
 };
 /** A run ending on these is an alarm; at the cutoff or by the user it is the normal end. */
 const LIMIT_REASONS = ['over_temperature', 'link_lost', 'fault'];
+
+/** A logged sample as the live feed shows it (an open or shorted thermistor has no temperature). */
+export function toLiveSample(row: SampleRow, loadOn: boolean): LiveSample {
+  return {
+    host_s: row.hostS,
+    voltage_V: row.volts,
+    current_A: row.amps,
+    temperature_C: Number.isFinite(row.celsius) ? row.celsius : null,
+    charge_Ah: row.chargeAh,
+    energy_Wh: row.energyWh,
+    state: row.state,
+    load_on: loadOn,
+  };
+}
 
 export interface LiveLink {
   server: LiveServer;
@@ -79,17 +94,7 @@ export async function startLiveLink(o: LiveLinkOptions): Promise<LiveLink> {
   return {
     server,
     observer: {
-      sample: (row, loadOn) =>
-        hub.sample({
-          host_s: row.hostS,
-          voltage_V: row.volts,
-          current_A: row.amps,
-          temperature_C: Number.isFinite(row.celsius) ? row.celsius : null,
-          charge_Ah: row.chargeAh,
-          energy_Wh: row.energyWh,
-          state: row.state,
-          load_on: loadOn,
-        }),
+      sample: (row, loadOn) => hub.sample(toLiveSample(row, loadOn)),
       event,
       ended: (result) => hub.result(result as unknown as Record<string, unknown>),
     },

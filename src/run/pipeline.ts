@@ -73,13 +73,20 @@ export class Pipeline {
     this.corrector = c;
   }
 
+  /** A run of bytes the line splitter dropped for having no line end: counted like any bad line. */
+  overlong(length: number): LineOutcome {
+    return this.reject('overlong', `${length} bytes without a line end`);
+  }
+
+  private reject(reason: RejectReason, detail: string): LineOutcome {
+    this.counters.rejected++;
+    this.counters.rejectedBy[reason] = (this.counters.rejectedBy[reason] ?? 0) + 1;
+    return { kind: 'rejected', reason, detail };
+  }
+
   line(text: string, arrivalMs: number, wallMs: number): LineOutcome {
     const decoded = decodeRigLine(text, this.o.adcBits);
-    if (!decoded.ok) {
-      this.counters.rejected++;
-      this.counters.rejectedBy[decoded.reason] = (this.counters.rejectedBy[decoded.reason] ?? 0) + 1;
-      return { kind: 'rejected', reason: decoded.reason, detail: decoded.detail };
-    }
+    if (!decoded.ok) return this.reject(decoded.reason, decoded.detail);
     const m = decoded.message;
     const session = this.o.session;
     switch (m.kind) {

@@ -4,8 +4,7 @@
  * again; the report turns the time the end point was reached into service output.
  */
 import { Ajv } from 'ajv';
-import { parse as parseYaml } from 'yaml';
-import { readConfigText } from '../core/config-file.js';
+import { parseConfigYaml, readConfigText } from '../core/config-file.js';
 import { ErrorCodes, makeError } from '../core/errors.js';
 import { formatDuration, parseDuration } from './duration.js';
 import { SCHEDULE_KEYS, SCHEDULE_SCHEMA, type ScheduleSpec } from './schedule-schema.js';
@@ -172,12 +171,7 @@ function stepOf(
 
 /** Parses and validates schedule YAML; `where` names the file in messages. */
 export function parseScheduleYaml(text: string, where: string): Schedule {
-  let data: unknown;
-  try {
-    data = parseYaml(text, { logLevel: 'error' });
-  } catch (e) {
-    throw invalid(`the schedule is not valid YAML: ${(e as Error).message.split('\n')[0] ?? ''}`, where, 'Fix the YAML syntax at the line shown.');
-  }
+  const data = parseConfigYaml(text, 'schedule', where, 'Fix the YAML syntax at the line shown.');
   if (!validate(data)) {
     const e = validate.errors?.[0];
     const key = e?.instancePath.split('/').filter(Boolean).join('.') ?? '';

@@ -1,8 +1,8 @@
 import { readFileSync } from 'node:fs';
 import { Ajv, type ErrorObject } from 'ajv';
-import { parse } from 'yaml';
 import type { RigProfile } from '../chain/rig-profile-types.js';
 import type { Clock } from '../core/clock.js';
+import { parseConfigYaml } from '../core/config-file.js';
 import { ErrorCodes, makeError } from '../core/errors.js';
 import { ChemistryCell, type ChemistryId } from './cell-model.js';
 import { SCENARIO_FILE_SCHEMA } from './scenario-schema.js';
@@ -68,12 +68,7 @@ export function loadScenarios(path: string): ScenarioSet {
   } catch (e) {
     throw makeError(ErrorCodes.CONFIG_READ, `cannot read the scenario file: ${(e as Error).message}`, path, 'Check the path and the file permissions.');
   }
-  let data: unknown;
-  try {
-    data = parse(text, { logLevel: 'error' });
-  } catch (e) {
-    throw makeError(ErrorCodes.CONFIG_INVALID, `the scenario file is not valid YAML: ${(e as Error).message}`, path, 'Fix the YAML syntax at the line given.');
-  }
+  const data = parseConfigYaml(text, 'scenario file', path, 'Fix the YAML syntax at the line given.');
   if (!validateFile(data)) {
     const err = validateFile.errors?.[0];
     if (!err) throw makeError(ErrorCodes.CONFIG_INVALID, 'the scenario file is invalid', path, 'Compare it with the shipped config/sim-scenarios.yaml.');
