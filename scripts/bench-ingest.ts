@@ -86,6 +86,8 @@ async function bareReader(pty: PtyPair): Promise<number> {
 
 interface PipelineRun {
   rate: number;
+  /** Share of the flood the daemon's thread was busy rather than waiting for input. */
+  eventLoopUtilization: number;
   viewerSamples: number;
   viewerMessages: number;
   exitCode: number;
@@ -138,13 +140,21 @@ async function daemonRun(pty: PtyPair, work: string, calibrationPath: string): P
   let n = 0;
   let t0 = 0;
   let t1 = 0;
+  let elu0 = performance.eventLoopUtilization();
+  let elu = 0;
   handle.addObserver({
     sample: (row, loadOn) => {
       hub.sample(toLiveSample(row, loadOn));
       if ((row.flags & 1) === 0) return;
       n++;
-      if (n === 1) t0 = performance.now();
-      if (n === FLOOD) t1 = performance.now();
+      if (n === 1) {
+        t0 = performance.now();
+        elu0 = performance.eventLoopUtilization();
+      }
+      if (n === FLOOD) {
+        t1 = performance.now();
+        elu = performance.eventLoopUtilization(elu0).utilization;
+      }
     },
     event: (rec) => {
       if (rec.event === 'state') hub.state({ host_s: rec.host_s, from: String(rec['from']), to: String(rec['to']), why: String(rec['why']) });
@@ -164,6 +174,7 @@ async function daemonRun(pty: PtyPair, work: string, calibrationPath: string): P
   rmSync(runs, { recursive: true, force: true });
   return {
     rate: rate(FLOOD, t0, t1),
+    eventLoopUtilization: elu,
     viewerSamples: viewer.samples,
     viewerMessages: viewer.messages,
     exitCode: outcome.exitCode,

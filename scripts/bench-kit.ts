@@ -230,7 +230,7 @@ type Pipeline = InstanceType<PipelineModule['Pipeline']>;
 type LogFile = InstanceType<LogFileModule['LogFile']>;
 type EventLog = InstanceType<EventLogModule['EventLog']>;
 type Calibration = NonNullable<Parameters<CalibrationModule['applyCalibration']>[0]>;
-type SampleRow = Parameters<SampleRowModule['formatSampleRow']>[0];
+type SampleRow = Parameters<SampleRowModule['writeSampleRow']>[0];
 
 export const ROTATE_BYTES = 16 * 1024 * 1024;
 
@@ -251,7 +251,7 @@ export class CoreRun {
     readonly pipeline: Pipeline,
     readonly samples: LogFile,
     readonly events: EventLog,
-    private readonly format: SampleRowModule['formatSampleRow'],
+    private readonly rowWriter: Pick<SampleRowModule, 'writeSampleRow' | 'sampleRowMaxBytes'>,
     private readonly startWallMs: number,
   ) {}
 
@@ -260,7 +260,8 @@ export class CoreRun {
     const { Pipeline } = await product<PipelineModule>('run/pipeline.js');
     const { LogFile } = await product<LogFileModule>('sinks/log-file.js');
     const { EventLog } = await product<EventLogModule>('run/event-log.js');
-    const { formatSampleRow, SAMPLE_HEADER } = await product<SampleRowModule>('sinks/sample-row.js');
+    const rowWriter = await product<SampleRowModule>('sinks/sample-row.js');
+    const { SAMPLE_HEADER } = rowWriter;
     const { applyCalibration } = await product<CalibrationModule>('calibration/calibration.js');
     const { writeJsonAtomic } = await product<AtomicJsonModule>('sinks/atomic-json.js');
     const { loadChemistries, findChemistry } = await product<ChemistriesModule>('chemistry/chemistries.js');
@@ -308,7 +309,7 @@ export class CoreRun {
       limits: { max_temperature_C: chemistry.max_temperature_C.value, max_current_A: maxCurrentA },
       samples: { prefix: 'samples-', rotate_bytes: ROTATE_BYTES },
     });
-    const run = new CoreRun(folder, session, pipeline, samples, events, formatSampleRow, startWallMs);
+    const run = new CoreRun(folder, session, pipeline, samples, events, rowWriter, startWallMs);
     run.act(session.begin(0), 0);
     return run;
   }
@@ -331,7 +332,7 @@ export class CoreRun {
   line(text: string, atMs: number): SampleRow | null {
     const out = this.pipeline.line(text, atMs, this.startWallMs + atMs);
     if (out.kind === 'sample') {
-      this.samples.append(this.format(out.row));
+      this.samples.appendWith(out.row, this.rowWriter.sampleRowMaxBytes(out.row), this.rowWriter.writeSampleRow);
       this.rows++;
       this.act(out.actions, atMs);
       return out.row;

@@ -24,6 +24,8 @@ export class CutoffEstimator {
   private readonly minSpanS: number;
   private t: number[] = [];
   private v: number[] = [];
+  /** The fit of the points in the window; samples closer than the spacing do not change it. */
+  private line: { slope: number; intercept: number } | null | undefined;
 
   constructor(o: CutoffEstimateOptions = {}) {
     this.windowS = o.windowS ?? 300;
@@ -42,6 +44,7 @@ export class CutoffEstimator {
     else if (last !== undefined && hostS - last < this.windowS / this.maxPoints) return;
     this.t.push(hostS);
     this.v.push(volts);
+    this.line = undefined;
     let drop = 0;
     while (drop < this.t.length - 2 && hostS - this.t[drop]! > this.windowS) drop++;
     if (drop > 0) {
@@ -53,6 +56,7 @@ export class CutoffEstimator {
   reset(): void {
     this.t = [];
     this.v = [];
+    this.line = undefined;
   }
 
   get points(): number {
@@ -61,6 +65,11 @@ export class CutoffEstimator {
 
   /** Ordinary least-squares line of volts on seconds, or null with fewer than 3 points. */
   fit(): { slope: number; intercept: number } | null {
+    if (this.line === undefined) this.line = this.leastSquares();
+    return this.line;
+  }
+
+  private leastSquares(): { slope: number; intercept: number } | null {
     const n = this.t.length;
     if (n < 3) return null;
     let mt = 0;

@@ -1,5 +1,6 @@
 import { createServer, type IncomingMessage, type ServerResponse } from 'node:http';
 import { networkInterfaces } from 'node:os';
+import { performance } from 'node:perf_hooks';
 import type { Duplex } from 'node:stream';
 import { WebSocket, WebSocketServer, type RawData } from 'ws';
 import { HostClock, type Clock, type TimerHandle } from '../core/clock.js';
@@ -52,9 +53,36 @@ export interface LiveServer {
   close(): Promise<void>;
 }
 
+/**
+ * A message on its way to viewers: serialised once for all of them, and only when one of them
+ * is actually sent it. Samples that a viewer's queue coalesces away are never serialised.
+ */
+class Outgoing {
+  private bytes: Buffer | null = null;
+
+  constructor(readonly message: ServerMessage) {}
+
+  get isSample(): boolean {
+    return this.message.type === 'sample';
+  }
+
+  /** UTF-8 bytes of the JSON text, made once however many viewers get them. */
+  get data(): Buffer {
+    return (this.bytes ??= Buffer.from(JSON.stringify(this.message)));
+  }
+
+  /** What the viewer queue counts its bounds in. */
+  get length(): number {
+    return this.data.length;
+  }
+}
+
+/** Shortest gap between two sample sends, ms: at most 100 samples a second reach a viewer. */
+const SAMPLE_GAP_MS = 10;
+
 interface Viewer {
   ws: WebSocket;
-  queue: ViewerQueue;
+  queue: ViewerQueue<Outgoing>;
   remote: string;
   alive: boolean;
 }
@@ -227,9 +255,30 @@ export async function startLiveServer(o: LiveServerOptions): Promise<LiveServer>
     else fail(v, id, 'refused', r.error);
   }
 
-  function send(v: Viewer, m: ServerMessage, data = JSON.stringify(m)): void {
-    v.queue.offer(data, m.type === 'sample');
-    pump(v);
+  // Sends happen once per event-loop turn: a burst of samples read in one chunk from the rig
+  // reaches each viewer as its newest sample, in one socket write, instead of one write each.
+  // Samples go out at most every SAMPLE_GAP_MS as well: no page draws faster, and a socket
+  // write costs the daemon more than a frame does. Everything else goes out in the same turn.
+  const dirty = new Set<Viewer>();
+  let immediate: NodeJS.Immediate | null = null;
+  let later: NodeJS.Timeout | null = null;
+  let lastFlushAt = -Infinity;
+  function flush(): void {
+    if (immediate) clearImmediate(immediate);
+    if (later) clearTimeout(later);
+    immediate = later = null;
+    lastFlushAt = performance.now();
+    for (const v of dirty) pump(v);
+    dirty.clear();
+  }
+
+  function send(v: Viewer, m: ServerMessage | Outgoing): void {
+    const out = m instanceof Outgoing ? m : new Outgoing(m);
+    v.queue.offer(out, out.isSample);
+    dirty.add(v);
+    const wait = out.isSample ? lastFlushAt + SAMPLE_GAP_MS - performance.now() : 0;
+    if (wait <= 0) immediate ??= setImmediate(flush);
+    else if (!immediate) later ??= setTimeout(flush, wait);
   }
 
   function pump(v: Viewer): void {
@@ -242,13 +291,14 @@ export async function startLiveServer(o: LiveServerOptions): Promise<LiveServer>
         v.ws.terminate();
         return;
       }
-      v.ws.send(step.send);
+      v.ws.send(step.send.data, { binary: false });
     }
   }
 
   const unsubscribe = o.hub.subscribe((m: BroadcastMessage) => {
-    const data = JSON.stringify(m);
-    for (const v of viewers) send(v, m, data);
+    if (viewers.size === 0) return;
+    const out = new Outgoing(m);
+    for (const v of viewers) send(v, out);
   });
 
   const timers: TimerHandle[] = [
@@ -297,6 +347,8 @@ export async function startLiveServer(o: LiveServerOptions): Promise<LiveServer>
       (closing ??= new Promise<void>((resolve) => {
         timers.forEach((t) => clock.clearTimer(t));
         unsubscribe();
+        // What is queued (the run's result, say) goes out before the closing frame.
+        flush();
         for (const v of viewers) v.ws.close(1001, 'the daemon is stopping');
         // A viewer that does not finish the closing handshake promptly, or a browser holding a
         // keep-alive connection, is cut off.

@@ -15,16 +15,20 @@ export interface ViewerQueueOptions {
   stallMs?: number;
 }
 
-export type QueueStep = { send: string } | { disconnect: string } | null;
+export type QueueStep<T> = { send: T } | { disconnect: string } | null;
 
-export class ViewerQueue {
+/**
+ * Items are strings or anything that knows its length in UTF-16 code units; a lazily
+ * serialised message is only turned into text when its length is asked for or it is sent.
+ */
+export class ViewerQueue<T extends { readonly length: number } = string> {
   private readonly lowWater: number;
   private readonly maxBuffered: number;
   private readonly maxQueuedBytes: number;
   private readonly stallMs: number;
-  private queue: string[] = [];
+  private queue: T[] = [];
   private queuedBytes = 0;
-  private pendingSample: string | null = null;
+  private pendingSample: T | null = null;
   private behindSince: number | null = null;
   /** Samples replaced by a newer one before they could be sent. */
   coalesced = 0;
@@ -41,12 +45,12 @@ export class ViewerQueue {
     return this.queue.length + (this.pendingSample === null ? 0 : 1);
   }
 
-  /** Bytes (UTF-16 code units, an upper bound for this ASCII-heavy JSON) held for this viewer. */
+  /** Bytes held for this viewer, as the items' lengths count them. */
   get bytes(): number {
     return this.queuedBytes + (this.pendingSample?.length ?? 0);
   }
 
-  offer(data: string, isSample: boolean): void {
+  offer(data: T, isSample: boolean): void {
     if (isSample) {
       if (this.pendingSample !== null) this.coalesced++;
       this.pendingSample = data;
@@ -61,7 +65,7 @@ export class ViewerQueue {
   }
 
   /** The next message to send now, a reason to cut the viewer off, or null to wait. */
-  next(bufferedBytes: number, nowMs: number): QueueStep {
+  next(bufferedBytes: number, nowMs: number): QueueStep<T> {
     if (bufferedBytes > this.maxBuffered) return { disconnect: `more than ${this.maxBuffered} bytes waiting on the socket` };
     if (this.queuedBytes > this.maxQueuedBytes) return { disconnect: `more than ${this.maxQueuedBytes} bytes of messages waiting` };
     if (bufferedBytes > this.lowWater) {
@@ -83,7 +87,7 @@ export class ViewerQueue {
     return null;
   }
 
-  private push(data: string): void {
+  private push(data: T): void {
     this.queue.push(data);
     this.queuedBytes += data.length;
   }

@@ -13,9 +13,10 @@ const TABLE = (() => {
   return t;
 })();
 
-export function crc16(text: string, init = 0xffff): number {
+/** CRC of text[0, end): the codec checks a line's payload in place, without slicing it off. */
+export function crc16(text: string, init = 0xffff, end = text.length): number {
   let crc = init;
-  for (let i = 0; i < text.length; i++) {
+  for (let i = 0; i < end; i++) {
     crc = ((crc << 8) & 0xffff) ^ TABLE[((crc >> 8) ^ text.charCodeAt(i)) & 0xff]!;
   }
   return crc;

@@ -17,7 +17,7 @@ import { Session } from '../session/session.js';
 import type { Action, SessionEnd } from '../session/session-types.js';
 import { writeJsonAtomic } from '../sinks/atomic-json.js';
 import { LogFile } from '../sinks/log-file.js';
-import { formatSampleRow, SAMPLE_HEADER, type SampleRow } from '../sinks/sample-row.js';
+import { SAMPLE_HEADER, sampleRowMaxBytes, writeSampleRow, type SampleRow } from '../sinks/sample-row.js';
 import { SerialSource } from '../sources/serial-source.js';
 import { SimSource } from '../sources/sim-source.js';
 import type { Source } from '../sources/source.js';
@@ -230,7 +230,7 @@ export async function startRun(req: RunRequest, io: RunIo): Promise<RunHandle> {
           bridgeUnlogged(out.row);
         }
         try {
-          samples.append(formatSampleRow(out.row));
+          samples.appendWith(out.row, sampleRowMaxBytes(out.row), writeSampleRow);
         } catch (e) {
           onDiskError(e as Error);
         }

@@ -7,6 +7,9 @@ const HOUR_MS = 3_600_000;
 const YEAR_10000_MS = 253_402_300_800_000;
 
 let cachedHour = Number.NaN;
+/** The last time asked for and its text: a burst of frames read in one chunk shares its arrival millisecond. */
+let lastMs = Number.NaN;
+let lastText = '';
 /** `YYYY-MM-DDTHH:` of cachedHour. */
 let cachedPrefix = '';
 
@@ -14,6 +17,7 @@ const two = (n: number): string => (n < 10 ? '0' + n : String(n));
 const three = (n: number): string => (n < 10 ? '00' + n : n < 100 ? '0' + n : String(n));
 
 export function isoTime(ms: number): string {
+  if (ms === lastMs) return lastText;
   if (!Number.isInteger(ms) || ms < 0 || ms >= YEAR_10000_MS) return new Date(ms).toISOString();
   const hour = Math.floor(ms / HOUR_MS);
   if (hour !== cachedHour) {
@@ -24,5 +28,7 @@ export function isoTime(ms: number): string {
   const minutes = Math.floor(inHour / 60_000);
   const inMinute = inHour - minutes * 60_000;
   const seconds = Math.floor(inMinute / 1000);
-  return `${cachedPrefix}${two(minutes)}:${two(seconds)}.${three(inMinute - seconds * 1000)}Z`;
+  lastText = `${cachedPrefix}${two(minutes)}:${two(seconds)}.${three(inMinute - seconds * 1000)}Z`;
+  lastMs = ms;
+  return lastText;
 }

@@ -1,4 +1,4 @@
-import { fixedDecimal } from './fixed-decimal.js';
+import { writeFixed, writeText, writeUint } from './ascii-writer.js';
 import { isoTime } from './iso-time.js';
 
 /** The columns of samples-NNNN.csv (DESIGN.md "Run folder"); the order is a contract. */
@@ -42,34 +42,75 @@ export interface SampleRow {
   calibrationId: string;
 }
 
-const FLAG_TEXT = Array.from({ length: 256 }, (_, n) => n.toString(16).toUpperCase().padStart(2, '0'));
+/** Longest row without its two free-text fields: 6 numbers of up to 2^53 at 7 decimals (or toFixed's 1e21 form), the time, 6 counts, flags and commas. */
+const ROW_FIXED_MAX = 6 * 32 + 24 + 6 * 16 + 4 + 16;
 
-function num(x: number, digits: number): string {
-  return Number.isFinite(x) ? fixedDecimal(x, digits) : '';
+/** Room a row needs in the buffer, line end included (UTF-8 takes at most 3 bytes a UTF-16 unit). */
+export function sampleRowMaxBytes(r: SampleRow): number {
+  return ROW_FIXED_MAX + 3 * (r.state.length + r.calibrationId.length) + 1;
+}
+
+const COMMA = 44;
+
+/** An empty field for a reading that is not a number (an open thermistor). */
+function writeReading(buf: Buffer, at: number, x: number, digits: number): number {
+  return Number.isFinite(x) ? writeFixed(buf, at, x, digits) : at;
+}
+
+function hexDigit(n: number): number {
+  return n < 10 ? 48 + n : 55 + n;
 }
 
 /**
- * One RFC 4180 row. No field can hold a comma, quote or newline, so none needs quoting. Joined
- * from an array, which makes one flat string: a template literal makes a rope of some thirty
- * pieces that the log writer would have to flatten later, after the collector had copied it.
+ * One RFC 4180 row and its line end, written into `buf` at `at` (with sampleRowMaxBytes of
+ * room); returns the position after it. No field can hold a comma, quote or newline, so none
+ * needs quoting.
  */
+export function writeSampleRow(r: SampleRow, buf: Buffer, at: number): number {
+  let p = writeFixed(buf, at, r.hostS, 3);
+  buf[p++] = COMMA;
+  p = writeText(buf, p, isoTime(r.wallMs));
+  buf[p++] = COMMA;
+  p = writeUint(buf, p, r.channel);
+  buf[p++] = COMMA;
+  p = writeUint(buf, p, r.seq);
+  buf[p++] = COMMA;
+  p = writeUint(buf, p, r.tickMs);
+  buf[p++] = COMMA;
+  p = writeUint(buf, p, r.vRaw);
+  buf[p++] = COMMA;
+  p = writeUint(buf, p, r.iRaw);
+  buf[p++] = COMMA;
+  p = writeUint(buf, p, r.tRaw);
+  buf[p++] = COMMA;
+  if (r.flags > 0xff) p = writeText(buf, p, r.flags.toString(16).toUpperCase());
+  else {
+    buf[p++] = hexDigit(r.flags >> 4);
+    buf[p++] = hexDigit(r.flags & 15);
+  }
+  buf[p++] = COMMA;
+  p = writeReading(buf, p, r.volts, 5);
+  buf[p++] = COMMA;
+  p = writeReading(buf, p, r.amps, 5);
+  buf[p++] = COMMA;
+  p = writeReading(buf, p, r.celsius, 2);
+  buf[p++] = COMMA;
+  p = writeFixed(buf, p, r.chargeAh, 7);
+  buf[p++] = COMMA;
+  p = writeFixed(buf, p, r.energyWh, 7);
+  buf[p++] = COMMA;
+  p = writeText(buf, p, r.state);
+  buf[p++] = COMMA;
+  p = writeText(buf, p, r.calibrationId);
+  buf[p++] = 10;
+  return p;
+}
+
+let scratch = Buffer.alloc(1024);
+
+/** The same row as a string, without its line end (for tools and tests that build run folders). */
 export function formatSampleRow(r: SampleRow): string {
-  return [
-    fixedDecimal(r.hostS, 3),
-    isoTime(r.wallMs),
-    r.channel,
-    r.seq,
-    r.tickMs,
-    r.vRaw,
-    r.iRaw,
-    r.tRaw,
-    FLAG_TEXT[r.flags] ?? r.flags.toString(16).toUpperCase().padStart(2, '0'),
-    num(r.volts, 5),
-    num(r.amps, 5),
-    num(r.celsius, 2),
-    fixedDecimal(r.chargeAh, 7),
-    fixedDecimal(r.energyWh, 7),
-    r.state,
-    r.calibrationId,
-  ].join(',');
+  const need = sampleRowMaxBytes(r);
+  if (scratch.length < need) scratch = Buffer.alloc(need);
+  return scratch.toString('utf8', 0, writeSampleRow(r, scratch, 0) - 1);
 }

@@ -11,6 +11,9 @@ export interface SerialSourceOptions {
   maxRetryMs?: number;
 }
 
+/** Chunks read but not yet handed to the core before the port is paused (a pty gives 4 KiB at most). */
+const MAX_PENDING_CHUNKS = 8;
+
 /**
  * A real device or a pseudo-terminal, through serialport's native binding. A port that goes
  * away (USB unplugged) is reopened with a short backoff, so a returning rig is heard again
@@ -49,14 +52,30 @@ export class SerialSource implements Source {
     await new Promise<void>((resolve, reject) => port.open((err) => (err ? reject(err) : resolve())));
     this.port = port;
     // A fresh splitter per connection: a half line from before the break is not glued to the next.
-    const splitter = new LineSplitter({ onOverlong: (n) => handlers.overlong(n) });
-    port.pipe(splitter);
-    splitter.on('data', (line: string) => handlers.line(line));
+    const splitter = new LineSplitter({ onLine: (line) => handlers.line(line), onOverlong: (n) => handlers.overlong(n) });
+    // Chunks are split and handed over in the next turn, not inside the read's callback: the
+    // port's next read is then already under way while the core works on this one. A few
+    // chunks at most wait; past that the port is paused until they are done.
+    const pending: Buffer[] = [];
+    let drainQueued: NodeJS.Immediate | null = null;
+    const drain = (): void => {
+      drainQueued = null;
+      for (const chunk of pending.splice(0)) splitter.write(chunk);
+      if (port.isPaused()) port.resume();
+    };
+    const onData = (chunk: Buffer): void => {
+      pending.push(chunk);
+      if (pending.length >= MAX_PENDING_CHUNKS) port.pause();
+      drainQueued ??= setImmediate(drain);
+    };
+    port.on('data', onData);
     let gone = false;
     const onGone = (reason: string): void => {
       if (gone) return;
       gone = true;
-      port.unpipe(splitter);
+      port.off('data', onData);
+      if (drainQueued) clearImmediate(drainQueued);
+      drain();
       if (this.port === port) this.port = null;
       if (!this.wanted) return;
       handlers.closed(reason);

@@ -136,3 +136,11 @@ export class Viewer {
 export function wsUrl(server: LiveServer, query = ''): string {
   return `${server.url.replace(/^http/, 'ws')}live${query}`;
 }
+
+/** Feeds samples as a rig does, one per event-loop turn with a gap (the server sends at most one sample per 10 ms). */
+export async function paced(hub: LiveHub, samples: Iterable<LiveSample>, gapMs = 15): Promise<void> {
+  for (const s of samples) {
+    hub.sample(s);
+    await new Promise((r) => setTimeout(r, gapMs));
+  }
+}

@@ -7,7 +7,7 @@ import { LiveHub } from '../../src/live/live-hub.js';
 import { startLiveServer } from '../../src/live/live-server.js';
 import { loadTokens } from '../../src/live/tokens.js';
 import type { ServerMessage } from '../../src/live/live-types.js';
-import { DEMO_RUN, scriptedDischarge, startRig, tempHome, type Rig } from './helpers.js';
+import { DEMO_RUN, paced, scriptedDischarge, startRig, tempHome, type Rig } from './helpers.js';
 
 let rig: Rig | null = null;
 afterEach(async () => {
@@ -101,7 +101,7 @@ describe('watch: against a live server', () => {
     try {
       const run = yargs(['watch', rig.server.url, '--interval', '0']).command(watchCommand).strict().parseAsync();
       await vi.waitFor(() => expect(rig!.server.viewers()).toHaveLength(1));
-      for (const s of scriptedDischarge(5)) rig.hub.sample(s);
+      await paced(rig.hub, scriptedDischarge(5));
       rig.hub.alarm({ host_s: 4, kind: 'over_temperature', detail: '61.0 °C is above the limit of 60 °C' });
       rig.hub.result({ end_reason: 'over_temperature', capacity_Ah: 0.002 });
       await run;

@@ -3,7 +3,7 @@ import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { afterEach, beforeEach, describe, expect, it } from 'vitest';
 import { LogFile } from '../../src/sinks/log-file.js';
-import { SAMPLE_HEADER, formatSampleRow } from '../../src/sinks/sample-row.js';
+import { SAMPLE_HEADER, sampleRowMaxBytes, writeSampleRow } from '../../src/sinks/sample-row.js';
 
 let dir: string;
 beforeEach(async () => {
@@ -72,8 +72,7 @@ describe('LogFile rotation (RFC 4180: a header row per file, whole rows)', () =>
 
   it('sample rows with the sample header survive rotation unchanged', async () => {
     const log = new LogFile({ dir, name: 'samples-', header: SAMPLE_HEADER, rotateBytes: 1024 });
-    const rows = Array.from({ length: 50 }, (_, k) =>
-      formatSampleRow({
+    const rows = Array.from({ length: 50 }, (_, k) => ({
         hostS: k * 0.1,
         wallMs: Date.UTC(2026, 0, 1) + k * 100,
         channel: 0,
@@ -90,14 +89,17 @@ describe('LogFile rotation (RFC 4180: a header row per file, whole rows)', () =>
         energyWh: (3.86 * k) / 36000,
         state: 'discharging',
         calibrationId: 'none',
-      }),
-    );
-    rows.forEach((r) => log.append(r));
+      }));
+    rows.forEach((r) => log.appendWith(r, sampleRowMaxBytes(r), writeSampleRow));
     await log.close();
     const files = await readBack();
     expect(files.length).toBeGreaterThan(2);
     files.forEach((f) => expect(f.lines[0]).toBe(SAMPLE_HEADER));
-    expect(files.flatMap((f) => f.lines.slice(1))).toEqual(rows);
+    // Each row as the column formats of docs/run-folder.md give it (toFixed, toISOString).
+    const text = rows.map((r) =>
+      [r.hostS.toFixed(3), new Date(r.wallMs).toISOString(), 0, r.seq, r.tickMs, 2400, 1500, 2048, '01', '3.86000', '1.00000', '25.00', r.chargeAh.toFixed(7), r.energyWh.toFixed(7), 'discharging', 'none'].join(','),
+    );
+    expect(files.flatMap((f) => f.lines.slice(1))).toEqual(text);
     for (const f of files) for (const l of f.lines) expect(l.split(',')).toHaveLength(16);
   });
 

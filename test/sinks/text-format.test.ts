@@ -1,14 +1,20 @@
 import fc from 'fast-check';
 import { describe, expect, it } from 'vitest';
-import { fixedDecimal } from '../../src/sinks/fixed-decimal.js';
+import { writeFixed, writeText, writeUint } from '../../src/sinks/ascii-writer.js';
 import { isoTime } from '../../src/sinks/iso-time.js';
 import { formatSampleRow, type SampleRow } from '../../src/sinks/sample-row.js';
+
+/** What writeFixed puts in a buffer, as text. */
+function fixedDecimal(x: number, digits: number): string {
+  const buf = Buffer.alloc(400);
+  return buf.toString('utf8', 0, writeFixed(buf, 0, x, digits));
+}
 
 // The reference for every check here is the ECMAScript standard library itself (ECMA-262
 // Number.prototype.toFixed and Date.prototype.toISOString, as the engine implements them): the
 // fast formatters must give exactly the same text for every input.
 
-describe('fixedDecimal matches Number.prototype.toFixed (ECMA-262)', () => {
+describe('writeFixed writes the text of Number.prototype.toFixed (ECMA-262)', () => {
   it('on any double and 0..9 digits', () => {
     fc.assert(
       fc.property(fc.double(), fc.integer({ min: 0, max: 9 }), (x, d) => {
@@ -36,6 +42,27 @@ describe('fixedDecimal matches Number.prototype.toFixed (ECMA-262)', () => {
   it('keeps the sign of small negatives and drops the sign of negative zero, as toFixed does', () => {
     for (const [x, d] of [[-0.0001, 2], [-0, 3], [0.5, 0], [2.5, 0], [1.005, 2], [-1.5, 0], [1e21, 2], [NaN, 2], [-Infinity, 1]] as const) {
       expect(fixedDecimal(x, d)).toBe(x.toFixed(d));
+    }
+  });
+});
+
+describe('writeUint and writeText write the text of String(n) and of the string itself', () => {
+  it('on whole numbers from 0 to 2^53 - 1', () => {
+    fc.assert(
+      fc.property(fc.oneof(fc.integer({ min: 0, max: 99_999 }), fc.maxSafeNat()), (n) => {
+        const buf = Buffer.alloc(32);
+        expect(buf.toString('latin1', 0, writeUint(buf, 0, n))).toBe(String(n));
+      }),
+      { numRuns: 20_000 },
+    );
+  });
+
+  it('ASCII byte for byte, anything wider as UTF-8', () => {
+    for (const text of ['', 'discharging', 'cal-2026-11-20', 'Zelle Nr. 3 – 25 °C']) {
+      const buf = Buffer.alloc(3 * text.length + 2, 0x7e);
+      const end = writeText(buf, 1, text);
+      expect(buf.toString('utf8', 1, end)).toBe(text);
+      expect(end - 1).toBe(Buffer.byteLength(text));
     }
   });
 });
