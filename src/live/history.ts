@@ -22,8 +22,18 @@ export class DownsampledHistory {
     return this.points.length;
   }
 
+  /** Whether the next sample is one to keep: a caller can skip making a point that would be dropped. */
+  keepsNext(): boolean {
+    return this.seen % this.strideValue === 0;
+  }
+
+  /** Counts a sample without its point (one keepsNext said is not kept). */
+  skip(): void {
+    this.seen++;
+  }
+
   add(p: HistoryPoint): void {
-    const keep = this.seen % this.strideValue === 0;
+    const keep = this.keepsNext();
     this.seen++;
     if (!keep) return;
     if (this.points.length >= this.capacity) {

@@ -68,14 +68,30 @@ export class LiveHub {
     this.emit(this.hello());
   }
 
+  /** Takes the sample as given (the caller hands over an object it no longer changes). */
   sample(input: LiveSample): void {
     // An open or shorted thermistor reads as no temperature rather than NaN, which JSON cannot carry.
-    const s = { ...input, temperature_C: Number.isFinite(input.temperature_C) ? input.temperature_C : null };
+    const t = input.temperature_C;
+    const s = t === null || Number.isFinite(t) ? input : { ...input, temperature_C: null };
     this.latest = s;
     this.stateName = s.state;
-    this.history.add(toPoint(s));
+    if (this.history.keepsNext()) this.history.add(toPoint(s));
+    else this.history.skip();
     this.estimator.add(s.host_s, s.voltage_V, s.load_on);
-    this.emit({ type: 'sample', v: LIVE_VERSION, ...s, time_to_cutoff_s: this.estimator.estimate(this.cutoffV).time_to_cutoff_s });
+    if (this.listeners.size === 0) return;
+    this.emit({
+      type: 'sample',
+      v: LIVE_VERSION,
+      host_s: s.host_s,
+      voltage_V: s.voltage_V,
+      current_A: s.current_A,
+      temperature_C: s.temperature_C,
+      charge_Ah: s.charge_Ah,
+      energy_Wh: s.energy_Wh,
+      state: s.state,
+      load_on: s.load_on,
+      time_to_cutoff_s: this.estimator.estimate(this.cutoffV).time_to_cutoff_s,
+    });
   }
 
   state(s: LiveStateChange): void {

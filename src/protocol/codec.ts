@@ -1,4 +1,4 @@
-import { crc16, crcHex } from './crc16.js';
+import { crc16, crc16Printable, crcHex } from './crc16.js';
 import type { DataFrame, DecodeResult, HostCommand, RejectReason } from './messages.js';
 
 /** Longest line accepted; a data frame at its widest is about 60 characters. */
@@ -86,11 +86,8 @@ function fastDataLine(line: string, adcMax: number): DataFrame | null {
   // The payload ends at the last '|', which must be followed by exactly four hex digits.
   const bar = end - 5;
   if (bar < 2 || line.charCodeAt(bar) !== 124 || line.charCodeAt(0) !== 68 || line.charCodeAt(1) !== 44) return null;
-  for (let i = 0; i < bar; i++) {
-    const c = line.charCodeAt(i);
-    if (c < 0x20 || c > 0x7e) return null;
-  }
-  if (hex4(line, bar + 1) !== crc16(line, 0xffff, bar)) return null;
+  const crc = crc16Printable(line, bar);
+  if (crc < 0 || hex4(line, bar + 1) !== crc) return null;
   const channel = decField(line, 2, 15, bar);
   if (channel < 0) return null;
   const seq = decField(line, cursor, 65535, bar);

@@ -13,11 +13,24 @@ const TABLE = (() => {
   return t;
 })();
 
-/** CRC of text[0, end): the codec checks a line's payload in place, without slicing it off. */
-export function crc16(text: string, init = 0xffff, end = text.length): number {
+export function crc16(text: string, init = 0xffff): number {
   let crc = init;
-  for (let i = 0; i < end; i++) {
+  for (let i = 0; i < text.length; i++) {
     crc = ((crc << 8) & 0xffff) ^ TABLE[((crc >> 8) ^ text.charCodeAt(i)) & 0xff]!;
+  }
+  return crc;
+}
+
+/**
+ * CRC of text[0, end) if every character there is printable ASCII (0x20–0x7e), else -1: the
+ * codec's check of a data line in the same pass as its checksum.
+ */
+export function crc16Printable(text: string, end: number): number {
+  let crc = 0xffff;
+  for (let i = 0; i < end; i++) {
+    const c = text.charCodeAt(i);
+    if (c < 0x20 || c > 0x7e) return -1;
+    crc = ((crc << 8) & 0xffff) ^ TABLE[((crc >> 8) ^ c) & 0xff]!;
   }
   return crc;
 }

@@ -58,10 +58,11 @@ export class SerialSource implements Source {
     // chunks at most wait; past that the port is paused until they are done.
     const pending: Buffer[] = [];
     let drainQueued: NodeJS.Immediate | null = null;
+    let gone = false;
     const drain = (): void => {
       drainQueued = null;
       for (const chunk of pending.splice(0)) splitter.write(chunk);
-      if (port.isPaused()) port.resume();
+      if (!gone && port.isPaused()) port.resume();
     };
     const onData = (chunk: Buffer): void => {
       pending.push(chunk);
@@ -69,7 +70,6 @@ export class SerialSource implements Source {
       drainQueued ??= setImmediate(drain);
     };
     port.on('data', onData);
-    let gone = false;
     const onGone = (reason: string): void => {
       if (gone) return;
       gone = true;
