@@ -38,25 +38,33 @@ type ChildMessage = { type: 'open' } | { type: 'latencies'; ms: number[] };
 
 /** The viewers' process: connects, notes each sample's delay, and hands the delays over when told. */
 async function viewersChild(url: string): Promise<void> {
-  const delays: number[] = [];
+  // Each receipt is noted as it comes and read afterwards, so the viewers' own parsing does not
+  // hold up the sockets still waiting to be read.
+  const receipts: Array<{ at: number; data: Buffer }> = [];
   let counting = false;
   const sockets = Array.from({ length: VIEWERS }, () => new WebSocket(url, { perMessageDeflate: false }));
   for (const ws of sockets) {
     ws.on('message', (data: Buffer) => {
-      const now = clockS();
-      if (!counting) return;
-      const text = data.toString();
-      if (!text.startsWith('{"type":"sample"')) return;
-      const at = text.indexOf('"host_s":');
-      delays.push((now - parseFloat(text.slice(at + 9))) * 1000);
+      const at = clockS();
+      if (counting) receipts.push({ at, data });
     });
   }
+  const delays = (): number[] => {
+    const out: number[] = [];
+    for (const { at, data } of receipts) {
+      const text = data.toString();
+      if (!text.startsWith('{"type":"sample"')) continue;
+      const h = text.indexOf('"host_s":');
+      out.push((at - parseFloat(text.slice(h + 9))) * 1000);
+    }
+    return out;
+  };
   await Promise.all(sockets.map((ws) => new Promise<void>((resolve, reject) => (ws.once('open', () => resolve()), ws.once('error', reject)))));
   process.on('message', (m: { type: string }) => {
     if (m.type === 'count') counting = true;
     if (m.type === 'report') {
       sockets.forEach((ws) => ws.terminate());
-      process.send!({ type: 'latencies', ms: delays } satisfies ChildMessage, () => process.disconnect());
+      process.send!({ type: 'latencies', ms: delays() } satisfies ChildMessage, () => process.disconnect());
     }
   });
   process.send!({ type: 'open' } satisfies ChildMessage);

@@ -12,6 +12,7 @@ import { checkClientMessage } from './message-schemas.js';
 import { loadStaticFiles } from './static-files.js';
 import { tokenMatches, type LiveTokens } from './tokens.js';
 import { ViewerQueue, type ViewerQueueOptions } from './viewer-queue.js';
+import { textFrame } from './ws-frame.js';
 
 export interface LiveServerOptions {
   hub: LiveHub;
@@ -59,6 +60,7 @@ export interface LiveServer {
  */
 class Outgoing {
   private bytes: Buffer | null = null;
+  private framed: Buffer | null = null;
 
   constructor(readonly message: ServerMessage) {}
 
@@ -69,6 +71,11 @@ class Outgoing {
   /** UTF-8 bytes of the JSON text, made once however many viewers get them. */
   get data(): Buffer {
     return (this.bytes ??= Buffer.from(JSON.stringify(this.message)));
+  }
+
+  /** The whole WebSocket frame, the same bytes for every viewer. */
+  get frame(): Buffer {
+    return (this.framed ??= textFrame(this.data));
   }
 
   /** What the viewer queue counts its bounds in. */
@@ -82,6 +89,8 @@ const SAMPLE_GAP_MS = 10;
 
 interface Viewer {
   ws: WebSocket;
+  /** The viewer's connection, which broadcast frames are written to directly (see ws-frame.ts). */
+  socket: Duplex;
   queue: ViewerQueue<Outgoing>;
   remote: string;
   alive: boolean;
@@ -208,11 +217,11 @@ export async function startLiveServer(o: LiveServerOptions): Promise<LiveServer>
       return refuseUpgrade(socket, 403, 'Forbidden', `origin ${req.headers.origin ?? ''} is not this server's page`, remote);
     if (!canView(requestToken(url, req.headers.authorization))) return refuseUpgrade(socket, 401, 'Unauthorized', 'viewer token missing or wrong', remote);
     if (viewers.size >= maxViewers) return refuseUpgrade(socket, 503, 'Service Unavailable', `already ${maxViewers} viewers`, remote);
-    wss.handleUpgrade(req, socket, headBytes, (ws) => attach(ws, remote ?? 'unknown'));
+    wss.handleUpgrade(req, socket, headBytes, (ws) => attach(ws, socket, remote ?? 'unknown'));
   });
 
-  function attach(ws: WebSocket, remote: string): void {
-    const v: Viewer = { ws, queue: new ViewerQueue(o.queue), remote, alive: true };
+  function attach(ws: WebSocket, socket: Duplex, remote: string): void {
+    const v: Viewer = { ws, socket, queue: new ViewerQueue(o.queue), remote, alive: true };
     viewers.add(v);
     log('live_viewer_joined', { remote, viewers: viewers.size });
     let leaveWhy = 'closed by the viewer';
@@ -291,7 +300,9 @@ export async function startLiveServer(o: LiveServerOptions): Promise<LiveServer>
         v.ws.terminate();
         return;
       }
-      v.ws.send(step.send.data, { binary: false });
+      // Whole frames on the open connection, in order with the library's own (pings, close).
+      if (!v.socket.writable) return;
+      v.socket.write(step.send.frame);
     }
   }
 
