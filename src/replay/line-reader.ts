@@ -181,12 +181,19 @@ export async function* readLineBatchesRaw(path: string, o: LineReadOptions = {})
       if (!o.gzip) o.onBytes?.(chunk.length);
       lastByte = chunk[chunk.length - 1] ?? lastByte;
       let longest = 0;
-      let from = 0;
-      for (let nl = chunk.indexOf(10); nl >= 0; nl = chunk.indexOf(10, from)) {
-        longest = Math.max(longest, (from === 0 ? sinceNewline : 0) + nl - from);
-        from = nl + 1;
+      // No line can be longer than what came since the last line end; only when that could
+      // pass the limit are the line ends looked for here.
+      if (sinceNewline + chunk.length > maxLine) {
+        let from = 0;
+        for (let nl = chunk.indexOf(10); nl >= 0; nl = chunk.indexOf(10, from)) {
+          longest = Math.max(longest, (from === 0 ? sinceNewline : 0) + nl - from);
+          from = nl + 1;
+        }
+        sinceNewline = (from === 0 ? sinceNewline : 0) + chunk.length - from;
+      } else {
+        const nl = chunk.lastIndexOf(10);
+        sinceNewline = nl < 0 ? sinceNewline + chunk.length : chunk.length - nl - 1;
       }
-      sinceNewline = (from === 0 ? sinceNewline : 0) + chunk.length - from;
       starts.length = 0;
       ends.length = 0;
       lines.length = 0;

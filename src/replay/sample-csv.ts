@@ -122,12 +122,12 @@ export function parseSampleLine(line: string): SampleRecord {
   // Only ASCII can be a valid row; other text goes straight to the rules and their message.
   if (Buffer.byteLength(line, 'utf8') !== line.length) return parseByRules(line);
   const bytes = Buffer.from(line, 'latin1');
-  return fastRows.read(bytes, 0, bytes.length) ?? parseByRules(line);
+  return readFast(bytes, 0, bytes.length) ?? parseByRules(line);
 }
 
 /** The row in `bytes` from `start` to `end` (ASCII, without its line end); as parseSampleLine. */
 export function parseSampleBytes(bytes: Buffer, start: number, end: number): SampleRecord {
-  return fastRows.read(bytes, start, end) ?? parseByRules(bytes.toString('latin1', start, end));
+  return readFast(bytes, start, end) ?? parseByRules(bytes.toString('latin1', start, end));
 }
 
 function parseByRules(line: string): SampleRecord {
@@ -162,13 +162,6 @@ function parseByRules(line: string): SampleRecord {
   };
 }
 
-/*
- * The fast way through a row as the daemon writes it, in one pass over its bytes without
- * splitting, strings or regular expressions: a recompute reads millions. It takes only what the
- * rules above surely accept, with the values they give, and hands anything else (quotes,
- * exponents, odd widths, every fault) back to them, so results and messages are the rules' own.
- */
-
 const POW10 = [1, 10, 100, 1e3, 1e4, 1e5, 1e6, 1e7, 1e8, 1e9, 1e10, 1e11, 1e12, 1e13, 1e14, 1e15];
 const STATE_BYTES = [...STATES].map((s) => ({ text: s, bytes: Buffer.from(s, 'latin1') }));
 const COUNT_MAX = 2 ** 24 - 1;
@@ -183,140 +176,154 @@ function hexDigit(c: number): number {
   return c >= 48 && c <= 57 ? c - 48 : c >= 65 && c <= 70 ? c - 55 : c >= 97 && c <= 102 ? c - 87 : -1;
 }
 
-class FastRowReader {
-  private b: Buffer = Buffer.alloc(0);
-  private end = 0;
-  /** Where the next field starts. */
-  private at = 0;
-  /** Cleared by a field the fast way does not take. */
-  private fast = true;
-  /** A validated `YYYY-MM-DDTHH:` (hour 00-23): any minute and second of that hour is a valid time. */
-  private hourPrefix = Buffer.alloc(0);
-  private calibrationId = 'none';
-  private calibrationIdBytes = Buffer.from('none', 'latin1');
+// The reader's place in the row and whether the row is still on the fast way: module state
+// rather than an object's fields, which the hot loops below would have to load through `this`.
+/** Where the next field starts. */
+let at = 0;
+/** Cleared by a field the fast way does not take. */
+let fast = true;
+/** A validated `YYYY-MM-DDTHH:` (hour 00-23): any minute and second of that hour is a valid time. */
+let hourPrefix = Buffer.alloc(0);
+let hourPrefixText = '';
+let knownId = 'none';
+let knownIdBytes = Buffer.from('none', 'latin1');
 
-  /** A field of digits (leading zeros allowed, as /^\d+$/) up to `max`, ending in a comma. */
-  private whole(max: number): number {
-    const b = this.b;
-    const start = this.at;
-    let v = 0;
-    let i = start;
-    for (; i < this.end; i++) {
-      const c = b[i]!;
-      if (c === 44) break;
-      if (c < 48 || c > 57) return (this.fast = false), 0;
-      v = v * 10 + (c - 48);
-    }
-    if (i === start || i === this.end || v > max) return (this.fast = false), 0;
-    this.at = i + 1;
-    return v;
+/** A field of digits (leading zeros allowed, as /^\d+$/) up to `max`, ending in a comma before `end`. */
+function fastWhole(b: Buffer, end: number, max: number): number {
+  const start = at;
+  let v = 0;
+  let i = start;
+  for (; i < end; i++) {
+    const c = b[i]!;
+    if (c === 44) break;
+    if (c < 48 || c > 57) return (fast = false), 0;
+    v = v * 10 + (c - 48);
   }
-
-  /**
-   * `-?digits`, `-?digits.` or `-?digits.digits`, ending in a comma; empty gives NaN where
-   * allowed. Up to 15 digits the value is their integer over a power of ten, both exact, so the
-   * one rounding of the division gives the same double as Number(); longer ones go to Number().
-   */
-  private decimal(emptyIsNaN: boolean): number {
-    const b = this.b;
-    const start = this.at;
-    let i = start;
-    const negative = b[i] === 45;
-    if (negative) i++;
-    const first = i;
-    let point = -1;
-    let mantissa = 0;
-    for (; i < this.end; i++) {
-      const c = b[i]!;
-      if (c === 44) break;
-      if (c === 46 && point < 0) {
-        point = i;
-        continue;
-      }
-      if (c < 48 || c > 57) return (this.fast = false), 0;
-      mantissa = mantissa * 10 + (c - 48);
-    }
-    if (i === this.end) return (this.fast = false), 0;
-    if (i === start && emptyIsNaN) {
-      this.at = i + 1;
-      return Number.NaN;
-    }
-    if (i === first || point === first) return (this.fast = false), 0;
-    this.at = i + 1;
-    const digits = i - first - (point < 0 ? 0 : 1);
-    if (digits > 15) return Number(b.toString('latin1', start, i));
-    const value = point < 0 ? mantissa : mantissa / POW10[i - point - 1]!;
-    return negative ? -value : value;
-  }
-
-  private twoDigits(i: number, max: number): boolean {
-    const a = this.b[i]! - 48;
-    const c = this.b[i + 1]! - 48;
-    return a >= 0 && a <= 9 && c >= 0 && c <= 9 && a * 10 + c <= max;
-  }
-
-  /** `YYYY-MM-DDTHH:MM:SS.sssZ`; a new date and hour is checked by Date.parse once. */
-  private wallTime(): string {
-    const b = this.b;
-    const i = this.at;
-    if (i + 24 >= this.end || b[i + 24] !== 44 || b[i + 23] !== 90 || b[i + 16] !== 58 || b[i + 19] !== 46) return (this.fast = false), '';
-    if (!this.twoDigits(i + 14, 59) || !this.twoDigits(i + 17, 59) || !this.twoDigits(i + 20, 99) || !this.twoDigits(i + 21, 99)) return (this.fast = false), '';
-    if (this.hourPrefix.length === 0 || !holds(b, i, this.hourPrefix)) {
-      const prefix = b.toString('latin1', i, i + 14);
-      if (!/^\d{4}-\d{2}-\d{2}T\d{2}:$/.test(prefix) || !this.twoDigits(i + 11, 23) || !Number.isFinite(Date.parse(`${prefix}00:00.000Z`))) return (this.fast = false), '';
-      this.hourPrefix = Buffer.from(prefix, 'latin1');
-    }
-    this.at = i + 25;
-    return b.toString('latin1', i, i + 24);
-  }
-
-  read(bytes: Buffer, start: number, end: number): SampleRecord | null {
-    this.b = bytes;
-    this.end = end;
-    this.at = start;
-    this.fast = true;
-    const hostS = this.decimal(false);
-    if (!this.fast) return null;
-    const wallTime = this.wallTime();
-    if (!this.fast) return null;
-    const channel = this.whole(15);
-    const seq = this.whole(65535);
-    const tickMs = this.whole(4294967295);
-    const vRaw = this.whole(COUNT_MAX);
-    const iRaw = this.whole(COUNT_MAX);
-    const tRaw = this.whole(COUNT_MAX);
-    if (!this.fast) return null;
-    const at = this.at;
-    if (at + 2 >= end) return null;
-    const hi = hexDigit(bytes[at]!);
-    const two = bytes[at + 2] === 44;
-    const lo = two ? hexDigit(bytes[at + 1]!) : 0;
-    if (hi < 0 || lo < 0 || (!two && bytes[at + 1] !== 44)) return null;
-    const flags = two ? hi * 16 + lo : hi;
-    this.at = at + (two ? 3 : 2);
-    const volts = this.decimal(true);
-    const amps = this.decimal(true);
-    const celsius = this.decimal(true);
-    const chargeAh = this.decimal(false);
-    const energyWh = this.decimal(false);
-    if (!this.fast) return null;
-    const stateAt = this.at;
-    const comma = bytes.indexOf(44, stateAt);
-    if (comma < 0 || comma >= end) return null;
-    let state: string | null = null;
-    for (const s of STATE_BYTES) if (comma - stateAt === s.bytes.length && holds(bytes, stateAt, s.bytes)) state = s.text;
-    if (state === null) return null;
-    const idStart = comma + 1;
-    const known = this.calibrationIdBytes;
-    if (end - idStart !== known.length || !holds(bytes, idStart, known)) {
-      const id = bytes.toString('latin1', idStart, end);
-      if (!/^(none|[0-9a-f]{16})$/.test(id)) return null;
-      this.calibrationId = id;
-      this.calibrationIdBytes = Buffer.from(id, 'latin1');
-    }
-    const calibrationId = this.calibrationId;
-    return { hostS, wallTime, channel, seq, tickMs, vRaw, iRaw, tRaw, flags, volts, amps, celsius, chargeAh, energyWh, state, calibrationId };
-  }
+  if (i === start || i === end || v > max) return (fast = false), 0;
+  at = i + 1;
+  return v;
 }
 
-const fastRows = new FastRowReader();
+/**
+ * `-?digits`, `-?digits.` or `-?digits.digits`, ending in a comma; empty gives NaN where
+ * allowed. Up to 15 digits the value is their integer over a power of ten, both exact, so the
+ * one rounding of the division gives the same double as Number(); longer ones go to Number().
+ */
+function fastDecimal(b: Buffer, end: number, emptyIsNaN: boolean): number {
+  const start = at;
+  let i = start;
+  const negative = b[i] === 45;
+  if (negative) i++;
+  const first = i;
+  let point = -1;
+  let mantissa = 0;
+  for (; i < end; i++) {
+    const c = b[i]!;
+    if (c === 44) break;
+    if (c === 46 && point < 0) {
+      point = i;
+      continue;
+    }
+    if (c < 48 || c > 57) return (fast = false), 0;
+    mantissa = mantissa * 10 + (c - 48);
+  }
+  if (i === end) return (fast = false), 0;
+  if (i === start && emptyIsNaN) {
+    at = i + 1;
+    return Number.NaN;
+  }
+  if (i === first || point === first) return (fast = false), 0;
+  at = i + 1;
+  const digits = i - first - (point < 0 ? 0 : 1);
+  if (digits > 15) return Number(b.toString('latin1', start, i));
+  const value = point < 0 ? mantissa : mantissa / POW10[i - point - 1]!;
+  return negative ? -value : value;
+}
+
+function twoDigits(b: Buffer, i: number, max: number): boolean {
+  const hi = b[i]! - 48;
+  const lo = b[i + 1]! - 48;
+  return hi >= 0 && hi <= 9 && lo >= 0 && lo <= 9 && hi * 10 + lo <= max;
+}
+
+/** `YYYY-MM-DDTHH:MM:SS.sssZ`; a new date and hour is checked by Date.parse once. */
+function wallTime(b: Buffer, end: number): string {
+  const i = at;
+  if (i + 24 >= end || b[i + 24] !== 44 || b[i + 23] !== 90 || b[i + 16] !== 58 || b[i + 19] !== 46) return (fast = false), '';
+  if (!twoDigits(b, i + 14, 59) || !twoDigits(b, i + 17, 59) || !twoDigits(b, i + 20, 99) || !twoDigits(b, i + 21, 99)) return (fast = false), '';
+  if (hourPrefix.length === 0 || !holds(b, i, hourPrefix)) {
+    const prefix = b.toString('latin1', i, i + 14);
+    if (!/^\d{4}-\d{2}-\d{2}T\d{2}:$/.test(prefix) || !twoDigits(b, i + 11, 23) || !Number.isFinite(Date.parse(`${prefix}00:00.000Z`))) return (fast = false), '';
+    hourPrefix = Buffer.from(prefix, 'latin1');
+    hourPrefixText = prefix;
+  }
+  at = i + 25;
+  // The same text as the bytes, from pieces already made: no string is decoded per row.
+  const minute = (b[i + 14]! - 48) * 10 + b[i + 15]! - 48;
+  const second = (b[i + 17]! - 48) * 10 + b[i + 18]! - 48;
+  const milli = (b[i + 20]! - 48) * 100 + (b[i + 21]! - 48) * 10 + b[i + 22]! - 48;
+  return hourPrefixText + MINUTE_SECOND[minute * 60 + second]! + MILLI_Z[milli]!;
+}
+
+const pad = (n: number, width: number): string => String(n).padStart(width, '0');
+/** `MM:SS.` for every minute and second of an hour, and `sssZ` for every millisecond. */
+const MINUTE_SECOND = Array.from({ length: 3600 }, (_, k) => `${pad(Math.floor(k / 60), 2)}:${pad(k % 60, 2)}.`);
+const MILLI_Z = Array.from({ length: 1000 }, (_, k) => `${pad(k, 3)}Z`);
+
+/*
+ * The fast way through a row as the daemon writes it, in one pass over its bytes without
+ * splitting or regular expressions: a recompute reads millions. It takes only what the rules
+ * above surely accept, with the values they give, and hands anything else (quotes, exponents,
+ * odd widths, every fault) back to them, so results and messages are the rules' own.
+ */
+function readFast(b: Buffer, start: number, end: number): SampleRecord | null {
+  at = start;
+  fast = true;
+  const hostS = fastDecimal(b, end, false);
+  if (!fast) return null;
+  const wall = wallTime(b, end);
+  if (!fast) return null;
+  const channel = fastWhole(b, end, 15);
+  const seq = fastWhole(b, end, 65535);
+  const tickMs = fastWhole(b, end, 4294967295);
+  const vRaw = fastWhole(b, end, COUNT_MAX);
+  const iRaw = fastWhole(b, end, COUNT_MAX);
+  const tRaw = fastWhole(b, end, COUNT_MAX);
+  if (!fast) return null;
+  const f = at;
+  if (f + 2 >= end) return null;
+  const hi = hexDigit(b[f]!);
+  const two = b[f + 2] === 44;
+  const lo = two ? hexDigit(b[f + 1]!) : 0;
+  if (hi < 0 || lo < 0 || (!two && b[f + 1] !== 44)) return null;
+  const flags = two ? hi * 16 + lo : hi;
+  at = f + (two ? 3 : 2);
+  const volts = fastDecimal(b, end, true);
+  const amps = fastDecimal(b, end, true);
+  const celsius = fastDecimal(b, end, true);
+  const chargeAh = fastDecimal(b, end, false);
+  const energyWh = fastDecimal(b, end, false);
+  if (!fast) return null;
+  const stateAt = at;
+  let comma = stateAt;
+  while (comma < end && b[comma] !== 44) comma++;
+  if (comma === end) return null;
+  let state: string | null = null;
+  for (const s of STATE_BYTES) {
+    if (comma - stateAt === s.bytes.length && holds(b, stateAt, s.bytes)) {
+      state = s.text;
+      break;
+    }
+  }
+  if (state === null) return null;
+  const idStart = comma + 1;
+  if (end - idStart !== knownIdBytes.length || !holds(b, idStart, knownIdBytes)) {
+    const id = b.toString('latin1', idStart, end);
+    if (!/^(none|[0-9a-f]{16})$/.test(id)) return null;
+    knownId = id;
+    knownIdBytes = Buffer.from(id, 'latin1');
+  }
+  return { hostS, wallTime: wall, channel, seq, tickMs, vRaw, iRaw, tRaw, flags, volts, amps, celsius, chargeAh, energyWh, state, calibrationId: knownId };
+}
+
+

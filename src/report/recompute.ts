@@ -140,6 +140,9 @@ export class RunRecompute {
   private readonly codesI = new DistinctCodes();
   private readonly codesV = new DistinctCodes();
   private readonly liveIds = new Set<string>();
+  private lastId: string | null = null;
+  private lastTRaw = -1;
+  private lastCelsius = Number.NaN;
   private readonly stepPerCellV: number;
   private rows = 0;
   private ended = false;
@@ -184,13 +187,21 @@ export class RunRecompute {
 
   sample(s: SampleRecord): void {
     this.rows++;
-    this.liveIds.add(s.calibrationId);
+    if (s.calibrationId !== this.lastId) {
+      this.lastId = s.calibrationId;
+      this.liveIds.add(s.calibrationId);
+    }
     const c = this.corrector;
     const chain = this.chain;
     const nominalA = chain.amps(s.iRaw);
     const volts = c.voltage(chain.volts(s.vRaw));
     const amps = c.current(nominalA);
-    const celsius = chain.thermistorState(s.tRaw) === 'ok' ? c.temperature(chain.celsius(s.tRaw)) : Number.NaN;
+    // The temperature count moves slowly: the thermistor's logarithm is taken once per count seen in a row.
+    if (s.tRaw !== this.lastTRaw) {
+      this.lastTRaw = s.tRaw;
+      this.lastCelsius = chain.thermistorState(s.tRaw) === 'ok' ? c.temperature(chain.celsius(s.tRaw)) : Number.NaN;
+    }
+    const celsius = this.lastCelsius;
     const loadOn = (s.flags & FLAG_LOAD_ON) !== 0;
     const hostMs = s.hostS * 1000;
     const prev = this.prev;
@@ -249,7 +260,11 @@ export class RunRecompute {
       const onA = loadOn ? nominalA : 0;
       this.nominalAh += ((this.prevNominalA + onA) / 2) * (dtMs / 3_600_000);
       this.prevNominalA = onA;
-      this.liveTotals = { chargeAh: s.chargeAh, energyWh: s.energyWh };
+      if (this.liveTotals === null) this.liveTotals = { chargeAh: s.chargeAh, energyWh: s.energyWh };
+      else {
+        this.liveTotals.chargeAh = s.chargeAh;
+        this.liveTotals.energyWh = s.energyWh;
+      }
       this.measure(s, prev, volts, amps, celsius, loadOn, fresh);
       this.lastWall = s.wallTime;
     }
