@@ -1,7 +1,7 @@
 /**
  * Figure 1, ingest: frames written into a pseudo-terminal at full speed, read by the whole
  * daemon (serial source, codec, time base, chain, calibration, session, sample and event logs,
- * live hub and server with one WebSocket viewer), against a bare serialport + readline reader
+ * its own live feed with one WebSocket viewer), against a bare serialport + readline reader
  * of the same stream that does nothing with the lines. Target: at least half its rate.
  */
 import { fork } from 'node:child_process';
@@ -23,9 +23,6 @@ import {
   startPtyPair,
   waitFor,
   type DaemonModule,
-  type LiveHubModule,
-  type LiveLinkModule,
-  type LiveServerModule,
   type PtyPair,
 } from './bench-kit.js';
 
@@ -98,20 +95,15 @@ interface PipelineRun {
 
 async function daemonRun(pty: PtyPair, work: string, calibrationPath: string): Promise<PipelineRun> {
   const { startRun } = await product<DaemonModule>('run/daemon.js');
-  const { LiveHub } = await product<LiveHubModule>('live/live-hub.js');
-  const { startLiveServer } = await product<LiveServerModule>('live/live-server.js');
-  const { toLiveSample } = await product<LiveLinkModule>('run/live-link.js');
   const runs = mkdtempSync(join(work, 'runs-'));
-  // The daemon does not serve the live feed itself yet: the hub and server are wired to it
-  // here through its observer interface, as the daemon will do.
-  const hub = new LiveHub();
-  const live = await startLiveServer({ hub, listen: '127.0.0.1:0', tokenStore: { control: 'c'.repeat(64), viewer: null } });
+  // The live feed's tokens file goes to the scratch folder, not the user's configuration.
+  process.env['CELLVIGIL_HOME'] = join(work, 'home');
   const handle = await startRun(
     {
       port: pty.host,
       speed: 1,
       runs,
-      listen: null,
+      listen: '127.0.0.1:0',
       once: true,
       fresh: true,
       linkTimeoutS: 60,
@@ -124,27 +116,13 @@ async function daemonRun(pty: PtyPair, work: string, calibrationPath: string): P
     },
     { out: nullStream(), err: nullStream() },
   );
-  const cfg = handle.config;
-  hub.setRun({
-    label: 'bench-ingest',
-    run_folder: handle.folder,
-    chemistry: cfg.chemistry.id,
-    cells: cfg.cells,
-    cutoff_V: cfg.cutoff.total,
-    floor_V: cfg.floorV,
-    calibration_id: cfg.calibration?.id ?? 'none',
-    started_wall: new Date().toISOString(),
-    source: handle.source.description,
-    max_temperature_C: cfg.maxTemperatureC,
-  });
   let n = 0;
   let t0 = 0;
   let t1 = 0;
   let elu0 = performance.eventLoopUtilization();
   let elu = 0;
   handle.addObserver({
-    sample: (row, loadOn) => {
-      hub.sample(toLiveSample(row, loadOn));
+    sample: (row) => {
       if ((row.flags & 1) === 0) return;
       n++;
       if (n === 1) {
@@ -156,12 +134,8 @@ async function daemonRun(pty: PtyPair, work: string, calibrationPath: string): P
         elu = performance.eventLoopUtilization(elu0).utilization;
       }
     },
-    event: (rec) => {
-      if (rec.event === 'state') hub.state({ host_s: rec.host_s, from: String(rec['from']), to: String(rec['to']), why: String(rec['why']) });
-    },
-    ended: (result) => hub.result({ ...result }),
   });
-  const feeder = startFeeder(['--port', pty.rig, '--mode', 'rig', '--rest', String(REST), '--flood', String(FLOOD), '--viewer', `${live.url.replace(/^http/, 'ws')}live`]);
+  const feeder = startFeeder(['--port', pty.rig, '--mode', 'rig', '--rest', String(REST), '--flood', String(FLOOD), '--viewer', `${handle.liveUrl!.replace(/^http/, 'ws')}live`]);
   await feeder.said('ready');
   feeder.tell({ type: 'go' });
   await waitFor(() => n >= FLOOD, 180_000, 'the daemon to take every flood frame');
@@ -170,7 +144,7 @@ async function daemonRun(pty: PtyPair, work: string, calibrationPath: string): P
   const outcome = await handle.done;
   const viewer = (await feeder.said('viewer')) as Extract<FeederToParent, { type: 'viewer' }>;
   await feeder.exited;
-  await live.close();
+  await handle.closeLive();
   rmSync(runs, { recursive: true, force: true });
   return {
     rate: rate(FLOOD, t0, t1),
