@@ -32,3 +32,41 @@ export function isoTime(ms: number): string {
   lastMs = ms;
   return lastText;
 }
+
+/** `YYYY-MM-DDTHH:` of bytePrefixHour, as bytes. */
+let bytePrefixHour = Number.NaN;
+let bytePrefix = Buffer.alloc(0);
+
+function writeTwo(buf: Uint8Array, at: number, n: number): void {
+  const tens = Math.floor(n / 10);
+  buf[at] = 48 + tens;
+  buf[at + 1] = 48 + n - tens * 10;
+}
+
+/**
+ * The text of isoTime(ms) written as bytes into `buf` at `at` (24 bytes on the fast way);
+ * returns the position after it. The sample log writes one per frame.
+ */
+export function writeIsoTime(buf: Buffer, at: number, ms: number): number {
+  if (!Number.isInteger(ms) || ms < 0 || ms >= YEAR_10000_MS) return at + buf.write(isoTime(ms), at, 'latin1');
+  const hour = Math.floor(ms / HOUR_MS);
+  if (hour !== bytePrefixHour) {
+    bytePrefix = Buffer.from(new Date(hour * HOUR_MS).toISOString().slice(0, 14), 'latin1');
+    bytePrefixHour = hour;
+  }
+  for (let k = 0; k < 14; k++) buf[at + k] = bytePrefix[k]!;
+  const inHour = ms - hour * HOUR_MS;
+  const minutes = Math.floor(inHour / 60_000);
+  const inMinute = inHour - minutes * 60_000;
+  const seconds = Math.floor(inMinute / 1000);
+  const millis = inMinute - seconds * 1000;
+  writeTwo(buf, at + 14, minutes);
+  buf[at + 16] = 58;
+  writeTwo(buf, at + 17, seconds);
+  buf[at + 19] = 46;
+  const hundreds = Math.floor(millis / 100);
+  buf[at + 20] = 48 + hundreds;
+  writeTwo(buf, at + 21, millis - hundreds * 100);
+  buf[at + 23] = 90;
+  return at + 24;
+}

@@ -1,5 +1,5 @@
 import { writeFixed, writeText, writeUint } from './ascii-writer.js';
-import { isoTime } from './iso-time.js';
+import { writeIsoTime } from './iso-time.js';
 
 /** The columns of samples-NNNN.csv (DESIGN.md "Run folder"); the order is a contract. */
 export const SAMPLE_COLUMNS = [
@@ -52,6 +52,24 @@ export function sampleRowMaxBytes(r: SampleRow): number {
 
 const COMMA = 44;
 
+/** A text field that rarely changes (the state, the calibration id), kept as its bytes. */
+interface CachedText {
+  text: string | null;
+  bytes: Buffer;
+}
+const stateText: CachedText = { text: null, bytes: Buffer.alloc(0) };
+const idText: CachedText = { text: null, bytes: Buffer.alloc(0) };
+
+function writeCached(c: CachedText, buf: Buffer, at: number, text: string): number {
+  if (c.text !== text) {
+    c.text = text;
+    c.bytes = Buffer.from(text, 'utf8');
+  }
+  const bytes = c.bytes;
+  for (let k = 0; k < bytes.length; k++) buf[at + k] = bytes[k]!;
+  return at + bytes.length;
+}
+
 /** An empty field for a reading that is not a number (an open thermistor). */
 function writeReading(buf: Buffer, at: number, x: number, digits: number): number {
   return Number.isFinite(x) ? writeFixed(buf, at, x, digits) : at;
@@ -69,7 +87,7 @@ function hexDigit(n: number): number {
 export function writeSampleRow(r: SampleRow, buf: Buffer, at: number): number {
   let p = writeFixed(buf, at, r.hostS, 3);
   buf[p++] = COMMA;
-  p = writeText(buf, p, isoTime(r.wallMs));
+  p = writeIsoTime(buf, p, r.wallMs);
   buf[p++] = COMMA;
   p = writeUint(buf, p, r.channel);
   buf[p++] = COMMA;
@@ -99,9 +117,9 @@ export function writeSampleRow(r: SampleRow, buf: Buffer, at: number): number {
   buf[p++] = COMMA;
   p = writeFixed(buf, p, r.energyWh, 7);
   buf[p++] = COMMA;
-  p = writeText(buf, p, r.state);
+  p = writeCached(stateText, buf, p, r.state);
   buf[p++] = COMMA;
-  p = writeText(buf, p, r.calibrationId);
+  p = writeCached(idText, buf, p, r.calibrationId);
   buf[p++] = 10;
   return p;
 }

@@ -1,7 +1,7 @@
 import fc from 'fast-check';
 import { describe, expect, it } from 'vitest';
 import { writeFixed, writeText, writeUint } from '../../src/sinks/ascii-writer.js';
-import { isoTime } from '../../src/sinks/iso-time.js';
+import { isoTime, writeIsoTime } from '../../src/sinks/iso-time.js';
 import { formatSampleRow, type SampleRow } from '../../src/sinks/sample-row.js';
 
 /** What writeFixed puts in a buffer, as text. */
@@ -72,6 +72,8 @@ describe('isoTime matches Date.prototype.toISOString (ECMA-262)', () => {
     fc.assert(
       fc.property(fc.oneof(fc.integer({ min: 0, max: 253_402_300_799_999 }), fc.double({ min: 0, max: 4e12, noNaN: true })), (ms) => {
         expect(isoTime(ms)).toBe(new Date(ms).toISOString());
+        const buf = Buffer.alloc(40);
+        expect(buf.toString('latin1', 3, writeIsoTime(buf, 3, ms))).toBe(new Date(ms).toISOString());
       }),
       { numRuns: 20_000 },
     );
@@ -79,7 +81,13 @@ describe('isoTime matches Date.prototype.toISOString (ECMA-262)', () => {
 
   it('across hour, day and year boundaries, and before 1970', () => {
     const base = Date.UTC(2026, 11, 31, 23, 59, 59, 990);
-    for (let ms = base - 50; ms < base + 50; ms++) expect(isoTime(ms)).toBe(new Date(ms).toISOString());
+    const buf = Buffer.alloc(40);
+    const written = (ms: number): string => buf.toString('latin1', 0, writeIsoTime(buf, 0, ms));
+    for (let ms = base - 50; ms < base + 50; ms++) {
+      expect(isoTime(ms)).toBe(new Date(ms).toISOString());
+      expect(written(ms)).toBe(new Date(ms).toISOString());
+    }
+    for (const ms of [-1, -86_400_001, 253_402_300_800_000, 0.5]) expect(written(ms)).toBe(new Date(ms).toISOString());
     for (const ms of [-1, -86_400_001, Date.UTC(2028, 1, 29, 12), 253_402_300_799_999, 253_402_300_800_000, 253_402_304_400_007]) expect(isoTime(ms)).toBe(new Date(ms).toISOString());
     expect(() => isoTime(Number.NaN)).toThrow(RangeError);
   });
