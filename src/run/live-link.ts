@@ -77,7 +77,23 @@ export async function startLiveLink(o: LiveLinkOptions): Promise<LiveLink> {
     o.print(`  control token (stop, set-cutoff, mark): ${tokens.tokens.control}`);
     o.print(`  viewer token (watching from another machine): ${tokens.tokens.viewer}`);
   }
+  // The hub takes the newest sample of each event-loop turn: a rig's frames arrive one per turn
+  // and all reach it, while a burst read from the port in one chunk is not turned into a
+  // hundred live samples that no viewer would be sent. Events and the result pass the pending
+  // sample on first, so the feed keeps the log's order.
+  let pendingRow: SampleRow | null = null;
+  let pendingLoadOn = false;
+  let queued: NodeJS.Immediate | null = null;
+  const passSample = (): void => {
+    if (queued) clearImmediate(queued);
+    queued = null;
+    if (pendingRow === null) return;
+    const row = pendingRow;
+    pendingRow = null;
+    hub.sample(toLiveSample(row, pendingLoadOn));
+  };
   const event = (rec: EventRecord): void => {
+    passSample();
     const d = rec as Record<string, unknown>;
     if (rec.event === 'state') {
       const why = String(d['why'] ?? '');
@@ -94,9 +110,16 @@ export async function startLiveLink(o: LiveLinkOptions): Promise<LiveLink> {
   return {
     server,
     observer: {
-      sample: (row, loadOn) => hub.sample(toLiveSample(row, loadOn)),
+      sample: (row, loadOn) => {
+        pendingRow = row;
+        pendingLoadOn = loadOn;
+        queued ??= setImmediate(passSample);
+      },
       event,
-      ended: (result) => hub.result(result as unknown as Record<string, unknown>),
+      ended: (result) => {
+        passSample();
+        hub.result(result as unknown as Record<string, unknown>);
+      },
     },
   };
 }
