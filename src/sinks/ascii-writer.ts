@@ -9,21 +9,49 @@ const POW10 = [1, 10, 100, 1e3, 1e4, 1e5, 1e6, 1e7, 1e8, 1e9];
 /** Below 2^52 every half is a double and a double's fraction is exact after subtracting its floor. */
 const EXACT_LIMIT = 2 ** 52;
 
+/** "00" to "99" as byte pairs: two digits per division rather than one. */
+const PAIRS = (() => {
+  const t = new Uint8Array(200);
+  for (let i = 0; i < 100; i++) {
+    t[2 * i] = 48 + Math.floor(i / 10);
+    t[2 * i + 1] = 48 + (i % 10);
+  }
+  return t;
+})();
+
+/** Decimal digits of a whole number 0 ≤ n < 10^16. */
+function digitCount(n: number): number {
+  let d = 1;
+  while (d < 16 && n >= POW10_16[d]!) d++;
+  return d;
+}
+const POW10_16 = Array.from({ length: 16 }, (_, k) => 10 ** k);
+
+/** The last `count` decimal digits of n (zero-padded), ending just before `end`. */
+function writeDigits(buf: Uint8Array, end: number, n: number, count: number): void {
+  let p = end;
+  let left = count;
+  let q = n;
+  while (left >= 2) {
+    const next = Math.floor(q / 100);
+    const pair = 2 * (q - next * 100);
+    buf[--p] = PAIRS[pair + 1]!;
+    buf[--p] = PAIRS[pair]!;
+    q = next;
+    left -= 2;
+  }
+  if (left === 1) buf[--p] = 48 + (q % 10);
+}
+
 /** A whole number 0 ≤ n < 2^53, in decimal. */
 export function writeUint(buf: Uint8Array, at: number, n: number): number {
   if (n < 10) {
     buf[at] = 48 + n;
     return at + 1;
   }
-  let digits = 1;
-  for (let m = n; m >= 10; m = Math.floor(m / 10)) digits++;
-  let q = n;
-  for (let i = at + digits - 1; i >= at; i--) {
-    const next = Math.floor(q / 10);
-    buf[i] = 48 + (q - next * 10);
-    q = next;
-  }
-  return at + digits;
+  const count = digitCount(n);
+  writeDigits(buf, at + count, n, count);
+  return at + count;
 }
 
 /** Text of up to 0x7f per character; anything wider goes in as UTF-8. */
@@ -57,11 +85,6 @@ export function writeFixed(buf: Buffer, at: number, x: number, digits: number): 
   p = writeUint(buf, p, intPart);
   if (digits === 0) return p;
   buf[p++] = 46;
-  let fracPart = n - intPart * scale;
-  for (let i = p + digits - 1; i >= p; i--) {
-    const next = Math.floor(fracPart / 10);
-    buf[i] = 48 + (fracPart - next * 10);
-    fracPart = next;
-  }
+  writeDigits(buf, p + digits, n - intPart * scale, digits);
   return p + digits;
 }
