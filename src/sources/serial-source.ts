@@ -11,8 +11,8 @@ export interface SerialSourceOptions {
   maxRetryMs?: number;
 }
 
-/** Chunks read but not yet handed to the core before the port is paused (a pty gives 4 KiB at most). */
-const MAX_PENDING_CHUNKS = 8;
+/** Bytes read but not yet handed to the core before the port is paused. */
+const MAX_PENDING_BYTES = 256 * 1024;
 
 /**
  * A real device or a pseudo-terminal, through serialport's native binding. A port that goes
@@ -55,18 +55,21 @@ export class SerialSource implements Source {
     const splitter = new LineSplitter({ onLine: (line) => handlers.line(line), onOverlong: (n) => handlers.overlong(n) });
     // Chunks are split and handed over in the next turn, not inside the read's callback: the
     // port's next read is then already under way while the core works on this one. A few
-    // chunks at most wait; past that the port is paused until they are done.
+    // hundred KiB at most wait; past that the port is paused until they are done.
     const pending: Buffer[] = [];
+    let pendingBytes = 0;
     let drainQueued: NodeJS.Immediate | null = null;
     let gone = false;
     const drain = (): void => {
       drainQueued = null;
+      pendingBytes = 0;
       for (const chunk of pending.splice(0)) splitter.write(chunk);
       if (!gone && port.isPaused()) port.resume();
     };
     const onData = (chunk: Buffer): void => {
       pending.push(chunk);
-      if (pending.length >= MAX_PENDING_CHUNKS) port.pause();
+      pendingBytes += chunk.length;
+      if (pendingBytes >= MAX_PENDING_BYTES) port.pause();
       drainQueued ??= setImmediate(drain);
     };
     port.on('data', onData);
