@@ -38,27 +38,25 @@ type ChildMessage = { type: 'open' } | { type: 'latencies'; ms: number[] };
 
 /** The viewers' process: connects, notes each sample's delay, and hands the delays over when told. */
 async function viewersChild(url: string): Promise<void> {
-  // Each receipt is noted as it comes and read afterwards, so the viewers' own parsing does not
-  // hold up the sockets still waiting to be read.
-  const receipts: Array<{ at: number; data: Buffer }> = [];
+  // Each receipt is noted as it comes, without a string or an object per message: the time
+  // and the sample's host_s go into a preallocated array, so the viewers' own allocations and
+  // collections do not hold up the sockets still waiting to be read.
+  const HOST_S = Buffer.from('"host_s":');
+  const SAMPLE = Buffer.from('{"type":"sample"');
+  const pairs = new Float64Array(2 * (VIEWERS * RATE_HZ * (SECONDS + 2)));
+  let n = 0;
   let counting = false;
   const sockets = Array.from({ length: VIEWERS }, () => new WebSocket(url, { perMessageDeflate: false }));
   for (const ws of sockets) {
     ws.on('message', (data: Buffer) => {
       const at = clockS();
-      if (counting) receipts.push({ at, data });
+      if (!counting || n * 2 >= pairs.length || data.compare(SAMPLE, 0, SAMPLE.length, 0, SAMPLE.length) !== 0) return;
+      pairs[2 * n] = at;
+      pairs[2 * n + 1] = readNumber(data, data.indexOf(HOST_S) + HOST_S.length);
+      n++;
     });
   }
-  const delays = (): number[] => {
-    const out: number[] = [];
-    for (const { at, data } of receipts) {
-      const text = data.toString();
-      if (!text.startsWith('{"type":"sample"')) continue;
-      const h = text.indexOf('"host_s":');
-      out.push((at - parseFloat(text.slice(h + 9))) * 1000);
-    }
-    return out;
-  };
+  const delays = (): number[] => Array.from({ length: n }, (_, k) => (pairs[2 * k]! - pairs[2 * k + 1]!) * 1000);
   await Promise.all(sockets.map((ws) => new Promise<void>((resolve, reject) => (ws.once('open', () => resolve()), ws.once('error', reject)))));
   process.on('message', (m: { type: string }) => {
     if (m.type === 'count') counting = true;
@@ -68,6 +66,21 @@ async function viewersChild(url: string): Promise<void> {
     }
   });
   process.send!({ type: 'open' } satisfies ChildMessage);
+}
+
+/** The JSON number at `at` in `bytes` (digits, a point, more digits), read without a string. */
+function readNumber(bytes: Buffer, at: number): number {
+  let whole = 0;
+  let i = at;
+  for (; i < bytes.length && bytes[i]! >= 48 && bytes[i]! <= 57; i++) whole = whole * 10 + bytes[i]! - 48;
+  if (bytes[i] !== 46) return whole;
+  let frac = 0;
+  let scale = 1;
+  for (i++; i < bytes.length && bytes[i]! >= 48 && bytes[i]! <= 57; i++) {
+    frac = frac * 10 + bytes[i]! - 48;
+    scale *= 10;
+  }
+  return whole + frac / scale;
 }
 
 /** Starts the viewers' process on `url`; resolves once every viewer is connected. */
