@@ -85,43 +85,30 @@ function hexDigit(n: number): number {
  * needs quoting.
  */
 export function writeSampleRow(r: SampleRow, buf: Buffer, at: number): number {
-  let p = writeFixed(buf, at, r.hostS, 3);
-  buf[p++] = COMMA;
-  p = writeIsoTime(buf, p, r.wallMs);
-  buf[p++] = COMMA;
-  p = writeUint(buf, p, r.channel);
-  buf[p++] = COMMA;
-  p = writeUint(buf, p, r.seq);
-  buf[p++] = COMMA;
-  p = writeUint(buf, p, r.tickMs);
-  buf[p++] = COMMA;
-  p = writeUint(buf, p, r.vRaw);
-  buf[p++] = COMMA;
-  p = writeUint(buf, p, r.iRaw);
-  buf[p++] = COMMA;
-  p = writeUint(buf, p, r.tRaw);
-  buf[p++] = COMMA;
+  let p = comma(buf, writeFixed(buf, at, r.hostS, 3));
+  p = comma(buf, writeIsoTime(buf, p, r.wallMs));
+  for (const n of [r.channel, r.seq, r.tickMs, r.vRaw, r.iRaw, r.tRaw]) p = comma(buf, writeUint(buf, p, n));
   if (r.flags > 0xff) p = writeText(buf, p, r.flags.toString(16).toUpperCase());
   else {
     buf[p++] = hexDigit(r.flags >> 4);
     buf[p++] = hexDigit(r.flags & 15);
   }
-  buf[p++] = COMMA;
-  p = writeReading(buf, p, r.volts, 5);
-  buf[p++] = COMMA;
-  p = writeReading(buf, p, r.amps, 5);
-  buf[p++] = COMMA;
-  p = writeReading(buf, p, r.celsius, 2);
-  buf[p++] = COMMA;
-  p = writeFixed(buf, p, r.chargeAh, 7);
-  buf[p++] = COMMA;
-  p = writeFixed(buf, p, r.energyWh, 7);
-  buf[p++] = COMMA;
-  p = writeCached(stateText, buf, p, r.state);
-  buf[p++] = COMMA;
+  p = comma(buf, p);
+  p = comma(buf, writeReading(buf, p, r.volts, 5));
+  p = comma(buf, writeReading(buf, p, r.amps, 5));
+  p = comma(buf, writeReading(buf, p, r.celsius, 2));
+  p = comma(buf, writeFixed(buf, p, r.chargeAh, 7));
+  p = comma(buf, writeFixed(buf, p, r.energyWh, 7));
+  p = comma(buf, writeCached(stateText, buf, p, r.state));
   p = writeCached(idText, buf, p, r.calibrationId);
-  buf[p++] = 10;
-  return p;
+  buf[p] = 10;
+  return p + 1;
+}
+
+/** The field separator after what ends at `at`. */
+function comma(buf: Buffer, at: number): number {
+  buf[at] = COMMA;
+  return at + 1;
 }
 
 let scratch = Buffer.alloc(1024);
