@@ -29,6 +29,8 @@ export interface LogFileOptions {
 
 /** Size of each block rows are gathered in between flushes. */
 const BLOCK_BYTES = 64 * 1024;
+/** Written blocks kept for reuse: a long run does not allocate a block per flush for ever. */
+const SPARE_BLOCKS = 8;
 
 /**
  * An append-only log written in batches off the hot path: rows are gathered as bytes in memory
@@ -38,7 +40,8 @@ const BLOCK_BYTES = 64 * 1024;
 export class LogFile {
   /** Filled blocks waiting for the next flush, and the block being filled. */
   private full: Buffer[] = [];
-  private block = Buffer.allocUnsafe(BLOCK_BYTES);
+  private block: Buffer = Buffer.allocUnsafe(BLOCK_BYTES);
+  private readonly spare: Buffer[] = [];
   private used = 0;
   private pendingBytes = 0;
   private handle: FileHandle | null = null;
@@ -71,7 +74,7 @@ export class LogFile {
     if (this.failure) throw this.failure;
     if (this.used + maxBytes > this.block.length) {
       if (this.used > 0) this.full.push(this.block.subarray(0, this.used));
-      this.block = Buffer.allocUnsafe(Math.max(BLOCK_BYTES, maxBytes));
+      this.block = maxBytes <= BLOCK_BYTES ? this.newBlock() : Buffer.allocUnsafe(maxBytes);
       this.used = 0;
     }
     const end = write(item, this.block, this.used);
@@ -84,23 +87,36 @@ export class LogFile {
 
   /** Writes and fsyncs everything queued so far; calls are serialised. */
   flush(): Promise<void> {
-    if (this.used > 0) this.full.push(this.block.subarray(0, this.used));
-    const rows = this.full.length === 1 ? this.full[0]! : Buffer.concat(this.full);
-    // The written block stays with the write under way; new rows go to a fresh one.
-    if (this.used > 0) this.block = Buffer.allocUnsafe(BLOCK_BYTES);
+    if (this.used > 0) {
+      this.full.push(this.block.subarray(0, this.used));
+      // The written block stays with the write under way; new rows go to another one.
+      this.block = this.newBlock();
+    }
+    const pieces = this.full;
     this.full = [];
     this.used = 0;
     this.pendingBytes = 0;
     this.chain = this.chain.then(async () => {
       if (this.failure) throw this.failure;
       try {
-        await this.writeRows(rows);
+        await this.writeRows(pieces);
       } catch (err) {
         this.failure = err as Error;
         throw err;
       }
+      for (const piece of pieces) this.recycle(piece);
     });
     return this.chain;
+  }
+
+  private newBlock(): Buffer {
+    return this.spare.pop() ?? Buffer.allocUnsafe(BLOCK_BYTES);
+  }
+
+  /** A written piece goes back to the spares if it is the start of one of our whole blocks. */
+  private recycle(piece: Buffer): void {
+    if (this.spare.length >= SPARE_BLOCKS || piece.byteOffset !== 0 || piece.buffer.byteLength !== BLOCK_BYTES) return;
+    this.spare.push(Buffer.from(piece.buffer, 0, BLOCK_BYTES));
   }
 
   /** Writes what is queued, closes the file and waits for compressions under way. The last file stays plain. */
@@ -154,10 +170,15 @@ export class LogFile {
     }
   }
 
-  /** Whole rows (each ending in a line feed), split across files at row ends when rotating. */
-  private async writeRows(rows: Buffer): Promise<void> {
-    if (rows.length === 0 && this.handle) return;
+  /** Blocks of whole rows (each ending in a line feed), in order; files are rotated at row ends. */
+  private async writeRows(pieces: Buffer[]): Promise<void> {
+    if (this.handle && pieces.every((p) => p.length === 0)) return;
     if (!this.handle) await this.openFile();
+    for (const rows of pieces) await this.writePiece(rows);
+    await this.handle!.sync();
+  }
+
+  private async writePiece(rows: Buffer): Promise<void> {
     let from = 0;
     const limit = this.o.rotateBytes;
     while (limit !== undefined && from < rows.length) {
@@ -179,7 +200,6 @@ export class LogFile {
       await this.openFile();
     }
     await this.writeBytes(rows.subarray(from));
-    await this.handle!.sync();
   }
 
   private async writeBytes(bytes: Buffer): Promise<void> {
