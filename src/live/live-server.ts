@@ -281,13 +281,23 @@ export async function startLiveServer(o: LiveServerOptions): Promise<LiveServer>
     dirty.clear();
   }
 
-  function send(v: Viewer, m: ServerMessage | Outgoing): void {
-    const out = m instanceof Outgoing ? m : new Outgoing(m);
+  function offer(v: Viewer, out: Outgoing): void {
     v.queue.offer(out, out.isSample);
     dirty.add(v);
+  }
+
+  /** Once per message, however many viewers it was offered to. */
+  function schedule(out: Outgoing): void {
     const wait = out.isSample ? lastFlushAt + SAMPLE_GAP_MS - performance.now() : 0;
     if (wait <= 0) immediate ??= setImmediate(flush);
     else if (!immediate) later ??= setTimeout(flush, wait);
+  }
+
+  /** A message for one viewer (its hello, an answer to its request). */
+  function send(v: Viewer, m: ServerMessage): void {
+    const out = new Outgoing(m);
+    offer(v, out);
+    schedule(out);
   }
 
   function pump(v: Viewer): void {
@@ -309,7 +319,8 @@ export async function startLiveServer(o: LiveServerOptions): Promise<LiveServer>
   const unsubscribe = o.hub.subscribe((m: BroadcastMessage) => {
     if (viewers.size === 0) return;
     const out = new Outgoing(m);
-    for (const v of viewers) send(v, out);
+    for (const v of viewers) offer(v, out);
+    schedule(out);
   });
 
   const timers: TimerHandle[] = [

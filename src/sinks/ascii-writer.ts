@@ -5,7 +5,8 @@
  * buffer and a position and returns the position after what it wrote; the caller makes room.
  * The text is exactly that of String(n), x.toFixed(digits) and the string itself.
  */
-const POW10 = [1, 10, 100, 1e3, 1e4, 1e5, 1e6, 1e7, 1e8, 1e9];
+/** 10^0 to 10^15, all exact doubles. */
+const POW10 = Array.from({ length: 16 }, (_, k) => 10 ** k);
 /** Below 2^52 every half is a double and a double's fraction is exact after subtracting its floor. */
 const EXACT_LIMIT = 2 ** 52;
 
@@ -22,10 +23,9 @@ const PAIRS = (() => {
 /** Decimal digits of a whole number 0 ≤ n < 10^16. */
 function digitCount(n: number): number {
   let d = 1;
-  while (d < 16 && n >= POW10_16[d]!) d++;
+  while (d < 16 && n >= POW10[d]!) d++;
   return d;
 }
-const POW10_16 = Array.from({ length: 16 }, (_, k) => 10 ** k);
 
 /** The last `count` decimal digits of n (zero-padded), ending just before `end`. */
 function writeDigits(buf: Uint8Array, end: number, n: number, count: number): void {
@@ -71,10 +71,11 @@ export function writeText(buf: Buffer, at: number, text: string): number {
  * on the half itself. Only that case, and huge or non-finite values, go to toFixed itself.
  */
 export function writeFixed(buf: Buffer, at: number, x: number, digits: number): number {
-  const scale = POW10[digits];
+  const scale = digits <= 9 ? POW10[digits] : undefined;
+  if (scale === undefined) return writeText(buf, at, x.toFixed(digits));
   const negative = x < 0;
-  const y = (negative ? -x : x) * scale!;
-  if (scale === undefined || !(y < EXACT_LIMIT)) return writeText(buf, at, x.toFixed(digits));
+  const y = (negative ? -x : x) * scale;
+  if (!(y < EXACT_LIMIT)) return writeText(buf, at, x.toFixed(digits));
   const whole = Math.floor(y);
   const frac = y - whole;
   if (frac === 0.5) return writeText(buf, at, x.toFixed(digits));

@@ -1,7 +1,7 @@
 import fc from 'fast-check';
 import { describe, expect, it } from 'vitest';
 import { writeFixed, writeText, writeUint } from '../../src/sinks/ascii-writer.js';
-import { isoTime, writeIsoTime } from '../../src/sinks/iso-time.js';
+import { writeIsoTime } from '../../src/sinks/iso-time.js';
 import { formatSampleRow, type SampleRow } from '../../src/sinks/sample-row.js';
 
 /** What writeFixed puts in a buffer, as text. */
@@ -67,13 +67,17 @@ describe('writeUint and writeText write the text of String(n) and of the string 
   });
 });
 
-describe('isoTime matches Date.prototype.toISOString (ECMA-262)', () => {
+/** What writeIsoTime puts in a buffer (not at its start), as text. */
+function isoTime(ms: number): string {
+  const buf = Buffer.alloc(40);
+  return buf.toString('latin1', 3, writeIsoTime(buf, 3, ms));
+}
+
+describe('writeIsoTime writes the text of Date.prototype.toISOString (ECMA-262)', () => {
   it('on any time from 1970 to 9999, whole or not, in any order', () => {
     fc.assert(
       fc.property(fc.oneof(fc.integer({ min: 0, max: 253_402_300_799_999 }), fc.double({ min: 0, max: 4e12, noNaN: true })), (ms) => {
         expect(isoTime(ms)).toBe(new Date(ms).toISOString());
-        const buf = Buffer.alloc(40);
-        expect(buf.toString('latin1', 3, writeIsoTime(buf, 3, ms))).toBe(new Date(ms).toISOString());
       }),
       { numRuns: 20_000 },
     );
@@ -81,13 +85,7 @@ describe('isoTime matches Date.prototype.toISOString (ECMA-262)', () => {
 
   it('across hour, day and year boundaries, and before 1970', () => {
     const base = Date.UTC(2026, 11, 31, 23, 59, 59, 990);
-    const buf = Buffer.alloc(40);
-    const written = (ms: number): string => buf.toString('latin1', 0, writeIsoTime(buf, 0, ms));
-    for (let ms = base - 50; ms < base + 50; ms++) {
-      expect(isoTime(ms)).toBe(new Date(ms).toISOString());
-      expect(written(ms)).toBe(new Date(ms).toISOString());
-    }
-    for (const ms of [-1, -86_400_001, 253_402_300_800_000, 0.5]) expect(written(ms)).toBe(new Date(ms).toISOString());
+    for (let ms = base - 50; ms < base + 50; ms++) expect(isoTime(ms)).toBe(new Date(ms).toISOString());
     for (const ms of [-1, -86_400_001, Date.UTC(2028, 1, 29, 12), 253_402_300_799_999, 253_402_300_800_000, 253_402_304_400_007]) expect(isoTime(ms)).toBe(new Date(ms).toISOString());
     expect(() => isoTime(Number.NaN)).toThrow(RangeError);
   });
