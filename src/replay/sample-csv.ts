@@ -172,72 +172,49 @@ function holds(bytes: Buffer, at: number, want: Buffer): boolean {
   return true;
 }
 
-function hexDigit(c: number): number {
-  return c >= 48 && c <= 57 ? c - 48 : c >= 65 && c <= 70 ? c - 55 : c >= 97 && c <= 102 ? c - 87 : -1;
-}
-
-// The reader's place in the row and whether the row is still on the fast way: module state
-// rather than an object's fields, which the hot loops below would have to load through `this`.
-/** Where the next field starts. */
-let at = 0;
-/** Cleared by a field the fast way does not take. */
-let fast = true;
-/** A validated `YYYY-MM-DDTHH:` (hour 00-23): any minute and second of that hour is a valid time. */
-let hourPrefix = Buffer.alloc(0);
-let hourPrefixText = '';
-let knownId = 'none';
-let knownIdBytes = Buffer.from('none', 'latin1');
-
-/** A field of digits (leading zeros allowed, as /^\d+$/) up to `max`, ending in a comma before `end`. */
-function fastWhole(b: Buffer, end: number, max: number): number {
-  const start = at;
-  let v = 0;
-  let i = start;
-  for (; i < end; i++) {
-    const c = b[i]!;
-    if (c === 44) break;
-    if (c < 48 || c > 57) return (fast = false), 0;
-    v = v * 10 + (c - 48);
+/** A view of the buffer last read from, for reading four bytes at once. */
+let viewed: Buffer = Buffer.alloc(0);
+let view = new DataView(viewed.buffer, viewed.byteOffset, 0);
+function viewOf(b: Buffer): DataView {
+  if (b !== viewed) {
+    viewed = b;
+    view = new DataView(b.buffer, b.byteOffset, b.length);
   }
-  if (i === start || i === end || v > max) return (fast = false), 0;
-  at = i + 1;
-  return v;
+  return view;
 }
 
 /**
- * `-?digits`, `-?digits.` or `-?digits.digits`, ending in a comma; empty gives NaN where
- * allowed. Up to 15 digits the value is their integer over a power of ten, both exact, so the
- * one rounding of the division gives the same double as Number(); longer ones go to Number().
+ * Text validated before and expected again (most rows repeat the last row's hour, state and
+ * calibration id), compared four bytes at a time.
  */
-function fastDecimal(b: Buffer, end: number, emptyIsNaN: boolean): number {
-  const start = at;
-  let i = start;
-  const negative = b[i] === 45;
-  if (negative) i++;
-  const first = i;
-  let point = -1;
-  let mantissa = 0;
-  for (; i < end; i++) {
-    const c = b[i]!;
-    if (c === 44) break;
-    if (c === 46 && point < 0) {
-      point = i;
-      continue;
-    }
-    if (c < 48 || c > 57) return (fast = false), 0;
-    mantissa = mantissa * 10 + (c - 48);
+class KnownText {
+  text = '';
+  private words = new Int32Array(0);
+  private tail: Buffer = Buffer.alloc(0);
+
+  get length(): number {
+    return this.text.length;
   }
-  if (i === end) return (fast = false), 0;
-  if (i === start && emptyIsNaN) {
-    at = i + 1;
-    return Number.NaN;
+
+  set(b: Buffer, start: number, end: number): void {
+    const whole = (end - start) >> 2;
+    this.text = b.toString('latin1', start, end);
+    this.words = Int32Array.from({ length: whole }, (_, k) => b.readInt32LE(start + 4 * k));
+    this.tail = Buffer.from(b.subarray(start + 4 * whole, end));
   }
-  if (i === first || point === first) return (fast = false), 0;
-  at = i + 1;
-  const digits = i - first - (point < 0 ? 0 : 1);
-  if (digits > 15) return Number(b.toString('latin1', start, i));
-  const value = point < 0 ? mantissa : mantissa / POW10[i - point - 1]!;
-  return negative ? -value : value;
+
+  /** Whether `b` holds the text at `at`; the caller has checked that it fits. */
+  at(b: Buffer, at: number): boolean {
+    if (this.text.length === 0) return false;
+    const v = viewOf(b);
+    const words = this.words;
+    for (let k = 0; k < words.length; k++) if (v.getInt32(at + 4 * k, true) !== words[k]) return false;
+    return holds(b, at + 4 * words.length, this.tail);
+  }
+}
+
+function hexDigit(c: number): number {
+  return c >= 48 && c <= 57 ? c - 48 : c >= 65 && c <= 70 ? c - 55 : c >= 97 && c <= 102 ? c - 87 : -1;
 }
 
 function twoDigits(b: Buffer, i: number, max: number): boolean {
@@ -246,23 +223,106 @@ function twoDigits(b: Buffer, i: number, max: number): boolean {
   return hi >= 0 && hi <= 9 && lo >= 0 && lo <= 9 && hi * 10 + lo <= max;
 }
 
-/** `YYYY-MM-DDTHH:MM:SS.sssZ`; a new date and hour is checked by Date.parse once. */
-function wallTime(b: Buffer, end: number): string {
-  const i = at;
-  if (i + 24 >= end || b[i + 24] !== 44 || b[i + 23] !== 90 || b[i + 16] !== 58 || b[i + 19] !== 46) return (fast = false), '';
-  if (!twoDigits(b, i + 14, 59) || !twoDigits(b, i + 17, 59) || !twoDigits(b, i + 20, 99) || !twoDigits(b, i + 21, 99)) return (fast = false), '';
-  if (hourPrefix.length === 0 || !holds(b, i, hourPrefix)) {
-    const prefix = b.toString('latin1', i, i + 14);
-    if (!/^\d{4}-\d{2}-\d{2}T\d{2}:$/.test(prefix) || !twoDigits(b, i + 11, 23) || !Number.isFinite(Date.parse(`${prefix}00:00.000Z`))) return (fast = false), '';
-    hourPrefix = Buffer.from(prefix, 'latin1');
-    hourPrefixText = prefix;
+// How the fast way reads each of the first 14 columns, and what it read: one loop over a
+// table with one cursor in a local variable, which the compiler keeps in a register (a cursor
+// shared between helper functions has to go through memory at every byte).
+const K_WHOLE = 0;
+const K_DECIMAL = 1;
+const K_DECIMAL_OR_EMPTY = 2;
+const K_WALL = 3;
+const K_FLAGS = 4;
+const KIND = Uint8Array.of(K_DECIMAL, K_WALL, K_WHOLE, K_WHOLE, K_WHOLE, K_WHOLE, K_WHOLE, K_WHOLE, K_FLAGS, K_DECIMAL_OR_EMPTY, K_DECIMAL_OR_EMPTY, K_DECIMAL_OR_EMPTY, K_DECIMAL, K_DECIMAL);
+const MAX = Float64Array.of(0, 0, 15, 65535, 4294967295, COUNT_MAX, COUNT_MAX, COUNT_MAX, 0, 0, 0, 0, 0, 0);
+const value = new Float64Array(KIND.length);
+/** Where the wall time of the row last scanned starts. */
+let wallAt = 0;
+/** A validated `YYYY-MM-DDTHH:` (hour 00-23): any minute and second of that hour is a valid time. */
+const hour = new KnownText();
+/** The state and calibration id of the last row, as `state,id`. */
+const stateAndId = new KnownText();
+let knownState = '';
+let knownId = '';
+
+/** `YYYY-MM-DDTHH:MM:SS.sssZ` at `i`, followed by a comma; a new date and hour is checked by Date.parse once. */
+function isWallTime(b: Buffer, i: number, end: number): boolean {
+  if (i + 24 >= end || b[i + 24] !== 44 || b[i + 23] !== 90 || b[i + 16] !== 58 || b[i + 19] !== 46) return false;
+  if (!twoDigits(b, i + 14, 59) || !twoDigits(b, i + 17, 59) || !twoDigits(b, i + 20, 99) || !twoDigits(b, i + 21, 99)) return false;
+  if (hour.at(b, i)) return true;
+  const prefix = b.toString('latin1', i, i + 14);
+  if (!/^\d{4}-\d{2}-\d{2}T\d{2}:$/.test(prefix) || !twoDigits(b, i + 11, 23) || !Number.isFinite(Date.parse(`${prefix}00:00.000Z`))) return false;
+  hour.set(b, i, i + 14);
+  return true;
+}
+
+/**
+ * The first 14 columns into `value` (the wall time's place into `wallAt`); returns where the
+ * state starts, or -1 for a row the fast way does not take. Whole numbers: digits (leading
+ * zeros allowed, as /^\d+$/) up to the column's maximum. Decimals: `-?digits`, `-?digits.` or
+ * `-?digits.digits`, or empty where allowed (NaN); up to 15 digits the value is their integer
+ * over a power of ten, both exact, so the one rounding of the division gives the same double
+ * as Number(); longer ones go to Number(). Flags: one or two hex digits.
+ */
+function scanColumns(b: Buffer, start: number, end: number): number {
+  let i = start;
+  for (let col = 0; col < KIND.length; col++) {
+    const kind = KIND[col]!;
+    if (kind === K_WHOLE) {
+      const first = i;
+      let n = 0;
+      for (; i < end; i++) {
+        const d = b[i]! - 48;
+        if (d === -4) break;
+        if (d < 0 || d > 9) return -1;
+        n = n * 10 + d;
+      }
+      if (i === first || i === end || n > MAX[col]!) return -1;
+      value[col] = n;
+    } else if (kind === K_WALL) {
+      if (!isWallTime(b, i, end)) return -1;
+      wallAt = i;
+      i += 24;
+    } else if (kind === K_FLAGS) {
+      if (i + 2 >= end) return -1;
+      const hi = hexDigit(b[i]!);
+      if (hi < 0) return -1;
+      if (b[i + 1] === 44) {
+        value[col] = hi;
+        i += 1;
+      } else {
+        const lo = hexDigit(b[i + 1]!);
+        if (lo < 0 || b[i + 2] !== 44) return -1;
+        value[col] = hi * 16 + lo;
+        i += 2;
+      }
+    } else {
+      const first = i;
+      const negative = b[i] === 45;
+      if (negative) i++;
+      const digitsFrom = i;
+      let point = -1;
+      let m = 0;
+      for (; i < end; i++) {
+        const c = b[i]!;
+        if (c === 44) break;
+        if (c === 46 && point < 0) {
+          point = i;
+          continue;
+        }
+        if (c < 48 || c > 57) return -1;
+        m = m * 10 + (c - 48);
+      }
+      if (i === end) return -1;
+      if (i === first && kind === K_DECIMAL_OR_EMPTY) value[col] = Number.NaN;
+      else {
+        if (i === digitsFrom || point === digitsFrom) return -1;
+        const digits = i - digitsFrom - (point < 0 ? 0 : 1);
+        const x = digits > 15 ? Number(b.toString('latin1', digitsFrom, i)) : point < 0 ? m : m / POW10[i - point - 1]!;
+        value[col] = negative ? -x : x;
+      }
+    }
+    i++; // the comma
   }
-  at = i + 25;
-  // The same text as the bytes, from pieces already made: no string is decoded per row.
-  const minute = (b[i + 14]! - 48) * 10 + b[i + 15]! - 48;
-  const second = (b[i + 17]! - 48) * 10 + b[i + 18]! - 48;
-  const milli = (b[i + 20]! - 48) * 100 + (b[i + 21]! - 48) * 10 + b[i + 22]! - 48;
-  return hourPrefixText + MINUTE_SECOND[minute * 60 + second]! + MILLI_Z[milli]!;
+  return i;
 }
 
 const pad = (n: number, width: number): string => String(n).padStart(width, '0');
@@ -277,53 +337,42 @@ const MILLI_Z = Array.from({ length: 1000 }, (_, k) => `${pad(k, 3)}Z`);
  * odd widths, every fault) back to them, so results and messages are the rules' own.
  */
 function readFast(b: Buffer, start: number, end: number): SampleRecord | null {
-  at = start;
-  fast = true;
-  const hostS = fastDecimal(b, end, false);
-  if (!fast) return null;
-  const wall = wallTime(b, end);
-  if (!fast) return null;
-  const channel = fastWhole(b, end, 15);
-  const seq = fastWhole(b, end, 65535);
-  const tickMs = fastWhole(b, end, 4294967295);
-  const vRaw = fastWhole(b, end, COUNT_MAX);
-  const iRaw = fastWhole(b, end, COUNT_MAX);
-  const tRaw = fastWhole(b, end, COUNT_MAX);
-  if (!fast) return null;
-  const f = at;
-  if (f + 2 >= end) return null;
-  const hi = hexDigit(b[f]!);
-  const two = b[f + 2] === 44;
-  const lo = two ? hexDigit(b[f + 1]!) : 0;
-  if (hi < 0 || lo < 0 || (!two && b[f + 1] !== 44)) return null;
-  const flags = two ? hi * 16 + lo : hi;
-  at = f + (two ? 3 : 2);
-  const volts = fastDecimal(b, end, true);
-  const amps = fastDecimal(b, end, true);
-  const celsius = fastDecimal(b, end, true);
-  const chargeAh = fastDecimal(b, end, false);
-  const energyWh = fastDecimal(b, end, false);
-  if (!fast) return null;
-  const stateAt = at;
-  let comma = stateAt;
-  while (comma < end && b[comma] !== 44) comma++;
-  if (comma === end) return null;
-  let state: string | null = null;
-  for (const s of STATE_BYTES) {
-    if (comma - stateAt === s.bytes.length && holds(b, stateAt, s.bytes)) {
-      state = s.text;
-      break;
-    }
-  }
-  if (state === null) return null;
-  const idStart = comma + 1;
-  if (end - idStart !== knownIdBytes.length || !holds(b, idStart, knownIdBytes)) {
-    const id = b.toString('latin1', idStart, end);
+  const stateAt = scanColumns(b, start, end);
+  if (stateAt < 0) return null;
+  if (end - stateAt !== stateAndId.length || !stateAndId.at(b, stateAt)) {
+    let comma = stateAt;
+    while (comma < end && b[comma] !== 44) comma++;
+    if (comma === end) return null;
+    const state = STATE_BYTES.find((s) => comma - stateAt === s.bytes.length && holds(b, stateAt, s.bytes));
+    if (state === undefined) return null;
+    const id = b.toString('latin1', comma + 1, end);
     if (!/^(none|[0-9a-f]{16})$/.test(id)) return null;
+    stateAndId.set(b, stateAt, end);
+    knownState = state.text;
     knownId = id;
-    knownIdBytes = Buffer.from(id, 'latin1');
   }
-  return { hostS, wallTime: wall, channel, seq, tickMs, vRaw, iRaw, tRaw, flags, volts, amps, celsius, chargeAh, energyWh, state, calibrationId: knownId };
+  // The same text as the wall time's bytes, from pieces already made: no string is decoded per row.
+  const w = wallAt;
+  const minute = (b[w + 14]! - 48) * 10 + b[w + 15]! - 48;
+  const second = (b[w + 17]! - 48) * 10 + b[w + 18]! - 48;
+  const milli = (b[w + 20]! - 48) * 100 + (b[w + 21]! - 48) * 10 + b[w + 22]! - 48;
+  const v = value;
+  return {
+    hostS: v[0]!,
+    wallTime: hour.text + MINUTE_SECOND[minute * 60 + second]! + MILLI_Z[milli]!,
+    channel: v[2]!,
+    seq: v[3]!,
+    tickMs: v[4]!,
+    vRaw: v[5]!,
+    iRaw: v[6]!,
+    tRaw: v[7]!,
+    flags: v[8]!,
+    volts: v[9]!,
+    amps: v[10]!,
+    celsius: v[11]!,
+    chargeAh: v[12]!,
+    energyWh: v[13]!,
+    state: knownState,
+    calibrationId: knownId,
+  };
 }
-
-
