@@ -12,7 +12,7 @@ import type { RunResult } from '../run/result.js';
 import { readLineBatchesRaw, readLines, type TextLine } from './line-reader.js';
 import { readCheckpointFile, readResultFile, type Checkpoint } from './run-json.js';
 import { parseManifest, type RunManifest } from './run-manifest.js';
-import { checkSampleHeader, parseSampleBytes, parseSampleLine, SampleLineError, type SampleRecord } from './sample-csv.js';
+import { blankSampleRecord, checkSampleHeader, parseSampleBytes, parseSampleLine, SampleLineError, type SampleRecord } from './sample-csv.js';
 
 export interface SampleFile {
   path: string;
@@ -132,22 +132,39 @@ async function listSampleFiles(dir: string, names: string[], prefix: string, not
 
 /** Every sample row of the run, in order. A row cut off at the very end (an interrupted write) is left out and reported. */
 export async function* readRunSamples(run: RunFolder, o: SampleReadOptions = {}): AsyncGenerator<SampleRecord> {
-  for await (const batch of readRunSampleBatches(run, o)) yield* batch;
+  const out: SampleRecord[] = [];
+  const pauses = visitRunSamples(run, o, (row) => out.push({ ...row }));
+  try {
+    for await (const _ of pauses) {
+      yield* out;
+      out.length = 0;
+    }
+  } catch (e) {
+    // The rows read before a fault go out before it.
+    yield* out;
+    throw e;
+  }
 }
 
 /**
- * The rows of readRunSamples, many at a time (a read's worth), for a recompute of millions of
- * rows: the same rows, reports and errors in the same order, without a promise or a string per
- * row (plain ASCII rows are parsed from the bytes read).
+ * The rows of readRunSamples, with the same reports and errors in the same order, handed to
+ * `visit` one by one for a recompute of millions of rows: no promise, string or object per row
+ * (plain ASCII rows are parsed from the bytes read into one record). The record is the same
+ * object every time: `visit` reads it and must not keep it.
  */
-export async function* readRunSampleBatches(run: RunFolder, o: SampleReadOptions = {}): AsyncGenerator<SampleRecord[]> {
+export async function forEachRunSample(run: RunFolder, o: SampleReadOptions, visit: (row: Readonly<SampleRecord>) => void): Promise<void> {
+  for await (const _ of visitRunSamples(run, o, visit));
+}
+
+/** Visits the rows; pauses after each read and before reporting a cut line, so a caller can hand on the rows visited so far first. */
+async function* visitRunSamples(run: RunFolder, o: SampleReadOptions, visit: (row: SampleRecord) => void): AsyncGenerator<void> {
+  const row = blankSampleRecord();
   const lastFile = run.sampleFiles.length - 1;
   for (const [fi, f] of run.sampleFiles.entries()) {
     const mayBeCut = fi === lastFile;
     let header = false;
-    let out: SampleRecord[] = [];
     const where = (line: number): string => `${join(basename(run.dir), f.name)} line ${line}`;
-    /** One line; false when it was cut off by an interruption (reported once the rows before it are out). */
+    /** One line; false when it was cut off by an interruption (to be reported once the rows before it are out). */
     const take = (text: string | null, bytes: Buffer, start: number, end: number, line: TextLine | null, number: number): boolean => {
       if (!header) {
         if (line !== null && !line.terminated && mayBeCut) return false;
@@ -155,9 +172,9 @@ export async function* readRunSampleBatches(run: RunFolder, o: SampleReadOptions
         header = true;
         return true;
       }
-      let rec: SampleRecord;
       try {
-        rec = text === null ? parseSampleBytes(bytes, start, end) : parseSampleLine(text);
+        if (text === null) parseSampleBytes(bytes, start, end, row);
+        else parseSampleLine(text, row);
       } catch (e) {
         if (!(e instanceof SampleLineError)) throw e;
         if (line !== null && !line.terminated && mayBeCut) return false;
@@ -168,38 +185,30 @@ export async function* readRunSampleBatches(run: RunFolder, o: SampleReadOptions
           'Rows are written by `cellvigil run` and never edited; restore the file from a backup, or move the damaged rows to another file and recompute what remains.',
         );
       }
-      if (rec.channel !== run.manifest.channel) {
+      if (row.channel !== run.manifest.channel) {
         throw makeError(
           ErrorCodes.RUN_DATA,
-          `a row for channel ${rec.channel} in a run on channel ${run.manifest.channel}`,
+          `a row for channel ${row.channel} in a run on channel ${run.manifest.channel}`,
           where(number),
           'The file does not belong to this run folder; move it back to its own run.',
         );
       }
-      out.push(rec);
+      visit(row);
       return true;
     };
     const none = Buffer.alloc(0);
     for await (const batch of readLineBatchesRaw(f.path, { gzip: f.gzip, ...(o.onBytes ? { onBytes: o.onBytes } : {}) })) {
-      out = [];
-      try {
-        if (Array.isArray(batch)) {
-          for (const line of batch) {
-            if (take(line.text, none, 0, 0, line, line.number)) continue;
-            // Rows before a cut line go out first, so the report comes in its place.
-            if (out.length > 0) yield out;
-            out = [];
-            o.onCutLine?.({ file: f.name, line: line.number });
-          }
-        } else {
-          const { bytes, starts, ends, first } = batch;
-          for (let k = 0; k < starts.length; k++) take(null, bytes, starts[k]!, ends[k]!, null, first + k);
+      if (Array.isArray(batch)) {
+        for (const line of batch) {
+          if (take(line.text, none, 0, 0, line, line.number)) continue;
+          yield;
+          o.onCutLine?.({ file: f.name, line: line.number });
         }
-      } catch (e) {
-        if (out.length > 0) yield out;
-        throw e;
+      } else {
+        const { bytes, starts, ends, first } = batch;
+        for (let k = 0; k < starts.length; k++) take(null, bytes, starts[k]!, ends[k]!, null, first + k);
       }
-      if (out.length > 0) yield out;
+      yield;
     }
     if (!header && !mayBeCut) {
       throw makeError(ErrorCodes.RUN_DATA, 'the file is empty, without even its header row', join(basename(run.dir), f.name), 'Restore the file from a backup; the files after it need it.');

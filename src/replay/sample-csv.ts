@@ -117,17 +117,22 @@ export function checkSampleHeader(line: string, where: string): void {
   );
 }
 
-/** One row to a record; throws SampleLineError saying which column is wrong. */
-export function parseSampleLine(line: string): SampleRecord {
+/** A record to parse rows into. */
+export function blankSampleRecord(): SampleRecord {
+  return { hostS: 0, wallTime: '', channel: 0, seq: 0, tickMs: 0, vRaw: 0, iRaw: 0, tRaw: 0, flags: 0, volts: 0, amps: 0, celsius: 0, chargeAh: 0, energyWh: 0, state: '', calibrationId: '' };
+}
+
+/** One row into a record (a new one unless given); throws SampleLineError saying which column is wrong. */
+export function parseSampleLine(line: string, into: SampleRecord = blankSampleRecord()): SampleRecord {
   // Only ASCII can be a valid row; other text goes straight to the rules and their message.
-  if (Buffer.byteLength(line, 'utf8') !== line.length) return parseByRules(line);
+  if (Buffer.byteLength(line, 'utf8') !== line.length) return Object.assign(into, parseByRules(line));
   const bytes = Buffer.from(line, 'latin1');
-  return readFast(bytes, 0, bytes.length) ?? parseByRules(line);
+  return readFast(bytes, 0, bytes.length, into) ? into : Object.assign(into, parseByRules(line));
 }
 
 /** The row in `bytes` from `start` to `end` (ASCII, without its line end); as parseSampleLine. */
-export function parseSampleBytes(bytes: Buffer, start: number, end: number): SampleRecord {
-  return readFast(bytes, start, end) ?? parseByRules(bytes.toString('latin1', start, end));
+export function parseSampleBytes(bytes: Buffer, start: number, end: number, into: SampleRecord = blankSampleRecord()): SampleRecord {
+  return readFast(bytes, start, end, into) ? into : Object.assign(into, parseByRules(bytes.toString('latin1', start, end)));
 }
 
 function parseByRules(line: string): SampleRecord {
@@ -336,17 +341,17 @@ const MILLI_Z = Array.from({ length: 1000 }, (_, k) => `${pad(k, 3)}Z`);
  * above surely accept, with the values they give, and hands anything else (quotes, exponents,
  * odd widths, every fault) back to them, so results and messages are the rules' own.
  */
-function readFast(b: Buffer, start: number, end: number): SampleRecord | null {
+function readFast(b: Buffer, start: number, end: number, r: SampleRecord): boolean {
   const stateAt = scanColumns(b, start, end);
-  if (stateAt < 0) return null;
+  if (stateAt < 0) return false;
   if (end - stateAt !== stateAndId.length || !stateAndId.at(b, stateAt)) {
     let comma = stateAt;
     while (comma < end && b[comma] !== 44) comma++;
-    if (comma === end) return null;
+    if (comma === end) return false;
     const state = STATE_BYTES.find((s) => comma - stateAt === s.bytes.length && holds(b, stateAt, s.bytes));
-    if (state === undefined) return null;
+    if (state === undefined) return false;
     const id = b.toString('latin1', comma + 1, end);
-    if (!/^(none|[0-9a-f]{16})$/.test(id)) return null;
+    if (!/^(none|[0-9a-f]{16})$/.test(id)) return false;
     stateAndId.set(b, stateAt, end);
     knownState = state.text;
     knownId = id;
@@ -357,22 +362,21 @@ function readFast(b: Buffer, start: number, end: number): SampleRecord | null {
   const second = (b[w + 17]! - 48) * 10 + b[w + 18]! - 48;
   const milli = (b[w + 20]! - 48) * 100 + (b[w + 21]! - 48) * 10 + b[w + 22]! - 48;
   const v = value;
-  return {
-    hostS: v[0]!,
-    wallTime: hour.text + MINUTE_SECOND[minute * 60 + second]! + MILLI_Z[milli]!,
-    channel: v[2]!,
-    seq: v[3]!,
-    tickMs: v[4]!,
-    vRaw: v[5]!,
-    iRaw: v[6]!,
-    tRaw: v[7]!,
-    flags: v[8]!,
-    volts: v[9]!,
-    amps: v[10]!,
-    celsius: v[11]!,
-    chargeAh: v[12]!,
-    energyWh: v[13]!,
-    state: knownState,
-    calibrationId: knownId,
-  };
+  r.hostS = v[0]!;
+  r.wallTime = hour.text + MINUTE_SECOND[minute * 60 + second]! + MILLI_Z[milli]!;
+  r.channel = v[2]!;
+  r.seq = v[3]!;
+  r.tickMs = v[4]!;
+  r.vRaw = v[5]!;
+  r.iRaw = v[6]!;
+  r.tRaw = v[7]!;
+  r.flags = v[8]!;
+  r.volts = v[9]!;
+  r.amps = v[10]!;
+  r.celsius = v[11]!;
+  r.chargeAh = v[12]!;
+  r.energyWh = v[13]!;
+  r.state = knownState;
+  r.calibrationId = knownId;
+  return true;
 }

@@ -8,7 +8,7 @@ import { applyCalibration, type Calibration, type Corrector } from '../calibrati
 import { AnalogChain } from '../chain/analog-chain.js';
 import { PACKAGE_VERSION } from '../core/paths.js';
 import { FLAG_LOAD_ON } from '../protocol/messages.js';
-import { readRunEvents, readRunSampleBatches, type RunFolder } from '../replay/run-folder.js';
+import { forEachRunSample, readRunEvents, type RunFolder } from '../replay/run-folder.js';
 import type { Checkpoint } from '../replay/run-json.js';
 import type { RunManifest } from '../replay/run-manifest.js';
 import type { SampleRecord } from '../replay/sample-csv.js';
@@ -185,7 +185,8 @@ export class RunRecompute {
     this.digest.add(e);
   }
 
-  sample(s: SampleRecord): void {
+  /** One row, read and not kept: the caller may reuse the record. */
+  sample(s: Readonly<SampleRecord>): void {
     this.rows++;
     if (s.calibrationId !== this.lastId) {
       this.lastId = s.calibrationId;
@@ -284,7 +285,7 @@ export class RunRecompute {
     this.lastHostS = s.hostS;
   }
 
-  private measure(s: SampleRecord, prev: RunRecompute['prev'], volts: number, amps: number, celsius: number, loadOn: boolean, fresh: boolean): void {
+  private measure(s: Readonly<SampleRecord>, prev: RunRecompute['prev'], volts: number, amps: number, celsius: number, loadOn: boolean, fresh: boolean): void {
     const onS = this.integrator.onMs / 1000;
     if (Number.isFinite(celsius)) {
       this.endC = celsius;
@@ -504,7 +505,7 @@ export async function recomputeRun(run: RunFolder, o: RecomputeOptions = {}): Pr
         o.onProgress!(done, total);
       }
     : undefined;
-  for await (const batch of readRunSampleBatches(run, { onCutLine, ...(onBytes ? { onBytes } : {}) })) for (const s of batch) core.sample(s);
+  await forEachRunSample(run, { onCutLine, ...(onBytes ? { onBytes } : {}) }, (s) => core.sample(s));
   const calibrationFile = o.calibration === undefined ? run.manifest.calibration.file : (o.calibrationFile ?? null);
   return core.finish({ folder: run.dir, original: run.result, checkpoint: run.checkpoint, calibrationFile, cutLines, notes });
 }
