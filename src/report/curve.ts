@@ -108,7 +108,8 @@ export class CurveBuilder {
   /** @param maxBuckets at most this many buckets are kept (between half and all of it at the end). */
   constructor(private readonly maxBuckets = 1024) {}
 
-  add(p: CurvePoint): void {
+  /** One point; `p` is read, not kept, so a caller may pass the same object every time. */
+  add(p: Readonly<CurvePoint>): void {
     const last = this.list[this.list.length - 1];
     if (last !== undefined && last.n < this.stride) {
       absorb(last, p);

@@ -69,6 +69,7 @@ export interface DcResistanceOptions {
 export class DcResistanceTracker {
   private readonly o: Required<DcResistanceOptions>;
   private prev: ResistanceSample | null = null;
+  private spare: ResistanceSample | null = null;
   private rest: ResistanceSample[] = [];
   private levelSince = 0;
   private upper: { u1: number; i1: number; at: number; dwell: number; u2: number; i2: number } | null = null;
@@ -78,9 +79,17 @@ export class DcResistanceTracker {
     this.o = { minCurrentA: 0.005, levelChange: 0.2, secondLevelS: 1, restFrames: 10, restWindowS: 5, ...o };
   }
 
-  add(s: ResistanceSample): void {
+  /** One frame; `s` is read, not kept (what is kept is copied), so a caller may pass the same object every time. */
+  add(s: Readonly<ResistanceSample>): void {
     const p = this.prev;
-    this.prev = s;
+    // Two records taking turns as the frame before, rather than an object per frame.
+    const next = this.spare ?? { hostS: 0, volts: 0, amps: 0, loadOn: false };
+    next.hostS = s.hostS;
+    next.volts = s.volts;
+    next.amps = s.amps;
+    next.loadOn = s.loadOn;
+    this.spare = p;
+    this.prev = next;
     if (!Number.isFinite(s.volts) || !Number.isFinite(s.amps)) return;
     if (this.upper && !(s.loadOn && this.sameLevel(s.amps, this.upper.i2) && s.hostS - this.upper.at <= this.o.secondLevelS)) this.closeUpper();
     if (!s.loadOn) {
@@ -88,7 +97,7 @@ export class DcResistanceTracker {
         this.record({ method: 'switch_off', atS: s.hostS, ohm: loadStepResistance(s.volts, p.volts, p.amps), uBeforeV: p.volts, uAfterV: s.volts, iBeforeA: p.amps, iAfterA: p.amps, dwellS: s.hostS - this.levelSince });
       }
       if (!p || p.loadOn) this.levelSince = s.hostS;
-      this.rest.push(s);
+      this.rest.push({ hostS: s.hostS, volts: s.volts, amps: s.amps, loadOn: s.loadOn });
       if (this.rest.length > this.o.restFrames) this.rest.shift();
       return;
     }

@@ -17,7 +17,7 @@ import { buildResult, CLOCK_WARN_PPM, type RunResult } from '../run/result.js';
 import { Integrator } from '../session/integrator.js';
 import { RateEstimator } from '../timebase/rate-estimator.js';
 import { Unwrapper } from '../timebase/unwrap.js';
-import { CurveBuilder, loadedVoltageAtCharge, type CurveBucket } from './curve.js';
+import { CurveBuilder, loadedVoltageAtCharge, type CurveBucket, type CurvePoint } from './curve.js';
 import { DcResistanceTracker, type ResistanceSummary } from './dc-resistance.js';
 import { EventDigest, type EventDigestResult } from './event-digest.js';
 import { ratedCapacityVerdict, type Verdict } from './verdicts.js';
@@ -93,6 +93,8 @@ const LEVEL_CHANGE = 0.2;
 const SETTLE_S = 5;
 /** Distinct codes tracked for the quantisation term; beyond this they are plenty anyway. */
 const MAX_CODES = 65536;
+/** Thermistor counts remembered with their °C, by the count's low bits. */
+const CELSIUS_SLOTS = 4096;
 const rn = (x: number | null, digits: number): number | null => (x === null || !Number.isFinite(x) ? null : Number(x.toFixed(digits)));
 
 /** Running sum of squared differences between consecutive loaded readings. */
@@ -140,9 +142,12 @@ export class RunRecompute {
   private readonly codesI = new DistinctCodes();
   private readonly codesV = new DistinctCodes();
   private readonly liveIds = new Set<string>();
+  /** The row as the curve and the resistance tracker take it: one object, filled in for every row (neither keeps it). */
+  private readonly point: CurvePoint = { hostS: 0, chargeAh: 0, energyWh: 0, volts: 0, amps: 0, celsius: 0, loadOn: false };
+  /** °C by thermistor count, for the last count seen in each slot: the count wanders over a few values, each a logarithm to work out. */
+  private readonly celsiusCounts = new Float64Array(CELSIUS_SLOTS).fill(-1);
+  private readonly celsiusValues = new Float64Array(CELSIUS_SLOTS);
   private lastId: string | null = null;
-  private lastTRaw = -1;
-  private lastCelsius = Number.NaN;
   private readonly stepPerCellV: number;
   private rows = 0;
   private ended = false;
@@ -197,12 +202,13 @@ export class RunRecompute {
     const nominalA = chain.amps(s.iRaw);
     const volts = c.voltage(chain.volts(s.vRaw));
     const amps = c.current(nominalA);
-    // The temperature count moves slowly: the thermistor's logarithm is taken once per count seen in a row.
-    if (s.tRaw !== this.lastTRaw) {
-      this.lastTRaw = s.tRaw;
-      this.lastCelsius = chain.thermistorState(s.tRaw) === 'ok' ? c.temperature(chain.celsius(s.tRaw)) : Number.NaN;
+    const slot = s.tRaw & (CELSIUS_SLOTS - 1);
+    let celsius = this.celsiusValues[slot]!;
+    if (this.celsiusCounts[slot] !== s.tRaw) {
+      celsius = chain.thermistorState(s.tRaw) === 'ok' ? c.temperature(chain.celsius(s.tRaw)) : Number.NaN;
+      this.celsiusCounts[slot] = s.tRaw;
+      this.celsiusValues[slot] = celsius;
     }
-    const celsius = this.lastCelsius;
     const loadOn = (s.flags & FLAG_LOAD_ON) !== 0;
     const hostMs = s.hostS * 1000;
     const prev = this.prev;
@@ -269,8 +275,16 @@ export class RunRecompute {
       this.measure(s, prev, volts, amps, celsius, loadOn, fresh);
       this.lastWall = s.wallTime;
     }
-    this.resistance.add({ hostS: s.hostS, volts, amps, loadOn });
-    this.curve.add({ hostS: s.hostS, chargeAh: this.integrator.chargeAh, energyWh: this.integrator.energyWh, volts, amps, celsius, loadOn });
+    const point = this.point;
+    point.hostS = s.hostS;
+    point.chargeAh = this.integrator.chargeAh;
+    point.energyWh = this.integrator.energyWh;
+    point.volts = volts;
+    point.amps = amps;
+    point.celsius = celsius;
+    point.loadOn = loadOn;
+    this.resistance.add(point);
+    this.curve.add(point);
     // One object for the whole run, updated in place: a new one per row is garbage per row.
     if (prev === null) this.prev = { hostMs, loadOn, vRaw: s.vRaw, iRaw: s.iRaw, volts, amps };
     else {
