@@ -5,14 +5,17 @@
  * machine's loopback.
  *
  * The viewers run in a second process (as real viewers do), so that their own work does not
- * queue behind the server's on one thread. Both processes read the same monotonic clock
+ * queue behind the server's on one thread, each on a bare socket with the WebSocket framing
+ * read by hand (bareViewer). Both processes read the same monotonic clock
  * (process.hrtime): each sample's host_s is the time of its sample() call, and a viewer takes
  * its receipt time the moment the message arrives.
  */
 import { fork } from 'node:child_process';
+import { createHash, randomBytes } from 'node:crypto';
+import { connect, type Socket } from 'node:net';
 import { performance } from 'node:perf_hooks';
 import { fileURLToPath } from 'node:url';
-import { WebSocket, WebSocketServer } from 'ws';
+import { WebSocketServer } from 'ws';
 import { argValue, benchRunInfo, fmt, percentile, product, reportFigure, sleep, waitFor, type LiveHubModule, type LiveServerModule } from './bench-kit.js';
 
 const VIEWERS = 100;
@@ -46,26 +49,78 @@ async function viewersChild(url: string): Promise<void> {
   const pairs = new Float64Array(2 * (VIEWERS * RATE_HZ * (SECONDS + 2)));
   let n = 0;
   let counting = false;
-  const sockets = Array.from({ length: VIEWERS }, () => new WebSocket(url, { perMessageDeflate: false }));
-  for (const ws of sockets) {
-    ws.on('message', (data: Buffer) => {
-      const at = clockS();
-      if (!counting || n * 2 >= pairs.length || data.compare(SAMPLE, 0, SAMPLE.length, 0, SAMPLE.length) !== 0) return;
-      pairs[2 * n] = at;
-      pairs[2 * n + 1] = readNumber(data, data.indexOf(HOST_S) + HOST_S.length);
-      n++;
-    });
-  }
+  const onText = (at: number, data: Buffer, start: number, end: number): void => {
+    if (!counting || n * 2 >= pairs.length || end - start < SAMPLE.length || data.compare(SAMPLE, 0, SAMPLE.length, start, start + SAMPLE.length) !== 0) return;
+    pairs[2 * n] = at;
+    pairs[2 * n + 1] = readNumber(data, data.indexOf(HOST_S, start) + HOST_S.length);
+    n++;
+  };
+  const sockets = await Promise.all(Array.from({ length: VIEWERS }, () => bareViewer(new URL(url), onText)));
   const delays = (): number[] => Array.from({ length: n }, (_, k) => (pairs[2 * k]! - pairs[2 * k + 1]!) * 1000);
-  await Promise.all(sockets.map((ws) => new Promise<void>((resolve, reject) => (ws.once('open', () => resolve()), ws.once('error', reject)))));
   process.on('message', (m: { type: string }) => {
     if (m.type === 'count') counting = true;
     if (m.type === 'report') {
-      sockets.forEach((ws) => ws.terminate());
+      sockets.forEach((s) => s.destroy());
       process.send!({ type: 'latencies', ms: delays() } satisfies ChildMessage, () => process.disconnect());
     }
   });
   process.send!({ type: 'open' } satisfies ChildMessage);
+}
+
+/**
+ * A viewer on a bare TCP socket: the RFC 6455 opening handshake, then the server's (unmasked)
+ * frames read by hand, text frames handed to `onText` with the time their bytes arrived. A
+ * general-purpose client costs the viewers' process about ten times as much per message, and
+ * with a hundred viewers on one process that cost, not the server, set the last receipts.
+ * Both servers are measured with the same viewers.
+ */
+function bareViewer(url: URL, onText: (at: number, data: Buffer, start: number, end: number) => void): Promise<Socket> {
+  return new Promise((resolve, reject) => {
+    const socket = connect({ host: url.hostname, port: Number(url.port), noDelay: true });
+    const key = randomBytes(16).toString('base64');
+    let open = false;
+    let pending: Buffer | null = null;
+    socket.once('error', reject);
+    socket.once('connect', () => {
+      socket.write(`GET ${url.pathname} HTTP/1.1\r\nHost: ${url.host}\r\nUpgrade: websocket\r\nConnection: Upgrade\r\nSec-WebSocket-Key: ${key}\r\nSec-WebSocket-Version: 13\r\n\r\n`);
+    });
+    socket.on('data', (chunk: Buffer) => {
+      const at = clockS();
+      const data = pending === null ? chunk : Buffer.concat([pending, chunk]);
+      pending = null;
+      let i = 0;
+      if (!open) {
+        const head = data.indexOf('\r\n\r\n');
+        if (head < 0) return void (pending = data);
+        const status = data.toString('latin1', 0, head);
+        const accept = createHash('sha1').update(`${key}258EAFA5-E914-47DA-95CA-C5AB0DC85B11`).digest('base64');
+        if (!status.startsWith('HTTP/1.1 101') || !status.includes(`Sec-WebSocket-Accept: ${accept}`)) return reject(new Error(`handshake refused: ${status.split('\r\n')[0]}`));
+        open = true;
+        resolve(socket);
+        i = head + 4;
+      }
+      while (data.length - i >= 2) {
+        const opcode = data[i]! & 0x0f;
+        let len = data[i + 1]! & 0x7f;
+        let at0 = i + 2;
+        if (len === 126) {
+          if (data.length - i < 4) break;
+          len = data.readUInt16BE(i + 2);
+          at0 = i + 4;
+        } else if (len === 127) {
+          if (data.length - i < 10) break;
+          len = Number(data.readBigUInt64BE(i + 2));
+          at0 = i + 10;
+        }
+        if (data.length - at0 < len) break;
+        if (opcode === 0x1) onText(at, data, at0, at0 + len);
+        // A ping is answered with a masked pong of the same payload (a zero mask leaves it as it is).
+        if (opcode === 0x9 && len <= 125) socket.write(Buffer.concat([Buffer.from([0x8a, 0x80 | len, 0, 0, 0, 0]), data.subarray(at0, at0 + len)]));
+        i = at0 + len;
+      }
+      if (i < data.length) pending = Buffer.from(data.subarray(i));
+    });
+  });
 }
 
 /** The JSON number at `at` in `bytes` (digits, a point, more digits), read without a string. */
