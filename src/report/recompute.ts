@@ -142,7 +142,7 @@ export class RunRecompute {
   private readonly codesI = new DistinctCodes();
   private readonly codesV = new DistinctCodes();
   private readonly liveIds = new Set<string>();
-  /** The row as the curve and the resistance tracker take it: one object, filled in for every row (neither keeps it). */
+  /** The row's values, filled in for every row (nothing keeps the object). */
   private readonly point: CurvePoint = { hostS: 0, chargeAh: 0, energyWh: 0, volts: 0, amps: 0, celsius: 0, loadOn: false };
   /** °C by thermistor count, for the last count seen in each slot: the count wanders over a few values, each a logarithm to work out. */
   private readonly celsiusCounts = new Float64Array(CELSIUS_SLOTS).fill(-1);
@@ -155,8 +155,10 @@ export class RunRecompute {
   private prevNominalA = 0;
   private prev: { hostMs: number; loadOn: boolean; vRaw: number; iRaw: number; volts: number; amps: number } | null = null;
   private nextResumption = 0;
-  private firstHostS: number | null = null;
-  private lastHostS: number | null = null;
+  // Figures set on every row are numbers from the start, NaN for none yet: a field that has
+  // held null keeps every number written to it in a new box.
+  private firstHostS = Number.NaN;
+  private lastHostS = Number.NaN;
   private lastWall: string | null = null;
   private loadedFrames = 0;
   private lost = 0;
@@ -164,14 +166,14 @@ export class RunRecompute {
   private rigRestarts = 0;
   private switchOns = 0;
   private firstOnS: number | null = null;
-  private lastLoadedV: number | null = null;
+  private lastLoadedV = Number.NaN;
   private minA = Infinity;
   private maxA = -Infinity;
   private restTemps: number[] = [];
   private startC: number | null = null;
   private minC = Infinity;
   private maxC = -Infinity;
-  private endC: number | null = null;
+  private endC = Number.NaN;
   private liveTotals: { chargeAh: number; energyWh: number } | null = null;
 
   constructor(
@@ -235,10 +237,20 @@ export class RunRecompute {
     }
     const fresh = prev === null || resumed;
     const dtMs = fresh ? 0 : hostMs - prev.hostMs;
+    // The row's values as the measures, the curve and the resistance tracker take them: in one
+    // object filled in place rather than as arguments (doubles passed to a call are boxed).
+    const point = this.point;
+    point.hostS = s.hostS;
+    point.volts = volts;
+    point.amps = amps;
+    point.celsius = celsius;
+    point.loadOn = loadOn;
 
     const tick = this.ticks.next(s.tickMs);
-    const q = this.seqs.next(s.seq);
-    const rigRestart = tick.step !== null && tick.step < 0;
+    const tickStep = this.ticks.step;
+    this.seqs.next(s.seq);
+    const seqStep = this.seqs.step;
+    const rigRestart = tickStep !== null && tickStep < 0;
     if (rigRestart) {
       this.rigRestarts++;
       this.ticks.reset();
@@ -248,8 +260,8 @@ export class RunRecompute {
       this.rate.reset();
       this.rate.add(s.tickMs, hostMs);
     } else {
-      this.rate.add(tick.value, hostMs);
-      if (!fresh) this.lost += Math.max(0, (q.step ?? 1) - 1);
+      this.rate.add(tick, hostMs);
+      if (!fresh) this.lost += Math.max(0, (seqStep ?? 1) - 1);
     }
     const gap = !fresh && (dtMs > LONG_GAP_MS || rigRestart);
     if (gap) this.gaps++;
@@ -272,17 +284,11 @@ export class RunRecompute {
         this.liveTotals.chargeAh = s.chargeAh;
         this.liveTotals.energyWh = s.energyWh;
       }
-      this.measure(s, prev, volts, amps, celsius, loadOn, fresh);
+      this.measure(s, prev, point, fresh);
       this.lastWall = s.wallTime;
     }
-    const point = this.point;
-    point.hostS = s.hostS;
     point.chargeAh = this.integrator.chargeAh;
     point.energyWh = this.integrator.energyWh;
-    point.volts = volts;
-    point.amps = amps;
-    point.celsius = celsius;
-    point.loadOn = loadOn;
     this.resistance.add(point);
     this.curve.add(point);
     // One object for the whole run, updated in place: a new one per row is garbage per row.
@@ -295,11 +301,12 @@ export class RunRecompute {
       prev.volts = volts;
       prev.amps = amps;
     }
-    this.firstHostS ??= s.hostS;
+    if (this.rows === 1) this.firstHostS = s.hostS;
     this.lastHostS = s.hostS;
   }
 
-  private measure(s: Readonly<SampleRecord>, prev: RunRecompute['prev'], volts: number, amps: number, celsius: number, loadOn: boolean, fresh: boolean): void {
+  private measure(s: Readonly<SampleRecord>, prev: RunRecompute['prev'], point: Readonly<CurvePoint>, fresh: boolean): void {
+    const { volts, amps, celsius, loadOn } = point;
     const onS = this.integrator.onMs / 1000;
     if (Number.isFinite(celsius)) {
       this.endC = celsius;
@@ -371,7 +378,7 @@ export class RunRecompute {
       bridgedAh: integ.bridgedAh,
       nominalAh: this.nominalAh,
       loadedSamples: this.loadedFrames,
-      lastLoadedV: this.lastLoadedV,
+      lastLoadedV: Number.isNaN(this.lastLoadedV) ? null : this.lastLoadedV,
       cutoffV,
       counters: { accepted: this.rows, rejected, lost: this.lost },
       rigClockErrorPpm: errorPpm,
@@ -441,7 +448,7 @@ export class RunRecompute {
       );
     }
     if (!end) notes.push('The run was interrupted: it has no result.json and its event log no end.');
-    const spanS = this.firstHostS !== null && this.lastHostS !== null ? this.lastHostS - this.firstHostS : 0;
+    const spanS = this.rows > 0 ? this.lastHostS - this.firstHostS : 0;
 
     const result: RecomputedResult = {
       ...base,
@@ -486,7 +493,7 @@ export class RunRecompute {
         startC,
         minC: Number.isFinite(this.minC) ? this.minC : null,
         maxC: Number.isFinite(this.maxC) ? this.maxC : null,
-        endC: this.endC,
+        endC: Number.isNaN(this.endC) ? null : this.endC,
       },
       current: { minA, maxA, noiseA },
       voltageNoiseV: noiseV,

@@ -1,10 +1,5 @@
 const MS_PER_HOUR = 3_600_000;
 
-export interface IntegratorStep {
-  dAh: number;
-  dWh: number;
-}
-
 /**
  * Trapezoidal charge and energy on host time. The current counts only while the load is
  * switched on: with the load off no current flows, whatever an uncorrected offset shows.
@@ -16,25 +11,33 @@ export class Integrator {
   onMs = 0;
   /** Charge carried across flagged gaps (a figure of doubt, reported with the uncertainty). */
   bridgedAh = 0;
-  private prev: { i: number; p: number; on: boolean } | null = null;
+  // The frame before, as fields rather than an object per frame.
+  private hasPrev = false;
+  private prevI = 0;
+  private prevP = 0;
+  private prevOn = false;
 
-  add(dtMs: number, volts: number, amps: number, loadOn: boolean, gap: boolean): IntegratorStep {
+  add(dtMs: number, volts: number, amps: number, loadOn: boolean, gap: boolean): void {
     const i = loadOn ? amps : 0;
     const p = loadOn ? volts * amps : 0;
-    const prev = this.prev;
-    this.prev = { i, p, on: loadOn };
-    if (prev === null || dtMs <= 0) return { dAh: 0, dWh: 0 };
+    const had = this.hasPrev;
+    const prevI = this.prevI;
+    const prevP = this.prevP;
+    const prevOn = this.prevOn;
+    this.hasPrev = true;
+    this.prevI = i;
+    this.prevP = p;
+    this.prevOn = loadOn;
+    if (!had || dtMs <= 0) return;
     // Across a long gap only a load seen on at both ends is assumed to have stayed on; one seen
     // off at either end may have been cut at any moment in between (the rig's watchdog).
-    if (gap && !(loadOn && prev.on)) return { dAh: 0, dWh: 0 };
-    const dAh = ((prev.i + i) / 2) * (dtMs / MS_PER_HOUR);
-    const dWh = ((prev.p + p) / 2) * (dtMs / MS_PER_HOUR);
+    if (gap && !(loadOn && prevOn)) return;
+    const dAh = ((prevI + i) / 2) * (dtMs / MS_PER_HOUR);
     this.chargeAh += dAh;
-    this.energyWh += dWh;
+    this.energyWh += ((prevP + p) / 2) * (dtMs / MS_PER_HOUR);
     // The trapezoid of the on/off indicator: a step in which the load switched counts half.
-    this.onMs += (((loadOn ? 1 : 0) + (prev.on ? 1 : 0)) / 2) * dtMs;
+    this.onMs += (((loadOn ? 1 : 0) + (prevOn ? 1 : 0)) / 2) * dtMs;
     if (gap) this.bridgedAh += Math.abs(dAh);
-    return { dAh, dWh };
   }
 
   /**
@@ -51,7 +54,10 @@ export class Integrator {
 
   /** Starts from totals recorded earlier (resuming a run); the next frame starts a new segment. */
   restore(totals: { chargeAh: number; energyWh: number; onMs: number; bridgedAh: number }): void {
-    Object.assign(this, totals);
-    this.prev = null;
+    this.chargeAh = totals.chargeAh;
+    this.energyWh = totals.energyWh;
+    this.onMs = totals.onMs;
+    this.bridgedAh = totals.bridgedAh;
+    this.hasPrev = false;
   }
 }

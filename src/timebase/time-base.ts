@@ -46,10 +46,12 @@ export class TimeBase {
   }
 
   stamp(seq: number, tickMs: number, arrivalMs: number): Stamp {
-    const t = this.ticks.next(tickMs);
-    const s = this.seqs.next(seq);
+    const tick = this.ticks.next(tickMs);
+    const tickStep = this.ticks.step;
+    this.seqs.next(seq);
+    const seqStep = this.seqs.step;
     const prev = this.prev;
-    const rigRestart = t.step !== null && t.step < 0;
+    const rigRestart = tickStep !== null && tickStep < 0;
     if (prev === null || rigRestart) {
       if (rigRestart) {
         this.ticks.reset();
@@ -61,16 +63,16 @@ export class TimeBase {
       const hostMs = prev === null ? arrivalMs : Math.max(prev.hostMs, arrivalMs);
       this.windowStart = arrivalMs;
       this.windowMinLag = Infinity;
-      this.prev = { hostMs, tick: rigRestart ? tickMs : t.value, arrival: arrivalMs };
-      this.rate.add(rigRestart ? tickMs : t.value, arrivalMs);
+      this.prev = { hostMs, tick: rigRestart ? tickMs : tick, arrival: arrivalMs };
+      this.rate.add(rigRestart ? tickMs : tick, arrivalMs);
       return { hostMs, dtMs: prev === null ? 0 : hostMs - prev.hostMs, lost: 0, gap: prev !== null, rigRestart };
     }
     // Ticks that ran on while the host stood still (suspended) would wreck the rate estimate.
-    const hostStood = (t.value - prev.tick) * (this.rate.hostPerTick() ?? 1) - (arrivalMs - prev.arrival) > this.longGapMs;
+    const hostStood = (tick - prev.tick) * (this.rate.hostPerTick() ?? 1) - (arrivalMs - prev.arrival) > this.longGapMs;
     if (hostStood) this.rate.reset();
-    this.rate.add(t.value, arrivalMs);
+    this.rate.add(tick, arrivalMs);
     const scale = this.rate.hostPerTick() ?? 1;
-    let predicted = prev.hostMs + (t.value - prev.tick) * scale;
+    let predicted = prev.hostMs + (tick - prev.tick) * scale;
     // A lag behind arrival that every frame of a window shares (built up before the rate was
     // known, a slow rig clock read as a true one) is removed at once; in bursts the last frame
     // of each burst arrives on time, so their spreading is left alone.
@@ -83,11 +85,11 @@ export class TimeBase {
     const lower = Math.max(prev.hostMs, arrivalMs - this.maxLagMs);
     const hostMs = Math.min(arrivalMs, Math.max(lower, predicted));
     const dtMs = hostMs - prev.hostMs;
-    this.prev = { hostMs, tick: t.value, arrival: arrivalMs };
+    this.prev = { hostMs, tick, arrival: arrivalMs };
     return {
       hostMs,
       dtMs,
-      lost: Math.max(0, (s.step ?? 1) - 1),
+      lost: Math.max(0, (seqStep ?? 1) - 1),
       // A long silence on the host's clock, or the rig's ticks showing far more time than the
       // host saw: the monotonic clock stands still while the host is suspended.
       gap: arrivalMs - prev.arrival > this.longGapMs || hostStood,

@@ -2,14 +2,17 @@
 export class Unwrapper {
   private last: number | null = null;
   private base = 0;
+  /** The step of the last value from the one before it (null for the first). */
+  step: number | null = null;
 
   constructor(private readonly modulus: number) {}
 
-  /** Returns the unwrapped value and the step from the previous one (null for the first). */
-  next(raw: number): { value: number; step: number | null } {
+  /** Returns the unwrapped value; its step from the previous one is in `step`. */
+  next(raw: number): number {
     if (this.last === null) {
       this.last = raw;
-      return { value: raw, step: null };
+      this.step = null;
+      return raw;
     }
     let step = raw - this.last;
     if (step < -this.modulus / 2) {
@@ -22,11 +25,13 @@ export class Unwrapper {
       this.base -= this.modulus;
     }
     this.last = raw;
-    return { value: this.base + raw, step };
+    this.step = step;
+    return this.base + raw;
   }
 
   reset(): void {
     this.last = null;
     this.base = 0;
+    this.step = null;
   }
 }
