@@ -5,7 +5,7 @@
  */
 import { isAscii } from 'node:buffer';
 import { createReadStream } from 'node:fs';
-import type { Readable } from 'node:stream';
+import { open } from 'node:fs/promises';
 import { StringDecoder } from 'node:string_decoder';
 import { createGunzip } from 'node:zlib';
 import { ErrorCodes, makeError } from '../core/errors.js';
@@ -96,77 +96,119 @@ class TextSplitter {
 
 /**
  * The same splitting on bytes, for as long as the text is ASCII (where a byte is a character);
- * the first chunk that is not hands the rest of the file to a TextSplitter.
+ * the first chunk that is not hands the rest of the file to a TextSplitter. The reader keeps
+ * the unfinished line at the front of the buffer it reads the next chunk into, so lines are
+ * found in place, without joining buffers.
  */
 class ByteSplitter {
-  private partial: Buffer = Buffer.alloc(0);
   private sawReturn = false;
   private text: TextSplitter | null = null;
 
-  /** The lines `chunk` completes: as places in the returned buffer, or as text once the file is not ASCII. */
-  push(chunk: Buffer, starts: number[], ends: number[], textOut: string[]): Buffer | null {
-    if (this.text === null && !isAscii(chunk)) this.text = new TextSplitter(this.partial.toString('latin1'), this.sawReturn);
+  /**
+   * The lines completed in `bytes[0, length)`, of which `bytes[0, fresh)` is the unfinished
+   * line carried over and the rest new data: their places go to `starts` and `ends` and the
+   * return value is where the unfinished tail starts; once the file is not ASCII they go to
+   * `textOut` as text, and the return value is -1.
+   */
+  push(bytes: Buffer, fresh: number, length: number, starts: number[], ends: number[], textOut: string[]): number {
+    const chunk = bytes.subarray(fresh, length);
+    if (this.text === null && !isAscii(chunk)) this.text = new TextSplitter(bytes.toString('latin1', 0, fresh), this.sawReturn);
     if (this.text !== null) {
       this.text.push(chunk, textOut);
-      return null;
+      return -1;
     }
-    let data = chunk;
-    if (this.sawReturn) {
-      if (data[0] === 10) data = data.subarray(1);
-      this.sawReturn = false;
-    }
-    const bytes = this.partial.length > 0 ? Buffer.concat([this.partial, data]) : data;
-    let from = 0;
-    let nl = bytes.indexOf(10);
-    let cr = bytes.indexOf(13);
+    // A carried line means the data before did not end in a line end, so no \r is pending.
+    let from = this.sawReturn && bytes[fresh] === 10 ? fresh + 1 : 0;
+    this.sawReturn = length > fresh && bytes[length - 1] === 13;
+    // Searched within the data only: the buffer's bytes beyond are left from earlier reads.
+    const data = bytes.subarray(0, length);
+    let nl = data.indexOf(10, from);
+    let cr = data.indexOf(13, from);
     for (;;) {
       if (nl >= 0 && (cr < 0 || nl < cr)) {
         starts.push(from);
         ends.push(nl);
         from = nl + 1;
-        nl = bytes.indexOf(10, from);
+        nl = data.indexOf(10, from);
       } else if (cr >= 0) {
         starts.push(from);
         ends.push(cr);
-        from = bytes[cr + 1] === 10 ? cr + 2 : cr + 1;
-        if (nl >= 0 && nl < from) nl = bytes.indexOf(10, from);
-        cr = bytes.indexOf(13, from);
+        from = data[cr + 1] === 10 ? cr + 2 : cr + 1;
+        if (nl >= 0 && nl < from) nl = data.indexOf(10, from);
+        cr = data.indexOf(13, from);
       } else {
         break;
       }
     }
-    // A copy: the unfinished line outlives the chunk it came in.
-    this.partial = Buffer.from(bytes.subarray(from));
-    this.sawReturn = bytes.length > 0 && bytes[bytes.length - 1] === 13;
-    return bytes;
+    return from;
   }
 
-  end(): string | null {
+  /** The unfinished last line, given the bytes carried (readline drops bytes of a character cut off at the end). */
+  end(carried: string): string | null {
     if (this.text !== null) return this.text.end();
-    return this.partial.length > 0 ? this.partial.toString('latin1') : null;
+    return carried.length > 0 ? carried : null;
   }
+}
+
+/** New bytes read at a time. */
+const CHUNK = 64 * 1024;
+
+/**
+ * Where a file's bytes come from: `fill` puts up to CHUNK new bytes into `target` at `at` and
+ * says how many (0 at the end).
+ */
+interface ByteSource {
+  fill(target: Buffer, at: number): Promise<number>;
+  close(): Promise<void>;
+}
+
+/** A plain file, read straight into the reader's buffers. */
+async function plainSource(path: string, onBytes?: (n: number) => void): Promise<ByteSource> {
+  const handle = await open(path, 'r');
+  return {
+    fill: async (target, at) => {
+      const { bytesRead } = await handle.read(target, at, CHUNK, null);
+      if (bytesRead > 0) onBytes?.(bytesRead);
+      return bytesRead;
+    },
+    close: () => handle.close(),
+  };
+}
+
+/** A gzip file, decompressed as a stream and copied into the reader's buffers. */
+function gzipSource(path: string, onBytes?: (n: number) => void): ByteSource {
+  const file = createReadStream(path);
+  const gunzip = createGunzip({ chunkSize: CHUNK });
+  // A file that fails under gunzip would leave it waiting for more input forever.
+  file.on('error', (e) => gunzip.destroy(e));
+  if (onBytes) file.on('data', (chunk) => onBytes(chunk.length));
+  const chunks = file.pipe(gunzip)[Symbol.asyncIterator]() as AsyncIterator<Buffer>;
+  return {
+    fill: async (target, at) => {
+      const next = await chunks.next();
+      if (next.done) return 0;
+      next.value.copy(target, at);
+      return next.value.length;
+    },
+    close: async () => {
+      gunzip.destroy();
+      file.destroy();
+    },
+  };
 }
 
 /**
  * The lines of a file a chunk at a time (about 64 KiB per batch), in order: the same lines,
  * numbers, `terminated` flags and errors as readLines (which is built on it). ASCII text comes
- * as AsciiLines, anything else as TextLine[].
+ * as AsciiLines, anything else as TextLine[]. An AsciiLines batch's bytes are the reader's
+ * own buffer: they hold until the next batch is asked for, and are reused after.
  */
 export async function* readLineBatchesRaw(path: string, o: LineReadOptions = {}): AsyncGenerator<LineBatch> {
   const maxLine = o.maxLineBytes ?? 1024 * 1024;
-  const file = createReadStream(path);
   let failure: Error | null = null;
   const fail = (e: Error): void => {
     failure ??= e;
   };
-  let text: Readable = file;
-  if (o.gzip) {
-    const gunzip = createGunzip();
-    // A file that fails under gunzip would leave it waiting for more input forever.
-    file.on('error', (e) => gunzip.destroy(e));
-    text = file.pipe(gunzip);
-    if (o.onBytes) file.on('data', (chunk) => o.onBytes!(chunk.length));
-  }
   const splitter = new ByteSplitter();
   const starts: number[] = [];
   const ends: number[] = [];
@@ -176,29 +218,48 @@ export async function* readLineBatchesRaw(path: string, o: LineReadOptions = {})
   // A line is passed on once the next one is known, so the last one is known to be last.
   let held: { text: string; number: number } | null = null;
   let n = 0;
+  // Two buffers taken in turn: the next chunk is read into one while the lines of the other
+  // are worked on. Each has room for the unfinished line carried over in front of a chunk.
+  const buffers = [Buffer.allocUnsafe(2 * CHUNK), Buffer.allocUnsafe(2 * CHUNK)];
+  let current = 0;
+  let carried = 0;
+  let source: ByteSource | null = null;
+  let reading: Promise<number> | null = null;
   try {
-    for await (const chunk of text as AsyncIterable<Buffer>) {
-      if (!o.gzip) o.onBytes?.(chunk.length);
-      lastByte = chunk[chunk.length - 1] ?? lastByte;
+    source = o.gzip ? gzipSource(path, o.onBytes) : await plainSource(path, o.onBytes);
+    reading = source.fill(buffers[0]!, 0);
+    for (;;) {
+      const got = await reading;
+      if (got === 0) break;
+      const bytes = buffers[current]!;
+      const length = carried + got;
+      lastByte = bytes[length - 1]!;
       let longest = 0;
       // No line can be longer than what came since the last line end; only when that could
       // pass the limit are the line ends looked for here.
-      if (sinceNewline + chunk.length > maxLine) {
-        let from = 0;
-        for (let nl = chunk.indexOf(10); nl >= 0; nl = chunk.indexOf(10, from)) {
-          longest = Math.max(longest, (from === 0 ? sinceNewline : 0) + nl - from);
+      if (sinceNewline + got > maxLine) {
+        let from = carried;
+        const data = bytes.subarray(0, length);
+        for (let nl = data.indexOf(10, from); nl >= 0; nl = data.indexOf(10, from)) {
+          longest = Math.max(longest, (from === carried ? sinceNewline : 0) + nl - from);
           from = nl + 1;
         }
-        sinceNewline = (from === 0 ? sinceNewline : 0) + chunk.length - from;
+        sinceNewline = (from === carried ? sinceNewline : 0) + length - from;
       } else {
-        const nl = chunk.lastIndexOf(10);
-        sinceNewline = nl < 0 ? sinceNewline + chunk.length : chunk.length - nl - 1;
+        const nl = bytes.lastIndexOf(10, length - 1);
+        sinceNewline = nl < carried ? sinceNewline + got : length - nl - 1;
       }
       starts.length = 0;
       ends.length = 0;
       lines.length = 0;
-      const bytes = splitter.push(chunk, starts, ends, lines);
-      if (bytes !== null && starts.length > 0) {
+      const tail = splitter.push(bytes, carried, length, starts, ends, lines);
+      // The unfinished line goes to the front of the other buffer, and the next read after it.
+      current ^= 1;
+      carried = tail < 0 ? 0 : length - tail;
+      if (carried + CHUNK > buffers[current]!.length) buffers[current] = Buffer.allocUnsafe(carried + CHUNK);
+      if (carried > 0) bytes.copy(buffers[current]!, 0, tail, length);
+      reading = source.fill(buffers[current]!, carried);
+      if (tail >= 0 && starts.length > 0) {
         if (held) yield [{ ...held, terminated: true }];
         const last = starts.length - 1;
         held = { text: bytes.toString('latin1', starts[last], ends[last]), number: n + starts.length };
@@ -216,7 +277,7 @@ export async function* readLineBatchesRaw(path: string, o: LineReadOptions = {})
         break;
       }
     }
-    const rest = failure ? null : splitter.end();
+    const rest = failure ? null : splitter.end(buffers[current]!.toString('latin1', 0, carried));
     if (rest !== null) {
       if (held) yield [{ ...held, terminated: true }];
       held = { text: rest, number: ++n };
@@ -224,8 +285,9 @@ export async function* readLineBatchesRaw(path: string, o: LineReadOptions = {})
   } catch (e) {
     fail(e as Error);
   } finally {
-    text.destroy();
-    file.destroy();
+    // A read may still be under way (a fault, or a caller that stopped early): it ends with the source.
+    await source?.close();
+    await reading?.catch(() => 0);
   }
   if (failure) {
     const f = failure as Error;
