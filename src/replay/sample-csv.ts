@@ -276,8 +276,11 @@ function scanColumns(b: Buffer, start: number, end: number): number {
       let n = 0;
       for (; i < end; i++) {
         const d = b[i]! - 48;
-        if (d === -4) break;
-        if (d < 0 || d > 9) return -1;
+        // One unsigned comparison for the common case, a digit; a comma is 44 - 48 = -4.
+        if (d >>> 0 > 9) {
+          if (d === -4) break;
+          return -1;
+        }
         n = n * 10 + d;
       }
       if (i === first || i === end || n > MAX[col]!) return -1;
@@ -307,14 +310,14 @@ function scanColumns(b: Buffer, start: number, end: number): number {
       let point = -1;
       let m = 0;
       for (; i < end; i++) {
-        const c = b[i]!;
-        if (c === 44) break;
-        if (c === 46 && point < 0) {
-          point = i;
+        const d = b[i]! - 48;
+        if (d >>> 0 <= 9) {
+          m = m * 10 + d;
           continue;
         }
-        if (c < 48 || c > 57) return -1;
-        m = m * 10 + (c - 48);
+        if (d === -4) break;
+        if (d !== -2 || point >= 0) return -1;
+        point = i;
       }
       if (i === end) return -1;
       if (i === first && kind === K_DECIMAL_OR_EMPTY) value[col] = Number.NaN;
