@@ -159,54 +159,71 @@ export async function forEachRunSample(run: RunFolder, o: SampleReadOptions, vis
 /** Visits the rows; pauses after each read and before reporting a cut line, so a caller can hand on the rows visited so far first. */
 async function* visitRunSamples(run: RunFolder, o: SampleReadOptions, visit: (row: SampleRecord) => void): AsyncGenerator<void> {
   const row = blankSampleRecord();
+  const channel = run.manifest.channel;
   const lastFile = run.sampleFiles.length - 1;
   for (const [fi, f] of run.sampleFiles.entries()) {
     const mayBeCut = fi === lastFile;
     let header = false;
     const where = (line: number): string => `${join(basename(run.dir), f.name)} line ${line}`;
-    /** One line; false when it was cut off by an interruption (to be reported once the rows before it are out). */
-    const take = (text: string | null, bytes: Buffer, start: number, end: number, line: TextLine | null, number: number): boolean => {
+    const malformed = (e: SampleLineError, number: number): Error =>
+      makeError(
+        ErrorCodes.RUN_DATA,
+        `a sample row is malformed: ${e.message}`,
+        where(number),
+        'Rows are written by `cellvigil run` and never edited; restore the file from a backup, or move the damaged rows to another file and recompute what remains.',
+      );
+    const wrongChannel = (number: number): Error =>
+      makeError(
+        ErrorCodes.RUN_DATA,
+        `a row for channel ${row.channel} in a run on channel ${channel}`,
+        where(number),
+        'The file does not belong to this run folder; move it back to its own run.',
+      );
+    /** One line of text; false when it was cut off by an interruption (to be reported once the rows before it are out). */
+    const takeText = (line: TextLine): boolean => {
+      const cut = !line.terminated && mayBeCut;
       if (!header) {
-        if (line !== null && !line.terminated && mayBeCut) return false;
-        checkSampleHeader(text ?? bytes.toString('latin1', start, end), f.name);
+        if (cut) return false;
+        checkSampleHeader(line.text, f.name);
         header = true;
         return true;
       }
       try {
-        if (text === null) parseSampleBytes(bytes, start, end, row);
-        else parseSampleLine(text, row);
+        parseSampleLine(line.text, row);
       } catch (e) {
         if (!(e instanceof SampleLineError)) throw e;
-        if (line !== null && !line.terminated && mayBeCut) return false;
-        throw makeError(
-          ErrorCodes.RUN_DATA,
-          `a sample row is malformed: ${e.message}`,
-          where(number),
-          'Rows are written by `cellvigil run` and never edited; restore the file from a backup, or move the damaged rows to another file and recompute what remains.',
-        );
+        if (cut) return false;
+        throw malformed(e, line.number);
       }
-      if (row.channel !== run.manifest.channel) {
-        throw makeError(
-          ErrorCodes.RUN_DATA,
-          `a row for channel ${row.channel} in a run on channel ${run.manifest.channel}`,
-          where(number),
-          'The file does not belong to this run folder; move it back to its own run.',
-        );
-      }
+      if (row.channel !== channel) throw wrongChannel(line.number);
       visit(row);
       return true;
     };
-    const none = Buffer.alloc(0);
     for await (const batch of readLineBatchesRaw(f.path, { gzip: f.gzip, ...(o.onBytes ? { onBytes: o.onBytes } : {}) })) {
       if (Array.isArray(batch)) {
         for (const line of batch) {
-          if (take(line.text, none, 0, 0, line, line.number)) continue;
+          if (takeText(line)) continue;
           yield;
           o.onCutLine?.({ file: f.name, line: line.number });
         }
       } else {
+        // Lines from bytes are all terminated: none can be a cut one.
         const { bytes, starts, ends, first } = batch;
-        for (let k = 0; k < starts.length; k++) take(null, bytes, starts[k]!, ends[k]!, null, first + k);
+        let k = 0;
+        if (!header) {
+          checkSampleHeader(bytes.toString('latin1', starts[0], ends[0]), f.name);
+          header = true;
+          k = 1;
+        }
+        try {
+          for (; k < starts.length; k++) {
+            parseSampleBytes(bytes, starts[k]!, ends[k]!, row);
+            if (row.channel !== channel) throw wrongChannel(first + k);
+            visit(row);
+          }
+        } catch (e) {
+          throw e instanceof SampleLineError ? malformed(e, first + k) : e;
+        }
       }
       yield;
     }

@@ -256,6 +256,7 @@ function isWallTime(b: Buffer, i: number, end: number): boolean {
   const prefix = b.toString('latin1', i, i + 14);
   if (!/^\d{4}-\d{2}-\d{2}T\d{2}:$/.test(prefix) || !twoDigits(b, i + 11, 23) || !Number.isFinite(Date.parse(`${prefix}00:00.000Z`))) return false;
   hour.set(b, i, i + 14);
+  secondOfHour = -1;
   return true;
 }
 
@@ -337,6 +338,9 @@ const pad = (n: number, width: number): string => String(n).padStart(width, '0')
 /** `MM:SS.` for every minute and second of an hour, and `sssZ` for every millisecond. */
 const MINUTE_SECOND = Array.from({ length: 3600 }, (_, k) => `${pad(Math.floor(k / 60), 2)}:${pad(k % 60, 2)}.`);
 const MILLI_Z = Array.from({ length: 1000 }, (_, k) => `${pad(k, 3)}Z`);
+/** The wall time of the last row up to its second (`YYYY-MM-DDTHH:MM:SS.`): rows come many a second. */
+let secondOfHour = -1;
+let secondText = '';
 
 /*
  * The fast way through a row as the daemon writes it, in one pass over its bytes without
@@ -366,7 +370,11 @@ function readFast(b: Buffer, start: number, end: number, r: SampleRecord): boole
   const milli = (b[w + 20]! - 48) * 100 + (b[w + 21]! - 48) * 10 + b[w + 22]! - 48;
   const v = value;
   r.hostS = v[0]!;
-  r.wallTime = hour.text + MINUTE_SECOND[minute * 60 + second]! + MILLI_Z[milli]!;
+  if (minute * 60 + second !== secondOfHour) {
+    secondOfHour = minute * 60 + second;
+    secondText = hour.text + MINUTE_SECOND[secondOfHour]!;
+  }
+  r.wallTime = secondText + MILLI_Z[milli]!;
   r.channel = v[2]!;
   r.seq = v[3]!;
   r.tickMs = v[4]!;
