@@ -150,8 +150,9 @@ class ByteSplitter {
   }
 }
 
-/** New bytes read at a time. */
-const CHUNK = 64 * 1024;
+/** New bytes read at a time: large enough that a read's round trip is small against the rows in it. */
+export const READ_CHUNK_BYTES = 256 * 1024;
+const CHUNK = READ_CHUNK_BYTES;
 
 /**
  * Where a file's bytes come from: `fill` puts up to CHUNK new bytes into `target` at `at` and
@@ -198,10 +199,10 @@ function gzipSource(path: string, onBytes?: (n: number) => void): ByteSource {
 }
 
 /**
- * The lines of a file a chunk at a time (about 64 KiB per batch), in order: the same lines,
- * numbers, `terminated` flags and errors as readLines (which is built on it). ASCII text comes
- * as AsciiLines, anything else as TextLine[]. An AsciiLines batch's bytes are the reader's
- * own buffer: they hold until the next batch is asked for, and are reused after.
+ * The lines of a file a chunk at a time (READ_CHUNK_BYTES of the file per batch), in order:
+ * the same lines, numbers, `terminated` flags and errors as readLines (which is built on it).
+ * ASCII text comes as AsciiLines, anything else as TextLine[]. An AsciiLines batch's bytes are
+ * the reader's own buffer: they hold until the next batch is asked for, and are reused after.
  */
 export async function* readLineBatchesRaw(path: string, o: LineReadOptions = {}): AsyncGenerator<LineBatch> {
   const maxLine = o.maxLineBytes ?? 1024 * 1024;
