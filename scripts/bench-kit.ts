@@ -115,6 +115,11 @@ export function fmt(x: number, digits = 2): string {
   return Number.isFinite(x) ? x.toFixed(digits) : String(x);
 }
 
+/** A change with its sign, + or − (two decimals). */
+export function signed(x: number): string {
+  return `${x < 0 ? '−' : '+'}${fmt(Math.abs(x), 2)}`;
+}
+
 /** A socat pseudo-terminal pair: bytes written to one end come out of the other. */
 export interface PtyPair {
   host: string;

@@ -27,7 +27,7 @@ import {
 } from './bench-kit.js';
 
 const ROWS = Number(argValue('rows') ?? 2_000_000);
-const ROUNDS = Number(argValue('rounds') ?? 2);
+const ROUNDS = Number(argValue('rounds') ?? 3);
 /** Bump when the generated data changes, so an old cache is not reused. */
 const DATA_VERSION = 1;
 const DATA_DIR = join(BENCH_DIR, 'data', `replay-${ROWS}`);

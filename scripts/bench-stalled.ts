@@ -9,7 +9,7 @@ import type { Socket } from 'node:net';
 import { fileURLToPath } from 'node:url';
 import { promisify } from 'node:util';
 import { WebSocket } from 'ws';
-import { argValue, benchRunInfo, collect, fmt, memory, nextTick, product, reportFigure, waitFor, type LiveHubModule, type LiveServerModule } from './bench-kit.js';
+import { argValue, benchRunInfo, collect, memory, nextTick, product, reportFigure, signed, waitFor, type LiveHubModule, type LiveServerModule } from './bench-kit.js';
 
 const SAMPLES = 100_000;
 const WARMUP = 5_000;
@@ -118,8 +118,8 @@ async function main(): Promise<void> {
     baseline: base.rssAfterMB,
     unit: 'MB extra',
     ratio: with1.rssAfterMB / base.rssAfterMB,
-    measuredText: `+${fmt(extraHeap, 2)} MB heap, +${fmt(extraRss, 2)} MB RSS`,
-    baselineText: `growth ${fmt(base.heapGrowthMB, 2)} MB heap, ${fmt(base.rssGrowthMB, 2)} MB RSS`,
+    measuredText: `${signed(extraHeap)} MB heap, ${signed(extraRss)} MB RSS`,
+    baselineText: `growth ${signed(base.heapGrowthMB)} MB heap, ${signed(base.rssGrowthMB)} MB RSS`,
     target: `extra ≤ ${MAX_EXTRA_MB} MB`,
     pass: extra <= MAX_EXTRA_MB && with1.stalledViewer?.connected === true && with1.readerSamples > 0,
     details: { samples: SAMPLES, warmup: WARMUP, baseline: base, stalled: with1 },
