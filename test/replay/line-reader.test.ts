@@ -1,4 +1,4 @@
-import { createReadStream } from 'node:fs';
+import { createReadStream, readdirSync } from 'node:fs';
 import { mkdtemp, rm, writeFile } from 'node:fs/promises';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
@@ -76,6 +76,23 @@ describe('line reader', () => {
         expect(await collect(path)).toEqual(await reference(path, bytes));
       }
     }
+  });
+
+  it('a reader stopped early closes its file, plain or compressed', async () => {
+    // Linux lists a process's open files in /proc/self/fd.
+    const openFiles = (): number => readdirSync('/proc/self/fd').length;
+    const text = Array.from({ length: 40_000 }, (_, i) => `row ${i},${'z'.repeat(i % 31)}`).join('\n');
+    const plain = join(dir, 'early.txt');
+    await writeFile(plain, text);
+    await writeFile(`${plain}.gz`, gzipSync(text));
+    const before = openFiles();
+    for (let k = 0; k < 40; k++) {
+      for await (const batch of readLineBatches(k % 2 === 0 ? plain : `${plain}.gz`, { gzip: k % 2 === 1 })) {
+        expect(batch.length).toBeGreaterThan(0);
+        break;
+      }
+    }
+    expect(openFiles()).toBeLessThanOrEqual(before + 1);
   });
 
   it('gives the same lines in batches as one by one, and counts every byte once', async () => {

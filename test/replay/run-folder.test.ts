@@ -162,6 +162,27 @@ describe('a run folder', () => {
     expect(e.message).toContain('column flags is "zz"');
   });
 
+  it('the rows before a damaged row come out before its error, each one a record of its own', async () => {
+    const dir = await copy();
+    const names = await sampleFiles(dir);
+    const lines = (await readFile(join(dir, names[1]!), 'utf8')).split('\n');
+    lines[57] = lines[57]!.replace(/,01,/, ',zz,');
+    await writeFile(join(dir, names[1]!), lines.join('\n'));
+    const before = (await readFile(join(dir, names[0]!), 'utf8')).split('\n').filter((l) => l !== '').slice(1);
+    const got: SampleRecord[] = [];
+    const e = await failure(
+      (async () => {
+        for await (const s of readRunSamples(await openRunFolder(dir))) got.push(s);
+      })(),
+    );
+    expect(e.message).toContain(`${names[1]} line 58`);
+    // The first file's rows, then the second's up to the damaged line 58 (header on line 1).
+    expect(got).toHaveLength(before.length + 56);
+    expect(new Set(got).size).toBe(got.length);
+    expect(got[0]).toEqual(parseSampleLine(before[0]!));
+    expect(got.at(-1)).toEqual(parseSampleLine(lines[56]!));
+  });
+
   it('a wrong header is an error naming line 1', async () => {
     const dir = await copy();
     const name = (await sampleFiles(dir))[0]!;
