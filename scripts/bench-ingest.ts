@@ -28,7 +28,7 @@ import {
 
 const FLOOD = Number(argValue('frames') ?? 150_000);
 const REST = 30;
-const ROUNDS = Number(argValue('rounds') ?? 3);
+const ROUNDS = Number(argValue('rounds') ?? 4);
 const FEEDER = fileURLToPath(new URL('./bench-feeder.js', import.meta.url));
 
 interface Feeder {
