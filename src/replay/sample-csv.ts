@@ -126,11 +126,12 @@ export function blankSampleRecord(): SampleRecord {
 export function parseSampleLine(line: string, into: SampleRecord = blankSampleRecord()): SampleRecord {
   // Only ASCII can be a valid row; other text goes straight to the rules and their message.
   if (Buffer.byteLength(line, 'utf8') !== line.length) return Object.assign(into, parseByRules(line));
-  const bytes = Buffer.from(line, 'latin1');
-  return readFast(bytes, 0, bytes.length, into) ? into : Object.assign(into, parseByRules(line));
+  // With a line end after it, as rows read from a file have.
+  const bytes = Buffer.from(`${line}\n`, 'latin1');
+  return readFast(bytes, 0, line.length, into) ? into : Object.assign(into, parseByRules(line));
 }
 
-/** The row in `bytes` from `start` to `end` (ASCII, without its line end); as parseSampleLine. */
+/** The row in `bytes` from `start` to `end` (ASCII, its line end at `end`); as parseSampleLine. */
 export function parseSampleBytes(bytes: Buffer, start: number, end: number, into: SampleRecord = blankSampleRecord()): SampleRecord {
   return readFast(bytes, start, end, into) ? into : Object.assign(into, parseByRules(bytes.toString('latin1', start, end)));
 }
@@ -269,13 +270,17 @@ function isWallTime(b: Buffer, i: number, end: number): boolean {
  * as Number(); longer ones go to Number(). Flags: one or two hex digits.
  */
 function scanColumns(b: Buffer, start: number, end: number): number {
+  // The digit loops stop at the first byte that is not a digit without checking `end`: the
+  // line end at `end` is such a byte, and the checks after each loop refuse a field that ran
+  // into it. Without one there, the rules take the row.
+  if (b[end] !== 10 && b[end] !== 13) return -1;
   let i = start;
   for (let col = 0; col < KIND.length; col++) {
     const kind = KIND[col]!;
     if (kind === K_WHOLE) {
       const first = i;
       let n = 0;
-      for (; i < end; i++) {
+      for (; ; i++) {
         const d = b[i]! - 48;
         // One unsigned comparison for the common case, a digit; a comma is 44 - 48 = -4.
         if (d >>> 0 > 9) {
@@ -310,7 +315,7 @@ function scanColumns(b: Buffer, start: number, end: number): number {
       const digitsFrom = i;
       let point = -1;
       let m = 0;
-      for (; i < end; i++) {
+      for (; ; i++) {
         const d = b[i]! - 48;
         if (d >>> 0 <= 9) {
           m = m * 10 + d;
