@@ -115,9 +115,10 @@ export function fmt(x: number, digits = 2): string {
   return Number.isFinite(x) ? x.toFixed(digits) : String(x);
 }
 
-/** A change with its sign, + or − (two decimals). */
+/** A change with its sign, + or − (two decimals; one that rounds to zero is +0.00). */
 export function signed(x: number): string {
-  return `${x < 0 ? '−' : '+'}${fmt(Math.abs(x), 2)}`;
+  const r = Math.round(x * 100) / 100;
+  return `${r < 0 ? '−' : '+'}${fmt(Math.abs(r), 2)}`;
 }
 
 /** A socat pseudo-terminal pair: bytes written to one end come out of the other. */
