@@ -373,12 +373,12 @@ function readFast(b: Buffer, start: number, end: number, r: SampleRecord): boole
   const minute = (b[w + 14]! - 48) * 10 + b[w + 15]! - 48;
   const second = (b[w + 17]! - 48) * 10 + b[w + 18]! - 48;
   const milli = (b[w + 20]! - 48) * 100 + (b[w + 21]! - 48) * 10 + b[w + 22]! - 48;
-  const v = value;
-  r.hostS = v[0]!;
   if (minute * 60 + second !== secondOfHour) {
     secondOfHour = minute * 60 + second;
     secondText = hour.text + MINUTE_SECOND[secondOfHour]!;
   }
+  const v = value;
+  r.hostS = v[0]!;
   r.wallTime = secondText + MILLI_Z[milli]!;
   r.channel = v[2]!;
   r.seq = v[3]!;
