@@ -31,7 +31,9 @@ async function reference(path: string, bytes: Buffer): Promise<TextLine[]> {
 
 async function collect(path: string, gzip = false): Promise<TextLine[]> {
   const out: TextLine[] = [];
-  for await (const l of readLines(path, { gzip })) out.push(l);
+  // Long runs of the pieces below can join into a line past the reader's 1 MiB default limit
+  // (its refusal is tested with the run folders); readline has none, so the comparison lifts it.
+  for await (const l of readLines(path, { gzip, maxLineBytes: 64 * 1024 * 1024 })) out.push(l);
   return out;
 }
 
