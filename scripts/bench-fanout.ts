@@ -16,7 +16,18 @@ import { connect, type Socket } from 'node:net';
 import { performance } from 'node:perf_hooks';
 import { fileURLToPath } from 'node:url';
 import { WebSocketServer } from 'ws';
-import { argValue, benchRunInfo, fmt, percentile, product, reportFigure, sleep, waitFor, type LiveHubModule, type LiveServerModule } from './bench-kit.js';
+import {
+  argValue,
+  benchRunInfo,
+  fmt,
+  percentile,
+  product,
+  reportFigure,
+  sleep,
+  waitFor,
+  type LiveHubModule,
+  type LiveServerModule,
+} from './bench-kit.js';
 
 const VIEWERS = 100;
 const RATE_HZ = 50;
@@ -51,18 +62,29 @@ async function viewersChild(url: string): Promise<void> {
   let n = 0;
   let counting = false;
   const onText = (at: number, data: Buffer, start: number, end: number): void => {
-    if (!counting || n * 2 >= pairs.length || end - start < SAMPLE.length || data.compare(SAMPLE, 0, SAMPLE.length, start, start + SAMPLE.length) !== 0) return;
+    if (
+      !counting ||
+      n * 2 >= pairs.length ||
+      end - start < SAMPLE.length ||
+      data.compare(SAMPLE, 0, SAMPLE.length, start, start + SAMPLE.length) !== 0
+    )
+      return;
     pairs[2 * n] = at;
     pairs[2 * n + 1] = readNumber(data, data.indexOf(HOST_S, start) + HOST_S.length);
     n++;
   };
-  const sockets = await Promise.all(Array.from({ length: VIEWERS }, () => bareViewer(new URL(url), onText)));
-  const delays = (): number[] => Array.from({ length: n }, (_, k) => (pairs[2 * k]! - pairs[2 * k + 1]!) * 1000);
+  const sockets = await Promise.all(
+    Array.from({ length: VIEWERS }, () => bareViewer(new URL(url), onText)),
+  );
+  const delays = (): number[] =>
+    Array.from({ length: n }, (_, k) => (pairs[2 * k]! - pairs[2 * k + 1]!) * 1000);
   process.on('message', (m: { type: string }) => {
     if (m.type === 'count') counting = true;
     if (m.type === 'report') {
       sockets.forEach((s) => s.destroy());
-      process.send!({ type: 'latencies', ms: delays() } satisfies ChildMessage, () => process.disconnect());
+      process.send!({ type: 'latencies', ms: delays() } satisfies ChildMessage, () =>
+        process.disconnect(),
+      );
     }
   });
   process.send!({ type: 'open' } satisfies ChildMessage);
@@ -75,7 +97,10 @@ async function viewersChild(url: string): Promise<void> {
  * with a hundred viewers on one process that cost, not the server, set the last receipts.
  * Both servers are measured with the same viewers.
  */
-function bareViewer(url: URL, onText: (at: number, data: Buffer, start: number, end: number) => void): Promise<Socket> {
+function bareViewer(
+  url: URL,
+  onText: (at: number, data: Buffer, start: number, end: number) => void,
+): Promise<Socket> {
   return new Promise((resolve, reject) => {
     const socket = connect({ host: url.hostname, port: Number(url.port), noDelay: true });
     const key = randomBytes(16).toString('base64');
@@ -83,7 +108,9 @@ function bareViewer(url: URL, onText: (at: number, data: Buffer, start: number, 
     let pending: Buffer | null = null;
     socket.once('error', reject);
     socket.once('connect', () => {
-      socket.write(`GET ${url.pathname} HTTP/1.1\r\nHost: ${url.host}\r\nUpgrade: websocket\r\nConnection: Upgrade\r\nSec-WebSocket-Key: ${key}\r\nSec-WebSocket-Version: 13\r\n\r\n`);
+      socket.write(
+        `GET ${url.pathname} HTTP/1.1\r\nHost: ${url.host}\r\nUpgrade: websocket\r\nConnection: Upgrade\r\nSec-WebSocket-Key: ${key}\r\nSec-WebSocket-Version: 13\r\n\r\n`,
+      );
     });
     socket.on('data', (chunk: Buffer) => {
       const at = clockS();
@@ -94,8 +121,14 @@ function bareViewer(url: URL, onText: (at: number, data: Buffer, start: number, 
         const head = data.indexOf('\r\n\r\n');
         if (head < 0) return void (pending = data);
         const status = data.toString('latin1', 0, head);
-        const accept = createHash('sha1').update(`${key}258EAFA5-E914-47DA-95CA-C5AB0DC85B11`).digest('base64');
-        if (!status.startsWith('HTTP/1.1 101') || !status.includes(`Sec-WebSocket-Accept: ${accept}`)) return reject(new Error(`handshake refused: ${status.split('\r\n')[0]}`));
+        const accept = createHash('sha1')
+          .update(`${key}258EAFA5-E914-47DA-95CA-C5AB0DC85B11`)
+          .digest('base64');
+        if (
+          !status.startsWith('HTTP/1.1 101') ||
+          !status.includes(`Sec-WebSocket-Accept: ${accept}`)
+        )
+          return reject(new Error(`handshake refused: ${status.split('\r\n')[0]}`));
         open = true;
         resolve(socket);
         i = head + 4;
@@ -116,7 +149,13 @@ function bareViewer(url: URL, onText: (at: number, data: Buffer, start: number, 
         if (data.length - at0 < len) break;
         if (opcode === 0x1) onText(at, data, at0, at0 + len);
         // A ping is answered with a masked pong of the same payload (a zero mask leaves it as it is).
-        if (opcode === 0x9 && len <= 125) socket.write(Buffer.concat([Buffer.from([0x8a, 0x80 | len, 0, 0, 0, 0]), data.subarray(at0, at0 + len)]));
+        if (opcode === 0x9 && len <= 125)
+          socket.write(
+            Buffer.concat([
+              Buffer.from([0x8a, 0x80 | len, 0, 0, 0, 0]),
+              data.subarray(at0, at0 + len),
+            ]),
+          );
         i = at0 + len;
       }
       if (i < data.length) pending = Buffer.from(data.subarray(i));
@@ -128,7 +167,8 @@ function bareViewer(url: URL, onText: (at: number, data: Buffer, start: number, 
 function readNumber(bytes: Buffer, at: number): number {
   let whole = 0;
   let i = at;
-  for (; i < bytes.length && bytes[i]! >= 48 && bytes[i]! <= 57; i++) whole = whole * 10 + bytes[i]! - 48;
+  for (; i < bytes.length && bytes[i]! >= 48 && bytes[i]! <= 57; i++)
+    whole = whole * 10 + bytes[i]! - 48;
   if (bytes[i] !== 46) return whole;
   let frac = 0;
   let scale = 1;
@@ -141,7 +181,9 @@ function readNumber(bytes: Buffer, at: number): number {
 
 /** Starts the viewers' process on `url`; resolves once every viewer is connected. */
 async function startViewers(url: string): Promise<{ count(): void; report(): Promise<number[]> }> {
-  const child = fork(fileURLToPath(import.meta.url), ['--viewers-of', url], { stdio: ['ignore', 'inherit', 'inherit', 'ipc'] });
+  const child = fork(fileURLToPath(import.meta.url), ['--viewers-of', url], {
+    stdio: ['ignore', 'inherit', 'inherit', 'ipc'],
+  });
   const next = (): Promise<ChildMessage> =>
     new Promise((resolve, reject) => {
       child.once('message', (m: ChildMessage) => resolve(m));
@@ -160,7 +202,10 @@ async function startViewers(url: string): Promise<{ count(): void; report(): Pro
 }
 
 /** Feeds `emit` at RATE_HZ for SECONDS; samples of the first second are not counted. */
-async function drive(emit: (hostS: number) => void, viewers: Awaited<ReturnType<typeof startViewers>>): Promise<Latencies> {
+async function drive(
+  emit: (hostS: number) => void,
+  viewers: Awaited<ReturnType<typeof startViewers>>,
+): Promise<Latencies> {
   const period = 1000 / RATE_HZ;
   const total = SECONDS * RATE_HZ;
   const start = performance.now();
@@ -174,11 +219,26 @@ async function drive(emit: (hostS: number) => void, viewers: Awaited<ReturnType<
   await sleep(300);
   const sorted = (await viewers.report()).sort((a, b) => a - b);
   const expected = (total - WARMUP_S * RATE_HZ) * VIEWERS;
-  return { p50: percentile(sorted, 50), p99: percentile(sorted, 99), max: sorted.at(-1) ?? Number.NaN, n: sorted.length, missing: expected - sorted.length };
+  return {
+    p50: percentile(sorted, 50),
+    p99: percentile(sorted, 99),
+    max: sorted.at(-1) ?? Number.NaN,
+    n: sorted.length,
+    missing: expected - sorted.length,
+  };
 }
 
 function sampleOf(hostS: number): Parameters<LiveHub['sample']>[0] {
-  return { host_s: hostS, voltage_V: 3.9123, current_A: 1.0012, temperature_C: 24.6, charge_Ah: 0.41234, energy_Wh: 1.6123, state: 'discharging', load_on: true };
+  return {
+    host_s: hostS,
+    voltage_V: 3.9123,
+    current_A: 1.0012,
+    temperature_C: 24.6,
+    charge_Ah: 0.41234,
+    energy_Wh: 1.6123,
+    state: 'discharging',
+    load_on: true,
+  };
 }
 
 async function liveServer(): Promise<Latencies> {
@@ -186,7 +246,12 @@ async function liveServer(): Promise<Latencies> {
   const { startLiveServer } = await product<LiveServerModule>('live/live-server.js');
   const hub = new LiveHub();
   hub.setRun(benchRunInfo('bench-fanout'));
-  const live = await startLiveServer({ hub, listen: '127.0.0.1:0', tokenStore: { control: 'c'.repeat(64), viewer: null }, maxViewers: VIEWERS + 10 });
+  const live = await startLiveServer({
+    hub,
+    listen: '127.0.0.1:0',
+    tokenStore: { control: 'c'.repeat(64), viewer: null },
+    maxViewers: VIEWERS + 10,
+  });
   const viewers = await startViewers(`ws://127.0.0.1:${live.port}/live`);
   await waitFor(() => live.viewers().length === VIEWERS, 5000, 'every viewer to be attached');
   const result = await drive((hostS) => hub.sample(sampleOf(hostS)), viewers);

@@ -15,9 +15,20 @@
  */
 import { SerialPort } from 'serialport';
 import { WebSocket } from 'ws';
-import { argValue, BENCH_CELL, benchChain, FrameMaker, product, sleep, type CodecModule } from './bench-kit.js';
+import {
+  argValue,
+  BENCH_CELL,
+  benchChain,
+  FrameMaker,
+  product,
+  sleep,
+  type CodecModule,
+} from './bench-kit.js';
 
-export type FeederToParent = { type: 'ready' } | { type: 'flooded'; bytes: number } | { type: 'viewer'; messages: number; samples: number };
+export type FeederToParent =
+  | { type: 'ready' }
+  | { type: 'flooded'; bytes: number }
+  | { type: 'viewer'; messages: number; samples: number };
 export type ParentToFeeder = { type: 'go' } | { type: 'finish' };
 
 const send = (m: FeederToParent): void => {
@@ -36,7 +47,10 @@ async function main(): Promise<void> {
 
   // The whole flood is made before anything is sent, so the writer is never the slow side.
   const rest = Array.from({ length: restFrames }, () => frames.line(restV, 0, celsius, false));
-  const flood = Buffer.from(Array.from({ length: floodFrames }, () => frames.line(loadedV, loadA, celsius, true)).join(''), 'latin1');
+  const flood = Buffer.from(
+    Array.from({ length: floodFrames }, () => frames.line(loadedV, loadA, celsius, true)).join(''),
+    'latin1',
+  );
 
   const open = (): Promise<SerialPort> =>
     new Promise((resolve, reject) => {
@@ -73,8 +87,12 @@ async function main(): Promise<void> {
     });
   }
 
-  const go = new Promise<void>((resolve) => process.on('message', (m: ParentToFeeder) => m.type === 'go' && resolve()));
-  const finish = new Promise<void>((resolve) => process.on('message', (m: ParentToFeeder) => m.type === 'finish' && resolve()));
+  const go = new Promise<void>((resolve) =>
+    process.on('message', (m: ParentToFeeder) => m.type === 'go' && resolve()),
+  );
+  const finish = new Promise<void>((resolve) =>
+    process.on('message', (m: ParentToFeeder) => m.type === 'finish' && resolve()),
+  );
   send({ type: 'ready' });
   await go;
 
@@ -86,7 +104,8 @@ async function main(): Promise<void> {
     while (!commands.includes('0,1')) await sleep(5);
   }
   for (let at = 0; at < flood.length; at += 65536) {
-    if (!out.write(flood.subarray(at, at + 65536))) await new Promise<void>((r) => out.once('drain', () => r()));
+    if (!out.write(flood.subarray(at, at + 65536)))
+      await new Promise<void>((r) => out.once('drain', () => r()));
   }
   await new Promise<void>((resolve) => out.drain(() => resolve()));
   send({ type: 'flooded', bytes: flood.length });
@@ -97,7 +116,9 @@ async function main(): Promise<void> {
   await sleep(300);
   send({ type: 'viewer', messages, samples });
   ws?.close();
-  await Promise.all([out, input].map((p) => new Promise<void>((resolve) => p.close(() => resolve()))));
+  await Promise.all(
+    [out, input].map((p) => new Promise<void>((resolve) => p.close(() => resolve()))),
+  );
   process.disconnect();
 }
 

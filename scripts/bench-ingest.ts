@@ -50,7 +50,8 @@ function startFeeder(args: string[]): Feeder {
     for (;;) {
       const m = got.find((x) => x.type === type);
       if (m) return m;
-      if (child.exitCode !== null) throw new Error(`the feeder exited (${child.exitCode}) before saying ${type}`);
+      if (child.exitCode !== null)
+        throw new Error(`the feeder exited (${child.exitCode}) before saying ${type}`);
       await Promise.race([new Promise<void>((r) => waiters.push(r)), exited]);
     }
   };
@@ -93,7 +94,11 @@ interface PipelineRun {
   framesRejected: number;
 }
 
-async function daemonRun(pty: PtyPair, work: string, calibrationPath: string): Promise<PipelineRun> {
+async function daemonRun(
+  pty: PtyPair,
+  work: string,
+  calibrationPath: string,
+): Promise<PipelineRun> {
   const { startRun } = await product<DaemonModule>('run/daemon.js');
   const runs = mkdtempSync(join(work, 'runs-'));
   // The live feed's tokens file goes to the scratch folder, not the user's configuration.
@@ -135,7 +140,18 @@ async function daemonRun(pty: PtyPair, work: string, calibrationPath: string): P
       }
     },
   });
-  const feeder = startFeeder(['--port', pty.rig, '--mode', 'rig', '--rest', String(REST), '--flood', String(FLOOD), '--viewer', `${handle.liveUrl!.replace(/^http/, 'ws')}live`]);
+  const feeder = startFeeder([
+    '--port',
+    pty.rig,
+    '--mode',
+    'rig',
+    '--rest',
+    String(REST),
+    '--flood',
+    String(FLOOD),
+    '--viewer',
+    `${handle.liveUrl!.replace(/^http/, 'ws')}live`,
+  ]);
   await feeder.said('ready');
   feeder.tell({ type: 'go' });
   await waitFor(() => n >= FLOOD, 180_000, 'the daemon to take every flood frame');
@@ -174,7 +190,10 @@ async function main(): Promise<void> {
     const best = runs.reduce((a, b) => (b.rate > a.rate ? b : a));
     const baseline = Math.max(...bare);
     const ratio = best.rate / baseline;
-    const honest = runs.every((r) => r.endReason === 'stopped' && r.framesRejected === 0 && r.framesAccepted >= FLOOD + REST);
+    const honest = runs.every(
+      (r) =>
+        r.endReason === 'stopped' && r.framesRejected === 0 && r.framesAccepted >= FLOOD + REST,
+    );
     reportFigure({
       figure: 'ingest',
       title: 'Ingest over a pty: whole daemon vs bare serialport+readline',
@@ -193,7 +212,9 @@ async function main(): Promise<void> {
         bare_rates: bare.map(Math.round),
         daemon_rates: runs.map((r) => Math.round(r.rate)),
         daemon_runs: runs,
-        note: honest ? 'every run passed the precheck, took every frame and ended as stopped' : 'a daemon run did not end as expected; see daemon_runs',
+        note: honest
+          ? 'every run passed the precheck, took every frame and ended as stopped'
+          : 'a daemon run did not end as expected; see daemon_runs',
       },
     });
   } finally {

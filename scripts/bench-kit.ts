@@ -38,7 +38,8 @@ export const RIG_PROFILE = join(ROOT, 'config/rigs/bench-20mohm.yaml');
 /** A module of the build, e.g. product<DaemonModule>('run/daemon.js'). */
 export async function product<M>(rel: string): Promise<M> {
   const path = join(ROOT, 'dist', rel);
-  if (!existsSync(path)) throw new Error(`${path} is missing: run \`npm run build\` first (npm run bench does).`);
+  if (!existsSync(path))
+    throw new Error(`${path} is missing: run \`npm run build\` first (npm run bench does).`);
   return (await import(pathToFileURL(path).href)) as M;
 }
 
@@ -132,9 +133,18 @@ export interface PtyPair {
 export async function startPtyPair(dir: string): Promise<PtyPair> {
   const host = join(dir, 'host');
   const rig = join(dir, 'rig');
-  const socat = spawn('socat', [`pty,raw,echo=0,link=${host}`, `pty,raw,echo=0,link=${rig}`], { stdio: 'ignore' });
-  const failed = new Promise<never>((_, reject) => socat.once('error', (e) => reject(new Error(`socat: ${e.message} (install it: bash scripts/install-test-tools.sh)`))));
-  await Promise.race([waitFor(() => existsSync(host) && existsSync(rig), 5000, 'socat to create the pty pair'), failed]);
+  const socat = spawn('socat', [`pty,raw,echo=0,link=${host}`, `pty,raw,echo=0,link=${rig}`], {
+    stdio: 'ignore',
+  });
+  const failed = new Promise<never>((_, reject) =>
+    socat.once('error', (e) =>
+      reject(new Error(`socat: ${e.message} (install it: bash scripts/install-test-tools.sh)`)),
+    ),
+  );
+  await Promise.race([
+    waitFor(() => existsSync(host) && existsSync(rig), 5000, 'socat to create the pty pair'),
+    failed,
+  ]);
   return {
     host,
     rig,
@@ -184,7 +194,11 @@ export class FrameMaker {
     return (this.state % 3) - 1;
   }
 
-  counts(volts: number, amps: number, celsius: number): { vRaw: number; iRaw: number; tRaw: number } {
+  counts(
+    volts: number,
+    amps: number,
+    celsius: number,
+  ): { vRaw: number; iRaw: number; tRaw: number } {
     const max = this.chain.maxCount;
     const clamp = (c: number): number => Math.min(max, Math.max(0, Math.round(c)));
     return {
@@ -196,7 +210,13 @@ export class FrameMaker {
 
   line(volts: number, amps: number, celsius: number, loadOn: boolean): string {
     const c = this.counts(volts, amps, celsius);
-    const text = this.encode({ channel: 0, seq: this.seq, tickMs: this.tick, ...c, flags: loadOn ? 1 : 0 });
+    const text = this.encode({
+      channel: 0,
+      seq: this.seq,
+      tickMs: this.tick,
+      ...c,
+      flags: loadOn ? 1 : 0,
+    });
     this.seq = (this.seq + 1) % 65536;
     this.tick = (this.tick + this.tickStepMs) % 2 ** 32;
     return text;
@@ -214,18 +234,47 @@ export async function benchChain(): Promise<AnalogChain> {
  * and 2 % high on current with a small offset), sealed by the product's own code so it passes
  * every check a real one does.
  */
-export async function benchCalibration(path: string): Promise<Awaited<ReturnType<CalibrationModule['writeCalibration']>>> {
+export async function benchCalibration(
+  path: string,
+): Promise<Awaited<ReturnType<CalibrationModule['writeCalibration']>>> {
   const { buildCalibration } = await product<QuantityFitModule>('calibration/quantity-fit.js');
   const { writeCalibration } = await product<CalibrationModule>('calibration/calibration.js');
   const chain = await benchChain();
-  const v = (raw: number, ref: number) => ({ raw_mean: raw, nominal: chain.volts(raw), nominal_u: 0.0005, reference: ref, reference_u: 0.0008 });
-  const i = (raw: number, ref: number) => ({ raw_mean: raw, nominal: chain.amps(raw), nominal_u: 0.0005, reference: ref, reference_u: 0.001 });
+  const v = (raw: number, ref: number) => ({
+    raw_mean: raw,
+    nominal: chain.volts(raw),
+    nominal_u: 0.0005,
+    reference: ref,
+    reference_u: 0.0008,
+  });
+  const i = (raw: number, ref: number) => ({
+    raw_mean: raw,
+    nominal: chain.amps(raw),
+    nominal_u: 0.0005,
+    reference: ref,
+    reference_u: 0.001,
+  });
   const { content } = buildCalibration(
-    { rig: 'bench rig, 20 mΩ shunt', date: '2026-11-20T09:30:00.000Z', referenceInstrument: 'bench demo meter' },
     {
-      voltage: [v(1500, chain.volts(1500) * 1.006 - 0.002), v(2500, chain.volts(2500) * 1.006 - 0.002)],
+      rig: 'bench rig, 20 mΩ shunt',
+      date: '2026-11-20T09:30:00.000Z',
+      referenceInstrument: 'bench demo meter',
+    },
+    {
+      voltage: [
+        v(1500, chain.volts(1500) * 1.006 - 0.002),
+        v(2500, chain.volts(2500) * 1.006 - 0.002),
+      ],
       current: [i(10, chain.amps(10) / 1.02 - 0.004), i(760, chain.amps(760) / 1.02 - 0.004)],
-      temperature: [{ raw_mean: 2048, nominal: chain.celsius(2048), nominal_u: 0.05, reference: chain.celsius(2048) + 0.4, reference_u: 0.1 }],
+      temperature: [
+        {
+          raw_mean: 2048,
+          nominal: chain.celsius(2048),
+          nominal_u: 0.05,
+          reference: chain.celsius(2048) + 0.4,
+          reference_u: 0.1,
+        },
+      ],
     },
   );
   return writeCalibration(path, content);
@@ -261,7 +310,11 @@ export class CoreRun {
     private readonly startWallMs: number,
   ) {}
 
-  static async create(folder: string, calibration: Calibration, startWallMs: number): Promise<CoreRun> {
+  static async create(
+    folder: string,
+    calibration: Calibration,
+    startWallMs: number,
+  ): Promise<CoreRun> {
     const { Session } = await product<SessionModule>('session/session.js');
     const { Pipeline } = await product<PipelineModule>('run/pipeline.js');
     const { LogFile } = await product<LogFileModule>('sinks/log-file.js');
@@ -270,8 +323,11 @@ export class CoreRun {
     const { SAMPLE_HEADER } = rowWriter;
     const { applyCalibration } = await product<CalibrationModule>('calibration/calibration.js');
     const { writeJsonAtomic } = await product<AtomicJsonModule>('sinks/atomic-json.js');
-    const { loadChemistries, findChemistry } = await product<ChemistriesModule>('chemistry/chemistries.js');
-    const { checkRestingVoltage, resolveCutoff } = await product<ChemistryLimitsModule>('chemistry/limits.js');
+    const { loadChemistries, findChemistry } = await product<ChemistriesModule>(
+      'chemistry/chemistries.js',
+    );
+    const { checkRestingVoltage, resolveCutoff } =
+      await product<ChemistryLimitsModule>('chemistry/limits.js');
     const { loadRigProfile } = await product<RigProfileModule>('chain/rig-profile.js');
     const { AnalogChain } = await product<AnalogChainModule>('chain/analog-chain.js');
     const profile = await loadRigProfile(RIG_PROFILE);
@@ -292,8 +348,21 @@ export class CoreRun {
         return check.ok ? null : check.error.message;
       },
     });
-    const pipeline = new Pipeline({ channel: 0, adcBits: profile.adc.bits, converter: chain, corrector: applyCalibration(calibration), session, originMs: 0 });
-    const samples = new LogFile({ dir: folder, name: 'samples-', ext: '.csv', header: SAMPLE_HEADER, rotateBytes: ROTATE_BYTES });
+    const pipeline = new Pipeline({
+      channel: 0,
+      adcBits: profile.adc.bits,
+      converter: chain,
+      corrector: applyCalibration(calibration),
+      session,
+      originMs: 0,
+    });
+    const samples = new LogFile({
+      dir: folder,
+      name: 'samples-',
+      ext: '.csv',
+      header: SAMPLE_HEADER,
+      rotateBytes: ROTATE_BYTES,
+    });
     const events = new EventLog(folder);
     await writeJsonAtomic(join(folder, 'manifest.json'), {
       format: 'cellvigil-run',
@@ -324,12 +393,19 @@ export class CoreRun {
     for (const a of actions) {
       if (a.type === 'send') {
         if (a.command.command === 'LOAD') this.rigLoadOn = a.command.on;
-        if (a.command.command !== 'BEAT') this.events.write(atMs / 1000, this.startWallMs + atMs, 'command', { command: a.command });
+        if (a.command.command !== 'BEAT')
+          this.events.write(atMs / 1000, this.startWallMs + atMs, 'command', {
+            command: a.command,
+          });
       } else if (a.type === 'event') {
         this.events.write(atMs / 1000, this.startWallMs + atMs, a.name, a.detail);
       } else {
         this.ended = true;
-        this.events.write(atMs / 1000, this.startWallMs + atMs, 'run_ended', { end_reason: a.reason, detail: a.detail, load_off_confirmed: a.loadOffConfirmed });
+        this.events.write(atMs / 1000, this.startWallMs + atMs, 'run_ended', {
+          end_reason: a.reason,
+          detail: a.detail,
+          load_off_confirmed: a.loadOffConfirmed,
+        });
       }
     }
   }
@@ -338,7 +414,11 @@ export class CoreRun {
   line(text: string, atMs: number): SampleRow | null {
     const out = this.pipeline.line(text, atMs, this.startWallMs + atMs);
     if (out.kind === 'sample') {
-      this.samples.appendWith(out.row, this.rowWriter.sampleRowMaxBytes(out.row), this.rowWriter.writeSampleRow);
+      this.samples.appendWith(
+        out.row,
+        this.rowWriter.sampleRowMaxBytes(out.row),
+        this.rowWriter.writeSampleRow,
+      );
       this.rows++;
       this.act(out.actions, atMs);
       return out.row;
@@ -368,7 +448,9 @@ export class CoreRun {
 }
 
 /** The run a live-feed benchmark pretends to serve: one Li-ion cell at the default limits. */
-export function benchRunInfo(label: string): Parameters<InstanceType<LiveHubModule['LiveHub']>['setRun']>[0] {
+export function benchRunInfo(
+  label: string,
+): Parameters<InstanceType<LiveHubModule['LiveHub']>['setRun']>[0] {
   return {
     label,
     run_folder: `runs/${label}`,

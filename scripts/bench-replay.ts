@@ -5,7 +5,16 @@
  * Target: at least 0.4 of the bare rate.
  */
 import { once } from 'node:events';
-import { createReadStream, existsSync, mkdirSync, readdirSync, readFileSync, rmSync, statSync, writeFileSync } from 'node:fs';
+import {
+  createReadStream,
+  existsSync,
+  mkdirSync,
+  readdirSync,
+  readFileSync,
+  rmSync,
+  statSync,
+  writeFileSync,
+} from 'node:fs';
 import { join } from 'node:path';
 import { performance } from 'node:perf_hooks';
 import { createInterface } from 'node:readline';
@@ -52,7 +61,9 @@ async function generate(): Promise<void> {
   for (let i = 0; run.rows < ROWS; i++) {
     at += 50;
     const f = run.rows / ROWS;
-    const line = run.rigLoadOn ? frames.line(4.02 - 0.6 * f - 0.25 * f ** 10, 0.12, celsius + 2 * f, true) : frames.line(restV, 0, celsius, false);
+    const line = run.rigLoadOn
+      ? frames.line(4.02 - 0.6 * f - 0.25 * f ** 10, 0.12, celsius + 2 * f, true)
+      : frames.line(restV, 0, celsius, false);
     run.line(line.slice(0, -1), at);
     if (i % 2 === 1) run.tick(at);
     if (i % 20_000 === 19_999) {
@@ -103,7 +114,11 @@ async function recompute(): Promise<{ rows: number; seconds: number; capacityAh:
   const t0 = performance.now();
   const run = await openRunFolder(RUN_DIR);
   const figures = await recomputeRun(run);
-  return { rows: figures.result.recomputed.from_rows, seconds: (performance.now() - t0) / 1000, capacityAh: figures.result.capacity_Ah };
+  return {
+    rows: figures.result.recomputed.from_rows,
+    seconds: (performance.now() - t0) / 1000,
+    capacityAh: figures.result.capacity_Ah,
+  };
 }
 
 async function main(): Promise<void> {

@@ -63,9 +63,13 @@ async function main(): Promise<void> {
     const start = memory();
     // Each point is read twice: as the run left it (for the peak) and after a full collection
     // (for the slope), so the slope follows what is kept rather than when the collector ran.
-    const points: Array<{ frames: number; rssMB: number; heapMB: number; keptRssMB: number; keptHeapMB: number }> = [
-      { frames: 0, ...start, keptRssMB: start.rssMB, keptHeapMB: start.heapMB },
-    ];
+    const points: Array<{
+      frames: number;
+      rssMB: number;
+      heapMB: number;
+      keptRssMB: number;
+      keptHeapMB: number;
+    }> = [{ frames: 0, ...start, keptRssMB: start.rssMB, keptHeapMB: start.heapMB }];
     const sample = (frames: number): void => {
       const now = memory();
       collect();
@@ -82,7 +86,9 @@ async function main(): Promise<void> {
       at += FRAME_MS;
       const f = i / FRAMES;
       const on = run.rigLoadOn;
-      const line = on ? frames.line(4.05 - 0.7 * f - 0.15 * f ** 8, loadA, celsius + 1.5 * f, true) : frames.line(restV, 0, celsius, false);
+      const line = on
+        ? frames.line(4.05 - 0.7 * f - 0.15 * f ** 8, loadA, celsius + 1.5 * f, true)
+        : frames.line(restV, 0, celsius, false);
       const row = run.line(line.slice(0, -1), at);
       if (row) lastState = row.state;
       if (row) hub.sample(toLiveSample(row, on));
@@ -105,7 +111,11 @@ async function main(): Promise<void> {
     const heapSlope = linearRegression(settled.map((p) => [p.frames / 1e6, p.keptHeapMB])).m;
     const peak = Math.max(...points.map((p) => p.rssMB));
     // Honest only if every frame made a row and the session was discharging at the end.
-    const pass = peak < MAX_RSS_MB && slope <= MAX_SLOPE_MB_PER_M && run.rows === FRAMES && lastState === 'discharging';
+    const pass =
+      peak < MAX_RSS_MB &&
+      slope <= MAX_SLOPE_MB_PER_M &&
+      run.rows === FRAMES &&
+      lastState === 'discharging';
     reportFigure({
       figure: 'soak',
       title: 'Soak: 24 h at 20 frames/s (1.7 M frames) through pipeline, logs and hub',

@@ -9,7 +9,19 @@ import type { Socket } from 'node:net';
 import { fileURLToPath } from 'node:url';
 import { promisify } from 'node:util';
 import { WebSocket } from 'ws';
-import { argValue, benchRunInfo, collect, memory, nextTick, product, reportFigure, signed, waitFor, type LiveHubModule, type LiveServerModule } from './bench-kit.js';
+import {
+  argValue,
+  benchRunInfo,
+  collect,
+  memory,
+  nextTick,
+  product,
+  reportFigure,
+  signed,
+  waitFor,
+  type LiveHubModule,
+  type LiveServerModule,
+} from './bench-kit.js';
 
 const SAMPLES = 100_000;
 const WARMUP = 5_000;
@@ -25,11 +37,19 @@ interface CaseResult {
   seconds: number;
   readerSamples: number;
   /** The stalled viewer at the end: still connected, and what waited for it. */
-  stalledViewer: { connected: boolean; queued: number; queuedBytes: number; bufferedAmount: number; coalesced: number } | null;
+  stalledViewer: {
+    connected: boolean;
+    queued: number;
+    queuedBytes: number;
+    bufferedAmount: number;
+    coalesced: number;
+  } | null;
 }
 
 function opened(ws: WebSocket): Promise<void> {
-  return new Promise((resolve, reject) => (ws.once('open', () => resolve()), ws.once('error', reject)));
+  return new Promise(
+    (resolve, reject) => (ws.once('open', () => resolve()), ws.once('error', reject)),
+  );
 }
 
 /** One case, in this process: the flow with or without a viewer that never reads. */
@@ -38,7 +58,11 @@ async function runCase(stalled: boolean): Promise<CaseResult> {
   const { startLiveServer } = await product<LiveServerModule>('live/live-server.js');
   const hub = new LiveHub();
   hub.setRun(benchRunInfo('bench-stalled'));
-  const live = await startLiveServer({ hub, listen: '127.0.0.1:0', tokenStore: { control: 'c'.repeat(64), viewer: null } });
+  const live = await startLiveServer({
+    hub,
+    listen: '127.0.0.1:0',
+    tokenStore: { control: 'c'.repeat(64), viewer: null },
+  });
   const url = `ws://127.0.0.1:${live.port}/live`;
   let readerSamples = 0;
   const reader = new WebSocket(url, { perMessageDeflate: false });
@@ -55,13 +79,26 @@ async function runCase(stalled: boolean): Promise<CaseResult> {
     await helloIn;
     (stuck as unknown as { _socket: Socket })._socket.pause();
   }
-  await waitFor(() => live.viewers().length === (stalled ? 2 : 1), 5000, 'the viewers to be attached');
+  await waitFor(
+    () => live.viewers().length === (stalled ? 2 : 1),
+    5000,
+    'the viewers to be attached',
+  );
 
   let k = 0;
   const flow = async (n: number): Promise<void> => {
-    for (let end = k + n; k < end; ) {
+    for (let end = k + n; k < end;) {
       for (let j = 0; j < PER_TICK && k < end; j++, k++) {
-        hub.sample({ host_s: k * 0.05, voltage_V: 4.05 - k * 1e-6, current_A: 1.0, temperature_C: 25, charge_Ah: k * 1.4e-5, energy_Wh: k * 5.5e-5, state: 'discharging', load_on: true });
+        hub.sample({
+          host_s: k * 0.05,
+          voltage_V: 4.05 - k * 1e-6,
+          current_A: 1.0,
+          temperature_C: 25,
+          charge_Ah: k * 1.4e-5,
+          energy_Wh: k * 5.5e-5,
+          state: 'discharging',
+          load_on: true,
+        });
       }
       await nextTick();
     }
@@ -75,7 +112,9 @@ async function runCase(stalled: boolean): Promise<CaseResult> {
   collect();
   const after = memory();
   const viewers = live.viewers();
-  const stuckStats = stalled ? (viewers.find((v) => v.bufferedAmount > 0 || v.coalesced > 0) ?? null) : null;
+  const stuckStats = stalled
+    ? (viewers.find((v) => v.bufferedAmount > 0 || v.coalesced > 0) ?? null)
+    : null;
   reader.terminate();
   stuck?.terminate();
   await live.close();
@@ -101,7 +140,11 @@ async function runCase(stalled: boolean): Promise<CaseResult> {
 
 /** Runs one case in a fresh process, so neither case inherits the other's heap. */
 async function inChild(stalled: boolean): Promise<CaseResult> {
-  const { stdout } = await promisify(execFile)(process.execPath, ['--expose-gc', fileURLToPath(import.meta.url), '--case', stalled ? 'stalled' : 'baseline'], { maxBuffer: 1 << 20 });
+  const { stdout } = await promisify(execFile)(
+    process.execPath,
+    ['--expose-gc', fileURLToPath(import.meta.url), '--case', stalled ? 'stalled' : 'baseline'],
+    { maxBuffer: 1 << 20 },
+  );
   return JSON.parse(stdout) as CaseResult;
 }
 
@@ -121,13 +164,16 @@ async function main(): Promise<void> {
     measuredText: `${signed(extraHeap)} MB heap, ${signed(extraRss)} MB RSS`,
     baselineText: `growth ${signed(base.heapGrowthMB)} MB heap, ${signed(base.rssGrowthMB)} MB RSS`,
     target: `extra ≤ ${MAX_EXTRA_MB} MB`,
-    pass: extra <= MAX_EXTRA_MB && with1.stalledViewer?.connected === true && with1.readerSamples > 0,
+    pass:
+      extra <= MAX_EXTRA_MB && with1.stalledViewer?.connected === true && with1.readerSamples > 0,
     details: { samples: SAMPLES, warmup: WARMUP, baseline: base, stalled: with1 },
   });
 }
 
 const which = argValue('case');
-(which ? runCase(which === 'stalled').then((r) => console.log(JSON.stringify(r))) : main()).catch((e: unknown) => {
-  console.error(`bench-stalled: ${(e as Error).stack ?? String(e)}`);
-  process.exit(1);
-});
+(which ? runCase(which === 'stalled').then((r) => console.log(JSON.stringify(r))) : main()).catch(
+  (e: unknown) => {
+    console.error(`bench-stalled: ${(e as Error).stack ?? String(e)}`);
+    process.exit(1);
+  },
+);

@@ -29,16 +29,35 @@ function runOne(name: string, outDir: string): Promise<Outcome> {
   const t0 = performance.now();
   process.stderr.write(`bench: ${name}…\n`);
   return new Promise((resolve) => {
-    const child = spawn(process.execPath, ['--expose-gc', script, '--out', out], { stdio: ['ignore', 'inherit', 'inherit'], cwd: ROOT });
+    const child = spawn(process.execPath, ['--expose-gc', script, '--out', out], {
+      stdio: ['ignore', 'inherit', 'inherit'],
+      cwd: ROOT,
+    });
     const timer = setTimeout(() => child.kill('SIGKILL'), TIMEOUT_MS);
     child.on('exit', (code, signal) => {
       clearTimeout(timer);
       const seconds = (performance.now() - t0) / 1000;
-      if (code !== 0) return resolve({ figure: name, seconds, result: null, error: signal ? `killed by ${signal} after ${fmt(seconds, 0)} s` : `exit code ${code}` });
+      if (code !== 0)
+        return resolve({
+          figure: name,
+          seconds,
+          result: null,
+          error: signal ? `killed by ${signal} after ${fmt(seconds, 0)} s` : `exit code ${code}`,
+        });
       try {
-        resolve({ figure: name, seconds, result: JSON.parse(readFileSync(out, 'utf8')) as Figure, error: null });
+        resolve({
+          figure: name,
+          seconds,
+          result: JSON.parse(readFileSync(out, 'utf8')) as Figure,
+          error: null,
+        });
       } catch (e) {
-        resolve({ figure: name, seconds, result: null, error: `no result: ${(e as Error).message}` });
+        resolve({
+          figure: name,
+          seconds,
+          result: null,
+          error: `no result: ${(e as Error).message}`,
+        });
       }
     });
   });
@@ -47,7 +66,11 @@ function runOne(name: string, outDir: string): Promise<Outcome> {
 function table(rows: string[][]): string {
   const widths = rows[0]!.map((_, c) => Math.max(...rows.map((r) => r[c]!.length)));
   const line = (r: string[]): string => r.map((cell, c) => cell.padEnd(widths[c]!)).join('  ');
-  return [line(rows[0]!), widths.map((w) => '-'.repeat(w)).join('  '), ...rows.slice(1).map(line)].join('\n');
+  return [
+    line(rows[0]!),
+    widths.map((w) => '-'.repeat(w)).join('  '),
+    ...rows.slice(1).map(line),
+  ].join('\n');
 }
 
 function machine(): Record<string, unknown> {
@@ -87,11 +110,21 @@ async function main(): Promise<void> {
     const r = o.result;
     rows.push(
       r
-        ? [r.figure, r.measuredText, r.baselineText, fmt(r.ratio, 3), r.target, r.pass ? 'pass' : 'FAIL', `${fmt(o.seconds, 0)} s`]
+        ? [
+            r.figure,
+            r.measuredText,
+            r.baselineText,
+            fmt(r.ratio, 3),
+            r.target,
+            r.pass ? 'pass' : 'FAIL',
+            `${fmt(o.seconds, 0)} s`,
+          ]
         : [o.figure, '-', '-', '-', '-', `ERROR (${o.error})`, `${fmt(o.seconds, 0)} s`],
     );
   }
-  console.log(`\ncellvigil benchmarks on ${String(host['cpus'])} × ${String(host['cpu_model'])}, ${String(host['os'])}, Node ${process.version}\n`);
+  console.log(
+    `\ncellvigil benchmarks on ${String(host['cpus'])} × ${String(host['cpu_model'])}, ${String(host['os'])}, Node ${process.version}\n`,
+  );
   console.log(table(rows));
   console.log(`\ntotal ${fmt(totalS, 0)} s; results in bench-results.json`);
   writeFileSync(

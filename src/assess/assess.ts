@@ -7,7 +7,11 @@ import type { Calibration } from '../calibration/calibration.js';
 import { AnalogChain } from '../chain/analog-chain.js';
 import type { RigProfile } from '../chain/rig-profile-types.js';
 import { capacityBudget, type CapacityBudget } from './capacity-budget.js';
-import { chainResolution, DEFAULT_ASSESS_TEMPERATURES, type ChainResolution } from './chain-resolution.js';
+import {
+  chainResolution,
+  DEFAULT_ASSESS_TEMPERATURES,
+  type ChainResolution,
+} from './chain-resolution.js';
 import { checkResolutionClaim } from './claims.js';
 import { currentFloor, type CurrentFloor } from './current-floor.js';
 import { frontEndErrors, type FrontEndErrors } from './front-end-errors.js';
@@ -72,7 +76,9 @@ export function assess(req: AssessRequest): AssessReport {
       warnings.push(
         `the test current ${currentA} A is below the smallest current worth measuring on this chain ` +
           `(${lowest.toPrecision(3)} A${calibrated ? '' : ' uncalibrated'}): ` +
-          (calibrated ? 'one count is more than 1 % of it; raise the amplifier gain or the shunt.' : 'calibrate the current channel, or raise the amplifier gain.'),
+          (calibrated
+            ? 'one count is more than 1 % of it; raise the amplifier gain or the shunt.'
+            : 'calibrate the current channel, or raise the amplifier gain.'),
       );
     }
   }

@@ -70,7 +70,9 @@ export function capacityBudget(x: BudgetInput): CapacityBudget {
     const f = cal.fit;
     // The run reads nominal x at the test current; corrected = gain·x + offset.
     const nominal = (x.currentA - f.offset) / f.gain;
-    const uI = Math.sqrt(Math.max(0, (nominal * f.u_gain) ** 2 + f.u_offset ** 2 + 2 * nominal * f.cov_gain_offset));
+    const uI = Math.sqrt(
+      Math.max(0, (nominal * f.u_gain) ** 2 + f.u_offset ** 2 + 2 * nominal * f.cov_gain_offset),
+    );
     terms.push({
       term: 'calibration (reference meter and fit)',
       basis: `fit of calibration ${x.calibration!.id} at ${x.currentA} A: u(I) = ${fmt(uI * 1000)} mA, for the whole run`,
@@ -79,7 +81,11 @@ export function capacityBudget(x: BudgetInput): CapacityBudget {
   } else if (x.referenceAccuracy !== undefined) {
     mode = 'reference_meter';
     const r = parseAccuracy(x.referenceAccuracy, x.currentA, '--reference-accuracy', 'A');
-    terms.push({ term: 'reference meter', basis: `${r.basis} at ${x.currentA} A, for the whole run`, u_Ah: r.u * x.hours });
+    terms.push({
+      term: 'reference meter',
+      basis: `${r.basis} at ${x.currentA} A, for the whole run`,
+      u_Ah: r.u * x.hours,
+    });
     terms.push({
       term: 'fit (mean counts of the calibration points)',
       basis: 'a point near the test current, its mean count known to ±½ count: u = 1 count/√12',
@@ -90,7 +96,11 @@ export function capacityBudget(x: BudgetInput): CapacityBudget {
     const offset = x.frontEnd.offset_A;
     terms.push(
       offset !== undefined
-        ? { term: 'current offset (uncalibrated)', basis: `op-amp input offset / shunt = ±${fmt(Math.abs(offset) * 1000)} mA, rectangular`, u_Ah: rectangularU(offset) * x.hours }
+        ? {
+            term: 'current offset (uncalibrated)',
+            basis: `op-amp input offset / shunt = ±${fmt(Math.abs(offset) * 1000)} mA, rectangular`,
+            u_Ah: rectangularU(offset) * x.hours,
+          }
         : {
             term: 'current offset (uncalibrated)',
             basis: `not in the rig profile; assumed ±${UNCALIBRATED_CURRENT_OFFSET_HALF_WIDTH_A * 1000} mA, rectangular`,
@@ -100,7 +110,11 @@ export function capacityBudget(x: BudgetInput): CapacityBudget {
     const gain = x.frontEnd.connection_gain_error;
     terms.push(
       gain !== undefined
-        ? { term: 'current gain (uncalibrated)', basis: `connection / shunt resistance = ±${fmt(gain * 100)} %, rectangular`, u_Ah: rectangularU(gain) * q }
+        ? {
+            term: 'current gain (uncalibrated)',
+            basis: `connection / shunt resistance = ±${fmt(gain * 100)} %, rectangular`,
+            u_Ah: rectangularU(gain) * q,
+          }
         : {
             term: 'current gain (uncalibrated)',
             basis: `not in the rig profile; assumed ±${UNCALIBRATED_GAIN_HALF_WIDTH * 100} %, rectangular`,
@@ -133,7 +147,11 @@ export function capacityBudget(x: BudgetInput): CapacityBudget {
   if (x.rigClockTolerance !== undefined) {
     // Charge = current × time: a clock fast or slow by a fraction scales the charge by the same fraction.
     const half = x.rigClockTolerance * q;
-    out.rig_clock = { tolerance: x.rigClockTolerance, half_width_Ah: half, u_Ah: rectangularU(half) };
+    out.rig_clock = {
+      tolerance: x.rigClockTolerance,
+      half_width_Ah: half,
+      u_Ah: rectangularU(half),
+    };
   }
   return out;
 }

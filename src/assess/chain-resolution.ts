@@ -19,7 +19,10 @@ export interface ChainResolution {
   degrees_per_count: { celsius: number; per_count: number }[];
 }
 
-export function chainResolution(chain: AnalogChain, temperatures: readonly number[] = DEFAULT_ASSESS_TEMPERATURES): ChainResolution {
+export function chainResolution(
+  chain: AnalogChain,
+  temperatures: readonly number[] = DEFAULT_ASSESS_TEMPERATURES,
+): ChainResolution {
   const fs = chain.fullScale();
   return {
     adc_bits: chain.bits,
@@ -29,6 +32,9 @@ export function chainResolution(chain: AnalogChain, temperatures: readonly numbe
     amps_per_count: chain.ampsPerCount,
     full_scale_V: fs.volts,
     full_scale_A: fs.amps,
-    degrees_per_count: temperatures.map((celsius) => ({ celsius, per_count: chain.celsiusPerCountAt(celsius) })),
+    degrees_per_count: temperatures.map((celsius) => ({
+      celsius,
+      per_count: chain.celsiusPerCountAt(celsius),
+    })),
   };
 }

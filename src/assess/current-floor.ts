@@ -25,7 +25,11 @@ export interface CurrentFloor {
 
 export function currentFloor(ampsPerCount: number, errors: FrontEndErrors): CurrentFloor {
   const resolution = ampsPerCount / FLOOR_SHARE;
-  const out: CurrentFloor = { resolution_floor_A: resolution, calibrated_A: resolution, uncalibrated_A: resolution };
+  const out: CurrentFloor = {
+    resolution_floor_A: resolution,
+    calibrated_A: resolution,
+    uncalibrated_A: resolution,
+  };
   if (errors.offset_A !== undefined) {
     const offset = Math.abs(errors.offset_A);
     out.uncalibrated_floor_A = offset / FLOOR_SHARE;

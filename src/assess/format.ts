@@ -28,9 +28,24 @@ export function formatAssess(r: AssessReport): string {
   out.push('');
   out.push('Resolution: what one ADC count is worth');
   out.push(row('ADC', `${c.adc_bits} bits, ${p3(c.adc_V_per_count * 1000)} mV per count`));
-  out.push(row('voltage', `${p3(c.volts_per_count * 1000)} mV per count, full scale ${p3(c.full_scale_V)} V`));
-  out.push(row('current', `${p3(c.amps_per_count * 1000)} mA per count, full scale ${p3(c.full_scale_A)} A (amplifier gain ${p3(c.amplifier_gain)})`));
-  out.push(row('temperature', c.degrees_per_count.map((d) => `${p3(d.per_count)} °C at ${d.celsius} °C`).join(', ')));
+  out.push(
+    row(
+      'voltage',
+      `${p3(c.volts_per_count * 1000)} mV per count, full scale ${p3(c.full_scale_V)} V`,
+    ),
+  );
+  out.push(
+    row(
+      'current',
+      `${p3(c.amps_per_count * 1000)} mA per count, full scale ${p3(c.full_scale_A)} A (amplifier gain ${p3(c.amplifier_gain)})`,
+    ),
+  );
+  out.push(
+    row(
+      'temperature',
+      c.degrees_per_count.map((d) => `${p3(d.per_count)} °C at ${d.celsius} °C`).join(', '),
+    ),
+  );
   out.push('');
   out.push('Current channel before calibration');
   const fe = r.front_end;
@@ -55,26 +70,46 @@ export function formatAssess(r: AssessReport): string {
   out.push('Smallest current worth measuring');
   const f = r.smallest_current;
   const pct = FLOOR_SHARE * 100;
-  out.push(row('calibrated', `${amps(f.calibrated_A)} (one count is ${pct} % of the reading at ${amps(f.resolution_floor_A)})`));
+  out.push(
+    row(
+      'calibrated',
+      `${amps(f.calibrated_A)} (one count is ${pct} % of the reading at ${amps(f.resolution_floor_A)})`,
+    ),
+  );
   out.push(
     row(
       'uncalibrated',
-      f.uncalibrated_floor_A !== undefined ? `${amps(f.uncalibrated_A)} (the offset is ${pct} % of the reading at ${amps(f.uncalibrated_floor_A)})` : amps(f.uncalibrated_A),
+      f.uncalibrated_floor_A !== undefined
+        ? `${amps(f.uncalibrated_A)} (the offset is ${pct} % of the reading at ${amps(f.uncalibrated_floor_A)})`
+        : amps(f.uncalibrated_A),
     ),
   );
   if (f.dead_zone_A !== undefined) {
-    out.push(row('dead zone', `below ${amps(f.dead_zone_A)} if the offset is negative: a single-supply stage then reads 0, and no calibration brings it back`));
+    out.push(
+      row(
+        'dead zone',
+        `below ${amps(f.dead_zone_A)} if the offset is negative: a single-supply stage then reads 0, and no calibration brings it back`,
+      ),
+    );
   }
   const t = r.test;
   if (t) {
     out.push('');
-    out.push(`Capacity test: ${p3(t.current_A)} A for ${p3(t.hours)} h = ${p3(t.capacity_Ah)} Ah, ${MODE_TEXT[t.mode]} (GUM, JCGM 100:2008)`);
+    out.push(
+      `Capacity test: ${p3(t.current_A)} A for ${p3(t.hours)} h = ${p3(t.capacity_Ah)} Ah, ${MODE_TEXT[t.mode]} (GUM, JCGM 100:2008)`,
+    );
     out.push(`  ${'term'.padEnd(44)}${'u (Ah)'.padStart(10)}${'u (%)'.padStart(9)}  basis`);
     for (const term of t.terms) {
-      out.push(`  ${term.term.padEnd(44)}${p3(term.u_Ah).padStart(10)}${p3((100 * term.u_Ah) / t.capacity_Ah).padStart(9)}  ${term.basis}`);
+      out.push(
+        `  ${term.term.padEnd(44)}${p3(term.u_Ah).padStart(10)}${p3((100 * term.u_Ah) / t.capacity_Ah).padStart(9)}  ${term.basis}`,
+      );
     }
-    out.push(`  ${'combined standard uncertainty'.padEnd(44)}${p3(t.combined_u_Ah).padStart(10)}${p3((100 * t.combined_u_Ah) / t.capacity_Ah).padStart(9)}`);
-    out.push(`  ${'expanded uncertainty, k = 2'.padEnd(44)}${`±${p3(t.expanded_U_Ah)}`.padStart(10)}${`±${p3(100 * t.expanded_relative)}`.padStart(9)}`);
+    out.push(
+      `  ${'combined standard uncertainty'.padEnd(44)}${p3(t.combined_u_Ah).padStart(10)}${p3((100 * t.combined_u_Ah) / t.capacity_Ah).padStart(9)}`,
+    );
+    out.push(
+      `  ${'expanded uncertainty, k = 2'.padEnd(44)}${`±${p3(t.expanded_U_Ah)}`.padStart(10)}${`±${p3(100 * t.expanded_relative)}`.padStart(9)}`,
+    );
     if (t.rig_clock) {
       out.push(
         `  Timed by the rig's own oscillator (±${p3(t.rig_clock.tolerance * 100)} %) instead of the host clock, the charge could be off by up to ` +

@@ -23,18 +23,35 @@ function usage(what: string, where: string, fix: string): Error {
 }
 
 function positive(x: number | undefined, where: string, fix: string): void {
-  if (x !== undefined && !(x > 0 && Number.isFinite(x))) throw usage(`${String(x)} is not a positive number`, where, fix);
+  if (x !== undefined && !(x > 0 && Number.isFinite(x)))
+    throw usage(`${String(x)} is not a positive number`, where, fix);
 }
 
 export async function runAssess(o: AssessOptions): Promise<{ report: AssessReport; text: string }> {
   positive(o.currentA, '--current', 'Give the test current in amps, e.g. 0.5.');
   positive(o.hours, '--hours', 'Give the test duration in hours, e.g. 5.');
-  positive(o.claimResolutionA, '--claim-resolution', 'Give the claimed current resolution in amps, e.g. 0.001.');
+  positive(
+    o.claimResolutionA,
+    '--claim-resolution',
+    'Give the claimed current resolution in amps, e.g. 0.001.',
+  );
   if ((o.currentA === undefined) !== (o.hours === undefined)) {
-    throw usage('a capacity budget needs both the current and the duration', o.currentA === undefined ? '--current' : '--hours', 'Give --current <A> and --hours <h> together.');
+    throw usage(
+      'a capacity budget needs both the current and the duration',
+      o.currentA === undefined ? '--current' : '--hours',
+      'Give --current <A> and --hours <h> together.',
+    );
   }
-  const test = o.currentA !== undefined && o.hours !== undefined ? { currentA: o.currentA, hours: o.hours } : undefined;
-  if (!test && (o.calibration !== undefined || o.referenceAccuracy !== undefined || o.rigClockTolerancePct !== undefined)) {
+  const test =
+    o.currentA !== undefined && o.hours !== undefined
+      ? { currentA: o.currentA, hours: o.hours }
+      : undefined;
+  if (
+    !test &&
+    (o.calibration !== undefined ||
+      o.referenceAccuracy !== undefined ||
+      o.rigClockTolerancePct !== undefined)
+  ) {
     throw usage(
       '--calibration, --reference-accuracy and --rig-clock-tolerance belong to a capacity budget',
       '--current / --hours',
@@ -45,17 +62,28 @@ export async function runAssess(o: AssessOptions): Promise<{ report: AssessRepor
     throw usage(
       'give either a calibration file or a reference accuracy, not both',
       '--reference-accuracy',
-      'The calibration file already carries its reference meter\'s uncertainty; --reference-accuracy is for a calibration still to be taken.',
+      "The calibration file already carries its reference meter's uncertainty; --reference-accuracy is for a calibration still to be taken.",
     );
   }
   const tol = o.rigClockTolerancePct;
-  if (tol !== undefined && !(tol >= 0 && tol < 100)) throw usage(`${tol} % is not a clock tolerance`, '--rig-clock-tolerance', 'Give the oscillator tolerance in percent, e.g. 3.');
+  if (tol !== undefined && !(tol >= 0 && tol < 100))
+    throw usage(
+      `${tol} % is not a clock tolerance`,
+      '--rig-clock-tolerance',
+      'Give the oscillator tolerance in percent, e.g. 3.',
+    );
   for (const t of o.temperatures ?? []) {
-    if (!(t > -55 && t < 150)) throw usage(`${t} °C is outside a thermistor's range`, '--temperatures', 'Give temperatures between −55 and 150 °C, e.g. 0 25 45 60.');
+    if (!(t > -55 && t < 150))
+      throw usage(
+        `${t} °C is outside a thermistor's range`,
+        '--temperatures',
+        'Give temperatures between −55 and 150 °C, e.g. 0 25 45 60.',
+      );
   }
   const rigFile = resolve(o.rig);
   const profile = await loadRigProfile(rigFile);
-  const calibration = o.calibration !== undefined ? await loadCalibration(resolve(o.calibration)) : null;
+  const calibration =
+    o.calibration !== undefined ? await loadCalibration(resolve(o.calibration)) : null;
   const report = assess({
     rigFile: o.rig,
     profile,

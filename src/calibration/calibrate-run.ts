@@ -7,7 +7,11 @@ import { basename, resolve } from 'node:path';
 import { AnalogChain } from '../chain/analog-chain.js';
 import type { RigProfile } from '../chain/rig-profile-types.js';
 import { loadRigProfile } from '../chain/rig-profile.js';
-import { DEFAULT_CHEMISTRIES_PATH, findChemistry, loadChemistries } from '../chemistry/chemistries.js';
+import {
+  DEFAULT_CHEMISTRIES_PATH,
+  findChemistry,
+  loadChemistries,
+} from '../chemistry/chemistries.js';
 import { validateCells } from '../chemistry/limits.js';
 import { HostClock, PacedClock, type Clock } from '../core/clock.js';
 import { ErrorCodes, makeError } from '../core/errors.js';
@@ -18,7 +22,12 @@ import { SimSource } from '../sources/sim-source.js';
 import type { Source } from '../sources/source.js';
 import { writeCalibration, type Calibration } from './calibration.js';
 import type { TruthSample } from './capture.js';
-import { captureFilePoints, checkPointsPlan, givenFilePoints, type PointsByQuantity } from './file-points.js';
+import {
+  captureFilePoints,
+  checkPointsPlan,
+  givenFilePoints,
+  type PointsByQuantity,
+} from './file-points.js';
 import { formatOutcome } from './fit-report.js';
 import { captureInteractive, type Prompter } from './interactive.js';
 import { makeLoadGuard, type LoadGuard } from './load-guard.js';
@@ -86,11 +95,19 @@ function checkRequest(req: CalibrateRequest, io: CalibrateIo): void {
   const rigs = [req.port, req.sim].filter((x) => x !== undefined).length;
   if (req.fromPoints !== undefined) {
     if (rigs > 0 || req.points !== undefined) {
-      throw usage('--from-points fits points captured before and needs no rig', '--from-points', 'Leave out --port, --sim and --points.');
+      throw usage(
+        '--from-points fits points captured before and needs no rig',
+        '--from-points',
+        'Leave out --port, --sim and --points.',
+      );
     }
   } else {
     if (rigs !== 1 && !io.connection) {
-      throw usage('calibrating needs exactly one rig', '--port / --sim', 'Give --port <device> for a real rig or --sim [scenario] for the simulated one (or --from-points to fit without a rig).');
+      throw usage(
+        'calibrating needs exactly one rig',
+        '--port / --sim',
+        'Give --port <device> for a real rig or --sim [scenario] for the simulated one (or --from-points to fit without a rig).',
+      );
     }
     if (req.points === undefined && !io.prompter) {
       throw usage(
@@ -100,32 +117,71 @@ function checkRequest(req: CalibrateRequest, io: CalibrateIo): void {
       );
     }
   }
-  if (!(req.speed > 0) || !Number.isFinite(req.speed)) throw usage(`speed ${req.speed} is not a positive number`, '--speed', 'Give a factor such as 1 (real time) or 50.');
-  if (req.port !== undefined && req.speed !== 1) throw usage('a real rig runs in real time', '--speed', 'Leave --speed out with --port; it applies to the simulated rig only.');
-  if (!(req.seconds > 0 && req.seconds <= 600)) throw usage(`averaging window ${req.seconds} s is out of range`, '--seconds', 'Give 1 to 600 s; 5 is usual.');
-  if (!(req.settleSeconds >= 0 && req.settleSeconds <= 600)) throw usage(`settling time ${req.settleSeconds} s is out of range`, '--settle', 'Give 0 to 600 s.');
-  if (!Number.isInteger(req.channel) || req.channel < 0 || req.channel > 15) throw usage(`channel ${req.channel} is not 0..15`, '--channel', 'Give the rig channel the cell is on, 0 to 15.');
+  if (!(req.speed > 0) || !Number.isFinite(req.speed))
+    throw usage(
+      `speed ${req.speed} is not a positive number`,
+      '--speed',
+      'Give a factor such as 1 (real time) or 50.',
+    );
+  if (req.port !== undefined && req.speed !== 1)
+    throw usage(
+      'a real rig runs in real time',
+      '--speed',
+      'Leave --speed out with --port; it applies to the simulated rig only.',
+    );
+  if (!(req.seconds > 0 && req.seconds <= 600))
+    throw usage(
+      `averaging window ${req.seconds} s is out of range`,
+      '--seconds',
+      'Give 1 to 600 s; 5 is usual.',
+    );
+  if (!(req.settleSeconds >= 0 && req.settleSeconds <= 600))
+    throw usage(
+      `settling time ${req.settleSeconds} s is out of range`,
+      '--settle',
+      'Give 0 to 600 s.',
+    );
+  if (!Number.isInteger(req.channel) || req.channel < 0 || req.channel > 15)
+    throw usage(
+      `channel ${req.channel} is not 0..15`,
+      '--channel',
+      'Give the rig channel the cell is on, 0 to 15.',
+    );
 }
 
 function instrumentOf(req: CalibrateRequest, file: PointsFile | null): string | null {
   if (req.reference !== undefined && req.reference.trim() !== '') return req.reference.trim();
   if (file?.referenceInstrument !== undefined) return file.referenceInstrument;
-  if (file && file.points.every((p) => p.reference === 'truth')) return "simulated rig's true values";
+  if (file && file.points.every((p) => p.reference === 'truth'))
+    return "simulated rig's true values";
   return null;
 }
 
-export async function runCalibrate(req: CalibrateRequest, io: CalibrateIo): Promise<CalibrateOutcome> {
+export async function runCalibrate(
+  req: CalibrateRequest,
+  io: CalibrateIo,
+): Promise<CalibrateOutcome> {
   checkRequest(req, io);
   const rigPath = resolve(req.rig ?? DEFAULT_RIG_PATH);
   const profile = await loadRigProfile(rigPath);
   const chain = new AnalogChain(profile);
   const pointsPath = req.fromPoints ?? req.points;
   const file = pointsPath !== undefined ? await loadPointsFile(resolve(pointsPath)) : null;
-  const scenario = req.sim !== undefined ? pickScenario(loadScenarios(DEFAULT_SCENARIOS_PATH), req.sim) : null;
-  if (file) checkPointsPlan(file, req.fromPoints !== undefined ? 'given' : 'capture', scenario !== null || io.connection?.truth !== undefined);
+  const scenario =
+    req.sim !== undefined ? pickScenario(loadScenarios(DEFAULT_SCENARIOS_PATH), req.sim) : null;
+  if (file)
+    checkPointsPlan(
+      file,
+      req.fromPoints !== undefined ? 'given' : 'capture',
+      scenario !== null || io.connection?.truth !== undefined,
+    );
   let instrument = instrumentOf(req, file);
   if (instrument === null && !(io.prompter && !file)) {
-    throw usage('the reference instrument is not named', '--reference', 'Say which meter gave the readings, e.g. --reference "bench DMM, 10 A range, calibrated 2025-03".');
+    throw usage(
+      'the reference instrument is not named',
+      '--reference',
+      'Say which meter gave the readings, e.g. --reference "bench DMM, 10 A range, calibrated 2025-03".',
+    );
   }
 
   let points: PointsByQuantity;
@@ -144,7 +200,14 @@ export async function runCalibrate(req: CalibrateRequest, io: CalibrateIo): Prom
         'Name the cell on the rig, e.g. --chemistry li-ion --cells 1.',
       );
     }
-    const taken = await captureOnRig(req, io, { profile, chain, guard, scenario, file, askInstrument: instrument === null });
+    const taken = await captureOnRig(req, io, {
+      profile,
+      chain,
+      guard,
+      scenario,
+      file,
+      askInstrument: instrument === null,
+    });
     points = taken.points;
     offConfirmed = taken.offConfirmed;
     date = taken.date;
@@ -152,10 +215,17 @@ export async function runCalibrate(req: CalibrateRequest, io: CalibrateIo): Prom
     instrument ??= taken.referenceInstrument;
   }
   if (instrument === null) {
-    throw usage('the reference instrument is not named', '--reference', 'Say which meter gave the readings (--reference "…"); nothing was written.');
+    throw usage(
+      'the reference instrument is not named',
+      '--reference',
+      'Say which meter gave the readings (--reference "…"); nothing was written.',
+    );
   }
 
-  const { content, outcomes } = buildCalibration({ rig: rigName, date, referenceInstrument: instrument }, points);
+  const { content, outcomes } = buildCalibration(
+    { rig: rigName, date, referenceInstrument: instrument },
+    points,
+  );
   io.print('');
   for (const o of outcomes) for (const line of formatOutcome(o)) io.print(line);
   const out = resolve(req.out);
@@ -173,10 +243,20 @@ export async function runCalibrate(req: CalibrateRequest, io: CalibrateIo): Prom
   return { calibration, outcomes, offConfirmed };
 }
 
-function resolveGuard(req: CalibrateRequest, scenario: SimScenario | null, profile: RigProfile, chain: AnalogChain): LoadGuard | null {
+function resolveGuard(
+  req: CalibrateRequest,
+  scenario: SimScenario | null,
+  profile: RigProfile,
+  chain: AnalogChain,
+): LoadGuard | null {
   const chemistryId = req.chemistry ?? scenario?.cell.chemistry;
   if (chemistryId === undefined) {
-    if (req.cells !== undefined) throw usage('--cells without --chemistry', '--chemistry', 'Name the chemistry too, e.g. --chemistry li-ion.');
+    if (req.cells !== undefined)
+      throw usage(
+        '--cells without --chemistry',
+        '--chemistry',
+        'Name the chemistry too, e.g. --chemistry li-ion.',
+      );
     return null;
   }
   const chemistries = loadChemistries(req.chemistriesFile ?? DEFAULT_CHEMISTRIES_PATH);
@@ -202,13 +282,21 @@ interface RigPoints {
   referenceInstrument: string | null;
 }
 
-function connect(req: CalibrateRequest, scenario: SimScenario | null, profile: RigProfile): CalibrateConnection & { paced: PacedClock | null } {
+function connect(
+  req: CalibrateRequest,
+  scenario: SimScenario | null,
+  profile: RigProfile,
+): CalibrateConnection & { paced: PacedClock | null } {
   if (scenario) {
     const paced = new PacedClock(0, Date.now());
     const source = new SimSource({ scenario, clock: paced, profile });
     return { source, clock: paced, truth: () => truthOf(source), paced };
   }
-  return { source: new SerialSource({ path: req.port!, baudRate: req.baud ?? profile.frame.baud }), clock: new HostClock(), paced: null };
+  return {
+    source: new SerialSource({ path: req.port!, baudRate: req.baud ?? profile.frame.baud }),
+    clock: new HostClock(),
+    paced: null,
+  };
 }
 
 function truthOf(source: SimSource): TruthSample {
@@ -216,8 +304,14 @@ function truthOf(source: SimSource): TruthSample {
   return { voltage: t.terminalV, current: t.currentA, temperature: t.temperatureC };
 }
 
-async function captureOnRig(req: CalibrateRequest, io: CalibrateIo, c: RigContext): Promise<RigPoints> {
-  const conn = io.connection ? { ...io.connection, paced: null } : connect(req, c.scenario, c.profile);
+async function captureOnRig(
+  req: CalibrateRequest,
+  io: CalibrateIo,
+  c: RigContext,
+): Promise<RigPoints> {
+  const conn = io.connection
+    ? { ...io.connection, paced: null }
+    : connect(req, c.scenario, c.profile);
   const { source, clock } = conn;
   const link = new RigLink({ source, clock, channel: req.channel, adcBits: c.profile.adc.bits });
   conn.paced?.start(req.speed);
@@ -236,15 +330,30 @@ async function captureOnRig(req: CalibrateRequest, io: CalibrateIo, c: RigContex
   let failure: unknown = null;
   try {
     const hello = await link.open(io.signal);
-    io.print(`rig ${hello.rigId}, firmware ${hello.firmware}, ${hello.adcBits}-bit ADC, on ${source.description}`);
-    if (c.guard) io.print(`limits while a load is on: ${c.guard.cells} × ${c.guard.chemistry.id}, floor ${c.guard.floorV} V, up to ${c.guard.maxTemperatureC} °C`);
+    io.print(
+      `rig ${hello.rigId}, firmware ${hello.firmware}, ${hello.adcBits}-bit ADC, on ${source.description}`,
+    );
+    if (c.guard)
+      io.print(
+        `limits while a load is on: ${c.guard.cells} × ${c.guard.chemistry.id}, floor ${c.guard.floorV} V, up to ${c.guard.maxTemperatureC} °C`,
+      );
     const capture = (r: Parameters<typeof capturePoint>[1]) => capturePoint(settings, r);
     if (c.file) {
       const points = await captureFilePoints(c.file.points, capture, c.chain, windowMs, io.print);
-      result = { points, date: new Date(clock.wallNow()).toISOString(), rigId: hello.rigId, referenceInstrument: null };
+      result = {
+        points,
+        date: new Date(clock.wallNow()).toISOString(),
+        rigId: hello.rigId,
+        referenceInstrument: null,
+      };
     } else {
       const r = await captureInteractive(io.prompter!, capture, c.chain, windowMs, c.askInstrument);
-      result = { points: r.points, date: new Date(clock.wallNow()).toISOString(), rigId: hello.rigId, referenceInstrument: r.referenceInstrument };
+      result = {
+        points: r.points,
+        date: new Date(clock.wallNow()).toISOString(),
+        rigId: hello.rigId,
+        referenceInstrument: r.referenceInstrument,
+      };
     }
   } catch (e) {
     failure = e;

@@ -1,5 +1,5 @@
 /**
- * The calibration file (DESIGN.md "Calibration file"): reference points and straight-line fits
+ * The calibration file (docs/calibration.md): reference points and straight-line fits
  * that correct the analog chain's nominal values, identified by a content id that every logged
  * sample carries.
  */
@@ -99,7 +99,16 @@ const QUANTITY_SCHEMA: SchemaObject = {
     fit: {
       type: 'object',
       additionalProperties: false,
-      required: ['model', 'gain', 'offset', 'u_gain', 'u_offset', 'cov_gain_offset', 'residual_sd', 'dof'],
+      required: [
+        'model',
+        'gain',
+        'offset',
+        'u_gain',
+        'u_offset',
+        'cov_gain_offset',
+        'residual_sd',
+        'dof',
+      ],
       properties: {
         model: { enum: ['gain_offset', 'offset'] },
         gain: { type: 'number', exclusiveMinimum: 0 },
@@ -167,7 +176,11 @@ export function fitQuantity(
   model: QuantityFit['model'],
   where = `${quantity} calibration`,
 ): { calibration: QuantityCalibration; outliers: number[]; standardized: number[] } {
-  const xy = points.map((p) => ({ x: p.nominal, y: p.reference, u: Math.hypot(p.reference_u, p.nominal_u ?? 0) }));
+  const xy = points.map((p) => ({
+    x: p.nominal,
+    y: p.reference,
+    u: Math.hypot(p.reference_u, p.nominal_u ?? 0),
+  }));
   const options: FitOptions = { quantity, where };
   const r = model === 'gain_offset' ? fitLine(xy, options) : fitOffset(xy, options);
   const fit: QuantityFit = {
@@ -180,7 +193,11 @@ export function fitQuantity(
     residual_sd: r.residual_sd,
     dof: r.dof,
   };
-  return { calibration: { points: points.map((p) => ({ ...p })), fit }, outliers: r.outliers, standardized: r.standardized };
+  return {
+    calibration: { points: points.map((p) => ({ ...p })), fit },
+    outliers: r.outliers,
+    standardized: r.standardized,
+  };
 }
 
 /** Parses and checks calibration JSON, including that its id matches its content. */
@@ -189,7 +206,10 @@ export function parseCalibration(text: string, where: string): Calibration {
   try {
     data = JSON.parse(text);
   } catch (err) {
-    const what = text.trim() === '' ? 'the calibration file is empty' : `the calibration file is not valid JSON: ${jsonSyntaxDetail(text, err as Error)}`;
+    const what =
+      text.trim() === ''
+        ? 'the calibration file is empty'
+        : `the calibration file is not valid JSON: ${jsonSyntaxDetail(text, err as Error)}`;
     throw makeError(
       ErrorCodes.CALIBRATION_INVALID,
       what,
@@ -256,7 +276,11 @@ function jsonSyntaxDetail(text: string, err: Error): string {
 
 /** Reads and checks a calibration file. */
 export async function loadCalibration(path: string): Promise<Calibration> {
-  const text = await readConfigText(path, 'calibration file', 'Check the path given with --calibration, or run `cellvigil calibrate` to make one.');
+  const text = await readConfigText(
+    path,
+    'calibration file',
+    'Check the path given with --calibration, or run `cellvigil calibrate` to make one.',
+  );
   return parseCalibration(text, path);
 }
 
@@ -264,7 +288,10 @@ export async function loadCalibration(path: string): Promise<Calibration> {
  * Writes a calibration with a fresh content id, atomically: a reader (or the daemon's reload)
  * sees either the old file or the complete new one, never a partial write.
  */
-export async function writeCalibration(path: string, content: CalibrationContent): Promise<Calibration> {
+export async function writeCalibration(
+  path: string,
+  content: CalibrationContent,
+): Promise<Calibration> {
   const cal = sealCalibration(stripId(content));
   const text = `${JSON.stringify(cal, null, 2)}\n`;
   // Refuse to write what could not be read back.
@@ -307,5 +334,10 @@ function line(q: QuantityCalibration | undefined): (x: number) => number {
 /** A corrector for `cal`; with null, values pass through unchanged and the id is 'none'. */
 export function applyCalibration(cal: Calibration | null): Corrector {
   if (!cal) return { id: 'none', voltage: identity, current: identity, temperature: identity };
-  return { id: cal.id, voltage: line(cal.voltage), current: line(cal.current), temperature: line(cal.temperature) };
+  return {
+    id: cal.id,
+    voltage: line(cal.voltage),
+    current: line(cal.current),
+    temperature: line(cal.temperature),
+  };
 }

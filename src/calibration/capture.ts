@@ -40,7 +40,14 @@ export class CountAverager {
 
   stats(): CountStats {
     const sd = this.n > 1 ? Math.sqrt(this.m2 / (this.n - 1)) : 0;
-    return { n: this.n, mean: this.mean, sd, se: this.n > 0 ? sd / Math.sqrt(this.n) : 0, min: this.min, max: this.max };
+    return {
+      n: this.n,
+      mean: this.mean,
+      sd,
+      se: this.n > 0 ? sd / Math.sqrt(this.n) : 0,
+      min: this.min,
+      max: this.max,
+    };
   }
 }
 
@@ -105,7 +112,8 @@ export class PointWindow {
 
   /** Offers a frame that arrived at `atMs`; returns whether it was averaged. */
   offer(frame: DataFrame, atMs: number, truth?: TruthSample): boolean {
-    if (frame.channel !== this.o.channel || atMs < this.o.startMs || atMs >= this.o.endMs) return false;
+    if (frame.channel !== this.o.channel || atMs < this.o.startMs || atMs >= this.o.endMs)
+      return false;
     if ((frame.flags & FLAG_RIG_FAULT) !== 0) this.faults++;
     if (((frame.flags & FLAG_LOAD_ON) !== 0) !== this.o.loadOn) {
       this.skipped++;
@@ -135,7 +143,11 @@ export class PointWindow {
       temperature: this.t.stats(),
       truth:
         n > 0
-          ? { voltage: this.truthSum.voltage / n, current: this.truthSum.current / n, temperature: this.truthSum.temperature / n }
+          ? {
+              voltage: this.truthSum.voltage / n,
+              current: this.truthSum.current / n,
+              temperature: this.truthSum.temperature / n,
+            }
           : null,
       skipped: this.skipped,
       faults: this.faults,

@@ -29,14 +29,24 @@ export function checkPointsPlan(file: PointsFile, mode: PointsMode, simulated: b
         ErrorCodes.USAGE,
         'reference "truth" is the simulator\'s own value and exists only when capturing from --sim',
         where,
-        'Type the reference meter\'s reading instead, with its accuracy.',
+        "Type the reference meter's reading instead, with its accuracy.",
       );
     }
     if (mode === 'given' && !p.raw) {
-      throw makeError(ErrorCodes.USAGE, 'the point has no raw_mean to fit from', where, 'Give raw_mean (the mean ADC count) for every point, or capture with --points and a rig.');
+      throw makeError(
+        ErrorCodes.USAGE,
+        'the point has no raw_mean to fit from',
+        where,
+        'Give raw_mean (the mean ADC count) for every point, or capture with --points and a rig.',
+      );
     }
     if (mode === 'capture' && p.raw) {
-      throw makeError(ErrorCodes.USAGE, 'the point already has a raw_mean, which is for --from-points', where, 'Remove raw_mean to capture the point on the rig, or use --from-points to fit without a rig.');
+      throw makeError(
+        ErrorCodes.USAGE,
+        'the point already has a raw_mean, which is for --from-points',
+        where,
+        'Remove raw_mean to capture the point on the rig, or use --from-points to fit without a rig.',
+      );
     }
   }
   for (const q of QUANTITIES) {
@@ -54,7 +64,11 @@ export function checkPointsPlan(file: PointsFile, mode: PointsMode, simulated: b
       );
     }
     const numeric = pts.map((p) => p.reference).filter((r): r is number => r !== 'truth');
-    if (minPoints(q) === 2 && numeric.length === pts.length && numeric.every((r) => r === numeric[0])) {
+    if (
+      minPoints(q) === 2 &&
+      numeric.length === pts.length &&
+      numeric.every((r) => r === numeric[0])
+    ) {
       throw makeError(
         ErrorCodes.CALIBRATION_FIT,
         `every ${q} point has the same reference reading (${numeric[0]} ${UNITS[q]}), so no gain can be found`,
@@ -77,12 +91,29 @@ export async function captureFilePoints(
   for (const spec of specs) {
     const loadOn = spec.load ?? false;
     const label = `point ${spec.index} (${spec.quantity}, load ${loadOn ? 'on' : 'off'})`;
-    const w = await capture({ loadOn, windowMs: spec.seconds !== undefined ? spec.seconds * 1000 : defaultWindowMs, label });
+    const w = await capture({
+      loadOn,
+      windowMs: spec.seconds !== undefined ? spec.seconds * 1000 : defaultWindowMs,
+      label,
+    });
     let reference: number;
     if (spec.reference !== 'truth') reference = spec.reference;
     else if (w.truth) reference = w.truth[spec.quantity];
-    else throw makeError(ErrorCodes.USAGE, 'this rig has no true values to give', label, 'Use "truth" only with --sim; type the meter\'s reading otherwise.');
-    const point = toCalibrationPoint(chain, spec.quantity, w[spec.quantity], reference, spec.referenceU, label);
+    else
+      throw makeError(
+        ErrorCodes.USAGE,
+        'this rig has no true values to give',
+        label,
+        'Use "truth" only with --sim; type the meter\'s reading otherwise.',
+      );
+    const point = toCalibrationPoint(
+      chain,
+      spec.quantity,
+      w[spec.quantity],
+      reference,
+      spec.referenceU,
+      label,
+    );
     print(formatPoint(label, spec.quantity, point));
     (out[spec.quantity] ??= []).push(point);
   }
@@ -95,7 +126,14 @@ export function givenFilePoints(specs: readonly PointSpec[], chain: AnalogChain)
   for (const spec of specs) {
     const raw = spec.raw!;
     const label = `point ${spec.index} (${spec.quantity})`;
-    const p = toCalibrationPoint(chain, spec.quantity, givenStats(raw), spec.reference as number, spec.referenceU, label);
+    const p = toCalibrationPoint(
+      chain,
+      spec.quantity,
+      givenStats(raw),
+      spec.reference as number,
+      spec.referenceU,
+      label,
+    );
     // Keep only the spread that was recorded; none is invented.
     if (raw.sd === undefined) delete p.raw_sd;
     if (raw.samples === undefined) delete p.samples;

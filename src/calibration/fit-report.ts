@@ -22,7 +22,10 @@ function signed(x: number, digits = 3): string {
 /** One line for a captured point: what the rig read and what the reference said. */
 export function formatPoint(label: string, quantity: Quantity, p: CalibrationPoint): string {
   const unit = UNITS[quantity];
-  const spread = p.raw_sd !== undefined && p.samples !== undefined ? ` sd ${p.raw_sd.toFixed(2)} n ${p.samples}` : '';
+  const spread =
+    p.raw_sd !== undefined && p.samples !== undefined
+      ? ` sd ${p.raw_sd.toFixed(2)} n ${p.samples}`
+      : '';
   return (
     `${label}: raw mean ${p.raw_mean.toFixed(2)}${spread} -> nominal ${sig(p.nominal)} ± ${sig(p.nominal_u ?? 0, 2)} ${unit}; ` +
     `reference ${sig(p.reference)} ± ${sig(p.reference_u, 2)} ${unit}`
@@ -36,16 +39,26 @@ export function formatOutcome(o: QuantityOutcome): string[] {
   const unit = UNITS[o.quantity];
   const { fit, points } = o.calibration;
   const lines: string[] = [];
-  const weighted = points.every((p) => Math.hypot(p.reference_u, p.nominal_u ?? 0) > 0) ? 'weighted by 1/u²' : 'unweighted';
+  const weighted = points.every((p) => Math.hypot(p.reference_u, p.nominal_u ?? 0) > 0)
+    ? 'weighted by 1/u²'
+    : 'unweighted';
   lines.push(
     `${o.quantity}: reference = ${sig(fit.gain)} × nominal ${fit.offset < 0 ? '-' : '+'} ${sig(Math.abs(fit.offset))} ${unit}` +
       `   (${MODEL_TEXT[fit.model]}, ${points.length} point${points.length === 1 ? '' : 's'}, ${weighted}, dof ${fit.dof})`,
   );
-  if (fit.model === 'gain_offset') lines.push(`  gain         ${sig(fit.gain)}   u ${sig(fit.u_gain, 2)} (${sig((100 * fit.u_gain) / fit.gain, 2)} %)`);
+  if (fit.model === 'gain_offset')
+    lines.push(
+      `  gain         ${sig(fit.gain)}   u ${sig(fit.u_gain, 2)} (${sig((100 * fit.u_gain) / fit.gain, 2)} %)`,
+    );
   lines.push(`  offset       ${sig(fit.offset)} ${unit}   u ${sig(fit.u_offset, 2)} ${unit}`);
-  if (fit.model === 'gain_offset') lines.push(`  cov(gain, offset) ${sig(fit.cov_gain_offset, 3)} ${unit}`);
-  lines.push(`  residual sd  ${fit.dof > 0 ? `${sig(fit.residual_sd, 3)} ${unit}` : '- (no degrees of freedom: the line passes through the points)'}`);
-  lines.push(`  ${'#'.padStart(2)}  ${'raw mean'.padStart(10)}  ${'nominal'.padStart(12)}  ${'reference ± u'.padStart(24)}  ${'residual'.padStart(11)}  ${'std.res'.padStart(7)}`);
+  if (fit.model === 'gain_offset')
+    lines.push(`  cov(gain, offset) ${sig(fit.cov_gain_offset, 3)} ${unit}`);
+  lines.push(
+    `  residual sd  ${fit.dof > 0 ? `${sig(fit.residual_sd, 3)} ${unit}` : '- (no degrees of freedom: the line passes through the points)'}`,
+  );
+  lines.push(
+    `  ${'#'.padStart(2)}  ${'raw mean'.padStart(10)}  ${'nominal'.padStart(12)}  ${'reference ± u'.padStart(24)}  ${'residual'.padStart(11)}  ${'std.res'.padStart(7)}`,
+  );
   points.forEach((p, k) => {
     const raw = p.reference - (fit.gain * p.nominal + fit.offset);
     // What is left of rounding in a line through the point is not a residual worth showing.

@@ -153,7 +153,12 @@ export function fitLine(points: readonly FitPoint[], options: FitOptions = {}): 
  * χ²/dof, never below 1 when stated uncertainties weight the points (too small a scatter does
  * not shrink them).
  */
-function scatter(residuals: readonly number[], w: readonly number[], dof: number, weighted: boolean): { ss: number; chi2: number; scale: number } {
+function scatter(
+  residuals: readonly number[],
+  w: readonly number[],
+  dof: number,
+  weighted: boolean,
+): { ss: number; chi2: number; scale: number } {
   let ss = 0;
   let chi2 = 0;
   for (let i = 0; i < residuals.length; i++) {
@@ -195,11 +200,25 @@ export function fitOffset(points: readonly FitPoint[], options: FitOptions = {})
   const residuals = points.map((p) => p.y - p.x - offset);
   const base = { gain: 1, offset, u_gain: 0, cov_gain_offset: 0, weighted, residuals };
   if (n === 1) {
-    return { ...base, u_offset: points[0]!.u ?? 0, residual_sd: 0, dof: 0, standardized: [Number.NaN], outliers: [] };
+    return {
+      ...base,
+      u_offset: points[0]!.u ?? 0,
+      residual_sd: 0,
+      dof: 0,
+      standardized: [Number.NaN],
+      outliers: [],
+    };
   }
   const dof = n - 1;
   const { ss, chi2, scale } = scatter(residuals, w, dof, weighted);
-  const standardized = studentize(residuals, w, w.map((wi) => wi / sw), chi2, dof, weighted);
+  const standardized = studentize(
+    residuals,
+    w,
+    w.map((wi) => wi / sw),
+    chi2,
+    dof,
+    weighted,
+  );
   return {
     ...base,
     u_offset: Math.sqrt(scale / sw),
@@ -244,7 +263,11 @@ function flag(standardized: readonly number[], threshold: number): number[] {
 
 function checkFinite(points: readonly FitPoint[], where: string): void {
   points.forEach((p, i) => {
-    if (!Number.isFinite(p.x) || !Number.isFinite(p.y) || (p.u !== undefined && !(p.u >= 0 && Number.isFinite(p.u)))) {
+    if (
+      !Number.isFinite(p.x) ||
+      !Number.isFinite(p.y) ||
+      (p.u !== undefined && !(p.u >= 0 && Number.isFinite(p.u)))
+    ) {
       throw makeError(
         ErrorCodes.CALIBRATION_FIT,
         `point ${i + 1} is not a finite reading (nominal ${p.x}, reference ${p.y}, u ${String(p.u)})`,

@@ -51,11 +51,20 @@ async function askNumber(io: Prompter, question: string, byDefault?: number): Pr
   }
 }
 
-async function askUncertainty(io: Prompter, reading: number, quantity: Quantity, exact: boolean): Promise<number> {
+async function askUncertainty(
+  io: Prompter,
+  reading: number,
+  quantity: Quantity,
+  exact: boolean,
+): Promise<number> {
   const unit = UNITS[quantity];
   const hint = exact ? ' [u=0: nothing flows]' : '';
   for (;;) {
-    const a = (await io.ask(`  Meter accuracy for this range, e.g. 0.5%+0.003 (limits, rectangular) or u=0.001${hint}: `)).trim();
+    const a = (
+      await io.ask(
+        `  Meter accuracy for this range, e.g. 0.5%+0.003 (limits, rectangular) or u=0.001${hint}: `,
+      )
+    ).trim();
     try {
       const r = parseAccuracy(a === '' && exact ? 'u=0' : a, reading, 'accuracy', unit);
       io.print(`  reference uncertainty ${sig(r.u, 2)} ${unit} (${r.basis})`);
@@ -80,7 +89,9 @@ export async function captureInteractive(
 ): Promise<InteractiveResult> {
   let referenceInstrument: string | null = null;
   if (askInstrument) {
-    const a = (await io.ask('Reference instrument (make, model, range, its own calibration date): ')).trim();
+    const a = (
+      await io.ask('Reference instrument (make, model, range, its own calibration date): ')
+    ).trim();
     if (a !== '') referenceInstrument = a;
   }
   const points: PointsByQuantity = {};
@@ -92,7 +103,15 @@ export async function captureInteractive(
     const taken = (points[q] = [] as NonNullable<PointsByQuantity[Quantity]>);
     for (let k = 1; ; k++) {
       const loadDefault = q === 'current' && k === 2;
-      const loadOn = q === 'temperature' ? false : yes(await io.ask(`Point ${k}: switch the load on for it? [${loadDefault ? 'Y/n' : 'y/N'}] `), loadDefault);
+      const loadOn =
+        q === 'temperature'
+          ? false
+          : yes(
+              await io.ask(
+                `Point ${k}: switch the load on for it? [${loadDefault ? 'Y/n' : 'y/N'}] `,
+              ),
+              loadDefault,
+            );
       const label = `${q} point ${k} (load ${loadOn ? 'on' : 'off'})`;
       await io.ask(
         loadOn
@@ -101,9 +120,15 @@ export async function captureInteractive(
       );
       const w = await capture({ loadOn, windowMs, label });
       const stats = w[q];
-      io.print(`  rig: raw mean ${stats.mean.toFixed(2)}, sd ${stats.sd.toFixed(2)} counts over ${stats.n} frames`);
+      io.print(
+        `  rig: raw mean ${stats.mean.toFixed(2)}, sd ${stats.sd.toFixed(2)} counts over ${stats.n} frames`,
+      );
       const exactZero = q === 'current' && !loadOn;
-      const reading = await askNumber(io, `  Reference reading (${UNITS[q]})${exactZero ? ' [0]' : ''}: `, exactZero ? 0 : undefined);
+      const reading = await askNumber(
+        io,
+        `  Reference reading (${UNITS[q]})${exactZero ? ' [0]' : ''}: `,
+        exactZero ? 0 : undefined,
+      );
       const u = await askUncertainty(io, reading, q, exactZero && reading === 0);
       const point = toCalibrationPoint(chain, q, stats, reading, u, label);
       taken.push(point);

@@ -65,9 +65,17 @@ export interface LoadReading {
 /** While the load is on: the first limit a frame breaks, or null. */
 export function checkUnderLoad(g: LoadGuard, r: LoadReading, where: string): CellvigilError | null {
   const trip = (what: string, fix: string): CellvigilError =>
-    makeError(ErrorCodes.CALIBRATION_CAPTURE, `${what}; the load was switched off and nothing was written`, where, fix);
+    makeError(
+      ErrorCodes.CALIBRATION_CAPTURE,
+      `${what}; the load was switched off and nothing was written`,
+      where,
+      fix,
+    );
   if ((r.flags & FLAG_RIG_FAULT) !== 0) {
-    return trip('the rig reports a fault (it cut the load itself)', 'Find the cause at the rig before calibrating again.');
+    return trip(
+      'the rig reports a fault (it cut the load itself)',
+      'Find the cause at the rig before calibrating again.',
+    );
   }
   if (r.volts < g.floorV) {
     return trip(
@@ -76,12 +84,15 @@ export function checkUnderLoad(g: LoadGuard, r: LoadReading, where: string): Cel
     );
   }
   if (!r.thermistorOk) {
-    return trip('the thermistor reads open or shorted, so the cell temperature cannot be watched', 'Fix the NTC wiring before switching a load on.');
+    return trip(
+      'the thermistor reads open or shorted, so the cell temperature cannot be watched',
+      'Fix the NTC wiring before switching a load on.',
+    );
   }
   if (r.celsius > g.maxTemperatureC) {
     return trip(
       `the cell reached ${r.celsius.toFixed(1)} °C, above the ${g.chemistry.id} limit of ${g.maxTemperatureC} °C`,
-      'Let the cell cool and check the load\'s heat path before calibrating again.',
+      "Let the cell cool and check the load's heat path before calibrating again.",
     );
   }
   if (r.amps > g.maxCurrentA) {

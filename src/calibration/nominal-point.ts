@@ -8,7 +8,12 @@ import type { CalibrationPoint, Quantity } from './calibration.js';
 import { meanUncertaintyCounts, type CountStats } from './capture.js';
 
 /** Nominal value of a mean count and its standard uncertainty, in V, A or °C. */
-export function nominalOf(chain: AnalogChain, quantity: Quantity, stats: CountStats, where: string): { nominal: number; u: number } {
+export function nominalOf(
+  chain: AnalogChain,
+  quantity: Quantity,
+  stats: CountStats,
+  where: string,
+): { nominal: number; u: number } {
   const uCounts = meanUncertaintyCounts(stats);
   switch (quantity) {
     case 'voltage':

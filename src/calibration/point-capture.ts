@@ -51,7 +51,14 @@ export async function capturePoint(s: CaptureSettings, req: PointRequest): Promi
       'Give --chemistry and --cells (the cell on the rig), or take only load-off points.',
     );
   }
-  const rest = await averageWindow(s, false, REST_CHECK_MS, `${req.label}, resting-voltage check`, s.signal, 1);
+  const rest = await averageWindow(
+    s,
+    false,
+    REST_CHECK_MS,
+    `${req.label}, resting-voltage check`,
+    s.signal,
+    1,
+  );
   const refusal = checkBeforeLoad(guard, s.chain.volts(rest.voltage.mean));
   if (refusal) throw refusal;
 

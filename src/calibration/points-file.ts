@@ -85,7 +85,11 @@ interface RawPoint {
 }
 
 export async function loadPointsFile(path: string): Promise<PointsFile> {
-  const text = await readConfigText(path, 'points file', 'Check the path given with --points or --from-points.');
+  const text = await readConfigText(
+    path,
+    'points file',
+    'Check the path given with --points or --from-points.',
+  );
   return parsePointsFile(text, path);
 }
 
@@ -101,7 +105,9 @@ export function parsePointsFile(text: string, file: string): PointsFile {
     );
   }
   const list = (Array.isArray(data) ? data : (data as { points: RawPoint[] }).points) as RawPoint[];
-  const instrument = Array.isArray(data) ? undefined : (data as { reference_instrument?: string }).reference_instrument;
+  const instrument = Array.isArray(data)
+    ? undefined
+    : (data as { reference_instrument?: string }).reference_instrument;
   const points = list.map((p, k) => toSpec(p, k + 1, file));
   return { file, ...(instrument !== undefined ? { referenceInstrument: instrument } : {}), points };
 }
@@ -110,13 +116,23 @@ function toSpec(p: RawPoint, index: number, file: string): PointSpec {
   const where = `${file}, point ${index} (${p.quantity})`;
   const unit = UNITS[p.quantity];
   if (p.u !== undefined && p.accuracy !== undefined) {
-    throw makeError(ErrorCodes.CONFIG_INVALID, 'the point gives both u and accuracy', where, 'Keep one: u (a standard uncertainty) or accuracy (the meter\'s limits, e.g. "0.5%+0.002").');
+    throw makeError(
+      ErrorCodes.CONFIG_INVALID,
+      'the point gives both u and accuracy',
+      where,
+      'Keep one: u (a standard uncertainty) or accuracy (the meter\'s limits, e.g. "0.5%+0.002").',
+    );
   }
   let referenceU: number;
   let referenceBasis: string;
   if (p.reference === 'truth') {
     if (p.u !== undefined || p.accuracy !== undefined) {
-      throw makeError(ErrorCodes.CONFIG_INVALID, 'a truth reference has no uncertainty to state', where, 'Remove u / accuracy from this point.');
+      throw makeError(
+        ErrorCodes.CONFIG_INVALID,
+        'a truth reference has no uncertainty to state',
+        where,
+        'Remove u / accuracy from this point.',
+      );
     }
     referenceU = 0;
     referenceBasis = "the simulator's true value (exact)";
@@ -124,7 +140,12 @@ function toSpec(p: RawPoint, index: number, file: string): PointSpec {
     referenceU = p.u;
     referenceBasis = `standard uncertainty ${p.u} ${unit}`;
   } else if (p.accuracy !== undefined) {
-    ({ u: referenceU, basis: referenceBasis } = parseAccuracy(p.accuracy, p.reference, `${where}, key accuracy`, unit));
+    ({ u: referenceU, basis: referenceBasis } = parseAccuracy(
+      p.accuracy,
+      p.reference,
+      `${where}, key accuracy`,
+      unit,
+    ));
   } else {
     throw makeError(
       ErrorCodes.CONFIG_INVALID,
@@ -148,7 +169,12 @@ function toSpec(p: RawPoint, index: number, file: string): PointSpec {
     if (p.raw_sd !== undefined) spec.raw.sd = p.raw_sd;
     if (p.samples !== undefined) spec.raw.samples = p.samples;
   } else if (p.raw_sd !== undefined || p.samples !== undefined) {
-    throw makeError(ErrorCodes.CONFIG_INVALID, 'raw_sd or samples without raw_mean', where, 'Give raw_mean as well, or remove them.');
+    throw makeError(
+      ErrorCodes.CONFIG_INVALID,
+      'raw_sd or samples without raw_mean',
+      where,
+      'Give raw_mean as well, or remove them.',
+    );
   }
   return spec;
 }
@@ -156,15 +182,24 @@ function toSpec(p: RawPoint, index: number, file: string): PointSpec {
 function describe(errors: readonly ErrorObject[], data: unknown): string {
   // The array and mapping forms fail differently; report against the form that was used.
   const form = Array.isArray(data) ? '/anyOf/0' : '/anyOf/1';
-  const own = errors.filter((e) => e.schemaPath.startsWith(`#${form}`) && !e.schemaPath.includes('/reference/anyOf'));
+  const own = errors.filter(
+    (e) => e.schemaPath.startsWith(`#${form}`) && !e.schemaPath.includes('/reference/anyOf'),
+  );
   const refErrors = errors.some((e) => e.schemaPath.includes('/reference/anyOf'));
   const parts = own.map((e) => {
     const path = e.instancePath.split('/').slice(1).join('.') || '(top level)';
-    if (e.keyword === 'additionalProperties') return `${path} has an unknown key ${String((e.params as { additionalProperty: string }).additionalProperty)}`;
-    if (e.keyword === 'enum') return `${path} must be one of ${(e.params as { allowedValues: unknown[] }).allowedValues.join(', ')}`;
+    if (e.keyword === 'additionalProperties')
+      return `${path} has an unknown key ${String((e.params as { additionalProperty: string }).additionalProperty)}`;
+    if (e.keyword === 'enum')
+      return `${path} must be one of ${(e.params as { allowedValues: unknown[] }).allowedValues.join(', ')}`;
     return `${path} ${e.message ?? 'is invalid'}`;
   });
   if (refErrors) parts.push('a reference must be a number (or "truth" with --sim)');
-  if (parts.length === 0) parts.push(Array.isArray(data) || (data !== null && typeof data === 'object') ? 'see the format' : 'it must be a list of points or a mapping with "points"');
+  if (parts.length === 0)
+    parts.push(
+      Array.isArray(data) || (data !== null && typeof data === 'object')
+        ? 'see the format'
+        : 'it must be a list of points or a mapping with "points"',
+    );
   return [...new Set(parts)].join('; ');
 }

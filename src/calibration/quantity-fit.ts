@@ -58,7 +58,10 @@ function fmt(x: number): string {
 }
 
 /** Fits one quantity, refusing degenerate points with a message that says what to take instead. */
-export function fitCheckedQuantity(quantity: Quantity, points: readonly CalibrationPoint[]): QuantityOutcome {
+export function fitCheckedQuantity(
+  quantity: Quantity,
+  points: readonly CalibrationPoint[],
+): QuantityOutcome {
   const where = `calibrate: ${quantity}`;
   const unit = UNITS[quantity];
   const model = modelFor(quantity);
@@ -103,13 +106,15 @@ export function fitCheckedQuantity(quantity: Quantity, points: readonly Calibrat
     if (!(fit.gain >= GAIN_REFUSE.low && fit.gain <= GAIN_REFUSE.high)) {
       throw makeError(
         ErrorCodes.CALIBRATION_FIT,
-        `the fitted ${quantity} gain is ${fmt(fit.gain)}: the reference ${fit.gain <= 0 ? 'falls as the rig\'s reading rises' : `differs from the rig by a factor of ${fmt(fit.gain)}`}`,
+        `the fitted ${quantity} gain is ${fmt(fit.gain)}: the reference ${fit.gain <= 0 ? "falls as the rig's reading rises" : `differs from the rig by a factor of ${fmt(fit.gain)}`}`,
         where,
         `Check that the readings are in ${unit} (not m${unit}) and typed for the right points, and that the rig profile (--rig) describes this board.`,
       );
     }
     if (fit.gain < GAIN_WARN.low || fit.gain > GAIN_WARN.high) {
-      warnings.push(`the ${quantity} gain ${fmt(fit.gain)} is far from 1: check that the rig profile describes this board`);
+      warnings.push(
+        `the ${quantity} gain ${fmt(fit.gain)} is far from 1: check that the rig profile describes this board`,
+      );
     }
     if (fit.u_gain / fit.gain > GAIN_U_WARN) {
       warnings.push(
@@ -117,7 +122,9 @@ export function fitCheckedQuantity(quantity: Quantity, points: readonly Calibrat
       );
     }
     if (n === 2) {
-      warnings.push(`only two ${quantity} points: the line passes through both, so a wrong reading cannot show; three or more are recommended`);
+      warnings.push(
+        `only two ${quantity} points: the line passes through both, so a wrong reading cannot show; three or more are recommended`,
+      );
     }
   }
   for (const k of r.outliers) {
@@ -125,7 +132,13 @@ export function fitCheckedQuantity(quantity: Quantity, points: readonly Calibrat
       `${quantity} point ${k + 1} does not fit the line (standardized residual ${fmt(r.standardized[k]!)}): retake it, or check the reading typed for it`,
     );
   }
-  return { quantity, calibration: r.calibration, standardized: r.standardized, outliers: r.outliers, warnings };
+  return {
+    quantity,
+    calibration: r.calibration,
+    standardized: r.standardized,
+    outliers: r.outliers,
+    warnings,
+  };
 }
 
 export interface CalibrationMeta {
@@ -140,7 +153,12 @@ export function buildCalibration(
   points: Partial<Record<Quantity, readonly CalibrationPoint[]>>,
 ): { content: CalibrationContent; outcomes: QuantityOutcome[] } {
   const outcomes: QuantityOutcome[] = [];
-  const content: CalibrationContent = { format: CALIBRATION_FORMAT, rig: meta.rig, date: meta.date, reference_instrument: meta.referenceInstrument };
+  const content: CalibrationContent = {
+    format: CALIBRATION_FORMAT,
+    rig: meta.rig,
+    date: meta.date,
+    reference_instrument: meta.referenceInstrument,
+  };
   for (const q of QUANTITIES) {
     const pts = points[q];
     if (!pts || pts.length === 0) continue;
@@ -149,7 +167,12 @@ export function buildCalibration(
     content[q] = o.calibration;
   }
   if (outcomes.length === 0) {
-    throw makeError(ErrorCodes.CALIBRATION_FIT, 'no points were taken', 'calibrate', 'Take at least the current points (load off and load on) against a reference meter.');
+    throw makeError(
+      ErrorCodes.CALIBRATION_FIT,
+      'no points were taken',
+      'calibrate',
+      'Take at least the current points (load off and load on) against a reference meter.',
+    );
   }
   return { content, outcomes };
 }

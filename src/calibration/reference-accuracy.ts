@@ -30,7 +30,12 @@ function num(mantissa: string | undefined, exponent: string | undefined): number
  * Parses `u=0.001` (a standard uncertainty) or limits `0.5%`, `0.5%+0.002`, `±0.002` (percent of
  * the reading plus a fixed part, in the reading's unit, taken as rectangular).
  */
-export function parseAccuracy(text: string, reading: number, where: string, unit: string): ReferenceUncertainty {
+export function parseAccuracy(
+  text: string,
+  reading: number,
+  where: string,
+  unit: string,
+): ReferenceUncertainty {
   const s = text.trim().replace(/\s+/g, ' ');
   const std = STANDARD.exec(s);
   if (std) {
@@ -42,7 +47,10 @@ export function parseAccuracy(text: string, reading: number, where: string, unit
     const pct = lim[1] !== undefined ? num(lim[1], lim[2]) : 0;
     const fixed = lim[3] !== undefined ? num(lim[3], lim[4]) : 0;
     const a = (Math.abs(reading) * pct) / 100 + fixed;
-    return { u: rectangularU(a), basis: `limits ±${formatLimits(pct, fixed, unit)} = ±${round(a)} ${unit}, rectangular: u = a/√3` };
+    return {
+      u: rectangularU(a),
+      basis: `limits ±${formatLimits(pct, fixed, unit)} = ±${round(a)} ${unit}, rectangular: u = a/√3`,
+    };
   }
   throw makeError(
     ErrorCodes.USAGE,

@@ -62,13 +62,17 @@ export class RigLink {
       closed: (reason) => this.onClosed(reason),
     });
     const where = this.o.source.description;
-    const got = this.waitFor((m) => m.kind === 'hello', this.o.helloTimeoutMs, signal, () =>
-      makeError(
-        ErrorCodes.RIG_SILENT,
-        `no hello from the rig within ${this.o.helloTimeoutMs / 1000} s`,
-        where,
-        'Check the port, the baud rate (frame.baud in the rig profile) and that the rig firmware speaks protocol v1.',
-      ),
+    const got = this.waitFor(
+      (m) => m.kind === 'hello',
+      this.o.helloTimeoutMs,
+      signal,
+      () =>
+        makeError(
+          ErrorCodes.RIG_SILENT,
+          `no hello from the rig within ${this.o.helloTimeoutMs / 1000} s`,
+          where,
+          'Check the port, the baud rate (frame.baud in the rig profile) and that the rig firmware speaks protocol v1.',
+        ),
     );
     this.send({ command: 'HELLO' });
     const hello = (await got) as HelloFrame;
@@ -131,7 +135,12 @@ export class RigLink {
     if (on) {
       this.loadMaybeOn = true;
       this.everSwitchedOn = true;
-      if (!this.beat) this.beat = this.o.clock.setTimer(() => this.send({ command: 'BEAT' }), this.o.beatMs, true);
+      if (!this.beat)
+        this.beat = this.o.clock.setTimer(
+          () => this.send({ command: 'BEAT' }),
+          this.o.beatMs,
+          true,
+        );
       await this.command(true, signal);
       return;
     }
@@ -181,7 +190,11 @@ export class RigLink {
     const where = `${this.o.source.description}, LOAD ${ch} ${state}`;
     const ack = this.waitFor(
       (m) =>
-        (m.kind === 'ack' && m.command === 'LOAD' && m.args[0] === String(ch) && m.args[1] === state) || m.kind === 'rig-error',
+        (m.kind === 'ack' &&
+          m.command === 'LOAD' &&
+          m.args[0] === String(ch) &&
+          m.args[1] === state) ||
+        m.kind === 'rig-error',
       this.o.ackTimeoutMs,
       signal,
       () =>
@@ -196,7 +209,12 @@ export class RigLink {
     );
     if (!this.send({ command: 'LOAD', channel: ch, on })) {
       ack.catch(() => undefined);
-      throw makeError(ErrorCodes.LOAD_NOT_CONFIRMED, 'the command could not be sent: the link is closed', where, 'Check the connection to the rig.');
+      throw makeError(
+        ErrorCodes.LOAD_NOT_CONFIRMED,
+        'the command could not be sent: the link is closed',
+        where,
+        'Check the connection to the rig.',
+      );
     }
     const reply = await ack;
     if (reply.kind === 'rig-error') {
@@ -214,7 +232,12 @@ export class RigLink {
     return this.o.source.write(encodeCommand(cmd));
   }
 
-  private waitFor(match: Waiter['match'], timeoutMs: number, signal: AbortSignal | undefined, timeout: () => Error): Promise<RigMessage> {
+  private waitFor(
+    match: Waiter['match'],
+    timeoutMs: number,
+    signal: AbortSignal | undefined,
+    timeout: () => Error,
+  ): Promise<RigMessage> {
     return new Promise<RigMessage>((resolve, reject) => {
       if (this.closed) return reject(this.closed);
       if (signal?.aborted) return reject(signal.reason as Error);

@@ -1,5 +1,5 @@
 /**
- * The model of a rig's analog front end (DESIGN.md "Rig profile"): raw ADC counts to nominal
+ * The model of a rig's analog front end (docs/rig-profile.md): raw ADC counts to nominal
  * cell volts, load amps and thermistor °C, and back. Runs once per frame, so every constant is
  * worked out in the constructor.
  */
@@ -46,7 +46,9 @@ export class AnalogChain {
     const { adc, voltage, current, temperature } = profile;
     const gain =
       current.amplifier_gain ??
-      (current.rf_ohm !== undefined && current.rin_ohm !== undefined ? current.rf_ohm / current.rin_ohm : undefined);
+      (current.rf_ohm !== undefined && current.rin_ohm !== undefined
+        ? current.rf_ohm / current.rin_ohm
+        : undefined);
     if (gain === undefined) {
       throw makeError(
         ErrorCodes.CONFIG_INVALID,
@@ -60,7 +62,8 @@ export class AnalogChain {
     this.maxCount = this.#span - 1;
     this.adcVoltsPerCount = adc.vref_V / this.#span;
     this.voltsPerCount =
-      (this.adcVoltsPerCount * (voltage.divider_top_ohm + voltage.divider_bottom_ohm)) / voltage.divider_bottom_ohm;
+      (this.adcVoltsPerCount * (voltage.divider_top_ohm + voltage.divider_bottom_ohm)) /
+      voltage.divider_bottom_ohm;
     this.amplifierGain = gain;
     this.ampsPerCount = this.adcVoltsPerCount / (gain * current.shunt_ohm);
 
@@ -71,7 +74,9 @@ export class AnalogChain {
     const r25 = temperature.ntc_r25_ohm;
     const beta = temperature.ntc_beta_K;
     this.#ohmToCelsius = sh ? (r) => steinhartHartCelsius(r, sh) : (r) => betaCelsius(r, r25, beta);
-    this.#celsiusToOhm = sh ? (t) => steinhartHartResistance(t, sh) : (t) => betaResistance(t, r25, beta);
+    this.#celsiusToOhm = sh
+      ? (t) => steinhartHartResistance(t, sh)
+      : (t) => betaResistance(t, r25, beta);
   }
 
   /** Nominal cell volts for a raw voltage count. */
@@ -131,6 +136,8 @@ export class AnalogChain {
   /** Temperature step of one count at `celsius` (the NTC divider is not linear, so it varies). */
   celsiusPerCountAt(celsius: number): number {
     const h = 0.5;
-    return (2 * h) / Math.abs(this.countsForCelsius(celsius + h) - this.countsForCelsius(celsius - h));
+    return (
+      (2 * h) / Math.abs(this.countsForCelsius(celsius + h) - this.countsForCelsius(celsius - h))
+    );
   }
 }

@@ -1,6 +1,6 @@
 /**
  * A rig profile (config/rigs/*.yaml): the model of one board's analog chain. Keys and units are
- * a contract (DESIGN.md "Rig profile").
+ * a contract (docs/rig-profile.md).
  */
 export interface RigProfile {
   /** Free text naming the rig. */

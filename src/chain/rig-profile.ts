@@ -41,7 +41,10 @@ const SCHEMA: SchemaObject = {
         connection_ohm: { type: 'number', minimum: 0 },
       },
       oneOf: [
-        { required: ['amplifier_gain'], not: { anyOf: [{ required: ['rin_ohm'] }, { required: ['rf_ohm'] }] } },
+        {
+          required: ['amplifier_gain'],
+          not: { anyOf: [{ required: ['rin_ohm'] }, { required: ['rf_ohm'] }] },
+        },
         { required: ['rin_ohm', 'rf_ohm'], not: { required: ['amplifier_gain'] } },
       ],
     },
@@ -83,7 +86,8 @@ const MEANING: Record<string, string> = {
   'adc.bits': "the ADC's resolution in bits",
   'adc.vref_V': "the ADC's reference voltage in volts",
   voltage: 'a mapping with divider_top_ohm and divider_bottom_ohm',
-  'voltage.divider_top_ohm': 'the divider resistor from the cell to the ADC input, in ohms (0 without a divider)',
+  'voltage.divider_top_ohm':
+    'the divider resistor from the cell to the ADC input, in ohms (0 without a divider)',
   'voltage.divider_bottom_ohm': 'the divider resistor from the ADC input to ground, in ohms',
   current: 'a mapping with shunt_ohm and amplifier_gain (or rin_ohm and rf_ohm)',
   'current.shunt_ohm': "the shunt's value in ohms",
@@ -112,13 +116,22 @@ const validate = new Ajv({ allErrors: true, strict: true, strictRequired: false 
 
 /** Reads, parses and validates a rig profile file. */
 export async function loadRigProfile(path: string): Promise<RigProfile> {
-  const text = await readConfigText(path, 'rig profile', 'Check the path given with --rig; the profiles shipped are in config/rigs/.');
+  const text = await readConfigText(
+    path,
+    'rig profile',
+    'Check the path given with --rig; the profiles shipped are in config/rigs/.',
+  );
   return parseRigProfile(text, path);
 }
 
 /** Parses and validates rig profile YAML; `where` names the source in messages. */
 export function parseRigProfile(text: string, where: string): RigProfile {
-  const data = parseConfigYaml(text, 'rig profile', where, 'Fix the YAML syntax at the line shown (indentation, a missing colon or an unclosed brace).');
+  const data = parseConfigYaml(
+    text,
+    'rig profile',
+    where,
+    'Fix the YAML syntax at the line shown (indentation, a missing colon or an unclosed brace).',
+  );
   if (!validate(data)) {
     const problems = describeErrors(validate.errors ?? [], data);
     throw makeError(
@@ -163,7 +176,10 @@ function describe(e: ErrorObject, data: unknown): Problem {
       const key = String((e.params as { additionalProperty: string }).additionalProperty);
       const full = path ? `${path}.${key}` : key;
       const known = Object.keys(schemaAt(segments)?.['properties'] ?? {}).join(', ');
-      return { what: `${full} is not a known key`, fix: `Remove ${full} or correct its spelling (known keys here: ${known}).` };
+      return {
+        what: `${full} is not a known key`,
+        fix: `Remove ${full} or correct its spelling (known keys here: ${known}).`,
+      };
     }
     case 'required': {
       const key = String((e.params as { missingProperty: string }).missingProperty);
@@ -176,7 +192,9 @@ function describe(e: ErrorObject, data: unknown): Problem {
         fix: 'Use amplifier_gain for a non-inverting stage, or rin_ohm and rf_ohm for an inverting stage, and remove the other.',
       };
     case 'enum': {
-      const allowed = (e.params as { allowedValues: unknown[] }).allowedValues.map((v) => String(v)).join(' or ');
+      const allowed = (e.params as { allowedValues: unknown[] }).allowedValues
+        .map((v) => String(v))
+        .join(' or ');
       return { what: `${path} must be ${allowed}, ${got}`, fix: setIt };
     }
     case 'type': {
@@ -187,7 +205,8 @@ function describe(e: ErrorObject, data: unknown): Problem {
         };
       }
       const type = String((e.params as { type: string }).type);
-      const noun = type === 'integer' ? 'a whole number' : type === 'object' ? 'a mapping' : `a ${type}`;
+      const noun =
+        type === 'integer' ? 'a whole number' : type === 'object' ? 'a mapping' : `a ${type}`;
       return { what: `${path} must be ${noun}, ${got}`, fix: setIt };
     }
     case 'minimum':
@@ -196,7 +215,11 @@ function describe(e: ErrorObject, data: unknown): Problem {
       const min = s?.['minimum'] as number | undefined;
       const max = s?.['maximum'] as number | undefined;
       const range =
-        min !== undefined && max !== undefined ? `from ${min} to ${max}` : min !== undefined ? `≥ ${min}` : `≤ ${String(max)}`;
+        min !== undefined && max !== undefined
+          ? `from ${min} to ${max}`
+          : min !== undefined
+            ? `≥ ${min}`
+            : `≤ ${String(max)}`;
       return { what: `${path} must be ${range}, ${got}`, fix: setIt };
     }
     case 'exclusiveMinimum':
@@ -208,13 +231,15 @@ function describe(e: ErrorObject, data: unknown): Problem {
 
 function valueAt(data: unknown, segments: readonly string[]): unknown {
   let v = data;
-  for (const s of segments) v = v !== null && typeof v === 'object' ? (v as Record<string, unknown>)[s] : undefined;
+  for (const s of segments)
+    v = v !== null && typeof v === 'object' ? (v as Record<string, unknown>)[s] : undefined;
   return v;
 }
 
 function schemaAt(segments: readonly string[]): SchemaObject | undefined {
   let s: SchemaObject | undefined = SCHEMA;
-  for (const seg of segments) s = (s?.['properties'] as Record<string, SchemaObject> | undefined)?.[seg];
+  for (const seg of segments)
+    s = (s?.['properties'] as Record<string, SchemaObject> | undefined)?.[seg];
   return s;
 }
 

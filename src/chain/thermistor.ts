@@ -81,10 +81,17 @@ export function steinhartHartResistance(celsius: number, k: SteinhartHart): numb
  * so the curve passes through all three). The points need distinct resistances and
  * temperatures; spread them over the range the thermistor will be used in.
  */
-export function fitSteinhartHart(points: readonly [ResistancePoint, ResistancePoint, ResistancePoint]): SteinhartHart {
+export function fitSteinhartHart(
+  points: readonly [ResistancePoint, ResistancePoint, ResistancePoint],
+): SteinhartHart {
   const [p1, p2, p3] = points;
   for (const p of points) {
-    if (!(p.ohm > 0) || !Number.isFinite(p.ohm) || !Number.isFinite(p.celsius) || p.celsius <= -KELVIN_OFFSET) {
+    if (
+      !(p.ohm > 0) ||
+      !Number.isFinite(p.ohm) ||
+      !Number.isFinite(p.celsius) ||
+      p.celsius <= -KELVIN_OFFSET
+    ) {
       throw makeError(
         ErrorCodes.CALIBRATION_FIT,
         `thermistor point (${p.ohm} Ω, ${p.celsius} °C) is not a physical reading`,

@@ -109,7 +109,10 @@ function describeSchemaError(e: ErrorObject): { key: string; problem: string } {
       };
     case 'maxLength':
     case 'maxItems':
-      return { key: keyPath(e.instancePath), problem: `is too long (at most ${String(params['limit'])})` };
+      return {
+        key: keyPath(e.instancePath),
+        problem: `is too long (at most ${String(params['limit'])})`,
+      };
     case 'minItems':
       return { key: keyPath(e.instancePath), problem: 'needs at least one entry' };
     case 'pattern':
@@ -125,26 +128,38 @@ const KEYWORD_ORDER = ['propertyNames', 'additionalProperties', 'type'];
 
 function schemaProblems(errors: readonly ErrorObject[]): { key: string; problem: string }[] {
   const badIds = new Set(
-    errors.filter((e) => e.keyword === 'propertyNames').map((e) => String(e.params['propertyName'])),
+    errors
+      .filter((e) => e.keyword === 'propertyNames')
+      .map((e) => String(e.params['propertyName'])),
   );
   const rank = (e: ErrorObject): number => {
     const i = KEYWORD_ORDER.indexOf(e.keyword);
-    return i === -1 ? (e.keyword === 'required' ? KEYWORD_ORDER.length + 1 : KEYWORD_ORDER.length) : i;
+    return i === -1
+      ? e.keyword === 'required'
+        ? KEYWORD_ORDER.length + 1
+        : KEYWORD_ORDER.length
+      : i;
   };
-  return errors
-    // the pattern failure inside propertyNames repeats what the propertyNames error says
-    .filter((e) => e.propertyName === undefined)
-    // nothing more to say about the fields of a profile whose id is itself invalid
-    .filter((e) => {
-      const first = e.instancePath.split('/')[1]?.replace(/~1/g, '/').replace(/~0/g, '~') ?? '';
-      return e.instancePath === '' || !badIds.has(first);
-    })
-    .map((e, i) => ({ e, i }))
-    .sort((a, b) => rank(a.e) - rank(b.e) || a.i - b.i)
-    .map(({ e }) => describeSchemaError(e));
+  return (
+    errors
+      // the pattern failure inside propertyNames repeats what the propertyNames error says
+      .filter((e) => e.propertyName === undefined)
+      // nothing more to say about the fields of a profile whose id is itself invalid
+      .filter((e) => {
+        const first = e.instancePath.split('/')[1]?.replace(/~1/g, '/').replace(/~0/g, '~') ?? '';
+        return e.instancePath === '' || !badIds.has(first);
+      })
+      .map((e, i) => ({ e, i }))
+      .sort((a, b) => rank(a.e) - rank(b.e) || a.i - b.i)
+      .map(({ e }) => describeSchemaError(e))
+  );
 }
 
-function invalid(where: string, problems: { key: string; problem: string }[], fix: string): CellvigilError {
+function invalid(
+  where: string,
+  problems: { key: string; problem: string }[],
+  fix: string,
+): CellvigilError {
   const shown = problems.slice(0, 5).map((p) => `${p.key} ${p.problem}`);
   const more = problems.length > 5 ? `; and ${problems.length - 5} more` : '';
   const keys = [...new Set(problems.slice(0, 5).map((p) => p.key))].join(', ');
@@ -173,7 +188,11 @@ function crossCheck(id: string, p: RawProfile): { key: string; problem: string }
     need(Number.isFinite(v(f)), f, 'must be a finite number');
   }
   if (problems.length > 0) return problems;
-  need(v('floor_V_per_cell') > 0, 'floor_V_per_cell', `(${v('floor_V_per_cell')}) must be above 0 V`);
+  need(
+    v('floor_V_per_cell') > 0,
+    'floor_V_per_cell',
+    `(${v('floor_V_per_cell')}) must be above 0 V`,
+  );
   need(
     v('floor_V_per_cell') <= v('cutoff_V_per_cell'),
     'floor_V_per_cell',
@@ -217,7 +236,12 @@ function copySourced(s: RawSourced): Sourced {
  * Throws a CellvigilError (CV_CONFIG_INVALID, exit code 2) naming the file, the key and the fix.
  */
 export function parseChemistries(text: string, where: string): ChemistryProfile[] {
-  const data = parseConfigYaml(text, 'chemistry file', where, 'Fix the YAML syntax at the line shown (indentation, colons, quotes).');
+  const data = parseConfigYaml(
+    text,
+    'chemistry file',
+    where,
+    'Fix the YAML syntax at the line shown (indentation, colons, quotes).',
+  );
   if (data === null || typeof data !== 'object' || Array.isArray(data)) {
     throw invalid(
       where,

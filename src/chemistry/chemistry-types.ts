@@ -5,7 +5,7 @@ export interface Sourced {
   source: string;
 }
 
-/** One chemistry profile (DESIGN.md "Chemistry profiles"); all voltages are per cell. */
+/** One chemistry profile; all voltages are per cell. */
 export interface ChemistryProfile {
   id: string;
   name: string;

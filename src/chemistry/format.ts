@@ -61,7 +61,12 @@ export function formatChemistryTable(
   options: ChemistryTableOptions = {},
 ): string {
   const out: string[] = [];
-  out.push(...wrap('Chemistry profiles. Voltages are per cell; N cells in series scale them by N.', TABLE_WIDTH));
+  out.push(
+    ...wrap(
+      'Chemistry profiles. Voltages are per cell; N cells in series scale them by N.',
+      TABLE_WIDTH,
+    ),
+  );
   const sourceCol = INDENT.length + LABEL_WIDTH + VALUE_WIDTH;
   const sourceWidth = TABLE_WIDTH - sourceCol;
   out.push('', `${INDENT}${'limit'.padEnd(LABEL_WIDTH)}${'value'.padEnd(VALUE_WIDTH)}source`);
@@ -76,7 +81,9 @@ export function formatChemistryTable(
     for (const row of ROWS) {
       const s = p[row.field];
       const src = wrap(s.source, sourceWidth);
-      out.push(`${INDENT}${row.label.padEnd(LABEL_WIDTH)}${formatValue(s, row.unit).padEnd(VALUE_WIDTH)}${src[0] ?? ''}`);
+      out.push(
+        `${INDENT}${row.label.padEnd(LABEL_WIDTH)}${formatValue(s, row.unit).padEnd(VALUE_WIDTH)}${src[0] ?? ''}`,
+      );
       for (const more of src.slice(1)) out.push(`${' '.repeat(sourceCol)}${more}`);
     }
     if (options.cautions === true && p.cautions.length > 0) {

@@ -136,20 +136,16 @@ export function describeFits(restV: number, fits: readonly ChemistryFit[]): stri
   const parts = fits.map((f) =>
     f.minCells === f.maxCells ? `${f.minCells} × ${f.id}` : `${f.minCells}–${f.maxCells} × ${f.id}`,
   );
-  const list = parts.length === 1 ? parts[0] : `${parts.slice(0, -1).join(', ')} or ${parts.at(-1)}`;
+  const list =
+    parts.length === 1 ? parts[0] : `${parts.slice(0, -1).join(', ')} or ${parts.at(-1)}`;
   return `${fmtV(restV)} V fits ${list}`;
 }
 
 export type RestRefusal =
-  | 'not_a_reading'
-  | 'reversed'
-  | 'below_min_rest'
-  | 'above_max_rest'
-  | 'at_or_below_cutoff';
+  'not_a_reading' | 'reversed' | 'below_min_rest' | 'above_max_rest' | 'at_or_below_cutoff';
 
 export type RestCheck =
-  | { ok: true }
-  | { ok: false; reason: RestRefusal; error: CellvigilError; fits: ChemistryFit[] };
+  { ok: true } | { ok: false; reason: RestRefusal; error: CellvigilError; fits: ChemistryFit[] };
 
 /**
  * The start check on the resting (open-circuit) voltage of the string, before any load is

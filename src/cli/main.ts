@@ -11,7 +11,15 @@ import { simCommand } from './commands/sim.js';
 import { watchCommand } from './commands/watch.js';
 
 /** One entry per command; each lives in ./commands/<name>.ts. */
-const commands = [runCommand, chemistriesCommand, simCommand, watchCommand, reportCommand, calibrateCommand, assessCommand];
+const commands = [
+  runCommand,
+  chemistriesCommand,
+  simCommand,
+  watchCommand,
+  reportCommand,
+  calibrateCommand,
+  assessCommand,
+];
 
 async function main(): Promise<void> {
   let cli = yargs(hideBin(process.argv))
@@ -23,7 +31,11 @@ async function main(): Promise<void> {
     .fail((msg, err) => {
       if (err instanceof CellvigilError) throw err;
       const what = (msg ?? err?.message ?? 'bad usage').replace(/\.?$/, '.');
-      throw new CellvigilError('CV_USAGE', `${what} Run cellvigil --help for the commands and options.`, 2);
+      throw new CellvigilError(
+        'CV_USAGE',
+        `${what} Run cellvigil --help for the commands and options.`,
+        2,
+      );
     });
   for (const c of commands) cli = cli.command(c as never);
   await cli.parseAsync();

@@ -17,7 +17,10 @@ export interface ProgressStream {
 /** Redraws at most this often. */
 const REDRAW_MS = 100;
 
-export function progressBar(stream: ProgressStream, now: () => number = () => performance.now()): ProgressBar {
+export function progressBar(
+  stream: ProgressStream,
+  now: () => number = () => performance.now(),
+): ProgressBar {
   if (!stream.isTTY) return { update: () => undefined, end: () => undefined };
   let last = -Infinity;
   let drawn = false;
@@ -29,7 +32,9 @@ export function progressBar(stream: ProgressStream, now: () => number = () => pe
       const share = total > 0 ? Math.min(1, done / total) : 0;
       const width = Math.max(10, Math.min(40, (stream.columns ?? 80) - label.length - 10));
       const filled = Math.round(share * width);
-      stream.write(`\r\x1b[2K${label} [${'#'.repeat(filled)}${'.'.repeat(width - filled)}] ${(share * 100).toFixed(0).padStart(3)} %`);
+      stream.write(
+        `\r\x1b[2K${label} [${'#'.repeat(filled)}${'.'.repeat(width - filled)}] ${(share * 100).toFixed(0).padStart(3)} %`,
+      );
       drawn = true;
     },
     end() {

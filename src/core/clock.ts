@@ -79,7 +79,12 @@ export class VirtualClock implements Clock {
 
   setTimer(fn: () => void, ms: number, repeat = false): TimerHandle {
     const id = this.nextId++;
-    this.insert({ id, at: this.t + Math.max(0, ms), every: repeat ? Math.max(1e-3, ms) : null, fn });
+    this.insert({
+      id,
+      at: this.t + Math.max(0, ms),
+      every: repeat ? Math.max(1e-3, ms) : null,
+      fn,
+    });
     return { id };
   }
 

@@ -7,7 +7,12 @@ export async function readConfigText(path: string, what: string, fix: string): P
   try {
     return await readFile(path, 'utf8');
   } catch (err) {
-    throw makeError(ErrorCodes.CONFIG_READ, `cannot read the ${what}: ${(err as Error).message}`, path, fix);
+    throw makeError(
+      ErrorCodes.CONFIG_READ,
+      `cannot read the ${what}: ${(err as Error).message}`,
+      path,
+      fix,
+    );
   }
 }
 
@@ -17,6 +22,11 @@ export function parseConfigYaml(text: string, what: string, where: string, fix: 
     return parseYaml(text, { logLevel: 'error' });
   } catch (err) {
     const first = (err instanceof Error ? err.message : String(err)).split('\n')[0] ?? '';
-    throw makeError(ErrorCodes.CONFIG_INVALID, `the ${what} is not valid YAML: ${first.replace(/:\s*$/, '')}`, where, fix);
+    throw makeError(
+      ErrorCodes.CONFIG_INVALID,
+      `the ${what} is not valid YAML: ${first.replace(/:\s*$/, '')}`,
+      where,
+      fix,
+    );
   }
 }

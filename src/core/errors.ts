@@ -39,7 +39,12 @@ export class CellvigilError extends Error {
 }
 
 /** The one place errors are made. `what` is the problem, `where` the file/key/option, `fix` what to do. */
-export function makeError(code: ErrorCode, what: string, where: string, fix: string): CellvigilError {
+export function makeError(
+  code: ErrorCode,
+  what: string,
+  where: string,
+  fix: string,
+): CellvigilError {
   const usage =
     code === ErrorCodes.CONFIG_READ ||
     code === ErrorCodes.CONFIG_INVALID ||

@@ -11,4 +11,6 @@ export function packagePath(relative: string): string {
   return fileURLToPath(new URL(`../../${relative}`, import.meta.url));
 }
 
-export const PACKAGE_VERSION: string = (JSON.parse(readFileSync(packagePath('package.json'), 'utf8')) as { version: string }).version;
+export const PACKAGE_VERSION: string = (
+  JSON.parse(readFileSync(packagePath('package.json'), 'utf8')) as { version: string }
+).version;

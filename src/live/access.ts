@@ -13,7 +13,12 @@ export interface ListenAddress {
 /** Parses `host:port`, `[v6]:port`, `host` or `:port`; port 0 asks the system for a free one. */
 export function parseListen(text: string): ListenAddress {
   const bad = (why: string) =>
-    makeError(ErrorCodes.USAGE, `cannot use '${text}' as a listen address: ${why}`, '--listen', 'Give host:port, for example 127.0.0.1:8507 or 0.0.0.0:8507.');
+    makeError(
+      ErrorCodes.USAGE,
+      `cannot use '${text}' as a listen address: ${why}`,
+      '--listen',
+      'Give host:port, for example 127.0.0.1:8507 or 0.0.0.0:8507.',
+    );
   const m = /^(?:\[([0-9A-Fa-f:.]+)\]|([^:[\]]*))(?::(\d{1,5}))?$/.exec(text.trim());
   const bareV6 = m === null && isIP(text.trim()) === 6;
   if (!m && !bareV6) throw bad('it is not host:port');
@@ -60,7 +65,11 @@ export function hostAllowed(hostHeader: string | undefined, loopbackBind: boolea
  * A WebSocket's Origin is allowed when absent (a program, not a browser page), equal to the
  * page's own origin (same host and port as the request's Host), or listed in `extra`.
  */
-export function originAllowed(origin: string | undefined, hostHeader: string | undefined, extra: readonly string[] = []): boolean {
+export function originAllowed(
+  origin: string | undefined,
+  hostHeader: string | undefined,
+  extra: readonly string[] = [],
+): boolean {
   if (origin === undefined) return true;
   let u: URL;
   try {

@@ -101,7 +101,8 @@ export class CutoffEstimator {
     if (line === null) return { time_to_cutoff_s: null, slope_V_per_s: null };
     const first = this.t[0]!;
     const newest = this.t[this.t.length - 1]!;
-    if (cutoffV === null || newest - first < this.minSpanS || line.slope >= 0) return { time_to_cutoff_s: null, slope_V_per_s: line.slope };
+    if (cutoffV === null || newest - first < this.minSpanS || line.slope >= 0)
+      return { time_to_cutoff_s: null, slope_V_per_s: line.slope };
     const above = line.intercept + line.slope * newest - cutoffV;
     return { time_to_cutoff_s: above <= 0 ? 0 : above / -line.slope, slope_V_per_s: line.slope };
   }

@@ -11,7 +11,8 @@ export class DownsampledHistory {
   private seen = 0;
 
   constructor(private readonly capacity: number) {
-    if (!Number.isInteger(capacity) || capacity < 4) throw new RangeError(`history capacity must be an integer of at least 4, got ${capacity}`);
+    if (!Number.isInteger(capacity) || capacity < 4)
+      throw new RangeError(`history capacity must be an integer of at least 4, got ${capacity}`);
   }
 
   get stride(): number {

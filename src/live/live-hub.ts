@@ -132,7 +132,10 @@ export class LiveHub {
     if (c.type === 'set-cutoff') {
       const floor = this.run.floor_V;
       if (!Number.isFinite(c.cutoff_V) || c.cutoff_V < floor)
-        return { ok: false, error: `cutoff ${c.cutoff_V} V is below the safety floor of ${floor.toFixed(3)} V for ${this.run.cells} ${this.run.chemistry} cell(s)` };
+        return {
+          ok: false,
+          error: `cutoff ${c.cutoff_V} V is below the safety floor of ${floor.toFixed(3)} V for ${this.run.cells} ${this.run.chemistry} cell(s)`,
+        };
     }
     const reply = this.handler(c);
     if (reply.ok && c.type === 'mark') {

@@ -7,7 +7,12 @@ import { HostClock, type Clock, type TimerHandle } from '../core/clock.js';
 import { ErrorCodes, makeError } from '../core/errors.js';
 import { hostAllowed, isLoopbackHost, originAllowed, parseListen, requestToken } from './access.js';
 import type { LiveHub } from './live-hub.js';
-import { LIVE_VERSION, type BroadcastMessage, type LiveErrorCode, type ServerMessage } from './live-types.js';
+import {
+  LIVE_VERSION,
+  type BroadcastMessage,
+  type LiveErrorCode,
+  type ServerMessage,
+} from './live-types.js';
 import { checkClientMessage } from './message-schemas.js';
 import { loadStaticFiles } from './static-files.js';
 import { tokenMatches, type LiveTokens } from './tokens.js';
@@ -100,7 +105,8 @@ const SECURITY_HEADERS = {
   'X-Content-Type-Options': 'nosniff',
   'Referrer-Policy': 'no-referrer',
   'X-Frame-Options': 'DENY',
-  'Content-Security-Policy': "default-src 'none'; script-src 'self'; style-src 'self'; img-src 'self' data:; connect-src 'self'; frame-ancestors 'none'; base-uri 'none'; form-action 'none'",
+  'Content-Security-Policy':
+    "default-src 'none'; script-src 'self'; style-src 'self'; img-src 'self' data:; connect-src 'self'; frame-ancestors 'none'; base-uri 'none'; form-action 'none'",
 } as const;
 
 const WILDCARDS = new Set(['0.0.0.0', '::', '[::]', '']);
@@ -113,14 +119,22 @@ function urlHost(host: string): string {
  * At most 30 feed events a minute reach the event log; the rest are counted and reported in one
  * line, so someone hammering the port cannot grow the log without bound.
  */
-function throttled(log: (name: string, detail: Record<string, unknown>) => void, clock: Clock, perMinute = 30) {
+function throttled(
+  log: (name: string, detail: Record<string, unknown>) => void,
+  clock: Clock,
+  perMinute = 30,
+) {
   let windowStart = clock.now();
   let count = 0;
   let suppressed = 0;
   return (name: string, detail: Record<string, unknown>): void => {
     const now = clock.now();
     if (now - windowStart >= 60_000) {
-      if (suppressed > 0) log('live_events_suppressed', { count: suppressed, seconds: Math.round((now - windowStart) / 1000) });
+      if (suppressed > 0)
+        log('live_events_suppressed', {
+          count: suppressed,
+          seconds: Math.round((now - windowStart) / 1000),
+        });
       windowStart = now;
       count = 0;
       suppressed = 0;
@@ -170,10 +184,25 @@ export async function startLiveServer(o: LiveServerOptions): Promise<LiveServer>
     sockets.add(s);
     s.once('close', () => sockets.delete(s));
   });
-  const wss = new WebSocketServer({ noServer: true, maxPayload: o.maxPayloadBytes ?? 4096, perMessageDeflate: false });
+  const wss = new WebSocketServer({
+    noServer: true,
+    maxPayload: o.maxPayloadBytes ?? 4096,
+    perMessageDeflate: false,
+  });
 
-  function reply(res: ServerResponse, status: number, body: string | Buffer, contentType = 'text/plain; charset=utf-8', head = false): void {
-    res.writeHead(status, { ...SECURITY_HEADERS, 'Content-Type': contentType, 'Content-Length': Buffer.byteLength(body), 'Cache-Control': 'no-store' });
+  function reply(
+    res: ServerResponse,
+    status: number,
+    body: string | Buffer,
+    contentType = 'text/plain; charset=utf-8',
+    head = false,
+  ): void {
+    res.writeHead(status, {
+      ...SECURITY_HEADERS,
+      'Content-Type': contentType,
+      'Content-Length': Buffer.byteLength(body),
+      'Cache-Control': 'no-store',
+    });
     res.end(head ? undefined : body);
   }
 
@@ -185,38 +214,84 @@ export async function startLiveServer(o: LiveServerOptions): Promise<LiveServer>
       return reply(res, 405, 'Only GET and HEAD are served here.\n');
     }
     if (!hostAllowed(req.headers.host, loopback)) {
-      log('live_refused', { remote: req.socket.remoteAddress, path: url.pathname, why: 'host header names another machine' });
+      log('live_refused', {
+        remote: req.socket.remoteAddress,
+        path: url.pathname,
+        why: 'host header names another machine',
+      });
       return reply(res, 403, 'This server answers only to localhost, 127.0.0.1 or [::1].\n');
     }
     const file = files.get(url.pathname);
     const isAsset = url.pathname.startsWith('/assets/');
-    if (!isAsset && (file || url.pathname === '/api/state') && !canView(requestToken(url, req.headers.authorization))) {
-      log('live_refused', { remote: req.socket.remoteAddress, path: url.pathname, why: 'viewer token missing or wrong' });
+    if (
+      !isAsset &&
+      (file || url.pathname === '/api/state') &&
+      !canView(requestToken(url, req.headers.authorization))
+    ) {
+      log('live_refused', {
+        remote: req.socket.remoteAddress,
+        path: url.pathname,
+        why: 'viewer token missing or wrong',
+      });
       res.setHeader('WWW-Authenticate', 'Bearer realm="cellvigil live feed"');
-      return reply(res, 401, 'A viewer token is needed: open the address with ?token=<viewer token> (see docs/live-feed.md).\n');
+      return reply(
+        res,
+        401,
+        'A viewer token is needed: open the address with ?token=<viewer token> (see docs/live-feed.md).\n',
+      );
     }
     if (url.pathname === '/api/state') {
-      return reply(res, 200, JSON.stringify(o.hub.hello()), 'application/json; charset=utf-8', head);
+      return reply(
+        res,
+        200,
+        JSON.stringify(o.hub.hello()),
+        'application/json; charset=utf-8',
+        head,
+      );
     }
     if (file) return reply(res, 200, file.body, file.contentType, head);
     return reply(res, 404, 'Not found. The live page is at /.\n');
   }
 
-  function refuseUpgrade(socket: Duplex, status: number, text: string, why: string, remote: string | undefined): void {
+  function refuseUpgrade(
+    socket: Duplex,
+    status: number,
+    text: string,
+    why: string,
+    remote: string | undefined,
+  ): void {
     log('live_refused', { remote, path: '/live', why });
-    socket.end(`HTTP/1.1 ${status} ${text}\r\nConnection: close\r\nContent-Type: text/plain\r\nContent-Length: ${Buffer.byteLength(why) + 1}\r\n\r\n${why}\n`);
+    socket.end(
+      `HTTP/1.1 ${status} ${text}\r\nConnection: close\r\nContent-Type: text/plain\r\nContent-Length: ${Buffer.byteLength(why) + 1}\r\n\r\n${why}\n`,
+    );
   }
 
   server.on('upgrade', (req: IncomingMessage, socket: Duplex, headBytes: Buffer) => {
     socket.on('error', () => socket.destroy());
     const remote = req.socket.remoteAddress;
     const url = new URL(req.url ?? '/', 'http://live.invalid');
-    if (url.pathname !== '/live') return refuseUpgrade(socket, 404, 'Not Found', 'the WebSocket is at /live', remote);
-    if (!hostAllowed(req.headers.host, loopback)) return refuseUpgrade(socket, 403, 'Forbidden', 'host header names another machine', remote);
+    if (url.pathname !== '/live')
+      return refuseUpgrade(socket, 404, 'Not Found', 'the WebSocket is at /live', remote);
+    if (!hostAllowed(req.headers.host, loopback))
+      return refuseUpgrade(socket, 403, 'Forbidden', 'host header names another machine', remote);
     if (!originAllowed(req.headers.origin, req.headers.host, o.origins ?? []))
-      return refuseUpgrade(socket, 403, 'Forbidden', `origin ${req.headers.origin ?? ''} is not this server's page`, remote);
-    if (!canView(requestToken(url, req.headers.authorization))) return refuseUpgrade(socket, 401, 'Unauthorized', 'viewer token missing or wrong', remote);
-    if (viewers.size >= maxViewers) return refuseUpgrade(socket, 503, 'Service Unavailable', `already ${maxViewers} viewers`, remote);
+      return refuseUpgrade(
+        socket,
+        403,
+        'Forbidden',
+        `origin ${req.headers.origin ?? ''} is not this server's page`,
+        remote,
+      );
+    if (!canView(requestToken(url, req.headers.authorization)))
+      return refuseUpgrade(socket, 401, 'Unauthorized', 'viewer token missing or wrong', remote);
+    if (viewers.size >= maxViewers)
+      return refuseUpgrade(
+        socket,
+        503,
+        'Service Unavailable',
+        `already ${maxViewers} viewers`,
+        remote,
+      );
     wss.handleUpgrade(req, socket, headBytes, (ws) => attach(ws, socket, remote ?? 'unknown'));
   });
 
@@ -229,7 +304,13 @@ export async function startLiveServer(o: LiveServerOptions): Promise<LiveServer>
     ws.on('error', (e) => (leaveWhy = e.message));
     ws.on('close', (code) => {
       viewers.delete(v);
-      log('live_viewer_left', { remote, code, why: leaveWhy, coalesced: v.queue.coalesced, viewers: viewers.size });
+      log('live_viewer_left', {
+        remote,
+        code,
+        why: leaveWhy,
+        coalesced: v.queue.coalesced,
+        viewers: viewers.size,
+      });
     });
     ws.on('message', (data, isBinary) => onMessage(v, data, isBinary));
     send(v, o.hub.hello());
@@ -253,13 +334,28 @@ export async function startLiveServer(o: LiveServerOptions): Promise<LiveServer>
     if (!checked.ok) return fail(v, id, 'malformed', checked.error);
     const m = checked.value;
     if (!tokenMatches(m.token, tokens.control)) {
-      log('live_control', { remote: v.remote, request: m.type, ok: false, why: 'control token missing or wrong' });
+      log('live_control', {
+        remote: v.remote,
+        request: m.type,
+        ok: false,
+        why: 'control token missing or wrong',
+      });
       return fail(v, id, 'unauthorized', 'the control token is missing or wrong');
     }
-    const request = m.type === 'stop' ? { type: m.type } : m.type === 'set-cutoff' ? { type: m.type, cutoff_V: m.cutoff_V } : { type: m.type, note: m.note };
+    const request =
+      m.type === 'stop'
+        ? { type: m.type }
+        : m.type === 'set-cutoff'
+          ? { type: m.type, cutoff_V: m.cutoff_V }
+          : { type: m.type, note: m.note };
     const r = o.hub.control(request);
     // A request that passed the token check is always logged: it is the user's own.
-    rawLog('live_control', { remote: v.remote, ...request, ok: r.ok, ...(r.ok ? {} : { why: r.error }) });
+    rawLog('live_control', {
+      remote: v.remote,
+      ...request,
+      ok: r.ok,
+      ...(r.ok ? {} : { why: r.error }),
+    });
     if (r.ok) send(v, { type: 'ack', v: LIVE_VERSION, id, request: m.type });
     else fail(v, id, 'refused', r.error);
   }
@@ -346,9 +442,18 @@ export async function startLiveServer(o: LiveServerOptions): Promise<LiveServer>
     server.once('error', (e: NodeJS.ErrnoException) => {
       timers.forEach((t) => clock.clearTimer(t));
       unsubscribe();
-      reject(makeError(ErrorCodes.LIVE_LISTEN, `cannot open the live feed on ${host}:${wantPort}: ${e.code ?? e.message}`, '--listen', 'Pick another port (or 0 for any free one), or stop the program that holds it.'));
+      reject(
+        makeError(
+          ErrorCodes.LIVE_LISTEN,
+          `cannot open the live feed on ${host}:${wantPort}: ${e.code ?? e.message}`,
+          '--listen',
+          'Pick another port (or 0 for any free one), or stop the program that holds it.',
+        ),
+      );
     });
-    server.listen(wantPort, host === 'localhost' ? '127.0.0.1' : host.replace(/^\[|\]$/g, ''), () => resolve());
+    server.listen(wantPort, host === 'localhost' ? '127.0.0.1' : host.replace(/^\[|\]$/g, ''), () =>
+      resolve(),
+    );
   });
   server.on('error', (e) => log('live_error', { why: e.message }));
 
@@ -364,7 +469,13 @@ export async function startLiveServer(o: LiveServerOptions): Promise<LiveServer>
     lanUrls: lanHosts.map((h) => `http://${h}:${port}/`),
     port,
     viewers: () =>
-      [...viewers].map((v) => ({ remote: v.remote, queued: v.queue.length, queuedBytes: v.queue.bytes, bufferedAmount: v.ws.bufferedAmount, coalesced: v.queue.coalesced })),
+      [...viewers].map((v) => ({
+        remote: v.remote,
+        queued: v.queue.length,
+        queuedBytes: v.queue.bytes,
+        bufferedAmount: v.ws.bufferedAmount,
+        coalesced: v.queue.coalesced,
+      })),
     close: () =>
       (closing ??= new Promise<void>((resolve) => {
         timers.forEach((t) => clock.clearTimer(t));

@@ -52,12 +52,20 @@ export interface LiveMark {
   note: string;
 }
 
-export type ControlRequest = { type: 'stop' } | { type: 'set-cutoff'; cutoff_V: number } | { type: 'mark'; note: string };
+export type ControlRequest =
+  { type: 'stop' } | { type: 'set-cutoff'; cutoff_V: number } | { type: 'mark'; note: string };
 export type ControlReply = { ok: true } | { ok: false; error: string };
 export type ControlHandler = (c: ControlRequest) => ControlReply;
 
 /** Columns of a history point, in order. */
-export const HISTORY_FIELDS = ['host_s', 'voltage_V', 'current_A', 'temperature_C', 'charge_Ah', 'energy_Wh'] as const;
+export const HISTORY_FIELDS = [
+  'host_s',
+  'voltage_V',
+  'current_A',
+  'temperature_C',
+  'charge_Ah',
+  'energy_Wh',
+] as const;
 export type HistoryPoint = [number, number, number, number | null, number, number];
 
 export interface FeedStatus {
@@ -134,13 +142,18 @@ export interface ErrorMessage {
 export type LiveErrorCode = 'malformed' | 'unauthorized' | 'refused';
 
 /** What the hub broadcasts to every viewer. */
-export type BroadcastMessage = HelloMessage | SampleMessage | StateMessage | AlarmMessage | MarkMessage | ResultMessage | CutoffMessage;
+export type BroadcastMessage =
+  | HelloMessage
+  | SampleMessage
+  | StateMessage
+  | AlarmMessage
+  | MarkMessage
+  | ResultMessage
+  | CutoffMessage;
 /** Everything a viewer can receive. */
 export type ServerMessage = BroadcastMessage | AckMessage | ErrorMessage;
 
 /** A control message as it arrives from a viewer, after validation. */
 export type ClientMessage = (
-  | { type: 'stop' }
-  | { type: 'set-cutoff'; cutoff_V: number }
-  | { type: 'mark'; note: string }
+  { type: 'stop' } | { type: 'set-cutoff'; cutoff_V: number } | { type: 'mark'; note: string }
 ) & { v: typeof LIVE_VERSION; token: string; id?: string };

@@ -12,7 +12,11 @@ const str = { type: 'string' } as const;
 const version = { const: LIVE_VERSION } as const;
 const id = { type: 'string', maxLength: 64 } as const;
 
-function message(type: string, properties: Record<string, unknown>, required: string[]): Record<string, unknown> {
+function message(
+  type: string,
+  properties: Record<string, unknown>,
+  required: string[],
+): Record<string, unknown> {
   return {
     type: 'object',
     additionalProperties: false,
@@ -36,7 +40,18 @@ const sampleRequired = Object.keys(sampleFields);
 const runInfo = {
   type: 'object',
   additionalProperties: false,
-  required: ['label', 'run_folder', 'chemistry', 'cells', 'cutoff_V', 'floor_V', 'calibration_id', 'started_wall', 'source', 'max_temperature_C'],
+  required: [
+    'label',
+    'run_folder',
+    'chemistry',
+    'cells',
+    'cutoff_V',
+    'floor_V',
+    'calibration_id',
+    'started_wall',
+    'source',
+    'max_temperature_C',
+  ],
   properties: {
     label: str,
     run_folder: str,
@@ -66,7 +81,17 @@ export const SERVER_MESSAGE_SCHEMAS = {
         additionalProperties: false,
         required: ['sample', 'state', 'cutoff_V', 'time_to_cutoff_s', 'slope_V_per_s', 'ended'],
         properties: {
-          sample: { oneOf: [{ type: 'null' }, { type: 'object', additionalProperties: false, required: sampleRequired, properties: sampleFields }] },
+          sample: {
+            oneOf: [
+              { type: 'null' },
+              {
+                type: 'object',
+                additionalProperties: false,
+                required: sampleRequired,
+                properties: sampleFields,
+              },
+            ],
+          },
           state: str,
           cutoff_V: numOrNull,
           time_to_cutoff_s: numOrNull,
@@ -79,21 +104,46 @@ export const SERVER_MESSAGE_SCHEMAS = {
         additionalProperties: false,
         required: ['fields', 'stride', 'points'],
         properties: {
-          fields: { const: ['host_s', 'voltage_V', 'current_A', 'temperature_C', 'charge_Ah', 'energy_Wh'] },
+          fields: {
+            const: ['host_s', 'voltage_V', 'current_A', 'temperature_C', 'charge_Ah', 'energy_Wh'],
+          },
           stride: { type: 'integer', minimum: 1 },
           points: {
             type: 'array',
-            items: { type: 'array', minItems: 6, maxItems: 6, items: [num, num, num, numOrNull, num, num] },
+            items: {
+              type: 'array',
+              minItems: 6,
+              maxItems: 6,
+              items: [num, num, num, numOrNull, num, num],
+            },
           },
         },
       },
-      alarms: { type: 'array', items: { type: 'object', additionalProperties: false, required: Object.keys(alarmFields), properties: alarmFields } },
+      alarms: {
+        type: 'array',
+        items: {
+          type: 'object',
+          additionalProperties: false,
+          required: Object.keys(alarmFields),
+          properties: alarmFields,
+        },
+      },
       events: {
         type: 'array',
         items: {
           oneOf: [
-            { type: 'object', additionalProperties: false, required: ['kind', ...Object.keys(stateFields)], properties: { kind: { const: 'state' }, ...stateFields } },
-            { type: 'object', additionalProperties: false, required: ['kind', ...Object.keys(markFields)], properties: { kind: { const: 'mark' }, ...markFields } },
+            {
+              type: 'object',
+              additionalProperties: false,
+              required: ['kind', ...Object.keys(stateFields)],
+              properties: { kind: { const: 'state' }, ...stateFields },
+            },
+            {
+              type: 'object',
+              additionalProperties: false,
+              required: ['kind', ...Object.keys(markFields)],
+              properties: { kind: { const: 'mark' }, ...markFields },
+            },
           ],
         },
       },
@@ -101,14 +151,29 @@ export const SERVER_MESSAGE_SCHEMAS = {
     },
     ['run', 'status', 'history', 'alarms', 'events', 'result'],
   ),
-  sample: message('sample', { ...sampleFields, time_to_cutoff_s: numOrNull }, [...sampleRequired, 'time_to_cutoff_s']),
+  sample: message('sample', { ...sampleFields, time_to_cutoff_s: numOrNull }, [
+    ...sampleRequired,
+    'time_to_cutoff_s',
+  ]),
   state: message('state', stateFields, Object.keys(stateFields)),
   alarm: message('alarm', alarmFields, Object.keys(alarmFields)),
   mark: message('mark', markFields, Object.keys(markFields)),
   result: message('result', { result: resultObject }, ['result']),
   cutoff: message('cutoff', { cutoff_V: num }, ['cutoff_V']),
-  ack: message('ack', { id: { oneOf: [{ type: 'null' }, id] }, request: { enum: ['stop', 'set-cutoff', 'mark'] } }, ['id', 'request']),
-  error: message('error', { id: { oneOf: [{ type: 'null' }, id] }, code: { enum: ['malformed', 'unauthorized', 'refused'] }, error: str }, ['id', 'code', 'error']),
+  ack: message(
+    'ack',
+    { id: { oneOf: [{ type: 'null' }, id] }, request: { enum: ['stop', 'set-cutoff', 'mark'] } },
+    ['id', 'request'],
+  ),
+  error: message(
+    'error',
+    {
+      id: { oneOf: [{ type: 'null' }, id] },
+      code: { enum: ['malformed', 'unauthorized', 'refused'] },
+      error: str,
+    },
+    ['id', 'code', 'error'],
+  ),
 } as const;
 
 /** Control tokens are 64 hex digits; the bound only keeps junk short. */
@@ -118,13 +183,20 @@ const token = { type: 'string', minLength: 1, maxLength: 256 } as const;
 export const CLIENT_MESSAGE_SCHEMAS = {
   stop: message('stop', { token, id }, ['token']),
   'set-cutoff': message('set-cutoff', { token, id, cutoff_V: num }, ['token', 'cutoff_V']),
-  mark: message('mark', { token, id, note: { type: 'string', minLength: 1, maxLength: 500 } }, ['token', 'note']),
+  mark: message('mark', { token, id, note: { type: 'string', minLength: 1, maxLength: 500 } }, [
+    'token',
+    'note',
+  ]),
 } as const;
 
 const ajv = new Ajv({ allErrors: false, strict: true, strictTuples: false, allowUnionTypes: true });
 
-function compileAll<K extends string>(schemas: Record<K, Record<string, unknown>>): Record<K, ValidateFunction> {
-  return Object.fromEntries(Object.entries(schemas).map(([k, s]) => [k, ajv.compile(s as Record<string, unknown>)])) as Record<K, ValidateFunction>;
+function compileAll<K extends string>(
+  schemas: Record<K, Record<string, unknown>>,
+): Record<K, ValidateFunction> {
+  return Object.fromEntries(
+    Object.entries(schemas).map(([k, s]) => [k, ajv.compile(s as Record<string, unknown>)]),
+  ) as Record<K, ValidateFunction>;
 }
 
 const clientValidators = compileAll(CLIENT_MESSAGE_SCHEMAS);
@@ -137,12 +209,20 @@ function describe(errors: ErrorObject[] | null | undefined): string {
 
 export type Checked<T> = { ok: true; value: T } | { ok: false; error: string };
 
-function check<T>(validators: Record<string, ValidateFunction>, x: unknown, unknown: string): Checked<T> {
-  if (typeof x !== 'object' || x === null || Array.isArray(x)) return { ok: false, error: 'a message must be a JSON object' };
+function check<T>(
+  validators: Record<string, ValidateFunction>,
+  x: unknown,
+  unknown: string,
+): Checked<T> {
+  if (typeof x !== 'object' || x === null || Array.isArray(x))
+    return { ok: false, error: 'a message must be a JSON object' };
   const type = (x as { type?: unknown }).type;
-  const v = typeof type === 'string' && Object.hasOwn(validators, type) ? validators[type] : undefined;
+  const v =
+    typeof type === 'string' && Object.hasOwn(validators, type) ? validators[type] : undefined;
   if (!v) return { ok: false, error: `unknown message type ${JSON.stringify(type)}; ${unknown}` };
-  return v(x) ? { ok: true, value: x as T } : { ok: false, error: `${type}: ${describe(v.errors)}` };
+  return v(x)
+    ? { ok: true, value: x as T }
+    : { ok: false, error: `${type}: ${describe(v.errors)}` };
 }
 
 /** Validates a control message from a viewer (already JSON-parsed). */
@@ -152,5 +232,9 @@ export function checkClientMessage(x: unknown): Checked<ClientMessage> {
 
 /** Validates a message from the daemon, by its type. */
 export function checkServerMessage(x: unknown): Checked<ServerMessage> {
-  return check<ServerMessage>(serverValidators, x, `the daemon sends ${Object.keys(serverValidators).join(', ')}`);
+  return check<ServerMessage>(
+    serverValidators,
+    x,
+    `the daemon sends ${Object.keys(serverValidators).join(', ')}`,
+  );
 }

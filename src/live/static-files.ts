@@ -33,5 +33,7 @@ export function loadStaticFiles(): Map<string, StaticFile> {
     ['/assets/uplot.js', join(uplot, 'uPlot.iife.min.js'), JS],
     ['/assets/uplot.css', join(uplot, 'uPlot.min.css'), CSS],
   ];
-  return new Map(files.map(([url, path, contentType]) => [url, { body: readFileSync(path), contentType }]));
+  return new Map(
+    files.map(([url, path, contentType]) => [url, { body: readFileSync(path), contentType }]),
+  );
 }

@@ -1,5 +1,15 @@
 import { randomBytes, timingSafeEqual, createHash } from 'node:crypto';
-import { chmodSync, closeSync, fsyncSync, mkdirSync, openSync, readFileSync, renameSync, statSync, writeSync } from 'node:fs';
+import {
+  chmodSync,
+  closeSync,
+  fsyncSync,
+  mkdirSync,
+  openSync,
+  readFileSync,
+  renameSync,
+  statSync,
+  writeSync,
+} from 'node:fs';
 import { homedir } from 'node:os';
 import { join } from 'node:path';
 import { Ajv } from 'ajv';
@@ -31,7 +41,12 @@ const TOKEN_FILE_SCHEMA = {
   },
 } as const;
 
-const validateTokenFile = new Ajv({ strict: true }).compile<{ v: 1; control: string; viewer: string; created: string }>(TOKEN_FILE_SCHEMA);
+const validateTokenFile = new Ajv({ strict: true }).compile<{
+  v: 1;
+  control: string;
+  viewer: string;
+  created: string;
+}>(TOKEN_FILE_SCHEMA);
 
 /** `$CELLVIGIL_HOME`, else `$XDG_CONFIG_HOME/cellvigil`, else `~/.config/cellvigil`. */
 export function configDir(env: NodeJS.ProcessEnv = process.env): string {
@@ -45,7 +60,12 @@ function newToken(): string {
 }
 
 function unreadable(path: string, e: unknown): Error {
-  return makeError(ErrorCodes.TOKEN_FILE, `cannot read the live-feed token file: ${(e as Error).message}`, path, 'Check the file and folder permissions.');
+  return makeError(
+    ErrorCodes.TOKEN_FILE,
+    `cannot read the live-feed token file: ${(e as Error).message}`,
+    path,
+    'Check the file and folder permissions.',
+  );
 }
 
 /** The file's text, or null when there is none; refuses a file other users can read or change. */
@@ -86,7 +106,12 @@ export function loadTokens(dir: string = configDir()): TokenFile {
       parsed = null;
     }
     if (!validateTokenFile(parsed))
-      throw makeError(ErrorCodes.TOKEN_FILE, 'the live-feed token file is not valid', path, 'Delete it to have new tokens made.');
+      throw makeError(
+        ErrorCodes.TOKEN_FILE,
+        'the live-feed token file is not valid',
+        path,
+        'Delete it to have new tokens made.',
+      );
     return { path, tokens: { control: parsed.control, viewer: parsed.viewer }, generated: false };
   }
   const tokens = { control: newToken(), viewer: newToken() };
@@ -96,14 +121,22 @@ export function loadTokens(dir: string = configDir()): TokenFile {
     const tmp = `${path}.${process.pid}.tmp`;
     const fd = openSync(tmp, 'wx', 0o600);
     try {
-      writeSync(fd, `${JSON.stringify({ v: 1, ...tokens, created: new Date().toISOString() }, null, 2)}\n`);
+      writeSync(
+        fd,
+        `${JSON.stringify({ v: 1, ...tokens, created: new Date().toISOString() }, null, 2)}\n`,
+      );
       fsyncSync(fd);
     } finally {
       closeSync(fd);
     }
     renameSync(tmp, path);
   } catch (e) {
-    throw makeError(ErrorCodes.TOKEN_FILE, `cannot write the live-feed token file: ${(e as Error).message}`, path, `Make sure ${dir} is writable by you, or set CELLVIGIL_HOME to a folder that is.`);
+    throw makeError(
+      ErrorCodes.TOKEN_FILE,
+      `cannot write the live-feed token file: ${(e as Error).message}`,
+      path,
+      `Make sure ${dir} is writable by you, or set CELLVIGIL_HOME to a folder that is.`,
+    );
   }
   return { path, tokens, generated: true };
 }

@@ -66,11 +66,14 @@ export class ViewerQueue<T extends { readonly length: number } = string> {
 
   /** The next message to send now, a reason to cut the viewer off, or null to wait. */
   next(bufferedBytes: number, nowMs: number): QueueStep<T> {
-    if (bufferedBytes > this.maxBuffered) return { disconnect: `more than ${this.maxBuffered} bytes waiting on the socket` };
-    if (this.queuedBytes > this.maxQueuedBytes) return { disconnect: `more than ${this.maxQueuedBytes} bytes of messages waiting` };
+    if (bufferedBytes > this.maxBuffered)
+      return { disconnect: `more than ${this.maxBuffered} bytes waiting on the socket` };
+    if (this.queuedBytes > this.maxQueuedBytes)
+      return { disconnect: `more than ${this.maxQueuedBytes} bytes of messages waiting` };
     if (bufferedBytes > this.lowWater) {
       this.behindSince ??= nowMs;
-      if (nowMs - this.behindSince > this.stallMs) return { disconnect: `not reading for more than ${Math.round(this.stallMs / 1000)} s` };
+      if (nowMs - this.behindSince > this.stallMs)
+        return { disconnect: `not reading for more than ${Math.round(this.stallMs / 1000)} s` };
       return null;
     }
     this.behindSince = null;

@@ -69,7 +69,9 @@ export function watchLive(o: WatchClientOptions): WatchClient {
             ErrorCodes.WATCH_REFUSED,
             `the daemon refused this viewer (HTTP ${status}${status === 401 ? ': viewer token missing or wrong' : status === 404 ? ': no live feed at this address' : ''})`,
             o.url.replace(/token=[^&]*/, 'token=…'),
-            status === 401 ? 'Pass the viewer token with --token (see docs/live-feed.md).' : 'Check the address the daemon printed.',
+            status === 401
+              ? 'Pass the viewer token with --token (see docs/live-feed.md).'
+              : 'Check the address the daemon printed.',
           ),
         );
       } else why = `HTTP ${status}`;

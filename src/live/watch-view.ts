@@ -18,7 +18,16 @@ export interface WatchView {
 const ALARMS_SHOWN = 3;
 
 export function emptyView(): WatchView {
-  return { run: null, sample: null, state: '', cutoffV: null, timeToCutoffS: null, alarms: [], result: null, link: 'connecting' };
+  return {
+    run: null,
+    sample: null,
+    state: '',
+    cutoffV: null,
+    timeToCutoffS: null,
+    alarms: [],
+    result: null,
+    link: 'connecting',
+  };
 }
 
 /** Folds one message into the view; returns whether it is worth a line of its own (not a sample). */
@@ -44,7 +53,9 @@ export function applyMessage(view: WatchView, m: ServerMessage): boolean {
       view.state = m.to;
       return true;
     case 'alarm':
-      view.alarms = [...view.alarms, { host_s: m.host_s, kind: m.kind, detail: m.detail }].slice(-ALARMS_SHOWN);
+      view.alarms = [...view.alarms, { host_s: m.host_s, kind: m.kind, detail: m.detail }].slice(
+        -ALARMS_SHOWN,
+      );
       return true;
     case 'cutoff':
       view.cutoffV = m.cutoff_V;
@@ -59,13 +70,23 @@ export function applyMessage(view: WatchView, m: ServerMessage): boolean {
   }
 }
 
-const END_REASONS = new Set<string>(['cutoff', 'stopped', 'over_temperature', 'link_lost', 'fault', 'refused']);
+const END_REASONS = new Set<string>([
+  'cutoff',
+  'stopped',
+  'over_temperature',
+  'link_lost',
+  'fault',
+  'refused',
+]);
 
 /** The run's exit code from result.json's end_reason (and end_detail), the daemon's own mapping. */
 export function exitCodeForResult(result: Record<string, unknown>): number {
   const reason = result.end_reason;
   if (typeof reason !== 'string' || !END_REASONS.has(reason)) return 1;
-  return exitCodeFor(reason as SessionEnd, typeof result.end_detail === 'string' ? result.end_detail : '');
+  return exitCodeFor(
+    reason as SessionEnd,
+    typeof result.end_detail === 'string' ? result.end_detail : '',
+  );
 }
 
 function fixed(x: number | null | undefined, digits: number): string {
@@ -104,7 +125,9 @@ function resultText(r: Record<string, unknown>): string {
 
 /** The few lines the terminal redraws in place. */
 export function statusBlock(v: WatchView): string[] {
-  const head = v.run ? `${v.run.label} · ${v.run.cells} × ${v.run.chemistry} · ${v.run.source}` : 'no run yet';
+  const head = v.run
+    ? `${v.run.label} · ${v.run.cells} × ${v.run.chemistry} · ${v.run.source}`
+    : 'no run yet';
   const lines = [
     `${head}  [${v.link}]`,
     readings(v),
@@ -117,7 +140,12 @@ export function statusBlock(v: WatchView): string[] {
 
 /** One line per update, for logs and pipes. */
 export function statusLine(v: WatchView): string {
-  const parts = [clockText(v.sample?.host_s), v.state || '–', readings(v), `ttc ${v.result ? '–' : clockText(v.timeToCutoffS)}`];
+  const parts = [
+    clockText(v.sample?.host_s),
+    v.state || '–',
+    readings(v),
+    `ttc ${v.result ? '–' : clockText(v.timeToCutoffS)}`,
+  ];
   const last = v.alarms[v.alarms.length - 1];
   if (last) parts.push(`last alarm ${last.kind}`);
   if (v.result) parts.push(resultText(v.result));
@@ -134,11 +162,27 @@ export function liveSocketUrl(input: string, token?: string): string {
   try {
     u = new URL(text);
   } catch {
-    throw makeError(ErrorCodes.USAGE, `cannot read '${input}' as an address`, 'watch <url>', 'Give the address the daemon printed, for example http://192.168.1.20:8507/.');
+    throw makeError(
+      ErrorCodes.USAGE,
+      `cannot read '${input}' as an address`,
+      'watch <url>',
+      'Give the address the daemon printed, for example http://192.168.1.20:8507/.',
+    );
   }
-  const schemes: Record<string, string> = { 'http:': 'ws:', 'https:': 'wss:', 'ws:': 'ws:', 'wss:': 'wss:' };
+  const schemes: Record<string, string> = {
+    'http:': 'ws:',
+    'https:': 'wss:',
+    'ws:': 'ws:',
+    'wss:': 'wss:',
+  };
   const scheme = schemes[u.protocol];
-  if (!scheme) throw makeError(ErrorCodes.USAGE, `'${u.protocol}' is not an address the live feed serves`, 'watch <url>', 'Use http://, https://, ws:// or wss://.');
+  if (!scheme)
+    throw makeError(
+      ErrorCodes.USAGE,
+      `'${u.protocol}' is not an address the live feed serves`,
+      'watch <url>',
+      'Use http://, https://, ws:// or wss://.',
+    );
   const out = new URL(`${scheme}//${u.host}/live`);
   const t = token ?? u.searchParams.get('token');
   if (t) out.searchParams.set('token', t);

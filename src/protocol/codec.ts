@@ -45,8 +45,10 @@ function checkFrame(line: string): { payload: string } | DecodeResult {
   if (bar < 0 || text.length - bar !== 5) return reject('no_checksum', 'missing |XXXX');
   const payload = text.slice(0, bar);
   const given = hex4(text, bar + 1);
-  if (given < 0) return reject('no_checksum', `checksum "${text.slice(bar + 1)}" is not 4 hex digits`);
-  if (given !== crc16(payload)) return reject('bad_checksum', `got ${text.slice(bar + 1)}, computed ${crcHex(payload)}`);
+  if (given < 0)
+    return reject('no_checksum', `checksum "${text.slice(bar + 1)}" is not 4 hex digits`);
+  if (given !== crc16(payload))
+    return reject('bad_checksum', `got ${text.slice(bar + 1)}, computed ${crcHex(payload)}`);
   return { payload };
 }
 
@@ -66,7 +68,13 @@ function fastDataLine(line: string, adcMax: number): DataFrame | null {
   if (end > MAX_LINE_LENGTH) return null;
   // The payload ends at the last '|', which must be followed by exactly four hex digits.
   const bar = end - 5;
-  if (bar < 2 || line.charCodeAt(bar) !== 124 || line.charCodeAt(0) !== 68 || line.charCodeAt(1) !== 44) return null;
+  if (
+    bar < 2 ||
+    line.charCodeAt(bar) !== 124 ||
+    line.charCodeAt(0) !== 68 ||
+    line.charCodeAt(1) !== 44
+  )
+    return null;
   const crc = crc16Printable(line, bar);
   if (crc < 0 || hex4(line, bar + 1) !== crc) return null;
   // Channel, seq, tick, then the three counts: each "0" or up to ten digits without a leading
@@ -83,7 +91,14 @@ function fastDataLine(line: string, adcMax: number): DataFrame | null {
       v = v * 10 + (c - 48);
     }
     const length = i - at;
-    if (length === 0 || length > 10 || (length > 1 && line.charCodeAt(at) === 48) || v > max || i === bar) return null;
+    if (
+      length === 0 ||
+      length > 10 ||
+      (length > 1 && line.charCodeAt(at) === 48) ||
+      v > max ||
+      i === bar
+    )
+      return null;
     fields[k] = v;
     i++;
   }
@@ -92,11 +107,26 @@ function fastDataLine(line: string, adcMax: number): DataFrame | null {
   const hi = rest === 2 ? hexDigit(line.charCodeAt(i)) : 0;
   const lo = hexDigit(line.charCodeAt(bar - 1));
   if (hi < 0 || lo < 0) return null;
-  return { kind: 'data', channel: fields[0]!, seq: fields[1]!, tickMs: fields[2]!, vRaw: fields[3]!, iRaw: fields[4]!, tRaw: fields[5]!, flags: hi * 16 + lo };
+  return {
+    kind: 'data',
+    channel: fields[0]!,
+    seq: fields[1]!,
+    tickMs: fields[2]!,
+    vRaw: fields[3]!,
+    iRaw: fields[4]!,
+    tRaw: fields[5]!,
+    flags: hi * 16 + lo,
+  };
 }
 
 function hexDigit(c: number): number {
-  return c >= 48 && c <= 57 ? c - 48 : c >= 65 && c <= 70 ? c - 55 : c >= 97 && c <= 102 ? c - 87 : -1;
+  return c >= 48 && c <= 57
+    ? c - 48
+    : c >= 65 && c <= 70
+      ? c - 55
+      : c >= 97 && c <= 102
+        ? c - 87
+        : -1;
 }
 
 /** The top count of an ADC of 0 to 53 bits: a power worked out per line cost a sixth of decoding it. */
@@ -112,7 +142,8 @@ export function decodeRigLine(line: string, adcBits = 16): DecodeResult {
   const f = checked.payload.split(',');
   switch (f[0]) {
     case 'D': {
-      if (f.length !== 8) return reject('field_count', `data frame has ${f.length} fields, expected 8`);
+      if (f.length !== 8)
+        return reject('field_count', `data frame has ${f.length} fields, expected 8`);
       const ch = uint(f[1]!, 15);
       const seq = uint(f[2]!, 65535);
       const tick = uint(f[3]!, 0xffffffff);
@@ -120,7 +151,8 @@ export function decodeRigLine(line: string, adcBits = 16): DecodeResult {
       const i = uint(f[5]!, adcMax);
       const t = uint(f[6]!, adcMax);
       const nums = [ch, seq, tick, v, i, t];
-      if (nums.some((n) => n === null) || !HEX_FLAGS.test(f[7]!)) return reject('not_numeric', checked.payload);
+      if (nums.some((n) => n === null) || !HEX_FLAGS.test(f[7]!))
+        return reject('not_numeric', checked.payload);
       if (nums.some((n) => n === -1)) return reject('out_of_range', checked.payload);
       return {
         ok: true,
@@ -142,13 +174,17 @@ export function decodeRigLine(line: string, adcBits = 16): DecodeResult {
       const channels = uint(f[4]!, 16);
       if (bits === null || channels === null) return reject('not_numeric', checked.payload);
       if (bits < 1 || channels < 1) return reject('out_of_range', checked.payload);
-      return { ok: true, message: { kind: 'hello', rigId: f[1]!, firmware: f[2]!, adcBits: bits, channels } };
+      return {
+        ok: true,
+        message: { kind: 'hello', rigId: f[1]!, firmware: f[2]!, adcBits: bits, channels },
+      };
     }
     case 'A':
       if (f.length < 2) return reject('field_count', 'acknowledgement without a command');
       return { ok: true, message: { kind: 'ack', command: f[1]!, args: f.slice(2) } };
     case 'E':
-      if (f.length < 3) return reject('field_count', `rig error has ${f.length} fields, expected 3 or more`);
+      if (f.length < 3)
+        return reject('field_count', `rig error has ${f.length} fields, expected 3 or more`);
       return { ok: true, message: { kind: 'rig-error', code: f[1]!, text: f.slice(2).join(',') } };
     default:
       return reject('unknown_type', `line type "${(f[0] ?? '').slice(0, 8)}"`);

@@ -1,4 +1,4 @@
-/** Decoded rig-to-host messages of protocol v1 (DESIGN.md "Rig line protocol"). */
+/** Decoded rig-to-host messages of protocol v1 (docs/protocol.md). */
 export interface DataFrame {
   kind: 'data';
   channel: number;
@@ -46,10 +46,9 @@ export type RejectReason =
   | 'not_numeric'
   | 'out_of_range';
 
-export type DecodeResult = { ok: true; message: RigMessage } | { ok: false; reason: RejectReason; detail: string };
+export type DecodeResult =
+  { ok: true; message: RigMessage } | { ok: false; reason: RejectReason; detail: string };
 
 /** Host-to-rig commands. */
 export type HostCommand =
-  | { command: 'LOAD'; channel: number; on: boolean }
-  | { command: 'HELLO' }
-  | { command: 'BEAT' };
+  { command: 'LOAD'; channel: number; on: boolean } | { command: 'HELLO' } | { command: 'BEAT' };

@@ -110,9 +110,17 @@ class ByteSplitter {
    * return value is where the unfinished tail starts; once the file is not ASCII they go to
    * `textOut` as text, and the return value is -1.
    */
-  push(bytes: Buffer, fresh: number, length: number, starts: number[], ends: number[], textOut: string[]): number {
+  push(
+    bytes: Buffer,
+    fresh: number,
+    length: number,
+    starts: number[],
+    ends: number[],
+    textOut: string[],
+  ): number {
     const chunk = bytes.subarray(fresh, length);
-    if (this.text === null && !isAscii(chunk)) this.text = new TextSplitter(bytes.toString('latin1', 0, fresh), this.sawReturn);
+    if (this.text === null && !isAscii(chunk))
+      this.text = new TextSplitter(bytes.toString('latin1', 0, fresh), this.sawReturn);
     if (this.text !== null) {
       this.text.push(chunk, textOut);
       return -1;
@@ -204,7 +212,10 @@ function gzipSource(path: string, onBytes?: (n: number) => void): ByteSource {
  * ASCII text comes as AsciiLines, anything else as TextLine[]. An AsciiLines batch's bytes are
  * the reader's own buffer: they hold until the next batch is asked for, and are reused after.
  */
-export async function* readLineBatchesRaw(path: string, o: LineReadOptions = {}): AsyncGenerator<LineBatch> {
+export async function* readLineBatchesRaw(
+  path: string,
+  o: LineReadOptions = {},
+): AsyncGenerator<LineBatch> {
   const maxLine = o.maxLineBytes ?? 1024 * 1024;
   let failure: Error | null = null;
   const fail = (e: Error): void => {
@@ -257,19 +268,25 @@ export async function* readLineBatchesRaw(path: string, o: LineReadOptions = {})
       // The unfinished line goes to the front of the other buffer, and the next read after it.
       current ^= 1;
       carried = tail < 0 ? 0 : length - tail;
-      if (carried + CHUNK > buffers[current]!.length) buffers[current] = Buffer.allocUnsafe(carried + CHUNK);
+      if (carried + CHUNK > buffers[current]!.length)
+        buffers[current] = Buffer.allocUnsafe(carried + CHUNK);
       if (carried > 0) bytes.copy(buffers[current]!, 0, tail, length);
       reading = source.fill(buffers[current]!, carried);
       if (tail >= 0 && starts.length > 0) {
         if (held) yield [{ ...held, terminated: true }];
         const last = starts.length - 1;
-        held = { text: bytes.toString('latin1', starts[last], ends[last]), number: n + starts.length };
-        if (last > 0) yield { bytes, starts: starts.slice(0, last), ends: ends.slice(0, last), first: n + 1 };
+        held = {
+          text: bytes.toString('latin1', starts[last], ends[last]),
+          number: n + starts.length,
+        };
+        if (last > 0)
+          yield { bytes, starts: starts.slice(0, last), ends: ends.slice(0, last), first: n + 1 };
         n += starts.length;
       } else if (lines.length > 0) {
         const batch: TextLine[] = [];
         if (held) batch.push({ ...held, terminated: true });
-        for (let k = 0; k < lines.length - 1; k++) batch.push({ text: lines[k]!, number: ++n, terminated: true });
+        for (let k = 0; k < lines.length - 1; k++)
+          batch.push({ text: lines[k]!, number: ++n, terminated: true });
         held = { text: lines[lines.length - 1]!, number: ++n };
         yield batch;
       }
@@ -306,14 +323,21 @@ export async function* readLineBatchesRaw(path: string, o: LineReadOptions = {})
 }
 
 /** The lines of a file a chunk at a time, as text. */
-export async function* readLineBatches(path: string, o: LineReadOptions = {}): AsyncGenerator<TextLine[]> {
+export async function* readLineBatches(
+  path: string,
+  o: LineReadOptions = {},
+): AsyncGenerator<TextLine[]> {
   for await (const batch of readLineBatchesRaw(path, o)) {
     if (Array.isArray(batch)) {
       yield batch;
       continue;
     }
     const { bytes, starts, ends, first } = batch;
-    yield starts.map((start, k) => ({ text: bytes.toString('latin1', start, ends[k]), number: first + k, terminated: true }));
+    yield starts.map((start, k) => ({
+      text: bytes.toString('latin1', start, ends[k]),
+      number: first + k,
+      terminated: true,
+    }));
   }
 }
 

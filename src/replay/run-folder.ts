@@ -12,7 +12,14 @@ import type { RunResult } from '../run/result.js';
 import { readLineBatchesRaw, readLines, type TextLine } from './line-reader.js';
 import { readCheckpointFile, readResultFile, type Checkpoint } from './run-json.js';
 import { parseManifest, type RunManifest } from './run-manifest.js';
-import { blankSampleRecord, checkSampleHeader, parseSampleBytes, parseSampleLine, SampleLineError, type SampleRecord } from './sample-csv.js';
+import {
+  blankSampleRecord,
+  checkSampleHeader,
+  parseSampleBytes,
+  parseSampleLine,
+  SampleLineError,
+  type SampleRecord,
+} from './sample-csv.js';
 
 export interface SampleFile {
   path: string;
@@ -53,7 +60,12 @@ export async function openRunFolder(dir: string): Promise<RunFolder> {
   try {
     names = await readdir(dir);
   } catch (e) {
-    throw makeError(ErrorCodes.RUN_FOLDER, `cannot open the run folder: ${(e as Error).message}`, dir, 'Give the path of a folder written by `cellvigil run` (runs/<date>-<time>-<label>).');
+    throw makeError(
+      ErrorCodes.RUN_FOLDER,
+      `cannot open the run folder: ${(e as Error).message}`,
+      dir,
+      'Give the path of a folder written by `cellvigil run` (runs/<date>-<time>-<label>).',
+    );
   }
   const manifestPath = join(dir, 'manifest.json');
   let manifestText: string;
@@ -82,7 +94,9 @@ export async function openRunFolder(dir: string): Promise<RunFolder> {
         'Restore the sample files into the run folder; without the raw counts nothing can be recomputed.',
       );
     }
-    notes.push('The folder holds no sample file: the rig sent no frame, so there is nothing to recompute.');
+    notes.push(
+      'The folder holds no sample file: the rig sent no frame, so there is nothing to recompute.',
+    );
   }
   return {
     dir,
@@ -99,7 +113,12 @@ function escapeRe(s: string): string {
   return s.replace(/[.*+?^${}()|[\]\\]/g, '\\$&');
 }
 
-async function listSampleFiles(dir: string, names: string[], prefix: string, notes: string[]): Promise<SampleFile[]> {
+async function listSampleFiles(
+  dir: string,
+  names: string[],
+  prefix: string,
+  notes: string[],
+): Promise<SampleFile[]> {
   const re = new RegExp(`^${escapeRe(prefix)}(\\d{4,})\\.csv(\\.gz)?$`);
   const byIndex = new Map<number, SampleFile>();
   for (const name of names) {
@@ -131,7 +150,10 @@ async function listSampleFiles(dir: string, names: string[], prefix: string, not
 }
 
 /** Every sample row of the run, in order. A row cut off at the very end (an interrupted write) is left out and reported. */
-export async function* readRunSamples(run: RunFolder, o: SampleReadOptions = {}): AsyncGenerator<SampleRecord> {
+export async function* readRunSamples(
+  run: RunFolder,
+  o: SampleReadOptions = {},
+): AsyncGenerator<SampleRecord> {
   const out: SampleRecord[] = [];
   const pauses = visitRunSamples(run, o, (row) => out.push({ ...row }));
   try {
@@ -152,12 +174,20 @@ export async function* readRunSamples(run: RunFolder, o: SampleReadOptions = {})
  * (plain ASCII rows are parsed from the bytes read into one record). The record is the same
  * object every time: `visit` reads it and must not keep it.
  */
-export async function forEachRunSample(run: RunFolder, o: SampleReadOptions, visit: (row: Readonly<SampleRecord>) => void): Promise<void> {
+export async function forEachRunSample(
+  run: RunFolder,
+  o: SampleReadOptions,
+  visit: (row: Readonly<SampleRecord>) => void,
+): Promise<void> {
   for await (const _ of visitRunSamples(run, o, visit));
 }
 
 /** Visits the rows; pauses after each read and before reporting a cut line, so a caller can hand on the rows visited so far first. */
-async function* visitRunSamples(run: RunFolder, o: SampleReadOptions, visit: (row: SampleRecord) => void): AsyncGenerator<void> {
+async function* visitRunSamples(
+  run: RunFolder,
+  o: SampleReadOptions,
+  visit: (row: SampleRecord) => void,
+): AsyncGenerator<void> {
   const row = blankSampleRecord();
   const channel = run.manifest.channel;
   const lastFile = run.sampleFiles.length - 1;
@@ -199,7 +229,10 @@ async function* visitRunSamples(run: RunFolder, o: SampleReadOptions, visit: (ro
       visit(row);
       return true;
     };
-    for await (const batch of readLineBatchesRaw(f.path, { gzip: f.gzip, ...(o.onBytes ? { onBytes: o.onBytes } : {}) })) {
+    for await (const batch of readLineBatchesRaw(f.path, {
+      gzip: f.gzip,
+      ...(o.onBytes ? { onBytes: o.onBytes } : {}),
+    })) {
       if (Array.isArray(batch)) {
         for (const line of batch) {
           if (takeText(line)) continue;
@@ -228,7 +261,12 @@ async function* visitRunSamples(run: RunFolder, o: SampleReadOptions, visit: (ro
       yield;
     }
     if (!header && !mayBeCut) {
-      throw makeError(ErrorCodes.RUN_DATA, 'the file is empty, without even its header row', join(basename(run.dir), f.name), 'Restore the file from a backup; the files after it need it.');
+      throw makeError(
+        ErrorCodes.RUN_DATA,
+        'the file is empty, without even its header row',
+        join(basename(run.dir), f.name),
+        'Restore the file from a backup; the files after it need it.',
+      );
     }
   }
 }
@@ -236,18 +274,26 @@ async function* visitRunSamples(run: RunFolder, o: SampleReadOptions, visit: (ro
 const validateEvent = new Ajv({ strict: true }).compile({
   type: 'object',
   required: ['host_s', 'event'],
-  properties: { host_s: { type: 'number' }, wall_time: { type: 'string' }, event: { type: 'string', minLength: 1 } },
+  properties: {
+    host_s: { type: 'number' },
+    wall_time: { type: 'string' },
+    event: { type: 'string', minLength: 1 },
+  },
 });
 
 /** Every event of the run, in order; a last line cut off by an interruption is left out and reported. */
-export async function* readRunEvents(run: RunFolder, o: { onCutLine?: (cut: CutLine) => void } = {}): AsyncGenerator<EventRecord> {
+export async function* readRunEvents(
+  run: RunFolder,
+  o: { onCutLine?: (cut: CutLine) => void } = {},
+): AsyncGenerator<EventRecord> {
   if (run.eventsPath === null) return;
   for await (const line of readLines(run.eventsPath)) {
     let data: unknown;
     let problem: string | null = null;
     try {
       data = JSON.parse(line.text);
-      if (!validateEvent(data)) problem = `not an event: ${validateEvent.errors?.[0]?.message ?? 'invalid'}`;
+      if (!validateEvent(data))
+        problem = `not an event: ${validateEvent.errors?.[0]?.message ?? 'invalid'}`;
     } catch (e) {
       problem = `not JSON: ${(e as Error).message}`;
     }

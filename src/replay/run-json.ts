@@ -25,7 +25,13 @@ const count = { type: 'integer', minimum: 0 };
 const figure = {
   type: 'object',
   required: ['standard', 'expanded', 'k'],
-  properties: { standard: num, expanded: num, k: num, basis: { type: 'string' }, terms: { type: 'array' } },
+  properties: {
+    standard: num,
+    expanded: num,
+    k: num,
+    basis: { type: 'string' },
+    terms: { type: 'array' },
+  },
 };
 
 const RESULT_SCHEMA: SchemaObject = {
@@ -74,7 +80,12 @@ async function readOptional(path: string): Promise<string | null> {
     return await readFile(path, 'utf8');
   } catch (e) {
     if ((e as NodeJS.ErrnoException).code === 'ENOENT') return null;
-    throw makeError(ErrorCodes.RUN_FOLDER, `cannot read the file: ${(e as Error).message}`, path, 'Check the permissions of the run folder.');
+    throw makeError(
+      ErrorCodes.RUN_FOLDER,
+      `cannot read the file: ${(e as Error).message}`,
+      path,
+      'Check the permissions of the run folder.',
+    );
   }
 }
 
@@ -86,7 +97,10 @@ function parseChecked<T>(text: string, path: string, check: typeof validateResul
     throw makeError(ErrorCodes.RUN_DATA, `not valid JSON: ${(e as Error).message}`, path, fix);
   }
   if (!check(data)) {
-    const problems = (check.errors ?? []).map((e) => `${e.instancePath.split('/').filter(Boolean).join('.') || '(top level)'} ${e.message ?? 'is invalid'}`);
+    const problems = (check.errors ?? []).map(
+      (e) =>
+        `${e.instancePath.split('/').filter(Boolean).join('.') || '(top level)'} ${e.message ?? 'is invalid'}`,
+    );
     throw makeError(ErrorCodes.RUN_DATA, `malformed: ${problems.join('; ')}`, path, fix);
   }
   return data as T;
@@ -97,7 +111,12 @@ export async function readResultFile(path: string): Promise<RunResult | null> {
   const text = await readOptional(path);
   return text === null
     ? null
-    : parseChecked<RunResult>(text, path, validateResult, 'Move the damaged file aside; `cellvigil report` then writes a new result.json from the raw counts.');
+    : parseChecked<RunResult>(
+        text,
+        path,
+        validateResult,
+        'Move the damaged file aside; `cellvigil report` then writes a new result.json from the raw counts.',
+      );
 }
 
 /** checkpoint.json, or null when there is none. */
@@ -105,5 +124,10 @@ export async function readCheckpointFile(path: string): Promise<Checkpoint | nul
   const text = await readOptional(path);
   return text === null
     ? null
-    : parseChecked<Checkpoint>(text, path, validateCheckpoint, 'Move the damaged file aside; the report does not need it (it only fills in counts the samples cannot give).');
+    : parseChecked<Checkpoint>(
+        text,
+        path,
+        validateCheckpoint,
+        'Move the damaged file aside; the report does not need it (it only fills in counts the samples cannot give).',
+      );
 }

@@ -68,10 +68,19 @@ const SCHEMA: SchemaObject = {
     source: {
       type: 'object',
       required: ['kind', 'description'],
-      properties: { kind: { enum: ['sim', 'serial'] }, description: text, scenario: text, speed: positive },
+      properties: {
+        kind: { enum: ['sim', 'serial'] },
+        description: text,
+        scenario: text,
+        speed: positive,
+      },
     },
     channel: { type: 'integer', minimum: 0, maximum: 15 },
-    rig: { type: 'object', required: ['profile'], properties: { file: { type: ['string', 'null'] }, profile: { type: 'object' } } },
+    rig: {
+      type: 'object',
+      required: ['profile'],
+      properties: { file: { type: ['string', 'null'] }, profile: { type: 'object' } },
+    },
     calibration: {
       type: 'object',
       required: ['id', 'content'],
@@ -81,7 +90,11 @@ const SCHEMA: SchemaObject = {
         content: { type: ['object', 'null'] },
       },
     },
-    chemistry: { type: 'object', required: ['id', 'profile'], properties: { id: { type: 'string', minLength: 1 }, profile: { type: 'object' } } },
+    chemistry: {
+      type: 'object',
+      required: ['id', 'profile'],
+      properties: { id: { type: 'string', minLength: 1 }, profile: { type: 'object' } },
+    },
     cells: { type: 'integer', minimum: 1, maximum: 64 },
     cutoff_V: positive,
     cutoff_per_cell_V: positive,
@@ -95,7 +108,10 @@ const SCHEMA: SchemaObject = {
     samples: {
       type: 'object',
       required: ['prefix'],
-      properties: { prefix: { type: 'string', pattern: '^[A-Za-z0-9._-]+$' }, rotate_bytes: { type: 'integer', minimum: 1 } },
+      properties: {
+        prefix: { type: 'string', pattern: '^[A-Za-z0-9._-]+$' },
+        rotate_bytes: { type: 'integer', minimum: 1 },
+      },
     },
     schedule: {
       type: 'object',
@@ -107,7 +123,8 @@ const SCHEMA: SchemaObject = {
 
 const validate = new Ajv({ allErrors: true, strict: true, strictRequired: false }).compile(SCHEMA);
 
-const FIX = 'The manifest is written by `cellvigil run` at the start of a run; restore it from a backup of the run folder, or correct the key named.';
+const FIX =
+  'The manifest is written by `cellvigil run` at the start of a run; restore it from a backup of the run folder, or correct the key named.';
 
 /** Parses and checks manifest.json; `where` names the file in messages. */
 export function parseManifest(textIn: string, where: string): RunManifest {
@@ -115,14 +132,24 @@ export function parseManifest(textIn: string, where: string): RunManifest {
   try {
     data = JSON.parse(textIn);
   } catch (e) {
-    throw makeError(ErrorCodes.RUN_DATA, `the manifest is not valid JSON: ${(e as Error).message}`, where, FIX);
+    throw makeError(
+      ErrorCodes.RUN_DATA,
+      `the manifest is not valid JSON: ${(e as Error).message}`,
+      where,
+      FIX,
+    );
   }
   if (!validate(data)) {
     const problems = (validate.errors ?? []).map((e) => {
       const key = e.instancePath.split('/').filter(Boolean).join('.') || '(top level)';
       return `${key} ${e.message ?? 'is invalid'}`;
     });
-    throw makeError(ErrorCodes.RUN_DATA, `the manifest is malformed: ${problems.join('; ')}`, where, FIX);
+    throw makeError(
+      ErrorCodes.RUN_DATA,
+      `the manifest is malformed: ${problems.join('; ')}`,
+      where,
+      FIX,
+    );
   }
   const m = data as RunManifest;
   const nested = <T>(key: string, check: () => T): T => {
@@ -130,22 +157,48 @@ export function parseManifest(textIn: string, where: string): RunManifest {
       return check();
     } catch (e) {
       const msg = e instanceof CellvigilError ? e.message : String(e);
-      throw makeError(ErrorCodes.RUN_DATA, `the manifest's ${key} is not valid: ${msg}`, where, FIX);
+      throw makeError(
+        ErrorCodes.RUN_DATA,
+        `the manifest's ${key} is not valid: ${msg}`,
+        where,
+        FIX,
+      );
     }
   };
-  nested('rig.profile', () => parseRigProfile(JSON.stringify(m.rig.profile), `${where}: rig.profile`));
+  nested('rig.profile', () =>
+    parseRigProfile(JSON.stringify(m.rig.profile), `${where}: rig.profile`),
+  );
   if (m.calibration.content !== null) {
-    const cal = nested('calibration.content', () => parseCalibration(JSON.stringify(m.calibration.content), `${where}: calibration.content`));
+    const cal = nested('calibration.content', () =>
+      parseCalibration(JSON.stringify(m.calibration.content), `${where}: calibration.content`),
+    );
     if (cal.id !== m.calibration.id) {
-      throw makeError(ErrorCodes.RUN_DATA, `calibration.id ${m.calibration.id} differs from the id of calibration.content (${cal.id})`, where, FIX);
+      throw makeError(
+        ErrorCodes.RUN_DATA,
+        `calibration.id ${m.calibration.id} differs from the id of calibration.content (${cal.id})`,
+        where,
+        FIX,
+      );
     }
   } else if (m.calibration.id !== 'none') {
-    throw makeError(ErrorCodes.RUN_DATA, `calibration.id is ${m.calibration.id} but calibration.content is null`, where, FIX);
+    throw makeError(
+      ErrorCodes.RUN_DATA,
+      `calibration.id is ${m.calibration.id} but calibration.content is null`,
+      where,
+      FIX,
+    );
   }
   const { id, ...profile } = m.chemistry.profile;
   if (id !== undefined && id !== m.chemistry.id) {
-    throw makeError(ErrorCodes.RUN_DATA, `chemistry.id ${m.chemistry.id} differs from chemistry.profile.id ${id}`, where, FIX);
+    throw makeError(
+      ErrorCodes.RUN_DATA,
+      `chemistry.id ${m.chemistry.id} differs from chemistry.profile.id ${id}`,
+      where,
+      FIX,
+    );
   }
-  const [chemistry] = nested('chemistry.profile', () => parseChemistries(JSON.stringify({ [m.chemistry.id]: profile }), `${where}: chemistry.profile`));
+  const [chemistry] = nested('chemistry.profile', () =>
+    parseChemistries(JSON.stringify({ [m.chemistry.id]: profile }), `${where}: chemistry.profile`),
+  );
   return { ...m, chemistry: { id: m.chemistry.id, profile: chemistry! } };
 }

@@ -37,8 +37,14 @@ interface Rule {
   expect: string;
 }
 
-const decimal: Rule = { parse: (f) => (DECIMAL.test(f) ? Number(f) : null), expect: 'a decimal number' };
-const decimalOrEmpty: Rule = { parse: (f) => (f === '' ? Number.NaN : DECIMAL.test(f) ? Number(f) : null), expect: 'a decimal number or empty' };
+const decimal: Rule = {
+  parse: (f) => (DECIMAL.test(f) ? Number(f) : null),
+  expect: 'a decimal number',
+};
+const decimalOrEmpty: Rule = {
+  parse: (f) => (f === '' ? Number.NaN : DECIMAL.test(f) ? Number(f) : null),
+  expect: 'a decimal number or empty',
+};
 const whole = (max: number): Rule => ({
   parse: (f) => {
     if (!WHOLE.test(f)) return null;
@@ -50,21 +56,30 @@ const whole = (max: number): Rule => ({
 
 const RULES: Record<Column, Rule> = {
   host_s: decimal,
-  wall_time: { parse: (f) => (Number.isFinite(Date.parse(f)) ? f : null), expect: 'an ISO 8601 time' },
+  wall_time: {
+    parse: (f) => (Number.isFinite(Date.parse(f)) ? f : null),
+    expect: 'an ISO 8601 time',
+  },
   channel: whole(15),
   seq: whole(65535),
   tick_ms: whole(4294967295),
   v_raw: whole(2 ** 24 - 1),
   i_raw: whole(2 ** 24 - 1),
   t_raw: whole(2 ** 24 - 1),
-  flags: { parse: (f) => (/^[0-9A-Fa-f]{1,2}$/.test(f) ? parseInt(f, 16) : null), expect: 'one or two hex digits' },
+  flags: {
+    parse: (f) => (/^[0-9A-Fa-f]{1,2}$/.test(f) ? parseInt(f, 16) : null),
+    expect: 'one or two hex digits',
+  },
   voltage_V: decimalOrEmpty,
   current_A: decimalOrEmpty,
   temperature_C: decimalOrEmpty,
   charge_Ah: decimal,
   energy_Wh: decimal,
   state: { parse: (f) => (STATES.has(f) ? f : null), expect: `one of ${[...STATES].join(', ')}` },
-  calibration_id: { parse: (f) => (/^(none|[0-9a-f]{16})$/.test(f) ? f : null), expect: '"none" or 16 hex digits' },
+  calibration_id: {
+    parse: (f) => (/^(none|[0-9a-f]{16})$/.test(f) ? f : null),
+    expect: '"none" or 16 hex digits',
+  },
 };
 
 /** Splits one RFC 4180 line (fields may be quoted, with "" for a quote); null when a quote is left open. */
@@ -119,33 +134,65 @@ export function checkSampleHeader(line: string, where: string): void {
 
 /** A record to parse rows into. */
 export function blankSampleRecord(): SampleRecord {
-  return { hostS: 0, wallTime: '', channel: 0, seq: 0, tickMs: 0, vRaw: 0, iRaw: 0, tRaw: 0, flags: 0, volts: 0, amps: 0, celsius: 0, chargeAh: 0, energyWh: 0, state: '', calibrationId: '' };
+  return {
+    hostS: 0,
+    wallTime: '',
+    channel: 0,
+    seq: 0,
+    tickMs: 0,
+    vRaw: 0,
+    iRaw: 0,
+    tRaw: 0,
+    flags: 0,
+    volts: 0,
+    amps: 0,
+    celsius: 0,
+    chargeAh: 0,
+    energyWh: 0,
+    state: '',
+    calibrationId: '',
+  };
 }
 
 /** One row into a record (a new one unless given); throws SampleLineError saying which column is wrong. */
-export function parseSampleLine(line: string, into: SampleRecord = blankSampleRecord()): SampleRecord {
+export function parseSampleLine(
+  line: string,
+  into: SampleRecord = blankSampleRecord(),
+): SampleRecord {
   // Only ASCII can be a valid row; other text goes straight to the rules and their message.
-  if (Buffer.byteLength(line, 'utf8') !== line.length) return Object.assign(into, parseByRules(line));
+  if (Buffer.byteLength(line, 'utf8') !== line.length)
+    return Object.assign(into, parseByRules(line));
   // With a line end after it, as rows read from a file have.
   const bytes = Buffer.from(`${line}\n`, 'latin1');
   return readFast(bytes, 0, line.length, into) ? into : Object.assign(into, parseByRules(line));
 }
 
 /** The row in `bytes` from `start` to `end` (ASCII, its line end at `end`); as parseSampleLine. */
-export function parseSampleBytes(bytes: Buffer, start: number, end: number, into: SampleRecord = blankSampleRecord()): SampleRecord {
-  return readFast(bytes, start, end, into) ? into : Object.assign(into, parseByRules(bytes.toString('latin1', start, end)));
+export function parseSampleBytes(
+  bytes: Buffer,
+  start: number,
+  end: number,
+  into: SampleRecord = blankSampleRecord(),
+): SampleRecord {
+  return readFast(bytes, start, end, into)
+    ? into
+    : Object.assign(into, parseByRules(bytes.toString('latin1', start, end)));
 }
 
 function parseByRules(line: string): SampleRecord {
   const f = splitCsvLine(line);
   if (f === null) throw new SampleLineError('a quoted field is not closed');
-  if (f.length !== SAMPLE_COLUMNS.length) throw new SampleLineError(`${f.length} fields where ${SAMPLE_COLUMNS.length} are expected`);
+  if (f.length !== SAMPLE_COLUMNS.length)
+    throw new SampleLineError(`${f.length} fields where ${SAMPLE_COLUMNS.length} are expected`);
   const v: Array<number | string> = [];
   for (let i = 0; i < SAMPLE_COLUMNS.length; i++) {
     const col = SAMPLE_COLUMNS[i]!;
     const rule = RULES[col];
     const x = rule.parse(f[i]!);
-    if (x === null) throw new SampleLineError(`column ${col} is ${JSON.stringify(f[i]!.slice(0, 40))}, not ${rule.expect}`);
+    if (x === null)
+      throw new SampleLineError(
+        `column ${col} is ${JSON.stringify(f[i]!.slice(0, 40))}, not ${rule.expect}`,
+      );
     v.push(x);
   }
   return {
@@ -214,13 +261,20 @@ class KnownText {
     if (this.text.length === 0) return false;
     const v = viewOf(b);
     const words = this.words;
-    for (let k = 0; k < words.length; k++) if (v.getInt32(at + 4 * k, true) !== words[k]) return false;
+    for (let k = 0; k < words.length; k++)
+      if (v.getInt32(at + 4 * k, true) !== words[k]) return false;
     return holds(b, at + 4 * words.length, this.tail);
   }
 }
 
 function hexDigit(c: number): number {
-  return c >= 48 && c <= 57 ? c - 48 : c >= 65 && c <= 70 ? c - 55 : c >= 97 && c <= 102 ? c - 87 : -1;
+  return c >= 48 && c <= 57
+    ? c - 48
+    : c >= 65 && c <= 70
+      ? c - 55
+      : c >= 97 && c <= 102
+        ? c - 87
+        : -1;
 }
 
 function twoDigits(b: Buffer, i: number, max: number): boolean {
@@ -237,8 +291,38 @@ const K_DECIMAL = 1;
 const K_DECIMAL_OR_EMPTY = 2;
 const K_WALL = 3;
 const K_FLAGS = 4;
-const KIND = Uint8Array.of(K_DECIMAL, K_WALL, K_WHOLE, K_WHOLE, K_WHOLE, K_WHOLE, K_WHOLE, K_WHOLE, K_FLAGS, K_DECIMAL_OR_EMPTY, K_DECIMAL_OR_EMPTY, K_DECIMAL_OR_EMPTY, K_DECIMAL, K_DECIMAL);
-const MAX = Float64Array.of(0, 0, 15, 65535, 4294967295, COUNT_MAX, COUNT_MAX, COUNT_MAX, 0, 0, 0, 0, 0, 0);
+const KIND = Uint8Array.of(
+  K_DECIMAL,
+  K_WALL,
+  K_WHOLE,
+  K_WHOLE,
+  K_WHOLE,
+  K_WHOLE,
+  K_WHOLE,
+  K_WHOLE,
+  K_FLAGS,
+  K_DECIMAL_OR_EMPTY,
+  K_DECIMAL_OR_EMPTY,
+  K_DECIMAL_OR_EMPTY,
+  K_DECIMAL,
+  K_DECIMAL,
+);
+const MAX = Float64Array.of(
+  0,
+  0,
+  15,
+  65535,
+  4294967295,
+  COUNT_MAX,
+  COUNT_MAX,
+  COUNT_MAX,
+  0,
+  0,
+  0,
+  0,
+  0,
+  0,
+);
 const value = new Float64Array(KIND.length);
 /** Where the wall time of the row last scanned starts. */
 let wallAt = 0;
@@ -251,11 +335,23 @@ let knownId = '';
 
 /** `YYYY-MM-DDTHH:MM:SS.sssZ` at `i`, followed by a comma; a new date and hour is checked by Date.parse once. */
 function isWallTime(b: Buffer, i: number, end: number): boolean {
-  if (i + 24 >= end || b[i + 24] !== 44 || b[i + 23] !== 90 || b[i + 16] !== 58 || b[i + 19] !== 46) return false;
-  if (!twoDigits(b, i + 14, 59) || !twoDigits(b, i + 17, 59) || !twoDigits(b, i + 20, 99) || !twoDigits(b, i + 21, 99)) return false;
+  if (i + 24 >= end || b[i + 24] !== 44 || b[i + 23] !== 90 || b[i + 16] !== 58 || b[i + 19] !== 46)
+    return false;
+  if (
+    !twoDigits(b, i + 14, 59) ||
+    !twoDigits(b, i + 17, 59) ||
+    !twoDigits(b, i + 20, 99) ||
+    !twoDigits(b, i + 21, 99)
+  )
+    return false;
   if (hour.at(b, i)) return true;
   const prefix = b.toString('latin1', i, i + 14);
-  if (!/^\d{4}-\d{2}-\d{2}T\d{2}:$/.test(prefix) || !twoDigits(b, i + 11, 23) || !Number.isFinite(Date.parse(`${prefix}00:00.000Z`))) return false;
+  if (
+    !/^\d{4}-\d{2}-\d{2}T\d{2}:$/.test(prefix) ||
+    !twoDigits(b, i + 11, 23) ||
+    !Number.isFinite(Date.parse(`${prefix}00:00.000Z`))
+  )
+    return false;
   hour.set(b, i, i + 14);
   secondOfHour = -1;
   return true;
@@ -330,7 +426,12 @@ function scanColumns(b: Buffer, start: number, end: number): number {
       else {
         if (i === digitsFrom || point === digitsFrom) return -1;
         const digits = i - digitsFrom - (point < 0 ? 0 : 1);
-        const x = digits > 15 ? Number(b.toString('latin1', digitsFrom, i)) : point < 0 ? m : m / POW10[i - point - 1]!;
+        const x =
+          digits > 15
+            ? Number(b.toString('latin1', digitsFrom, i))
+            : point < 0
+              ? m
+              : m / POW10[i - point - 1]!;
         value[col] = negative ? -x : x;
       }
     }
@@ -341,7 +442,10 @@ function scanColumns(b: Buffer, start: number, end: number): number {
 
 const pad = (n: number, width: number): string => String(n).padStart(width, '0');
 /** `MM:SS.` for every minute and second of an hour, and `sssZ` for every millisecond. */
-const MINUTE_SECOND = Array.from({ length: 3600 }, (_, k) => `${pad(Math.floor(k / 60), 2)}:${pad(k % 60, 2)}.`);
+const MINUTE_SECOND = Array.from(
+  { length: 3600 },
+  (_, k) => `${pad(Math.floor(k / 60), 2)}:${pad(k % 60, 2)}.`,
+);
 const MILLI_Z = Array.from({ length: 1000 }, (_, k) => `${pad(k, 3)}Z`);
 /** The wall time of the last row up to its second (`YYYY-MM-DDTHH:MM:SS.`): rows come many a second. */
 let secondOfHour = -1;
@@ -360,7 +464,9 @@ function readFast(b: Buffer, start: number, end: number, r: SampleRecord): boole
     let comma = stateAt;
     while (comma < end && b[comma] !== 44) comma++;
     if (comma === end) return false;
-    const state = STATE_BYTES.find((s) => comma - stateAt === s.bytes.length && holds(b, stateAt, s.bytes));
+    const state = STATE_BYTES.find(
+      (s) => comma - stateAt === s.bytes.length && holds(b, stateAt, s.bytes),
+    );
     if (state === undefined) return false;
     const id = b.toString('latin1', comma + 1, end);
     if (!/^(none|[0-9a-f]{16})$/.test(id)) return false;

@@ -135,14 +135,20 @@ export class CurveBuilder {
 }
 
 /** Loaded voltage at a given charge, interpolated between bucket centres; null without loaded buckets. */
-export function loadedVoltageAtCharge(buckets: readonly CurveBucket[], chargeAh: number): number | null {
-  const pts = buckets.filter((b) => b.nOn > 0).map((b) => ({ q: (b.q0 + b.q1) / 2, v: b.vOnSum / b.nOn }));
+export function loadedVoltageAtCharge(
+  buckets: readonly CurveBucket[],
+  chargeAh: number,
+): number | null {
+  const pts = buckets
+    .filter((b) => b.nOn > 0)
+    .map((b) => ({ q: (b.q0 + b.q1) / 2, v: b.vOnSum / b.nOn }));
   if (pts.length === 0) return null;
   if (chargeAh <= pts[0]!.q) return pts[0]!.v;
   for (let i = 1; i < pts.length; i++) {
     const a = pts[i - 1]!;
     const b = pts[i]!;
-    if (chargeAh <= b.q) return b.q === a.q ? b.v : a.v + ((b.v - a.v) * (chargeAh - a.q)) / (b.q - a.q);
+    if (chargeAh <= b.q)
+      return b.q === a.q ? b.v : a.v + ((b.v - a.v) * (chargeAh - a.q)) / (b.q - a.q);
   }
   return pts.at(-1)!.v;
 }

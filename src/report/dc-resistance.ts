@@ -72,11 +72,25 @@ export class DcResistanceTracker {
   private spare: ResistanceSample | null = null;
   private rest: ResistanceSample[] = [];
   private levelSince = 0;
-  private upper: { u1: number; i1: number; at: number; dwell: number; u2: number; i2: number } | null = null;
+  private upper: {
+    u1: number;
+    i1: number;
+    at: number;
+    dwell: number;
+    u2: number;
+    i2: number;
+  } | null = null;
   private readonly summary: ResistanceSummary = {};
 
   constructor(o: DcResistanceOptions = {}) {
-    this.o = { minCurrentA: 0.005, levelChange: 0.2, secondLevelS: 1, restFrames: 10, restWindowS: 5, ...o };
+    this.o = {
+      minCurrentA: 0.005,
+      levelChange: 0.2,
+      secondLevelS: 1,
+      restFrames: 10,
+      restWindowS: 5,
+      ...o,
+    };
   }
 
   /** One frame; `s` is read, not kept (what is kept is copied), so a caller may pass the same object every time. */
@@ -91,10 +105,27 @@ export class DcResistanceTracker {
     this.spare = p;
     this.prev = next;
     if (!Number.isFinite(s.volts) || !Number.isFinite(s.amps)) return;
-    if (this.upper && !(s.loadOn && this.sameLevel(s.amps, this.upper.i2) && s.hostS - this.upper.at <= this.o.secondLevelS)) this.closeUpper();
+    if (
+      this.upper &&
+      !(
+        s.loadOn &&
+        this.sameLevel(s.amps, this.upper.i2) &&
+        s.hostS - this.upper.at <= this.o.secondLevelS
+      )
+    )
+      this.closeUpper();
     if (!s.loadOn) {
       if (p?.loadOn && p.amps > this.o.minCurrentA) {
-        this.record({ method: 'switch_off', atS: s.hostS, ohm: loadStepResistance(s.volts, p.volts, p.amps), uBeforeV: p.volts, uAfterV: s.volts, iBeforeA: p.amps, iAfterA: p.amps, dwellS: s.hostS - this.levelSince });
+        this.record({
+          method: 'switch_off',
+          atS: s.hostS,
+          ohm: loadStepResistance(s.volts, p.volts, p.amps),
+          uBeforeV: p.volts,
+          uAfterV: s.volts,
+          iBeforeA: p.amps,
+          iAfterA: p.amps,
+          dwellS: s.hostS - this.levelSince,
+        });
       }
       if (!p || p.loadOn) this.levelSince = s.hostS;
       this.rest.push({ hostS: s.hostS, volts: s.volts, amps: s.amps, loadOn: s.loadOn });
@@ -105,7 +136,16 @@ export class DcResistanceTracker {
       const recent = this.rest.filter((r) => s.hostS - r.hostS <= this.o.restWindowS);
       if (recent.length > 0 && s.amps > this.o.minCurrentA) {
         const open = recent.reduce((t, r) => t + r.volts, 0) / recent.length;
-        this.record({ method: 'switch_on', atS: s.hostS, ohm: loadStepResistance(open, s.volts, s.amps), uBeforeV: open, uAfterV: s.volts, iBeforeA: s.amps, iAfterA: s.amps, dwellS: s.hostS - this.levelSince });
+        this.record({
+          method: 'switch_on',
+          atS: s.hostS,
+          ohm: loadStepResistance(open, s.volts, s.amps),
+          uBeforeV: open,
+          uAfterV: s.volts,
+          iBeforeA: s.amps,
+          iAfterA: s.amps,
+          dwellS: s.hostS - this.levelSince,
+        });
       }
       this.rest = [];
       this.levelSince = s.hostS;
@@ -118,7 +158,14 @@ export class DcResistanceTracker {
     }
     if (!this.sameLevel(s.amps, p.amps)) {
       if (s.amps > p.amps && p.amps > this.o.minCurrentA) {
-        this.upper = { u1: p.volts, i1: p.amps, at: s.hostS, dwell: s.hostS - this.levelSince, u2: s.volts, i2: s.amps };
+        this.upper = {
+          u1: p.volts,
+          i1: p.amps,
+          at: s.hostS,
+          dwell: s.hostS - this.levelSince,
+          u2: s.volts,
+          i2: s.amps,
+        };
       }
       this.levelSince = s.hostS;
     }
@@ -137,13 +184,29 @@ export class DcResistanceTracker {
   private closeUpper(): void {
     const u = this.upper!;
     this.upper = null;
-    this.record({ method: 'two_level', atS: u.at, ohm: twoLevelResistance(u.u1, u.i1, u.u2, u.i2), uBeforeV: u.u1, uAfterV: u.u2, iBeforeA: u.i1, iAfterA: u.i2, dwellS: u.dwell });
+    this.record({
+      method: 'two_level',
+      atS: u.at,
+      ohm: twoLevelResistance(u.u1, u.i1, u.u2, u.i2),
+      uBeforeV: u.u1,
+      uAfterV: u.u2,
+      iBeforeA: u.i1,
+      iAfterA: u.i2,
+      dwellS: u.dwell,
+    });
   }
 
   private record(r: ResistanceReading): void {
     const m = this.summary[r.method];
     if (!m) {
-      this.summary[r.method] = { count: 1, first: r, last: r, minOhm: r.ohm, maxOhm: r.ohm, meanOhm: r.ohm };
+      this.summary[r.method] = {
+        count: 1,
+        first: r,
+        last: r,
+        minOhm: r.ohm,
+        maxOhm: r.ohm,
+        meanOhm: r.ohm,
+      };
       return;
     }
     m.count++;

@@ -63,7 +63,15 @@ export interface EventDigestResult {
 const REJECTED_LISTED = 20;
 
 export class EventDigest {
-  private readonly r: EventDigestResult = { counts: {}, listed: [], unlisted: 0, end: null, resumptions: [], rejectedLines: 0, cutoffChanges: [] };
+  private readonly r: EventDigestResult = {
+    counts: {},
+    listed: [],
+    unlisted: 0,
+    end: null,
+    resumptions: [],
+    rejectedLines: 0,
+    cutoffChanges: [],
+  };
 
   constructor(private readonly maxListed = 400) {}
 
@@ -73,23 +81,34 @@ export class EventDigest {
     r.counts[name] = (r.counts[name] ?? 0) + 1;
     if (name === 'resumed') r.resumptions.push({ atS: hostS, unloggedS: 0 });
     const resumption = r.resumptions.at(-1);
-    if (name === 'unlogged_discharge' && resumption && typeof rest['estimated_s'] === 'number') resumption.unloggedS = rest['estimated_s'];
+    if (name === 'unlogged_discharge' && resumption && typeof rest['estimated_s'] === 'number')
+      resumption.unloggedS = rest['estimated_s'];
     if (name === 'run_ended') {
-      r.end = { reason: String(rest['end_reason'] ?? 'stopped'), detail: String(rest['detail'] ?? ''), loadOffConfirmed: rest['load_off_confirmed'] !== false };
+      r.end = {
+        reason: String(rest['end_reason'] ?? 'stopped'),
+        detail: String(rest['detail'] ?? ''),
+        loadOffConfirmed: rest['load_off_confirmed'] !== false,
+      };
     }
-    if (name === 'cutoff_changed' && typeof rest['cutoff_V'] === 'number') r.cutoffChanges.push({ hostS, cutoffV: rest['cutoff_V'] });
+    if (name === 'cutoff_changed' && typeof rest['cutoff_V'] === 'number')
+      r.cutoffChanges.push({ hostS, cutoffV: rest['cutoff_V'] });
     if (name === 'frame_rejected') r.rejectedLines++;
     if (name === 'rejected_summary') {
       const by = rest['not_logged_by_reason'];
-      if (by && typeof by === 'object') for (const v of Object.values(by)) r.rejectedLines += typeof v === 'number' ? v : 0;
+      if (by && typeof by === 'object')
+        for (const v of Object.values(by)) r.rejectedLines += typeof v === 'number' ? v : 0;
     }
     // Commands repeat what the state changes say; the cautions have their own section.
-    const quiet = (name === 'frame_rejected' && r.counts[name]! > REJECTED_LISTED) || name === 'command' || name === 'cautions';
+    const quiet =
+      (name === 'frame_rejected' && r.counts[name]! > REJECTED_LISTED) ||
+      name === 'command' ||
+      name === 'cautions';
     if (quiet || r.listed.length >= this.maxListed) {
       r.unlisted++;
       return;
     }
-    const alarm = ALARMS.has(name) || (name === 'run_ended' && SAFETY_ENDS.has(String(rest['end_reason'])));
+    const alarm =
+      ALARMS.has(name) || (name === 'run_ended' && SAFETY_ENDS.has(String(rest['end_reason'])));
     r.listed.push({ hostS, name, alarm, detail: compact(rest) });
   }
 
@@ -101,7 +120,9 @@ export class EventDigest {
 /** Numbers to 6 significant digits: a log keeps full precision, a table needs none of it. */
 function shorten(v: unknown): string {
   if (typeof v === 'string') return v;
-  return JSON.stringify(v, (_k, x: unknown) => (typeof x === 'number' && !Number.isInteger(x) ? Number(x.toPrecision(6)) : x));
+  return JSON.stringify(v, (_k, x: unknown) =>
+    typeof x === 'number' && !Number.isInteger(x) ? Number(x.toPrecision(6)) : x,
+  );
 }
 
 function compact(rest: Record<string, unknown>): string {

@@ -14,10 +14,16 @@ import type { RenderOptions } from './html.js';
 const nameOf = (f: RunFigures): string => basename(f.folder);
 
 /** The Peukert runs: mean current and load-on hours of each run that reached its cutoff. */
-export function peukertRuns(runs: readonly RunFigures[]): Array<{ currentA: number; hours: number; name: string }> {
+export function peukertRuns(
+  runs: readonly RunFigures[],
+): Array<{ currentA: number; hours: number; name: string }> {
   return runs
     .filter((f) => f.result.end_reason === 'cutoff' && f.result.average_current_A !== null)
-    .map((f) => ({ currentA: f.result.average_current_A!, hours: f.result.duration_s / 3600, name: nameOf(f) }));
+    .map((f) => ({
+      currentA: f.result.average_current_A!,
+      hours: f.result.duration_s / 3600,
+      name: nameOf(f),
+    }));
 }
 
 function figuresTable(runs: readonly RunFigures[]): string {
@@ -37,7 +43,8 @@ function peukertSection(runs: readonly RunFigures[]): string {
   }
   const fit: PeukertFit = fitPeukert(pts);
   const rows = pts.map(
-    (p) => `<tr><td>${esc(p.name)}</td><td class="num">${p.currentA.toFixed(4)}</td><td class="num">${p.hours.toFixed(3)}</td><td class="num">${peukertHours(fit.rateHours, fit.capacityAh, fit.k, p.currentA).toFixed(3)}</td></tr>`,
+    (p) =>
+      `<tr><td>${esc(p.name)}</td><td class="num">${p.currentA.toFixed(4)}</td><td class="num">${p.hours.toFixed(3)}</td><td class="num">${peukertHours(fit.rateHours, fit.capacityAh, fit.k, p.currentA).toFixed(3)}</td></tr>`,
   );
   return `<p>Peukert's law, t = H·(C/(I·H))<sup>k</sup>, fitted to the ${fit.runs} runs that reached their cutoff:
 <strong data-key="peukert_k" data-value="${fit.k}">k = ${fit.k.toFixed(3)}</strong>${fit.uK !== null ? ` ± ${fit.uK.toFixed(3)} (standard uncertainty from the scatter)` : ' (two runs: no scatter to judge it by)'}, with C = ${fit.capacityAh.toFixed(4)} Ah at the ${fit.rateHours}-hour rate.</p>
@@ -48,7 +55,11 @@ ${rows.join('\n')}
 }
 
 export function renderComparisonReport(runs: readonly RunFigures[], o: RenderOptions = {}): string {
-  const named = runs.map((f, i) => ({ f, name: nameOf(f), color: RUN_COLOURS[i % RUN_COLOURS.length]! }));
+  const named = runs.map((f, i) => ({
+    f,
+    name: nameOf(f),
+    color: RUN_COLOURS[i % RUN_COLOURS.length]!,
+  }));
   const cutoffs = new Set(runs.map((f) => f.result.cutoff_V));
   const body = [
     `<h1>Discharge runs compared</h1>\n<p class="sub">${runs.length} runs: ${named.map((n) => esc(n.name)).join(', ')}</p>`,

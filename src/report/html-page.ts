@@ -58,7 +58,16 @@ export function section(id: string, heading: string, content: string): string {
 }
 
 /** Series colours for several runs: distinct in hue and lightness. */
-export const RUN_COLOURS = ['#0f766e', '#b45309', '#4338ca', '#be123c', '#4d7c0f', '#7e22ce', '#0369a1', '#a16207'];
+export const RUN_COLOURS = [
+  '#0f766e',
+  '#b45309',
+  '#4338ca',
+  '#be123c',
+  '#4d7c0f',
+  '#7e22ce',
+  '#0369a1',
+  '#a16207',
+];
 export const VOLTAGE_COLOUR = '#0f766e';
 export const CURRENT_COLOUR = '#b45309';
 export const TEMPERATURE_COLOUR = '#be123c';

@@ -1,6 +1,12 @@
 /** Escaping and number formatting for the HTML report. */
 
-const ESCAPES: Record<string, string> = { '&': '&amp;', '<': '&lt;', '>': '&gt;', '"': '&quot;', "'": '&#39;' };
+const ESCAPES: Record<string, string> = {
+  '&': '&amp;',
+  '<': '&lt;',
+  '>': '&gt;',
+  '"': '&quot;',
+  "'": '&#39;',
+};
 
 /** Text safe inside an element or a double-quoted attribute. */
 export function esc(text: string): string {

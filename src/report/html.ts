@@ -20,19 +20,27 @@ export interface RenderOptions {
   resultFile?: string;
 }
 
-const ah = (x: number | null): string => (x === null ? '—' : Math.abs(x) < 10 ? `${x.toFixed(4)} Ah (${(x * 1000).toFixed(1)} mAh)` : `${x.toFixed(3)} Ah`);
+const ah = (x: number | null): string =>
+  x === null
+    ? '—'
+    : Math.abs(x) < 10
+      ? `${x.toFixed(4)} Ah (${(x * 1000).toFixed(1)} mAh)`
+      : `${x.toFixed(3)} Ah`;
 
 export function figuresTable(f: RunFigures): string {
   const r = f.result;
   const uq = r.uncertainty.capacity_Ah;
   const ue = r.uncertainty.energy_Wh;
-  const rel = (u: FigureUncertainty, x: number): string => (x !== 0 ? ` (${((u.expanded / Math.abs(x)) * 100).toFixed(2)} %)` : '');
+  const rel = (u: FigureUncertainty, x: number): string =>
+    x !== 0 ? ` (${((u.expanded / Math.abs(x)) * 100).toFixed(2)} %)` : '';
   const rows: string[] = [
     `<tr><th>Capacity</th>${cell('capacity_Ah', r.capacity_Ah, ah(r.capacity_Ah))}${cell('uncertainty.capacity_Ah.expanded', uq.expanded, `± ${uq.expanded.toFixed(4)} Ah${rel(uq, r.capacity_Ah)}, k = 2`)}</tr>`,
     `<tr><th>Energy</th>${cell('energy_Wh', r.energy_Wh, `${r.energy_Wh.toFixed(4)} Wh`)}${cell('uncertainty.energy_Wh.expanded', ue.expanded, `± ${ue.expanded.toFixed(4)} Wh${rel(ue, r.energy_Wh)}, k = 2`)}</tr>`,
     `<tr><th>Load-on time</th>${cell('duration_s', r.duration_s, hms(r.duration_s))}<td class="small">${num(r.duration_s / 3600, 3)} h</td></tr>`,
     ...(r.schedule !== null
-      ? [`<tr><th>Service output</th>${cell('service_output_h', r.service_output_h, r.service_output_h === null ? '—' : `${r.service_output_h.toFixed(2)} h`)}<td class="small">load-on hours to the end point; schedule: ${esc(r.schedule)}</td></tr>`]
+      ? [
+          `<tr><th>Service output</th>${cell('service_output_h', r.service_output_h, r.service_output_h === null ? '—' : `${r.service_output_h.toFixed(2)} h`)}<td class="small">load-on hours to the end point; schedule: ${esc(r.schedule)}</td></tr>`,
+        ]
       : []),
     `<tr><th>Mean voltage</th>${cell('mean_voltage_V', r.mean_voltage_V, `${num(r.mean_voltage_V, 3)} V`)}<td class="small">energy ÷ charge</td></tr>`,
     `<tr><th>Mid-point voltage</th>${cell('midpoint_voltage_V', r.midpoint_voltage_V, `${num(r.midpoint_voltage_V, 3)} V`)}<td class="small">loaded voltage at half the charge delivered</td></tr>`,
@@ -49,7 +57,8 @@ export function figuresTable(f: RunFigures): string {
 }
 
 function verdictBox(v: Verdict | null, chemistry: string): string {
-  if (!v) return `<p class="small">No rated-capacity method is checked for ${esc(chemistry)} cells.</p>`;
+  if (!v)
+    return `<p class="small">No rated-capacity method is checked for ${esc(chemistry)} cells.</p>`;
   return `<div class="box ${v.outcome}" data-verdict="${v.outcome}">
 <div class="label">${esc(v.label)}</div>
 <p><strong>${esc(v.summary)}</strong></p>
@@ -83,7 +92,8 @@ const METHOD_NAMES: Record<ResistanceMethod, string> = {
 
 function resistanceTable(r: ResistanceSummary, intervalS: number | null): string {
   const methods = (Object.keys(METHOD_NAMES) as ResistanceMethod[]).filter((m) => r[m]);
-  if (methods.length === 0) return '<p class="small">The run has no load step to read a resistance from.</p>';
+  if (methods.length === 0)
+    return '<p class="small">The run has no load step to read a resistance from.</p>';
   const rows = methods.map((m) => {
     const s = r[m]!;
     const fr = s.first;
@@ -93,13 +103,20 @@ function resistanceTable(r: ResistanceSummary, intervalS: number | null): string
 <p class="small">Each reading takes the first frame after the step, about ${intervalS === null ? 'one frame period' : `${(intervalS * 1000).toFixed(0)} ms`} after it: the ohmic drop plus what polarisation built up in that time. The two-level method (IEC 61951-2, IEC 61960-3) reads U1 at the end of the lower current I1 and U2 one second into the higher current I2.</p>`;
 }
 
-export function budgetTable(title: string, unit: string, u: FigureUncertainty, value: number): string {
+export function budgetTable(
+  title: string,
+  unit: string,
+  u: FigureUncertainty,
+  value: number,
+): string {
   const total = u.standard ** 2 || 1;
   const rows = u.terms.map(
     (t) =>
       `<tr><td>${esc(t.name)}</td><td>${t.type}</td><td class="small">${esc(t.basis)}</td><td>${t.over_run === 'correlated' ? 'adds linearly' : 'averages down'}</td>${cell(`budget.${unit}`, t.u, sig(t.u, 3))}<td class="num">${((t.u ** 2 / total) * 100).toFixed(1)} %</td></tr>`,
   );
-  rows.push(`<tr class="total"><th colspan="4">combined standard uncertainty u_c</th>${cell(`budget.${unit}.standard`, u.standard, sig(u.standard, 3))}<td class="num">100 %</td></tr>`);
+  rows.push(
+    `<tr class="total"><th colspan="4">combined standard uncertainty u_c</th>${cell(`budget.${unit}.standard`, u.standard, sig(u.standard, 3))}<td class="num">100 %</td></tr>`,
+  );
   rows.push(
     `<tr class="total"><th colspan="4">expanded uncertainty U = k · u_c, k = ${u.k}</th>${cell(`budget.${unit}.expanded`, u.expanded, sig(u.expanded, 3))}<td class="num">${value !== 0 ? `${((u.expanded / Math.abs(value)) * 100).toFixed(2)} % of the value` : ''}</td></tr>`,
   );
@@ -126,9 +143,13 @@ function calibrationSection(f: RunFigures): string {
     const qc = cal[q];
     if (!qc) return [];
     const fit = qc.fit;
-    return [`<tr><td>${q}</td><td>${fit.model === 'offset' ? 'offset only' : 'gain and offset'}</td><td class="num">${sig(fit.gain, 7)} ± ${sig(fit.u_gain, 2)}</td><td class="num">${sig(fit.offset, 4)} ± ${sig(fit.u_offset, 2)}</td><td class="num">${sig(fit.residual_sd, 2)}</td><td class="num">${qc.points.length}</td></tr>`];
+    return [
+      `<tr><td>${q}</td><td>${fit.model === 'offset' ? 'offset only' : 'gain and offset'}</td><td class="num">${sig(fit.gain, 7)} ± ${sig(fit.u_gain, 2)}</td><td class="num">${sig(fit.offset, 4)} ± ${sig(fit.u_offset, 2)}</td><td class="num">${sig(fit.residual_sd, 2)}</td><td class="num">${qc.points.length}</td></tr>`,
+    ];
   });
-  const whose = c.own ? "the run's own calibration (the one in force when it was recorded)" : `another calibration than the live run's (${f.manifest.calibration.id})`;
+  const whose = c.own
+    ? "the run's own calibration (the one in force when it was recorded)"
+    : `another calibration than the live run's (${f.manifest.calibration.id})`;
   return `<p data-key="calibration_id" data-value="${esc(cal.id)}">Calibration <strong>${esc(cal.id)}</strong>: ${esc(whose)}${c.file ? `, from ${esc(c.file)}` : ''}. Made ${esc(cal.date)} for the rig “${esc(cal.rig)}” against ${esc(cal.reference_instrument)}.</p>
 <table data-table="calibration"><thead><tr><th>quantity</th><th>model</th><th>gain ± u</th><th>offset ± u</th><th>residual s</th><th>points</th></tr></thead><tbody>
 ${rows.join('\n')}
@@ -161,7 +182,8 @@ function eventsSection(f: RunFigures): string {
     .join(', ');
   if (ev.listed.length === 0) return '<p class="small">The run has no events.</p>';
   const rows = ev.listed.map(
-    (e) => `<tr${e.alarm ? ' class="alarm"' : ''}><td class="num">${hms(e.hostS)}</td><td>${e.alarm ? 'alarm' : 'info'}</td><td>${esc(e.name)}</td><td class="small">${esc(e.detail)}</td></tr>`,
+    (e) =>
+      `<tr${e.alarm ? ' class="alarm"' : ''}><td class="num">${hms(e.hostS)}</td><td>${e.alarm ? 'alarm' : 'info'}</td><td>${esc(e.name)}</td><td class="small">${esc(e.detail)}</td></tr>`,
   );
   return `<p class="small">By name: ${counts}.${ev.unlisted ? ` ${ev.unlisted} more (commands, the cautions and repeated rejected lines) are counted but not listed.` : ''}</p>
 <table data-table="events"><thead><tr><th>time</th><th>kind</th><th>event</th><th>detail</th></tr></thead><tbody>
@@ -179,17 +201,41 @@ export function renderRunReport(f: RunFigures, o: RenderOptions = {}): string {
   const m = f.manifest;
   const body = [
     runHeading(f),
-    section('figures', 'Figures', `${figuresTable(f)}${o.resultFile ? `<p class="small">The same figures are in ${esc(o.resultFile)}.</p>` : ''}`),
+    section(
+      'figures',
+      'Figures',
+      `${figuresTable(f)}${o.resultFile ? `<p class="small">The same figures are in ${esc(o.resultFile)}.</p>` : ''}`,
+    ),
     section('verdict', 'Against the rating', verdictBox(f.verdict, m.chemistry.profile.name)),
-    section('plots', 'Plots', `${voltageChargePlot([voltageChargeSeries(f.curve, 'loaded voltage', VOLTAGE_COLOUR)], f.result.cutoff_V)}\n${timePlots(f.curve, f.result.cutoff_V)}`),
+    section(
+      'plots',
+      'Plots',
+      `${voltageChargePlot([voltageChargeSeries(f.curve, 'loaded voltage', VOLTAGE_COLOUR)], f.result.cutoff_V)}\n${timePlots(f.curve, f.result.cutoff_V)}`,
+    ),
     section('capacity-by-voltage', 'Capacity and energy down to each voltage', stepsTable(f)),
-    section('dc-resistance', 'DC internal resistance', resistanceTable(f.resistance, f.frames.meanIntervalS)),
+    section(
+      'dc-resistance',
+      'DC internal resistance',
+      resistanceTable(f.resistance, f.frames.meanIntervalS),
+    ),
     section('uncertainty', 'Uncertainty budget', uncertaintySection(f)),
     section('calibration', 'Calibration', calibrationSection(f)),
     section('frames', 'Frames and the rig clock', framesSection(f)),
     section('events', 'Events and alarms', eventsSection(f)),
-    section('cautions', 'Cautions', `<ul>${cautionLines(m.chemistry.profile).map((c) => `<li>${esc(c)}</li>`).join('')}</ul>`),
-    f.notes.length ? section('notes', 'Notes on this recompute', `<ul>${f.notes.map((n) => `<li>${esc(n)}</li>`).join('')}</ul>`) : '',
+    section(
+      'cautions',
+      'Cautions',
+      `<ul>${cautionLines(m.chemistry.profile)
+        .map((c) => `<li>${esc(c)}</li>`)
+        .join('')}</ul>`,
+    ),
+    f.notes.length
+      ? section(
+          'notes',
+          'Notes on this recompute',
+          `<ul>${f.notes.map((n) => `<li>${esc(n)}</li>`).join('')}</ul>`,
+        )
+      : '',
   ].join('\n');
   return page(`Discharge report: ${m.label}`, body, o.generatedAt ?? new Date().toISOString());
 }

@@ -5,7 +5,12 @@
  */
 import { ErrorCodes, makeError } from '../core/errors.js';
 
-export function peukertHours(rateHours: number, capacityAh: number, k: number, currentA: number): number {
+export function peukertHours(
+  rateHours: number,
+  capacityAh: number,
+  k: number,
+  currentA: number,
+): number {
   return rateHours * (capacityAh / (currentA * rateHours)) ** k;
 }
 
@@ -41,7 +46,7 @@ export function fitPeukert(runs: readonly PeukertRun[], rateHours = 20): Peukert
   if (!currentsDiffer(usable)) {
     throw makeError(
       ErrorCodes.USAGE,
-      'Peukert\'s exponent needs at least two runs at currents more than 10 % apart, each with a positive duration',
+      "Peukert's exponent needs at least two runs at currents more than 10 % apart, each with a positive duration",
       'the runs given',
       'Discharge the same cell (or cells of one batch) at two or more different currents to the same end voltage, then report them together.',
     );
@@ -69,5 +74,12 @@ export function fitPeukert(runs: readonly PeukertRun[], rateHours = 20): Peukert
   // ln t = ln H + k·ln(C/H) − k·ln I, so the intercept gives C.
   const capacityAh = rateHours * Math.exp((intercept - Math.log(rateHours)) / k);
   const cs = usable.map((r) => r.currentA);
-  return { k, capacityAh, rateHours, uK, runs: n, currentRangeA: [Math.min(...cs), Math.max(...cs)] };
+  return {
+    k,
+    capacityAh,
+    rateHours,
+    uK,
+    runs: n,
+    currentRangeA: [Math.min(...cs), Math.max(...cs)],
+  };
 }

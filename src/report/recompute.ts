@@ -47,9 +47,20 @@ export type RecomputedResult = Omit<RunResult, 'end_reason'> & {
   rated_Ah: number | null;
   c_rate: number | null;
   percent_of_rated: number | null;
-  capacity_by_voltage: Array<{ V_per_cell: number; V: number; capacity_Ah: number | null; energy_Wh: number | null; load_on_s: number | null }>;
+  capacity_by_voltage: Array<{
+    V_per_cell: number;
+    V: number;
+    capacity_Ah: number | null;
+    energy_Wh: number | null;
+    load_on_s: number | null;
+  }>;
   verdict: { standard: string; label: string; outcome: string; summary: string } | null;
-  recomputed: { cellvigil_version: string; calibration_file: string | null; from_rows: number; cut_lines: number };
+  recomputed: {
+    cellvigil_version: string;
+    calibration_file: string | null;
+    from_rows: number;
+    cut_lines: number;
+  };
 };
 
 export interface RunFigures {
@@ -71,9 +82,22 @@ export interface RunFigures {
   stepPerCellV: number;
   resistance: ResistanceSummary;
   verdict: Verdict | null;
-  frames: { accepted: number; rejected: number; lost: number; gaps: number; rigRestarts: number; loadedFrames: number; meanIntervalS: number | null };
+  frames: {
+    accepted: number;
+    rejected: number;
+    lost: number;
+    gaps: number;
+    rigRestarts: number;
+    loadedFrames: number;
+    meanIntervalS: number | null;
+  };
   clock: { errorPpm: number | null; warning: boolean };
-  temperature: { startC: number | null; minC: number | null; maxC: number | null; endC: number | null };
+  temperature: {
+    startC: number | null;
+    minC: number | null;
+    maxC: number | null;
+    endC: number | null;
+  };
   current: { minA: number | null; maxA: number | null; noiseA: number | null };
   voltageNoiseV: number | null;
   loadSwitchOns: number;
@@ -95,7 +119,8 @@ const SETTLE_S = 5;
 const MAX_CODES = 65536;
 /** Thermistor counts remembered with their °C, by the count's low bits. */
 const CELSIUS_SLOTS = 4096;
-const rn = (x: number | null, digits: number): number | null => (x === null || !Number.isFinite(x) ? null : Number(x.toFixed(digits)));
+const rn = (x: number | null, digits: number): number | null =>
+  x === null || !Number.isFinite(x) ? null : Number(x.toFixed(digits));
 
 /** Running sum of squared differences between consecutive loaded readings. */
 class DiffNoise {
@@ -143,7 +168,15 @@ export class RunRecompute {
   private readonly codesV = new DistinctCodes();
   private readonly liveIds = new Set<string>();
   /** The row's values, filled in for every row (nothing keeps the object). */
-  private readonly point: CurvePoint = { hostS: 0, chargeAh: 0, energyWh: 0, volts: 0, amps: 0, celsius: 0, loadOn: false };
+  private readonly point: CurvePoint = {
+    hostS: 0,
+    chargeAh: 0,
+    energyWh: 0,
+    volts: 0,
+    amps: 0,
+    celsius: 0,
+    loadOn: false,
+  };
   /** °C by thermistor count, for the last count seen in each slot: the count wanders over a few values, each a logarithm to work out. */
   private readonly celsiusCounts = new Float64Array(CELSIUS_SLOTS).fill(-1);
   private readonly celsiusValues = new Float64Array(CELSIUS_SLOTS);
@@ -153,7 +186,14 @@ export class RunRecompute {
   private ended = false;
   private nominalAh = 0;
   private prevNominalA = 0;
-  private prev: { hostMs: number; loadOn: boolean; vRaw: number; iRaw: number; volts: number; amps: number } | null = null;
+  private prev: {
+    hostMs: number;
+    loadOn: boolean;
+    vRaw: number;
+    iRaw: number;
+    volts: number;
+    amps: number;
+  } | null = null;
   private nextResumption = 0;
   // Figures set on every row are numbers from the start, NaN for none yet: a field that has
   // held null keeps every number written to it in a new box.
@@ -184,7 +224,11 @@ export class RunRecompute {
     this.chain = new AnalogChain(manifest.rig.profile);
     this.corrector = applyCalibration(calibration);
     this.stepPerCellV = o.stepPerCellV ?? 0.05;
-    this.steps = new VoltageSteps({ stepPerCellV: this.stepPerCellV, cells: manifest.cells, cutoffPerCellV: manifest.cutoff_per_cell_V });
+    this.steps = new VoltageSteps({
+      stepPerCellV: this.stepPerCellV,
+      cells: manifest.cells,
+      cutoffPerCellV: manifest.cutoff_per_cell_V,
+    });
   }
 
   /** Feed every event first: a resumed run starts new integration segments where it resumed. */
@@ -207,7 +251,8 @@ export class RunRecompute {
     const slot = s.tRaw & (CELSIUS_SLOTS - 1);
     let celsius = this.celsiusValues[slot]!;
     if (this.celsiusCounts[slot] !== s.tRaw) {
-      celsius = chain.thermistorState(s.tRaw) === 'ok' ? c.temperature(chain.celsius(s.tRaw)) : Number.NaN;
+      celsius =
+        chain.thermistorState(s.tRaw) === 'ok' ? c.temperature(chain.celsius(s.tRaw)) : Number.NaN;
       this.celsiusCounts[slot] = s.tRaw;
       this.celsiusValues[slot] = celsius;
     }
@@ -219,7 +264,11 @@ export class RunRecompute {
     const resumptions = this.digest.result().resumptions;
     let unloggedS = 0;
     let resumed = prev !== null && hostMs < prev.hostMs;
-    while (prev !== null && this.nextResumption < resumptions.length && resumptions[this.nextResumption]!.atS * 1000 <= hostMs) {
+    while (
+      prev !== null &&
+      this.nextResumption < resumptions.length &&
+      resumptions[this.nextResumption]!.atS * 1000 <= hostMs
+    ) {
       const r = resumptions[this.nextResumption++]!;
       if (r.atS * 1000 >= prev.hostMs) {
         resumed = true;
@@ -228,7 +277,12 @@ export class RunRecompute {
     }
     if (resumed) {
       const integ = this.integrator;
-      integ.restore({ chargeAh: integ.chargeAh, energyWh: integ.energyWh, onMs: integ.onMs, bridgedAh: integ.bridgedAh });
+      integ.restore({
+        chargeAh: integ.chargeAh,
+        energyWh: integ.energyWh,
+        onMs: integ.onMs,
+        bridgedAh: integ.bridgedAh,
+      });
       if (unloggedS > 0 && !this.ended) {
         integ.addUnlogged(unloggedS * 1000, prev!.volts, prev!.amps);
         this.nominalAh += this.chain.amps(prev!.iRaw) * (unloggedS / 3600);
@@ -272,14 +326,19 @@ export class RunRecompute {
     if (integrate && s.state === 'ended') {
       this.ended = true;
       const live = this.liveTotals;
-      integrate = live === null || !prev?.loadOn || s.chargeAh !== live.chargeAh || s.energyWh !== live.energyWh;
+      integrate =
+        live === null ||
+        !prev?.loadOn ||
+        s.chargeAh !== live.chargeAh ||
+        s.energyWh !== live.energyWh;
     }
     if (integrate) {
       this.integrator.add(dtMs, volts, amps, loadOn, gap);
       const onA = loadOn ? nominalA : 0;
       this.nominalAh += ((this.prevNominalA + onA) / 2) * (dtMs / 3_600_000);
       this.prevNominalA = onA;
-      if (this.liveTotals === null) this.liveTotals = { chargeAh: s.chargeAh, energyWh: s.energyWh };
+      if (this.liveTotals === null)
+        this.liveTotals = { chargeAh: s.chargeAh, energyWh: s.energyWh };
       else {
         this.liveTotals.chargeAh = s.chargeAh;
         this.liveTotals.energyWh = s.energyWh;
@@ -305,7 +364,12 @@ export class RunRecompute {
     this.lastHostS = s.hostS;
   }
 
-  private measure(s: Readonly<SampleRecord>, prev: RunRecompute['prev'], point: Readonly<CurvePoint>, fresh: boolean): void {
+  private measure(
+    s: Readonly<SampleRecord>,
+    prev: RunRecompute['prev'],
+    point: Readonly<CurvePoint>,
+    fresh: boolean,
+  ): void {
     const { volts, amps, celsius, loadOn } = point;
     const onS = this.integrator.onMs / 1000;
     if (Number.isFinite(celsius)) {
@@ -322,9 +386,17 @@ export class RunRecompute {
       this.switchOns++;
       if (this.firstOnS === null) {
         this.firstOnS = s.hostS;
-        this.startC = this.restTemps.length > 0 ? this.restTemps.reduce((a, b) => a + b, 0) / this.restTemps.length : Number.isFinite(celsius) ? celsius : null;
+        this.startC =
+          this.restTemps.length > 0
+            ? this.restTemps.reduce((a, b) => a + b, 0) / this.restTemps.length
+            : Number.isFinite(celsius)
+              ? celsius
+              : null;
       }
-    } else if (Math.abs(amps - prev!.amps) <= LEVEL_CHANGE * Math.max(Math.abs(amps), Math.abs(prev!.amps))) {
+    } else if (
+      Math.abs(amps - prev!.amps) <=
+      LEVEL_CHANGE * Math.max(Math.abs(amps), Math.abs(prev!.amps))
+    ) {
       this.noiseI.add(prev!.iRaw, s.iRaw);
       this.noiseV.add(prev!.vRaw, s.vRaw);
     }
@@ -339,7 +411,14 @@ export class RunRecompute {
     this.steps.add(volts, true, this.integrator.chargeAh, this.integrator.energyWh, onS);
   }
 
-  finish(ctx: { folder: string; original: RunResult | null; checkpoint: Checkpoint | null; calibrationFile: string | null; cutLines: number; notes: string[] }): RunFigures {
+  finish(ctx: {
+    folder: string;
+    original: RunResult | null;
+    checkpoint: Checkpoint | null;
+    calibrationFile: string | null;
+    cutLines: number;
+    notes: string[];
+  }): RunFigures {
     const m = this.manifest;
     const cal = this.calibration;
     const ev = this.digest.result();
@@ -349,11 +428,21 @@ export class RunRecompute {
     const avgA = hours > 0 ? integ.chargeAh / hours : null;
     const ratedAh = this.o.ratedAh ?? null;
     const cutoffV = ev.cutoffChanges.at(-1)?.cutoffV ?? m.cutoff_V;
-    const rejected = ctx.original?.frames_rejected ?? Math.max(ctx.checkpoint?.frames_rejected ?? 0, ev.rejectedLines);
+    const rejected =
+      ctx.original?.frames_rejected ??
+      Math.max(ctx.checkpoint?.frames_rejected ?? 0, ev.rejectedLines);
     const errorPpm = this.rate.errorPpm();
     const resistance = this.resistance.result();
     const on = resistance.switch_on?.first ?? null;
-    const end = ev.end ?? (ctx.original ? { reason: ctx.original.end_reason, detail: ctx.original.end_detail ?? '', loadOffConfirmed: ctx.original.load_off_confirmed ?? true } : null);
+    const end =
+      ev.end ??
+      (ctx.original
+        ? {
+            reason: ctx.original.end_reason,
+            detail: ctx.original.end_detail ?? '',
+            loadOffConfirmed: ctx.original.load_off_confirmed ?? true,
+          }
+        : null);
 
     // Noise from raw counts, turned into corrected units through the chain and the calibration's gain.
     const sdI = this.noiseI.sd();
@@ -369,8 +458,11 @@ export class RunRecompute {
     };
 
     const base = buildResult({
-      end: end && end.reason !== 'interrupted' ? (end.reason as RunResult['end_reason']) : 'stopped',
-      detail: end?.detail ?? 'interrupted: the run folder has no result and its event log no end; figures are from the rows written',
+      end:
+        end && end.reason !== 'interrupted' ? (end.reason as RunResult['end_reason']) : 'stopped',
+      detail:
+        end?.detail ??
+        'interrupted: the run folder has no result and its event log no end; figures are from the rows written',
       loadOffConfirmed: end?.loadOffConfirmed ?? false,
       chargeAh: integ.chargeAh,
       energyWh: integ.energyWh,
@@ -429,17 +521,25 @@ export class RunRecompute {
       ...(this.o.rateTolerance !== undefined ? { rateTolerance: this.o.rateTolerance } : {}),
     });
     const steps = this.steps.rows();
-    const midpoint = integ.chargeAh > 0 ? loadedVoltageAtCharge(this.curve.buckets, integ.chargeAh / 2) : null;
+    const midpoint =
+      integ.chargeAh > 0 ? loadedVoltageAtCharge(this.curve.buckets, integ.chargeAh / 2) : null;
 
     const liveIds = [...this.liveIds];
     const appliedId = cal?.id ?? 'none';
     if (liveIds.some((id) => id !== appliedId)) {
-      notes.push(`The live run made its rows with calibration ${liveIds.join(', ')}; this recompute applies ${appliedId} to every row.`);
+      notes.push(
+        `The live run made its rows with calibration ${liveIds.join(', ')}; this recompute applies ${appliedId} to every row.`,
+      );
     } else if (this.liveTotals && integ.chargeAh > 0) {
       const d = integ.chargeAh / this.liveTotals.chargeAh - 1;
-      notes.push(`Same calibration as the live run: the recomputed capacity differs from the live total in the log by ${(d * 100).toExponential(1)} %.`);
+      notes.push(
+        `Same calibration as the live run: the recomputed capacity differs from the live total in the log by ${(d * 100).toExponential(1)} %.`,
+      );
     }
-    if (ctx.cutLines > 0) notes.push(`${ctx.cutLines} line${ctx.cutLines > 1 ? 's were' : ' was'} cut off by the interruption of the run and left out.`);
+    if (ctx.cutLines > 0)
+      notes.push(
+        `${ctx.cutLines} line${ctx.cutLines > 1 ? 's were' : ' was'} cut off by the interruption of the run and left out.`,
+      );
     const resumed = ev.resumptions.length;
     if (resumed > 0) {
       const dark = ev.resumptions.reduce((t, r) => t + r.unloggedS, 0);
@@ -447,7 +547,8 @@ export class RunRecompute {
         `The run was resumed ${resumed} time${resumed > 1 ? 's' : ''}; nothing is interpolated across the time it was down${dark > 0 ? `, and ${dark.toFixed(1)} s of load-on time with nothing logged are counted at the last logged current, in full as doubt in the budget` : ''}.`,
       );
     }
-    if (!end) notes.push('The run was interrupted: it has no result.json and its event log no end.');
+    if (!end)
+      notes.push('The run was interrupted: it has no result.json and its event log no end.');
     const spanS = this.rows > 0 ? this.lastHostS - this.firstHostS : 0;
 
     const result: RecomputedResult = {
@@ -466,15 +567,33 @@ export class RunRecompute {
         energy_Wh: rn(s.energyWh, 6),
         load_on_s: rn(s.loadOnS, 3),
       })),
-      verdict: verdict ? { standard: verdict.standard, label: verdict.label, outcome: verdict.outcome, summary: verdict.summary } : null,
-      recomputed: { cellvigil_version: PACKAGE_VERSION, calibration_file: ctx.calibrationFile, from_rows: this.rows, cut_lines: ctx.cutLines },
+      verdict: verdict
+        ? {
+            standard: verdict.standard,
+            label: verdict.label,
+            outcome: verdict.outcome,
+            summary: verdict.summary,
+          }
+        : null,
+      recomputed: {
+        cellvigil_version: PACKAGE_VERSION,
+        calibration_file: ctx.calibrationFile,
+        from_rows: this.rows,
+        cut_lines: ctx.cutLines,
+      },
     };
     return {
       folder: ctx.folder,
       manifest: m,
       result,
       original: ctx.original,
-      calibration: { applied: cal, id: appliedId, own: appliedId === m.calibration.id, file: ctx.calibrationFile, liveIds },
+      calibration: {
+        applied: cal,
+        id: appliedId,
+        own: appliedId === m.calibration.id,
+        file: ctx.calibrationFile,
+        liveIds,
+      },
       steps,
       stepPerCellV: this.stepPerCellV,
       resistance,
@@ -488,7 +607,10 @@ export class RunRecompute {
         loadedFrames: this.loadedFrames,
         meanIntervalS: this.rows > 1 ? spanS / (this.rows - 1) : null,
       },
-      clock: { errorPpm: rn(errorPpm, 0), warning: errorPpm !== null && Math.abs(errorPpm) > CLOCK_WARN_PPM },
+      clock: {
+        errorPpm: rn(errorPpm, 0),
+        warning: errorPpm !== null && Math.abs(errorPpm) > CLOCK_WARN_PPM,
+      },
       temperature: {
         startC,
         minC: Number.isFinite(this.minC) ? this.minC : null,
@@ -509,13 +631,16 @@ export class RunRecompute {
 
 /** Recomputes a run folder, streaming its events and samples. */
 export async function recomputeRun(run: RunFolder, o: RecomputeOptions = {}): Promise<RunFigures> {
-  const calibration = o.calibration === undefined ? run.manifest.calibration.content : o.calibration;
+  const calibration =
+    o.calibration === undefined ? run.manifest.calibration.content : o.calibration;
   const core = new RunRecompute(run.manifest, calibration, o);
   let cutLines = 0;
   const notes = [...run.notes];
   const onCutLine = (c: { file: string; line: number }): void => {
     cutLines++;
-    notes.push(`${c.file} line ${c.line} was cut off (the run was interrupted while writing it) and is left out.`);
+    notes.push(
+      `${c.file} line ${c.line} was cut off (the run was interrupted while writing it) and is left out.`,
+    );
   };
   for await (const e of readRunEvents(run, { onCutLine })) core.event(e);
   const total = run.sampleFiles.reduce((t, f) => t + f.bytes, 0);
@@ -526,7 +651,17 @@ export async function recomputeRun(run: RunFolder, o: RecomputeOptions = {}): Pr
         o.onProgress!(done, total);
       }
     : undefined;
-  await forEachRunSample(run, { onCutLine, ...(onBytes ? { onBytes } : {}) }, (s) => core.sample(s));
-  const calibrationFile = o.calibration === undefined ? run.manifest.calibration.file : (o.calibrationFile ?? null);
-  return core.finish({ folder: run.dir, original: run.result, checkpoint: run.checkpoint, calibrationFile, cutLines, notes });
+  await forEachRunSample(run, { onCutLine, ...(onBytes ? { onBytes } : {}) }, (s) =>
+    core.sample(s),
+  );
+  const calibrationFile =
+    o.calibration === undefined ? run.manifest.calibration.file : (o.calibrationFile ?? null);
+  return core.finish({
+    folder: run.dir,
+    original: run.result,
+    checkpoint: run.checkpoint,
+    calibrationFile,
+    cutLines,
+    notes,
+  });
 }

@@ -56,24 +56,46 @@ export function reportFileName(figures: RunFigures): string {
 }
 
 function checkRequest(r: ReportRequest): void {
-  if (r.folders.length === 0) throw makeError(ErrorCodes.USAGE, 'no run folder given', 'cellvigil report', 'Name one or more run folders, e.g. cellvigil report runs/20261202-110000-demo.');
+  if (r.folders.length === 0)
+    throw makeError(
+      ErrorCodes.USAGE,
+      'no run folder given',
+      'cellvigil report',
+      'Name one or more run folders, e.g. cellvigil report runs/20261202-110000-demo.',
+    );
   if (r.ratedAh !== undefined && !(r.ratedAh > 0 && Number.isFinite(r.ratedAh))) {
-    throw makeError(ErrorCodes.USAGE, `rated capacity ${r.ratedAh} is not a positive number of Ah`, '--rated', 'Give the capacity printed on the cell in Ah, e.g. --rated 2.6 for 2600 mAh.');
+    throw makeError(
+      ErrorCodes.USAGE,
+      `rated capacity ${r.ratedAh} is not a positive number of Ah`,
+      '--rated',
+      'Give the capacity printed on the cell in Ah, e.g. --rated 2.6 for 2600 mAh.',
+    );
   }
-  if (r.stepPerCellV !== undefined && !(r.stepPerCellV >= MIN_STEP_V && r.stepPerCellV <= MAX_STEP_V)) {
-    throw makeError(ErrorCodes.USAGE, `step ${r.stepPerCellV} V is outside ${MIN_STEP_V} to ${MAX_STEP_V} V per cell`, '--step', 'Give the voltage step per cell in volts, e.g. --step 0.05.');
+  if (
+    r.stepPerCellV !== undefined &&
+    !(r.stepPerCellV >= MIN_STEP_V && r.stepPerCellV <= MAX_STEP_V)
+  ) {
+    throw makeError(
+      ErrorCodes.USAGE,
+      `step ${r.stepPerCellV} V is outside ${MIN_STEP_V} to ${MAX_STEP_V} V per cell`,
+      '--step',
+      'Give the voltage step per cell in volts, e.g. --step 0.05.',
+    );
   }
 }
 
 function calibrationNotes(run: RunFolder, cal: Calibration | null): string[] {
   const rigName = run.manifest.rig.profile.name;
   if (!cal || rigName === undefined || cal.rig === rigName) return [];
-  return [`The calibration ${cal.id} was made for the rig “${cal.rig}”; this run was recorded on “${rigName}”. Check that it is the same board.`];
+  return [
+    `The calibration ${cal.id} was made for the rig “${cal.rig}”; this run was recorded on “${rigName}”. Check that it is the same board.`,
+  ];
 }
 
 export async function reportRuns(r: ReportRequest): Promise<ReportOutcome> {
   checkRequest(r);
-  const calibration = r.calibrationFile !== undefined ? await loadCalibration(r.calibrationFile) : undefined;
+  const calibration =
+    r.calibrationFile !== undefined ? await loadCalibration(r.calibrationFile) : undefined;
   const generatedAt = r.generatedAt ?? new Date().toISOString();
   const runs: ReportedRun[] = [];
   for (const [i, folder] of r.folders.entries()) {
@@ -83,20 +105,36 @@ export async function reportRuns(r: ReportRequest): Promise<ReportOutcome> {
       ...(calibration !== undefined ? { calibration, calibrationFile: r.calibrationFile! } : {}),
       ...(r.ratedAh !== undefined ? { ratedAh: r.ratedAh } : {}),
       ...(r.stepPerCellV !== undefined ? { stepPerCellV: r.stepPerCellV } : {}),
-      ...(r.onProgress ? { onProgress: (done: number, total: number) => r.onProgress!(i, r.folders.length, done, total) } : {}),
+      ...(r.onProgress
+        ? {
+            onProgress: (done: number, total: number) =>
+              r.onProgress!(i, r.folders.length, done, total),
+          }
+        : {}),
     });
     const resultName = resultFileName(run, figures.calibration.id);
     const resultPath = join(folder, resultName);
-    const reportPath = r.out !== undefined && r.folders.length === 1 ? r.out : join(folder, reportFileName(figures));
+    const reportPath =
+      r.out !== undefined && r.folders.length === 1 ? r.out : join(folder, reportFileName(figures));
     await write(resultPath, () => writeJsonAtomic(resultPath, figures.result));
-    await write(reportPath, () => writeFile(reportPath, renderRunReport(figures, { generatedAt, resultFile: resultName })));
+    await write(reportPath, () =>
+      writeFile(reportPath, renderRunReport(figures, { generatedAt, resultFile: resultName })),
+    );
     runs.push({ folder, resultPath, reportPath, figures });
   }
   let comparisonPath: string | null = null;
   if (runs.length > 1) {
     comparisonPath = r.out ?? COMPARISON_FILE;
     const path = comparisonPath;
-    await write(path, () => writeFile(path, renderComparisonReport(runs.map((x) => x.figures), { generatedAt })));
+    await write(path, () =>
+      writeFile(
+        path,
+        renderComparisonReport(
+          runs.map((x) => x.figures),
+          { generatedAt },
+        ),
+      ),
+    );
   }
   return { runs, comparisonPath };
 }
@@ -105,6 +143,11 @@ async function write(path: string, fn: () => Promise<void>): Promise<void> {
   try {
     await fn();
   } catch (e) {
-    throw makeError(ErrorCodes.RUN_FOLDER, `cannot write ${basename(path)}: ${(e as Error).message}`, path, 'Check that the folder exists and is writable (or give another file with --out).');
+    throw makeError(
+      ErrorCodes.RUN_FOLDER,
+      `cannot write ${basename(path)}: ${(e as Error).message}`,
+      path,
+      'Check that the folder exists and is writable (or give another file with --out).',
+    );
   }
 }

@@ -20,11 +20,17 @@ export function spanOf(curve: readonly CurveBucket[]): { t0: number; t1: number 
 }
 
 /** Loaded voltage against charge delivered. */
-export function voltageChargeSeries(curve: readonly CurveBucket[], name: string, color: string): PlotSeries {
+export function voltageChargeSeries(
+  curve: readonly CurveBucket[],
+  name: string,
+  color: string,
+): PlotSeries {
   return {
     name,
     color,
-    points: curve.filter((b) => b.nOn > 0).map((b) => [(b.q0 + b.q1) / 2, b.vOnSum / b.nOn] as const),
+    points: curve
+      .filter((b) => b.nOn > 0)
+      .map((b) => [(b.q0 + b.q1) / 2, b.vOnSum / b.nOn] as const),
   };
 }
 
@@ -32,9 +38,18 @@ type Pick = (b: CurveBucket) => { mean: number; lo: number; hi: number } | null;
 
 const pickVoltage: Pick = (b) => ({ mean: b.vSum / b.n, lo: b.vMin, hi: b.vMax });
 const pickCurrent: Pick = (b) => ({ mean: b.iSum / b.n, lo: b.iMin, hi: b.iMax });
-const pickTemperature: Pick = (b) => (b.tempN > 0 ? { mean: b.tempSum / b.tempN, lo: Number.NaN, hi: Number.NaN } : null);
+const pickTemperature: Pick = (b) =>
+  b.tempN > 0 ? { mean: b.tempSum / b.tempN, lo: Number.NaN, hi: Number.NaN } : null;
 
-function timeSeries(curve: readonly CurveBucket[], pick: Pick, unit: TimeUnit, origin: number, name: string, color: string, band: boolean): PlotSeries {
+function timeSeries(
+  curve: readonly CurveBucket[],
+  pick: Pick,
+  unit: TimeUnit,
+  origin: number,
+  name: string,
+  color: string,
+  band: boolean,
+): PlotSeries {
   const points: Array<readonly [number, number]> = [];
   const bandPts: Array<readonly [number, number, number]> = [];
   for (const b of curve) {
@@ -55,7 +70,9 @@ export function voltageChargePlot(series: PlotSeries[], cutoffV: number | null):
     x: { label: 'charge delivered (Ah)', min: 0 },
     y: { label: 'voltage (V)' },
     series,
-    ...(cutoffV !== null ? { rules: [{ y: cutoffV, label: `cutoff ${cutoffV.toFixed(3)} V`, color: RULE_COLOUR }] } : {}),
+    ...(cutoffV !== null
+      ? { rules: [{ y: cutoffV, label: `cutoff ${cutoffV.toFixed(3)} V`, color: RULE_COLOUR }] }
+      : {}),
   });
 }
 
@@ -64,7 +81,15 @@ export function timePlots(curve: readonly CurveBucket[], cutoffV: number | null)
   const { t0, t1 } = spanOf(curve);
   const unit = timeUnitFor(t1 - t0);
   const x = { label: `time since the start (${unit.name})`, min: 0 };
-  const temp = timeSeries(curve, pickTemperature, unit, t0, 'temperature', TEMPERATURE_COLOUR, false);
+  const temp = timeSeries(
+    curve,
+    pickTemperature,
+    unit,
+    t0,
+    'temperature',
+    TEMPERATURE_COLOUR,
+    false,
+  );
   return [
     linePlot({
       id: 'voltage-time',
@@ -72,7 +97,9 @@ export function timePlots(curve: readonly CurveBucket[], cutoffV: number | null)
       x,
       y: { label: 'voltage (V)' },
       series: [timeSeries(curve, pickVoltage, unit, t0, 'voltage', VOLTAGE_COLOUR, true)],
-      ...(cutoffV !== null ? { rules: [{ y: cutoffV, label: `cutoff ${cutoffV.toFixed(3)} V`, color: RULE_COLOUR }] } : {}),
+      ...(cutoffV !== null
+        ? { rules: [{ y: cutoffV, label: `cutoff ${cutoffV.toFixed(3)} V`, color: RULE_COLOUR }] }
+        : {}),
       height: 240,
     }),
     linePlot({
@@ -83,12 +110,21 @@ export function timePlots(curve: readonly CurveBucket[], cutoffV: number | null)
       series: [timeSeries(curve, pickCurrent, unit, t0, 'current', CURRENT_COLOUR, true)],
       height: 240,
     }),
-    linePlot({ id: 'temperature-time', title: 'Cell temperature against time', x, y: { label: 'temperature (°C)', minSpan: 4 }, series: [temp], height: 240 }),
+    linePlot({
+      id: 'temperature-time',
+      title: 'Cell temperature against time',
+      x,
+      y: { label: 'temperature (°C)', minSpan: 4 },
+      series: [temp],
+      height: 240,
+    }),
   ].join('\n');
 }
 
 /** Loaded voltage of several runs against time since each one's start. */
-export function overlayVoltageTime(runs: Array<{ curve: readonly CurveBucket[]; name: string; color: string }>): string {
+export function overlayVoltageTime(
+  runs: Array<{ curve: readonly CurveBucket[]; name: string; color: string }>,
+): string {
   const longest = Math.max(0, ...runs.map((r) => spanOf(r.curve).t1 - spanOf(r.curve).t0));
   const unit = timeUnitFor(longest);
   return linePlot({
@@ -96,6 +132,8 @@ export function overlayVoltageTime(runs: Array<{ curve: readonly CurveBucket[]; 
     title: 'Voltage against time, all runs',
     x: { label: `time since each run's start (${unit.name})`, min: 0 },
     y: { label: 'voltage (V)' },
-    series: runs.map((r) => timeSeries(r.curve, pickVoltage, unit, spanOf(r.curve).t0, r.name, r.color, false)),
+    series: runs.map((r) =>
+      timeSeries(r.curve, pickVoltage, unit, spanOf(r.curve).t0, r.name, r.color, false),
+    ),
   });
 }

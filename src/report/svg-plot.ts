@@ -40,11 +40,17 @@ export function niceTicks(min: number, max: number, target = 6): number[] {
   const mag = 10 ** Math.floor(Math.log10(raw));
   const step = ([1, 2, 5, 10].find((m) => m * mag >= raw) ?? 10) * mag;
   const out: number[] = [];
-  for (let v = Math.ceil(min / step - 1e-9) * step; v <= max + step * 1e-9; v += step) out.push(Number(v.toPrecision(12)));
+  for (let v = Math.ceil(min / step - 1e-9) * step; v <= max + step * 1e-9; v += step)
+    out.push(Number(v.toPrecision(12)));
   return out;
 }
 
-function extent(values: number[], fixedMin?: number, fixedMax?: number, minSpan = 0): [number, number] {
+function extent(
+  values: number[],
+  fixedMin?: number,
+  fixedMax?: number,
+  minSpan = 0,
+): [number, number] {
   const finite = values.filter(Number.isFinite);
   if (finite.length > 0 && fixedMin === undefined && fixedMax === undefined) {
     const lo = Math.min(...finite);
@@ -75,7 +81,9 @@ export function linePlot(p: PlotSpec): string {
   const H = p.height ?? 300;
   const m = { l: 64, r: 16, t: 34, b: 46 };
   const xs = p.series.flatMap((s) => s.points.map((q) => q[0]));
-  const ys = p.series.flatMap((s) => [...s.points.map((q) => q[1]), ...(s.band ?? []).flatMap((b) => [b[1], b[2]])]).concat((p.rules ?? []).map((r) => r.y));
+  const ys = p.series
+    .flatMap((s) => [...s.points.map((q) => q[1]), ...(s.band ?? []).flatMap((b) => [b[1], b[2]])])
+    .concat((p.rules ?? []).map((r) => r.y));
   const [x0, x1] = extent(xs, p.x.min, p.x.max, p.x.minSpan);
   const [y0, y1] = extent(ys, p.y.min, p.y.max, p.y.minSpan);
   const px = (x: number): number => m.l + ((x - x0) / (x1 - x0)) * (W - m.l - m.r);
@@ -94,27 +102,47 @@ export function linePlot(p: PlotSpec): string {
   const yStep = (yt[1] ?? y1) - (yt[0] ?? y0) || 1;
   for (const v of yt) {
     if (v < y0 || v > y1) continue;
-    out.push(`<line x1="${m.l}" x2="${W - m.r}" y1="${f(py(v))}" y2="${f(py(v))}" class="cv-grid"/>`);
-    out.push(`<text x="${m.l - 6}" y="${f(py(v) + 4)}" text-anchor="end" class="cv-tick">${label(v, yStep)}</text>`);
+    out.push(
+      `<line x1="${m.l}" x2="${W - m.r}" y1="${f(py(v))}" y2="${f(py(v))}" class="cv-grid"/>`,
+    );
+    out.push(
+      `<text x="${m.l - 6}" y="${f(py(v) + 4)}" text-anchor="end" class="cv-tick">${label(v, yStep)}</text>`,
+    );
   }
   for (const v of xt) {
     if (v < x0 || v > x1) continue;
-    out.push(`<line x1="${f(px(v))}" x2="${f(px(v))}" y1="${m.t}" y2="${H - m.b}" class="cv-grid"/>`);
-    out.push(`<text x="${f(px(v))}" y="${H - m.b + 16}" text-anchor="middle" class="cv-tick">${label(v, xStep)}</text>`);
+    out.push(
+      `<line x1="${f(px(v))}" x2="${f(px(v))}" y1="${m.t}" y2="${H - m.b}" class="cv-grid"/>`,
+    );
+    out.push(
+      `<text x="${f(px(v))}" y="${H - m.b + 16}" text-anchor="middle" class="cv-tick">${label(v, xStep)}</text>`,
+    );
   }
-  out.push(`<rect x="${m.l}" y="${m.t}" width="${W - m.l - m.r}" height="${H - m.t - m.b}" class="cv-frame"/>`);
-  out.push(`<text x="${(m.l + W - m.r) / 2}" y="${H - 8}" text-anchor="middle" class="cv-axis">${esc(p.x.label)}</text>`);
-  out.push(`<text transform="translate(16 ${(m.t + H - m.b) / 2}) rotate(-90)" text-anchor="middle" class="cv-axis">${esc(p.y.label)}</text>`);
+  out.push(
+    `<rect x="${m.l}" y="${m.t}" width="${W - m.l - m.r}" height="${H - m.t - m.b}" class="cv-frame"/>`,
+  );
+  out.push(
+    `<text x="${(m.l + W - m.r) / 2}" y="${H - 8}" text-anchor="middle" class="cv-axis">${esc(p.x.label)}</text>`,
+  );
+  out.push(
+    `<text transform="translate(16 ${(m.t + H - m.b) / 2}) rotate(-90)" text-anchor="middle" class="cv-axis">${esc(p.y.label)}</text>`,
+  );
   for (const r of p.rules ?? []) {
-    out.push(`<line x1="${m.l}" x2="${W - m.r}" y1="${f(py(r.y))}" y2="${f(py(r.y))}" stroke="${r.color}" stroke-dasharray="6 4" stroke-width="1"/>`);
-    out.push(`<text x="${W - m.r - 4}" y="${f(py(r.y) - 4)}" text-anchor="end" class="cv-rule" fill="${r.color}">${esc(r.label)}</text>`);
+    out.push(
+      `<line x1="${m.l}" x2="${W - m.r}" y1="${f(py(r.y))}" y2="${f(py(r.y))}" stroke="${r.color}" stroke-dasharray="6 4" stroke-width="1"/>`,
+    );
+    out.push(
+      `<text x="${W - m.r - 4}" y="${f(py(r.y) - 4)}" text-anchor="end" class="cv-rule" fill="${r.color}">${esc(r.label)}</text>`,
+    );
   }
   out.push(`<g class="cv-lines">`);
   for (const s of p.series) {
     if (s.band && s.band.length > 1) {
       const upper = s.band.map((b) => `${f(px(b[0]))},${f(py(b[2]))}`);
       const lower = [...s.band].reverse().map((b) => `${f(px(b[0]))},${f(py(b[1]))}`);
-      out.push(`<polygon points="${[...upper, ...lower].join(' ')}" fill="${s.color}" fill-opacity="0.16" stroke="none"/>`);
+      out.push(
+        `<polygon points="${[...upper, ...lower].join(' ')}" fill="${s.color}" fill-opacity="0.16" stroke="none"/>`,
+      );
     }
     if (s.points.length > 0) {
       out.push(

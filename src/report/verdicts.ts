@@ -54,10 +54,26 @@ interface Method {
 }
 
 const METHODS: Record<string, Method> = {
-  nimh: { standard: 'IEC 61951-2', endPerCellV: 1.0, charge: 'charged at 0.1 It for 16 h and rested 1 to 4 h before the discharge' },
-  nicd: { standard: 'IEC 61951-1', endPerCellV: 1.0, charge: 'charged at 0.1 It for 16 h and rested 1 to 4 h before the discharge' },
-  'li-ion': { standard: 'IEC 61960-3', endPerCellV: null, charge: "charged by the maker's method before the discharge" },
-  lifepo4: { standard: 'IEC 61960-3', endPerCellV: null, charge: "charged by the maker's method before the discharge" },
+  nimh: {
+    standard: 'IEC 61951-2',
+    endPerCellV: 1.0,
+    charge: 'charged at 0.1 It for 16 h and rested 1 to 4 h before the discharge',
+  },
+  nicd: {
+    standard: 'IEC 61951-1',
+    endPerCellV: 1.0,
+    charge: 'charged at 0.1 It for 16 h and rested 1 to 4 h before the discharge',
+  },
+  'li-ion': {
+    standard: 'IEC 61960-3',
+    endPerCellV: null,
+    charge: "charged by the maker's method before the discharge",
+  },
+  lifepo4: {
+    standard: 'IEC 61960-3',
+    endPerCellV: null,
+    charge: "charged by the maker's method before the discharge",
+  },
 };
 
 /** The chemistries a rated-capacity check exists for. */
@@ -81,9 +97,16 @@ export function ratedCapacityVerdict(x: VerdictInput): Verdict | null {
   const tolerance = x.rateTolerance ?? DEFAULT_RATE_TOLERANCE;
   const hours = x.durationS / 3600;
   const methodCurrentA = x.ratedAh !== null ? 0.2 * x.ratedAh : null;
-  const endText = m.endPerCellV !== null ? `${f(m.endPerCellV, 1)} V per cell` : `the maker's end voltage (taken as this run's cutoff, ${f(x.cutoffPerCellV, 2)} V per cell)`;
+  const endText =
+    m.endPerCellV !== null
+      ? `${f(m.endPerCellV, 1)} V per cell`
+      : `the maker's end voltage (taken as this run's cutoff, ${f(x.cutoffPerCellV, 2)} V per cell)`;
   const spread: string[] = [];
-  if (methodCurrentA !== null && (x.minCurrentA < methodCurrentA * (1 - tolerance) || x.maxCurrentA > methodCurrentA * (1 + tolerance))) {
+  if (
+    methodCurrentA !== null &&
+    (x.minCurrentA < methodCurrentA * (1 - tolerance) ||
+      x.maxCurrentA > methodCurrentA * (1 + tolerance))
+  ) {
     spread.push(
       `The loaded current ranged from ${f(x.minCurrentA, 3)} A to ${f(x.maxCurrentA, 3)} A against 0.2 It = ${f(methodCurrentA, 3)} A; the method holds it constant, a resistor load lets it fall with the voltage.`,
     );
@@ -95,7 +118,10 @@ export function ratedCapacityVerdict(x: VerdictInput): Verdict | null {
     outcome,
     summary,
     reasons,
-    cautions: [`The method asks for the cell to have been ${m.charge}; the run folder cannot show that.`, ...spread],
+    cautions: [
+      `The method asks for the cell to have been ${m.charge}; the run folder cannot show that.`,
+      ...spread,
+    ],
     methodCurrentA,
     requiredHours: REQUIRED_HOURS,
     hours,
@@ -108,29 +134,60 @@ export function ratedCapacityVerdict(x: VerdictInput): Verdict | null {
     const ratio = x.averageCurrentA / methodCurrentA!;
     const dev = ratio - 1;
     if (Math.abs(dev) > tolerance) {
-      const off = ratio > 2 || ratio < 0.5 ? `${f(ratio, 2)} times` : `${dev > 0 ? '+' : ''}${f(dev * 100, 1)} % from`;
-      deviations.push(`the mean current was ${f(x.averageCurrentA, 3)} A, ${off} 0.2 It = ${f(methodCurrentA!, 3)} A (allowed here: ±${f(tolerance * 100, 0)} %)`);
+      const off =
+        ratio > 2 || ratio < 0.5
+          ? `${f(ratio, 2)} times`
+          : `${dev > 0 ? '+' : ''}${f(dev * 100, 1)} % from`;
+      deviations.push(
+        `the mean current was ${f(x.averageCurrentA, 3)} A, ${off} 0.2 It = ${f(methodCurrentA!, 3)} A (allowed here: ±${f(tolerance * 100, 0)} %)`,
+      );
     }
   }
   if (m.endPerCellV !== null && Math.abs(x.cutoffPerCellV - m.endPerCellV) > END_VOLTAGE_SLACK_V) {
-    deviations.push(`the run ended at ${f(x.cutoffPerCellV, 3)} V per cell; the method ends at ${f(m.endPerCellV, 1)} V per cell`);
+    deviations.push(
+      `the run ended at ${f(x.cutoffPerCellV, 3)} V per cell; the method ends at ${f(m.endPerCellV, 1)} V per cell`,
+    );
   }
   if (x.startTemperatureC === null) {
     deviations.push('the cell temperature is unknown, so 20 ± 5 °C cannot be confirmed');
   } else if (x.startTemperatureC < TEMPERATURE_LOW_C || x.startTemperatureC > TEMPERATURE_HIGH_C) {
-    deviations.push(`the cell was at ${f(x.startTemperatureC, 1)} °C at the start, outside 20 ± 5 °C`);
+    deviations.push(
+      `the cell was at ${f(x.startTemperatureC, 1)} °C at the start, outside 20 ± 5 °C`,
+    );
   }
-  if (x.loadSwitchOns > 1) deviations.push(`the load was switched on ${x.loadSwitchOns} times; the method is one continuous discharge`);
+  if (x.loadSwitchOns > 1)
+    deviations.push(
+      `the load was switched on ${x.loadSwitchOns} times; the method is one continuous discharge`,
+    );
   if (deviations.length > 0) {
-    return verdict('method_not_followed', `No verdict: the run did not follow the method of ${m.standard}.`, deviations);
+    return verdict(
+      'method_not_followed',
+      `No verdict: the run did not follow the method of ${m.standard}.`,
+      deviations,
+    );
   }
   const basis = `mean current ${f(x.averageCurrentA, 3)} A against 0.2 It = ${f(methodCurrentA!, 3)} A; ${x.startTemperatureC!.toFixed(1)} °C at the start`;
   if (hours >= REQUIRED_HOURS) {
-    const stopped = x.endReason !== 'cutoff' ? ` (the run was stopped by ${x.endReason} after that, before the end voltage)` : '';
-    return verdict('meets', `Meets its rating: the discharge lasted ${f(hours, 2)} h, at least ${REQUIRED_HOURS} h${stopped}.`, [basis]);
+    const stopped =
+      x.endReason !== 'cutoff'
+        ? ` (the run was stopped by ${x.endReason} after that, before the end voltage)`
+        : '';
+    return verdict(
+      'meets',
+      `Meets its rating: the discharge lasted ${f(hours, 2)} h, at least ${REQUIRED_HOURS} h${stopped}.`,
+      [basis],
+    );
   }
   if (x.endReason === 'cutoff') {
-    return verdict('does_not_meet', `Does not meet its rating: the discharge reached the end voltage after ${f(hours, 2)} h, less than ${REQUIRED_HOURS} h.`, [basis]);
+    return verdict(
+      'does_not_meet',
+      `Does not meet its rating: the discharge reached the end voltage after ${f(hours, 2)} h, less than ${REQUIRED_HOURS} h.`,
+      [basis],
+    );
   }
-  return verdict('incomplete', `No verdict: the run ended (${x.endReason}) after ${f(hours, 2)} h, before the end voltage and before ${REQUIRED_HOURS} h.`, [basis]);
+  return verdict(
+    'incomplete',
+    `No verdict: the run ended (${x.endReason}) after ${f(hours, 2)} h, before the end voltage and before ${REQUIRED_HOURS} h.`,
+    [basis],
+  );
 }

@@ -24,7 +24,11 @@ export interface VoltageStepOptions {
 }
 
 /** The step levels per cell, highest first: multiples of the step below `startPerCellV`, then the cutoff. */
-export function stepLevels(startPerCellV: number, stepPerCellV: number, cutoffPerCellV: number): number[] {
+export function stepLevels(
+  startPerCellV: number,
+  stepPerCellV: number,
+  cutoffPerCellV: number,
+): number[] {
   const round = (x: number): number => Math.round(x * 1e6) / 1e6;
   const top = Math.ceil(round(startPerCellV / stepPerCellV)) - 1;
   const bottom = Math.ceil(round(cutoffPerCellV / stepPerCellV));
@@ -37,7 +41,8 @@ export function stepLevels(startPerCellV: number, stepPerCellV: number, cutoffPe
 export class VoltageSteps {
   private levels: number[] | null = null;
   private next = 0;
-  private pending: { chargeAh: number; energyWh: number; loadOnS: number; frames: number } | null = null;
+  private pending: { chargeAh: number; energyWh: number; loadOnS: number; frames: number } | null =
+    null;
   private readonly passed: Array<{ chargeAh: number; energyWh: number; loadOnS: number }> = [];
   private readonly confirm: number;
 
@@ -47,7 +52,8 @@ export class VoltageSteps {
 
   add(volts: number, loadOn: boolean, chargeAh: number, energyWh: number, loadOnS: number): void {
     if (!loadOn || !Number.isFinite(volts)) return;
-    if (this.levels === null) this.levels = stepLevels(volts / this.o.cells, this.o.stepPerCellV, this.o.cutoffPerCellV);
+    if (this.levels === null)
+      this.levels = stepLevels(volts / this.o.cells, this.o.stepPerCellV, this.o.cutoffPerCellV);
     const level = this.levels[this.next];
     if (level === undefined) return;
     if (volts >= level * this.o.cells) {

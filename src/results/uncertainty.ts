@@ -76,7 +76,8 @@ export function combineContributions(
 ): number {
   let v = 0;
   for (let i = 0; i < contributions.length; i++) {
-    for (let j = 0; j < contributions.length; j++) v += contributions[i]! * contributions[j]! * r(i, j);
+    for (let j = 0; j < contributions.length; j++)
+      v += contributions[i]! * contributions[j]! * r(i, j);
   }
   return Math.sqrt(Math.max(0, v));
 }
@@ -87,13 +88,20 @@ export function combineContributions(
  * stated relative uncertainty among the points is taken as that common part.
  */
 export function referenceScaleRelU(q: QuantityCalibration): number | null {
-  const rel = q.points.filter((p) => p.reference !== 0).map((p) => p.reference_u / Math.abs(p.reference));
+  const rel = q.points
+    .filter((p) => p.reference !== 0)
+    .map((p) => p.reference_u / Math.abs(p.reference));
   return rel.length > 0 ? Math.min(...rel) : null;
 }
 
 function fitU(q: QuantityCalibration, nominal: number, time: number): number {
   const f = q.fit;
-  return Math.sqrt(Math.max(0, (nominal * f.u_gain) ** 2 + (time * f.u_offset) ** 2 + 2 * nominal * time * f.cov_gain_offset));
+  return Math.sqrt(
+    Math.max(
+      0,
+      (nominal * f.u_gain) ** 2 + (time * f.u_offset) ** 2 + 2 * nominal * time * f.cov_gain_offset,
+    ),
+  );
 }
 
 function combine(terms: UncertaintyTerm[], basis: string): FigureUncertainty {
@@ -104,7 +112,10 @@ function combine(terms: UncertaintyTerm[], basis: string): FigureUncertainty {
 
 const pct = (x: number): string => `${Number((x * 100).toPrecision(3))} %`;
 
-export function runUncertainty(x: UncertaintyInput): { capacity_Ah: FigureUncertainty; energy_Wh: FigureUncertainty } {
+export function runUncertainty(x: UncertaintyInput): {
+  capacity_Ah: FigureUncertainty;
+  energy_Wh: FigureUncertainty;
+} {
   const hours = x.onS / 3600;
   const cal = x.calibration;
   const q = Math.abs(x.chargeAh);
@@ -122,7 +133,13 @@ export function runUncertainty(x: UncertaintyInput): { capacity_Ah: FigureUncert
     });
     const rel = referenceScaleRelU(cal.current);
     if (rel !== null) {
-      qt.push({ name: 'reference meter scale, current (common to the calibration points)', u: q * rel, type: 'B', basis: `${pct(rel)} of the reading (smallest stated relative uncertainty of the points)`, over_run: 'correlated' });
+      qt.push({
+        name: 'reference meter scale, current (common to the calibration points)',
+        u: q * rel,
+        type: 'B',
+        basis: `${pct(rel)} of the reading (smallest stated relative uncertainty of the points)`,
+        over_run: 'correlated',
+      });
     }
     basis = `calibration ${cal.id}`;
   } else {
@@ -143,7 +160,13 @@ export function runUncertainty(x: UncertaintyInput): { capacity_Ah: FigureUncert
     basis = 'no calibration: assumed rectangular errors of ±5 % gain and ±50 mA offset';
   }
   if (x.currentNoiseA !== undefined) {
-    qt.push({ name: 'current noise (averaged over the samples)', u: hours * meanU(x.currentNoiseA, n), type: 'A', basis: `s = ${x.currentNoiseA.toPrecision(2)} A per reading, ÷ √${n}`, over_run: 'averaged' });
+    qt.push({
+      name: 'current noise (averaged over the samples)',
+      u: hours * meanU(x.currentNoiseA, n),
+      type: 'A',
+      basis: `s = ${x.currentNoiseA.toPrecision(2)} A per reading, ÷ √${n}`,
+      over_run: 'averaged',
+    });
   }
   const nqI = Math.max(1, x.quantisationSamples?.current ?? n);
   qt.push({
@@ -153,9 +176,21 @@ export function runUncertainty(x: UncertaintyInput): { capacity_Ah: FigureUncert
     basis: `rectangular ±½ count (${(x.ampsPerCount * 1000).toPrecision(3)} mA a count): a/√3, ÷ √${nqI}`,
     over_run: 'averaged',
   });
-  qt.push({ name: 'host time base (rectangular ±100 ppm)', u: q * rectangularU(HOST_CLOCK_HALF_WIDTH), type: 'B', basis: 'rectangular ±100 ppm of the load-on time: a/√3', over_run: 'correlated' });
+  qt.push({
+    name: 'host time base (rectangular ±100 ppm)',
+    u: q * rectangularU(HOST_CLOCK_HALF_WIDTH),
+    type: 'B',
+    basis: 'rectangular ±100 ppm of the load-on time: a/√3',
+    over_run: 'correlated',
+  });
   if (x.bridgedAh > 0) {
-    qt.push({ name: 'charge bridged across long gaps (rectangular, half of it)', u: rectangularU(x.bridgedAh / 2), type: 'B', basis: 'rectangular, half-width half the interpolated charge: a/√3', over_run: 'correlated' });
+    qt.push({
+      name: 'charge bridged across long gaps (rectangular, half of it)',
+      u: rectangularU(x.bridgedAh / 2),
+      type: 'B',
+      basis: 'rectangular, half-width half the interpolated charge: a/√3',
+      over_run: 'correlated',
+    });
   }
   const capacity = combine(qt, basis);
 
@@ -164,10 +199,22 @@ export function runUncertainty(x: UncertaintyInput): { capacity_Ah: FigureUncert
   if (cal?.voltage) {
     const f = cal.voltage.fit;
     const vNominal = f.gain !== 0 ? (x.meanVoltageV - f.offset) / f.gain : x.meanVoltageV;
-    et.push({ name: 'voltage calibration fit (correlated over the run)', u: q * fitU(cal.voltage, vNominal, 1), type: 'A', basis: `gain ± ${f.u_gain.toPrecision(2)}, offset ± ${f.u_offset.toPrecision(2)} V at the mean voltage, times the charge`, over_run: 'correlated' });
+    et.push({
+      name: 'voltage calibration fit (correlated over the run)',
+      u: q * fitU(cal.voltage, vNominal, 1),
+      type: 'A',
+      basis: `gain ± ${f.u_gain.toPrecision(2)}, offset ± ${f.u_offset.toPrecision(2)} V at the mean voltage, times the charge`,
+      over_run: 'correlated',
+    });
     const rel = referenceScaleRelU(cal.voltage);
     if (rel !== null) {
-      et.push({ name: 'reference meter scale, voltage (common to the calibration points)', u: Math.abs(x.energyWh) * rel, type: 'B', basis: `${pct(rel)} of the reading (smallest stated relative uncertainty of the points)`, over_run: 'correlated' });
+      et.push({
+        name: 'reference meter scale, voltage (common to the calibration points)',
+        u: Math.abs(x.energyWh) * rel,
+        type: 'B',
+        basis: `${pct(rel)} of the reading (smallest stated relative uncertainty of the points)`,
+        over_run: 'correlated',
+      });
     }
   } else {
     et.push({
@@ -179,7 +226,13 @@ export function runUncertainty(x: UncertaintyInput): { capacity_Ah: FigureUncert
     });
   }
   if (x.voltageNoiseV !== undefined) {
-    et.push({ name: 'voltage noise (averaged over the samples)', u: q * meanU(x.voltageNoiseV, n), type: 'A', basis: `s = ${x.voltageNoiseV.toPrecision(2)} V per reading, ÷ √${n}, times the charge`, over_run: 'averaged' });
+    et.push({
+      name: 'voltage noise (averaged over the samples)',
+      u: q * meanU(x.voltageNoiseV, n),
+      type: 'A',
+      basis: `s = ${x.voltageNoiseV.toPrecision(2)} V per reading, ÷ √${n}, times the charge`,
+      over_run: 'averaged',
+    });
   }
   const nqV = Math.max(1, x.quantisationSamples?.voltage ?? n);
   et.push({

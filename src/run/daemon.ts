@@ -5,7 +5,11 @@
 import { rm } from 'node:fs/promises';
 import { join } from 'node:path';
 import { applyCalibration, loadCalibration, type Calibration } from '../calibration/calibration.js';
-import { DEFAULT_CHEMISTRIES_PATH, findChemistry, loadChemistries } from '../chemistry/chemistries.js';
+import {
+  DEFAULT_CHEMISTRIES_PATH,
+  findChemistry,
+  loadChemistries,
+} from '../chemistry/chemistries.js';
 import { checkRestingVoltage } from '../chemistry/limits.js';
 import { HostClock, PacedClock, type Clock, type TimerHandle } from '../core/clock.js';
 import { CellvigilError, ErrorCodes, makeError } from '../core/errors.js';
@@ -17,7 +21,12 @@ import { Session } from '../session/session.js';
 import type { Action, SessionEnd } from '../session/session-types.js';
 import { writeJsonAtomic } from '../sinks/atomic-json.js';
 import { LogFile } from '../sinks/log-file.js';
-import { SAMPLE_HEADER, sampleRowMaxBytes, writeSampleRow, type SampleRow } from '../sinks/sample-row.js';
+import {
+  SAMPLE_HEADER,
+  sampleRowMaxBytes,
+  writeSampleRow,
+  type SampleRow,
+} from '../sinks/sample-row.js';
 import { SerialSource } from '../sources/serial-source.js';
 import { SimSource } from '../sources/sim-source.js';
 import type { Source } from '../sources/source.js';
@@ -84,15 +93,23 @@ const CHECKPOINT_EVERY_MS = 5000;
 const STATUS_EVERY_MS = 250;
 
 export async function startRun(req: RunRequest, io: RunIo): Promise<RunHandle> {
-  const resumeDir = req.resume ?? (req.port !== undefined && !req.fresh ? await findUnfinishedRun(req.runs, req.port, Date.now()) : null);
+  const resumeDir =
+    req.resume ??
+    (req.port !== undefined && !req.fresh
+      ? await findUnfinishedRun(req.runs, req.port, Date.now())
+      : null);
   const resume = resumeDir !== null ? await findResumePoint(resumeDir) : null;
   // `run --resume <folder>` alone goes back to the port the run was on.
   const src = resume?.run.manifest.source;
-  if (src?.kind === 'serial' && req.port === undefined && req.sim === undefined) req = { ...req, port: src.description };
+  if (src?.kind === 'serial' && req.port === undefined && req.sim === undefined)
+    req = { ...req, port: src.description };
   const cfg = await resolveRunConfig(req, resume?.run.manifest ?? null);
   const { profile, chain, chemistry, cells, cutoff, scenario } = cfg;
   const startedWall = resume ? Date.parse(resume.run.manifest.started_wall) : Date.now();
-  const label = resume?.run.manifest.label ?? req.label ?? (scenario ? `sim-${scenario.name}` : `${cells}x${chemistry.id}`);
+  const label =
+    resume?.run.manifest.label ??
+    req.label ??
+    (scenario ? `sim-${scenario.name}` : `${cells}x${chemistry.id}`);
   const folder = resume ? resume.run.dir : await createRunFolder(req.runs, label, startedWall);
 
   // Measurement time: the simulated rig runs on a virtual clock at --speed; a real rig on the host's.
@@ -117,7 +134,9 @@ export async function startRun(req: RunRequest, io: RunIo): Promise<RunHandle> {
     },
   });
   // A resumed run's row times carry on from its last row, plus the wall time it was down.
-  const originMs = resume ? clock.now() - (resume.lastHostS * 1000 + Math.max(0, Date.now() - resume.lastWallMs)) : clock.now();
+  const originMs = resume
+    ? clock.now() - (resume.lastHostS * 1000 + Math.max(0, Date.now() - resume.lastWallMs))
+    : clock.now();
   if (resume) session.restore(resume.totals);
   const pipeline = new Pipeline({
     channel: req.channel,
@@ -144,8 +163,18 @@ export async function startRun(req: RunRequest, io: RunIo): Promise<RunHandle> {
     compressClosed: true,
     onCompressed: (c) => {
       if (ended) return;
-      if (c.error) logEvent('compress_failed', { file: c.file, error: c.error.message, note: 'the plain file is kept' });
-      else logEvent('sample_file_compressed', { file: c.file, bytes_in: c.bytesIn, bytes_out: c.bytesOut });
+      if (c.error)
+        logEvent('compress_failed', {
+          file: c.file,
+          error: c.error.message,
+          note: 'the plain file is kept',
+        });
+      else
+        logEvent('sample_file_compressed', {
+          file: c.file,
+          bytes_in: c.bytesIn,
+          bytes_out: c.bytesOut,
+        });
     },
   });
   const events = new EventLog(folder);
@@ -158,10 +187,18 @@ export async function startRun(req: RunRequest, io: RunIo): Promise<RunHandle> {
     node_version: process.version,
     label,
     started_wall: new Date(startedWall).toISOString(),
-    source: { kind: source.kind, description: source.description, ...(scenario ? { scenario: scenario.name, speed: req.speed } : {}) },
+    source: {
+      kind: source.kind,
+      description: source.description,
+      ...(scenario ? { scenario: scenario.name, speed: req.speed } : {}),
+    },
     channel: req.channel,
     rig: { file: cfg.rigPath, profile },
-    calibration: { file: cfg.calibrationPath, id: pipeline.calibrationId, content: cfg.calibration },
+    calibration: {
+      file: cfg.calibrationPath,
+      id: pipeline.calibrationId,
+      content: cfg.calibration,
+    },
     chemistry: { id: chemistry.id, profile: chemistry },
     cells,
     cutoff_V: cutoff.total,
@@ -170,12 +207,19 @@ export async function startRun(req: RunRequest, io: RunIo): Promise<RunHandle> {
     floor_V: cfg.floorV,
     limits: { max_temperature_C: cfg.maxTemperatureC, max_current_A: cfg.maxCurrentA },
     samples: { prefix: 'samples-', rotate_bytes: req.rotateBytes },
-    ...(cfg.scheduleSource && cfg.schedule ? { schedule: { ...cfg.scheduleSource, description: describeSchedule(cfg.schedule) } } : {}),
+    ...(cfg.scheduleSource && cfg.schedule
+      ? { schedule: { ...cfg.scheduleSource, description: describeSchedule(cfg.schedule) } }
+      : {}),
   };
   try {
     if (!resume) await writeJsonAtomic(join(folder, 'manifest.json'), manifest);
   } catch (e) {
-    throw makeError(ErrorCodes.RUN_FOLDER, `cannot write the manifest: ${(e as Error).message}`, folder, 'Choose a run folder you can write to (--runs). Nothing was switched on.');
+    throw makeError(
+      ErrorCodes.RUN_FOLDER,
+      `cannot write the manifest: ${(e as Error).message}`,
+      folder,
+      'Choose a run folder you can write to (--runs). Nothing was switched on.',
+    );
   }
 
   const hostS = (): number => (clock.now() - originMs) / 1000;
@@ -213,7 +257,10 @@ export async function startRun(req: RunRequest, io: RunIo): Promise<RunHandle> {
         if (a.command.command !== 'BEAT') logEvent('command', { line: line.trim(), queued });
       } else if (a.type === 'event') {
         logEvent(a.name, a.detail);
-        if (a.name === 'state') status.line(`state: ${String(a.detail['from'])} -> ${String(a.detail['to'])} (${String(a.detail['why'])})`);
+        if (a.name === 'state')
+          status.line(
+            `state: ${String(a.detail['from'])} -> ${String(a.detail['to'])} (${String(a.detail['why'])})`,
+          );
       } else {
         void finish(a.reason, a.detail, a.loadOffConfirmed);
       }
@@ -239,7 +286,10 @@ export async function startRun(req: RunRequest, io: RunIo): Promise<RunHandle> {
         if (out.lost > 0) logEvent('frames_lost', { count: out.lost, seq: out.row.seq });
         if (out.gap) {
           gaps++;
-          logEvent('gap', { seq: out.row.seq, note: 'a long gap between frames; its charge is interpolated and counted as doubt in the uncertainty' });
+          logEvent('gap', {
+            seq: out.row.seq,
+            note: 'a long gap between frames; its charge is interpolated and counted as doubt in the uncertainty',
+          });
         }
         if (out.rigRestart) logEvent('rig_restart', { seq: out.row.seq, tick_ms: out.row.tickMs });
         status.update(out.row);
@@ -285,7 +335,11 @@ export async function startRun(req: RunRequest, io: RunIo): Promise<RunHandle> {
       logEvent('cutoff_refused', { requested_V: volts, by, why: r.why });
       return { ok: false, error: r.why };
     }
-    logEvent('cutoff_changed', { cutoff_V: session.cutoffV, cutoff_V_per_cell: session.cutoffV / cells, by });
+    logEvent('cutoff_changed', {
+      cutoff_V: session.cutoffV,
+      cutoff_V_per_cell: session.cutoffV / cells,
+      by,
+    });
     return { ok: true };
   };
 
@@ -303,8 +357,14 @@ export async function startRun(req: RunRequest, io: RunIo): Promise<RunHandle> {
     } catch (e) {
       if (ended) return;
       const message = (e as Error).message;
-      logEvent('calibration_rejected', { file: path, error: message, kept_id: pipeline.calibrationId });
-      status.line(`The edited calibration was rejected and ${pipeline.calibrationId} stays in force: ${message}`);
+      logEvent('calibration_rejected', {
+        file: path,
+        error: message,
+        kept_id: pipeline.calibrationId,
+      });
+      status.line(
+        `The edited calibration was rejected and ${pipeline.calibrationId} stays in force: ${message}`,
+      );
     }
   };
 
@@ -316,10 +376,22 @@ export async function startRun(req: RunRequest, io: RunIo): Promise<RunHandle> {
       const floorV = next.floor_V_per_cell.value * cells;
       const wanted = cutoff.fromUser ? cutoff.total : next.cutoff_V_per_cell.value * cells;
       const cutoffV = Math.max(wanted, floorV);
-      const r = session.updateLimits({ floorV, maxTemperatureC: next.max_temperature_C.value, cutoffV });
+      const r = session.updateLimits({
+        floorV,
+        maxTemperatureC: next.max_temperature_C.value,
+        cutoffV,
+      });
       if (!r.ok) throw new Error(r.why);
-      logEvent('chemistry_changed', { file: path, chemistry: next.id, floor_V: floorV, cutoff_V: cutoffV, max_temperature_C: next.max_temperature_C.value });
-      status.line(`Chemistry profile reloaded: cutoff ${cutoffV.toFixed(3)} V, floor ${floorV.toFixed(3)} V, limit ${next.max_temperature_C.value} °C.`);
+      logEvent('chemistry_changed', {
+        file: path,
+        chemistry: next.id,
+        floor_V: floorV,
+        cutoff_V: cutoffV,
+        max_temperature_C: next.max_temperature_C.value,
+      });
+      status.line(
+        `Chemistry profile reloaded: cutoff ${cutoffV.toFixed(3)} V, floor ${floorV.toFixed(3)} V, limit ${next.max_temperature_C.value} °C.`,
+      );
     } catch (e) {
       const message = (e as Error).message;
       logEvent('chemistry_rejected', { file: path, error: message });
@@ -330,7 +402,9 @@ export async function startRun(req: RunRequest, io: RunIo): Promise<RunHandle> {
   const onDiskError = (e: Error): void => {
     if (diskError) return;
     diskError = e;
-    status.line(`cellvigil: ${ErrorCodes.RUN_FOLDER}: writing the run folder failed: ${e.message}. Switching the load off.`);
+    status.line(
+      `cellvigil: ${ErrorCodes.RUN_FOLDER}: writing the run folder failed: ${e.message}. Switching the load off.`,
+    );
     dispatch(session.requestStop(clock.now(), 'a failure writing the run folder'));
   };
 
@@ -377,7 +451,9 @@ export async function startRun(req: RunRequest, io: RunIo): Promise<RunHandle> {
     clockWarned = true;
     const pct = (ppm / 1e4).toFixed(1);
     logEvent('clock_warning', { rig_clock_error_ppm: Math.round(ppm) });
-    status.line(`warning: the rig's clock runs ${pct} % ${ppm > 0 ? 'fast' : 'slow'} against the host's; cellvigil times every frame by the host clock, so figures are not affected.`);
+    status.line(
+      `warning: the rig's clock runs ${pct} % ${ppm > 0 ? 'fast' : 'slow'} against the host's; cellvigil times every frame by the host clock, so figures are not affected.`,
+    );
   };
 
   const onSignal = (sig: NodeJS.Signals): void => {
@@ -388,13 +464,25 @@ export async function startRun(req: RunRequest, io: RunIo): Promise<RunHandle> {
     }
     stopRequests++;
     logEvent('signal', { signal: sig });
-    if (stopRequests > 1) status.line(`${sig} again: the load is being switched off first; the run ends as soon as the rig confirms it.`);
+    if (stopRequests > 1)
+      status.line(
+        `${sig} again: the load is being switched off first; the run ends as soon as the rig confirms it.`,
+      );
     else status.line(`${sig}: switching the load off and finishing the run…`);
     dispatch(session.requestStop(clock.now(), sig));
   };
-  const signalHandlers: [NodeJS.Signals, (s: NodeJS.Signals) => void][] = io.signals ? [['SIGINT', onSignal], ['SIGTERM', onSignal]] : [];
+  const signalHandlers: [NodeJS.Signals, (s: NodeJS.Signals) => void][] = io.signals
+    ? [
+        ['SIGINT', onSignal],
+        ['SIGTERM', onSignal],
+      ]
+    : [];
 
-  const finish = async (end: SessionEnd, detail: string, loadOffConfirmed: boolean): Promise<void> => {
+  const finish = async (
+    end: SessionEnd,
+    detail: string,
+    loadOffConfirmed: boolean,
+  ): Promise<void> => {
     if (ended) return;
     ended = true;
     try {
@@ -429,14 +517,22 @@ export async function startRun(req: RunRequest, io: RunIo): Promise<RunHandle> {
         schedule: cfg.schedule ? describeSchedule(cfg.schedule) : null,
       });
       events.summarise(hostS(), clock.wallNow());
-      const rec = events.write(hostS(), clock.wallNow(), 'run_ended', { end_reason: end, detail, load_off_confirmed: loadOffConfirmed });
+      const rec = events.write(hostS(), clock.wallNow(), 'run_ended', {
+        end_reason: end,
+        detail,
+        load_off_confirmed: loadOffConfirmed,
+      });
       for (const o of observers) o.event?.(rec);
       await source.close().catch(() => undefined);
       paced?.stop();
       await Promise.all([samples.close(), events.close()]).catch((e: Error) => onDiskError(e));
       if (!diskError) {
-        await writeJsonAtomic(join(folder, 'checkpoint.json'), checkpoint()).catch((e: Error) => onDiskError(e));
-        await writeJsonAtomic(join(folder, 'result.json'), result).catch((e: Error) => onDiskError(e));
+        await writeJsonAtomic(join(folder, 'checkpoint.json'), checkpoint()).catch((e: Error) =>
+          onDiskError(e),
+        );
+        await writeJsonAtomic(join(folder, 'result.json'), result).catch((e: Error) =>
+          onDiskError(e),
+        );
       }
       status.end();
       for (const o of observers) o.ended?.(result);
@@ -449,24 +545,47 @@ export async function startRun(req: RunRequest, io: RunIo): Promise<RunHandle> {
   };
 
   // Start: cautions first, then the rig.
-  status.line(`cellvigil ${PACKAGE_VERSION}: ${cells} × ${chemistry.id} on ${source.description}; cutoff ${cutoff.total.toFixed(3)} V (${cutoff.perCell} V per cell, ${cutoff.source}), limit ${cfg.maxTemperatureC} °C.`);
+  status.line(
+    `cellvigil ${PACKAGE_VERSION}: ${cells} × ${chemistry.id} on ${source.description}; cutoff ${cutoff.total.toFixed(3)} V (${cutoff.perCell} V per cell, ${cutoff.source}), limit ${cfg.maxTemperatureC} °C.`,
+  );
   if (cfg.schedule) status.line(`Schedule: ${describeSchedule(cfg.schedule)}.`);
   status.line('Cautions:');
   for (const c of cautionLines(chemistry)) status.line(`  - ${c}`);
   status.line(`Run folder: ${folder}`);
   if (resume) {
     const downS = Math.max(0, Date.now() - resume.lastWallMs) / 1000;
-    status.line(`Resuming an interrupted run: ${(resume.totals.chargeAh * 1000).toFixed(1)} mAh so far from ${resume.rows} logged rows; down for ${downS.toFixed(0)} s. The precheck runs again before the load goes back on.`);
-    logEvent('resumed', { rows: resume.rows, charge_Ah: resume.totals.chargeAh, energy_Wh: resume.totals.energyWh, down_s: downS, cut_bytes: resume.cutBytes, source: source.description });
+    status.line(
+      `Resuming an interrupted run: ${(resume.totals.chargeAh * 1000).toFixed(1)} mAh so far from ${resume.rows} logged rows; down for ${downS.toFixed(0)} s. The precheck runs again before the load goes back on.`,
+    );
+    logEvent('resumed', {
+      rows: resume.rows,
+      charge_Ah: resume.totals.chargeAh,
+      energy_Wh: resume.totals.energyWh,
+      down_s: downS,
+      cut_bytes: resume.cutBytes,
+      source: source.description,
+    });
   } else {
-    logEvent('run_started', { source: source.description, chemistry: chemistry.id, cells, cutoff_V: cutoff.total, version: PACKAGE_VERSION });
+    logEvent('run_started', {
+      source: source.description,
+      chemistry: chemistry.id,
+      cells,
+      cutoff_V: cutoff.total,
+      version: PACKAGE_VERSION,
+    });
   }
   logEvent('cautions', { lines: cautionLines(chemistry) });
   if (cfg.calibration) {
-    logEvent('calibration', { id: cfg.calibration.id, file: cfg.calibrationPath, date: cfg.calibration.date });
+    logEvent('calibration', {
+      id: cfg.calibration.id,
+      file: cfg.calibrationPath,
+      date: cfg.calibration.date,
+    });
   } else {
     logEvent('calibration', { id: 'none', note: 'no calibration: nominal analog chain only' });
-    status.line('No calibration given: figures use the nominal analog chain, whose offset and gain errors are unknown (see `cellvigil calibrate`).');
+    status.line(
+      'No calibration given: figures use the nominal analog chain, whose offset and gain errors are unknown (see `cellvigil calibrate`).',
+    );
   }
 
   /** A run that never got its rig leaves no folder behind (it would look like one to resume). */
@@ -511,12 +630,15 @@ export async function startRun(req: RunRequest, io: RunIo): Promise<RunHandle> {
       line: onLine,
       overlong: (n) => {
         const out = pipeline.overlong(n);
-        if (out.kind === 'rejected') events.rejected(hostS(), clock.wallNow(), out.reason, out.detail, '');
+        if (out.kind === 'rejected')
+          events.rejected(hostS(), clock.wallNow(), out.reason, out.detail, '');
       },
       closed: (reason) => {
         if (ended) return;
         logEvent('link_closed', { reason });
-        status.line(`The rig's port went away (${reason}); reopening it. The rig's watchdog cuts the load after 5 s without heartbeats.`);
+        status.line(
+          `The rig's port went away (${reason}); reopening it. The rig's watchdog cuts the load after 5 s without heartbeats.`,
+        );
         dispatch(session.linkDown(clock.now()));
       },
       reopened: () => {
@@ -529,10 +651,20 @@ export async function startRun(req: RunRequest, io: RunIo): Promise<RunHandle> {
     ended = true;
     await live?.server.close().catch(() => undefined);
     await abandon();
-    throw e instanceof CellvigilError ? e : makeError(ErrorCodes.PORT_OPEN, (e as Error).message, source.description, 'Check the rig connection.');
+    throw e instanceof CellvigilError
+      ? e
+      : makeError(
+          ErrorCodes.PORT_OPEN,
+          (e as Error).message,
+          source.description,
+          'Check the rig connection.',
+        );
   }
   for (const [sig, h] of signalHandlers) process.on(sig, h);
-  if (cfg.calibrationPath !== null) watchers.push(watchFile(cfg.calibrationPath, () => void reloadCalibration(cfg.calibrationPath!)));
+  if (cfg.calibrationPath !== null)
+    watchers.push(
+      watchFile(cfg.calibrationPath, () => void reloadCalibration(cfg.calibrationPath!)),
+    );
   if (!resume) {
     const chemistriesPath = req.chemistriesFile ?? DEFAULT_CHEMISTRIES_PATH;
     watchers.push(watchFile(chemistriesPath, () => reloadChemistry(chemistriesPath)));
@@ -563,20 +695,43 @@ export async function startRun(req: RunRequest, io: RunIo): Promise<RunHandle> {
   };
 }
 
-function printSummary(io: RunIo, r: RunResult, folder: string, cfg: RunConfig, diskError: Error | null): void {
+function printSummary(
+  io: RunIo,
+  r: RunResult,
+  folder: string,
+  cfg: RunConfig,
+  diskError: Error | null,
+): void {
   const w = (s: string): boolean => io.out.write(`${s}\n`);
   w('');
   if (r.end_reason === 'refused') {
-    io.err.write(`cellvigil: ${r.end_detail.startsWith('rig_silent') ? ErrorCodes.RIG_SILENT : ErrorCodes.PRECHECK_REFUSED}: ${r.end_detail}\n`);
+    io.err.write(
+      `cellvigil: ${r.end_detail.startsWith('rig_silent') ? ErrorCodes.RIG_SILENT : ErrorCodes.PRECHECK_REFUSED}: ${r.end_detail}\n`,
+    );
   }
-  w(`Run ended: ${r.end_reason} (${r.end_detail})${r.load_off_confirmed ? '' : ' — load-off NOT confirmed by the rig; its watchdog cuts the load within 5 s'}`);
+  w(
+    `Run ended: ${r.end_reason} (${r.end_detail})${r.load_off_confirmed ? '' : ' — load-off NOT confirmed by the rig; its watchdog cuts the load within 5 s'}`,
+  );
   const u = r.uncertainty.capacity_Ah;
-  w(`  capacity      ${(r.capacity_Ah * 1000).toFixed(1)} mAh ± ${(u.expanded * 1000).toFixed(1)} mAh (k = 2)`);
-  w(`  energy        ${r.energy_Wh.toFixed(4)} Wh ± ${r.uncertainty.energy_Wh.expanded.toFixed(4)} Wh (k = 2)`);
-  w(`  load on       ${r.duration_s.toFixed(1)} s; mean ${r.mean_voltage_V?.toFixed(3) ?? '—'} V, end ${r.end_voltage_V?.toFixed(3) ?? '—'} V, cutoff ${r.cutoff_V.toFixed(3)} V`);
-  w(`  frames        ${r.frames_accepted} accepted, ${r.frames_rejected} rejected, ${r.frames_lost} lost`);
-  w(`  rig clock     ${r.rig_clock_error_ppm === null ? 'too short a run to estimate' : `${r.rig_clock_error_ppm} ppm${r.rig_clock_warning ? ' (more than 1 %; the host clock was used)' : ''}`}`);
+  w(
+    `  capacity      ${(r.capacity_Ah * 1000).toFixed(1)} mAh ± ${(u.expanded * 1000).toFixed(1)} mAh (k = 2)`,
+  );
+  w(
+    `  energy        ${r.energy_Wh.toFixed(4)} Wh ± ${r.uncertainty.energy_Wh.expanded.toFixed(4)} Wh (k = 2)`,
+  );
+  w(
+    `  load on       ${r.duration_s.toFixed(1)} s; mean ${r.mean_voltage_V?.toFixed(3) ?? '—'} V, end ${r.end_voltage_V?.toFixed(3) ?? '—'} V, cutoff ${r.cutoff_V.toFixed(3)} V`,
+  );
+  w(
+    `  frames        ${r.frames_accepted} accepted, ${r.frames_rejected} rejected, ${r.frames_lost} lost`,
+  );
+  w(
+    `  rig clock     ${r.rig_clock_error_ppm === null ? 'too short a run to estimate' : `${r.rig_clock_error_ppm} ppm${r.rig_clock_warning ? ' (more than 1 %; the host clock was used)' : ''}`}`,
+  );
   w(`  calibration   ${r.calibration_id}${cfg.calibration ? '' : ' (nominal chain)'}`);
-  if (diskError) io.err.write(`cellvigil: ${ErrorCodes.RUN_FOLDER}: ${diskError.message} (${folder}). Free space or fix permissions; the load was switched off.\n`);
+  if (diskError)
+    io.err.write(
+      `cellvigil: ${ErrorCodes.RUN_FOLDER}: ${diskError.message} (${folder}). Free space or fix permissions; the load was switched off.\n`,
+    );
   w(`  run folder    ${folder}`);
 }

@@ -21,8 +21,18 @@ export class EventLog {
     this.file = new LogFile({ dir, name: 'events.jsonl' });
   }
 
-  write(hostS: number, wallMs: number, event: string, detail: Record<string, unknown> = {}): EventRecord {
-    const rec: EventRecord = { host_s: round3(hostS), wall_time: new Date(wallMs).toISOString(), event, ...detail };
+  write(
+    hostS: number,
+    wallMs: number,
+    event: string,
+    detail: Record<string, unknown> = {},
+  ): EventRecord {
+    const rec: EventRecord = {
+      host_s: round3(hostS),
+      wall_time: new Date(wallMs).toISOString(),
+      event,
+      ...detail,
+    };
     this.file.append(JSON.stringify(rec));
     return rec;
   }

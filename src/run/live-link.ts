@@ -23,13 +23,17 @@ export interface LiveLinkOptions {
 
 /** Events that deserve a viewer's attention, not just a line in the log, in words. */
 const ALARM_TEXT: Record<string, (d: Record<string, unknown>) => string> = {
-  clock_warning: (d) => `the rig's clock is off by ${(Number(d['rig_clock_error_ppm']) / 1e4).toFixed(1)} %; frames are timed by the host`,
+  clock_warning: (d) =>
+    `the rig's clock is off by ${(Number(d['rig_clock_error_ppm']) / 1e4).toFixed(1)} %; frames are timed by the host`,
   link_down: () => "the rig's port went away; waiting for it to return",
-  load_off_unconfirmed: () => "the rig did not confirm the load off; its watchdog cuts it within 5 s",
-  calibration_rejected: (d) => `an edited calibration was rejected; ${String(d['kept_id'])} stays in force`,
+  load_off_unconfirmed: () =>
+    'the rig did not confirm the load off; its watchdog cuts it within 5 s',
+  calibration_rejected: (d) =>
+    `an edited calibration was rejected; ${String(d['kept_id'])} stays in force`,
   chemistry_rejected: () => 'an edited chemistry file was rejected; the limits in force stay',
   rig_error: (d) => `the rig reports ${String(d['code'])}: ${String(d['text'])}`,
-  unlogged_discharge: (d) => `about ${Number(d['estimated_s']).toFixed(1)} s of discharge went unlogged while the daemon was down`,
+  unlogged_discharge: (d) =>
+    `about ${Number(d['estimated_s']).toFixed(1)} s of discharge went unlogged while the daemon was down`,
 };
 /** A run ending on these is an alarm; at the cutoff or by the user it is the normal end. */
 const LIMIT_REASONS = ['over_temperature', 'link_lost', 'fault'];
@@ -69,11 +73,19 @@ export async function startLiveLink(o: LiveLinkOptions): Promise<LiveLink> {
         return { ok: true };
     }
   });
-  const server = await startLiveServer({ hub, listen: o.listen, tokenStore: tokens.tokens, log: (name, detail) => o.log(name, detail) });
+  const server = await startLiveServer({
+    hub,
+    listen: o.listen,
+    tokenStore: tokens.tokens,
+    log: (name, detail) => o.log(name, detail),
+  });
   o.print(`live: ${server.url}`);
-  for (const url of server.lanUrls) if (url !== server.url) o.print(`live (other machines, viewer token needed): ${url}`);
+  for (const url of server.lanUrls)
+    if (url !== server.url) o.print(`live (other machines, viewer token needed): ${url}`);
   if (tokens.generated) {
-    o.print(`Live-feed tokens were made and saved in ${tokens.path} (owner-only); they are shown this once:`);
+    o.print(
+      `Live-feed tokens were made and saved in ${tokens.path} (owner-only); they are shown this once:`,
+    );
     o.print(`  control token (stop, set-cutoff, mark): ${tokens.tokens.control}`);
     o.print(`  viewer token (watching from another machine): ${tokens.tokens.viewer}`);
   }
@@ -99,7 +111,8 @@ export async function startLiveLink(o: LiveLinkOptions): Promise<LiveLink> {
       const why = String(d['why'] ?? '');
       hub.state({ host_s: rec.host_s, from: String(d['from']), to: String(d['to']), why });
       const reason = why.split(':')[0] ?? '';
-      if (d['to'] === 'stopping' && LIMIT_REASONS.includes(reason)) hub.alarm({ host_s: rec.host_s, kind: reason, detail: why });
+      if (d['to'] === 'stopping' && LIMIT_REASONS.includes(reason))
+        hub.alarm({ host_s: rec.host_s, kind: reason, detail: why });
     } else if (rec.event === 'cutoff_changed') {
       hub.cutoffChanged(Number(d['cutoff_V']));
     } else {

@@ -1,7 +1,7 @@
 import { decodeRigLine } from '../protocol/codec.js';
 import { FLAG_LOAD_ON, type RejectReason } from '../protocol/messages.js';
 import { TimeBase, type TimeBaseOptions } from '../timebase/time-base.js';
-import { Session } from '../session/session.js';
+import type { Session } from '../session/session.js';
 import type { Action } from '../session/session-types.js';
 import type { SampleRow } from '../sinks/sample-row.js';
 
@@ -30,9 +30,20 @@ export interface FrameCounters {
 }
 
 export type LineOutcome =
-  | { kind: 'sample'; row: SampleRow; actions: Action[]; lost: number; gap: boolean; rigRestart: boolean }
+  | {
+      kind: 'sample';
+      row: SampleRow;
+      actions: Action[];
+      lost: number;
+      gap: boolean;
+      rigRestart: boolean;
+    }
   | { kind: 'rejected'; reason: RejectReason; detail: string }
-  | { kind: 'message'; actions: Action[]; event: { name: string; detail: Record<string, unknown> } | null }
+  | {
+      kind: 'message';
+      actions: Action[];
+      event: { name: string; detail: Record<string, unknown> } | null;
+    }
   | { kind: 'ignored' };
 
 export interface PipelineOptions {
@@ -52,7 +63,13 @@ export interface PipelineOptions {
  * returned rows and actions to the sinks and the rig.
  */
 export class Pipeline {
-  readonly counters: FrameCounters = { accepted: 0, rejected: 0, lost: 0, otherChannel: 0, rejectedBy: {} };
+  readonly counters: FrameCounters = {
+    accepted: 0,
+    rejected: 0,
+    lost: 0,
+    otherChannel: 0,
+    rejectedBy: {},
+  };
   readonly timeBase: TimeBase;
   private corrector: Corrector;
   /** Integral of the uncorrected current while the load was on, for the uncertainty budget. */
@@ -109,7 +126,16 @@ export class Pipeline {
         const onA = loadOn ? nominalA : 0;
         this.nominalAh += ((this.prevNominalA + onA) / 2) * (stamp.dtMs / 3_600_000);
         this.prevNominalA = onA;
-        const actions = session.frame({ hostMs: stamp.hostMs, dtMs: stamp.dtMs, gap: stamp.gap, volts, amps, celsius, thermistor, flags: m.flags });
+        const actions = session.frame({
+          hostMs: stamp.hostMs,
+          dtMs: stamp.dtMs,
+          gap: stamp.gap,
+          volts,
+          amps,
+          celsius,
+          thermistor,
+          flags: m.flags,
+        });
         const row: SampleRow = {
           hostS: (stamp.hostMs - this.o.originMs) / 1000,
           wallMs,
@@ -128,18 +154,41 @@ export class Pipeline {
           state: session.state,
           calibrationId: c.id,
         };
-        return { kind: 'sample', row, actions, lost: stamp.lost, gap: stamp.gap, rigRestart: stamp.rigRestart };
+        return {
+          kind: 'sample',
+          row,
+          actions,
+          lost: stamp.lost,
+          gap: stamp.gap,
+          rigRestart: stamp.rigRestart,
+        };
       }
       case 'ack':
-        return { kind: 'message', actions: session.ack(m.command, m.args), event: { name: 'rig_ack', detail: { command: m.command, args: m.args } } };
+        return {
+          kind: 'message',
+          actions: session.ack(m.command, m.args),
+          event: { name: 'rig_ack', detail: { command: m.command, args: m.args } },
+        };
       case 'hello':
         return {
           kind: 'message',
           actions: [],
-          event: { name: 'rig_hello', detail: { rig_id: m.rigId, firmware: m.firmware, adc_bits: m.adcBits, channels: m.channels } },
+          event: {
+            name: 'rig_hello',
+            detail: {
+              rig_id: m.rigId,
+              firmware: m.firmware,
+              adc_bits: m.adcBits,
+              channels: m.channels,
+            },
+          },
         };
       case 'rig-error':
-        return { kind: 'message', actions: [], event: { name: 'rig_error', detail: { code: m.code, text: m.text } } };
+        return {
+          kind: 'message',
+          actions: [],
+          event: { name: 'rig_error', detail: { code: m.code, text: m.text } },
+        };
     }
   }
 }

@@ -2,7 +2,7 @@ import type { Calibration } from '../calibration/calibration.js';
 import type { EndReason, SessionEnd } from '../session/session-types.js';
 import { runUncertainty, type FigureUncertainty } from '../results/uncertainty.js';
 
-/** result.json (DESIGN.md "Run folder"; docs/run-folder.md lists the added keys). */
+/** result.json (docs/run-folder.md lists every key). */
 export interface RunResult {
   capacity_Ah: number;
   energy_Wh: number;
@@ -67,7 +67,8 @@ export interface ResultInput {
 }
 
 const r = (x: number, digits: number): number => Number(x.toFixed(digits));
-const rn = (x: number | null, digits: number): number | null => (x === null || !Number.isFinite(x) ? null : r(x, digits));
+const rn = (x: number | null, digits: number): number | null =>
+  x === null || !Number.isFinite(x) ? null : r(x, digits);
 
 export function buildResult(x: ResultInput): RunResult {
   const meanV = x.chargeAh > 0 ? x.energyWh / x.chargeAh : null;
@@ -109,11 +110,14 @@ export function buildResult(x: ResultInput): RunResult {
     started_wall: new Date(x.startedWallMs).toISOString(),
     ended_wall: new Date(x.endedWallMs).toISOString(),
     schedule: x.schedule ?? null,
-    service_output_h: x.schedule != null && x.end === 'cutoff' ? r(x.onMs / 3_600_000, 6) : null,
+    service_output_h:
+      x.schedule !== null && x.schedule !== undefined && x.end === 'cutoff'
+        ? r(x.onMs / 3_600_000, 6)
+        : null,
   };
 }
 
-/** DESIGN.md exit codes: 0 normal end, 2 nothing switched on (configuration, precheck), 3 safety limit. */
+/** Exit codes (README): 0 normal end, 2 nothing switched on (configuration, precheck), 3 safety limit. */
 export function exitCodeFor(end: SessionEnd, detail: string): number {
   switch (end) {
     case 'cutoff':

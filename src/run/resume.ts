@@ -7,7 +7,12 @@ import { open, readdir, stat } from 'node:fs/promises';
 import { join } from 'node:path';
 import { ErrorCodes, makeError } from '../core/errors.js';
 import { FLAG_LOAD_ON } from '../protocol/messages.js';
-import { openRunFolder, readRunSamples, type CutLine, type RunFolder } from '../replay/run-folder.js';
+import {
+  openRunFolder,
+  readRunSamples,
+  type CutLine,
+  type RunFolder,
+} from '../replay/run-folder.js';
 
 export interface ResumePoint {
   run: RunFolder;
@@ -45,7 +50,12 @@ async function trimPartialRow(path: string): Promise<number> {
 export async function findResumePoint(dir: string): Promise<ResumePoint> {
   let run = await openRunFolder(dir);
   if (run.result !== null) {
-    throw makeError(ErrorCodes.USAGE, `the run already ended (${run.result.end_reason}); it has a result.json`, dir, 'Start a new run instead; `cellvigil report` recomputes a finished one.');
+    throw makeError(
+      ErrorCodes.USAGE,
+      `the run already ended (${run.result.end_reason}); it has a result.json`,
+      dir,
+      'Start a new run instead; `cellvigil report` recomputes a finished one.',
+    );
   }
   const last = run.sampleFiles.at(-1);
   const cutBytes = last && !last.gzip ? await trimPartialRow(last.path) : 0;
@@ -73,11 +83,20 @@ export async function findResumePoint(dir: string): Promise<ResumePoint> {
   }
   const cp = run.checkpoint;
   const names = await readdir(dir);
-  const numbers = names.map((n) => /^samples-(\d{4,})\.csv(\.gz)?$/.exec(n)?.[1]).filter((x): x is string => x !== undefined).map(Number);
-  const lastWallMs = lastWall !== '' ? Date.parse(lastWall) : (await stat(join(dir, 'manifest.json'))).mtimeMs;
+  const numbers = names
+    .map((n) => /^samples-(\d{4,})\.csv(\.gz)?$/.exec(n)?.[1])
+    .filter((x): x is string => x !== undefined)
+    .map(Number);
+  const lastWallMs =
+    lastWall !== '' ? Date.parse(lastWall) : (await stat(join(dir, 'manifest.json'))).mtimeMs;
   return {
     run,
-    totals: { chargeAh, energyWh, onMs, bridgedAh: (cp as { bridged_Ah?: number } | null)?.bridged_Ah ?? 0 },
+    totals: {
+      chargeAh,
+      energyWh,
+      onMs,
+      bridgedAh: (cp as { bridged_Ah?: number } | null)?.bridged_Ah ?? 0,
+    },
     rows,
     lastHostS,
     lastWallMs,

@@ -3,7 +3,11 @@ import { loadCalibration, type Calibration } from '../calibration/calibration.js
 import { AnalogChain } from '../chain/analog-chain.js';
 import type { RigProfile } from '../chain/rig-profile-types.js';
 import { loadRigProfile } from '../chain/rig-profile.js';
-import { DEFAULT_CHEMISTRIES_PATH, findChemistry, loadChemistries } from '../chemistry/chemistries.js';
+import {
+  DEFAULT_CHEMISTRIES_PATH,
+  findChemistry,
+  loadChemistries,
+} from '../chemistry/chemistries.js';
 import type { ChemistryProfile } from '../chemistry/chemistry-types.js';
 import { resolveCutoff, validateCells, type ResolvedCutoff } from '../chemistry/limits.js';
 import { ErrorCodes, makeError } from '../core/errors.js';
@@ -40,13 +44,26 @@ export interface RunConfig {
 }
 
 /** `--schedule` names a file (YAML) or is written inline ("on 15 s every 1 min, 8 h per day, to 1.0 V"). */
-async function readScheduleSource(given: string): Promise<{ kind: 'file' | 'option'; text: string; where: string }> {
-  if (existsSync(given)) return { kind: 'file', text: await readConfigText(given, 'schedule file', 'Check the path given with --schedule.'), where: resolve(given) };
+async function readScheduleSource(
+  given: string,
+): Promise<{ kind: 'file' | 'option'; text: string; where: string }> {
+  if (existsSync(given))
+    return {
+      kind: 'file',
+      text: await readConfigText(given, 'schedule file', 'Check the path given with --schedule.'),
+      where: resolve(given),
+    };
   return { kind: 'option', text: given, where: '--schedule' };
 }
 
-export function parseScheduleSource(src: { kind: 'file' | 'option'; text: string; where: string }): Schedule {
-  return src.kind === 'file' ? parseScheduleYaml(src.text, src.where) : parseScheduleOption(src.text, src.where);
+export function parseScheduleSource(src: {
+  kind: 'file' | 'option';
+  text: string;
+  where: string;
+}): Schedule {
+  return src.kind === 'file'
+    ? parseScheduleYaml(src.text, src.where)
+    : parseScheduleOption(src.text, src.where);
 }
 
 /**
@@ -70,33 +87,69 @@ function checkSameRun(req: RunRequest, m: RunManifest): void {
       `Leave ${what} out when resuming (the run's own settings apply), or start a new run for a different cell.`,
     );
   };
-  if (req.chemistry !== undefined && req.chemistry !== m.chemistry.id) clash('--chemistry', req.chemistry, m.chemistry.id);
+  if (req.chemistry !== undefined && req.chemistry !== m.chemistry.id)
+    clash('--chemistry', req.chemistry, m.chemistry.id);
   if (req.cells !== undefined && req.cells !== m.cells) clash('--cells', req.cells, m.cells);
-  if (req.cutoff !== undefined && Math.abs(req.cutoff - m.cutoff_per_cell_V) > 1e-9) clash('--cutoff', req.cutoff, m.cutoff_per_cell_V);
+  if (req.cutoff !== undefined && Math.abs(req.cutoff - m.cutoff_per_cell_V) > 1e-9)
+    clash('--cutoff', req.cutoff, m.cutoff_per_cell_V);
   if (req.channel !== m.channel) clash('--channel', req.channel, m.channel);
 }
 
-export async function resolveRunConfig(req: RunRequest, resumed: RunManifest | null = null): Promise<RunConfig> {
+export async function resolveRunConfig(
+  req: RunRequest,
+  resumed: RunManifest | null = null,
+): Promise<RunConfig> {
   if (resumed) {
     checkSameRun(req, resumed);
-    req = { ...req, chemistry: resumed.chemistry.id, cells: resumed.cells, cutoff: resumed.cutoff_per_cell_V };
+    req = {
+      ...req,
+      chemistry: resumed.chemistry.id,
+      cells: resumed.cells,
+      cutoff: resumed.cutoff_per_cell_V,
+    };
   }
   if ((req.port === undefined) === (req.sim === undefined)) {
-    throw makeError(ErrorCodes.USAGE, 'a run needs exactly one rig', '--port / --sim', 'Give --port <device> for a real rig or --sim [scenario] for the simulated one.');
+    throw makeError(
+      ErrorCodes.USAGE,
+      'a run needs exactly one rig',
+      '--port / --sim',
+      'Give --port <device> for a real rig or --sim [scenario] for the simulated one.',
+    );
   }
   if (!(req.speed > 0) || !Number.isFinite(req.speed)) {
-    throw makeError(ErrorCodes.USAGE, `speed ${req.speed} is not a positive number`, '--speed', 'Give a factor such as 1 (real time) or 200.');
+    throw makeError(
+      ErrorCodes.USAGE,
+      `speed ${req.speed} is not a positive number`,
+      '--speed',
+      'Give a factor such as 1 (real time) or 200.',
+    );
   }
   if (req.port !== undefined && req.speed !== 1) {
-    throw makeError(ErrorCodes.USAGE, 'a real rig runs in real time', '--speed', 'Leave --speed out with --port; it applies to the simulated rig only.');
+    throw makeError(
+      ErrorCodes.USAGE,
+      'a real rig runs in real time',
+      '--speed',
+      'Leave --speed out with --port; it applies to the simulated rig only.',
+    );
   }
   if (!(req.linkTimeoutS > 0)) {
-    throw makeError(ErrorCodes.USAGE, `link timeout ${req.linkTimeoutS} s is not a positive number`, '--link-timeout', 'Give the seconds an unplugged port may stay away, e.g. 60.');
+    throw makeError(
+      ErrorCodes.USAGE,
+      `link timeout ${req.linkTimeoutS} s is not a positive number`,
+      '--link-timeout',
+      'Give the seconds an unplugged port may stay away, e.g. 60.',
+    );
   }
   if (!Number.isInteger(req.channel) || req.channel < 0 || req.channel > 15) {
-    throw makeError(ErrorCodes.USAGE, `channel ${req.channel} is not 0..15`, '--channel', 'Give the rig channel the cell is on, 0 to 15.');
+    throw makeError(
+      ErrorCodes.USAGE,
+      `channel ${req.channel} is not 0..15`,
+      '--channel',
+      'Give the rig channel the cell is on, 0 to 15.',
+    );
   }
-  const scenario = req.sim !== undefined ? pickScenario(loadScenarios(DEFAULT_SCENARIOS_PATH), req.sim) : null;
+  const scenario =
+    req.sim !== undefined ? pickScenario(loadScenarios(DEFAULT_SCENARIOS_PATH), req.sim) : null;
   const rigPath = resumed?.rig.file ?? resolve(req.rig ?? DEFAULT_RIG_PATH);
   // A resumed run converts counts through the same chain it started with: the manifest's copy.
   const profile = resumed ? resumed.rig.profile : await loadRigProfile(rigPath);
@@ -113,14 +166,26 @@ export async function resolveRunConfig(req: RunRequest, resumed: RunManifest | n
   }
   const chemistry = resumed ? resumed.chemistry.profile : findChemistry(chemistries, chemistryId);
   const cells = validateCells(req.cells ?? scenario?.cell.cells ?? 1);
-  const resumedSchedule = (resumed as { schedule?: { kind: 'file' | 'option'; text: string; where: string } } | null)?.schedule ?? null;
-  const scheduleSource = resumedSchedule ?? (req.schedule !== undefined ? await readScheduleSource(req.schedule) : null);
+  const resumedSchedule =
+    (resumed as { schedule?: { kind: 'file' | 'option'; text: string; where: string } } | null)
+      ?.schedule ?? null;
+  const scheduleSource =
+    resumedSchedule ?? (req.schedule !== undefined ? await readScheduleSource(req.schedule) : null);
   const schedule = scheduleSource ? parseScheduleSource(scheduleSource) : null;
   // The schedule's end point is the cutoff unless --cutoff says otherwise; both meet the floor.
   const endPoint = req.cutoff ?? schedule?.endPointVPerCell ?? undefined;
-  const cutoff = resolveCutoff(chemistry, cells, endPoint, req.cutoff !== undefined ? '--cutoff' : 'the schedule\'s end point');
-  const calibrationPath = req.calibration !== undefined ? resolve(req.calibration) : (resumed?.calibration.file ?? null);
-  const calibration = req.calibration !== undefined ? await loadCalibration(calibrationPath!) : (resumed?.calibration.content ?? null);
+  const cutoff = resolveCutoff(
+    chemistry,
+    cells,
+    endPoint,
+    req.cutoff !== undefined ? '--cutoff' : "the schedule's end point",
+  );
+  const calibrationPath =
+    req.calibration !== undefined ? resolve(req.calibration) : (resumed?.calibration.file ?? null);
+  const calibration =
+    req.calibration !== undefined
+      ? await loadCalibration(calibrationPath!)
+      : (resumed?.calibration.content ?? null);
   return {
     request: req,
     rigPath,

@@ -4,7 +4,10 @@ import { ErrorCodes, makeError } from '../core/errors.js';
 
 /** `[A-Za-z0-9._-]`, other characters become `-`; empty becomes `run`. */
 export function safeLabel(label: string): string {
-  const s = label.replace(/[^A-Za-z0-9._-]+/g, '-').replace(/^[-.]+|-+$/g, '').slice(0, 60);
+  const s = label
+    .replace(/[^A-Za-z0-9._-]+/g, '-')
+    .replace(/^[-.]+|-+$/g, '')
+    .slice(0, 60);
   return s === '' ? 'run' : s;
 }
 
@@ -16,7 +19,11 @@ export function folderStamp(wallMs: number): string {
 }
 
 /** Makes a new, empty run folder; never reuses an existing one (a second run in the same second gets a suffix). */
-export async function createRunFolder(runsDir: string, label: string, wallMs: number): Promise<string> {
+export async function createRunFolder(
+  runsDir: string,
+  label: string,
+  wallMs: number,
+): Promise<string> {
   const base = `${folderStamp(wallMs)}-${safeLabel(label)}`;
   try {
     await mkdir(runsDir, { recursive: true });

@@ -1,4 +1,4 @@
-/** What the user asked `run` for, as the CLI parsed it (DESIGN.md "Commands"). */
+/** What the user asked `run` for, as the CLI parsed it. */
 export interface RunRequest {
   /** Serial device path (a real rig or a pseudo-terminal). */
   port?: string;

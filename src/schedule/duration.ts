@@ -41,7 +41,8 @@ export function formatDuration(ms: number): string {
   ] as const) {
     if (ms >= size && Number.isInteger((ms / size) * 1000)) {
       const v = ms / size;
-      if (Number.isInteger(v) || unit === 'h' || unit === 's') return `${Number(v.toFixed(3))} ${unit}`;
+      if (Number.isInteger(v) || unit === 'h' || unit === 's')
+        return `${Number(v.toFixed(3))} ${unit}`;
     }
   }
   return `${ms} ms`;

@@ -48,7 +48,11 @@ export interface ScheduleSpec {
   continuous?: boolean;
   pulse?: { on: string | number; every: string | number };
   daily?: string | number;
-  steps?: Array<{ load?: string | number; rest?: string | number; pulse?: { on: string | number; every: string | number } }>;
+  steps?: Array<{
+    load?: string | number;
+    rest?: string | number;
+    pulse?: { on: string | number; every: string | number };
+  }>;
   repeat?: boolean;
 }
 

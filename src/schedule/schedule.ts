@@ -65,9 +65,15 @@ export const CONTINUOUS: Schedule = {
   loadOhm: null,
 };
 
-const validate = new Ajv({ allErrors: false, strict: true, allowUnionTypes: true }).compile(SCHEDULE_SCHEMA);
+const validate = new Ajv({ allErrors: false, strict: true, allowUnionTypes: true }).compile(
+  SCHEDULE_SCHEMA,
+);
 
-function invalid(what: string, where: string, fix = 'See docs/schedules.md for the schedule format.'): Error {
+function invalid(
+  what: string,
+  where: string,
+  fix = 'See docs/schedules.md for the schedule format.',
+): Error {
   return makeError(ErrorCodes.CONFIG_INVALID, what, where, fix);
 }
 
@@ -83,7 +89,11 @@ function durationMs(value: string | number, where: string, key: string): number 
   return ms;
 }
 
-function pulseOf(p: { on: string | number; every: string | number }, where: string, key: string): Pulse {
+function pulseOf(
+  p: { on: string | number; every: string | number },
+  where: string,
+  key: string,
+): Pulse {
   const onMs = durationMs(p.on, where, `${key}.on`);
   const everyMs = durationMs(p.every, where, `${key}.every`);
   if (onMs >= everyMs) {
@@ -98,18 +108,33 @@ function pulseOf(p: { on: string | number; every: string | number }, where: stri
 
 /** Turns a validated spec (from a file or an option string) into a schedule. */
 export function buildSchedule(spec: ScheduleSpec, where: string): Schedule {
-  const shapes = (['continuous', 'pulse', 'daily', 'steps'] as const).filter((k) => spec[k] !== undefined && spec[k] !== false);
+  const shapes = (['continuous', 'pulse', 'daily', 'steps'] as const).filter(
+    (k) => spec[k] !== undefined && spec[k] !== false,
+  );
   if (shapes.includes('continuous') && shapes.length > 1) {
-    throw invalid(`continuous cannot be combined with ${shapes.filter((s) => s !== 'continuous').join(' and ')}`, where, 'Give continuous alone, or a pulse and/or daily hours, or explicit steps.');
+    throw invalid(
+      `continuous cannot be combined with ${shapes.filter((s) => s !== 'continuous').join(' and ')}`,
+      where,
+      'Give continuous alone, or a pulse and/or daily hours, or explicit steps.',
+    );
   }
   if (shapes.includes('steps') && shapes.length > 1) {
-    throw invalid(`steps cannot be combined with ${shapes.filter((s) => s !== 'steps').join(' and ')}`, where, 'Put the pulse inside a step ({ load: 8 h, pulse: { on: 15 s, every: 1 min } }) instead.');
+    throw invalid(
+      `steps cannot be combined with ${shapes.filter((s) => s !== 'steps').join(' and ')}`,
+      where,
+      'Put the pulse inside a step ({ load: 8 h, pulse: { on: 15 s, every: 1 min } }) instead.',
+    );
   }
   if (spec.repeat !== undefined && !shapes.includes('steps')) {
-    throw invalid('repeat applies to steps only', where, 'Remove repeat, or write the schedule as steps.');
+    throw invalid(
+      'repeat applies to steps only',
+      where,
+      'Remove repeat, or write the schedule as steps.',
+    );
   }
   const base = {
-    restFirstMs: spec.rest_first !== undefined ? durationMs(spec.rest_first, where, 'rest_first') : 0,
+    restFirstMs:
+      spec.rest_first !== undefined ? durationMs(spec.rest_first, where, 'rest_first') : 0,
     endPointVPerCell: spec.end_point_V_per_cell ?? null,
     loadOhm: spec.load_ohm ?? null,
   };
@@ -123,7 +148,11 @@ export function buildSchedule(spec: ScheduleSpec, where: string): Schedule {
     const pulse = spec.pulse ? pulseOf(spec.pulse, where, 'pulse') : null;
     const windowMs = spec.daily !== undefined ? durationMs(spec.daily, where, 'daily') : null;
     if (windowMs !== null && windowMs > DAY_MS) {
-      throw invalid(`daily (${formatDuration(windowMs)}) is more than a day`, where, 'Give the load hours per day, at most 24 h.');
+      throw invalid(
+        `daily (${formatDuration(windowMs)}) is more than a day`,
+        where,
+        'Give the load hours per day, at most 24 h.',
+      );
     }
     if (windowMs !== null && windowMs < DAY_MS) {
       steps = [
@@ -152,15 +181,28 @@ function stepOf(
 ): ScheduleStep {
   const key = `steps[${i}]`;
   if ((s.load === undefined) === (s.rest === undefined)) {
-    throw invalid(`${key} must have exactly one of load and rest`, where, 'Write each step as { load: <duration> } or { rest: <duration> }.');
+    throw invalid(
+      `${key} must have exactly one of load and rest`,
+      where,
+      'Write each step as { load: <duration> } or { rest: <duration> }.',
+    );
   }
   if (s.rest !== undefined) {
-    if (s.pulse) throw invalid(`${key} is a rest and cannot have a pulse`, where, 'Move the pulse to a load step.');
+    if (s.pulse)
+      throw invalid(
+        `${key} is a rest and cannot have a pulse`,
+        where,
+        'Move the pulse to a load step.',
+      );
     return { load: false, durationMs: durationMs(s.rest, where, `${key}.rest`), pulse: null };
   }
   const untilEnd = typeof s.load === 'string' && /^\s*until (the )?end( point)?\s*$/i.test(s.load);
   if (untilEnd && i !== count - 1) {
-    throw invalid(`${key}.load is "until end" but steps follow it`, where, 'Only the last step can last until the end point.');
+    throw invalid(
+      `${key}.load is "until end" but steps follow it`,
+      where,
+      'Only the last step can last until the end point.',
+    );
   }
   return {
     load: true,
@@ -177,18 +219,35 @@ export function parseScheduleYaml(text: string, where: string): Schedule {
     const key = e?.instancePath.split('/').filter(Boolean).join('.') ?? '';
     if (e?.keyword === 'additionalProperties') {
       const extra = String((e.params as { additionalProperty: string }).additionalProperty);
-      throw invalid(`${key ? `${key}.` : ''}${extra} is not a schedule key`, where, `Use the keys ${Object.keys(SCHEDULE_KEYS).join(', ')} (docs/schedules.md).`);
+      throw invalid(
+        `${key ? `${key}.` : ''}${extra} is not a schedule key`,
+        where,
+        `Use the keys ${Object.keys(SCHEDULE_KEYS).join(', ')} (docs/schedules.md).`,
+      );
     }
-    if (key === '' && e?.keyword === 'type') throw invalid('the schedule must be a YAML mapping', where, 'Start from an example in docs/schedules.md.');
+    if (key === '' && e?.keyword === 'type')
+      throw invalid(
+        'the schedule must be a YAML mapping',
+        where,
+        'Start from an example in docs/schedules.md.',
+      );
     const top = key.split('.')[0] ?? '';
-    throw invalid(`${key || '(top level)'} ${e?.message ?? 'is invalid'}`, where, `Set ${key} to ${SCHEDULE_KEYS[top] ?? 'a valid value'}.`);
+    throw invalid(
+      `${key || '(top level)'} ${e?.message ?? 'is invalid'}`,
+      where,
+      `Set ${key} to ${SCHEDULE_KEYS[top] ?? 'a valid value'}.`,
+    );
   }
   return buildSchedule(data as ScheduleSpec, where);
 }
 
 /** Reads a schedule file. */
 export async function loadSchedule(path: string): Promise<Schedule> {
-  const text = await readConfigText(path, 'schedule file', 'Check the path given for the schedule.');
+  const text = await readConfigText(
+    path,
+    'schedule file',
+    'Check the path given for the schedule.',
+  );
   return parseScheduleYaml(text, path);
 }
 
@@ -198,7 +257,10 @@ const CLAUSES: Array<[RegExp, (m: RegExpExecArray, spec: ScheduleSpec) => void]>
   [/^on (.+?) every (.+)$/, (m, s) => void (s.pulse = { on: m[1]!, every: m[2]! })],
   [/^(?:for )?(.+?) (?:per|a|each) day$/, (m, s) => void (s.daily = m[1]!)],
   [/^rest (.+?)(?: first)?$/, (m, s) => void (s.rest_first = m[1]!)],
-  [new RegExp(`^to ${NUMBER} ?v(?: per cell)?$`), (m, s) => void (s.end_point_V_per_cell = Number(m[1]))],
+  [
+    new RegExp(`^to ${NUMBER} ?v(?: per cell)?$`),
+    (m, s) => void (s.end_point_V_per_cell = Number(m[1])),
+  ],
   [new RegExp(`^${NUMBER} ?(?:ohms?|Ω)$`), (m, s) => void (s.load_ohm = Number(m[1]))],
 ];
 
@@ -209,8 +271,16 @@ const CLAUSES: Array<[RegExp, (m: RegExpExecArray, spec: ScheduleSpec) => void]>
 export function parseScheduleOption(text: string, where = '--schedule'): Schedule {
   const spec: ScheduleSpec = {};
   const seen = new Set<number>();
-  const clauses = text.split(/[,;]/).map((c) => c.trim().replace(/\s+/g, ' ').toLowerCase()).filter((c) => c !== '');
-  if (clauses.length === 0) throw invalid('the schedule is empty', where, 'Give e.g. "continuous" or "on 15 s every 1 min, 8 h per day, to 1.0 V".');
+  const clauses = text
+    .split(/[,;]/)
+    .map((c) => c.trim().replace(/\s+/g, ' ').toLowerCase())
+    .filter((c) => c !== '');
+  if (clauses.length === 0)
+    throw invalid(
+      'the schedule is empty',
+      where,
+      'Give e.g. "continuous" or "on 15 s every 1 min, 8 h per day, to 1.0 V".',
+    );
   for (const clause of clauses) {
     const i = CLAUSES.findIndex(([re]) => re.test(clause));
     if (i < 0) {
@@ -220,7 +290,12 @@ export function parseScheduleOption(text: string, where = '--schedule'): Schedul
         'Use clauses such as: continuous; on 15 s every 1 min; 4 h per day; rest 30 min; to 0.9 V; 43 ohm — separated by commas.',
       );
     }
-    if (seen.has(i)) throw invalid(`"${clause}" repeats a clause already given`, where, 'Give each kind of clause once.');
+    if (seen.has(i))
+      throw invalid(
+        `"${clause}" repeats a clause already given`,
+        where,
+        'Give each kind of clause once.',
+      );
     seen.add(i);
     const [re, apply] = CLAUSES[i]!;
     apply(re.exec(clause)!, spec);
@@ -234,12 +309,20 @@ export function describeSchedule(s: Schedule): string {
   if (s.loadOhm !== null) parts.push(`${s.loadOhm} ohm`);
   if (s.restFirstMs > 0) parts.push(`rest ${formatDuration(s.restFirstMs)} first`);
   const [a, b] = s.steps;
-  const daily = s.repeat && s.steps.length === 2 && a!.load && !b!.load && a!.durationMs + b!.durationMs === DAY_MS;
+  const daily =
+    s.repeat &&
+    s.steps.length === 2 &&
+    a!.load &&
+    !b!.load &&
+    a!.durationMs + b!.durationMs === DAY_MS;
   if (daily) {
-    if (a!.pulse) parts.push(`on ${formatDuration(a!.pulse.onMs)} every ${formatDuration(a!.pulse.everyMs)}`);
+    if (a!.pulse)
+      parts.push(`on ${formatDuration(a!.pulse.onMs)} every ${formatDuration(a!.pulse.everyMs)}`);
     parts.push(`${formatDuration(a!.durationMs)} per day`);
   } else if (s.repeat && s.steps.length === 2 && a!.load && !a!.pulse && !b!.load) {
-    parts.push(`on ${formatDuration(a!.durationMs)} every ${formatDuration(a!.durationMs + b!.durationMs)}`);
+    parts.push(
+      `on ${formatDuration(a!.durationMs)} every ${formatDuration(a!.durationMs + b!.durationMs)}`,
+    );
   } else if (s.steps.length === 1 && a!.load && a!.durationMs === Infinity && !a!.pulse) {
     parts.push('continuous');
   } else {
@@ -303,7 +386,8 @@ function intervalAt(s: Schedule, t: number): Interval {
   let stepStart = 0;
   let i = 0;
   // The last step takes whatever rounding leaves at the very end of a cycle.
-  while (i < s.steps.length - 1 && v >= stepStart + s.steps[i]!.durationMs) stepStart += s.steps[i++]!.durationMs;
+  while (i < s.steps.length - 1 && v >= stepStart + s.steps[i]!.durationMs)
+    stepStart += s.steps[i++]!.durationMs;
   const st = s.steps[i]!;
   const stepEnd = stepStart + st.durationMs;
   if (!st.load || !st.pulse) return { on: st.load, finished: false, endMs: origin + stepEnd };
@@ -311,7 +395,11 @@ function intervalAt(s: Schedule, t: number): Interval {
   const j = Math.floor((v - stepStart) / everyMs);
   const periodStart = stepStart + j * everyMs;
   const on = v - periodStart < onMs;
-  return { on, finished: false, endMs: origin + Math.min(stepEnd, periodStart + (on ? onMs : everyMs)) };
+  return {
+    on,
+    finished: false,
+    endMs: origin + Math.min(stepEnd, periodStart + (on ? onMs : everyMs)),
+  };
 }
 
 /** Whether the load should be on `elapsedMs` after the discharge started, and when that changes. */
@@ -321,7 +409,8 @@ export function loadPlanAt(s: Schedule, elapsedMs: number): LoadPlan {
   // Adjacent intervals of the same state merge; a full cycle without a change never changes.
   for (let i = 0; i < 2 * s.steps.length + 4 && Number.isFinite(end); i++) {
     const next = intervalAt(s, end);
-    if (next.on !== now.on || next.finished !== now.finished) return { on: now.on, finished: now.finished, nextChangeMs: end };
+    if (next.on !== now.on || next.finished !== now.finished)
+      return { on: now.on, finished: now.finished, nextChangeMs: end };
     end = next.endMs;
   }
   return { on: now.on, finished: now.finished, nextChangeMs: null };

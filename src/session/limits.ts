@@ -67,15 +67,31 @@ export class Limits {
   }
 
   check(x: LimitInput): LimitTrip | null {
-    if (x.rigFault) return { reason: 'fault', detail: 'rig_fault: the rig switched its load off by itself (flag bit 1)' };
+    if (x.rigFault)
+      return {
+        reason: 'fault',
+        detail: 'rig_fault: the rig switched its load off by itself (flag bit 1)',
+      };
     if (this.sensor.update(x.thermistor !== 'ok', x.atMs))
-      return { reason: 'fault', detail: `thermistor_${x.thermistor}: the cell temperature cannot be read` };
+      return {
+        reason: 'fault',
+        detail: `thermistor_${x.thermistor}: the cell temperature cannot be read`,
+      };
     if (this.hot.update(x.thermistor === 'ok' && x.celsius > this.maxT, x.atMs))
-      return { reason: 'over_temperature', detail: `${x.celsius.toFixed(1)} °C is above the limit of ${this.maxT} °C` };
+      return {
+        reason: 'over_temperature',
+        detail: `${x.celsius.toFixed(1)} °C is above the limit of ${this.maxT} °C`,
+      };
     if (this.current.update(x.loadOn && x.amps > this.maxI, x.atMs))
-      return { reason: 'fault', detail: `over_current: ${x.amps.toFixed(3)} A is above the limit of ${this.maxI} A` };
+      return {
+        reason: 'fault',
+        detail: `over_current: ${x.amps.toFixed(3)} A is above the limit of ${this.maxI} A`,
+      };
     if (this.cutoff.update(x.loadOn && x.volts < this.cutoffV, x.atMs))
-      return { reason: 'cutoff', detail: `${x.volts.toFixed(3)} V held below the cutoff of ${this.cutoffV.toFixed(3)} V` };
+      return {
+        reason: 'cutoff',
+        detail: `${x.volts.toFixed(3)} V held below the cutoff of ${this.cutoffV.toFixed(3)} V`,
+      };
     return null;
   }
 }

@@ -5,7 +5,8 @@ export type EndReason = 'cutoff' | 'over_temperature' | 'stopped' | 'link_lost' 
 /** A run that never switched the load on ends `refused` (exit 2) instead of with an end reason. */
 export type SessionEnd = EndReason | 'refused';
 
-export type SessionState = 'waiting' | 'precheck' | 'starting' | 'discharging' | 'stopping' | 'ended';
+export type SessionState =
+  'waiting' | 'precheck' | 'starting' | 'discharging' | 'stopping' | 'ended';
 
 /** One frame after the time base, the analog chain and the calibration. */
 export interface Measurement {

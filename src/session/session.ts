@@ -142,7 +142,13 @@ export class Session {
   linkDown(nowMs: number): Action[] {
     if (this.stateValue === 'ended' || this.linkDownAt !== null) return [];
     this.linkDownAt = nowMs;
-    return [{ type: 'event', name: 'link_down', detail: { state: this.stateValue, waiting_s: this.s.linkTimeoutMs / 1000 } }];
+    return [
+      {
+        type: 'event',
+        name: 'link_down',
+        detail: { state: this.stateValue, waiting_s: this.s.linkTimeoutMs / 1000 },
+      },
+    ];
   }
 
   /** The port is back: the next frame's load flag decides what happens. */
@@ -152,7 +158,10 @@ export class Session {
     this.linkDownAt = null;
     this.linkUpAt = nowMs;
     this.reread = true;
-    return [{ type: 'event', name: 'link_up', detail: { down_s: downS } }, { type: 'send', command: { command: 'HELLO' } }];
+    return [
+      { type: 'event', name: 'link_up', detail: { down_s: downS } },
+      { type: 'send', command: { command: 'HELLO' } },
+    ];
   }
 
   /**
@@ -167,7 +176,12 @@ export class Session {
   ack(command: string, args: string[]): Action[] {
     const out: Action[] = [];
     // A LOAD 1 is confirmed by the next frame instead, which also gives the loaded voltage.
-    if (command === 'LOAD' && Number(args[0]) === this.s.channel && args[1] === '0' && this.stateValue === 'stopping')
+    if (
+      command === 'LOAD' &&
+      Number(args[0]) === this.s.channel &&
+      args[1] === '0' &&
+      this.stateValue === 'stopping'
+    )
       this.finish(true, out);
     return out;
   }
@@ -181,21 +195,42 @@ export class Session {
         this.end('refused', `rig_silent: no valid frame in ${this.s.silentMs / 1000} s`, true, out);
       return out;
     }
-    const lastSign = Math.max(this.lastFrameAt ?? -Infinity, this.linkUpAt, this.linkDownAt ?? -Infinity);
+    const lastSign = Math.max(
+      this.lastFrameAt ?? -Infinity,
+      this.linkUpAt,
+      this.linkDownAt ?? -Infinity,
+    );
     const down = this.linkDownAt !== null;
-    const stale = this.lastFrameAt !== null && nowMs - lastSign > (down ? this.s.linkTimeoutMs : this.s.staleLinkMs);
+    const stale =
+      this.lastFrameAt !== null &&
+      nowMs - lastSign > (down ? this.s.linkTimeoutMs : this.s.staleLinkMs);
     if (down && st !== 'stopping' && !stale) return out;
     if (stale && down && st !== 'stopping') {
       if (st === 'precheck' && !this.loadOn) {
-        this.end('link_lost', `the rig's port was gone for ${this.s.linkTimeoutMs / 1000} s during the precheck`, true, out);
+        this.end(
+          'link_lost',
+          `the rig's port was gone for ${this.s.linkTimeoutMs / 1000} s during the precheck`,
+          true,
+          out,
+        );
         return out;
       }
-      this.beginStop('link_lost', `the rig's port was gone for ${this.s.linkTimeoutMs / 1000} s; LOAD 0 is sent if it returns, and the rig's own watchdog has cut the load`, nowMs, out);
+      this.beginStop(
+        'link_lost',
+        `the rig's port was gone for ${this.s.linkTimeoutMs / 1000} s; LOAD 0 is sent if it returns, and the rig's own watchdog has cut the load`,
+        nowMs,
+        out,
+      );
       return out;
     }
     if (stale && st !== 'stopping') {
       if (st === 'precheck' && !this.loadOn) {
-        this.end('link_lost', `no valid frame for ${this.s.staleLinkMs / 1000} s during the precheck`, true, out);
+        this.end(
+          'link_lost',
+          `no valid frame for ${this.s.staleLinkMs / 1000} s during the precheck`,
+          true,
+          out,
+        );
         return out;
       }
       this.beginStop('link_lost', `no valid frame for ${this.s.staleLinkMs / 1000} s`, nowMs, out);
@@ -208,7 +243,13 @@ export class Session {
     if (st === 'discharging' && this.s.schedule) this.followSchedule(this.s.schedule, nowMs, out);
     if ((st === 'starting' || st === 'stopping') && nowMs - this.commandAt >= this.s.confirmMs) {
       if (this.commandTries >= 3 || (st === 'stopping' && stale)) {
-        if (st === 'starting') this.beginStop('fault', 'load_not_confirmed: the rig never reported the load on', nowMs, out);
+        if (st === 'starting')
+          this.beginStop(
+            'fault',
+            'load_not_confirmed: the rig never reported the load on',
+            nowMs,
+            out,
+          );
         else this.finish(false, out);
       } else {
         this.commandTries++;
@@ -224,15 +265,20 @@ export class Session {
     const out: Action[] = [];
     const st = this.stateValue;
     // A load found on during the precheck is switched off and confirmed like any other.
-    if ((st === 'waiting' || st === 'precheck') && !this.loadOn) this.end('stopped', `stopped by ${by} before the load was switched on`, true, out);
-    else if (st !== 'stopping' && st !== 'ended') this.beginStop('stopped', `stopped by ${by}`, nowMs, out);
+    if ((st === 'waiting' || st === 'precheck') && !this.loadOn)
+      this.end('stopped', `stopped by ${by} before the load was switched on`, true, out);
+    else if (st !== 'stopping' && st !== 'ended')
+      this.beginStop('stopped', `stopped by ${by}`, nowMs, out);
     return out;
   }
 
   /** Changes the cutoff (whole string, V); refuses anything below the floor. */
   setCutoff(volts: number): { ok: true } | { ok: false; why: string } {
     if (!Number.isFinite(volts) || volts < this.s.floorV - FLOOR_SLACK_V)
-      return { ok: false, why: `cutoff ${volts} V is below the safety floor of ${this.s.floorV.toFixed(3)} V` };
+      return {
+        ok: false,
+        why: `cutoff ${volts} V is below the safety floor of ${this.s.floorV.toFixed(3)} V`,
+      };
     this.limits.setCutoff(volts);
     return { ok: true };
   }
@@ -241,8 +287,13 @@ export class Session {
    * New limits from an edited chemistry file: the floor, the temperature limit and the cutoff
    * (which the caller has already raised to the floor if needed).
    */
-  updateLimits(x: { floorV: number; maxTemperatureC: number; cutoffV: number }): { ok: true } | { ok: false; why: string } {
-    if (!(x.cutoffV >= x.floorV - FLOOR_SLACK_V)) return { ok: false, why: `cutoff ${x.cutoffV} V is below the floor ${x.floorV} V` };
+  updateLimits(x: {
+    floorV: number;
+    maxTemperatureC: number;
+    cutoffV: number;
+  }): { ok: true } | { ok: false; why: string } {
+    if (!(x.cutoffV >= x.floorV - FLOOR_SLACK_V))
+      return { ok: false, why: `cutoff ${x.cutoffV} V is below the floor ${x.floorV} V` };
     this.s.floorV = x.floorV;
     this.s.maxTemperatureC = x.maxTemperatureC;
     this.limits.setMaxTemperature(x.maxTemperatureC);
@@ -259,23 +310,38 @@ export class Session {
       this.rest = null;
       if (m.hostMs - this.commandAt >= this.s.confirmMs) {
         this.commandAt = m.hostMs;
-        out.push({ type: 'event', name: 'load_found_on', detail: { action: 'switching it off before the precheck' } });
+        out.push({
+          type: 'event',
+          name: 'load_found_on',
+          detail: { action: 'switching it off before the precheck' },
+        });
         out.push(this.loadCommand(false));
       }
       return;
     }
     if (m.thermistor !== 'ok') {
-      this.end('refused', `thermistor_${m.thermistor}: the cell temperature cannot be read; check the NTC wiring`, true, out);
+      this.end(
+        'refused',
+        `thermistor_${m.thermistor}: the cell temperature cannot be read; check the NTC wiring`,
+        true,
+        out,
+      );
       return;
     }
     if (m.celsius > this.s.maxTemperatureC) {
-      this.end('refused', `the cell is at ${m.celsius.toFixed(1)} °C, above the limit of ${this.s.maxTemperatureC} °C; let it cool`, true, out);
+      this.end(
+        'refused',
+        `the cell is at ${m.celsius.toFixed(1)} °C, above the limit of ${this.s.maxTemperatureC} °C; let it cool`,
+        true,
+        out,
+      );
       return;
     }
     if (this.rest === null) this.rest = { sum: 0, n: 0, since: m.hostMs };
     this.rest.sum += m.volts;
     this.rest.n++;
-    if (this.rest.n < this.s.precheckFrames || m.hostMs - this.rest.since < this.s.precheckMs) return;
+    if (this.rest.n < this.s.precheckFrames || m.hostMs - this.rest.since < this.s.precheckMs)
+      return;
     const restV = this.rest.sum / this.rest.n;
     this.openCircuitV = restV;
     const refusal = this.s.checkRest(restV);
@@ -283,7 +349,11 @@ export class Session {
       this.end('refused', refusal, true, out);
       return;
     }
-    out.push({ type: 'event', name: 'precheck_passed', detail: { rest_V: restV, temperature_C: m.celsius } });
+    out.push({
+      type: 'event',
+      name: 'precheck_passed',
+      detail: { rest_V: restV, temperature_C: m.celsius },
+    });
     const sched = this.s.schedule;
     if (sched) {
       this.scheduleStartMs ??= m.hostMs;
@@ -315,12 +385,23 @@ export class Session {
       this.switchAt = nowMs;
       this.switchTries = 0;
       this.unexpectedOff = 0;
-      out.push({ type: 'event', name: 'schedule_switch', detail: { load_on: plan.on } }, this.loadCommand(plan.on));
+      out.push(
+        { type: 'event', name: 'schedule_switch', detail: { load_on: plan.on } },
+        this.loadCommand(plan.on),
+      );
       return;
     }
-    if (this.loadOn !== this.wantOn && nowMs - this.switchAt >= this.s.confirmMs * (this.switchTries + 1)) {
+    if (
+      this.loadOn !== this.wantOn &&
+      nowMs - this.switchAt >= this.s.confirmMs * (this.switchTries + 1)
+    ) {
       if (this.switchTries >= 3) {
-        this.beginStop('fault', `load_not_confirmed: the rig did not switch the load ${this.wantOn ? 'on' : 'off'} as the schedule asked`, nowMs, out);
+        this.beginStop(
+          'fault',
+          `load_not_confirmed: the rig did not switch the load ${this.wantOn ? 'on' : 'off'} as the schedule asked`,
+          nowMs,
+          out,
+        );
         return;
       }
       this.switchTries++;
@@ -334,13 +415,21 @@ export class Session {
     const st = this.stateValue;
     if (st !== 'starting' && st !== 'discharging') return;
     if (this.loadOn) {
-      out.push({ type: 'event', name: 'load_still_on', detail: { note: 'the load stayed on through the interruption' } });
+      out.push({
+        type: 'event',
+        name: 'load_still_on',
+        detail: { note: 'the load stayed on through the interruption' },
+      });
       return;
     }
     // The rig's watchdog cut the load; that time was rest. Check the cell again before switching on.
     this.rest = null;
     this.unexpectedOff = 0;
-    this.to('precheck', "the rig cut the load while the link was down; checking the resting voltage before switching it on again", out);
+    this.to(
+      'precheck',
+      'the rig cut the load while the link was down; checking the resting voltage before switching it on again',
+      out,
+    );
   }
 
   private confirmOn(m: Measurement, out: Action[]): void {
@@ -353,7 +442,12 @@ export class Session {
     out.push({
       type: 'event',
       name: 'load_on',
-      detail: { open_circuit_V: this.openCircuitV, loaded_V: m.volts, current_A: m.amps, dc_resistance_ohm: this.dcResistanceOhm },
+      detail: {
+        open_circuit_V: this.openCircuitV,
+        loaded_V: m.volts,
+        current_A: m.amps,
+        dc_resistance_ohm: this.dcResistanceOhm,
+      },
     });
   }
 
@@ -372,9 +466,19 @@ export class Session {
       return;
     }
     // Off because the schedule said so, or still switching: not a fault.
-    if (this.stateValue === 'discharging' && this.wantOn && m.hostMs - this.switchAt > this.s.confirmMs) {
+    if (
+      this.stateValue === 'discharging' &&
+      this.wantOn &&
+      m.hostMs - this.switchAt > this.s.confirmMs
+    ) {
       this.unexpectedOff = this.loadOn ? 0 : this.unexpectedOff + 1;
-      if (this.unexpectedOff >= 3) this.beginStop('fault', 'load_dropped: the rig reports the load off without a command', m.hostMs, out);
+      if (this.unexpectedOff >= 3)
+        this.beginStop(
+          'fault',
+          'load_dropped: the rig reports the load off without a command',
+          m.hostMs,
+          out,
+        );
     }
   }
 
@@ -389,7 +493,14 @@ export class Session {
   }
 
   private finish(confirmed: boolean, out: Action[]): void {
-    if (!confirmed) out.push({ type: 'event', name: 'load_off_unconfirmed', detail: { note: 'no confirmation; heartbeats stopped so the rig watchdog cuts the load within 5 s' } });
+    if (!confirmed)
+      out.push({
+        type: 'event',
+        name: 'load_off_unconfirmed',
+        detail: {
+          note: 'no confirmation; heartbeats stopped so the rig watchdog cuts the load within 5 s',
+        },
+      });
     this.end(this.endReason ?? 'stopped', this.endDetail, confirmed, out);
   }
 

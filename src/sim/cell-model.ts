@@ -2,7 +2,14 @@
  * Cells for the simulated rig: open-circuit voltage against state of charge, internal
  * resistance, and charge removal. The curves are plausible shapes, not data of any product.
  */
-export const CHEMISTRY_IDS = ['alkaline', 'nimh', 'nicd', 'li-ion', 'lifepo4', 'lead-acid'] as const;
+export const CHEMISTRY_IDS = [
+  'alkaline',
+  'nimh',
+  'nicd',
+  'li-ion',
+  'lifepo4',
+  'lead-acid',
+] as const;
 export type ChemistryId = (typeof CHEMISTRY_IDS)[number];
 
 /** What the rig needs from a cell (or a series string of cells). */
@@ -27,29 +34,83 @@ interface ChemistryCurve {
 const CURVES: Record<ChemistryId, ChemistryCurve> = {
   'li-ion': {
     ocv: [
-      [0, 2.5], [0.02, 3.0], [0.05, 3.3], [0.1, 3.45], [0.2, 3.55], [0.3, 3.62], [0.4, 3.68],
-      [0.5, 3.74], [0.6, 3.82], [0.7, 3.9], [0.8, 3.98], [0.9, 4.07], [1, 4.18],
+      [0, 2.5],
+      [0.02, 3.0],
+      [0.05, 3.3],
+      [0.1, 3.45],
+      [0.2, 3.55],
+      [0.3, 3.62],
+      [0.4, 3.68],
+      [0.5, 3.74],
+      [0.6, 3.82],
+      [0.7, 3.9],
+      [0.8, 3.98],
+      [0.9, 4.07],
+      [1, 4.18],
     ],
     internalOhm: 0.045,
   },
   lifepo4: {
-    ocv: [[0, 2.5], [0.03, 2.9], [0.08, 3.15], [0.15, 3.22], [0.3, 3.27], [0.5, 3.3], [0.7, 3.32], [0.9, 3.34], [0.97, 3.4], [1, 3.5]],
+    ocv: [
+      [0, 2.5],
+      [0.03, 2.9],
+      [0.08, 3.15],
+      [0.15, 3.22],
+      [0.3, 3.27],
+      [0.5, 3.3],
+      [0.7, 3.32],
+      [0.9, 3.34],
+      [0.97, 3.4],
+      [1, 3.5],
+    ],
     internalOhm: 0.03,
   },
   nimh: {
-    ocv: [[0, 0.95], [0.03, 1.05], [0.1, 1.15], [0.2, 1.2], [0.5, 1.25], [0.8, 1.3], [0.95, 1.36], [1, 1.42]],
+    ocv: [
+      [0, 0.95],
+      [0.03, 1.05],
+      [0.1, 1.15],
+      [0.2, 1.2],
+      [0.5, 1.25],
+      [0.8, 1.3],
+      [0.95, 1.36],
+      [1, 1.42],
+    ],
     internalOhm: 0.03,
   },
   nicd: {
-    ocv: [[0, 0.9], [0.03, 1.05], [0.1, 1.15], [0.3, 1.2], [0.7, 1.24], [0.95, 1.3], [1, 1.38]],
+    ocv: [
+      [0, 0.9],
+      [0.03, 1.05],
+      [0.1, 1.15],
+      [0.3, 1.2],
+      [0.7, 1.24],
+      [0.95, 1.3],
+      [1, 1.38],
+    ],
     internalOhm: 0.02,
   },
   alkaline: {
-    ocv: [[0, 0.8], [0.05, 1.0], [0.2, 1.15], [0.5, 1.3], [0.8, 1.45], [0.95, 1.55], [1, 1.6]],
+    ocv: [
+      [0, 0.8],
+      [0.05, 1.0],
+      [0.2, 1.15],
+      [0.5, 1.3],
+      [0.8, 1.45],
+      [0.95, 1.55],
+      [1, 1.6],
+    ],
     internalOhm: 0.15,
   },
   'lead-acid': {
-    ocv: [[0, 1.75], [0.05, 1.9], [0.2, 1.96], [0.5, 2.03], [0.8, 2.08], [1, 2.12]],
+    ocv: [
+      [0, 1.75],
+      [0.05, 1.9],
+      [0.2, 1.96],
+      [0.5, 2.03],
+      [0.8, 2.08],
+      [1, 2.12],
+    ],
     internalOhm: 0.01,
   },
 };
@@ -93,8 +154,10 @@ export class ChemistryCell implements Cell {
   private readonly r25: number;
 
   constructor(private readonly opts: ChemistryCellOptions) {
-    if (!(opts.capacityAh > 0)) throw new RangeError(`capacity must be positive, got ${opts.capacityAh} Ah`);
-    if (!Number.isInteger(opts.cells) || opts.cells < 1) throw new RangeError(`cells must be a whole number >= 1, got ${opts.cells}`);
+    if (!(opts.capacityAh > 0))
+      throw new RangeError(`capacity must be positive, got ${opts.capacityAh} Ah`);
+    if (!Number.isInteger(opts.cells) || opts.cells < 1)
+      throw new RangeError(`cells must be a whole number >= 1, got ${opts.cells}`);
     this.soc = opts.initialSoc;
     this.r25 = opts.internalOhmPerCell ?? defaultInternalOhmPerCell(opts.chemistry);
   }

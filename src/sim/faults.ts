@@ -10,7 +10,11 @@ export interface FaultOptions {
   burstFrames: number;
 }
 
-export const NO_FAULTS: FaultOptions = { dropProbability: 0, garbageProbability: 0, burstFrames: 1 };
+export const NO_FAULTS: FaultOptions = {
+  dropProbability: 0,
+  garbageProbability: 0,
+  burstFrames: 1,
+};
 
 // Bytes line noise tends to produce; no '|' (so a junk line never carries a checksum field) and no newline.
 const JUNK_CHARS = 'D,0123456789ABCDEF\x00\x01\x07\x1b\x7f~#@';
@@ -42,7 +46,8 @@ export class FaultInjector {
    * are the frame itself with one character corrupted in transit, so its checksum fails.
    */
   garbageBefore(frame: string): string | null {
-    if (!(this.opts.garbageProbability > 0 && this.rng() < this.opts.garbageProbability)) return null;
+    if (!(this.opts.garbageProbability > 0 && this.rng() < this.opts.garbageProbability))
+      return null;
     if (this.rng() < 0.5) {
       const n = 1 + Math.floor(this.rng() * 40);
       let s = '';

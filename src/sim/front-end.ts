@@ -91,6 +91,10 @@ export class FrontEnd {
 
   private convert(sensedV: number, adcV: number): ChainReading {
     const noise = this.errors.noiseCounts > 0 ? this.errors.noiseCounts * gaussian(this.rng) : 0;
-    return { sensedV, adcV, counts: adcCounts(adcV, this.profile.adc.vref_V, this.profile.adc.bits, noise) };
+    return {
+      sensedV,
+      adcV,
+      counts: adcCounts(adcV, this.profile.adc.vref_V, this.profile.adc.bits, noise),
+    };
   }
 }

@@ -9,7 +9,8 @@ export class RigTickCounter {
     readonly rateError: number,
     private readonly startTick = 0,
   ) {
-    if (!(rateError > -1)) throw new RangeError(`rig clock rate error must be above -1, got ${rateError}`);
+    if (!(rateError > -1))
+      throw new RangeError(`rig clock rate error must be above -1, got ${rateError}`);
   }
 
   /** The tick the rig shows after `trueElapsedMs` of true time since boot. */

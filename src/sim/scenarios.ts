@@ -37,8 +37,19 @@ export interface SimScenario {
     voltage_gain_error: number;
     noise_counts: number;
   };
-  rig: { rig_id: string; firmware: string; clock_error: number; frame_period_ms: number; channel: number };
-  faults: { drop_probability: number; garbage_probability: number; burst_frames: number; seed: number };
+  rig: {
+    rig_id: string;
+    firmware: string;
+    clock_error: number;
+    frame_period_ms: number;
+    channel: number;
+  };
+  faults: {
+    drop_probability: number;
+    garbage_probability: number;
+    burst_frames: number;
+    seed: number;
+  };
 }
 
 export interface ScenarioSet {
@@ -57,7 +68,13 @@ export interface SimOverrides {
 }
 
 // strictRequired off: the current offset's oneOf names keys declared on the parent object.
-const ajv = new Ajv({ allErrors: false, useDefaults: true, verbose: true, strict: true, strictRequired: false });
+const ajv = new Ajv({
+  allErrors: false,
+  useDefaults: true,
+  verbose: true,
+  strict: true,
+  strictRequired: false,
+});
 const validateFile = ajv.compile(SCENARIO_FILE_SCHEMA);
 
 /** Reads and validates a scenario file; every failure names the file, the key and the fix. */
@@ -66,12 +83,28 @@ export function loadScenarios(path: string): ScenarioSet {
   try {
     text = readFileSync(path, 'utf8');
   } catch (e) {
-    throw makeError(ErrorCodes.CONFIG_READ, `cannot read the scenario file: ${(e as Error).message}`, path, 'Check the path and the file permissions.');
+    throw makeError(
+      ErrorCodes.CONFIG_READ,
+      `cannot read the scenario file: ${(e as Error).message}`,
+      path,
+      'Check the path and the file permissions.',
+    );
   }
-  const data = parseConfigYaml(text, 'scenario file', path, 'Fix the YAML syntax at the line given.');
+  const data = parseConfigYaml(
+    text,
+    'scenario file',
+    path,
+    'Fix the YAML syntax at the line given.',
+  );
   if (!validateFile(data)) {
     const err = validateFile.errors?.[0];
-    if (!err) throw makeError(ErrorCodes.CONFIG_INVALID, 'the scenario file is invalid', path, 'Compare it with the shipped config/sim-scenarios.yaml.');
+    if (!err)
+      throw makeError(
+        ErrorCodes.CONFIG_INVALID,
+        'the scenario file is invalid',
+        path,
+        'Compare it with the shipped config/sim-scenarios.yaml.',
+      );
     throw schemaError(path, err);
   }
   const raw = (data as { scenarios: Record<string, Omit<SimScenario, 'name'>> }).scenarios;
@@ -93,7 +126,12 @@ export function pickScenario(set: ScenarioSet, name: string): SimScenario {
 }
 
 /** A simulated rig built from a scenario, on the given clock and rig profile. */
-export function buildSimRig(scenario: SimScenario, clock: Clock, profile: RigProfile, overrides: SimOverrides = {}): SimRig {
+export function buildSimRig(
+  scenario: SimScenario,
+  clock: Clock,
+  profile: RigProfile,
+  overrides: SimOverrides = {},
+): SimRig {
   const shunt = profile.current.shunt_ohm;
   const fe = scenario.front_end;
   const f = scenario.faults;
@@ -102,7 +140,9 @@ export function buildSimRig(scenario: SimScenario, clock: Clock, profile: RigPro
     cells: scenario.cell.cells,
     capacityAh: scenario.cell.capacity_Ah,
     initialSoc: scenario.cell.initial_soc,
-    ...(scenario.cell.internal_ohm_per_cell !== undefined ? { internalOhmPerCell: scenario.cell.internal_ohm_per_cell } : {}),
+    ...(scenario.cell.internal_ohm_per_cell !== undefined
+      ? { internalOhmPerCell: scenario.cell.internal_ohm_per_cell }
+      : {}),
   });
   return new SimRig({
     clock,
@@ -179,10 +219,16 @@ function schemaError(file: string, err: ErrorObject): Error {
     }
     case 'pattern':
     case 'propertyNames':
-      fix = 'Use lower-case letters, digits and "-" for scenario names, and letters, digits, ".", "_" or "-" for ids (at most 32).';
+      fix =
+        'Use lower-case letters, digits and "-" for scenario names, and letters, digits, ".", "_" or "-" for ids (at most 32).';
       break;
     default:
       fix = 'Compare it with the scenarios shipped in config/sim-scenarios.yaml.';
   }
-  return makeError(ErrorCodes.CONFIG_INVALID, `invalid simulator scenario setting: ${key} ${err.message ?? ''}`.trim(), `${file}, key ${where}`, fix);
+  return makeError(
+    ErrorCodes.CONFIG_INVALID,
+    `invalid simulator scenario setting: ${key} ${err.message ?? ''}`.trim(),
+    `${file}, key ${where}`,
+    fix,
+  );
 }

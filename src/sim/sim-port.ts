@@ -11,7 +11,11 @@ const REOPEN_EVERY_MS = 200;
  * The rig has its own supply: when the link goes away it keeps running (and its watchdog
  * keeps counting), and it reopens the device when it comes back.
  */
-export async function attachSimRig(rig: SimRig, path: string, baudRate: number): Promise<{ close(): Promise<void> }> {
+export async function attachSimRig(
+  rig: SimRig,
+  path: string,
+  baudRate: number,
+): Promise<{ close(): Promise<void> }> {
   let port: SerialPort | null = null;
   let closing = false;
   let retry: NodeJS.Timeout | null = null;
@@ -41,7 +45,12 @@ export async function attachSimRig(rig: SimRig, path: string, baudRate: number):
   try {
     await connect();
   } catch (err) {
-    throw makeError(ErrorCodes.PORT_OPEN, `cannot open the simulator's side of the link: ${(err as Error).message}`, `--port ${path}`, 'Create a pseudo-terminal pair first (see docs/simulated-rig.md) and pass one end.');
+    throw makeError(
+      ErrorCodes.PORT_OPEN,
+      `cannot open the simulator's side of the link: ${(err as Error).message}`,
+      `--port ${path}`,
+      'Create a pseudo-terminal pair first (see docs/simulated-rig.md) and pass one end.',
+    );
   }
   rig.start((text) => {
     if (port?.isOpen) port.write(text);

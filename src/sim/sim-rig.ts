@@ -111,8 +111,12 @@ export class SimRig {
     if (!Number.isInteger(this.channel) || this.channel < 0 || this.channel > 15) {
       throw new RangeError(`channel must be 0..15, got ${this.channel}`);
     }
-    if (!(this.framePeriodMs > 0)) throw new RangeError(`frame period must be positive, got ${this.framePeriodMs} ms`);
-    if (!/^[\x21-\x7e]+$/.test(opts.rigId + opts.firmware) || /[,|]/.test(opts.rigId + opts.firmware)) {
+    if (!(this.framePeriodMs > 0))
+      throw new RangeError(`frame period must be positive, got ${this.framePeriodMs} ms`);
+    if (
+      !/^[\x21-\x7e]+$/.test(opts.rigId + opts.firmware) ||
+      /[,|]/.test(opts.rigId + opts.firmware)
+    ) {
       throw new RangeError('rig id and firmware must be printable, without spaces, commas or "|"');
     }
     const rng = mulberry32(opts.seed ?? 1);
@@ -130,7 +134,11 @@ export class SimRig {
     this.bootAt = this.clock.now();
     this.physicsAt = this.bootAt;
     this.send(this.helloLine(), true);
-    this.frameTimer = this.clock.setTimer(() => this.onFrame(), this.ticks.trueMsFor(this.framePeriodMs), true);
+    this.frameTimer = this.clock.setTimer(
+      () => this.onFrame(),
+      this.ticks.trueMsFor(this.framePeriodMs),
+      true,
+    );
   }
 
   /** Bytes from the host; lines may arrive split or several at once. */
@@ -286,7 +294,12 @@ export class SimRig {
 
   /** Everything in series with the cell's internal resistance when the load is on. */
   private externalOhm(): number {
-    return this.opts.loadOhm + this.opts.mosfetOhm + this.opts.profile.current.shunt_ohm + this.opts.frontEnd.connectionOhm;
+    return (
+      this.opts.loadOhm +
+      this.opts.mosfetOhm +
+      this.opts.profile.current.shunt_ohm +
+      this.opts.frontEnd.connectionOhm
+    );
   }
 
   private electrical(): ElectricalPoint {

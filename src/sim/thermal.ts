@@ -17,8 +17,10 @@ export class ThermalModel {
   private t: number;
 
   constructor(private readonly opts: ThermalOptions) {
-    if (!(opts.heatCapacityJPerK > 0)) throw new RangeError(`heat capacity must be positive, got ${opts.heatCapacityJPerK} J/K`);
-    if (!(opts.conductanceWPerK > 0)) throw new RangeError(`conductance must be positive, got ${opts.conductanceWPerK} W/K`);
+    if (!(opts.heatCapacityJPerK > 0))
+      throw new RangeError(`heat capacity must be positive, got ${opts.heatCapacityJPerK} J/K`);
+    if (!(opts.conductanceWPerK > 0))
+      throw new RangeError(`conductance must be positive, got ${opts.conductanceWPerK} W/K`);
     this.t = opts.ambientC;
   }
 

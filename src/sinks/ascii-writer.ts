@@ -40,7 +40,7 @@ function writeDigits(buf: Uint8Array, end: number, n: number, count: number): vo
     q = next;
     left -= 2;
   }
-  if (left === 1) buf[--p] = 48 + (q % 10);
+  if (left === 1) buf[p - 1] = 48 + (q % 10);
 }
 
 /** A whole number 0 ≤ n < 2^53, in decimal. */

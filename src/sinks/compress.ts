@@ -76,7 +76,12 @@ interface Rotated {
  * compressed copy (the plain file is the original). Returns the paths of the plain files
  * numbered below `before`, which are closed and may be compressed again.
  */
-export async function settleRotated(dir: string, prefix: string, ext: string, before: number): Promise<string[]> {
+export async function settleRotated(
+  dir: string,
+  prefix: string,
+  ext: string,
+  before: number,
+): Promise<string[]> {
   const esc = (s: string): string => s.replace(/[.*+?^${}()|[\]\\]/g, '\\$&');
   const re = new RegExp(`^${esc(prefix)}(\\d{4,})${esc(ext)}(${esc(GZ_EXT)}|${esc(GZ_TMP_EXT)})?$`);
   const found = new Map<number, Rotated>();

@@ -20,7 +20,8 @@ function writeTwo(buf: Uint8Array, at: number, n: number): void {
 
 /** Writes the time into `buf` at `at` (24 bytes on the fast way); returns the position after it. The sample log writes one per frame. */
 export function writeIsoTime(buf: Buffer, at: number, ms: number): number {
-  if (!Number.isInteger(ms) || ms < 0 || ms >= YEAR_10000_MS) return writeText(buf, at, new Date(ms).toISOString());
+  if (!Number.isInteger(ms) || ms < 0 || ms >= YEAR_10000_MS)
+    return writeText(buf, at, new Date(ms).toISOString());
   const hour = Math.floor(ms / HOUR_MS);
   if (hour !== prefixHour) {
     prefix = Buffer.from(new Date(hour * HOUR_MS).toISOString().slice(0, 14), 'latin1');

@@ -70,7 +70,11 @@ export class LogFile {
    * using at most `maxBytes`; it returns the position after the row. Lets a row go from its
    * fields to bytes with no string in between. Throws like `append`.
    */
-  appendWith<T>(item: T, maxBytes: number, write: (item: T, buf: Buffer, at: number) => number): void {
+  appendWith<T>(
+    item: T,
+    maxBytes: number,
+    write: (item: T, buf: Buffer, at: number) => number,
+  ): void {
     if (this.failure) throw this.failure;
     if (this.used + maxBytes > this.block.length) {
       if (this.used > 0) this.full.push(this.block.subarray(0, this.used));
@@ -115,7 +119,12 @@ export class LogFile {
 
   /** A written piece goes back to the spares if it is the start of one of our whole blocks. */
   private recycle(piece: Buffer): void {
-    if (this.spare.length >= SPARE_BLOCKS || piece.byteOffset !== 0 || piece.buffer.byteLength !== BLOCK_BYTES) return;
+    if (
+      this.spare.length >= SPARE_BLOCKS ||
+      piece.byteOffset !== 0 ||
+      piece.buffer.byteLength !== BLOCK_BYTES
+    )
+      return;
     this.spare.push(Buffer.from(piece.buffer, 0, BLOCK_BYTES));
   }
 
@@ -150,14 +159,18 @@ export class LogFile {
 
   private currentPath(): string {
     if (this.o.rotateBytes === undefined) return join(this.o.dir, this.o.name);
-    return join(this.o.dir, `${this.o.name}${String(this.index).padStart(4, '0')}${this.o.ext ?? '.csv'}`);
+    return join(
+      this.o.dir,
+      `${this.o.name}${String(this.index).padStart(4, '0')}${this.o.ext ?? '.csv'}`,
+    );
   }
 
   private async openFile(): Promise<void> {
     if (!this.settled) await this.settle();
     // A number already taken by a compressed file is never reused: a plain file beside it
     // would hide its rows from readers, which prefer the plain file.
-    while (this.o.rotateBytes !== undefined && (await exists(this.currentPath() + GZ_EXT))) this.index++;
+    while (this.o.rotateBytes !== undefined && (await exists(this.currentPath() + GZ_EXT)))
+      this.index++;
     const path = this.currentPath();
     this.handle = await open(path, 'a');
     this.fileBytes = (await this.handle.stat()).size;
@@ -188,7 +201,8 @@ export class LogFile {
       let cut = room > 0 ? rows.lastIndexOf(10, from + room - 1) + 1 : 0;
       if (cut <= from) cut = from;
       // A file always takes at least one row, so a limit below header + row cannot rotate forever.
-      if (cut === from && this.fileBytes === this.headerBytes) cut = rows.indexOf(10, from) + 1 || rows.length;
+      if (cut === from && this.fileBytes === this.headerBytes)
+        cut = rows.indexOf(10, from) + 1 || rows.length;
       await this.writeBytes(rows.subarray(from, cut));
       from = cut;
       // A new file starts only for a row that has to go in it.

@@ -1,7 +1,7 @@
 import { writeFixed, writeText, writeUint } from './ascii-writer.js';
 import { writeIsoTime } from './iso-time.js';
 
-/** The columns of samples-NNNN.csv (DESIGN.md "Run folder"); the order is a contract. */
+/** The columns of samples-NNNN.csv (docs/run-folder.md); the order is a contract. */
 export const SAMPLE_COLUMNS = [
   'host_s',
   'wall_time',
@@ -87,7 +87,8 @@ function hexDigit(n: number): number {
 export function writeSampleRow(r: SampleRow, buf: Buffer, at: number): number {
   let p = comma(buf, writeFixed(buf, at, r.hostS, 3));
   p = comma(buf, writeIsoTime(buf, p, r.wallMs));
-  for (const n of [r.channel, r.seq, r.tickMs, r.vRaw, r.iRaw, r.tRaw]) p = comma(buf, writeUint(buf, p, n));
+  for (const n of [r.channel, r.seq, r.tickMs, r.vRaw, r.iRaw, r.tRaw])
+    p = comma(buf, writeUint(buf, p, n));
   if (r.flags > 0xff) p = writeText(buf, p, r.flags.toString(16).toUpperCase());
   else {
     buf[p++] = hexDigit(r.flags >> 4);

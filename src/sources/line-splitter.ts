@@ -20,7 +20,11 @@ export class LineSplitter {
   private readonly lines: LineBuffer;
 
   constructor(options: LineSplitterOptions) {
-    this.lines = new LineBuffer(options.maxLength ?? 256, options.onLine, options.onOverlong ?? (() => undefined));
+    this.lines = new LineBuffer(
+      options.maxLength ?? 256,
+      options.onLine,
+      options.onOverlong ?? (() => undefined),
+    );
   }
 
   write(chunk: Buffer): void {

@@ -48,11 +48,20 @@ export class SerialSource implements Source {
   }
 
   private async connect(handlers: SourceHandlers): Promise<void> {
-    const port = new SerialPort({ path: this.options.path, baudRate: this.options.baudRate ?? 115200, autoOpen: false });
-    await new Promise<void>((resolve, reject) => port.open((err) => (err ? reject(err) : resolve())));
+    const port = new SerialPort({
+      path: this.options.path,
+      baudRate: this.options.baudRate ?? 115200,
+      autoOpen: false,
+    });
+    await new Promise<void>((resolve, reject) =>
+      port.open((err) => (err ? reject(err) : resolve())),
+    );
     this.port = port;
     // A fresh splitter per connection: a half line from before the break is not glued to the next.
-    const splitter = new LineSplitter({ onLine: (line) => handlers.line(line), onOverlong: (n) => handlers.overlong(n) });
+    const splitter = new LineSplitter({
+      onLine: (line) => handlers.line(line),
+      onOverlong: (n) => handlers.overlong(n),
+    });
     // Chunks are split and handed over in the next turn, not inside the read's callback: the
     // port's next read is then already under way while the core works on this one. A few
     // hundred KiB at most wait; past that the port is paused until they are done.

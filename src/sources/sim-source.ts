@@ -35,7 +35,11 @@ export class SimSource implements Source {
   }
 
   async open(handlers: SourceHandlers): Promise<void> {
-    const lines = new LineBuffer(256, (l) => handlers.line(l), (n) => handlers.overlong(n));
+    const lines = new LineBuffer(
+      256,
+      (l) => handlers.line(l),
+      (n) => handlers.overlong(n),
+    );
     this.open_ = true;
     this.rig.start((chunk) => {
       if (this.open_) lines.push(chunk);

@@ -26,7 +26,8 @@ export class RateEstimator {
 
   /** Host ms per rig ms, or null until the baseline is long enough to mean something. */
   hostPerTick(minSpanMs = 5000, minPoints = 20): number | null {
-    if (this.n < minPoints || this.lastHost - this.firstHost < minSpanMs || this.sTT <= 0) return null;
+    if (this.n < minPoints || this.lastHost - this.firstHost < minSpanMs || this.sTT <= 0)
+      return null;
     return this.sTH / this.sTT;
   }
 

@@ -65,10 +65,18 @@ export class TimeBase {
       this.windowMinLag = Infinity;
       this.prev = { hostMs, tick: rigRestart ? tickMs : tick, arrival: arrivalMs };
       this.rate.add(rigRestart ? tickMs : tick, arrivalMs);
-      return { hostMs, dtMs: prev === null ? 0 : hostMs - prev.hostMs, lost: 0, gap: prev !== null, rigRestart };
+      return {
+        hostMs,
+        dtMs: prev === null ? 0 : hostMs - prev.hostMs,
+        lost: 0,
+        gap: prev !== null,
+        rigRestart,
+      };
     }
     // Ticks that ran on while the host stood still (suspended) would wreck the rate estimate.
-    const hostStood = (tick - prev.tick) * (this.rate.hostPerTick() ?? 1) - (arrivalMs - prev.arrival) > this.longGapMs;
+    const hostStood =
+      (tick - prev.tick) * (this.rate.hostPerTick() ?? 1) - (arrivalMs - prev.arrival) >
+      this.longGapMs;
     if (hostStood) this.rate.reset();
     this.rate.add(tick, arrivalMs);
     const scale = this.rate.hostPerTick() ?? 1;

@@ -2,12 +2,17 @@ import { fileURLToPath } from 'node:url';
 import { describe, expect, it } from 'vitest';
 import { assess } from '../../src/assess/assess.js';
 import { runAssess } from '../../src/assess/run-assess.js';
-import { fitQuantity, sealCalibration, CALIBRATION_FORMAT } from '../../src/calibration/calibration.js';
+import {
+  fitQuantity,
+  sealCalibration,
+  CALIBRATION_FORMAT,
+} from '../../src/calibration/calibration.js';
 import type { RigProfile } from '../../src/chain/rig-profile-types.js';
 import { loadRigProfile } from '../../src/chain/rig-profile.js';
 import { CellvigilError, ErrorCodes } from '../../src/core/errors.js';
 
-const rigFile = (name: string): string => fileURLToPath(new URL(`../../config/rigs/${name}`, import.meta.url));
+const rigFile = (name: string): string =>
+  fileURLToPath(new URL(`../../config/rigs/${name}`, import.meta.url));
 const INVERTING = rigFile('inverting-10bit.yaml');
 const BENCH = rigFile('bench-20mohm.yaml');
 
@@ -42,7 +47,9 @@ describe('assess: facts of the trade', () => {
     expect(report.warnings[0]).toContain('cannot resolve 1 mA');
     expect(text).toContain('warning: one count of the current channel is worth 5.32 mA');
     // ... and a claim it can meet gives no warning.
-    expect((await runAssess({ rig: INVERTING, claimResolutionA: 0.01 })).report.warnings).toEqual([]);
+    expect((await runAssess({ rig: INVERTING, claimResolutionA: 0.01 })).report.warnings).toEqual(
+      [],
+    );
   });
 
   it('180 kΩ across a 10 kΩ feedback resistor makes 9.474 kΩ and lowers the gain by about 5.3 % (fact of the trade)', async () => {
@@ -64,7 +71,12 @@ describe('assess: facts of the trade', () => {
   });
 
   it("an RC oscillator's few-percent tolerance becomes the same percentage of error in the charge when the rig's clock is used (fact of the trade)", async () => {
-    const { report, text } = await runAssess({ rig: BENCH, currentA: 0.5, hours: 5, rigClockTolerancePct: 3 });
+    const { report, text } = await runAssess({
+      rig: BENCH,
+      currentA: 0.5,
+      hours: 5,
+      rigClockTolerancePct: 3,
+    });
     const t = report.test!;
     expect(t.rig_clock!.half_width_Ah / t.capacity_Ah).toBeCloseTo(0.03, 12);
     // Not part of the total: the host clock times the frames.
@@ -73,7 +85,7 @@ describe('assess: facts of the trade', () => {
   });
 });
 
-describe('assess: resolution and full scale (DESIGN.md chain conventions: one count = vref / 2^bits)', () => {
+describe('assess: resolution and full scale (chain conventions of docs/rig-profile.md: one count = vref / 2^bits)', () => {
   it('gives volts and amps per count and the full scale at the top count', async () => {
     const { report } = await runAssess({ rig: BENCH });
     const c = report.chain;
@@ -83,7 +95,7 @@ describe('assess: resolution and full scale (DESIGN.md chain conventions: one co
     expect(c.full_scale_A).toBeCloseTo((4095 * 3.3) / 4096 / (30.3 * 0.02), 12);
   });
 
-  it('gives the thermistor step at several temperatures, matching the derivative of the Beta equation (CHECKS.md)', async () => {
+  it('gives the thermistor step at several temperatures, matching the derivative of the Beta equation', async () => {
     const { report } = await runAssess({ rig: BENCH, temperatures: [0, 25, 45, 60] });
     // NTC (R0 10 kΩ, B 3950 K) low in a divider with 10 kΩ, 12 bits:
     // counts = 4096·R/(R + F), dR/dT = −B·R/T², so d(counts)/dT = 4096·F/(R + F)² · B·R/T².
@@ -93,7 +105,8 @@ describe('assess: resolution and full scale (DESIGN.md chain conventions: one co
       return 1 / ((4096 * 10_000 * 3950 * R) / ((R + 10_000) ** 2 * T * T));
     };
     expect(report.chain.degrees_per_count.map((d) => d.celsius)).toEqual([0, 25, 45, 60]);
-    for (const d of report.chain.degrees_per_count) expect(rel(d.per_count, stepAt(d.celsius))).toBeLessThan(1e-4);
+    for (const d of report.chain.degrees_per_count)
+      expect(rel(d.per_count, stepAt(d.celsius))).toBeLessThan(1e-4);
   });
 
   it('the smallest current worth measuring: one count is 1 % of the reading; uncalibrated, the offset is', async () => {
@@ -127,7 +140,12 @@ describe('assess: capacity budget by the GUM (JCGM 100:2008)', () => {
   });
 
   it('with a reference meter: its limits at the test current, rectangular, for the whole run', async () => {
-    const { report, text } = await runAssess({ rig: BENCH, currentA: 0.5, hours: 5, referenceAccuracy: '0.5%+0.003' });
+    const { report, text } = await runAssess({
+      rig: BENCH,
+      currentA: 0.5,
+      hours: 5,
+      referenceAccuracy: '0.5%+0.003',
+    });
     const t = report.test!;
     expect(t.mode).toBe('reference_meter');
     expect(t.terms[0]!.u_Ah).toBeCloseTo(((0.005 * 0.5 + 0.003) / Math.sqrt(3)) * 5, 15);
@@ -143,38 +161,92 @@ describe('assess: capacity budget by the GUM (JCGM 100:2008)', () => {
       reference_u: 0.002,
     }));
     const current = fitQuantity('current', points, 'gain_offset').calibration;
-    const cal = sealCalibration({ format: CALIBRATION_FORMAT, rig: 'bench', date: '2026-01-01', reference_instrument: 'DMM', current });
+    const cal = sealCalibration({
+      format: CALIBRATION_FORMAT,
+      rig: 'bench',
+      date: '2026-01-01',
+      reference_instrument: 'DMM',
+      current,
+    });
     const profile = await loadRigProfile(BENCH);
-    const t = assess({ rigFile: BENCH, profile, calibration: cal, test: { currentA: 1.5, hours: 2 } }).test!;
+    const t = assess({
+      rigFile: BENCH,
+      profile,
+      calibration: cal,
+      test: { currentA: 1.5, hours: 2 },
+    }).test!;
     expect(t.mode).toBe('calibration_file');
     const f = current.fit;
     const x = (1.5 - f.offset) / f.gain;
     const uI = Math.sqrt(x * x * f.u_gain ** 2 + f.u_offset ** 2 + 2 * x * f.cov_gain_offset);
     expect(t.terms[0]!.u_Ah).toBeCloseTo(uI * 2, 15);
     // The correlation matters: without it the term would be larger (gain and offset anticorrelate).
-    expect(Math.sqrt(x * x * f.u_gain ** 2 + f.u_offset ** 2) * 2).toBeGreaterThan(t.terms[0]!.u_Ah);
+    expect(Math.sqrt(x * x * f.u_gain ** 2 + f.u_offset ** 2) * 2).toBeGreaterThan(
+      t.terms[0]!.u_Ah,
+    );
   });
 
   it('warns when the test current is beyond full scale', async () => {
-    const { report } = await runAssess({ rig: INVERTING, currentA: 6, hours: 1, referenceAccuracy: '1%' });
-    expect(report.warnings.join('\n')).toContain('beyond the current channel\'s full scale');
+    const { report } = await runAssess({
+      rig: INVERTING,
+      currentA: 6,
+      hours: 1,
+      referenceAccuracy: '1%',
+    });
+    expect(report.warnings.join('\n')).toContain("beyond the current channel's full scale");
   });
 });
 
 describe('assess: options', () => {
   it('refuses a current without hours, a budget option without a test, and both a calibration and a reference accuracy', async () => {
     expect((await usageError(runAssess({ rig: BENCH, currentA: 1 }))).message).toContain('--hours');
-    expect((await usageError(runAssess({ rig: BENCH, referenceAccuracy: '1%' }))).message).toContain('--current <A> --hours <h>');
-    expect((await usageError(runAssess({ rig: BENCH, currentA: 1, hours: 1, calibration: 'c.json', referenceAccuracy: '1%' }))).message).toContain('not both');
-    expect((await usageError(runAssess({ rig: BENCH, currentA: -1, hours: 1 }))).message).toContain('--current');
+    expect(
+      (await usageError(runAssess({ rig: BENCH, referenceAccuracy: '1%' }))).message,
+    ).toContain('--current <A> --hours <h>');
+    expect(
+      (
+        await usageError(
+          runAssess({
+            rig: BENCH,
+            currentA: 1,
+            hours: 1,
+            calibration: 'c.json',
+            referenceAccuracy: '1%',
+          }),
+        )
+      ).message,
+    ).toContain('not both');
+    expect((await usageError(runAssess({ rig: BENCH, currentA: -1, hours: 1 }))).message).toContain(
+      '--current',
+    );
   });
 
   it('the JSON report carries every figure of the text', async () => {
-    const { report } = await runAssess({ rig: BENCH, currentA: 1, hours: 2, claimResolutionA: 0.001 });
+    const { report } = await runAssess({
+      rig: BENCH,
+      currentA: 1,
+      hours: 2,
+      claimResolutionA: 0.001,
+    });
     const json = JSON.parse(JSON.stringify(report)) as Record<string, unknown>;
-    expect(Object.keys(json).sort()).toEqual(['chain', 'front_end', 'rig', 'smallest_current', 'test', 'warnings']);
+    expect(Object.keys(json).sort()).toEqual([
+      'chain',
+      'front_end',
+      'rig',
+      'smallest_current',
+      'test',
+      'warnings',
+    ]);
     expect(Object.keys(json['test'] as object)).toEqual(
-      expect.arrayContaining(['capacity_Ah', 'terms', 'combined_u_Ah', 'expanded_U_Ah', 'k', 'expanded_relative', 'mode']),
+      expect.arrayContaining([
+        'capacity_Ah',
+        'terms',
+        'combined_u_Ah',
+        'expanded_U_Ah',
+        'k',
+        'expanded_relative',
+        'mode',
+      ]),
     );
   });
 });

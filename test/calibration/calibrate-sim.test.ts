@@ -8,7 +8,11 @@ import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { afterEach, beforeEach, describe, expect, it } from 'vitest';
 import { applyCalibration, loadCalibration } from '../../src/calibration/calibration.js';
-import { runCalibrate, type CalibrateIo, type CalibrateRequest } from '../../src/calibration/calibrate-run.js';
+import {
+  runCalibrate,
+  type CalibrateIo,
+  type CalibrateRequest,
+} from '../../src/calibration/calibrate-run.js';
 import { meanUncertaintyCounts } from '../../src/calibration/capture.js';
 import type { Prompter } from '../../src/calibration/interactive.js';
 import { makeLoadGuard } from '../../src/calibration/load-guard.js';
@@ -43,7 +47,15 @@ afterEach(async () => {
 });
 
 function request(over: Partial<CalibrateRequest> = {}): CalibrateRequest {
-  return { sim: 'demo', speed: 1, out: join(dir, 'cal.json'), seconds: 5, settleSeconds: 1, channel: 0, ...over };
+  return {
+    sim: 'demo',
+    speed: 1,
+    out: join(dir, 'cal.json'),
+    seconds: 5,
+    settleSeconds: 1,
+    channel: 0,
+    ...over,
+  };
 }
 
 async function pointsFile(text: string): Promise<string> {
@@ -67,7 +79,13 @@ describe('calibrate --sim demo --points (reference: truth)', () => {
     const demo = scenario('demo');
     const conn = simConnection(clock, demo, profile);
     const lines: string[] = [];
-    const out = await drive(clock, runCalibrate(request({ points: await pointsFile(TRUTH_POINTS) }), { print: (l) => lines.push(l), connection: conn }));
+    const out = await drive(
+      clock,
+      runCalibrate(request({ points: await pointsFile(TRUTH_POINTS) }), {
+        print: (l) => lines.push(l),
+        connection: conn,
+      }),
+    );
 
     const cal = await loadCalibration(join(dir, 'cal.json'));
     expect(cal.id).toBe(out.calibration.id);
@@ -83,7 +101,9 @@ describe('calibrate --sim demo --points (reference: truth)', () => {
     expect(lines.join('\n')).toContain('current: reference = 0.96');
 
     // An independent check: the same board, another load (6 Ω, about half the current), other noise.
-    const verify = simConnection(clock, { ...demo, load: { ...demo.load, load_ohm: 6 } }, profile, { seed: 77 });
+    const verify = simConnection(clock, { ...demo, load: { ...demo.load, load_ohm: 6 } }, profile, {
+      seed: 77,
+    });
     const chain = new AnalogChain(profile);
     const chemistries = loadChemistries();
     const link = new RigLink({ source: verify.source, clock, channel: 0, adcBits: 12 });
@@ -93,7 +113,21 @@ describe('calibrate --sim demo --points (reference: truth)', () => {
         await link.open();
         try {
           return await capturePoint(
-            { link, chain, clock, channel: 0, settleMs: 1000, guard: makeLoadGuard(findChemistry(chemistries, 'li-ion'), 1, chemistries, profile, chain), truth: verify.truth },
+            {
+              link,
+              chain,
+              clock,
+              channel: 0,
+              settleMs: 1000,
+              guard: makeLoadGuard(
+                findChemistry(chemistries, 'li-ion'),
+                1,
+                chemistries,
+                profile,
+                chain,
+              ),
+              truth: verify.truth,
+            },
             { loadOn: true, windowMs: 5000, label: 'verification' },
           );
         } finally {
@@ -108,7 +142,12 @@ describe('calibrate --sim demo --points (reference: truth)', () => {
     expect(trueA).toBeLessThan(0.8);
     // GUM law of propagation (JCGM 100:2008 5.1.2) through corrected = gain·x + offset.
     const uNominal = chain.ampsPerCount * meanUncertaintyCounts(w.current);
-    const u = Math.sqrt((nominal * f.u_gain) ** 2 + f.u_offset ** 2 + 2 * nominal * f.cov_gain_offset + (f.gain * uNominal) ** 2);
+    const u = Math.sqrt(
+      (nominal * f.u_gain) ** 2 +
+        f.u_offset ** 2 +
+        2 * nominal * f.cov_gain_offset +
+        (f.gain * uNominal) ** 2,
+    );
     expect(Math.abs(corrected - trueA)).toBeLessThan(2 * u);
     // Uncalibrated, the same reading is several percent off.
     expect(Math.abs(nominal - trueA) / trueA).toBeGreaterThan(0.05);
@@ -122,7 +161,13 @@ describe('calibrate --sim demo --points (reference: truth)', () => {
   - { quantity: current, load: off, reference: truth }
   - { quantity: current, load: on, reference: truth, seconds: 3 }
 `;
-    await drive(clock, runCalibrate(request({ points: await pointsFile(twoLoaded) }), { print: () => undefined, connection: conn }));
+    await drive(
+      clock,
+      runCalibrate(request({ points: await pointsFile(twoLoaded) }), {
+        print: () => undefined,
+        connection: conn,
+      }),
+    );
     const log = conn.source.rig.loadLog();
     expect(log.map((s) => [s.on, s.cause])).toEqual([
       [true, 'host'],
@@ -140,7 +185,13 @@ describe('calibrate --sim demo --points (reference: truth)', () => {
   - { quantity: current, load: off, reference: truth }
   - { quantity: current, load: on, reference: truth }
 `);
-    await drive(clock, runCalibrate(request({ points: file, seconds: 12 }), { print: () => undefined, connection: conn }));
+    await drive(
+      clock,
+      runCalibrate(request({ points: file, seconds: 12 }), {
+        print: () => undefined,
+        connection: conn,
+      }),
+    );
     const log = conn.source.rig.loadLog();
     expect(log.every((s) => s.cause === 'host')).toBe(true);
     // On for the settling second and the 12 s window, more than twice the watchdog's 5 s.
@@ -163,7 +214,14 @@ describe('calibrate --sim demo --points (reference: truth)', () => {
         const last = conn.source.rig.loadLog().at(-1);
         if (last?.on && clock.now() - last.atMs >= 2000) {
           clock.clearTimer(watcher);
-          controller.abort(makeError(ErrorCodes.CALIBRATION_CAPTURE, 'calibration interrupted', 'SIGINT', 'Nothing was written.'));
+          controller.abort(
+            makeError(
+              ErrorCodes.CALIBRATION_CAPTURE,
+              'calibration interrupted',
+              'SIGINT',
+              'Nothing was written.',
+            ),
+          );
         }
       },
       100,
@@ -181,12 +239,21 @@ describe('calibrate --sim demo --points (reference: truth)', () => {
   it('refuses to switch the load on when the cell rests at or below its cutoff (li-ion 3.0 V, common practice)', async () => {
     const clock = new VirtualClock();
     const demo = scenario('demo');
-    const conn = simConnection(clock, { ...demo, cell: { ...demo.cell, initial_soc: 0.01 } }, profile);
+    const conn = simConnection(
+      clock,
+      { ...demo, cell: { ...demo.cell, initial_soc: 0.01 } },
+      profile,
+    );
     const file = await pointsFile(`points:
   - { quantity: current, load: off, reference: truth }
   - { quantity: current, load: on, reference: truth }
 `);
-    const e = await refusal(drive(clock, runCalibrate(request({ points: file }), { print: () => undefined, connection: conn })));
+    const e = await refusal(
+      drive(
+        clock,
+        runCalibrate(request({ points: file }), { print: () => undefined, connection: conn }),
+      ),
+    );
     expect(e.code).toBe(ErrorCodes.PRECHECK_REFUSED);
     expect(e.message).toContain('Nothing was switched on');
     expect(conn.source.rig.loadLog()).toEqual([]);
@@ -197,7 +264,12 @@ describe('calibrate --sim demo --points (reference: truth)', () => {
   - { quantity: current, load: off, reference: 0, u: 0 }
   - { quantity: current, load: on, reference: 1.2, accuracy: "0.5%+0.003" }
 `);
-    const e = await refusal(runCalibrate(request({ sim: undefined as never, port: '/dev/null-rig', points: file, reference: 'DMM' }), { print: () => undefined }));
+    const e = await refusal(
+      runCalibrate(
+        request({ sim: undefined as never, port: '/dev/null-rig', points: file, reference: 'DMM' }),
+        { print: () => undefined },
+      ),
+    );
     expect(e.code).toBe(ErrorCodes.USAGE);
     expect(e.message).toContain('--chemistry');
   });
@@ -209,7 +281,12 @@ describe('calibrate --sim demo --points (reference: truth)', () => {
   - { quantity: current, load: off, reference: truth }
   - { quantity: current, load: off, reference: truth }
 `);
-    const e = await refusal(drive(clock, runCalibrate(request({ points: file }), { print: () => undefined, connection: conn })));
+    const e = await refusal(
+      drive(
+        clock,
+        runCalibrate(request({ points: file }), { print: () => undefined, connection: conn }),
+      ),
+    );
     expect(e.code).toBe(ErrorCodes.CALIBRATION_FIT);
     expect(e.message).toContain('the same reference reading');
     expect(e.message).toContain('the load off (0 A) and the load on');
@@ -218,7 +295,17 @@ describe('calibrate --sim demo --points (reference: truth)', () => {
 
   it('refuses "truth" references on a real rig', async () => {
     const file = await pointsFile(TRUTH_POINTS);
-    const e = await refusal(runCalibrate(request({ sim: undefined as never, port: '/dev/null-rig', points: file, chemistry: 'li-ion' }), { print: () => undefined }));
+    const e = await refusal(
+      runCalibrate(
+        request({
+          sim: undefined as never,
+          port: '/dev/null-rig',
+          points: file,
+          chemistry: 'li-ion',
+        }),
+        { print: () => undefined },
+      ),
+    );
     expect(e.code).toBe(ErrorCodes.USAGE);
     expect(e.message).toContain('simulator');
   });
@@ -263,7 +350,10 @@ describe('calibrate at a terminal (the dialogue, scripted)', () => {
         return typeof a === 'function' ? a() : a;
       },
     };
-    const out = await drive(clock, runCalibrate(request({ sim: 'demo' }), { print: prompter.print, prompter, connection: conn }));
+    const out = await drive(
+      clock,
+      runCalibrate(request({ sim: 'demo' }), { print: prompter.print, prompter, connection: conn }),
+    );
     expect(answers).toEqual([]);
     const cal = out.calibration;
     expect(cal.reference_instrument).toBe('bench DMM, 10 A range');
@@ -274,7 +364,10 @@ describe('calibrate at a terminal (the dialogue, scripted)', () => {
     expect(on!.reference).toBeCloseTo(loadedTruth, 4);
     expect(on!.reference).toBeGreaterThan(1);
     // ±(0.5 % of reading + 3 mA) taken as rectangular: u = a/√3 (GUM, JCGM 100:2008 4.3.7).
-    expect(on!.reference_u).toBeCloseTo((0.005 * Number(loadedTruth.toFixed(4)) + 0.003) / Math.sqrt(3), 12);
+    expect(on!.reference_u).toBeCloseTo(
+      (0.005 * Number(loadedTruth.toFixed(4)) + 0.003) / Math.sqrt(3),
+      12,
+    );
     const text = shown.join('\n');
     expect(text).toContain('Put the reference ammeter in series with the load');
     expect(text).toMatch(/rig: raw mean \d+\.\d\d, sd \d\.\d\d counts over \d+ frames/);

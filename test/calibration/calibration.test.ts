@@ -99,7 +99,9 @@ describe('calibration model', () => {
   });
 
   it('canonical JSON sorts keys at every level', () => {
-    expect(canonicalJson({ b: 1, a: { d: [2, { f: 1, e: 0 }], c: 'x' } })).toBe('{"a":{"c":"x","d":[2,{"e":0,"f":1}]},"b":1}');
+    expect(canonicalJson({ b: 1, a: { d: [2, { f: 1, e: 0 }], c: 'x' } })).toBe(
+      '{"a":{"c":"x","d":[2,{"e":0,"f":1}]},"b":1}',
+    );
   });
 });
 
@@ -132,8 +134,10 @@ describe('calibration files', () => {
 
   it('a hand edit with a stale id is rejected, saying how to fix it', async () => {
     const path = join(dir, 'bench.json');
-    const cal = await writeCalibration(path, content());
-    const edited = JSON.parse(await readFile(path, 'utf8')) as typeof cal;
+    await writeCalibration(path, content());
+    const edited = JSON.parse(await readFile(path, 'utf8')) as Awaited<
+      ReturnType<typeof writeCalibration>
+    >;
     edited.current!.fit.offset = 0;
     await writeFile(path, JSON.stringify(edited));
     const err = await loadCalibration(path).catch((e: unknown) => e);
@@ -150,7 +154,10 @@ describe('calibration files', () => {
     const good = sealCalibration(content());
     const withExtra = { ...good, comment: 'x' };
     expect(refusal(JSON.stringify(withExtra)).message).toContain('(comment)');
-    const noGain = JSON.parse(JSON.stringify(good)) as Record<string, Record<string, Record<string, unknown>>>;
+    const noGain = JSON.parse(JSON.stringify(good)) as Record<
+      string,
+      Record<string, Record<string, unknown>>
+    >;
     delete noGain['voltage']!['fit']!['gain'];
     const e = refusal(JSON.stringify(noGain));
     expect(e.code).toBe(ErrorCodes.CALIBRATION_INVALID);
@@ -170,12 +177,16 @@ describe('calibration files', () => {
   });
 
   it('refuses to write into a folder that does not exist, leaving nothing behind', async () => {
-    const err = await writeCalibration(join(dir, 'missing', 'bench.json'), content()).catch((e: unknown) => e);
+    const err = await writeCalibration(join(dir, 'missing', 'bench.json'), content()).catch(
+      (e: unknown) => e,
+    );
     expect((err as CellvigilError).code).toBe(ErrorCodes.CALIBRATION_WRITE);
     expect(await readdir(dir)).toEqual([]);
   });
 
   it('fitting one point for gain and offset is refused before anything is written', () => {
-    expect(() => fitQuantity('current', [point(1)], 'gain_offset')).toThrow(/Take a second point at a clearly different current/);
+    expect(() => fitQuantity('current', [point(1)], 'gain_offset')).toThrow(
+      /Take a second point at a clearly different current/,
+    );
   });
 });

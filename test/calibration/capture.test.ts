@@ -1,27 +1,44 @@
 import fc from 'fast-check';
 import { mean, sampleStandardDeviation } from 'simple-statistics';
 import { describe, expect, it } from 'vitest';
-import { CountAverager, meanUncertaintyCounts, PointWindow } from '../../src/calibration/capture.js';
+import {
+  CountAverager,
+  meanUncertaintyCounts,
+  PointWindow,
+} from '../../src/calibration/capture.js';
 import { FLAG_LOAD_ON, FLAG_RIG_FAULT, type DataFrame } from '../../src/protocol/messages.js';
 
 function frame(over: Partial<DataFrame> = {}): DataFrame {
-  return { kind: 'data', channel: 0, seq: 0, tickMs: 0, vRaw: 2600, iRaw: 900, tRaw: 2100, flags: FLAG_LOAD_ON, ...over };
+  return {
+    kind: 'data',
+    channel: 0,
+    seq: 0,
+    tickMs: 0,
+    vRaw: 2600,
+    iRaw: 900,
+    tRaw: 2100,
+    flags: FLAG_LOAD_ON,
+    ...over,
+  };
 }
 
 describe('CountAverager against a reference library (simple-statistics mean, sampleStandardDeviation)', () => {
   it('agrees on mean and sample standard deviation for random ADC counts', () => {
     fc.assert(
-      fc.property(fc.array(fc.integer({ min: 0, max: 65535 }), { minLength: 2, maxLength: 400 }), (counts) => {
-        const a = new CountAverager();
-        for (const c of counts) a.add(c);
-        const s = a.stats();
-        expect(s.n).toBe(counts.length);
-        expect(Math.abs(s.mean - mean(counts))).toBeLessThan(1e-9 * (1 + mean(counts)));
-        const sd = sampleStandardDeviation(counts);
-        expect(Math.abs(s.sd - sd)).toBeLessThan(1e-7 * (1 + sd));
-        expect(s.se).toBeCloseTo(s.sd / Math.sqrt(counts.length), 12);
-        expect([s.min, s.max]).toEqual([Math.min(...counts), Math.max(...counts)]);
-      }),
+      fc.property(
+        fc.array(fc.integer({ min: 0, max: 65535 }), { minLength: 2, maxLength: 400 }),
+        (counts) => {
+          const a = new CountAverager();
+          for (const c of counts) a.add(c);
+          const s = a.stats();
+          expect(s.n).toBe(counts.length);
+          expect(Math.abs(s.mean - mean(counts))).toBeLessThan(1e-9 * (1 + mean(counts)));
+          const sd = sampleStandardDeviation(counts);
+          expect(Math.abs(s.sd - sd)).toBeLessThan(1e-7 * (1 + sd));
+          expect(s.se).toBeCloseTo(s.sd / Math.sqrt(counts.length), 12);
+          expect([s.min, s.max]).toEqual([Math.min(...counts), Math.max(...counts)]);
+        },
+      ),
       { seed: 31337, numRuns: 200 },
     );
   });
@@ -52,8 +69,12 @@ describe('PointWindow', () => {
     expect(w.offer(frame({ iRaw: 1 }), 999)).toBe(false);
     expect(w.offer(frame({ iRaw: 2, channel: 1 }), 1500)).toBe(false);
     expect(w.offer(frame({ iRaw: 3, flags: 0 }), 1100)).toBe(false);
-    expect(w.offer(frame({ iRaw: 900 }), 1000, { voltage: 4, current: 1.2, temperature: 22 })).toBe(true);
-    expect(w.offer(frame({ iRaw: 902 }), 1999.9, { voltage: 4.2, current: 1.4, temperature: 24 })).toBe(true);
+    expect(w.offer(frame({ iRaw: 900 }), 1000, { voltage: 4, current: 1.2, temperature: 22 })).toBe(
+      true,
+    );
+    expect(
+      w.offer(frame({ iRaw: 902 }), 1999.9, { voltage: 4.2, current: 1.4, temperature: 24 }),
+    ).toBe(true);
     expect(w.offer(frame({ iRaw: 5 }), 2000)).toBe(false);
     const r = w.result();
     expect(r.current.n).toBe(2);

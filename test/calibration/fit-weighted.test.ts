@@ -38,7 +38,11 @@ describe('weighted fitLine against the closed-form weighted least squares (Numer
   const xs = [0.031, 0.552, 1.071, 2.143, 3.201];
   const us = [0.0005, 0.002, 0.003, 0.006, 0.009];
   const ds = [0.0002, -0.0008, 0.001, -0.002, 0.003];
-  const points: Required<FitPoint>[] = xs.map((x, i) => ({ x, y: 0.96154 * x - 0.02981 + ds[i]!, u: us[i]! }));
+  const points: Required<FitPoint>[] = xs.map((x, i) => ({
+    x,
+    y: 0.96154 * x - 0.02981 + ds[i]!,
+    u: us[i]!,
+  }));
 
   it('gives the same gain, offset, standard uncertainties and covariance when the scatter is within the stated u', () => {
     const h = handbook(points);

@@ -32,7 +32,7 @@ describe('fitLine against NIST StRD "Norris"', () => {
     expect(points).toHaveLength(36);
   });
 
-  it('matches the certified values to 10 significant digits (NIST StRD Norris, CHECKS.md)', () => {
+  it('matches the certified values to 10 significant digits (NIST StRD Norris)', () => {
     const r = fitLine(points);
     expect(r.weighted).toBe(false);
     expect(r.dof).toBe(34);
@@ -71,10 +71,16 @@ describe('fitLine against a general-purpose reference library (simple-statistics
   it('agrees on gain and offset for random data', () => {
     fc.assert(
       fc.property(
-        fc.array(fc.tuple(fc.double({ min: -1000, max: 1000, noNaN: true }), fc.double({ min: -1000, max: 1000, noNaN: true })), {
-          minLength: 3,
-          maxLength: 40,
-        }),
+        fc.array(
+          fc.tuple(
+            fc.double({ min: -1000, max: 1000, noNaN: true }),
+            fc.double({ min: -1000, max: 1000, noNaN: true }),
+          ),
+          {
+            minLength: 3,
+            maxLength: 40,
+          },
+        ),
         (pairs) => {
           const xs = pairs.map(([x]) => x);
           fc.pre(Math.max(...xs) - Math.min(...xs) > 1e-3);
@@ -120,7 +126,10 @@ describe('fitLine on calibration-sized data', () => {
   });
 
   it('a weighted fit with equal weights gives the unweighted line', () => {
-    const pts = [0.1, 0.9, 2.1, 2.9, 4.2].map((x, i) => ({ x, y: 1.02 * x + 0.01 + [0.001, -0.002, 0.0015, 0, -0.001][i]! }));
+    const pts = [0.1, 0.9, 2.1, 2.9, 4.2].map((x, i) => ({
+      x,
+      y: 1.02 * x + 0.01 + [0.001, -0.002, 0.0015, 0, -0.001][i]!,
+    }));
     const plain = fitLine(pts);
     const weighted = fitLine(pts.map((p) => ({ ...p, u: 0.004 })));
     expect(weighted.weighted).toBe(true);
@@ -140,7 +149,9 @@ describe('fitLine on calibration-sized data', () => {
   it('uncertainties from stated u are not shrunk by a suspiciously good scatter, but grow with a bad one', () => {
     const xs = [0, 1, 2, 3, 4];
     const exact = fitLine(xs.map((x) => ({ x, y: 2 * x + 1, u: 0.01 })));
-    const scattered = fitLine(xs.map((x, i) => ({ x, y: 2 * x + 1 + (i % 2 ? 0.1 : -0.1), u: 0.01 })));
+    const scattered = fitLine(
+      xs.map((x, i) => ({ x, y: 2 * x + 1 + (i % 2 ? 0.1 : -0.1), u: 0.01 })),
+    );
     const priorGain = 0.01 / Math.sqrt(10); // u / sqrt(Σ(x − x̄)²)
     expect(exact.u_gain).toBeCloseTo(priorGain, 14);
     expect(scattered.u_gain).toBeGreaterThan(5 * priorGain);

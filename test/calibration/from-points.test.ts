@@ -21,12 +21,27 @@ afterEach(async () => {
   await rm(dir, { recursive: true, force: true });
 });
 
-async function fromPoints(points: unknown[], over: Partial<CalibrateRequest> = {}): Promise<{ lines: string[]; out: string }> {
+async function fromPoints(
+  points: unknown[],
+  over: Partial<CalibrateRequest> = {},
+): Promise<{ lines: string[]; out: string }> {
   const file = join(dir, 'points.json');
   await writeFile(file, JSON.stringify({ reference_instrument: 'bench DMM, 10 A range', points }));
   const out = join(dir, 'cal.json');
   const lines: string[] = [];
-  await runCalibrate({ speed: 1, out, seconds: 5, settleSeconds: 1, channel: 0, fromPoints: file, rig: BENCH_RIG, ...over }, { print: (l) => lines.push(l) });
+  await runCalibrate(
+    {
+      speed: 1,
+      out,
+      seconds: 5,
+      settleSeconds: 1,
+      channel: 0,
+      fromPoints: file,
+      rig: BENCH_RIG,
+      ...over,
+    },
+    { print: (l) => lines.push(l) },
+  );
   return { lines, out };
 }
 
@@ -44,7 +59,12 @@ const shown = (trueA: number): number => 0.033 + 1.057 * trueA;
 
 describe('calibrate --from-points', () => {
   it('recovers a channel showing 33 mA + 1.057 × true current exactly from two reference points (fact of the trade)', async () => {
-    const points = [0, 2].map((a) => ({ quantity: 'current', reference: a, u: 0, raw_mean: chain.countsForAmps(shown(a)) }));
+    const points = [0, 2].map((a) => ({
+      quantity: 'current',
+      reference: a,
+      u: 0,
+      raw_mean: chain.countsForAmps(shown(a)),
+    }));
     const { lines, out } = await fromPoints(points);
     const cal = await loadCalibration(out);
     expect(cal.current!.fit.gain).toBeCloseTo(1 / 1.057, 12);
@@ -78,7 +98,12 @@ describe('calibrate --from-points', () => {
   });
 
   it('refuses readings typed in mA (gain near 1000) without writing anything', async () => {
-    const points = [0, 1, 2].map((a) => ({ quantity: 'current', reference: a * 1000, u: 1, raw_mean: chain.countsForAmps(shown(a)) }));
+    const points = [0, 1, 2].map((a) => ({
+      quantity: 'current',
+      reference: a * 1000,
+      u: 1,
+      raw_mean: chain.countsForAmps(shown(a)),
+    }));
     const e = await refusal(fromPoints(points));
     expect(e.code).toBe(ErrorCodes.CALIBRATION_FIT);
     expect(e.message).toContain('(not mA)');
@@ -86,14 +111,21 @@ describe('calibrate --from-points', () => {
   });
 
   it('refuses references that fall as the rig reading rises', async () => {
-    const points = [0, 1].map((a) => ({ quantity: 'current', reference: 1 - a, u: 0.001, raw_mean: chain.countsForAmps(shown(a)) }));
+    const points = [0, 1].map((a) => ({
+      quantity: 'current',
+      reference: 1 - a,
+      u: 0.001,
+      raw_mean: chain.countsForAmps(shown(a)),
+    }));
     const e = await refusal(fromPoints(points));
     expect(e.code).toBe(ErrorCodes.CALIBRATION_FIT);
     expect(e.message).toContain("falls as the rig's reading rises");
   });
 
   it('takes one temperature point as an offset (gain 1)', async () => {
-    const { out } = await fromPoints([{ quantity: 'temperature', reference: 25, u: 0.1, raw_mean: chain.countsForCelsius(24.2) }]);
+    const { out } = await fromPoints([
+      { quantity: 'temperature', reference: 25, u: 0.1, raw_mean: chain.countsForCelsius(24.2) },
+    ]);
     const cal = await loadCalibration(out);
     expect(cal.temperature!.fit.model).toBe('offset');
     expect(cal.temperature!.fit.offset).toBeCloseTo(0.8, 9);
@@ -108,7 +140,13 @@ describe('calibrate --from-points', () => {
 });
 
 describe('degenerate points (checked on every fit)', () => {
-  const p = (nominal: number, reference: number, u = 0.001) => ({ raw_mean: 0, nominal, nominal_u: 0.0002, reference, reference_u: u });
+  const p = (nominal: number, reference: number, u = 0.001) => ({
+    raw_mean: 0,
+    nominal,
+    nominal_u: 0.0002,
+    reference,
+    reference_u: u,
+  });
 
   it('refuses a gain from one point', () => {
     expect(() => fitCheckedQuantity('current', [p(1, 1)])).toThrowError(/at least 2 points/);
@@ -126,7 +164,9 @@ describe('degenerate points (checked on every fit)', () => {
   });
 
   it('refuses points where the rig read the same each time (the condition did not change)', () => {
-    expect(() => fitCheckedQuantity('current', [p(1.2, 0), p(1.2001, 1.2)])).toThrowError(/the rig read the same current/);
+    expect(() => fitCheckedQuantity('current', [p(1.2, 0), p(1.2001, 1.2)])).toThrowError(
+      /the rig read the same current/,
+    );
   });
 
   it('warns when the gain is poorly known', () => {

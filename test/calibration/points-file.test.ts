@@ -57,25 +57,50 @@ describe('points file', () => {
   });
 
   it('names the point and key of a malformed entry', () => {
-    const e = refusal(() => parsePointsFile('points:\n  - { quantity: curent, reference: 1, u: 0 }\n', 'p.yaml'));
+    const e = refusal(() =>
+      parsePointsFile('points:\n  - { quantity: curent, reference: 1, u: 0 }\n', 'p.yaml'),
+    );
     expect(e.code).toBe(ErrorCodes.CONFIG_INVALID);
     expect(e.message).toContain('points.0.quantity must be one of voltage, current, temperature');
     expect(e.message).toContain('p.yaml');
-    const k = refusal(() => parsePointsFile('points:\n  - { quantity: current, reference: 1, u: 0, lod: on }\n', 'p.yaml'));
+    const k = refusal(() =>
+      parsePointsFile(
+        'points:\n  - { quantity: current, reference: 1, u: 0, lod: on }\n',
+        'p.yaml',
+      ),
+    );
     expect(k.message).toContain('unknown key lod');
-    const r = refusal(() => parsePointsFile('points:\n  - { quantity: current, reference: "1.2 A", u: 0 }\n', 'p.yaml'));
+    const r = refusal(() =>
+      parsePointsFile('points:\n  - { quantity: current, reference: "1.2 A", u: 0 }\n', 'p.yaml'),
+    );
     expect(r.message).toContain('a reference must be a number');
   });
 
   it('needs exactly one of u and accuracy for a typed reading', () => {
-    expect(refusal(() => parsePointsFile('- { quantity: current, reference: 1 }', 'p.yaml')).message).toContain('states no uncertainty');
-    expect(refusal(() => parsePointsFile('- { quantity: current, reference: 1, u: 0.1, accuracy: "1%" }', 'p.yaml')).message).toContain('both u and accuracy');
-    expect(refusal(() => parsePointsFile('- { quantity: current, reference: truth, u: 0.1 }', 'p.yaml')).message).toContain('truth reference');
-    expect(refusal(() => parsePointsFile('- { quantity: current, reference: 1, accuracy: "lots" }', 'p.yaml')).code).toBe(ErrorCodes.USAGE);
+    expect(
+      refusal(() => parsePointsFile('- { quantity: current, reference: 1 }', 'p.yaml')).message,
+    ).toContain('states no uncertainty');
+    expect(
+      refusal(() =>
+        parsePointsFile('- { quantity: current, reference: 1, u: 0.1, accuracy: "1%" }', 'p.yaml'),
+      ).message,
+    ).toContain('both u and accuracy');
+    expect(
+      refusal(() => parsePointsFile('- { quantity: current, reference: truth, u: 0.1 }', 'p.yaml'))
+        .message,
+    ).toContain('truth reference');
+    expect(
+      refusal(() =>
+        parsePointsFile('- { quantity: current, reference: 1, accuracy: "lots" }', 'p.yaml'),
+      ).code,
+    ).toBe(ErrorCodes.USAGE);
   });
 
   it('refuses before touching the rig: one point for a gain, the same reading twice, truth on a real rig', () => {
-    const one = parsePointsFile('- { quantity: current, load: on, reference: 1.2, u: 0.002 }', 'p.yaml');
+    const one = parsePointsFile(
+      '- { quantity: current, load: on, reference: 1.2, u: 0.002 }',
+      'p.yaml',
+    );
     const e1 = refusal(() => checkPointsPlan(one, 'capture', false));
     expect(e1.code).toBe(ErrorCodes.CALIBRATION_FIT);
     expect(e1.message).toContain('at least 2 points');

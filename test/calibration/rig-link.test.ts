@@ -1,4 +1,4 @@
-/** The calibration's rig link against a scripted rig that can misbehave (protocol v1, DESIGN.md). */
+/** The calibration's rig link against a scripted rig that can misbehave (protocol v1, docs/protocol.md). */
 import { describe, expect, it } from 'vitest';
 import { RigLink } from '../../src/calibration/rig-link.js';
 import { VirtualClock } from '../../src/core/clock.js';
@@ -134,14 +134,18 @@ describe('RigLink', () => {
 
   it('a silent rig: no hello within 3 s', async () => {
     const clock = new VirtualClock();
-    const e = await refusal(drive(clock, link(clock, new ScriptedRig(clock, { silent: true })).open()));
+    const e = await refusal(
+      drive(clock, link(clock, new ScriptedRig(clock, { silent: true })).open()),
+    );
     expect(e.code).toBe(ErrorCodes.RIG_SILENT);
     expect(e.message).toContain('frame.baud');
   });
 
   it('a rig whose ADC does not match the rig profile is refused', async () => {
     const clock = new VirtualClock();
-    const e = await refusal(drive(clock, link(clock, new ScriptedRig(clock, { adcBits: 10 })).open()));
+    const e = await refusal(
+      drive(clock, link(clock, new ScriptedRig(clock, { adcBits: 10 })).open()),
+    );
     expect(e.code).toBe(ErrorCodes.CONFIG_INVALID);
     expect(e.message).toContain('10-bit ADC but the rig profile says 12 bits');
   });

@@ -3,11 +3,20 @@ import type { RigProfile } from '../../src/chain/rig-profile-types.js';
 import type { CalibrateConnection } from '../../src/calibration/calibrate-run.js';
 import type { TruthSample } from '../../src/calibration/capture.js';
 import type { VirtualClock } from '../../src/core/clock.js';
-import { loadScenarios, pickScenario, type SimOverrides, type SimScenario } from '../../src/sim/scenarios.js';
+import {
+  loadScenarios,
+  pickScenario,
+  type SimOverrides,
+  type SimScenario,
+} from '../../src/sim/scenarios.js';
 import { SimSource } from '../../src/sources/sim-source.js';
 
-export const SCENARIO_FILE = fileURLToPath(new URL('../../config/sim-scenarios.yaml', import.meta.url));
-export const BENCH_RIG = fileURLToPath(new URL('../../config/rigs/bench-20mohm.yaml', import.meta.url));
+export const SCENARIO_FILE = fileURLToPath(
+  new URL('../../config/sim-scenarios.yaml', import.meta.url),
+);
+export const BENCH_RIG = fileURLToPath(
+  new URL('../../config/rigs/bench-20mohm.yaml', import.meta.url),
+);
 
 export function scenario(name: string): SimScenario {
   return pickScenario(loadScenarios(SCENARIO_FILE), name);

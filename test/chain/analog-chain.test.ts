@@ -5,7 +5,8 @@ import { loadRigProfile } from '../../src/chain/rig-profile.js';
 import type { RigProfile } from '../../src/chain/rig-profile-types.js';
 import { betaResistance } from '../../src/chain/thermistor.js';
 
-const rigPath = (name: string): string => fileURLToPath(new URL(`../../config/rigs/${name}`, import.meta.url));
+const rigPath = (name: string): string =>
+  fileURLToPath(new URL(`../../config/rigs/${name}`, import.meta.url));
 
 function profile(current: RigProfile['current'], extra: Partial<RigProfile> = {}): RigProfile {
   return {
@@ -55,7 +56,10 @@ describe('analog chain: facts of the trade', () => {
 
   it('a divider of 510 kΩ over 330 Ω from 3.3 V gives about 2.13 mV (fact of the trade)', () => {
     const chain = new AnalogChain(
-      profile({ shunt_ohm: 0.02, amplifier_gain: 30.3 }, { voltage: { divider_top_ohm: 510_000, divider_bottom_ohm: 330 } }),
+      profile(
+        { shunt_ohm: 0.02, amplifier_gain: 30.3 },
+        { voltage: { divider_top_ohm: 510_000, divider_bottom_ohm: 330 } },
+      ),
     );
     expect(chain.countsForVolts(3.3) * chain.adcVoltsPerCount * 1000).toBeCloseTo(2.13, 2);
   });
@@ -65,7 +69,9 @@ describe('analog chain: facts of the trade', () => {
       const chain = new AnalogChain(
         profile(
           { shunt_ohm: 0.02, amplifier_gain: 30.3 },
-          { temperature: { ntc_r25_ohm: 10_000, ntc_beta_K: 3950, fixed_ohm: 10_000, ntc_position } },
+          {
+            temperature: { ntc_r25_ohm: 10_000, ntc_beta_K: 3950, fixed_ohm: 10_000, ntc_position },
+          },
         ),
       );
       expect(chain.countsForCelsius(25)).toBeCloseTo(2048, 9);
@@ -79,14 +85,21 @@ describe('analog chain: facts of the trade', () => {
     const high = new AnalogChain(
       profile(
         { shunt_ohm: 0.02, amplifier_gain: 30.3 },
-        { temperature: { ntc_r25_ohm: 10_000, ntc_beta_K: 3950, fixed_ohm: 10_000, ntc_position: 'high' } },
+        {
+          temperature: {
+            ntc_r25_ohm: 10_000,
+            ntc_beta_K: 3950,
+            fixed_ohm: 10_000,
+            ntc_position: 'high',
+          },
+        },
       ),
     );
     expect(high.countsForCelsius(50)).toBeGreaterThan(high.countsForCelsius(25));
   });
 });
 
-describe('analog chain: conventions of DESIGN.md', () => {
+describe('analog chain: conventions of docs/rig-profile.md', () => {
   it('the bench profile: one count is vref/2^bits, the 10k/10k divider doubles it', async () => {
     const chain = new AnalogChain(await loadRigProfile(rigPath('bench-20mohm.yaml')));
     expect(chain.adcVoltsPerCount).toBe(3.3 / 4096);
@@ -100,9 +113,11 @@ describe('analog chain: conventions of DESIGN.md', () => {
 
   it('volts, amps and °C invert their counts', () => {
     const chain = new AnalogChain(profile({ shunt_ohm: 0.01, amplifier_gain: 50 }));
-    for (const v of [0, 1.2, 3.7, 4.2]) expect(chain.volts(chain.countsForVolts(v))).toBeCloseTo(v, 12);
+    for (const v of [0, 1.2, 3.7, 4.2])
+      expect(chain.volts(chain.countsForVolts(v))).toBeCloseTo(v, 12);
     for (const a of [0, 0.5, 2, 5]) expect(chain.amps(chain.countsForAmps(a))).toBeCloseTo(a, 12);
-    for (const t of [-20, 0, 25, 45, 60, 90]) expect(chain.celsius(chain.countsForCelsius(t))).toBeCloseTo(t, 9);
+    for (const t of [-20, 0, 25, 45, 60, 90])
+      expect(chain.celsius(chain.countsForCelsius(t))).toBeCloseTo(t, 9);
   });
 
   it('uses Steinhart–Hart coefficients when given, else the Beta equation', () => {
@@ -112,7 +127,13 @@ describe('analog chain: conventions of DESIGN.md', () => {
       profile(
         { shunt_ohm: 0.02, amplifier_gain: 30.3 },
         {
-          temperature: { ntc_r25_ohm: 10_000, ntc_beta_K: 3950, fixed_ohm: 10_000, ntc_position: 'low', steinhart_hart: k },
+          temperature: {
+            ntc_r25_ohm: 10_000,
+            ntc_beta_K: 3950,
+            fixed_ohm: 10_000,
+            ntc_position: 'low',
+            steinhart_hart: k,
+          },
         },
       ),
     );
@@ -141,7 +162,14 @@ describe('analog chain: conventions of DESIGN.md', () => {
     const high = new AnalogChain(
       profile(
         { shunt_ohm: 0.02, amplifier_gain: 30.3 },
-        { temperature: { ntc_r25_ohm: 10_000, ntc_beta_K: 3950, fixed_ohm: 10_000, ntc_position: 'high' } },
+        {
+          temperature: {
+            ntc_r25_ohm: 10_000,
+            ntc_beta_K: 3950,
+            fixed_ohm: 10_000,
+            ntc_position: 'high',
+          },
+        },
       ),
     );
     expect(high.thermistorState(0)).toBe('open');
@@ -150,7 +178,8 @@ describe('analog chain: conventions of DESIGN.md', () => {
 
   it('−20…80 °C stays clear of the rails for a 10k/10k pairing, so a real temperature is never flagged', () => {
     const chain = new AnalogChain(profile({ shunt_ohm: 0.02, amplifier_gain: 30.3 }));
-    for (let t = -20; t <= 80; t += 5) expect(chain.thermistorState(chain.countsForCelsius(t))).toBe('ok');
+    for (let t = -20; t <= 80; t += 5)
+      expect(chain.thermistorState(chain.countsForCelsius(t))).toBe('ok');
   });
 
   it('reports the temperature step of one count, finer near mid-scale', () => {

@@ -69,25 +69,37 @@ describe('rig profiles', () => {
   });
 
   it('rejects bits outside 8..24 and fractional bits', () => {
-    expect(rejection(GOOD.replace('bits: 12', 'bits: 25')).message).toContain('adc.bits must be from 8 to 24, got 25');
-    expect(rejection(GOOD.replace('bits: 12', 'bits: 7')).message).toContain('adc.bits must be from 8 to 24, got 7');
-    expect(rejection(GOOD.replace('bits: 12', 'bits: 12.5')).message).toContain('adc.bits must be a whole number');
+    expect(rejection(GOOD.replace('bits: 12', 'bits: 25')).message).toContain(
+      'adc.bits must be from 8 to 24, got 25',
+    );
+    expect(rejection(GOOD.replace('bits: 12', 'bits: 7')).message).toContain(
+      'adc.bits must be from 8 to 24, got 7',
+    );
+    expect(rejection(GOOD.replace('bits: 12', 'bits: 12.5')).message).toContain(
+      'adc.bits must be a whole number',
+    );
   });
 
   it('needs exactly one of amplifier_gain and rin_ohm + rf_ohm', () => {
-    const both = rejection(GOOD.replace('amplifier_gain: 30.30', 'amplifier_gain: 30.3, rin_ohm: 330, rf_ohm: 10000'));
+    const both = rejection(
+      GOOD.replace('amplifier_gain: 30.30', 'amplifier_gain: 30.3, rin_ohm: 330, rf_ohm: 10000'),
+    );
     const neither = rejection(GOOD.replace(', amplifier_gain: 30.30', ''));
     const half = rejection(GOOD.replace('amplifier_gain: 30.30', 'rin_ohm: 330'));
     for (const e of [both, neither, half]) {
       expect(e.code).toBe(ErrorCodes.CONFIG_INVALID);
-      expect(e.message).toContain('current must give either amplifier_gain or both rin_ohm and rf_ohm');
+      expect(e.message).toContain(
+        'current must give either amplifier_gain or both rin_ohm and rf_ohm',
+      );
       expect(e.message).toContain('Use amplifier_gain for a non-inverting stage');
     }
   });
 
   it('rejects a missing section, a wrong type and a bad position', () => {
     expect(rejection(GOOD.replace(/^frame:.*$/m, '')).message).toContain('frame is missing');
-    expect(rejection(GOOD.replace('vref_V: 3.300', 'vref_V: "3.3"')).message).toContain('adc.vref_V must be a number, got "3.3"');
+    expect(rejection(GOOD.replace('vref_V: 3.300', 'vref_V: "3.3"')).message).toContain(
+      'adc.vref_V must be a number, got "3.3"',
+    );
     expect(rejection(GOOD.replace('ntc_position: low', 'ntc_position: middle')).message).toContain(
       'temperature.ntc_position must be low or high, got "middle"',
     );

@@ -9,11 +9,11 @@ import {
 } from '../../src/chain/thermistor.js';
 
 describe('Beta equation', () => {
-  it('R0 = 10 kΩ, B = 3950 K, R = 5 kΩ reads 41.46 °C (Beta equation, CHECKS.md, computed from the formula)', () => {
+  it('R0 = 10 kΩ, B = 3950 K, R = 5 kΩ reads 41.46 °C (Beta equation, computed from the formula)', () => {
     expect(betaCelsius(5000, 10_000, 3950)).toBeCloseTo(41.46, 2);
   });
 
-  it('reads R0 at 25 °C (Beta equation, CHECKS.md: T0 = 298.15 K)', () => {
+  it('reads R0 at 25 °C (Beta equation: T0 = 298.15 K)', () => {
     expect(betaResistance(25, 10_000, 3950)).toBeCloseTo(10_000, 9);
     expect(betaCelsius(10_000, 10_000, 3950)).toBeCloseTo(25, 12);
   });
@@ -51,14 +51,18 @@ describe('Steinhart–Hart equation (Steinhart and Hart, 1968)', () => {
     expect(steinhartHartResistance(60, k)).toBeCloseTo(betaResistance(60, 10_000, b), 6);
   });
 
-  it('a fit through three points of the Beta curve returns them to 0.01 °C and follows the curve between them (Steinhart–Hart, CHECKS.md)', () => {
-    const pts = [0, 25, 60].map((celsius) => ({ ohm: betaResistance(celsius, 10_000, 3950), celsius })) as [
+  it('a fit through three points of the Beta curve returns them to 0.01 °C and follows the curve between them (Steinhart–Hart, 1968)', () => {
+    const pts = [0, 25, 60].map((celsius) => ({
+      ohm: betaResistance(celsius, 10_000, 3950),
+      celsius,
+    })) as [
       { ohm: number; celsius: number },
       { ohm: number; celsius: number },
       { ohm: number; celsius: number },
     ];
     const k = fitSteinhartHart(pts);
-    for (const p of pts) expect(Math.abs(steinhartHartCelsius(p.ohm, k) - p.celsius)).toBeLessThan(0.01);
+    for (const p of pts)
+      expect(Math.abs(steinhartHartCelsius(p.ohm, k) - p.celsius)).toBeLessThan(0.01);
     for (let t = 0; t <= 60; t += 2.5) {
       const r = betaResistance(t, 10_000, 3950);
       expect(Math.abs(steinhartHartCelsius(r, k) - t)).toBeLessThan(0.01);
@@ -66,7 +70,10 @@ describe('Steinhart–Hart equation (Steinhart and Hart, 1968)', () => {
   });
 
   it('a fit through three points of the widely printed set recovers that set (from memory for the set)', () => {
-    const pts = [-10, 25, 80].map((celsius) => ({ ohm: steinhartHartResistance(celsius, common), celsius })) as [
+    const pts = [-10, 25, 80].map((celsius) => ({
+      ohm: steinhartHartResistance(celsius, common),
+      celsius,
+    })) as [
       { ohm: number; celsius: number },
       { ohm: number; celsius: number },
       { ohm: number; celsius: number },

@@ -49,10 +49,10 @@ describe('shipped chemistry file', () => {
     }
   });
 
-  // End-of-discharge voltages per cell: CHECKS.md "Chemistry limits" (common practice unless
+  // End-of-discharge voltages per cell: common practice unless
   // noted) and "Discharge test methods" (IEC clauses, from memory).
   it.each([
-    ['alkaline', 0.9, 'common practice'], // common practice (CHECKS.md "Chemistry limits")
+    ['alkaline', 0.9, 'common practice'], // common practice
     ['nimh', 1.0, 'IEC 61951-2, from memory of the clause'], // IEC 61951-2 end voltage, from memory
     ['nicd', 1.0, 'IEC 61951-1, from memory of the clause'], // IEC 61951-1 end voltage, from memory
     ['li-ion', 3.0, 'common practice'], // common practice
@@ -62,7 +62,7 @@ describe('shipped chemistry file', () => {
     expect(byId(id).cutoff_V_per_cell).toEqual({ value: volts, source });
   });
 
-  // Safety floors: CHECKS.md "Chemistry limits" (common practice): alkaline 0.8 in low-rate
+  // Safety floors: common practice: alkaline 0.8 in low-rate
   // tests, Li-ion makers' absolute floor 2.5-2.75 (the lowest is used), LiFePO4 floor 2.0.
   it.each([
     ['alkaline', 0.8],
@@ -72,7 +72,7 @@ describe('shipped chemistry file', () => {
     expect(byId(id).floor_V_per_cell).toEqual({ value: volts, source: 'common practice' });
   });
 
-  // Highest discharge temperature: CHECKS.md "Chemistry limits" (common practice):
+  // Highest discharge temperature: common practice:
   // Li-ion and LiFePO4 60 °C, NiMH 60 °C, alkaline about 50 °C, lead-acid 50 °C.
   it.each([
     ['li-ion', 60],

@@ -59,7 +59,11 @@ describe('resolveCutoff', () => {
   });
 
   it('accepts a request at or above the floor', () => {
-    expect(resolveCutoff(liIon, 2, 2.5)).toMatchObject({ perCell: 2.5, total: 5.0, fromUser: true });
+    expect(resolveCutoff(liIon, 2, 2.5)).toMatchObject({
+      perCell: 2.5,
+      total: 5.0,
+      fromUser: true,
+    });
     expect(resolveCutoff(liIon, 3, 3.3).total).toBeCloseTo(9.9, 9);
   });
 
@@ -107,7 +111,9 @@ describe('checkRestingVoltage', () => {
   it('refuses a Li-ion cell (4.1 V) on a NiMH profile and says what it fits', () => {
     const r = refusal(checkRestingVoltage(nimh, 1, 4.1, 1.0, all));
     expect(r.reason).toBe('above_max_rest');
-    expect(r.error.message).toContain('more than 1 cell of nimh can hold at rest (max 1.50 V/cell)');
+    expect(r.error.message).toContain(
+      'more than 1 cell of nimh can hold at rest (max 1.50 V/cell)',
+    );
     expect(r.error.message).toMatch(/Wrong chemistry or cell count\?/);
     expect(r.error.message).toContain('1 × li-ion');
     expect(r.fits).toContainEqual({ id: 'li-ion', minCells: 1, maxCells: 1 });

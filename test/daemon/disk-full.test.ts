@@ -38,7 +38,19 @@ describe.skipIf(!root && !process.env['CI'])('a run folder that cannot be writte
   it('a full disk: clear error, the load switched off on the rig, exit 1', async () => {
     const runs = mountTmpfs('size=96k');
     const out = io();
-    const run = await startRun({ sim: 'demo', speed: 100, runs, listen: null, once: true, rotateBytes: 1 << 24, channel: 0, linkTimeoutS: 60 }, out);
+    const run = await startRun(
+      {
+        sim: 'demo',
+        speed: 100,
+        runs,
+        listen: null,
+        once: true,
+        rotateBytes: 1 << 24,
+        channel: 0,
+        linkTimeoutS: 60,
+      },
+      out,
+    );
     const outcome = await run.done;
     expect(outcome.exitCode).toBe(1);
     expect(out.text()).toMatch(/CV_RUN_FOLDER/);
@@ -53,7 +65,19 @@ describe.skipIf(!root && !process.env['CI'])('a run folder that cannot be writte
     mkdirSync(join(ro, 'runs'));
     execFileSync('mount', ['-o', 'remount,ro', ro]);
     await expect(
-      startRun({ sim: 'demo', speed: 100, runs: join(ro, 'runs'), listen: null, once: true, rotateBytes: 1 << 24, channel: 0, linkTimeoutS: 60 }, io()),
+      startRun(
+        {
+          sim: 'demo',
+          speed: 100,
+          runs: join(ro, 'runs'),
+          listen: null,
+          once: true,
+          rotateBytes: 1 << 24,
+          channel: 0,
+          linkTimeoutS: 60,
+        },
+        io(),
+      ),
     ).rejects.toMatchObject({ code: 'CV_RUN_FOLDER', exitCode: 1 });
   });
 });

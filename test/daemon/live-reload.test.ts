@@ -10,7 +10,12 @@ import type { RunRequest } from '../../src/run/run-request.js';
 
 function calibration(offsetA: number): object {
   // Two reference points on a straight line: gain 1, the given offset.
-  const points = [0.5, 1.5].map((a) => ({ raw_mean: a * 1000, nominal: a, reference: a + offsetA, reference_u: 0.001 }));
+  const points = [0.5, 1.5].map((a) => ({
+    raw_mean: a * 1000,
+    nominal: a,
+    reference: a + offsetA,
+    reference_u: 0.001,
+  }));
   return sealCalibration({
     format: 1,
     rig: 'simrig-a1',
@@ -20,7 +25,11 @@ function calibration(offsetA: number): object {
   });
 }
 
-async function waitForEvent(folder: string, name: string, ms = 10_000): Promise<Record<string, unknown>> {
+async function waitForEvent(
+  folder: string,
+  name: string,
+  ms = 10_000,
+): Promise<Record<string, unknown>> {
   const until = Date.now() + ms;
   for (;;) {
     const text = (() => {
@@ -30,7 +39,11 @@ async function waitForEvent(folder: string, name: string, ms = 10_000): Promise<
         return '';
       }
     })();
-    const hit = text.split('\n').filter((l) => l !== '').map((l) => JSON.parse(l) as Record<string, unknown>).find((e) => e['event'] === name);
+    const hit = text
+      .split('\n')
+      .filter((l) => l !== '')
+      .map((l) => JSON.parse(l) as Record<string, unknown>)
+      .find((e) => e['event'] === name);
     if (hit) return hit;
     if (Date.now() > until) throw new Error(`no ${name} event`);
     await new Promise((r) => setTimeout(r, 100));
@@ -41,7 +54,20 @@ function start(over: Partial<RunRequest>): Promise<RunHandle> {
   const io = { out: new PassThrough(), err: new PassThrough() };
   io.out.resume();
   io.err.resume();
-  return startRun({ sim: 'demo', speed: 20, runs: mkdtempSync(join(tmpdir(), 'cv-reload-')), listen: null, once: true, rotateBytes: 1 << 24, channel: 0, linkTimeoutS: 60, ...over }, io);
+  return startRun(
+    {
+      sim: 'demo',
+      speed: 20,
+      runs: mkdtempSync(join(tmpdir(), 'cv-reload-')),
+      listen: null,
+      once: true,
+      rotateBytes: 1 << 24,
+      channel: 0,
+      linkTimeoutS: 60,
+      ...over,
+    },
+    io,
+  );
 }
 
 describe('files edited while a run goes on', () => {
@@ -65,14 +91,22 @@ describe('files edited while a run goes on', () => {
     run.stop('test');
     const outcome = await run.done;
     expect(outcome.result.calibration_id).toBe(second.id);
-    const rows = readFileSync(join(run.folder, 'samples-0001.csv'), 'utf8').trim().split('\n').slice(1);
+    const rows = readFileSync(join(run.folder, 'samples-0001.csv'), 'utf8')
+      .trim()
+      .split('\n')
+      .slice(1);
     const ids = rows.map((r) => r.split(',').at(-1));
     // No sample lost or counted twice across the reloads.
     expect(rows.length).toBe(outcome.result.frames_accepted);
     const seqs = rows.map((r) => Number(r.split(',')[3]));
     for (let i = 1; i < seqs.length; i++) expect(seqs[i]!).toBeGreaterThan(seqs[i - 1]!);
-    const events = readFileSync(join(run.folder, 'events.jsonl'), 'utf8').trim().split('\n').map((l) => JSON.parse(l) as { event: string });
-    expect(events.filter((e) => e.event === 'calibration_rejected').length).toBeGreaterThanOrEqual(2);
+    const events = readFileSync(join(run.folder, 'events.jsonl'), 'utf8')
+      .trim()
+      .split('\n')
+      .map((l) => JSON.parse(l) as { event: string });
+    expect(events.filter((e) => e.event === 'calibration_rejected').length).toBeGreaterThanOrEqual(
+      2,
+    );
     // Rows carry the id in force when they were made: the first, then the second, never a broken one.
     expect(new Set(ids)).toEqual(new Set([first.id, second.id]));
     expect(ids.indexOf(second.id)).toBeGreaterThan(ids.lastIndexOf(first.id));
@@ -86,7 +120,10 @@ describe('files edited while a run goes on', () => {
     await waitForEvent(run.folder, 'load_on');
     const original = readFileSync(path, 'utf8');
     // Li-ion default cutoff 3.0 -> 3.1 V per cell.
-    const edited = original.replace(/(li-ion:[\s\S]*?cutoff_V_per_cell:\s*\{\s*value:\s*)3\.0?0?/, '$13.1');
+    const edited = original.replace(
+      /(li-ion:[\s\S]*?cutoff_V_per_cell:\s*\{\s*value:\s*)3\.0?0?/,
+      '$13.1',
+    );
     expect(edited).not.toBe(original);
     writeFileSync(path, edited);
     const changed = await waitForEvent(run.folder, 'chemistry_changed');

@@ -32,10 +32,21 @@ function quietIo(): { out: PassThrough; err: PassThrough; text: () => string } {
   return { out, err, text: () => text };
 }
 
-// DESIGN.md "Run folder": the layout and the result keys are a contract.
+// docs/run-folder.md: the layout and the result keys are a contract.
 const RESULT_KEYS = [
-  'capacity_Ah', 'energy_Wh', 'duration_s', 'end_reason', 'mean_voltage_V', 'end_voltage_V', 'cutoff_V',
-  'frames_accepted', 'frames_rejected', 'frames_lost', 'rig_clock_error_ppm', 'calibration_id', 'uncertainty',
+  'capacity_Ah',
+  'energy_Wh',
+  'duration_s',
+  'end_reason',
+  'mean_voltage_V',
+  'end_voltage_V',
+  'cutoff_V',
+  'frames_accepted',
+  'frames_rejected',
+  'frames_lost',
+  'rig_clock_error_ppm',
+  'calibration_id',
+  'uncertainty',
 ];
 
 describe('a run on the simulated rig writes the run folder of the contract', () => {
@@ -46,13 +57,18 @@ describe('a run on the simulated rig writes the run folder of the contract', () 
     expect(outcome.exitCode, io.text()).toBe(0);
     expect(run.folder).toMatch(/[/\\]\d{8}-\d{6}-layout-check$/);
     const files = readdirSync(run.folder).sort();
-    expect(files).toEqual(expect.arrayContaining(['checkpoint.json', 'events.jsonl', 'manifest.json', 'result.json']));
+    expect(files).toEqual(
+      expect.arrayContaining(['checkpoint.json', 'events.jsonl', 'manifest.json', 'result.json']),
+    );
     // Closed sample files are compressed; the last one stays plain.
     expect(files).toContain('samples-0001.csv.gz');
     expect(files.filter((f) => /^samples-\d{4}\.csv$/.test(f))).toHaveLength(1);
     expect(files.some((f) => f.endsWith('.tmp'))).toBe(false);
 
-    const result = JSON.parse(readFileSync(join(run.folder, 'result.json'), 'utf8')) as Record<string, unknown>;
+    const result = JSON.parse(readFileSync(join(run.folder, 'result.json'), 'utf8')) as Record<
+      string,
+      unknown
+    >;
     for (const k of RESULT_KEYS) expect(result).toHaveProperty(k);
     expect(result['end_reason']).toBe('cutoff');
     expect(result['calibration_id']).toBe('none');
@@ -76,16 +92,29 @@ describe('a run on the simulated rig writes the run folder of the contract', () 
     const last = rows.at(-1)!.split(',');
     expect(Number(last[12])).toBeCloseTo(result['capacity_Ah'] as number, 6);
 
-    const events = readFileSync(join(run.folder, 'events.jsonl'), 'utf8').trim().split('\n').map((l) => JSON.parse(l) as { event: string });
+    const events = readFileSync(join(run.folder, 'events.jsonl'), 'utf8')
+      .trim()
+      .split('\n')
+      .map((l) => JSON.parse(l) as { event: string });
     const names = events.map((e) => e.event);
     expect(names[0]).toBe('run_started');
     expect(names).toContain('precheck_passed');
     expect(names).toContain('load_on');
     expect(names.at(-1)).toBe('run_ended');
 
-    const manifest = JSON.parse(readFileSync(join(run.folder, 'manifest.json'), 'utf8')) as Record<string, unknown>;
-    expect(manifest).toMatchObject({ format: 'cellvigil-run', format_version: 1, cells: 1, cutoff_V: 3 });
-    const checkpoint = JSON.parse(readFileSync(join(run.folder, 'checkpoint.json'), 'utf8')) as Record<string, unknown>;
+    const manifest = JSON.parse(readFileSync(join(run.folder, 'manifest.json'), 'utf8')) as Record<
+      string,
+      unknown
+    >;
+    expect(manifest).toMatchObject({
+      format: 'cellvigil-run',
+      format_version: 1,
+      cells: 1,
+      cutoff_V: 3,
+    });
+    const checkpoint = JSON.parse(
+      readFileSync(join(run.folder, 'checkpoint.json'), 'utf8'),
+    ) as Record<string, unknown>;
     expect(checkpoint['charge_Ah']).toBeCloseTo(result['capacity_Ah'] as number, 6);
   });
 });
@@ -103,7 +132,10 @@ describe('the precheck and the floors', () => {
 
   it('refuses a cutoff below the chemistry floor before anything starts (Li-ion floor 2.5 V, common practice)', async () => {
     const io = quietIo();
-    await expect(startRun(request({ cutoff: 2.2 }), io)).rejects.toMatchObject({ code: 'CV_CUTOFF_BELOW_FLOOR', exitCode: 2 });
+    await expect(startRun(request({ cutoff: 2.2 }), io)).rejects.toMatchObject({
+      code: 'CV_CUTOFF_BELOW_FLOOR',
+      exitCode: 2,
+    });
   });
 
   it('a live cutoff change below the floor is refused; one above it applies', async () => {
@@ -128,6 +160,9 @@ describe('the precheck and the floors', () => {
     expect(outcome.result.end_reason).toBe('stopped');
     expect(outcome.exitCode).toBe(0);
     expect(outcome.result.load_off_confirmed).toBe(true);
-    expect(rig.loadLog().map((s) => [s.on, s.cause])).toEqual([[true, 'host'], [false, 'host']]);
+    expect(rig.loadLog().map((s) => [s.on, s.cause])).toEqual([
+      [true, 'host'],
+      [false, 'host'],
+    ]);
   });
 });

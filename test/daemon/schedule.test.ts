@@ -17,7 +17,18 @@ describe('a scheduled discharge on the simulated rig', () => {
     const out = new PassThrough();
     out.resume();
     const run = await startRun(
-      { sim: 'quick', speed: 10, runs: join(dir, 'runs'), listen: null, once: true, rotateBytes: 1 << 24, channel: 0, linkTimeoutS: 60, calibration: calPath, schedule: 'on 3 s every 5 s' },
+      {
+        sim: 'quick',
+        speed: 10,
+        runs: join(dir, 'runs'),
+        listen: null,
+        once: true,
+        rotateBytes: 1 << 24,
+        channel: 0,
+        linkTimeoutS: 60,
+        calibration: calPath,
+        schedule: 'on 3 s every 5 s',
+      },
       { out, err: out },
     );
     const outcome = await run.done;
@@ -35,7 +46,9 @@ describe('a scheduled discharge on the simulated rig', () => {
     }
     const truth = rig.truth();
     expect(Math.abs(outcome.result.duration_s - truth.loadOnS) / truth.loadOnS).toBeLessThan(0.02);
-    expect(Math.abs(outcome.result.capacity_Ah - truth.chargeAh) / truth.chargeAh).toBeLessThan(0.01);
+    expect(Math.abs(outcome.result.capacity_Ah - truth.chargeAh) / truth.chargeAh).toBeLessThan(
+      0.01,
+    );
     expect(outcome.result.service_output_h).toBeCloseTo(outcome.result.duration_s / 3600, 6);
   }, 60_000);
 });

@@ -12,7 +12,16 @@ describe('a second SIGINT while the load is being switched off', () => {
     let text = '';
     out.on('data', (d: Buffer) => (text += d.toString()));
     const run = await startRun(
-      { sim: 'demo', speed: 1, runs: mkdtempSync(join(tmpdir(), 'cv-sig-')), listen: null, once: true, rotateBytes: 1 << 24, channel: 0, linkTimeoutS: 60 },
+      {
+        sim: 'demo',
+        speed: 1,
+        runs: mkdtempSync(join(tmpdir(), 'cv-sig-')),
+        listen: null,
+        once: true,
+        rotateBytes: 1 << 24,
+        channel: 0,
+        linkTimeoutS: 60,
+      },
       { out, err: out, signals: true },
     );
     const rig = (run.source as SimSource).rig;
@@ -25,6 +34,9 @@ describe('a second SIGINT while the load is being switched off', () => {
     expect(outcome.exitCode).toBe(0);
     expect(outcome.result.end_reason).toBe('stopped');
     expect(outcome.result.load_off_confirmed).toBe(true);
-    expect(rig.loadLog().map((s) => [s.on, s.cause])).toEqual([[true, 'host'], [false, 'host']]);
+    expect(rig.loadLog().map((s) => [s.on, s.cause])).toEqual([
+      [true, 'host'],
+      [false, 'host'],
+    ]);
   }, 30_000);
 });

@@ -12,11 +12,24 @@ import { CLI } from './pty-helpers.js';
 
 const run = promisify(execFile);
 
-async function discharge(runs: string, calibration?: string): Promise<{ outcome: RunOutcome; truthAh: number }> {
+async function discharge(
+  runs: string,
+  calibration?: string,
+): Promise<{ outcome: RunOutcome; truthAh: number }> {
   const out = new PassThrough();
   out.resume();
   const handle = await startRun(
-    { sim: 'demo', speed: 400, runs, listen: null, once: true, rotateBytes: 1 << 24, channel: 0, linkTimeoutS: 60, ...(calibration ? { calibration } : {}) },
+    {
+      sim: 'demo',
+      speed: 400,
+      runs,
+      listen: null,
+      once: true,
+      rotateBytes: 1 << 24,
+      channel: 0,
+      linkTimeoutS: 60,
+      ...(calibration ? { calibration } : {}),
+    },
     { out, err: out },
   );
   const outcome = await handle.done;
@@ -43,25 +56,64 @@ describe('calibrating a board with a 30 mA offset and a 4 % gain error, then dis
         '  - { quantity: voltage, load: on, reference: truth }',
       ].join('\n'),
     );
-    await run(process.execPath, [CLI, 'calibrate', '--sim', 'demo', '--speed', '20', '--points', join(dir, 'capture.yaml'), '--out', join(dir, 'captured.json')]);
+    await run(process.execPath, [
+      CLI,
+      'calibrate',
+      '--sim',
+      'demo',
+      '--speed',
+      '20',
+      '--points',
+      join(dir, 'capture.yaml'),
+      '--out',
+      join(dir, 'captured.json'),
+    ]);
     const captured = JSON.parse(readFileSync(join(dir, 'captured.json'), 'utf8')) as Calibration;
     // What a person would have typed from a meter of ±(0.5 % + 3 mA) and ±(0.05 % + 2 mV):
     // readings off by +0.2 % + 1 mA and +0.03 %, well inside those limits.
     const typed = [
-      ...captured.current!.points.map((p) => ({ quantity: 'current', raw_mean: p.raw_mean, raw_sd: p.raw_sd ?? 0, samples: p.samples ?? 1, reference: p.reference * 1.002 + 0.001, accuracy: '0.5%+0.003' })),
-      ...captured.voltage!.points.map((p) => ({ quantity: 'voltage', raw_mean: p.raw_mean, raw_sd: p.raw_sd ?? 0, samples: p.samples ?? 1, reference: p.reference * 1.0003, accuracy: '0.05%+0.002' })),
+      ...captured.current!.points.map((p) => ({
+        quantity: 'current',
+        raw_mean: p.raw_mean,
+        raw_sd: p.raw_sd ?? 0,
+        samples: p.samples ?? 1,
+        reference: p.reference * 1.002 + 0.001,
+        accuracy: '0.5%+0.003',
+      })),
+      ...captured.voltage!.points.map((p) => ({
+        quantity: 'voltage',
+        raw_mean: p.raw_mean,
+        raw_sd: p.raw_sd ?? 0,
+        samples: p.samples ?? 1,
+        reference: p.reference * 1.0003,
+        accuracy: '0.05%+0.002',
+      })),
     ];
-    writeFileSync(join(dir, 'typed.json'), JSON.stringify({ reference_instrument: 'bench meter, 10 A range', points: typed }));
-    await run(process.execPath, [CLI, 'calibrate', '--from-points', join(dir, 'typed.json'), '--out', join(dir, 'board.json')]);
-    [calibrated, uncalibrated] = await Promise.all([discharge(join(dir, 'runs-a'), join(dir, 'board.json')), discharge(join(dir, 'runs-b'))]);
+    writeFileSync(
+      join(dir, 'typed.json'),
+      JSON.stringify({ reference_instrument: 'bench meter, 10 A range', points: typed }),
+    );
+    await run(process.execPath, [
+      CLI,
+      'calibrate',
+      '--from-points',
+      join(dir, 'typed.json'),
+      '--out',
+      join(dir, 'board.json'),
+    ]);
+    [calibrated, uncalibrated] = await Promise.all([
+      discharge(join(dir, 'runs-a'), join(dir, 'board.json')),
+      discharge(join(dir, 'runs-b')),
+    ]);
   }, 180_000);
 
   it('uncalibrated, the capacity is off by several percent', () => {
-    const err = (uncalibrated.outcome.result.capacity_Ah - uncalibrated.truthAh) / uncalibrated.truthAh;
+    const err =
+      (uncalibrated.outcome.result.capacity_Ah - uncalibrated.truthAh) / uncalibrated.truthAh;
     expect(Math.abs(err)).toBeGreaterThan(0.03);
   });
 
-  it('calibrated, it is within 0.5 % of the simulator\'s truth (charge = ∫ I dt, physics)', () => {
+  it("calibrated, it is within 0.5 % of the simulator's truth (charge = ∫ I dt, physics)", () => {
     const err = (calibrated.outcome.result.capacity_Ah - calibrated.truthAh) / calibrated.truthAh;
     expect(Math.abs(err)).toBeLessThan(0.005);
     expect(calibrated.outcome.result.calibration_id).toMatch(/^[0-9a-f]{16}$/);

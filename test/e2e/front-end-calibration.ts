@@ -5,7 +5,12 @@
  */
 import { AnalogChain } from '../../src/chain/analog-chain.js';
 import { parseRigProfile } from '../../src/chain/rig-profile.js';
-import { sealCalibration, fitQuantity, type Calibration, type CalibrationPoint } from '../../src/calibration/calibration.js';
+import {
+  sealCalibration,
+  fitQuantity,
+  type Calibration,
+  type CalibrationPoint,
+} from '../../src/calibration/calibration.js';
 import { FrontEnd } from '../../src/sim/front-end.js';
 import { loadScenarios, pickScenario } from '../../src/sim/scenarios.js';
 import { readFileSync } from 'node:fs';
@@ -33,12 +38,22 @@ export function simulatedBoardCalibration(scenarioName: string): Calibration {
   const current: CalibrationPoint[] = [];
   for (let a = 0.1; a <= 2.0001; a += 0.05) {
     const counts = board.current(a).counts;
-    current.push({ raw_mean: counts, nominal: chain.amps(counts), reference: a, reference_u: 0.0005 });
+    current.push({
+      raw_mean: counts,
+      nominal: chain.amps(counts),
+      reference: a,
+      reference_u: 0.0005,
+    });
   }
   const voltage: CalibrationPoint[] = [];
   for (let v = 2.4; v <= 4.3001; v += 0.05) {
     const counts = board.voltage(v).counts;
-    voltage.push({ raw_mean: counts, nominal: chain.volts(counts), reference: v, reference_u: 0.0005 });
+    voltage.push({
+      raw_mean: counts,
+      nominal: chain.volts(counts),
+      reference: v,
+      reference_u: 0.0005,
+    });
   }
   return sealCalibration({
     format: 1,

@@ -27,12 +27,34 @@ describe('end to end over a pseudo-terminal: discharge to the cutoff', () => {
   let stdout = '';
 
   beforeAll(async () => {
-    rig = await startPtyRig('quick', ['--clock-error', '0.2', '--burst', '5', '--drop', '0.01', '--garbage', '0.01', '--seed', '77']);
+    rig = await startPtyRig('quick', [
+      '--clock-error',
+      '0.2',
+      '--burst',
+      '5',
+      '--drop',
+      '0.01',
+      '--garbage',
+      '0.01',
+      '--seed',
+      '77',
+    ]);
     const cal = simulatedBoardCalibration('quick');
     const calPath = join(rig.dir, 'cal.json');
     writeFileSync(calPath, JSON.stringify(cal));
     const runs = join(rig.dir, 'runs');
-    const d = startDaemon(['--port', rig.hostPath, '--chemistry', 'li-ion', '--calibration', calPath, '--once', '--no-live', '--runs', runs]);
+    const d = startDaemon([
+      '--port',
+      rig.hostPath,
+      '--chemistry',
+      'li-ion',
+      '--calibration',
+      calPath,
+      '--once',
+      '--no-live',
+      '--runs',
+      runs,
+    ]);
     exitCode = await d.exit;
     stdout = d.stdout();
     // Let the simulator record the final load switch before it is stopped.
@@ -51,7 +73,7 @@ describe('end to end over a pseudo-terminal: discharge to the cutoff', () => {
     expect(result.load_off_confirmed).toBe(true);
   });
 
-  it('capacity within 0.5 % of the simulator\'s own integral of the true current (charge = ∫ I dt, physics)', () => {
+  it("capacity within 0.5 % of the simulator's own integral of the true current (charge = ∫ I dt, physics)", () => {
     const truth = rig.readTruth().truth;
     expect(truth.chargeAh).toBeGreaterThan(0.006);
     expect(Math.abs(result.capacity_Ah - truth.chargeAh) / truth.chargeAh).toBeLessThan(0.005);

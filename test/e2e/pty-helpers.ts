@@ -14,7 +14,14 @@ export const CLI = fileURLToPath(new URL('../../dist/cli/main.js', import.meta.u
 
 export interface SimTruthFile {
   clock_ms: number;
-  truth: { chargeAh: number; energyWh: number; loadOnS: number; loadOn: boolean; temperatureC: number; rigFault: boolean };
+  truth: {
+    chargeAh: number;
+    energyWh: number;
+    loadOnS: number;
+    loadOn: boolean;
+    temperatureC: number;
+    rigFault: boolean;
+  };
   load_log: { atMs: number; on: boolean; cause: 'host' | 'watchdog' | 'stop' }[];
 }
 
@@ -41,7 +48,9 @@ async function waitFor(cond: () => boolean, ms: number, what: string): Promise<v
 }
 
 function exited(p: ChildProcess): Promise<number | null> {
-  return p.exitCode !== null || p.signalCode !== null ? Promise.resolve(p.exitCode) : new Promise((r) => p.once('exit', (code) => r(code)));
+  return p.exitCode !== null || p.signalCode !== null
+    ? Promise.resolve(p.exitCode)
+    : new Promise((r) => p.once('exit', (code) => r(code)));
 }
 
 /** Starts socat and the simulated rig; resolves when the rig is writing frames. */
@@ -51,15 +60,31 @@ export async function startPtyRig(scenario: string, simArgs: string[] = []): Pro
   const rigPath = join(dir, 'rig');
   const truthPath = join(dir, 'truth.json');
   const startSocat = async (): Promise<ChildProcess> => {
-    const p = spawn('socat', [`pty,raw,echo=0,link=${hostPath}`, `pty,raw,echo=0,link=${rigPath}`], { stdio: 'ignore' });
-    await waitFor(() => existsSync(hostPath) && existsSync(rigPath), 5000, 'socat to create the pty pair');
+    const p = spawn(
+      'socat',
+      [`pty,raw,echo=0,link=${hostPath}`, `pty,raw,echo=0,link=${rigPath}`],
+      { stdio: 'ignore' },
+    );
+    await waitFor(
+      () => existsSync(hostPath) && existsSync(rigPath),
+      5000,
+      'socat to create the pty pair',
+    );
     return p;
   };
   let socat = await startSocat();
-  const sim = spawn(process.execPath, [CLI, 'sim', scenario, '--port', rigPath, '--truth', truthPath, ...simArgs], { stdio: ['ignore', 'pipe', 'pipe'] });
+  const sim = spawn(
+    process.execPath,
+    [CLI, 'sim', scenario, '--port', rigPath, '--truth', truthPath, ...simArgs],
+    { stdio: ['ignore', 'pipe', 'pipe'] },
+  );
   let simErr = '';
   sim.stderr!.on('data', (d: Buffer) => (simErr += d.toString()));
-  await waitFor(() => existsSync(truthPath) || sim.exitCode !== null, 10_000, 'the simulated rig to start').catch((e: Error) => {
+  await waitFor(
+    () => existsSync(truthPath) || sim.exitCode !== null,
+    10_000,
+    'the simulated rig to start',
+  ).catch((e: Error) => {
     throw new Error(`${e.message}: ${simErr}`);
   });
   if (sim.exitCode !== null) throw new Error(`the simulated rig exited: ${simErr}`);
@@ -97,7 +122,9 @@ export interface DaemonRun {
 }
 
 export function startDaemon(args: string[]): DaemonRun {
-  const child = spawn(process.execPath, [CLI, 'run', ...args], { stdio: ['ignore', 'pipe', 'pipe'] });
+  const child = spawn(process.execPath, [CLI, 'run', ...args], {
+    stdio: ['ignore', 'pipe', 'pipe'],
+  });
   let out = '';
   let err = '';
   child.stdout!.on('data', (d: Buffer) => (out += d.toString()));
@@ -108,7 +135,8 @@ export function startDaemon(args: string[]): DaemonRun {
 /** The one run folder under `runs`. */
 export function onlyRunFolder(runs: string): string {
   const names = readdirSync(runs);
-  if (names.length !== 1) throw new Error(`expected one run folder in ${runs}, found ${names.join(', ')}`);
+  if (names.length !== 1)
+    throw new Error(`expected one run folder in ${runs}, found ${names.join(', ')}`);
   return join(runs, names[0]!);
 }
 
@@ -118,10 +146,15 @@ export function readJson<T>(path: string): T {
 
 /** Every row of a run's sample files, plain or compressed, in file order. */
 export function sampleRows(folder: string): string[] {
-  const files = readdirSync(folder).filter((f) => /^samples-\d{4}\.csv(\.gz)?$/.test(f)).sort();
+  const files = readdirSync(folder)
+    .filter((f) => /^samples-\d{4}\.csv(\.gz)?$/.test(f))
+    .sort();
   return files.flatMap((f) => {
     const bytes = readFileSync(join(folder, f));
-    const lines = (f.endsWith('.gz') ? gunzipSync(bytes) : bytes).toString('utf8').split('\n').slice(1);
+    const lines = (f.endsWith('.gz') ? gunzipSync(bytes) : bytes)
+      .toString('utf8')
+      .split('\n')
+      .slice(1);
     return lines.filter((l) => l !== '');
   });
 }

@@ -12,7 +12,16 @@ describe('end to end over a pseudo-terminal: over-temperature', () => {
   beforeAll(async () => {
     rig = await startPtyRig('hot');
     const runs = join(rig.dir, 'runs');
-    const d = startDaemon(['--port', rig.hostPath, '--chemistry', 'li-ion', '--once', '--no-live', '--runs', runs]);
+    const d = startDaemon([
+      '--port',
+      rig.hostPath,
+      '--chemistry',
+      'li-ion',
+      '--once',
+      '--no-live',
+      '--runs',
+      runs,
+    ]);
     exitCode = await d.exit;
     await new Promise((r) => setTimeout(r, 500));
     result = readJson(join(onlyRunFolder(runs), 'result.json'));

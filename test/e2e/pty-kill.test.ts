@@ -10,11 +10,20 @@ describe('end to end over a pseudo-terminal: the daemon killed with SIGKILL', ()
   beforeAll(async () => {
     rig = await startPtyRig('demo', ['--seed', '5']);
     const runs = join(rig.dir, 'runs');
-    const d = startDaemon(['--port', rig.hostPath, '--chemistry', 'li-ion', '--no-live', '--runs', runs]);
+    const d = startDaemon([
+      '--port',
+      rig.hostPath,
+      '--chemistry',
+      'li-ion',
+      '--no-live',
+      '--runs',
+      runs,
+    ]);
     // Wait until the load is on, run a moment, then kill the daemon without warning.
     const until = Date.now() + 20_000;
     while (!rig.readTruth().truth.loadOn) {
-      if (Date.now() > until) throw new Error(`the load never went on: ${d.stdout()} ${d.stderr()}`);
+      if (Date.now() > until)
+        throw new Error(`the load never went on: ${d.stdout()} ${d.stderr()}`);
       await new Promise((r) => setTimeout(r, 100));
     }
     await new Promise((r) => setTimeout(r, 1500));

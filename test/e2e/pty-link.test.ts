@@ -1,7 +1,14 @@
 import { readFileSync } from 'node:fs';
 import { join } from 'node:path';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
-import { onlyRunFolder, readJson, sampleRows, startDaemon, startPtyRig, type PtyRig } from './pty-helpers.js';
+import {
+  onlyRunFolder,
+  readJson,
+  sampleRows,
+  startDaemon,
+  startPtyRig,
+  type PtyRig,
+} from './pty-helpers.js';
 
 async function until(cond: () => boolean, ms: number, what: string): Promise<void> {
   const end = Date.now() + ms;
@@ -22,7 +29,17 @@ describe('end to end over a pseudo-terminal: the link goes away and comes back',
   beforeAll(async () => {
     rig = await startPtyRig('demo', ['--seed', '3']);
     const runs = join(rig.dir, 'runs');
-    const d = startDaemon(['--port', rig.hostPath, '--chemistry', 'li-ion', '--no-live', '--link-timeout', '4', '--runs', runs]);
+    const d = startDaemon([
+      '--port',
+      rig.hostPath,
+      '--chemistry',
+      'li-ion',
+      '--no-live',
+      '--link-timeout',
+      '4',
+      '--runs',
+      runs,
+    ]);
     await until(() => rig.readTruth().truth.loadOn, 20_000, 'the load to go on');
     await new Promise((r) => setTimeout(r, 1500));
     folder = onlyRunFolder(runs);
@@ -47,10 +64,15 @@ describe('end to end over a pseudo-terminal: the link goes away and comes back',
 
   it('reconnects within about two seconds of the port returning, and the load stayed on', () => {
     expect(reconnectS).toBeLessThan(2.5);
-    const names = readFileSync(join(folder, 'events.jsonl'), 'utf8').trim().split('\n').map((l) => (JSON.parse(l) as { event: string }).event);
+    const names = readFileSync(join(folder, 'events.jsonl'), 'utf8')
+      .trim()
+      .split('\n')
+      .map((l) => (JSON.parse(l) as { event: string }).event);
     const i = names.indexOf('link_down');
     expect(i).toBeGreaterThan(0);
-    expect(names.slice(i)).toEqual(expect.arrayContaining(['link_closed', 'link_up', 'load_still_on']));
+    expect(names.slice(i)).toEqual(
+      expect.arrayContaining(['link_closed', 'link_up', 'load_still_on']),
+    );
   });
 
   it('no sample is duplicated or reordered across the reconnect', () => {

@@ -2,7 +2,14 @@ import { readFileSync, writeFileSync } from 'node:fs';
 import { join } from 'node:path';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { simulatedBoardCalibration } from './front-end-calibration.js';
-import { onlyRunFolder, readJson, sampleRows, startDaemon, startPtyRig, type PtyRig } from './pty-helpers.js';
+import {
+  onlyRunFolder,
+  readJson,
+  sampleRows,
+  startDaemon,
+  startPtyRig,
+  type PtyRig,
+} from './pty-helpers.js';
 
 // The daemon dies with SIGKILL mid-discharge; the rig's watchdog cuts the load; the daemon is
 // started again on the same port and finishes the run.
@@ -19,7 +26,18 @@ describe('end to end over a pseudo-terminal: SIGKILL, restart, finish', () => {
     const calPath = join(rig.dir, 'cal.json');
     writeFileSync(calPath, JSON.stringify(simulatedBoardCalibration('quick')));
     const runs = join(rig.dir, 'runs');
-    const args = ['--port', rig.hostPath, '--chemistry', 'li-ion', '--calibration', calPath, '--once', '--no-live', '--runs', runs];
+    const args = [
+      '--port',
+      rig.hostPath,
+      '--chemistry',
+      'li-ion',
+      '--calibration',
+      calPath,
+      '--once',
+      '--no-live',
+      '--runs',
+      runs,
+    ];
     const first = startDaemon(args);
     const until = Date.now() + 20_000;
     while (!rig.readTruth().truth.loadOn) {
@@ -48,8 +66,19 @@ describe('end to end over a pseudo-terminal: SIGKILL, restart, finish', () => {
     expect(exitCode, output).toBe(0);
     expect(output).toMatch(/Resuming an interrupted run/);
     expect(result.end_reason).toBe('cutoff');
-    const events = readFileSync(join(folder, 'events.jsonl'), 'utf8').trim().split('\n').map((l) => JSON.parse(l) as { event: string });
-    expect(events.map((e) => e.event)).toEqual(expect.arrayContaining(['run_started', 'resumed', 'unlogged_discharge', 'precheck_passed', 'run_ended']));
+    const events = readFileSync(join(folder, 'events.jsonl'), 'utf8')
+      .trim()
+      .split('\n')
+      .map((l) => JSON.parse(l) as { event: string });
+    expect(events.map((e) => e.event)).toEqual(
+      expect.arrayContaining([
+        'run_started',
+        'resumed',
+        'unlogged_discharge',
+        'precheck_passed',
+        'run_ended',
+      ]),
+    );
   });
 
   it('the rig saw: on by the host, off by its watchdog, on again after a new precheck, off at the cutoff', () => {

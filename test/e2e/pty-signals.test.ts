@@ -12,7 +12,15 @@ describe('end to end over a pseudo-terminal: SIGINT twice', () => {
   beforeAll(async () => {
     rig = await startPtyRig('demo', ['--seed', '9']);
     const runs = join(rig.dir, 'runs');
-    const d = startDaemon(['--port', rig.hostPath, '--chemistry', 'li-ion', '--no-live', '--runs', runs]);
+    const d = startDaemon([
+      '--port',
+      rig.hostPath,
+      '--chemistry',
+      'li-ion',
+      '--no-live',
+      '--runs',
+      runs,
+    ]);
     const until = Date.now() + 20_000;
     while (!rig.readTruth().truth.loadOn) {
       if (Date.now() > until) throw new Error(`the load never went on: ${d.stdout()}`);

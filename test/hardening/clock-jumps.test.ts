@@ -42,19 +42,34 @@ interface Fed {
 }
 
 /** Feeds one loaded frame every FRAME_MS on `clock`, as the daemon does: arrival = now(), label = wallNow(). */
-function feed(p: Pipeline, clock: SteppingClock, seq: number, frames: number, beforeFrame: (k: number) => void = () => undefined): Fed[] {
+function feed(
+  p: Pipeline,
+  clock: SteppingClock,
+  seq: number,
+  frames: number,
+  beforeFrame: (k: number) => void = () => undefined,
+): Fed[] {
   const out: Fed[] = [];
   for (let k = 0; k < frames; k++) {
     beforeFrame(k);
     clock.advance(FRAME_MS);
     const wallMs = clock.wallNow();
-    const outcome = p.line(dataLine({ seq: seq + k, tickMs: (seq + k) * FRAME_MS, loadOn: true }), clock.now(), wallMs);
+    const outcome = p.line(
+      dataLine({ seq: seq + k, tickMs: (seq + k) * FRAME_MS, loadOn: true }),
+      clock.now(),
+      wallMs,
+    );
     out.push({ outcome, wallMs });
   }
   return out;
 }
 
-function started(): { pipeline: Pipeline; session: Session; clock: SteppingClock; next: { seq: number; tick: number; at: number } } {
+function started(): {
+  pipeline: Pipeline;
+  session: Session;
+  clock: SteppingClock;
+  next: { seq: number; tick: number; at: number };
+} {
   const { pipeline, session } = benchPipeline();
   const clock = new SteppingClock();
   const next = warmUp(pipeline, session);
@@ -76,7 +91,8 @@ describe('wall clock steps', () => {
     for (let k = 0; k < FRAMES; k++) {
       const x = a[k]!.outcome;
       const y = b[k]!.outcome;
-      if (x.kind !== 'sample' || y.kind !== 'sample') throw new Error(`frame ${k} was not a sample`);
+      if (x.kind !== 'sample' || y.kind !== 'sample')
+        throw new Error(`frame ${k} was not a sample`);
       expect(y.row.chargeAh).toBe(x.row.chargeAh);
       expect(y.row.energyWh).toBe(x.row.energyWh);
       expect(y.row.hostS).toBe(x.row.hostS);
@@ -97,7 +113,10 @@ describe('wall clock steps', () => {
     if (first.kind !== 'sample' || last.kind !== 'sample') throw new Error('not samples');
     const amps = BENCH_CHAIN.amps(HEALTHY.iRaw);
     expect(last.row.hostS - first.row.hostS).toBeCloseTo(((FRAMES - 1) * FRAME_MS) / 1000, 9);
-    expect(last.row.chargeAh - first.row.chargeAh).toBeCloseTo((amps * (last.row.hostS - first.row.hostS)) / 3600, 12);
+    expect(last.row.chargeAh - first.row.chargeAh).toBeCloseTo(
+      (amps * (last.row.hostS - first.row.hostS)) / 3600,
+      12,
+    );
   });
 });
 
@@ -112,7 +131,11 @@ describe('host suspend', () => {
     const one = (skipped: number, flags: number): LineOutcome => {
       clock.advance(FRAME_MS);
       seq += skipped;
-      const o = p.line(dataLine({ seq, tickMs: seq * FRAME_MS, loadOn: (flags & 1) !== 0, flags }), clock.now(), clock.wallNow());
+      const o = p.line(
+        dataLine({ seq, tickMs: seq * FRAME_MS, loadOn: (flags & 1) !== 0, flags }),
+        clock.now(),
+        clock.wallNow(),
+      );
       seq++;
       return o;
     };
@@ -122,7 +145,9 @@ describe('host suspend', () => {
     expect(back.kind === 'sample' && back.gap).toBe(true);
     expect(p.counters.lost).toBe(SLEEP_MS / FRAME_MS);
     // Host time moved one frame period only, so at most one period of charge was added, all of it bridged.
-    expect(s.integrator.chargeAh - before).toBeLessThanOrEqual((BENCH_CHAIN.amps(HEALTHY.iRaw) * FRAME_MS) / HOUR);
+    expect(s.integrator.chargeAh - before).toBeLessThanOrEqual(
+      (BENCH_CHAIN.amps(HEALTHY.iRaw) * FRAME_MS) / HOUR,
+    );
     expect(s.integrator.bridgedAh).toBeCloseTo(s.integrator.chargeAh - before, 15);
   });
 
@@ -136,9 +161,17 @@ describe('host suspend', () => {
       clock.advance(FRAME_MS + extraMs);
       seq += skipped;
       const before = { ah: s.integrator.chargeAh, bridged: s.integrator.bridgedAh };
-      const o = p.line(dataLine({ seq, tickMs: seq * FRAME_MS, loadOn: (flags & 1) !== 0, flags }), clock.now(), clock.wallNow());
+      const o = p.line(
+        dataLine({ seq, tickMs: seq * FRAME_MS, loadOn: (flags & 1) !== 0, flags }),
+        clock.now(),
+        clock.wallNow(),
+      );
       seq++;
-      steps.push({ dAh: s.integrator.chargeAh - before.ah, dBridged: s.integrator.bridgedAh - before.bridged, gap: o.kind === 'sample' && o.gap });
+      steps.push({
+        dAh: s.integrator.chargeAh - before.ah,
+        dBridged: s.integrator.bridgedAh - before.bridged,
+        gap: o.kind === 'sample' && o.gap,
+      });
       return o;
     };
     for (let k = 0; k < 100; k++) one(0, 0, 1);

@@ -3,7 +3,15 @@
  * the next start settles what was left, and the file being written is never touched.
  * Compressed files are read back with node:zlib (gzip, RFC 1952) by the test itself.
  */
-import { existsSync, mkdirSync, mkdtempSync, readdirSync, readFileSync, rmSync, writeFileSync } from 'node:fs';
+import {
+  existsSync,
+  mkdirSync,
+  mkdtempSync,
+  readdirSync,
+  readFileSync,
+  rmSync,
+  writeFileSync,
+} from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { gzipSync } from 'node:zlib';
@@ -23,14 +31,19 @@ function freshDir(): string {
 
 const HEADER = 'n,text';
 const row = (n: number): string => `${n},row-${n}`;
-const rowsText = (from: number, to: number): string => [HEADER, ...Array.from({ length: to - from }, (_, k) => row(from + k))].join('\n') + '\n';
+const rowsText = (from: number, to: number): string =>
+  [HEADER, ...Array.from({ length: to - from }, (_, k) => row(from + k))].join('\n') + '\n';
 
 function options(dir: string, more: Partial<LogFileOptions> = {}): LogFileOptions {
   return { dir, name: 'samples-', ext: '.csv', header: HEADER, rotateBytes: 64, ...more };
 }
 
 /** Resolves once `n` compressions have been reported. */
-function counter(): { outcomes: CompressOutcome[]; onCompressed: (o: CompressOutcome) => void; reach: (n: number) => Promise<void> } {
+function counter(): {
+  outcomes: CompressOutcome[];
+  onCompressed: (o: CompressOutcome) => void;
+  reach: (n: number) => Promise<void>;
+} {
   const outcomes: CompressOutcome[] = [];
   const waiters: { n: number; resolve: () => void }[] = [];
   return {
@@ -39,7 +52,10 @@ function counter(): { outcomes: CompressOutcome[]; onCompressed: (o: CompressOut
       outcomes.push(o);
       for (const w of waiters.filter((x) => outcomes.length >= x.n)) w.resolve();
     },
-    reach: (n) => (outcomes.length >= n ? Promise.resolve() : new Promise((resolve) => waiters.push({ n, resolve }))),
+    reach: (n) =>
+      outcomes.length >= n
+        ? Promise.resolve()
+        : new Promise((resolve) => waiters.push({ n, resolve })),
   };
 }
 
@@ -53,7 +69,9 @@ describe('compressing a closed file', () => {
     expect(readdirSync(dir)).toEqual(['samples-0001.csv.gz']);
     expect(o.bytesIn).toBe(Buffer.byteLength(rowsText(0, 500)));
     expect(o.bytesOut).toBeLessThan(o.bytesIn);
-    expect(readRotated(dir, 'samples-', HEADER).rows).toEqual(Array.from({ length: 500 }, (_, k) => row(k)));
+    expect(readRotated(dir, 'samples-', HEADER).rows).toEqual(
+      Array.from({ length: 500 }, (_, k) => row(k)),
+    );
   });
 
   it('keeps the plain file and leaves no temporary file when compression fails', async () => {
@@ -75,25 +93,43 @@ describe('a crash at each step of a compression', () => {
   const full = gzipSync(rowsText(0, 40));
   const states: [string, Record<string, Buffer | string>][] = [
     ['before it starts', { 'samples-0001.csv': rowsText(0, 40) }],
-    ['while the copy is written', { 'samples-0001.csv': rowsText(0, 40), 'samples-0001.csv.gz.tmp': full.subarray(0, full.length >> 1) }],
-    ['after the copy is synced, before the rename', { 'samples-0001.csv': rowsText(0, 40), 'samples-0001.csv.gz.tmp': full }],
-    ['after the rename, before the plain file is removed', { 'samples-0001.csv': rowsText(0, 40), 'samples-0001.csv.gz': full }],
+    [
+      'while the copy is written',
+      {
+        'samples-0001.csv': rowsText(0, 40),
+        'samples-0001.csv.gz.tmp': full.subarray(0, full.length >> 1),
+      },
+    ],
+    [
+      'after the copy is synced, before the rename',
+      { 'samples-0001.csv': rowsText(0, 40), 'samples-0001.csv.gz.tmp': full },
+    ],
+    [
+      'after the rename, before the plain file is removed',
+      { 'samples-0001.csv': rowsText(0, 40), 'samples-0001.csv.gz': full },
+    ],
     ['after the plain file is removed', { 'samples-0001.csv.gz': full }],
   ];
   for (const [when, files] of states) {
     it(`${when}: every row is readable once, and the next start settles the folder`, async () => {
       const dir = freshDir();
       for (const [name, content] of Object.entries(files)) writeFileSync(join(dir, name), content);
-      expect(readRotated(dir, 'samples-', HEADER).rows).toEqual(Array.from({ length: 40 }, (_, k) => row(k)));
+      expect(readRotated(dir, 'samples-', HEADER).rows).toEqual(
+        Array.from({ length: 40 }, (_, k) => row(k)),
+      );
 
       // A resumed run continues with the next number.
       const c = counter();
-      const log = new LogFile(options(dir, { firstIndex: 2, compressClosed: true, onCompressed: c.onCompressed }));
+      const log = new LogFile(
+        options(dir, { firstIndex: 2, compressClosed: true, onCompressed: c.onCompressed }),
+      );
       log.append(row(40));
       await log.close();
       expect(readdirSync(dir).sort()).toEqual(['samples-0001.csv.gz', 'samples-0002.csv']);
       expect(c.outcomes.every((o) => o.error === null)).toBe(true);
-      expect(readRotated(dir, 'samples-', HEADER).rows).toEqual(Array.from({ length: 41 }, (_, k) => row(k)));
+      expect(readRotated(dir, 'samples-', HEADER).rows).toEqual(
+        Array.from({ length: 41 }, (_, k) => row(k)),
+      );
     });
   }
 
@@ -105,14 +141,18 @@ describe('a crash at each step of a compression', () => {
     log.append(row(40));
     await log.close();
     expect(readdirSync(dir).sort()).toEqual(['samples-0001.csv.gz', 'samples-0002.csv']);
-    expect(readRotated(dir, 'samples-', HEADER).rows).toEqual(Array.from({ length: 41 }, (_, k) => row(k)));
+    expect(readRotated(dir, 'samples-', HEADER).rows).toEqual(
+      Array.from({ length: 41 }, (_, k) => row(k)),
+    );
   });
 
   it('resuming into a number that exists both ways appends to the plain file and drops the stale .gz', async () => {
     const dir = freshDir();
     writeFileSync(join(dir, 'samples-0001.csv'), rowsText(0, 1));
     writeFileSync(join(dir, 'samples-0001.csv.gz'), gzipSync(rowsText(0, 1)));
-    const log = new LogFile(options(dir, { firstIndex: 1, rotateBytes: 4096, compressClosed: true }));
+    const log = new LogFile(
+      options(dir, { firstIndex: 1, rotateBytes: 4096, compressClosed: true }),
+    );
     log.append(row(1));
     await log.close();
     expect(readdirSync(dir)).toEqual(['samples-0001.csv']);
@@ -127,7 +167,9 @@ describe('a crash at each step of a compression', () => {
       log.append(row(5));
       await log.close();
       expect(log.files.map((f) => f.slice(dir.length + 1))).toEqual(['samples-0002.csv']);
-      expect(readRotated(dir, 'samples-', HEADER).rows).toEqual(Array.from({ length: 6 }, (_, k) => row(k)));
+      expect(readRotated(dir, 'samples-', HEADER).rows).toEqual(
+        Array.from({ length: 6 }, (_, k) => row(k)),
+      );
     });
   }
 });
@@ -141,13 +183,23 @@ describe('LogFile with compressClosed', () => {
     for (let n = 0; n < 14; n++) log.append(row(n));
     await log.flush();
     await c.reach(2);
-    expect(readdirSync(dir).sort()).toEqual(['samples-0001.csv.gz', 'samples-0002.csv.gz', 'samples-0003.csv']);
+    expect(readdirSync(dir).sort()).toEqual([
+      'samples-0001.csv.gz',
+      'samples-0002.csv.gz',
+      'samples-0003.csv',
+    ]);
     log.append(row(14));
     await log.flush();
     expect(existsSync(join(dir, 'samples-0003.csv.gz'))).toBe(false);
     await log.close();
-    expect(readdirSync(dir).sort()).toEqual(['samples-0001.csv.gz', 'samples-0002.csv.gz', 'samples-0003.csv']);
-    expect(readRotated(dir, 'samples-', HEADER).rows).toEqual(Array.from({ length: 15 }, (_, k) => row(k)));
+    expect(readdirSync(dir).sort()).toEqual([
+      'samples-0001.csv.gz',
+      'samples-0002.csv.gz',
+      'samples-0003.csv',
+    ]);
+    expect(readRotated(dir, 'samples-', HEADER).rows).toEqual(
+      Array.from({ length: 15 }, (_, k) => row(k)),
+    );
   });
 
   it('leaves the folder alone when the option is off', async () => {
@@ -159,7 +211,9 @@ describe('LogFile with compressClosed', () => {
     await log.close();
     const names = readdirSync(dir).sort();
     expect(names.filter((n) => n.includes('.gz'))).toEqual(['samples-0001.csv.gz.tmp']);
-    expect(readRotated(dir, 'samples-', HEADER).rows).toEqual(Array.from({ length: 20 }, (_, k) => row(k)));
+    expect(readRotated(dir, 'samples-', HEADER).rows).toEqual(
+      Array.from({ length: 20 }, (_, k) => row(k)),
+    );
   });
 });
 
@@ -170,6 +224,8 @@ describe('a size limit below one header and one row', () => {
     for (let n = 0; n < 5; n++) log.append(row(n));
     await log.close();
     expect(readdirSync(dir).length).toBe(5);
-    expect(readRotated(dir, 'samples-', HEADER).rows).toEqual(Array.from({ length: 5 }, (_, k) => row(k)));
+    expect(readRotated(dir, 'samples-', HEADER).rows).toEqual(
+      Array.from({ length: 5 }, (_, k) => row(k)),
+    );
   });
 });

@@ -10,7 +10,13 @@ import { fileURLToPath } from 'node:url';
 import fc from 'fast-check';
 import { afterAll, describe, expect, it } from 'vitest';
 import { parse as parseYaml, stringify as toYaml } from 'yaml';
-import { fitQuantity, parseCalibration, sealCalibration, calibrationId, type Calibration } from '../../src/calibration/calibration.js';
+import {
+  fitQuantity,
+  parseCalibration,
+  sealCalibration,
+  calibrationId,
+  type Calibration,
+} from '../../src/calibration/calibration.js';
 import { AnalogChain } from '../../src/chain/analog-chain.js';
 import { parseRigProfile } from '../../src/chain/rig-profile.js';
 import { parseChemistries } from '../../src/chemistry/chemistries.js';
@@ -24,7 +30,8 @@ const CHEMISTRY_RUNS = 4_000;
 const CALIBRATION_RUNS = 15_000;
 const SCENARIO_RUNS = 2_000;
 
-const config = (p: string): string => readFileSync(fileURLToPath(new URL(`../../config/${p}`, import.meta.url)), 'utf8');
+const config = (p: string): string =>
+  readFileSync(fileURLToPath(new URL(`../../config/${p}`, import.meta.url)), 'utf8');
 
 /** Two entries of a shipped YAML file (under `key` when given): a base small enough to mutate quickly. */
 function excerpt(text: string, names: string[], key?: string): string {
@@ -35,15 +42,27 @@ function excerpt(text: string, names: string[], key?: string): string {
 }
 
 /** Either the parse succeeds, or it throws the documented error; returns which. */
-function outcome(run: () => unknown, where: string, codes: readonly string[]): 'accepted' | 'refused' {
+function outcome(
+  run: () => unknown,
+  where: string,
+  codes: readonly string[],
+): 'accepted' | 'refused' {
   try {
     run();
     return 'accepted';
   } catch (e) {
-    if (!(e instanceof CellvigilError)) throw new Error(`a ${(e as Error)?.constructor?.name ?? typeof e} escaped: ${String(e)}`);
-    if (!codes.includes(e.code)) throw new Error(`unexpected code ${e.code}: ${e.message}`);
-    if (!namesPlaceAndFix(e.message, where)) throw new Error(`the message does not name the file or say what to do: ${e.message}`);
-    if (e.exitCode !== 2) throw new Error(`a configuration error must exit 2, got ${e.exitCode}`);
+    if (!(e instanceof CellvigilError))
+      throw new Error(`a ${(e as Error)?.constructor?.name ?? typeof e} escaped: ${String(e)}`, {
+        cause: e,
+      });
+    if (!codes.includes(e.code))
+      throw new Error(`unexpected code ${e.code}: ${e.message}`, { cause: e });
+    if (!namesPlaceAndFix(e.message, where))
+      throw new Error(`the message does not name the file or say what to do: ${e.message}`, {
+        cause: e,
+      });
+    if (e.exitCode !== 2)
+      throw new Error(`a configuration error must exit 2, got ${e.exitCode}`, { cause: e });
     return 'refused';
   }
 }
@@ -53,11 +72,13 @@ function mutatedText(base: string, json: boolean): fc.Arbitrary<string> {
   const doc: unknown = json ? JSON.parse(base) : parseYaml(base);
   return fc.oneof(
     fc.array(byteMutation, { minLength: 1, maxLength: 4 }).map((ms) => applyAll(base, ms)),
-    fc.tuple(fc.array(docMutation, { minLength: 1, maxLength: 4 }), fc.boolean()).map(([ms, asJson]) => {
-      const d = ms.reduce((x, m) => m(x), doc);
-      if (d === undefined) return '';
-      return asJson || json ? JSON.stringify(d, null, 1) : toYaml(d);
-    }),
+    fc
+      .tuple(fc.array(docMutation, { minLength: 1, maxLength: 4 }), fc.boolean())
+      .map(([ms, asJson]) => {
+        const d = ms.reduce((x, m) => m(x), doc);
+        if (d === undefined) return '';
+        return asJson || json ? JSON.stringify(d, null, 1) : toYaml(d);
+      }),
   );
 }
 
@@ -103,9 +124,12 @@ describe('chemistry files', () => {
     const where = '/home/user/cellvigil/chemistries-fuzz.yaml';
     const t = tally();
     fc.assert(
-      fc.property(mutatedText(excerpt(config('chemistries.yaml'), ['li-ion', 'nimh']), false), (text) => {
-        t.add(outcome(() => parseChemistries(text, where), where, [ErrorCodes.CONFIG_INVALID]));
-      }),
+      fc.property(
+        mutatedText(excerpt(config('chemistries.yaml'), ['li-ion', 'nimh']), false),
+        (text) => {
+          t.add(outcome(() => parseChemistries(text, where), where, [ErrorCodes.CONFIG_INVALID]));
+        },
+      ),
       { numRuns: CHEMISTRY_RUNS },
     );
     console.log(`chemistry files: ${t.accepted} accepted, ${t.refused} refused`);
@@ -138,7 +162,11 @@ function demoCalibration(): Calibration {
       ],
       'gain_offset',
     ).calibration,
-    temperature: fitQuantity('temperature', [{ raw_mean: 2048, nominal: 25.0, reference: 23.8, reference_u: 0.3 }], 'offset').calibration,
+    temperature: fitQuantity(
+      'temperature',
+      [{ raw_mean: 2048, nominal: 25.0, reference: 23.8, reference_u: 0.3 }],
+      'offset',
+    ).calibration,
   });
 }
 
@@ -152,7 +180,8 @@ describe('calibration files', () => {
       mutatedText(base, true),
       fc.array(docMutation, { minLength: 1, maxLength: 3 }).map((ms) => {
         const d = ms.reduce((x, m) => m(x), JSON.parse(base) as unknown);
-        if (d !== null && typeof d === 'object' && !Array.isArray(d)) (d as Record<string, unknown>)['id'] = calibrationId(d as Calibration);
+        if (d !== null && typeof d === 'object' && !Array.isArray(d))
+          (d as Record<string, unknown>)['id'] = calibrationId(d as Calibration);
         return JSON.stringify(d) ?? '';
       }),
     );
@@ -176,10 +205,13 @@ describe('simulator scenario files', () => {
     const file = join(dir, 'sim-scenarios.yaml');
     const t = tally();
     fc.assert(
-      fc.property(mutatedText(excerpt(config('sim-scenarios.yaml'), ['demo', 'quick'], 'scenarios'), false), (text) => {
-        writeFileSync(file, text);
-        t.add(outcome(() => loadScenarios(file), file, [ErrorCodes.CONFIG_INVALID]));
-      }),
+      fc.property(
+        mutatedText(excerpt(config('sim-scenarios.yaml'), ['demo', 'quick'], 'scenarios'), false),
+        (text) => {
+          writeFileSync(file, text);
+          t.add(outcome(() => loadScenarios(file), file, [ErrorCodes.CONFIG_INVALID]));
+        },
+      ),
       { numRuns: SCENARIO_RUNS },
     );
     console.log(`scenario files: ${t.accepted} accepted, ${t.refused} refused`);

@@ -31,7 +31,10 @@ it('the reference CRC gives the catalogue check value', () => {
 });
 
 const frameArb = fc.record({
-  channel: fc.oneof({ weight: 5, arbitrary: fc.constant(0) }, { weight: 1, arbitrary: fc.integer({ min: 0, max: 15 }) }),
+  channel: fc.oneof(
+    { weight: 5, arbitrary: fc.constant(0) },
+    { weight: 1, arbitrary: fc.integer({ min: 0, max: 15 }) },
+  ),
   vRaw: fc.integer({ min: 0, max: 4095 }),
   iRaw: fc.integer({ min: 0, max: 4095 }),
   tRaw: fc.integer({ min: 0, max: 4095 }),
@@ -42,9 +45,15 @@ const itemArb = fc.record({
   frame: frameArb,
   mutations: fc.option(lineMutations, { freq: 2, nil: null }),
   /** Extra host delay before the line: some runs cross the long-gap threshold. */
-  delayMs: fc.oneof({ weight: 9, arbitrary: fc.constant(0) }, { weight: 1, arbitrary: fc.integer({ min: 0, max: 5000 }) }),
+  delayMs: fc.oneof(
+    { weight: 9, arbitrary: fc.constant(0) },
+    { weight: 1, arbitrary: fc.integer({ min: 0, max: 5000 }) },
+  ),
   /** Seq/tick steps: mostly the next frame, sometimes a loss, a repeat or a rig restart. */
-  seqStep: fc.oneof({ weight: 9, arbitrary: fc.constant(1) }, { weight: 1, arbitrary: fc.integer({ min: -3, max: 70_000 }) }),
+  seqStep: fc.oneof(
+    { weight: 9, arbitrary: fc.constant(1) },
+    { weight: 1, arbitrary: fc.integer({ min: -3, max: 70_000 }) },
+  ),
 });
 
 describe('rig lines into the pipeline', () => {
@@ -64,7 +73,12 @@ describe('rig lines into the pipeline', () => {
         for (const item of items) {
           seq += item.seqStep;
           at += FRAME_MS + item.delayMs;
-          const valid = dataLine({ ...item.frame, seq, tickMs: seq * FRAME_MS, loadOn: (item.frame.flags & 1) !== 0 });
+          const valid = dataLine({
+            ...item.frame,
+            seq,
+            tickMs: seq * FRAME_MS,
+            loadOn: (item.frame.flags & 1) !== 0,
+          });
           const line = item.mutations === null ? valid : applyAll(valid, item.mutations);
           const before = snapshot(a.pipeline, a.session);
           const rejectedBefore = a.pipeline.counters.rejected;
@@ -73,9 +87,18 @@ describe('rig lines into the pipeline', () => {
           if (out.kind === 'rejected') {
             rejected++;
             reasons[out.reason] = (reasons[out.reason] ?? 0) + 1;
-            check(snapshot(a.pipeline, a.session) === before, 'a rejected line changed the totals or counters');
-            check(a.pipeline.counters.rejected === rejectedBefore + 1, 'a rejected line was not counted once');
-            check(!(correctlyFramed(line) && out.reason === 'bad_checksum'), 'a correct checksum was refused');
+            check(
+              snapshot(a.pipeline, a.session) === before,
+              'a rejected line changed the totals or counters',
+            );
+            check(
+              a.pipeline.counters.rejected === rejectedBefore + 1,
+              'a rejected line was not counted once',
+            );
+            check(
+              !(correctlyFramed(line) && out.reason === 'bad_checksum'),
+              'a correct checksum was refused',
+            );
           } else {
             check(correctlyFramed(line), 'a line without a correct checksum was accepted');
             b.pipeline.line(line, at, at);
@@ -91,30 +114,68 @@ describe('rig lines into the pipeline', () => {
           const probe = dataLine({ seq: seq + k, tickMs: (seq + k) * FRAME_MS, loadOn: true });
           const pa = a.pipeline.line(probe, at + k * FRAME_MS, 0);
           const pb = b.pipeline.line(probe, at + k * FRAME_MS, 0);
-          check(JSON.stringify(pa) === JSON.stringify(pb), 'the same frame after the run gave different results');
+          check(
+            JSON.stringify(pa) === JSON.stringify(pb),
+            'the same frame after the run gave different results',
+          );
         }
-        check(snapshot(a.pipeline, a.session) === snapshot(b.pipeline, b.session), 'rejected lines changed the end state');
+        check(
+          snapshot(a.pipeline, a.session) === snapshot(b.pipeline, b.session),
+          'rejected lines changed the end state',
+        );
         const { rejected: ra, rejectedBy, ...restA } = a.pipeline.counters;
         const { rejected: rb, rejectedBy: _rbb, ...restB } = b.pipeline.counters;
-        check(JSON.stringify(restA) === JSON.stringify(restB) && rb === 0, 'counters other than rejected differ');
-        check(Object.values(rejectedBy).reduce((x, y) => x + y, 0) === ra, 'rejections by reason do not add up');
-        check(Number.isFinite(a.session.integrator.chargeAh) && Number.isFinite(a.session.integrator.energyWh), 'a total is not finite');
+        check(
+          JSON.stringify(restA) === JSON.stringify(restB) && rb === 0,
+          'counters other than rejected differ',
+        );
+        check(
+          Object.values(rejectedBy).reduce((x, y) => x + y, 0) === ra,
+          'rejections by reason do not add up',
+        );
+        check(
+          Number.isFinite(a.session.integrator.chargeAh) &&
+            Number.isFinite(a.session.integrator.energyWh),
+          'a total is not finite',
+        );
       }),
       { numRuns: LINE_RUNS },
     );
     console.log(`rig lines: ${lines} lines in ${LINE_RUNS} runs, ${rejected} rejected`, reasons);
     // The mutations reach every check of the decoder, not just the checksum.
-    expect(Object.keys(reasons).sort()).toEqual(['bad_checksum', 'field_count', 'no_checksum', 'not_numeric', 'not_text', 'out_of_range', 'overlong', 'unknown_type']);
+    expect(Object.keys(reasons).sort()).toEqual([
+      'bad_checksum',
+      'field_count',
+      'no_checksum',
+      'not_numeric',
+      'not_text',
+      'out_of_range',
+      'overlong',
+      'unknown_type',
+    ]);
   });
 });
 
 const commandArb: fc.Arbitrary<HostCommand> = fc.oneof(
-  fc.record({ command: fc.constant('LOAD' as const), channel: fc.integer({ min: 0, max: 15 }), on: fc.boolean() }),
+  fc.record({
+    command: fc.constant('LOAD' as const),
+    channel: fc.integer({ min: 0, max: 15 }),
+    on: fc.boolean(),
+  }),
   fc.constant<HostCommand>({ command: 'HELLO' }),
   fc.constant<HostCommand>({ command: 'BEAT' }),
 );
 
-const HOST_ERRORS = ['overlong', 'not_text', 'no_checksum', 'bad_checksum', 'unknown_type', 'field_count', 'out_of_range', 'not_numeric'];
+const HOST_ERRORS = [
+  'overlong',
+  'not_text',
+  'no_checksum',
+  'bad_checksum',
+  'unknown_type',
+  'field_count',
+  'out_of_range',
+  'not_numeric',
+];
 
 describe('host command lines into the simulated rig', () => {
   it('every command the host encodes decodes to itself', () => {
@@ -128,8 +189,12 @@ describe('host command lines into the simulated rig', () => {
 
   it(`${HOST_RUNS} mutated and random command lines: no throw, only correct lines in canonical form are obeyed`, () => {
     const lineArb = fc.oneof(
-      fc.tuple(commandArb, lineMutations).map(([c, ms]) => applyAll(encodeCommand(c).trimEnd(), ms)),
-      fc.tuple(commandArb, fc.array(byteMutation, { minLength: 1, maxLength: 4 })).map(([c, ms]) => applyAll(encodeCommand(c).trimEnd(), ms)),
+      fc
+        .tuple(commandArb, lineMutations)
+        .map(([c, ms]) => applyAll(encodeCommand(c).trimEnd(), ms)),
+      fc
+        .tuple(commandArb, fc.array(byteMutation, { minLength: 1, maxLength: 4 }))
+        .map(([c, ms]) => applyAll(encodeCommand(c).trimEnd(), ms)),
       fc.tuple(commandArb, fieldMutation).map(([c, m]) => m(encodeCommand(c).trimEnd())),
       fc.string({ unit: 'binary', maxLength: 240 }),
     );

@@ -9,7 +9,9 @@ import { encodeDataFrame } from '../../src/protocol/codec.js';
 import { Pipeline } from '../../src/run/pipeline.js';
 import { Session } from '../../src/session/session.js';
 
-export const BENCH_RIG_PATH = fileURLToPath(new URL('../../config/rigs/bench-20mohm.yaml', import.meta.url));
+export const BENCH_RIG_PATH = fileURLToPath(
+  new URL('../../config/rigs/bench-20mohm.yaml', import.meta.url),
+);
 export const BENCH_RIG_TEXT = readFileSync(BENCH_RIG_PATH, 'utf8');
 export const BENCH_PROFILE = parseRigProfile(BENCH_RIG_TEXT, BENCH_RIG_PATH);
 export const BENCH_CHAIN = new AnalogChain(BENCH_PROFILE);
@@ -22,7 +24,8 @@ export function referenceCrc16(text: string): number {
   let crc = 0xffff;
   for (const byte of Buffer.from(text, 'latin1')) {
     crc ^= byte << 8;
-    for (let k = 0; k < 8; k++) crc = crc & 0x8000 ? ((crc << 1) ^ 0x1021) & 0xffff : (crc << 1) & 0xffff;
+    for (let k = 0; k < 8; k++)
+      crc = crc & 0x8000 ? ((crc << 1) ^ 0x1021) & 0xffff : (crc << 1) & 0xffff;
   }
   return crc;
 }
@@ -94,7 +97,11 @@ export function namesPlaceAndFix(message: string, where: string): boolean {
   const at = message.indexOf(`(${where}`);
   if (at < 0) return false;
   // The place may quote odd key names that hold ")." themselves: any closing followed by a fix will do.
-  for (let close = message.indexOf('). ', at); close >= 0; close = message.indexOf('). ', close + 1)) {
+  for (
+    let close = message.indexOf('). ', at);
+    close >= 0;
+    close = message.indexOf('). ', close + 1)
+  ) {
     if (FIX.test(message.slice(close + 3))) return true;
   }
   return false;
@@ -104,10 +111,15 @@ export function namesPlaceAndFix(message: string, where: string): boolean {
  * Feeds 12 resting frames (the precheck needs 5 frames over 1 s) and then loaded frames until
  * the session is discharging. Returns the next seq, tick and arrival time.
  */
-export function warmUp(p: Pipeline, session: Session, startMs = 0): { seq: number; tick: number; at: number } {
+export function warmUp(
+  p: Pipeline,
+  session: Session,
+  startMs = 0,
+): { seq: number; tick: number; at: number } {
   let seq = 0;
   let at = startMs;
-  for (; seq < 12; seq++, at += FRAME_MS) p.line(dataLine({ seq, tickMs: seq * FRAME_MS, loadOn: false }), at, at);
+  for (; seq < 12; seq++, at += FRAME_MS)
+    p.line(dataLine({ seq, tickMs: seq * FRAME_MS, loadOn: false }), at, at);
   for (; session.state !== 'discharging'; seq++, at += FRAME_MS) {
     if (seq > 40) throw new Error(`the session did not reach discharging (${session.state})`);
     p.line(dataLine({ seq, tickMs: seq * FRAME_MS, loadOn: true }), at, at);
@@ -139,7 +151,11 @@ export function snapshot(p: Pipeline, s: Session): string {
  * preferring the plain file when a number exists both ways. Checks the header at the top of
  * each file and returns the rows after it.
  */
-export function readRotated(dir: string, prefix: string, header: string): { rows: string[]; files: string[] } {
+export function readRotated(
+  dir: string,
+  prefix: string,
+  header: string,
+): { rows: string[]; files: string[] } {
   const re = new RegExp(`^${prefix}(\\d{4,})\\.csv(\\.gz)?$`);
   const byIndex = new Map<number, string>();
   for (const name of readdirSync(dir)) {

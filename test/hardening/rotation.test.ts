@@ -54,7 +54,10 @@ function bursts(seed: number): () => number {
   };
 }
 
-async function stream(dir: string, compressClosed: boolean): Promise<{ outcomes: CompressOutcome[]; ms: number }> {
+async function stream(
+  dir: string,
+  compressClosed: boolean,
+): Promise<{ outcomes: CompressOutcome[]; ms: number }> {
   const outcomes: CompressOutcome[] = [];
   const log = new LogFile({
     dir,
@@ -104,7 +107,8 @@ describe('rotation with a 2 KiB limit under 100 000 rows', () => {
       // Numbers run 1..N without a hole, each present once.
       expect(files.map((f) => Number(/(\d+)/.exec(f)![1]))).toEqual(files.map((_, i) => i + 1));
       expect(names.length).toBe(files.length);
-      for (const f of files.filter((name) => !name.endsWith('.gz'))) expect(statSync(join(dir, f)).size).toBeLessThanOrEqual(LIMIT);
+      for (const f of files.filter((name) => !name.endsWith('.gz')))
+        expect(statSync(join(dir, f)).size).toBeLessThanOrEqual(LIMIT);
       if (compressClosed) {
         // Every file but the last (still the current one at close) is compressed.
         expect(files.slice(0, -1).every((f) => f.endsWith('.csv.gz'))).toBe(true);
@@ -115,7 +119,9 @@ describe('rotation with a 2 KiB limit under 100 000 rows', () => {
         expect(files.every((f) => f.endsWith('.csv'))).toBe(true);
         expect(outcomes).toEqual([]);
       }
-      console.log(`rotation ${compressClosed ? 'with' : 'without'} compression: ${ROWS} rows, ${files.length} files, ${ms.toFixed(0)} ms`);
+      console.log(
+        `rotation ${compressClosed ? 'with' : 'without'} compression: ${ROWS} rows, ${files.length} files, ${ms.toFixed(0)} ms`,
+      );
     });
   }
 });

@@ -8,9 +8,14 @@ describe('viewer queue', () => {
   it('passes everything through while the viewer keeps up', () => {
     const q = new ViewerQueue();
     const out: string[] = [];
-    for (const [d, s] of [['s1', true], ['st', false], ['s2', true]] as const) {
+    for (const [d, s] of [
+      ['s1', true],
+      ['st', false],
+      ['s2', true],
+    ] as const) {
       q.offer(d, s);
-      for (let step = q.next(0, 0); step && 'send' in step; step = q.next(0, 0)) out.push(step.send);
+      for (let step = q.next(0, 0); step && 'send' in step; step = q.next(0, 0))
+        out.push(step.send);
     }
     expect(out).toEqual(['s1', 'st', 's2']);
     expect(q.coalesced).toBe(0);
@@ -25,7 +30,8 @@ describe('viewer queue', () => {
     expect(q.length).toBe(3);
     expect(q.coalesced).toBe(1998);
     const out: string[] = [];
-    for (let step = q.next(0, 10); step && 'send' in step; step = q.next(0, 10)) out.push(step.send);
+    for (let step = q.next(0, 10); step && 'send' in step; step = q.next(0, 10))
+      out.push(step.send);
     expect(out).toEqual(['s999', 'alarm', 's1999']);
   });
 
@@ -35,10 +41,14 @@ describe('viewer queue', () => {
     expect(q.next(200, 0)).toBeNull();
     expect(q.next(200, 999)).toBeNull();
     expect(q.next(200, 1001)).toMatchObject({ disconnect: expect.stringContaining('not reading') });
-    expect(new ViewerQueue({ maxBufferedBytes: 10 }).next(11, 0)).toMatchObject({ disconnect: expect.any(String) });
+    expect(new ViewerQueue({ maxBufferedBytes: 10 }).next(11, 0)).toMatchObject({
+      disconnect: expect.any(String),
+    });
     const full = new ViewerQueue({ lowWaterBytes: 0, maxQueuedBytes: 1000 });
     for (let i = 0; i < 200; i++) full.offer('state-change', false);
-    expect(full.next(1, 0)).toMatchObject({ disconnect: expect.stringContaining('messages waiting') });
+    expect(full.next(1, 0)).toMatchObject({
+      disconnect: expect.stringContaining('messages waiting'),
+    });
   });
 
   it('catching up in time clears the stall clock', () => {
@@ -91,7 +101,16 @@ describe('a stalled viewer while samples flow fast', () => {
     // Runs by volume, not by time: until the stalled viewer is gone and 100 MB went past it.
     while (Date.now() - started < 100_000) {
       for (let i = 0; i < 400; i++) {
-        const s: LiveSample = { host_s: sent, voltage_V: 4 - sent * 1e-6, current_A: 2, temperature_C: 25, charge_Ah: sent / 3600, energy_Wh: sent / 1000, state: `discharging-${padding}`, load_on: true };
+        const s: LiveSample = {
+          host_s: sent,
+          voltage_V: 4 - sent * 1e-6,
+          current_A: 2,
+          temperature_C: 25,
+          charge_Ah: sent / 3600,
+          energy_Wh: sent / 1000,
+          state: `discharging-${padding}`,
+          load_on: true,
+        };
         rig.hub.sample(s);
         sent++;
         bytesOffered += 900;
@@ -109,7 +128,16 @@ describe('a stalled viewer while samples flow fast', () => {
     }
     const heapAfter = process.memoryUsage().heapUsed;
     // A final marker sample: every healthy viewer must get it.
-    rig.hub.sample({ host_s: 1e9, voltage_V: 3, current_A: 0, temperature_C: 25, charge_Ah: 0, energy_Wh: 0, state: 'ended', load_on: false });
+    rig.hub.sample({
+      host_s: 1e9,
+      voltage_V: 3,
+      current_A: 0,
+      temperature_C: 25,
+      charge_Ah: 0,
+      energy_Wh: 0,
+      state: 'ended',
+      load_on: false,
+    });
     await Promise.all(healthy.map((v) => v.until((x) => x.lastSample?.host_s === 1e9, 10_000)));
 
     console.log(
@@ -118,7 +146,9 @@ describe('a stalled viewer while samples flow fast', () => {
         `healthy viewers got ${healthy.map((v) => v.samplesSeen).join('/')} samples`,
     );
     expect(stalledGone).toBe(true);
-    expect(events.some(([n, d]) => n === 'live_viewer_dropped' && typeof d.why === 'string')).toBe(true);
+    expect(events.some(([n, d]) => n === 'live_viewer_dropped' && typeof d.why === 'string')).toBe(
+      true,
+    );
     // Bounded: never past the cut-off bound, and at most one coalesced sample plus nothing else waiting.
     expect(maxBuffered).toBeLessThanOrEqual(MAX);
     expect(maxQueued).toBeLessThanOrEqual(1);

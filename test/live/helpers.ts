@@ -4,7 +4,11 @@ import { join } from 'node:path';
 import { WebSocket, type ClientOptions } from 'ws';
 import { LiveHub } from '../../src/live/live-hub.js';
 import type { LiveRunInfo, LiveSample, ServerMessage } from '../../src/live/live-types.js';
-import { startLiveServer, type LiveServer, type LiveServerOptions } from '../../src/live/live-server.js';
+import {
+  startLiveServer,
+  type LiveServer,
+  type LiveServerOptions,
+} from '../../src/live/live-server.js';
 import { loadTokens } from '../../src/live/tokens.js';
 
 /** Demo run (our own scenario: a 2-cell Li-ion pack on a 4 Ω load). */
@@ -35,7 +39,16 @@ export function* scriptedDischarge(n: number, dtS = 1, currentA = 1.9): Generato
       ah += (currentA * dtS) / 3600;
       wh += (currentA * v * dtS) / 3600;
     }
-    yield { host_s: i * dtS, voltage_V: v, current_A: currentA, temperature_C: 24 + 6 * f, charge_Ah: ah, energy_Wh: wh, state: 'discharging', load_on: true };
+    yield {
+      host_s: i * dtS,
+      voltage_V: v,
+      current_A: currentA,
+      temperature_C: 24 + 6 * f,
+      charge_Ah: ah,
+      energy_Wh: wh,
+      state: 'discharging',
+      load_on: true,
+    };
   }
 }
 
@@ -52,7 +65,10 @@ export interface Rig {
 }
 
 /** A hub with a run set and a daemon-like control handler, served on a free loopback port. */
-export async function startRig(extra: Partial<LiveServerOptions> = {}, hub = new LiveHub({ historyPoints: 200 })): Promise<Rig> {
+export async function startRig(
+  extra: Partial<LiveServerOptions> = {},
+  hub = new LiveHub({ historyPoints: 200 }),
+): Promise<Rig> {
   const { tokens } = loadTokens(tempHome());
   const accepted: Array<{ type: string }> = [];
   hub.setRun(DEMO_RUN);
@@ -61,7 +77,12 @@ export async function startRig(extra: Partial<LiveServerOptions> = {}, hub = new
     if (c.type === 'set-cutoff') hub.cutoffChanged(c.cutoff_V);
     return { ok: true };
   });
-  const server = await startLiveServer({ hub, listen: '127.0.0.1:0', tokenStore: tokens, ...extra });
+  const server = await startLiveServer({
+    hub,
+    listen: '127.0.0.1:0',
+    tokenStore: tokens,
+    ...extra,
+  });
   return { hub, server, tokens, accepted };
 }
 
@@ -75,7 +96,11 @@ export class Viewer {
   lastSample: Extract<ServerMessage, { type: 'sample' }> | null = null;
 
   /** With `retainSamples` false only the newest sample is kept (for long, fast streams). */
-  constructor(url: string, opts: ClientOptions = {}, private readonly retainSamples = true) {
+  constructor(
+    url: string,
+    opts: ClientOptions = {},
+    private readonly retainSamples = true,
+  ) {
     this.ws = new WebSocket(url, opts);
     this.ws.on('message', (d) => {
       const m = JSON.parse(d.toString()) as ServerMessage;
@@ -104,7 +129,9 @@ export class Viewer {
       if (this.ws.readyState === WebSocket.OPEN) return resolve();
       this.ws.once('open', () => resolve());
       this.ws.once('error', reject);
-      this.ws.once('unexpected-response', (_req, res) => reject(new Error(`HTTP ${res.statusCode}`)));
+      this.ws.once('unexpected-response', (_req, res) =>
+        reject(new Error(`HTTP ${res.statusCode}`)),
+      );
     });
   }
 
@@ -116,7 +143,10 @@ export class Viewer {
   async until(pred: (v: Viewer) => boolean, ms = 5000): Promise<void> {
     const end = Date.now() + ms;
     while (!pred(this)) {
-      if (Date.now() > end) throw new Error(`condition not met in ${ms} ms; got ${this.messages.map((m) => m.type).join(',')}`);
+      if (Date.now() > end)
+        throw new Error(
+          `condition not met in ${ms} ms; got ${this.messages.map((m) => m.type).join(',')}`,
+        );
       await new Promise<void>((r) => {
         this.waiters.push(r);
         setTimeout(r, 50);
@@ -138,7 +168,11 @@ export function wsUrl(server: LiveServer, query = ''): string {
 }
 
 /** Feeds samples as a rig does, one per event-loop turn with a gap (the server sends at most one sample per 10 ms). */
-export async function paced(hub: LiveHub, samples: Iterable<LiveSample>, gapMs = 15): Promise<void> {
+export async function paced(
+  hub: LiveHub,
+  samples: Iterable<LiveSample>,
+  gapMs = 15,
+): Promise<void> {
   for (const s of samples) {
     hub.sample(s);
     await new Promise((r) => setTimeout(r, gapMs));

@@ -10,20 +10,24 @@ const pt = (t: number): HistoryPoint => [t, 0, 0, null, 0, 0];
 describe('downsampled history', () => {
   it('never holds more than its capacity, keeps the first sample, and spreads points evenly over any run length', () => {
     fc.assert(
-      fc.property(fc.integer({ min: 4, max: 300 }), fc.integer({ min: 1, max: 20_000 }), (cap, n) => {
-        const h = new DownsampledHistory(cap);
-        for (let i = 0; i < n; i++) h.add(pt(i));
-        const ts = h.snapshot().map((p) => p[0]);
-        expect(ts.length).toBeLessThanOrEqual(cap);
-        expect(ts[0]).toBe(0);
-        // Every kept sample index is a multiple of the stride: the spacing is uniform.
-        for (const t of ts) expect(t % h.stride).toBe(0);
-        for (let i = 1; i < ts.length; i++) expect(ts[i]! - ts[i - 1]!).toBe(h.stride);
-        // And nothing newer than one stride is missing at the end.
-        expect(n - 1 - ts[ts.length - 1]!).toBeLessThan(h.stride);
-        // At least half the capacity is used once the run is longer than it.
-        if (n >= cap) expect(ts.length).toBeGreaterThanOrEqual(Math.floor(cap / 2));
-      }),
+      fc.property(
+        fc.integer({ min: 4, max: 300 }),
+        fc.integer({ min: 1, max: 20_000 }),
+        (cap, n) => {
+          const h = new DownsampledHistory(cap);
+          for (let i = 0; i < n; i++) h.add(pt(i));
+          const ts = h.snapshot().map((p) => p[0]);
+          expect(ts.length).toBeLessThanOrEqual(cap);
+          expect(ts[0]).toBe(0);
+          // Every kept sample index is a multiple of the stride: the spacing is uniform.
+          for (const t of ts) expect(t % h.stride).toBe(0);
+          for (let i = 1; i < ts.length; i++) expect(ts[i]! - ts[i - 1]!).toBe(h.stride);
+          // And nothing newer than one stride is missing at the end.
+          expect(n - 1 - ts[ts.length - 1]!).toBeLessThan(h.stride);
+          // At least half the capacity is used once the run is longer than it.
+          if (n >= cap) expect(ts.length).toBeGreaterThanOrEqual(Math.floor(cap / 2));
+        },
+      ),
       { numRuns: 200 },
     );
   });
@@ -43,11 +47,17 @@ describe('time-to-cutoff estimate', () => {
   it('fits the same slope as an independent least-squares routine (simple-statistics linearRegression)', () => {
     fc.assert(
       fc.property(
-        fc.array(fc.double({ min: -0.02, max: 0.02, noNaN: true }), { minLength: 40, maxLength: 200 }),
+        fc.array(fc.double({ min: -0.02, max: 0.02, noNaN: true }), {
+          minLength: 40,
+          maxLength: 200,
+        }),
         fc.double({ min: -1e-3, max: 1e-4, noNaN: true }),
         (noise, slope) => {
           const e = new CutoffEstimator({ windowS: 1e5, maxPoints: 1e5, minSpanS: 0 });
-          const pairs: Array<[number, number]> = noise.map((n, i) => [i * 2, 4 + slope * i * 2 + n]);
+          const pairs: Array<[number, number]> = noise.map((n, i) => [
+            i * 2,
+            4 + slope * i * 2 + n,
+          ]);
           for (const [t, v] of pairs) e.add(t, v, true);
           const ref = linearRegression(pairs);
           const fit = e.fit()!;

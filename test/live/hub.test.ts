@@ -24,8 +24,17 @@ describe('live hub', () => {
     expect(hub.control({ type: 'mark', note: 'fan on' })).toEqual({ ok: true });
     hub.result({ end_reason: 'cutoff', capacity_Ah: 0.158, energy_Wh: 1.2, duration_s: 300 });
     const types = new Set(seen.map((m) => m.type));
-    expect([...types].sort()).toEqual(['alarm', 'cutoff', 'hello', 'mark', 'result', 'sample', 'state']);
-    for (const m of [...seen, hub.hello()]) expect(checkServerMessage(JSON.parse(JSON.stringify(m)))).toMatchObject({ ok: true });
+    expect([...types].sort()).toEqual([
+      'alarm',
+      'cutoff',
+      'hello',
+      'mark',
+      'result',
+      'sample',
+      'state',
+    ]);
+    for (const m of [...seen, hub.hello()])
+      expect(checkServerMessage(JSON.parse(JSON.stringify(m)))).toMatchObject({ ok: true });
   });
 
   it('hello carries the run so far: bounded history ending at the newest sample, events, alarms, cutoff', () => {
@@ -40,7 +49,9 @@ describe('live hub', () => {
     expect(h.history.points[h.history.points.length - 1]![0]).toBe(5000);
     expect(h.status.sample?.host_s).toBe(5000);
     expect(h.status.cutoff_V).toBe(DEMO_RUN.cutoff_V);
-    expect(h.events).toEqual([{ kind: 'state', host_s: 0, from: 'starting', to: 'discharging', why: 'load confirmed' }]);
+    expect(h.events).toEqual([
+      { kind: 'state', host_s: 0, from: 'starting', to: 'discharging', why: 'load confirmed' },
+    ]);
     expect(h.status.time_to_cutoff_s).not.toBeNull();
   });
 
@@ -73,9 +84,12 @@ describe('live hub', () => {
     expect(asked).toEqual([{ type: 'set-cutoff', cutoff_V: DEMO_RUN.floor_V }]);
   });
 
-  it('refuses control before a run, without a daemon handler, and after the run ended; passes on the daemon\'s refusal', () => {
+  it("refuses control before a run, without a daemon handler, and after the run ended; passes on the daemon's refusal", () => {
     const hub = new LiveHub();
-    expect(hub.control({ type: 'stop' })).toMatchObject({ ok: false, error: 'no run is active yet' });
+    expect(hub.control({ type: 'stop' })).toMatchObject({
+      ok: false,
+      error: 'no run is active yet',
+    });
     hub.setRun(DEMO_RUN);
     expect(hub.control({ type: 'stop' })).toMatchObject({ ok: false });
     hub.onControl(() => ({ ok: false, error: 'busy' }));
@@ -101,7 +115,9 @@ describe('live hub', () => {
 describe('control message schema', () => {
   it('accepts the three control messages and refuses anything else with a reason', () => {
     expect(checkClientMessage({ type: 'stop', v: 1, token: 't' }).ok).toBe(true);
-    expect(checkClientMessage({ type: 'set-cutoff', v: 1, token: 't', cutoff_V: 6, id: 'a1' }).ok).toBe(true);
+    expect(
+      checkClientMessage({ type: 'set-cutoff', v: 1, token: 't', cutoff_V: 6, id: 'a1' }).ok,
+    ).toBe(true);
     expect(checkClientMessage({ type: 'mark', v: 1, token: 't', note: 'x' }).ok).toBe(true);
     const bad: unknown[] = [
       null,

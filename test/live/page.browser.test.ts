@@ -10,7 +10,11 @@ const CHROMIUM = '/usr/bin/chromium';
 const skip = !existsSync(CHROMIUM) && !process.env.CI;
 
 /** Pixels of the canvas in `selector` close to the colour (r, g, b): evidence a series was drawn. */
-function countColour(page: Page, selector: string, [r, g, b]: [number, number, number]): Promise<number> {
+function countColour(
+  page: Page,
+  selector: string,
+  [r, g, b]: [number, number, number],
+): Promise<number> {
   // Runs in the page; a string, since the project compiles without the DOM library.
   return page.evaluate<number>(`(() => {
     const c = document.querySelector(${JSON.stringify(selector)});
@@ -32,7 +36,16 @@ describe.skipIf(skip)('live page in headless Chromium', () => {
     browser = await chromium.launch({
       executablePath: CHROMIUM,
       // launch() gives every browser a fresh temporary profile (user-data-dir) of its own.
-      args: ['--headless', '--no-sandbox', '--disable-gpu', '--disable-quic', '--no-first-run', '--disable-background-networking', '--disable-component-update', '--disable-sync'],
+      args: [
+        '--headless',
+        '--no-sandbox',
+        '--disable-gpu',
+        '--disable-quic',
+        '--no-first-run',
+        '--disable-background-networking',
+        '--disable-component-update',
+        '--disable-sync',
+      ],
     });
     rig = await startRig({}, new LiveHub({ historyPoints: 400 }));
   });
@@ -57,7 +70,9 @@ describe.skipIf(skip)('live page in headless Chromium', () => {
     await expect(page.textContent('#run-title')).resolves.toContain('shed-pack-b');
     // The history from hello is drawn: the voltage series' colour is on the voltage chart's canvas.
     await page.waitForSelector('#chart-voltage canvas');
-    await expect.poll(() => countColour(page, '#chart-voltage canvas', [108, 182, 255]), { timeout: 5000 }).toBeGreaterThan(200);
+    await expect
+      .poll(() => countColour(page, '#chart-voltage canvas', [108, 182, 255]), { timeout: 5000 })
+      .toBeGreaterThan(200);
 
     // Samples stream in and move the readouts.
     for (const s of script.slice(800)) rig.hub.sample(s);
@@ -82,14 +97,26 @@ describe.skipIf(skip)('live page in headless Chromium', () => {
     expect(rig.accepted).toHaveLength(1);
 
     // An alarm stands out; the end of the run is shown with its figures.
-    rig.hub.alarm({ host_s: 5995, kind: 'over_temperature', detail: '60.4 °C is above the limit of 60 °C' });
+    rig.hub.alarm({
+      host_s: 5995,
+      kind: 'over_temperature',
+      detail: '60.4 °C is above the limit of 60 °C',
+    });
     await page.waitForSelector('#alarm-banner:not([hidden])');
     await expect(page.textContent('#alarm-title')).resolves.toContain('over_temperature');
     rig.hub.state({ host_s: 5995, from: 'discharging', to: 'ended', why: 'over temperature' });
-    rig.hub.result({ end_reason: 'over_temperature', capacity_Ah: last.charge_Ah, energy_Wh: last.energy_Wh, duration_s: last.host_s, end_voltage_V: last.voltage_V });
+    rig.hub.result({
+      end_reason: 'over_temperature',
+      capacity_Ah: last.charge_Ah,
+      energy_Wh: last.energy_Wh,
+      duration_s: last.host_s,
+      end_voltage_V: last.voltage_V,
+    });
     await page.waitForSelector('#result-banner:not([hidden])');
     await expect(page.textContent('#result-title')).resolves.toBe('Run ended: over temperature');
-    await expect(page.textContent('#result-text')).resolves.toContain(`${(last.charge_Ah * 1000).toFixed(0)} mAh`);
+    await expect(page.textContent('#result-text')).resolves.toContain(
+      `${(last.charge_Ah * 1000).toFixed(0)} mAh`,
+    );
     await expect(page.getAttribute('#result-banner', 'data-severity')).resolves.toBe('limit');
     await expect(page.isDisabled('#stop-btn')).resolves.toBe(true);
     await expect.poll(() => page.textContent('#state')).toBe('ended');
@@ -98,7 +125,9 @@ describe.skipIf(skip)('live page in headless Chromium', () => {
     // Readable on a phone: nothing wider than the screen.
     await page.setViewportSize({ width: 390, height: 844 });
     await page.waitForTimeout(300);
-    const overflow = await page.evaluate<number>('document.documentElement.scrollWidth - window.innerWidth');
+    const overflow = await page.evaluate<number>(
+      'document.documentElement.scrollWidth - window.innerWidth',
+    );
     expect(overflow).toBeLessThanOrEqual(0);
     await page.screenshot({ path: 'test-artifacts/live-page-phone.png', fullPage: true });
     expect(problems).toEqual([]);
@@ -108,17 +137,29 @@ describe.skipIf(skip)('live page in headless Chromium', () => {
   it('reconnects by itself after the daemon restarts and shows the new run', async () => {
     const page = await browser.newPage();
     await page.goto(rig.server.url);
-    await expect.poll(() => page.getAttribute('#link', 'data-link'), { timeout: 15_000 }).toBe('live');
+    await expect
+      .poll(() => page.getAttribute('#link', 'data-link'), { timeout: 15_000 })
+      .toBe('live');
     const port = rig.server.port;
     await rig.server.close();
-    await expect.poll(() => page.getAttribute('#link', 'data-link'), { timeout: 15_000 }).toBe('down');
+    await expect
+      .poll(() => page.getAttribute('#link', 'data-link'), { timeout: 15_000 })
+      .toBe('down');
 
     const hub = new LiveHub();
     hub.setRun({ ...DEMO_RUN, label: 'second-run' });
     hub.state({ host_s: 0, from: 'precheck', to: 'starting', why: 'resting voltage fine' });
-    rig = { ...rig, hub, server: await startLiveServer({ hub, listen: `127.0.0.1:${port}`, tokenStore: rig.tokens }) };
-    await expect.poll(() => page.textContent('#run-title'), { timeout: 15_000 }).toMatch(/^second-run/);
-    await expect.poll(() => page.getAttribute('#link', 'data-link'), { timeout: 15_000 }).toBe('live');
+    rig = {
+      ...rig,
+      hub,
+      server: await startLiveServer({ hub, listen: `127.0.0.1:${port}`, tokenStore: rig.tokens }),
+    };
+    await expect
+      .poll(() => page.textContent('#run-title'), { timeout: 15_000 })
+      .toMatch(/^second-run/);
+    await expect
+      .poll(() => page.getAttribute('#link', 'data-link'), { timeout: 15_000 })
+      .toBe('live');
     await expect(page.isHidden('#result-banner')).resolves.toBe(true);
     await expect.poll(() => page.textContent('#state')).toBe('starting');
     await page.close();

@@ -6,7 +6,15 @@ import { hostAllowed, isLoopbackHost, originAllowed, parseListen } from '../../s
 import { LiveHub } from '../../src/live/live-hub.js';
 import { startLiveServer, type LiveServer } from '../../src/live/live-server.js';
 import { configDir, loadTokens, tokenMatches } from '../../src/live/tokens.js';
-import { DEMO_RUN, scriptedDischarge, startRig, tempHome, Viewer, wsUrl, type Rig } from './helpers.js';
+import {
+  DEMO_RUN,
+  scriptedDischarge,
+  startRig,
+  tempHome,
+  Viewer,
+  wsUrl,
+  type Rig,
+} from './helpers.js';
 
 let rig: Rig | null = null;
 let extra: LiveServer | null = null;
@@ -65,7 +73,13 @@ describe('tokens', () => {
     const home = tempHome();
     const { path } = loadTokens(home);
     chmodSync(path, 0o644);
-    expect(() => loadTokens(home)).toThrow(expect.objectContaining({ code: 'CV_TOKEN_FILE', exitCode: 2, message: expect.stringContaining(path) }));
+    expect(() => loadTokens(home)).toThrow(
+      expect.objectContaining({
+        code: 'CV_TOKEN_FILE',
+        exitCode: 2,
+        message: expect.stringContaining(path),
+      }),
+    );
     const other = join(tempHome(), 'x');
     mkdirSync(other, { mode: 0o700 });
     writeFileSync(join(other, 'tokens.json'), '{"v":1,"control":"short"}', { mode: 0o600 });
@@ -96,15 +110,18 @@ describe('addresses and origins', () => {
     expect(parseListen('[::1]:9000')).toEqual({ host: '::1', port: 9000 });
     expect(parseListen('127.0.0.1')).toEqual({ host: '127.0.0.1', port: 8507 });
     expect(parseListen(':9001')).toEqual({ host: '127.0.0.1', port: 9001 });
-    for (const bad of ['a:b:c', 'host:99999', 'h:-1']) expect(() => parseListen(bad)).toThrow(expect.objectContaining({ code: 'CV_USAGE' }));
+    for (const bad of ['a:b:c', 'host:99999', 'h:-1'])
+      expect(() => parseListen(bad)).toThrow(expect.objectContaining({ code: 'CV_USAGE' }));
   });
 
   it('knows loopback from the rest', () => {
-    for (const h of ['127.0.0.1', '127.3.2.1', '::1', '[::1]', 'localhost']) expect(isLoopbackHost(h)).toBe(true);
-    for (const h of ['0.0.0.0', '::', '192.168.1.20', '10.0.0.1', 'example.org']) expect(isLoopbackHost(h)).toBe(false);
+    for (const h of ['127.0.0.1', '127.3.2.1', '::1', '[::1]', 'localhost'])
+      expect(isLoopbackHost(h)).toBe(true);
+    for (const h of ['0.0.0.0', '::', '192.168.1.20', '10.0.0.1', 'example.org'])
+      expect(isLoopbackHost(h)).toBe(false);
   });
 
-  it('allows no Origin, the page\'s own origin and listed ones; refuses the rest', () => {
+  it("allows no Origin, the page's own origin and listed ones; refuses the rest", () => {
     expect(originAllowed(undefined, '127.0.0.1:8507')).toBe(true);
     expect(originAllowed('http://127.0.0.1:8507', '127.0.0.1:8507')).toBe(true);
     expect(originAllowed('http://[::1]:8507', '[::1]:8507')).toBe(true);
@@ -112,7 +129,9 @@ describe('addresses and origins', () => {
     expect(originAllowed('http://evil.example', '127.0.0.1:8507')).toBe(false);
     expect(originAllowed('null', '127.0.0.1:8507')).toBe(false);
     expect(originAllowed('file://', '127.0.0.1:8507')).toBe(false);
-    expect(originAllowed('https://proxy.home', '127.0.0.1:8507', ['https://proxy.home'])).toBe(true);
+    expect(originAllowed('https://proxy.home', '127.0.0.1:8507', ['https://proxy.home'])).toBe(
+      true,
+    );
     expect(hostAllowed('evil.example:8507', true)).toBe(false);
     expect(hostAllowed('localhost:8507', true)).toBe(true);
     expect(hostAllowed('192.168.1.20:8507', false)).toBe(true);
@@ -153,13 +172,21 @@ describe('live server: who may do what', () => {
     v.send({ type: 'mark', v: 1, id: 'm', token, note: 'lid opened' });
     v.send({ type: 'stop', v: 1, id: 's', token });
     await v.until((x) => x.of('ack').length === 3 && x.of('error').length === 1);
-    expect(v.of('error')[0]).toMatchObject({ id: 'low', code: 'refused', error: expect.stringContaining('floor') });
+    expect(v.of('error')[0]).toMatchObject({
+      id: 'low',
+      code: 'refused',
+      error: expect.stringContaining('floor'),
+    });
     expect(v.of('ack').map((a) => [a.id, a.request])).toEqual([
       ['ok', 'set-cutoff'],
       ['m', 'mark'],
       ['s', 'stop'],
     ]);
-    expect(rig.accepted).toEqual([{ type: 'set-cutoff', cutoff_V: 6.3 }, { type: 'mark', note: 'lid opened' }, { type: 'stop' }]);
+    expect(rig.accepted).toEqual([
+      { type: 'set-cutoff', cutoff_V: 6.3 },
+      { type: 'mark', note: 'lid opened' },
+      { type: 'stop' },
+    ]);
     // Other viewers see the effects, not the replies.
     await other.until((x) => x.of('cutoff').length === 1 && x.of('mark').length === 1);
     expect(other.of('cutoff')[0]!.cutoff_V).toBe(6.3);
@@ -187,7 +214,12 @@ describe('live server: who may do what', () => {
     expect(await upgradeStatus(url, { Origin: `http://127.0.0.1:${port + 1}` })).toBe(403);
     expect(await upgradeStatus(url, { Origin: `http://127.0.0.1:${port}` })).toBe(101);
     expect(await upgradeStatus(url)).toBe(101);
-    expect(await upgradeStatus(url, { Host: `rebound.example:${port}`, Origin: `http://rebound.example:${port}` })).toBe(403);
+    expect(
+      await upgradeStatus(url, {
+        Host: `rebound.example:${port}`,
+        Origin: `http://rebound.example:${port}`,
+      }),
+    ).toBe(403);
     expect(await rawGet(port, '/api/state', { Host: `rebound.example:${port}` })).toBe(403);
     expect(await upgradeStatus(url.replace('/live', '/other'))).toBe(404);
   });
@@ -195,7 +227,13 @@ describe('live server: who may do what', () => {
   it('refuses to start beyond loopback without a viewer token', async () => {
     const hub = new LiveHub();
     const { tokens } = loadTokens(tempHome());
-    await expect(startLiveServer({ hub, listen: '0.0.0.0:0', tokenStore: { control: tokens.control, viewer: null } })).rejects.toMatchObject({
+    await expect(
+      startLiveServer({
+        hub,
+        listen: '0.0.0.0:0',
+        tokenStore: { control: tokens.control, viewer: null },
+      }),
+    ).rejects.toMatchObject({
       code: 'CV_LIVE_UNPROTECTED',
       exitCode: 2,
       message: expect.stringMatching(/viewer token.*--listen 0\.0\.0\.0:0/s),
@@ -212,7 +250,10 @@ describe('live server: who may do what', () => {
     expect((await fetch(`${base}/`)).status).toBe(401);
     expect((await fetch(`${base}/api/state?token=wrong`)).status).toBe(401);
     expect((await fetch(`${base}/?token=${tokens.viewer}`)).status).toBe(200);
-    expect((await fetch(`${base}/api/state`, { headers: { Authorization: `Bearer ${tokens.viewer}` } })).status).toBe(200);
+    expect(
+      (await fetch(`${base}/api/state`, { headers: { Authorization: `Bearer ${tokens.viewer}` } }))
+        .status,
+    ).toBe(200);
     expect((await fetch(`${base}/api/state?token=${tokens.control}`)).status).toBe(200);
     expect((await fetch(`${base}/assets/uplot.js`)).status).toBe(200);
     const ws = `ws://127.0.0.1:${extra.port}/live`;

@@ -3,7 +3,15 @@ import { createRequire } from 'node:module';
 import { dirname, join } from 'node:path';
 import { afterEach, describe, expect, it } from 'vitest';
 import { checkServerMessage } from '../../src/live/message-schemas.js';
-import { DEMO_RUN, paced, scriptedDischarge, startRig, Viewer, wsUrl, type Rig } from './helpers.js';
+import {
+  DEMO_RUN,
+  paced,
+  scriptedDischarge,
+  startRig,
+  Viewer,
+  wsUrl,
+  type Rig,
+} from './helpers.js';
 
 let rig: Rig | null = null;
 const viewers: Viewer[] = [];
@@ -34,7 +42,11 @@ describe('live server: the stream', () => {
 
     for (const s of script.slice(600)) rig.hub.sample(s);
     rig.hub.state({ host_s: 999, from: 'discharging', to: 'stopping', why: 'cutoff reached' });
-    rig.hub.alarm({ host_s: 999, kind: 'over_temperature', detail: '61.0 °C is above the limit of 60 °C' });
+    rig.hub.alarm({
+      host_s: 999,
+      kind: 'over_temperature',
+      detail: '61.0 °C is above the limit of 60 °C',
+    });
     rig.hub.cutoffChanged(6.1);
     rig.hub.result({ end_reason: 'cutoff', capacity_Ah: 0.527, energy_Wh: 3.9, duration_s: 999 });
     await v.until((x) => x.of('result').length === 1);
@@ -43,7 +55,13 @@ describe('live server: the stream', () => {
     const samples = v.of('sample').map((s) => s.host_s);
     expect(samples.at(-1)).toBe(999);
     expect(samples.length).toBeLessThan(10);
-    expect(v.messages.slice(-5).map((m) => m.type)).toEqual(['sample', 'state', 'alarm', 'cutoff', 'result']);
+    expect(v.messages.slice(-5).map((m) => m.type)).toEqual([
+      'sample',
+      'state',
+      'alarm',
+      'cutoff',
+      'result',
+    ]);
     for (const m of v.messages) expect(checkServerMessage(m)).toMatchObject({ ok: true });
   });
 
@@ -83,7 +101,10 @@ describe('live server: the stream', () => {
     // Offline page: nothing is loaded from another host.
     expect(html).not.toMatch(/(src|href)="(https?:)?\/\//);
 
-    const uplotDist = join(dirname(createRequire(import.meta.url).resolve('uplot/package.json')), 'dist');
+    const uplotDist = join(
+      dirname(createRequire(import.meta.url).resolve('uplot/package.json')),
+      'dist',
+    );
     const js = Buffer.from(await (await fetch(`${rig.server.url}assets/uplot.js`)).arrayBuffer());
     expect(js.equals(readFileSync(join(uplotDist, 'uPlot.iife.min.js')))).toBe(true);
     expect((await fetch(`${rig.server.url}assets/uplot.css`)).status).toBe(200);

@@ -2,7 +2,14 @@ import { afterEach, describe, expect, it, vi } from 'vitest';
 import yargs from 'yargs';
 import { watchCommand } from '../../src/cli/commands/watch.js';
 import { watchLive } from '../../src/live/watch-client.js';
-import { applyMessage, emptyView, exitCodeForResult, liveSocketUrl, statusBlock, statusLine } from '../../src/live/watch-view.js';
+import {
+  applyMessage,
+  emptyView,
+  exitCodeForResult,
+  liveSocketUrl,
+  statusBlock,
+  statusLine,
+} from '../../src/live/watch-view.js';
 import { LiveHub } from '../../src/live/live-hub.js';
 import { startLiveServer } from '../../src/live/live-server.js';
 import { loadTokens } from '../../src/live/tokens.js';
@@ -27,14 +34,21 @@ describe('watch: pure parts', () => {
     expect(() => liveSocketUrl('ftp://h/')).toThrow(expect.objectContaining({ code: 'CV_USAGE' }));
   });
 
-  it('maps the end reason to the run\'s exit code (DESIGN.md "Commands": 0 normal, 3 safety limit, 2 refused)', () => {
+  it("maps the end reason to the run's exit code (exit codes of the README: 0 normal, 3 safety limit, 2 refused)", () => {
     expect(exitCodeForResult({ end_reason: 'cutoff' })).toBe(0);
     expect(exitCodeForResult({ end_reason: 'stopped' })).toBe(0);
     expect(exitCodeForResult({ end_reason: 'over_temperature' })).toBe(3);
     expect(exitCodeForResult({ end_reason: 'link_lost' })).toBe(3);
     expect(exitCodeForResult({ end_reason: 'fault' })).toBe(3);
-    expect(exitCodeForResult({ end_reason: 'refused', end_detail: 'resting voltage above the chemistry\'s highest' })).toBe(2);
-    expect(exitCodeForResult({ end_reason: 'refused', end_detail: 'rig_silent: no frame in 5 s' })).toBe(1);
+    expect(
+      exitCodeForResult({
+        end_reason: 'refused',
+        end_detail: "resting voltage above the chemistry's highest",
+      }),
+    ).toBe(2);
+    expect(
+      exitCodeForResult({ end_reason: 'refused', end_detail: 'rig_silent: no frame in 5 s' }),
+    ).toBe(1);
     expect(exitCodeForResult({ end_reason: 'exploded' })).toBe(1);
     expect(exitCodeForResult({})).toBe(1);
   });
@@ -50,7 +64,9 @@ describe('watch: pure parts', () => {
     const block = statusBlock(view).join('\n');
     expect(block).toMatch(/shed-pack-b · 2 × li-ion/);
     expect(block).toMatch(/\d\.\d{3} V {2}1\.900 A {2}1900 mAh {2}\d+\.\d\d Wh {2}30\.0 °C/);
-    expect(block).toMatch(/state discharging {2}elapsed 1:00:00 {2}cutoff 6\.000 V {2}to cutoff \d+:\d\d:\d\d/);
+    expect(block).toMatch(
+      /state discharging {2}elapsed 1:00:00 {2}cutoff 6\.000 V {2}to cutoff \d+:\d\d:\d\d/,
+    );
     expect(block.match(/^! /gm)).toHaveLength(3);
     expect(block).toMatch(/k4: d/);
     expect(statusLine(view)).toMatch(/^1:00:00 {2}discharging .* last alarm k4$/);
@@ -63,16 +79,28 @@ describe('watch: against a live server', () => {
     const port = rig.server.port;
     const got: ServerMessage[] = [];
     const links: string[] = [];
-    const client = watchLive({ url: `ws://127.0.0.1:${port}/live`, onMessage: (m) => got.push(m), onLink: (t) => links.push(t), backoffMinMs: 50, backoffMaxMs: 200 });
+    const client = watchLive({
+      url: `ws://127.0.0.1:${port}/live`,
+      onMessage: (m) => got.push(m),
+      onLink: (t) => links.push(t),
+      backoffMinMs: 50,
+      backoffMaxMs: 200,
+    });
     await vi.waitFor(() => expect(got.filter((m) => m.type === 'hello')).toHaveLength(1));
     await rig.server.close();
     await vi.waitFor(() => expect(links.some((l) => /retrying/.test(l))).toBe(true));
 
     const hub = new LiveHub();
     hub.setRun({ ...DEMO_RUN, label: 'after-restart' });
-    const again = await startLiveServer({ hub, listen: `127.0.0.1:${port}`, tokenStore: rig.tokens });
+    const again = await startLiveServer({
+      hub,
+      listen: `127.0.0.1:${port}`,
+      tokenStore: rig.tokens,
+    });
     rig = { ...rig, server: again, hub };
-    await vi.waitFor(() => expect(got.filter((m) => m.type === 'hello')).toHaveLength(2), { timeout: 5000 });
+    await vi.waitFor(() => expect(got.filter((m) => m.type === 'hello')).toHaveLength(2), {
+      timeout: 5000,
+    });
     hub.result({ end_reason: 'over_temperature' });
     await vi.waitFor(() => expect(got.at(-1)?.type).toBe('result'));
     client.stop();
@@ -84,32 +112,49 @@ describe('watch: against a live server', () => {
     const { tokens } = loadTokens(tempHome());
     const server = await startLiveServer({ hub, listen: '0.0.0.0:0', tokenStore: tokens });
     try {
-      const client = watchLive({ url: `ws://127.0.0.1:${server.port}/live?token=wrong`, onMessage: () => {}, onLink: () => {} });
-      await expect(client.done).rejects.toMatchObject({ code: 'CV_WATCH_REFUSED', exitCode: 2, message: expect.stringContaining('401') });
+      const client = watchLive({
+        url: `ws://127.0.0.1:${server.port}/live?token=wrong`,
+        onMessage: () => {},
+        onLink: () => {},
+      });
+      await expect(client.done).rejects.toMatchObject({
+        code: 'CV_WATCH_REFUSED',
+        exitCode: 2,
+        message: expect.stringContaining('401'),
+      });
     } finally {
       await server.close();
     }
   });
 
-  it('the watch command prints one line per update when not on a terminal and exits with the run\'s code', async () => {
+  it("the watch command prints one line per update when not on a terminal and exits with the run's code", async () => {
     rig = await startRig();
     const lines: string[] = [];
-    const spy = vi.spyOn(process.stdout, 'write').mockImplementation((chunk: string | Uint8Array) => {
-      lines.push(String(chunk));
-      return true;
-    });
+    const spy = vi
+      .spyOn(process.stdout, 'write')
+      .mockImplementation((chunk: string | Uint8Array) => {
+        lines.push(String(chunk));
+        return true;
+      });
     try {
-      const run = yargs(['watch', rig.server.url, '--interval', '0']).command(watchCommand).strict().parseAsync();
+      const run = yargs(['watch', rig.server.url, '--interval', '0'])
+        .command(watchCommand)
+        .strict()
+        .parseAsync();
       await vi.waitFor(() => expect(rig!.server.viewers()).toHaveLength(1));
       await paced(rig.hub, scriptedDischarge(5));
-      rig.hub.alarm({ host_s: 4, kind: 'over_temperature', detail: '61.0 °C is above the limit of 60 °C' });
+      rig.hub.alarm({
+        host_s: 4,
+        kind: 'over_temperature',
+        detail: '61.0 °C is above the limit of 60 °C',
+      });
       rig.hub.result({ end_reason: 'over_temperature', capacity_Ah: 0.002 });
       await run;
     } finally {
       spy.mockRestore();
     }
     const text = lines.join('');
-    expect(text).not.toMatch(/\x1b\[/);
+    expect(text).not.toContain(`${String.fromCharCode(27)}[`);
     expect(text.trim().split('\n').length).toBeGreaterThanOrEqual(7);
     expect(text).toMatch(/last alarm over_temperature/);
     expect(text).toMatch(/ended: over_temperature {2}2 mAh/);

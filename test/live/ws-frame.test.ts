@@ -9,7 +9,10 @@ import { textFrame } from '../../src/live/ws-frame.js';
 // and closes the connection on any malformed one.
 describe('textFrame', () => {
   it('frames texts of every length class (7-bit, 16-bit and 64-bit lengths) that a WebSocket client reads back exactly', async () => {
-    const texts = [...[0, 1, 125, 126, 127, 65535, 65536, 70_000].map((n) => 'x'.repeat(n)), 'cell at 25 °C – ok'];
+    const texts = [
+      ...[0, 1, 125, 126, 127, 65535, 65536, 70_000].map((n) => 'x'.repeat(n)),
+      'cell at 25 °C – ok',
+    ];
     const server = createServer();
     const wss = new WebSocketServer({ noServer: true });
     server.on('upgrade', (req, socket: Duplex, head) => {

@@ -9,12 +9,16 @@ import { referenceLine } from './reference-crc.js';
  * pin down (decimal without sign, point or leading zero), using split and regular expressions
  * only. The product's decoder must agree with it on every line, accepted or not.
  */
-function referenceData(payload: string, adcBits: number): { ok: true; values: number[] } | { ok: false; reason: string } {
+function referenceData(
+  payload: string,
+  adcBits: number,
+): { ok: true; values: number[] } | { ok: false; reason: string } {
   const f = payload.split(',');
   if (f.length !== 8) return { ok: false, reason: 'field_count' };
   const max = [15, 65535, 2 ** 32 - 1, 2 ** adcBits - 1, 2 ** adcBits - 1, 2 ** adcBits - 1];
   const nums = f.slice(1, 7);
-  if (nums.some((x) => !/^(0|[1-9][0-9]{0,9})$/.test(x)) || !/^[0-9A-Fa-f]{1,2}$/.test(f[7]!)) return { ok: false, reason: 'not_numeric' };
+  if (nums.some((x) => !/^(0|[1-9][0-9]{0,9})$/.test(x)) || !/^[0-9A-Fa-f]{1,2}$/.test(f[7]!))
+    return { ok: false, reason: 'not_numeric' };
   const values = nums.map(Number);
   if (values.some((v, k) => v > max[k]!)) return { ok: false, reason: 'out_of_range' };
   return { ok: true, values: [...values, parseInt(f[7]!, 16)] };
@@ -23,13 +27,45 @@ function referenceData(payload: string, adcBits: number): { ok: true; values: nu
 const digits = fc.stringMatching(/^[0-9]{1,12}$/);
 const field = fc.oneof(
   { weight: 6, arbitrary: fc.integer({ min: 0, max: 70000 }).map(String) },
-  { weight: 2, arbitrary: fc.oneof(fc.constant('4294967295'), fc.constant('4294967296'), fc.constant('0'), fc.constant('00'), digits) },
-  { weight: 1, arbitrary: fc.oneof(fc.constant(''), fc.constant('-1'), fc.constant('+1'), fc.constant('1.5'), fc.constant(' 7'), fc.constant('x')) },
+  {
+    weight: 2,
+    arbitrary: fc.oneof(
+      fc.constant('4294967295'),
+      fc.constant('4294967296'),
+      fc.constant('0'),
+      fc.constant('00'),
+      digits,
+    ),
+  },
+  {
+    weight: 1,
+    arbitrary: fc.oneof(
+      fc.constant(''),
+      fc.constant('-1'),
+      fc.constant('+1'),
+      fc.constant('1.5'),
+      fc.constant(' 7'),
+      fc.constant('x'),
+    ),
+  },
 );
-const flags = fc.oneof(fc.stringMatching(/^[0-9A-Fa-f]{1,2}$/), fc.constantFrom('', '001', 'G', '0x', ' 1'));
+const flags = fc.oneof(
+  fc.stringMatching(/^[0-9A-Fa-f]{1,2}$/),
+  fc.constantFrom('', '001', 'G', '0x', ' 1'),
+);
 const payload = fc.oneof(
-  { weight: 8, arbitrary: fc.tuple(fc.array(field, { minLength: 6, maxLength: 6 }), flags).map(([nums, fl]) => ['D', ...nums, fl].join(',')) },
-  { weight: 1, arbitrary: fc.array(fc.oneof(field, flags), { minLength: 0, maxLength: 9 }).map((xs) => ['D', ...xs].join(',')) },
+  {
+    weight: 8,
+    arbitrary: fc
+      .tuple(fc.array(field, { minLength: 6, maxLength: 6 }), flags)
+      .map(([nums, fl]) => ['D', ...nums, fl].join(',')),
+  },
+  {
+    weight: 1,
+    arbitrary: fc
+      .array(fc.oneof(field, flags), { minLength: 0, maxLength: 9 })
+      .map((xs) => ['D', ...xs].join(',')),
+  },
 );
 
 describe('data frames: the decoder agrees with a decoder written from docs/protocol.md', () => {
@@ -44,7 +80,9 @@ describe('data frames: the decoder agrees with a decoder written from docs/proto
           expect(got.ok).toBe(true);
           if (!got.ok || got.message.kind !== 'data') return;
           const m = got.message;
-          expect([m.channel, m.seq, m.tickMs, m.vRaw, m.iRaw, m.tRaw, m.flags]).toEqual(want.values);
+          expect([m.channel, m.seq, m.tickMs, m.vRaw, m.iRaw, m.tRaw, m.flags]).toEqual(
+            want.values,
+          );
         } else {
           expect(got).toMatchObject({ ok: false, reason: want.reason });
         }

@@ -46,8 +46,14 @@ describe('codec: valid rig lines decode', () => {
       ok: true,
       message: { kind: 'hello', rigId: 'bench-a', firmware: '1.4.2', adcBits: 12, channels: 2 },
     });
-    expect(decodeRigLine(referenceLine('A,LOAD,0,1'))).toEqual({ ok: true, message: { kind: 'ack', command: 'LOAD', args: ['0', '1'] } });
-    expect(decodeRigLine(referenceLine('A,BEAT'))).toEqual({ ok: true, message: { kind: 'ack', command: 'BEAT', args: [] } });
+    expect(decodeRigLine(referenceLine('A,LOAD,0,1'))).toEqual({
+      ok: true,
+      message: { kind: 'ack', command: 'LOAD', args: ['0', '1'] },
+    });
+    expect(decodeRigLine(referenceLine('A,BEAT'))).toEqual({
+      ok: true,
+      message: { kind: 'ack', command: 'BEAT', args: [] },
+    });
     expect(decodeRigLine(referenceLine('E,7,watchdog cut the load, no heartbeat'))).toEqual({
       ok: true,
       message: { kind: 'rig-error', code: '7', text: 'watchdog cut the load, no heartbeat' },
@@ -69,7 +75,15 @@ describe('codec: valid rig lines decode', () => {
 
   it('the widest values in range are accepted: ch 15, seq 65535, tick 2^32 - 1, counts 2^bits - 1', () => {
     const f = data(d([15, 65535, 4294967295, 4095, 4095, 4095, 'FF']), 12);
-    expect([f.channel, f.seq, f.tickMs, f.vRaw, f.iRaw, f.tRaw, f.flags]).toEqual([15, 65535, 2 ** 32 - 1, 4095, 4095, 4095, 255]);
+    expect([f.channel, f.seq, f.tickMs, f.vRaw, f.iRaw, f.tRaw, f.flags]).toEqual([
+      15,
+      65535,
+      2 ** 32 - 1,
+      4095,
+      4095,
+      4095,
+      255,
+    ]);
     expect(data(d([0, 0, 0, 65535, 0, 0, '0'])).vRaw).toBe(65535); // default: 16-bit counts
   });
 
@@ -155,8 +169,12 @@ describe('codec: host commands', () => {
   ];
 
   it('encodes the lines the protocol document shows, checksummed with the reference CRC', () => {
-    expect(encodeCommand({ command: 'LOAD', channel: 2, on: true })).toBe(`${referenceLine('C,LOAD,2,1')}\n`);
-    expect(encodeCommand({ command: 'LOAD', channel: 0, on: false })).toBe(`${referenceLine('C,LOAD,0,0')}\n`);
+    expect(encodeCommand({ command: 'LOAD', channel: 2, on: true })).toBe(
+      `${referenceLine('C,LOAD,2,1')}\n`,
+    );
+    expect(encodeCommand({ command: 'LOAD', channel: 0, on: false })).toBe(
+      `${referenceLine('C,LOAD,0,0')}\n`,
+    );
     expect(encodeCommand({ command: 'HELLO' })).toBe(`${referenceLine('C,HELLO')}\n`);
     expect(encodeCommand({ command: 'BEAT' })).toBe(`${referenceLine('C,BEAT')}\n`);
   });
@@ -182,7 +200,15 @@ describe('codec: host commands', () => {
   });
 
   it('encodeDataFrame round-trips through decodeRigLine', () => {
-    const f = { channel: 15, seq: 65535, tickMs: 2 ** 32 - 1, vRaw: 4095, iRaw: 0, tRaw: 17, flags: 0x02 };
+    const f = {
+      channel: 15,
+      seq: 65535,
+      tickMs: 2 ** 32 - 1,
+      vRaw: 4095,
+      iRaw: 0,
+      tRaw: 17,
+      flags: 0x02,
+    };
     const line = encodeDataFrame(f);
     expect(line).toBe(`${referenceLine('D,15,65535,4294967295,4095,0,17,02')}\n`);
     expect(data(line.trimEnd(), 12)).toEqual({ kind: 'data', ...f });

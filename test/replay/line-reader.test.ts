@@ -6,7 +6,12 @@ import { createInterface } from 'node:readline';
 import { gzipSync } from 'node:zlib';
 import fc from 'fast-check';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
-import { READ_CHUNK_BYTES, readLineBatches, readLines, type TextLine } from '../../src/replay/line-reader.js';
+import {
+  READ_CHUNK_BYTES,
+  readLineBatches,
+  readLines,
+  type TextLine,
+} from '../../src/replay/line-reader.js';
 
 // Reference: node:readline with crlfDelay Infinity (Node's own line splitter, which the reader
 // used to be built on): the same lines, numbered from 1, every one but the last terminated,
@@ -23,7 +28,8 @@ afterAll(async () => {
 
 async function reference(path: string, bytes: Buffer): Promise<TextLine[]> {
   const out: TextLine[] = [];
-  for await (const text of createInterface({ input: createReadStream(path), crlfDelay: Infinity })) out.push({ text, number: out.length + 1, terminated: true });
+  for await (const text of createInterface({ input: createReadStream(path), crlfDelay: Infinity }))
+    out.push({ text, number: out.length + 1, terminated: true });
   const last = out.at(-1);
   if (last) last.terminated = bytes[bytes.length - 1] === 10;
   return out;
@@ -43,7 +49,9 @@ const piece = fc.oneof(
   fc.constantFrom('\n', '\r\n', '\r', '\r\r\n', '\n\n', 'é', '€', '😀', ',', '"', 'x'),
   fc.string({ maxLength: 30 }),
   fc.integer({ min: 1, max: READ_CHUNK_BYTES + 6000 }).map((n) => 'y'.repeat(n)),
-  fc.constant('12.345,2026-11-14T07:30:00.050Z,0,1,50,2450,80,2100,01,4.02000,0.12000,24.50,0.0000017,0.0000068,discharging,none'),
+  fc.constant(
+    '12.345,2026-11-14T07:30:00.050Z,0,1,50,2450,80,2100,01,4.02000,0.12000,24.50,0.0000017,0.0000068,discharging,none',
+  ),
 );
 
 describe('line reader', () => {
@@ -83,13 +91,17 @@ describe('line reader', () => {
   it('a reader stopped early closes its file, plain or compressed', async () => {
     // Linux lists a process's open files in /proc/self/fd.
     const openFiles = (): number => readdirSync('/proc/self/fd').length;
-    const text = Array.from({ length: 40_000 }, (_, i) => `row ${i},${'z'.repeat(i % 31)}`).join('\n');
+    const text = Array.from({ length: 40_000 }, (_, i) => `row ${i},${'z'.repeat(i % 31)}`).join(
+      '\n',
+    );
     const plain = join(dir, 'early.txt');
     await writeFile(plain, text);
     await writeFile(`${plain}.gz`, gzipSync(text));
     const before = openFiles();
     for (let k = 0; k < 40; k++) {
-      for await (const batch of readLineBatches(k % 2 === 0 ? plain : `${plain}.gz`, { gzip: k % 2 === 1 })) {
+      for await (const batch of readLineBatches(k % 2 === 0 ? plain : `${plain}.gz`, {
+        gzip: k % 2 === 1,
+      })) {
         expect(batch.length).toBeGreaterThan(0);
         break;
       }
@@ -99,7 +111,9 @@ describe('line reader', () => {
 
   it('gives the same lines in batches as one by one, and counts every byte once', async () => {
     const path = join(dir, 'batches.txt');
-    const text = Array.from({ length: 20_000 }, (_, i) => `row ${i},${'z'.repeat(i % 97)}`).join('\n');
+    const text = Array.from({ length: 20_000 }, (_, i) => `row ${i},${'z'.repeat(i % 97)}`).join(
+      '\n',
+    );
     await writeFile(path, text);
     let bytes = 0;
     const batched: TextLine[] = [];

@@ -19,7 +19,11 @@ let copies = 0;
 beforeAll(async () => {
   root = await mkdtemp(join(tmpdir(), 'cv-replay-'));
   // About 150 rows a file: the run spreads over a dozen rotated files.
-  run = await simulateRun({ dir: join(root, 'run'), scenario: demoScenario(), rotateBytes: 20_000 });
+  run = await simulateRun({
+    dir: join(root, 'run'),
+    scenario: demoScenario(),
+    rotateBytes: 20_000,
+  });
 }, 60_000);
 
 afterAll(async () => {
@@ -79,7 +83,21 @@ describe('sample rows', () => {
       calibrationId: '0123456789abcdef',
     };
     const r = parseSampleLine(formatSampleRow(row));
-    expect(r).toMatchObject({ hostS: 12.345, channel: 3, seq: 65535, tickMs: 4294967295, vRaw: 2605, iRaw: 1081, tRaw: 4095, flags: 3, volts: 4.19751, amps: 1.43717, chargeAh: 0.0000185, state: 'discharging', calibrationId: '0123456789abcdef' });
+    expect(r).toMatchObject({
+      hostS: 12.345,
+      channel: 3,
+      seq: 65535,
+      tickMs: 4294967295,
+      vRaw: 2605,
+      iRaw: 1081,
+      tRaw: 4095,
+      flags: 3,
+      volts: 4.19751,
+      amps: 1.43717,
+      chargeAh: 0.0000185,
+      state: 'discharging',
+      calibrationId: '0123456789abcdef',
+    });
     expect(r.celsius).toBeNaN();
   });
 });
@@ -131,23 +149,35 @@ describe('a run folder', () => {
     // The process died in the middle of writing a row.
     const cut = text.slice(0, text.length - 40);
     await writeFile(last, cut);
-    const events = (await readFile(join(dir, 'events.jsonl'), 'utf8')).split('\n').filter((l) => l !== '' && !l.includes('"run_ended"'));
+    const events = (await readFile(join(dir, 'events.jsonl'), 'utf8'))
+      .split('\n')
+      .filter((l) => l !== '' && !l.includes('"run_ended"'));
     await writeFile(join(dir, 'events.jsonl'), `${events.join('\n')}\n{"host_s":99.1,"wall_t`);
     const cuts: string[] = [];
     const opened = await openRunFolder(dir);
-    for await (const _ of readRunSamples(opened, { onCutLine: (c) => cuts.push(`${c.file}:${c.line}`) }));
-    for await (const _ of readRunEvents(opened, { onCutLine: (c) => cuts.push(`${c.file}:${c.line}`) }));
+    for await (const _ of readRunSamples(opened, {
+      onCutLine: (c) => cuts.push(`${c.file}:${c.line}`),
+    }));
+    for await (const _ of readRunEvents(opened, {
+      onCutLine: (c) => cuts.push(`${c.file}:${c.line}`),
+    }));
     const lineCount = cut.split('\n').length;
     expect(cuts).toEqual([`${files.at(-1)}:${lineCount}`, `events.jsonl:${events.length + 1}`]);
 
     const out = await reportRuns({ folders: [dir], generatedAt: '2026-12-03T10:00:00Z' });
     expect(out.runs[0]!.resultPath).toBe(join(dir, 'result.json'));
-    const written = JSON.parse(await readFile(join(dir, 'result.json'), 'utf8')) as { end_reason: string; capacity_Ah: number; recomputed: { cut_lines: number } };
+    const written = JSON.parse(await readFile(join(dir, 'result.json'), 'utf8')) as {
+      end_reason: string;
+      capacity_Ah: number;
+      recomputed: { cut_lines: number };
+    };
     expect(written.end_reason).toBe('interrupted');
     expect(written.recomputed.cut_lines).toBe(2);
     expect(written.capacity_Ah).toBeLessThan(run.result.capacity_Ah);
     expect(written.capacity_Ah).toBeGreaterThan(run.result.capacity_Ah * 0.95);
-    expect(out.runs[0]!.figures.notes.join(' ')).toContain(`${files.at(-1)} line ${lineCount} was cut off`);
+    expect(out.runs[0]!.figures.notes.join(' ')).toContain(
+      `${files.at(-1)} line ${lineCount} was cut off`,
+    );
   });
 
   it('a damaged row inside the run is an error naming the file, the line and the column', async () => {
@@ -168,7 +198,10 @@ describe('a run folder', () => {
     const lines = (await readFile(join(dir, names[1]!), 'utf8')).split('\n');
     lines[57] = lines[57]!.replace(/,01,/, ',zz,');
     await writeFile(join(dir, names[1]!), lines.join('\n'));
-    const before = (await readFile(join(dir, names[0]!), 'utf8')).split('\n').filter((l) => l !== '').slice(1);
+    const before = (await readFile(join(dir, names[0]!), 'utf8'))
+      .split('\n')
+      .filter((l) => l !== '')
+      .slice(1);
     const got: SampleRecord[] = [];
     const e = await failure(
       (async () => {
@@ -187,7 +220,10 @@ describe('a run folder', () => {
     const dir = await copy();
     const name = (await sampleFiles(dir))[0]!;
     const text = await readFile(join(dir, name), 'utf8');
-    await writeFile(join(dir, name), text.replace(SAMPLE_HEADER, SAMPLE_HEADER.replace('v_raw', 'volts_raw')));
+    await writeFile(
+      join(dir, name),
+      text.replace(SAMPLE_HEADER, SAMPLE_HEADER.replace('v_raw', 'volts_raw')),
+    );
     const e = await failure(all(dir));
     expect(e.message).toContain(`${name} line 1`);
   });
@@ -213,7 +249,9 @@ describe('a run folder', () => {
   it('the manifest is checked: its keys, and the copies it holds by their own rules', async () => {
     const dir = await copy();
     const path = join(dir, 'manifest.json');
-    const m = JSON.parse(await readFile(path, 'utf8')) as Record<string, unknown> & { rig: { profile: { adc: { bits: number } } } };
+    const m = JSON.parse(await readFile(path, 'utf8')) as Record<string, unknown> & {
+      rig: { profile: { adc: { bits: number } } };
+    };
     await writeFile(path, JSON.stringify({ ...m, cells: 0 }));
     expect((await failure(openRunFolder(dir))).message).toContain('cells must be >= 1');
     m.rig.profile.adc.bits = 4;

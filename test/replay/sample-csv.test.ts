@@ -1,6 +1,10 @@
 import fc from 'fast-check';
 import { describe, expect, it } from 'vitest';
-import { parseSampleLine, SampleLineError, type SampleRecord } from '../../src/replay/sample-csv.js';
+import {
+  parseSampleLine,
+  SampleLineError,
+  type SampleRecord,
+} from '../../src/replay/sample-csv.js';
 
 /**
  * A sample-row reader written from docs/run-folder.md (the columns and their formats) with
@@ -24,8 +28,10 @@ function reference(line: string): SampleRecord | null {
   const f = rfc4180Fields(line);
   if (f === null || f.length !== 16) return null;
   const dec = /^-?(\d+(\.\d*)?|\.\d+)([eE][+-]?\d+)?$/;
-  const num = (x: string, empty: boolean): number | null => (x === '' && empty ? Number.NaN : dec.test(x) ? Number(x) : null);
-  const whole = (x: string, max: number): number | null => (/^\d+$/.test(x) && Number(x) <= max ? Number(x) : null);
+  const num = (x: string, empty: boolean): number | null =>
+    x === '' && empty ? Number.NaN : dec.test(x) ? Number(x) : null;
+  const whole = (x: string, max: number): number | null =>
+    /^\d+$/.test(x) && Number(x) <= max ? Number(x) : null;
   const r = {
     hostS: num(f[0]!, false),
     wallTime: Number.isFinite(Date.parse(f[1]!)) ? f[1]! : null,
@@ -41,35 +47,107 @@ function reference(line: string): SampleRecord | null {
     celsius: num(f[11]!, true),
     chargeAh: num(f[12]!, false),
     energyWh: num(f[13]!, false),
-    state: ['waiting', 'precheck', 'starting', 'discharging', 'stopping', 'ended'].includes(f[14]!) ? f[14]! : null,
+    state: ['waiting', 'precheck', 'starting', 'discharging', 'stopping', 'ended'].includes(f[14]!)
+      ? f[14]!
+      : null,
     calibrationId: /^(none|[0-9a-f]{16})$/.test(f[15]!) ? f[15]! : null,
   };
   return Object.values(r).some((v) => v === null) ? null : (r as SampleRecord);
 }
 
 /** Mostly well-formed values, now and then an odd one: most rows pass, so values get compared. */
-const mostly = <T>(good: fc.Arbitrary<T>, odd: fc.Arbitrary<T>): fc.Arbitrary<T> => fc.oneof({ weight: 12, arbitrary: good }, { weight: 1, arbitrary: odd });
+const mostly = <T>(good: fc.Arbitrary<T>, odd: fc.Arbitrary<T>): fc.Arbitrary<T> =>
+  fc.oneof({ weight: 12, arbitrary: good }, { weight: 1, arbitrary: odd });
 const decimalText = mostly(
   fc.oneof(
-    fc.double({ min: -50, max: 1e6, noNaN: true }).chain((x) => fc.constantFrom(x.toFixed(3), x.toFixed(5), x.toFixed(7), String(x))),
+    fc
+      .double({ min: -50, max: 1e6, noNaN: true })
+      .chain((x) => fc.constantFrom(x.toFixed(3), x.toFixed(5), x.toFixed(7), String(x))),
     fc.stringMatching(/^-?[0-9]{1,12}\.[0-9]{1,8}$/),
   ),
-  fc.oneof(fc.stringMatching(/^-?[0-9]{1,20}(\.[0-9]{0,20})?$/), fc.constantFrom('5.', '.5', '-.5', '1.2.3', '1e3', '-0', '-0.0', '007.50', '', '-', '.', 'nan', '0x10', ' 1', '1,5')),
+  fc.oneof(
+    fc.stringMatching(/^-?[0-9]{1,20}(\.[0-9]{0,20})?$/),
+    fc.constantFrom(
+      '5.',
+      '.5',
+      '-.5',
+      '1.2.3',
+      '1e3',
+      '-0',
+      '-0.0',
+      '007.50',
+      '',
+      '-',
+      '.',
+      'nan',
+      '0x10',
+      ' 1',
+      '1,5',
+    ),
+  ),
 );
 const wall = mostly(
   fc.integer({ min: 0, max: 253_402_300_799_999 }).map((ms) => new Date(ms).toISOString()),
-  fc.constantFrom('2026-02-30T10:00:00.000Z', '2026-11-14T24:00:00.000Z', '2026-11-14T23:59:60.000Z', '2026-11-14T07:30:00Z', '2026-11-14 07:30:00.000Z', '2026-13-01T00:00:00.000Z', '+012026-01-01T00:00:00.000Z', 'yesterday', ''),
+  fc.constantFrom(
+    '2026-02-30T10:00:00.000Z',
+    '2026-11-14T24:00:00.000Z',
+    '2026-11-14T23:59:60.000Z',
+    '2026-11-14T07:30:00Z',
+    '2026-11-14 07:30:00.000Z',
+    '2026-13-01T00:00:00.000Z',
+    '+012026-01-01T00:00:00.000Z',
+    'yesterday',
+    '',
+  ),
 );
-const whole = mostly(fc.integer({ min: 0, max: 4095 }).map(String), fc.oneof(fc.stringMatching(/^[0-9]{1,14}$/), fc.constantFrom('', '-1', '1.0', '4294967295', '4294967296', '16777216')));
-const flags = mostly(fc.stringMatching(/^[0-9A-Fa-f]{1,2}$/), fc.constantFrom('', '001', 'g', ' 1'));
-const state = mostly(fc.constantFrom('waiting', 'precheck', 'starting', 'discharging', 'stopping', 'ended'), fc.constantFrom('Ended', 'discharge', ''));
-const id = mostly(fc.oneof(fc.constant('none'), fc.stringMatching(/^[0-9a-f]{16}$/)), fc.constantFrom('None', '0123456789ABCDEF', '0123', ''));
-const row = fc.tuple(decimalText, wall, whole, whole, whole, whole, whole, whole, flags, decimalText, decimalText, decimalText, decimalText, decimalText, state, id);
+const whole = mostly(
+  fc.integer({ min: 0, max: 4095 }).map(String),
+  fc.oneof(
+    fc.stringMatching(/^[0-9]{1,14}$/),
+    fc.constantFrom('', '-1', '1.0', '4294967295', '4294967296', '16777216'),
+  ),
+);
+const flags = mostly(
+  fc.stringMatching(/^[0-9A-Fa-f]{1,2}$/),
+  fc.constantFrom('', '001', 'g', ' 1'),
+);
+const state = mostly(
+  fc.constantFrom('waiting', 'precheck', 'starting', 'discharging', 'stopping', 'ended'),
+  fc.constantFrom('Ended', 'discharge', ''),
+);
+const id = mostly(
+  fc.oneof(fc.constant('none'), fc.stringMatching(/^[0-9a-f]{16}$/)),
+  fc.constantFrom('None', '0123456789ABCDEF', '0123', ''),
+);
+const row = fc.tuple(
+  decimalText,
+  wall,
+  whole,
+  whole,
+  whole,
+  whole,
+  whole,
+  whole,
+  flags,
+  decimalText,
+  decimalText,
+  decimalText,
+  decimalText,
+  decimalText,
+  state,
+  id,
+);
 const line = fc.oneof(
   { weight: 9, arbitrary: row.map((f) => f.join(',')) },
-  { weight: 1, arbitrary: fc.tuple(row, fc.integer({ min: 0, max: 15 }), fc.constantFrom('', 'x', '"1"', '1,2')).map(([f, k, extra]) => f.map((x, j) => (j === k ? extra : x)).join(',')) },
+  {
+    weight: 1,
+    arbitrary: fc
+      .tuple(row, fc.integer({ min: 0, max: 15 }), fc.constantFrom('', 'x', '"1"', '1,2'))
+      .map(([f, k, extra]) => f.map((x, j) => (j === k ? extra : x)).join(',')),
+  },
 );
-const goodRow = (hostS: string, wallTime: string): string => `${hostS},${wallTime},0,1,50,2450,80,2100,01,4.02000,,24.50,0.0000017,0.0000068,discharging,none`;
+const goodRow = (hostS: string, wallTime: string): string =>
+  `${hostS},${wallTime},0,1,50,2450,80,2100,01,4.02000,,24.50,0.0000017,0.0000068,discharging,none`;
 
 describe('sample rows: the reader agrees with a reader written from docs/run-folder.md', () => {
   it('on rows as the daemon writes them and on every kind of damaged field', () => {
@@ -85,16 +163,24 @@ describe('sample rows: the reader agrees with a reader written from docs/run-fol
 
   it('on decimals of 16 to 20 digits, which a double cannot build digit by digit', () => {
     fc.assert(
-      fc.property(fc.stringMatching(/^[0-9]{16,20}$/), fc.integer({ min: 1, max: 15 }), (digits, p) => {
-        const text = goodRow(`${digits.slice(0, p)}.${digits.slice(p)}`, '2026-11-14T07:30:00.050Z');
-        expect(parseSampleLine(text)).toEqual(reference(text));
-      }),
+      fc.property(
+        fc.stringMatching(/^[0-9]{16,20}$/),
+        fc.integer({ min: 1, max: 15 }),
+        (digits, p) => {
+          const text = goodRow(
+            `${digits.slice(0, p)}.${digits.slice(p)}`,
+            '2026-11-14T07:30:00.050Z',
+          );
+          expect(parseSampleLine(text)).toEqual(reference(text));
+        },
+      ),
       { numRuns: 2000 },
     );
   });
 
   it('an empty or changed calibration id is judged afresh, whatever the row before had', () => {
-    const row = (id: string): string => `${goodRow('1.000', '2026-11-14T07:30:00.050Z').replace(/,none$/, ',')}${id}`;
+    const row = (id: string): string =>
+      `${goodRow('1.000', '2026-11-14T07:30:00.050Z').replace(/,none$/, ',')}${id}`;
     expect(parseSampleLine(row('none')).calibrationId).toBe('none');
     expect(() => parseSampleLine(row(''))).toThrow(SampleLineError);
     expect(() => parseSampleLine(row('nonE'))).toThrow(SampleLineError);
@@ -103,8 +189,12 @@ describe('sample rows: the reader agrees with a reader written from docs/run-fol
   });
 
   it('a valid hour 24:00 does not make 24:30 valid', () => {
-    expect(parseSampleLine(goodRow('1.000', '2026-11-14T24:00:00.000Z')).wallTime).toBe('2026-11-14T24:00:00.000Z');
-    expect(() => parseSampleLine(goodRow('1.050', '2026-11-14T24:30:00.000Z'))).toThrow(SampleLineError);
+    expect(parseSampleLine(goodRow('1.000', '2026-11-14T24:00:00.000Z')).wallTime).toBe(
+      '2026-11-14T24:00:00.000Z',
+    );
+    expect(() => parseSampleLine(goodRow('1.050', '2026-11-14T24:30:00.000Z'))).toThrow(
+      SampleLineError,
+    );
   });
 
   it('on a day of rows across an hour change, the calibration id changing mid-way', () => {

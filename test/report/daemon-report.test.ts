@@ -10,10 +10,22 @@ import { startRun } from '../../src/run/daemon.js';
 import type { RunResult } from '../../src/run/result.js';
 
 describe('report on a folder written by `cellvigil run`', () => {
-  it('recomputes the daemon\'s own figures from the raw counts', async () => {
+  it("recomputes the daemon's own figures from the raw counts", async () => {
     const runs = mkdtempSync(join(tmpdir(), 'cv-daemon-report-'));
     const sink = new PassThrough().resume();
-    const run = await startRun({ sim: 'quick', speed: 40, runs, listen: null, once: true, rotateBytes: 8192, linkTimeoutS: 60, channel: 0 }, { out: sink, err: sink });
+    const run = await startRun(
+      {
+        sim: 'quick',
+        speed: 40,
+        runs,
+        listen: null,
+        once: true,
+        rotateBytes: 8192,
+        linkTimeoutS: 60,
+        channel: 0,
+      },
+      { out: sink, err: sink },
+    );
     const outcome = await run.done;
     expect(outcome.exitCode).toBe(0);
     const live = JSON.parse(await readFile(join(run.folder, 'result.json'), 'utf8')) as RunResult;
@@ -38,13 +50,24 @@ describe('report on a scheduled run written by `cellvigil run`', () => {
     const runs = mkdtempSync(join(tmpdir(), 'cv-daemon-pulsed-'));
     const sink = new PassThrough().resume();
     const run = await startRun(
-      { sim: 'quick', speed: 40, runs, listen: null, once: true, rotateBytes: 1 << 24, linkTimeoutS: 60, channel: 0, schedule: 'on 4 s every 6 s' },
+      {
+        sim: 'quick',
+        speed: 40,
+        runs,
+        listen: null,
+        once: true,
+        rotateBytes: 1 << 24,
+        linkTimeoutS: 60,
+        channel: 0,
+        schedule: 'on 4 s every 6 s',
+      },
       { out: sink, err: sink },
     );
     const outcome = await run.done;
     expect(outcome.exitCode).toBe(0);
     const live = JSON.parse(await readFile(join(run.folder, 'result.json'), 'utf8')) as RunResult;
-    const f = (await reportRuns({ folders: [run.folder], generatedAt: '2026-12-03T10:00:00Z' })).runs[0]!.figures;
+    const f = (await reportRuns({ folders: [run.folder], generatedAt: '2026-12-03T10:00:00Z' }))
+      .runs[0]!.figures;
     expect(f.result.capacity_Ah).toBeCloseTo(live.capacity_Ah, 5);
     expect(f.result.duration_s).toBeCloseTo(live.duration_s, 1);
     expect(f.result.schedule).toBe(live.schedule);
@@ -59,7 +82,9 @@ describe('report on a scheduled run written by `cellvigil run`', () => {
 });
 
 describe('progress bar', () => {
-  const stream = (isTTY: boolean): { isTTY: boolean; columns: number; text: string; write(s: string): boolean } => ({
+  const stream = (
+    isTTY: boolean,
+  ): { isTTY: boolean; columns: number; text: string; write(s: string): boolean } => ({
     isTTY,
     columns: 80,
     text: '',

@@ -15,11 +15,34 @@ const skip = !existsSync(CHROMIUM) && !process.env.CI;
 /** A 0.5 Ah NiMH cell on a 12 Ω load: about 0.2 It for a little over 5 h (demo numbers). */
 const nimh = demoScenario({
   name: 'nimh-aaa',
-  cell: { chemistry: 'nimh', cells: 1, capacity_Ah: 0.54, initial_soc: 1, internal_ohm_per_cell: 0.06 },
+  cell: {
+    chemistry: 'nimh',
+    cells: 1,
+    capacity_Ah: 0.54,
+    initial_soc: 1,
+    internal_ohm_per_cell: 0.06,
+  },
   load: { load_ohm: 11.9, mosfet_ohm: 0.015 },
-  thermal: { ambient_C: 21, heat_capacity_J_per_K: 10, conductance_W_per_K: 0.05, load_heat_fraction: 0, extra_heat_W: 0 },
-  rig: { rig_id: 'simrig-n2', firmware: 'sim-1.0', clock_error: -0.03, frame_period_ms: 1000, channel: 0 },
-  front_end: { current_offset_A: 0.004, current_gain_error: 0.02, voltage_gain_error: -0.003, noise_counts: 0.8 },
+  thermal: {
+    ambient_C: 21,
+    heat_capacity_J_per_K: 10,
+    conductance_W_per_K: 0.05,
+    load_heat_fraction: 0,
+    extra_heat_W: 0,
+  },
+  rig: {
+    rig_id: 'simrig-n2',
+    firmware: 'sim-1.0',
+    clock_error: -0.03,
+    frame_period_ms: 1000,
+    channel: 0,
+  },
+  front_end: {
+    current_offset_A: 0.004,
+    current_gain_error: 0.02,
+    voltage_gain_error: -0.003,
+    noise_counts: 0.8,
+  },
 });
 
 let root: string;
@@ -29,16 +52,30 @@ let compared: ReportOutcome;
 beforeAll(async () => {
   root = await mkdtemp(join(tmpdir(), 'cv-html-'));
   const calibration = referenceCalibration(nimh);
-  const a = await simulateRun({ dir: join(root, 'nimh'), scenario: nimh, calibration, afterEndS: 10 });
-  single = await reportRuns({ folders: [a.folder], ratedAh: 0.5, generatedAt: '2026-12-03T10:00:00Z' });
+  const a = await simulateRun({
+    dir: join(root, 'nimh'),
+    scenario: nimh,
+    calibration,
+    afterEndS: 10,
+  });
+  single = await reportRuns({
+    folders: [a.folder],
+    ratedAh: 0.5,
+    generatedAt: '2026-12-03T10:00:00Z',
+  });
   // The same kind of cell at three loads, for the comparison page.
-  const li = (ohm: number, name: string) => demoScenario({ name, load: { load_ohm: ohm, mosfet_ohm: 0.015 } });
+  const li = (ohm: number, name: string) =>
+    demoScenario({ name, load: { load_ohm: ohm, mosfet_ohm: 0.015 } });
   const runs = await Promise.all([
     simulateRun({ dir: join(root, 'li-3'), scenario: li(3, 'li-3-ohm') }),
     simulateRun({ dir: join(root, 'li-6'), scenario: li(6, 'li-6-ohm') }),
     simulateRun({ dir: join(root, 'li-12'), scenario: li(12, 'li-12-ohm') }),
   ]);
-  compared = await reportRuns({ folders: runs.map((r) => r.folder), out: join(root, 'compare.html'), generatedAt: '2026-12-03T10:00:00Z' });
+  compared = await reportRuns({
+    folders: runs.map((r) => r.folder),
+    out: join(root, 'compare.html'),
+    generatedAt: '2026-12-03T10:00:00Z',
+  });
 }, 120_000);
 
 afterAll(async () => {
@@ -50,7 +87,9 @@ describe('report.html as text', () => {
     for (const path of [single.runs[0]!.reportPath, compared.comparisonPath!]) {
       const html = await readFile(path, 'utf8');
       expect(html).not.toMatch(/<script|<link|<img|<iframe|@import|url\(/i);
-      expect(html.replace(/xmlns="http:\/\/www\.w3\.org\/2000\/svg"/g, '')).not.toMatch(/https?:\/\//);
+      expect(html.replace(/xmlns="http:\/\/www\.w3\.org\/2000\/svg"/g, '')).not.toMatch(
+        /https?:\/\//,
+      );
     }
   });
 });
@@ -62,7 +101,16 @@ describe.skipIf(skip)('report.html in headless Chromium', () => {
 
   beforeAll(async () => {
     mkdirSync('test-artifacts', { recursive: true });
-    browser = await chromium.launch({ executablePath: CHROMIUM, args: ['--headless', '--no-sandbox', '--disable-gpu', '--no-first-run', '--disable-background-networking'] });
+    browser = await chromium.launch({
+      executablePath: CHROMIUM,
+      args: [
+        '--headless',
+        '--no-sandbox',
+        '--disable-gpu',
+        '--no-first-run',
+        '--disable-background-networking',
+      ],
+    });
     page = await browser.newPage({ viewport: { width: 1000, height: 900 } });
     page.on('request', (r) => {
       if (!r.url().startsWith('file:')) requests.push(r.url());
@@ -73,7 +121,10 @@ describe.skipIf(skip)('report.html in headless Chromium', () => {
     await browser?.close();
   });
 
-  const values = (key: string): Promise<string[]> => page.locator(`td[data-key="${key}"]`).evaluateAll((els) => els.map((e) => e.getAttribute('data-value') ?? ''));
+  const values = (key: string): Promise<string[]> =>
+    page
+      .locator(`td[data-key="${key}"]`)
+      .evaluateAll((els) => els.map((e) => e.getAttribute('data-value') ?? ''));
 
   it('the run report has its plots and tables, and its numbers are those of the result file', async () => {
     const run = single.runs[0]!;
@@ -88,8 +139,18 @@ describe.skipIf(skip)('report.html in headless Chromium', () => {
       const box = await plot.boundingBox();
       expect(box!.width).toBeGreaterThan(500);
     }
-    for (const table of ['capacity-by-voltage', 'dc-resistance', 'budget-Ah', 'budget-Wh', 'calibration', 'frames', 'events']) {
-      await expect(page.locator(`table[data-table="${table}"] tbody tr`).count()).resolves.toBeGreaterThan(0);
+    for (const table of [
+      'capacity-by-voltage',
+      'dc-resistance',
+      'budget-Ah',
+      'budget-Wh',
+      'calibration',
+      'frames',
+      'events',
+    ]) {
+      await expect(
+        page.locator(`table[data-table="${table}"] tbody tr`).count(),
+      ).resolves.toBeGreaterThan(0);
     }
 
     expect(Number((await values('capacity_Ah'))[0])).toBe(result.capacity_Ah);
@@ -97,26 +158,36 @@ describe.skipIf(skip)('report.html in headless Chromium', () => {
     expect(Number((await values('duration_s'))[0])).toBe(result.duration_s);
     expect(Number((await values('frames_accepted'))[0])).toBe(result.frames_accepted);
     expect(Number((await values('rig_clock_error_ppm'))[0])).toBe(result.rig_clock_error_ppm);
-    expect(Number((await values('uncertainty.capacity_Ah.expanded'))[0])).toBe(result.uncertainty.capacity_Ah.expanded);
-    expect(Number((await values('budget.Ah.expanded'))[0])).toBe(result.uncertainty.capacity_Ah.expanded);
-    expect(Number((await values('budget.Wh.standard'))[0])).toBe(result.uncertainty.energy_Wh.standard);
+    expect(Number((await values('uncertainty.capacity_Ah.expanded'))[0])).toBe(
+      result.uncertainty.capacity_Ah.expanded,
+    );
+    expect(Number((await values('budget.Ah.expanded'))[0])).toBe(
+      result.uncertainty.capacity_Ah.expanded,
+    );
+    expect(Number((await values('budget.Wh.standard'))[0])).toBe(
+      result.uncertainty.energy_Wh.standard,
+    );
     const budget = (await values('budget.Ah')).map(Number);
     expect(budget).toEqual(result.uncertainty.capacity_Ah.terms.map((t) => t.u));
     const steps = (await values('step.capacity_Ah')).map((v) => (v === '' ? null : Number(v)));
     expect(steps).toEqual(result.capacity_by_voltage.map((s) => s.capacity_Ah));
-    await expect(page.locator('td[data-key="capacity_Ah"]').first().textContent()).resolves.toContain(`${result.capacity_Ah.toFixed(4)} Ah`);
+    await expect(
+      page.locator('td[data-key="capacity_Ah"]').first().textContent(),
+    ).resolves.toContain(`${result.capacity_Ah.toFixed(4)} Ah`);
 
     // A NiMH cell at about 0.2 It for over 5 h: the check applies, and says what it is.
     const verdict = page.locator('[data-verdict]');
     await expect(verdict.getAttribute('data-verdict')).resolves.toBe(result.verdict!.outcome);
-    await expect(verdict.textContent()).resolves.toContain('a check against the method of IEC 61951-2, not a certification');
+    await expect(verdict.textContent()).resolves.toContain(
+      'a check against the method of IEC 61951-2, not a certification',
+    );
     expect(result.verdict!.outcome).toBe('meets');
     await expect(page.locator('#cautions li').count()).resolves.toBeGreaterThan(3);
     await page.screenshot({ path: 'test-artifacts/report-run.png', fullPage: true });
     expect(requests).toEqual([]);
   });
 
-  it('the comparison page overlays every run and fits Peukert\'s exponent across their currents', async () => {
+  it("the comparison page overlays every run and fits Peukert's exponent across their currents", async () => {
     await page.goto(`file://${resolve(compared.comparisonPath!)}`);
     const lines = page.locator('svg.cv-plot[data-plot="voltage-charge"] polyline');
     await expect(lines.count()).resolves.toBe(3);

@@ -5,7 +5,7 @@ import { fitPeukert, peukertHours } from '../../src/report/peukert.js';
 import { gaussian, mulberry32 } from '../../src/sim/prng.js';
 
 describe("Peukert's law", () => {
-  it('worked value: H = 20 h, C = 100 Ah, k = 1.2, I = 10 A gives t = 8.7055 h (CHECKS.md, from the formula)', () => {
+  it('worked value: H = 20 h, C = 100 Ah, k = 1.2, I = 10 A gives t = 8.7055 h (computed from the formula)', () => {
     expect(peukertHours(20, 100, 1.2, 10)).toBeCloseTo(8.7055, 4);
   });
 
@@ -14,7 +14,10 @@ describe("Peukert's law", () => {
   });
 
   it('the fit recovers k and C from runs that follow the law exactly', () => {
-    const runs = [2, 5, 10, 20, 40].map((currentA) => ({ currentA, hours: peukertHours(20, 100, 1.2, currentA) }));
+    const runs = [2, 5, 10, 20, 40].map((currentA) => ({
+      currentA,
+      hours: peukertHours(20, 100, 1.2, currentA),
+    }));
     const fit = fitPeukert(runs, 20);
     expect(fit.k).toBeCloseTo(1.2, 10);
     expect(fit.capacityAh).toBeCloseTo(100, 8);
@@ -24,7 +27,10 @@ describe("Peukert's law", () => {
 
   it('on scattered runs k matches a general-purpose regression (simple-statistics) of ln t on ln I', () => {
     const rng = mulberry32(61);
-    const runs = [0.3, 0.5, 0.8, 1.2, 2.0, 3.0].map((currentA) => ({ currentA, hours: peukertHours(20, 2.6, 1.08, currentA) * (1 + 0.01 * gaussian(rng)) }));
+    const runs = [0.3, 0.5, 0.8, 1.2, 2.0, 3.0].map((currentA) => ({
+      currentA,
+      hours: peukertHours(20, 2.6, 1.08, currentA) * (1 + 0.01 * gaussian(rng)),
+    }));
     const fit = fitPeukert(runs, 20);
     const reference = linearRegression(runs.map((r) => [Math.log(r.currentA), Math.log(r.hours)]));
     expect(fit.k).toBeCloseTo(-reference.m, 10);
@@ -32,6 +38,11 @@ describe("Peukert's law", () => {
   });
 
   it('refuses runs at one current', () => {
-    expect(() => fitPeukert([{ currentA: 1, hours: 2 }, { currentA: 1.05, hours: 1.9 }])).toThrow(CellvigilError);
+    expect(() =>
+      fitPeukert([
+        { currentA: 1, hours: 2 },
+        { currentA: 1.05, hours: 1.9 },
+      ]),
+    ).toThrow(CellvigilError);
   });
 });

@@ -28,7 +28,7 @@ afterAll(async () => {
 const rel = (x: number, truth: number): number => Math.abs(x / truth - 1);
 
 describe('recompute from raw counts', () => {
-  it('with the run\'s own calibration equals the live figures (same counts, same chain, same integrator)', async () => {
+  it("with the run's own calibration equals the live figures (same counts, same chain, same integrator)", async () => {
     for (const run of [uncalibrated, calibrated]) {
       const f = await recomputeRun(await openRunFolder(run.folder));
       expect(run.result.end_reason).toBe('cutoff');
@@ -55,14 +55,19 @@ describe('recompute from raw counts', () => {
   });
 
   it('an uncalibrated run recomputed with a calibration recovers the truth within 0.5 %, inside its stated uncertainty', async () => {
-    const f = await recomputeRun(await openRunFolder(uncalibrated.folder), { calibration, calibrationFile: 'bench.json' });
+    const f = await recomputeRun(await openRunFolder(uncalibrated.folder), {
+      calibration,
+      calibrationFile: 'bench.json',
+    });
     const truth = uncalibrated.truth.chargeAh;
     const before = Math.abs(uncalibrated.result.capacity_Ah - truth);
     const after = Math.abs(f.result.capacity_Ah - truth);
     expect(after).toBeLessThan(before / 5);
     expect(after / truth).toBeLessThan(0.005);
     expect(after).toBeLessThanOrEqual(f.result.uncertainty.capacity_Ah.expanded);
-    expect(Math.abs(f.result.energy_Wh - uncalibrated.truth.energyWh)).toBeLessThanOrEqual(f.result.uncertainty.energy_Wh.expanded);
+    expect(Math.abs(f.result.energy_Wh - uncalibrated.truth.energyWh)).toBeLessThanOrEqual(
+      f.result.uncertainty.energy_Wh.expanded,
+    );
     expect(f.calibration.own).toBe(false);
     expect(f.result.calibration_id).toBe(calibration.id);
     expect(f.notes.join(' ')).toContain(`applies ${calibration.id} to every row`);
@@ -77,11 +82,23 @@ describe('recompute from raw counts', () => {
     const original = await readFile(join(uncalibrated.folder, 'result.json'), 'utf8');
     const calFile = join(root, 'bench-cal.json');
     await writeCalibration(calFile, calibration);
-    const out = await reportRuns({ folders: [uncalibrated.folder], calibrationFile: calFile, generatedAt: '2026-12-03T10:00:00Z' });
+    const out = await reportRuns({
+      folders: [uncalibrated.folder],
+      calibrationFile: calFile,
+      generatedAt: '2026-12-03T10:00:00Z',
+    });
     expect(await readFile(join(uncalibrated.folder, 'result.json'), 'utf8')).toBe(original);
-    expect(out.runs[0]!.resultPath).toBe(join(uncalibrated.folder, `result-${calibration.id}.json`));
-    expect(out.runs[0]!.reportPath).toBe(join(uncalibrated.folder, `report-${calibration.id}.html`));
-    const written = JSON.parse(await readFile(out.runs[0]!.resultPath, 'utf8')) as { capacity_Ah: number; calibration_id: string; recomputed: { calibration_file: string } };
+    expect(out.runs[0]!.resultPath).toBe(
+      join(uncalibrated.folder, `result-${calibration.id}.json`),
+    );
+    expect(out.runs[0]!.reportPath).toBe(
+      join(uncalibrated.folder, `report-${calibration.id}.html`),
+    );
+    const written = JSON.parse(await readFile(out.runs[0]!.resultPath, 'utf8')) as {
+      capacity_Ah: number;
+      calibration_id: string;
+      recomputed: { calibration_file: string };
+    };
     expect(written.calibration_id).toBe(calibration.id);
     expect(written.recomputed.calibration_file).toBe(calFile);
     expect(written.capacity_Ah).toBe(out.runs[0]!.figures.result.capacity_Ah);
@@ -105,7 +122,7 @@ describe('recompute from raw counts', () => {
     expect(f.result.midpoint_voltage_V!).toBeGreaterThan(3.0);
   });
 
-  it('DC resistance at switch-on matches the simulated cell\'s 50 mΩ; from the recovery at switch-off it has risen near empty', async () => {
+  it("DC resistance at switch-on matches the simulated cell's 50 mΩ; from the recovery at switch-off it has risen near empty", async () => {
     const f = await recomputeRun(await openRunFolder(calibrated.folder));
     const on = f.resistance.switch_on!;
     const off = f.resistance.switch_off!;

@@ -24,7 +24,13 @@ const I_RAW = 750;
 const T0 = Date.UTC(2026, 11, 2, 11, 0, 0);
 
 /** Rows at 10 Hz from `fromS` to `toS` (inclusive), the load on or off, as the daemon writes them. */
-function rows(fromS: number, toS: number, on: boolean, state: string, seq: { n: number }): string[] {
+function rows(
+  fromS: number,
+  toS: number,
+  on: boolean,
+  state: string,
+  seq: { n: number },
+): string[] {
   const out: string[] = [];
   for (let k = Math.round(fromS * 10); k <= Math.round(toS * 10); k++) {
     const hostS = k / 10;
@@ -72,7 +78,10 @@ describe('a resumed run', () => {
       { host_s: 160, event: 'resumed', rows: 1001 },
       { host_s: 170.05, event: 'unlogged_discharge', estimated_s: 5.25 },
     ];
-    await writeFile(join(dir, 'events.jsonl'), `${events.map((e) => JSON.stringify({ ...e, wall_time: new Date(T0 + e.host_s * 1000).toISOString() })).join('\n')}\n`);
+    await writeFile(
+      join(dir, 'events.jsonl'),
+      `${events.map((e) => JSON.stringify({ ...e, wall_time: new Date(T0 + e.host_s * 1000).toISOString() })).join('\n')}\n`,
+    );
 
     const f = await recomputeRun(await openRunFolder(dir));
     const amps = new AnalogChain(BENCH_PROFILE).amps(I_RAW);
@@ -82,7 +91,9 @@ describe('a resumed run', () => {
     expect(f.result.duration_s).toBeCloseTo(100 + 5.25 + 0.05 + 99.9, 6);
     expect(f.result.bridged_Ah).toBeCloseTo((amps * 5.25) / 3600, 6);
     expect(f.result.end_reason).toBe('interrupted');
-    expect(f.result.uncertainty.capacity_Ah.terms.some((t) => t.name.startsWith('charge bridged'))).toBe(true);
+    expect(
+      f.result.uncertainty.capacity_Ah.terms.some((t) => t.name.startsWith('charge bridged')),
+    ).toBe(true);
     expect(f.notes.join(' ')).toContain('resumed 1 time');
     expect(f.loadSwitchOns).toBe(2);
   });

@@ -5,7 +5,13 @@
  */
 import { mkdir } from 'node:fs/promises';
 import { join } from 'node:path';
-import { applyCalibration, fitQuantity, sealCalibration, type Calibration, type CalibrationPoint } from '../../src/calibration/calibration.js';
+import {
+  applyCalibration,
+  fitQuantity,
+  sealCalibration,
+  type Calibration,
+  type CalibrationPoint,
+} from '../../src/calibration/calibration.js';
 import { AnalogChain } from '../../src/chain/analog-chain.js';
 import type { RigProfile } from '../../src/chain/rig-profile-types.js';
 import { findChemistry, loadChemistries } from '../../src/chemistry/chemistries.js';
@@ -40,11 +46,34 @@ export function demoScenario(over: Partial<SimScenario> = {}): SimScenario {
   return {
     name: 'test-cell',
     description: 'demo cell for report tests',
-    cell: { chemistry: 'li-ion', cells: 1, capacity_Ah: 0.06, initial_soc: 1, internal_ohm_per_cell: 0.05 },
-    thermal: { ambient_C: 22, heat_capacity_J_per_K: 20, conductance_W_per_K: 0.08, load_heat_fraction: 0, extra_heat_W: 0 },
+    cell: {
+      chemistry: 'li-ion',
+      cells: 1,
+      capacity_Ah: 0.06,
+      initial_soc: 1,
+      internal_ohm_per_cell: 0.05,
+    },
+    thermal: {
+      ambient_C: 22,
+      heat_capacity_J_per_K: 20,
+      conductance_W_per_K: 0.08,
+      load_heat_fraction: 0,
+      extra_heat_W: 0,
+    },
     load: { load_ohm: 3.0, mosfet_ohm: 0.015 },
-    front_end: { current_offset_A: 0.03, current_gain_error: 0.04, voltage_gain_error: 0.004, noise_counts: 0.8 },
-    rig: { rig_id: 'simrig-t1', firmware: 'sim-1.0', clock_error: 0.08, frame_period_ms: 100, channel: 0 },
+    front_end: {
+      current_offset_A: 0.03,
+      current_gain_error: 0.04,
+      voltage_gain_error: 0.004,
+      noise_counts: 0.8,
+    },
+    rig: {
+      rig_id: 'simrig-t1',
+      firmware: 'sim-1.0',
+      clock_error: 0.08,
+      frame_period_ms: 100,
+      channel: 0,
+    },
     faults: { drop_probability: 0.002, garbage_probability: 0.002, burst_frames: 1, seed: 4242 },
     ...over,
   };
@@ -98,8 +127,21 @@ export async function simulateRun(o: SimRunOptions): Promise<SimRun> {
       return c.ok ? null : c.error.message;
     },
   });
-  const pipeline = new Pipeline({ channel, adcBits: profile.adc.bits, converter: chain, corrector: applyCalibration(calibration), session, originMs: 0 });
-  const samples = new LogFile({ dir: o.dir, name: 'samples-', ext: '.csv', header: SAMPLE_HEADER, rotateBytes: o.rotateBytes ?? 16777216 });
+  const pipeline = new Pipeline({
+    channel,
+    adcBits: profile.adc.bits,
+    converter: chain,
+    corrector: applyCalibration(calibration),
+    session,
+    originMs: 0,
+  });
+  const samples = new LogFile({
+    dir: o.dir,
+    name: 'samples-',
+    ext: '.csv',
+    header: SAMPLE_HEADER,
+    rotateBytes: o.rotateBytes ?? 16777216,
+  });
   const events = new EventLog(o.dir);
   await writeJsonAtomic(join(o.dir, 'manifest.json'), {
     format: 'cellvigil-run',
@@ -108,7 +150,12 @@ export async function simulateRun(o: SimRunOptions): Promise<SimRun> {
     node_version: process.version,
     label: scenario.name,
     started_wall: new Date(startedWall).toISOString(),
-    source: { kind: 'sim', description: `simulated rig, scenario ${scenario.name}`, scenario: scenario.name, speed: 1 },
+    source: {
+      kind: 'sim',
+      description: `simulated rig, scenario ${scenario.name}`,
+      scenario: scenario.name,
+      speed: 1,
+    },
     channel,
     rig: { file: null, profile },
     calibration: { file: null, id: calibration?.id ?? 'none', content: calibration },
@@ -118,12 +165,16 @@ export async function simulateRun(o: SimRunOptions): Promise<SimRun> {
     cutoff_per_cell_V: cutoff.perCell,
     cutoff_source: cutoff.source,
     floor_V: chemistry.floor_V_per_cell.value * cells,
-    limits: { max_temperature_C: chemistry.max_temperature_C.value, max_current_A: 0.98 * chain.fullScale().amps },
+    limits: {
+      max_temperature_C: chemistry.max_temperature_C.value,
+      max_current_A: 0.98 * chain.fullScale().amps,
+    },
     samples: { prefix: 'samples-', rotate_bytes: o.rotateBytes ?? 16777216 },
   });
 
   const hostS = (): number => clock.now() / 1000;
-  const log = (name: string, detail: Record<string, unknown> = {}): void => void events.write(hostS(), clock.wallNow(), name, detail);
+  const log = (name: string, detail: Record<string, unknown> = {}): void =>
+    void events.write(hostS(), clock.wallNow(), name, detail);
   let end: { reason: string; detail: string; confirmed: boolean; atMs: number } | null = null;
   const afterEndMs = (o.afterEndS ?? 0) * 1000;
   let loaded = 0;
@@ -137,7 +188,12 @@ export async function simulateRun(o: SimRunOptions): Promise<SimRun> {
       } else if (a.type === 'event') {
         log(a.name, a.detail);
       } else if (!end) {
-        end = { reason: a.reason, detail: a.detail, confirmed: a.loadOffConfirmed, atMs: clock.now() };
+        end = {
+          reason: a.reason,
+          detail: a.detail,
+          confirmed: a.loadOffConfirmed,
+          atMs: clock.now(),
+        };
       }
     }
   };
@@ -168,7 +224,8 @@ export async function simulateRun(o: SimRunOptions): Promise<SimRun> {
   dispatch(session.begin(clock.now()));
   const limitMs = (o.limitS ?? 6 * 3600) * 1000;
   let stopAsked = false;
-  const running = (): boolean => (end === null ? clock.now() < limitMs : clock.now() <= end.atMs + afterEndMs);
+  const running = (): boolean =>
+    end === null ? clock.now() < limitMs : clock.now() <= end.atMs + afterEndMs;
   while (running()) {
     clock.advance(1000);
     if (o.stopAtS !== undefined && !stopAsked && clock.now() >= o.stopAtS * 1000) {
@@ -208,7 +265,11 @@ export async function simulateRun(o: SimRunOptions): Promise<SimRun> {
     schedule: null,
   });
   events.summarise(hostS(), clock.wallNow());
-  events.write(hostS(), clock.wallNow(), 'run_ended', { end_reason: e.reason, detail: e.detail, load_off_confirmed: e.confirmed });
+  events.write(hostS(), clock.wallNow(), 'run_ended', {
+    end_reason: e.reason,
+    detail: e.detail,
+    load_off_confirmed: e.confirmed,
+  });
   await Promise.all([samples.close(), events.close()]);
   await writeJsonAtomic(join(o.dir, 'result.json'), result);
   return { folder: o.dir, result, truth: rig.truth() };
@@ -218,7 +279,10 @@ export async function simulateRun(o: SimRunOptions): Promise<SimRun> {
  * A calibration taken the way `calibrate` takes one: the board's readings of known currents and
  * voltages (its true front end, without noise) against a reference meter's readings.
  */
-export function referenceCalibration(scenario: SimScenario, profile: RigProfile = BENCH_PROFILE): Calibration {
+export function referenceCalibration(
+  scenario: SimScenario,
+  profile: RigProfile = BENCH_PROFILE,
+): Calibration {
   const chain = new AnalogChain(profile);
   const fe = scenario.front_end;
   const board = new FrontEnd(
@@ -239,11 +303,23 @@ export function referenceCalibration(scenario: SimScenario, profile: RigProfile 
   };
   const current = [0.2, 0.6, 1.0, 1.4].map((a): CalibrationPoint => {
     const raw = mean((x) => board.current(x).counts, a, chain.ampsPerCount);
-    return { raw_mean: raw, samples: 20, nominal: chain.amps(raw), reference: a, reference_u: 0.0005 };
+    return {
+      raw_mean: raw,
+      samples: 20,
+      nominal: chain.amps(raw),
+      reference: a,
+      reference_u: 0.0005,
+    };
   });
   const voltage = [3.0, 3.6, 4.2].map((v): CalibrationPoint => {
     const raw = mean((x) => board.voltage(x).counts, v, chain.voltsPerCount);
-    return { raw_mean: raw, samples: 20, nominal: chain.volts(raw), reference: v, reference_u: 0.0005 };
+    return {
+      raw_mean: raw,
+      samples: 20,
+      nominal: chain.volts(raw),
+      reference: v,
+      reference_u: 0.0005,
+    };
   });
   return sealCalibration({
     format: 1,

@@ -1,19 +1,37 @@
 import { describe, expect, it } from 'vitest';
-import { fitQuantity, sealCalibration, type Calibration } from '../../src/calibration/calibration.js';
-import { combineContributions, meanU, runUncertainty, type UncertaintyInput } from '../../src/results/uncertainty.js';
+import {
+  fitQuantity,
+  sealCalibration,
+  type Calibration,
+} from '../../src/calibration/calibration.js';
+import {
+  combineContributions,
+  meanU,
+  runUncertainty,
+  type UncertaintyInput,
+} from '../../src/results/uncertainty.js';
 import { gaussian, mulberry32 } from '../../src/sim/prng.js';
 
 const SQRT3 = Math.sqrt(3);
 
 /** A calibration of the current channel from three reference points (demo numbers). */
 function calibration(): Calibration {
-  const point = (shown: number, ref: number) => ({ raw_mean: shown / 0.0013, nominal: shown, reference: ref, reference_u: 0.002 });
+  const point = (shown: number, ref: number) => ({
+    raw_mean: shown / 0.0013,
+    nominal: shown,
+    reference: ref,
+    reference_u: 0.002,
+  });
   return sealCalibration({
     format: 1,
     rig: 'bench rig',
     date: '2026-11-30T09:00:00Z',
     reference_instrument: 'bench multimeter (demo)',
-    current: fitQuantity('current', [point(0.2381, 0.2), point(1.0706, 1.0), point(2.1112, 2.0)], 'gain_offset').calibration,
+    current: fitQuantity(
+      'current',
+      [point(0.2381, 0.2), point(1.0706, 1.0), point(2.1112, 2.0)],
+      'gain_offset',
+    ).calibration,
   });
 }
 
@@ -55,17 +73,27 @@ describe('uncertainty budget by the GUM (JCGM 100:2008)', () => {
 
   it('the calibration term is common to every sample: two equal halves of a run add linearly', () => {
     const cal = calibration();
-    const half = runUncertainty(run({ chargeAh: 0.5, nominalAh: 0.525, onS: 1800, samples: 18_000, calibration: cal })).capacity_Ah;
+    const half = runUncertainty(
+      run({ chargeAh: 0.5, nominalAh: 0.525, onS: 1800, samples: 18_000, calibration: cal }),
+    ).capacity_Ah;
     const whole = runUncertainty(run({ calibration: cal })).capacity_Ah;
     const name = 'current calibration fit';
     expect(term(whole, name)).toBeCloseTo(term(half, name) + term(half, name), 12);
-    expect(term(whole, name)).toBeCloseTo(combineContributions([term(half, name), term(half, name)], () => 1), 12);
+    expect(term(whole, name)).toBeCloseTo(
+      combineContributions([term(half, name), term(half, name)], () => 1),
+      12,
+    );
     // The reference meter's scale error is common as well.
-    expect(term(whole, 'reference meter scale')).toBeCloseTo(2 * term(half, 'reference meter scale'), 12);
+    expect(term(whole, 'reference meter scale')).toBeCloseTo(
+      2 * term(half, 'reference meter scale'),
+      12,
+    );
   });
 
   it('independent per-sample noise averages down: two halves add in quadrature, and 4× the samples halve it (4.2.3)', () => {
-    const half = runUncertainty(run({ chargeAh: 0.5, onS: 1800, samples: 18_000, currentNoiseA: 0.004 })).capacity_Ah;
+    const half = runUncertainty(
+      run({ chargeAh: 0.5, onS: 1800, samples: 18_000, currentNoiseA: 0.004 }),
+    ).capacity_Ah;
     const whole = runUncertainty(run({ currentNoiseA: 0.004 })).capacity_Ah;
     const dense = runUncertainty(run({ currentNoiseA: 0.004, samples: 144_000 })).capacity_Ah;
     const name = 'current noise';
@@ -107,8 +135,21 @@ describe('uncertainty budget by the GUM (JCGM 100:2008)', () => {
     }
     const mean = qs.reduce((a, b) => a + b, 0) / trials;
     const mcSd = Math.sqrt(qs.reduce((a, b) => a + (b - mean) ** 2, 0) / (trials - 1));
-    const gum = runUncertainty(run({ chargeAh: mean, nominalAh: xA, onS: 3600, samples: n, ampsPerCount: 0, currentNoiseA: sd, calibration: cal })).capacity_Ah;
-    const fitAndNoise = Math.hypot(term(gum, 'current calibration fit'), term(gum, 'current noise'));
+    const gum = runUncertainty(
+      run({
+        chargeAh: mean,
+        nominalAh: xA,
+        onS: 3600,
+        samples: n,
+        ampsPerCount: 0,
+        currentNoiseA: sd,
+        calibration: cal,
+      }),
+    ).capacity_Ah;
+    const fitAndNoise = Math.hypot(
+      term(gum, 'current calibration fit'),
+      term(gum, 'current noise'),
+    );
     // 3000 trials estimate a standard deviation to about 1.3 %.
     expect(mcSd / fitAndNoise).toBeGreaterThan(0.95);
     expect(mcSd / fitAndNoise).toBeLessThan(1.05);

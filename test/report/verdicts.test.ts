@@ -1,7 +1,7 @@
 import { describe, expect, it } from 'vitest';
 import { ratedCapacityVerdict, type VerdictInput } from '../../src/report/verdicts.js';
 
-// IEC 61951-2 rated capacity (NiMH), as CHECKS.md gives it (clause wording from memory): at
+// IEC 61951-2 rated capacity (NiMH) (clause wording from memory): at
 // 20 ± 5 °C, discharge at 0.2 It to 1.0 V; the rating is met when it lasts at least 5 h.
 // A 2.0 Ah cell: It = 2.0 A, so 0.2 It = 0.4 A.
 const nimh = (over: Partial<VerdictInput> = {}): VerdictInput => ({
@@ -33,9 +33,15 @@ describe('rated-capacity check in the manner of IEC 61951-2', () => {
   });
 
   it('is labelled a check against the method, not a certification', () => {
-    expect(ratedCapacityVerdict(nimh())!.label).toBe('a check against the method of IEC 61951-2, not a certification');
-    expect(ratedCapacityVerdict(nimh({ chemistryId: 'nicd' }))!.label).toBe('a check against the method of IEC 61951-1, not a certification');
-    expect(ratedCapacityVerdict(nimh({ chemistryId: 'li-ion', cutoffPerCellV: 2.75 }))!.label).toBe('a check against the method of IEC 61960-3, not a certification');
+    expect(ratedCapacityVerdict(nimh())!.label).toBe(
+      'a check against the method of IEC 61951-2, not a certification',
+    );
+    expect(ratedCapacityVerdict(nimh({ chemistryId: 'nicd' }))!.label).toBe(
+      'a check against the method of IEC 61951-1, not a certification',
+    );
+    expect(ratedCapacityVerdict(nimh({ chemistryId: 'li-ion', cutoffPerCellV: 2.75 }))!.label).toBe(
+      'a check against the method of IEC 61960-3, not a certification',
+    );
   });
 
   it('says the method was not followed instead of a verdict: wrong rate, temperature, no rating, end voltage, pulses', () => {
@@ -58,13 +64,21 @@ describe('rated-capacity check in the manner of IEC 61951-2', () => {
   });
 
   it('within the rate tolerance and the 15–25 °C band the check applies', () => {
-    expect(ratedCapacityVerdict(nimh({ averageCurrentA: 0.4 * 1.049, startTemperatureC: 25 }))!.outcome).toBe('meets');
-    expect(ratedCapacityVerdict(nimh({ averageCurrentA: 0.4 * 0.951, startTemperatureC: 15 }))!.outcome).toBe('meets');
+    expect(
+      ratedCapacityVerdict(nimh({ averageCurrentA: 0.4 * 1.049, startTemperatureC: 25 }))!.outcome,
+    ).toBe('meets');
+    expect(
+      ratedCapacityVerdict(nimh({ averageCurrentA: 0.4 * 0.951, startTemperatureC: 15 }))!.outcome,
+    ).toBe('meets');
   });
 
   it('a run stopped early: 5 h already shown is enough, less is incomplete', () => {
-    expect(ratedCapacityVerdict(nimh({ endReason: 'stopped', durationS: 5.2 * 3600 }))!.outcome).toBe('meets');
-    expect(ratedCapacityVerdict(nimh({ endReason: 'stopped', durationS: 3 * 3600 }))!.outcome).toBe('incomplete');
+    expect(
+      ratedCapacityVerdict(nimh({ endReason: 'stopped', durationS: 5.2 * 3600 }))!.outcome,
+    ).toBe('meets');
+    expect(ratedCapacityVerdict(nimh({ endReason: 'stopped', durationS: 3 * 3600 }))!.outcome).toBe(
+      'incomplete',
+    );
   });
 
   it('no check for a chemistry without a rated-capacity method here', () => {

@@ -14,7 +14,10 @@ const RIG_FILE = fileURLToPath(new URL('../../config/rigs/bench-20mohm.yaml', im
 export const PROFILE = parseRigProfile(readFileSync(RIG_FILE, 'utf8'), RIG_FILE);
 export const CHAIN = new AnalogChain(PROFILE);
 
-export function newPipeline(session = new Session(liIonSettings())): { pipeline: Pipeline; session: Session } {
+export function newPipeline(session = new Session(liIonSettings())): {
+  pipeline: Pipeline;
+  session: Session;
+} {
   const pipeline = new Pipeline({
     channel: 0,
     adcBits: PROFILE.adc.bits,
@@ -51,7 +54,11 @@ export class LineRig {
 
   constructor(
     core: { pipeline: Pipeline; session: Session } = newPipeline(),
-    public cell: (t: number, loadOn: boolean) => CellState = (_t, on) => ({ volts: on ? 3.9 : 4.0, amps: on ? 1 : 0, celsius: 25 }),
+    public cell: (t: number, loadOn: boolean) => CellState = (_t, on) => ({
+      volts: on ? 3.9 : 4.0,
+      amps: on ? 1 : 0,
+      celsius: 25,
+    }),
     readonly channel = 0,
   ) {
     this.pipeline = core.pipeline;
@@ -95,6 +102,8 @@ export class LineRig {
   }
 
   private obey(actions: Action[]): void {
-    for (const a of actions) if (a.type === 'send' && a.command.command === 'LOAD' && a.command.channel === this.channel) this.loadOn = a.command.on;
+    for (const a of actions)
+      if (a.type === 'send' && a.command.command === 'LOAD' && a.command.channel === this.channel)
+        this.loadOn = a.command.on;
   }
 }

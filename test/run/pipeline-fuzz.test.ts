@@ -23,34 +23,61 @@ const dataFields = fc.record({
   flags: fc.integer({ min: 0, max: 255 }),
 });
 
-const word = fc.string({ unit: fc.constantFrom(...'abcxyz0123456789-. '), minLength: 1, maxLength: 12 });
-
-/** Valid lines of every rig-to-host type, with CRCs in upper or lower case. */
-const validLine = fc.oneof(
-  { weight: 4, arbitrary: dataFields.map((f) => encodeDataFrame(f).trimEnd()) },
-  { weight: 1, arbitrary: fc.tuple(word, word, fc.integer({ min: 1, max: 24 }), fc.integer({ min: 1, max: 16 })).map(([id, fw, bits, ch]) => `H,${id},${fw},${bits},${ch}`) },
-  { weight: 1, arbitrary: fc.array(word, { minLength: 1, maxLength: 4 }).map((a) => `A,${a.join(',')}`) },
-  { weight: 1, arbitrary: fc.tuple(word, word).map(([code, text]) => `E,${code},${text}`) },
-).chain((l) => (l.startsWith('D,') ? fc.constant(l) : fc.boolean().map((lower) => referenceLine(l, lower))));
-
-/** One character of a line replaced by another byte (0..255, as latin1). */
-const mutated = fc.tuple(validLine, fc.nat(), fc.integer({ min: 0, max: 255 })).map(([line, pos, byte]) => {
-  const at = pos % line.length;
-  return { line, at, bad: line.slice(0, at) + String.fromCharCode(byte) + line.slice(at + 1) };
+const word = fc.string({
+  unit: fc.constantFrom(...'abcxyz0123456789-. '),
+  minLength: 1,
+  maxLength: 12,
 });
 
+/** Valid lines of every rig-to-host type, with CRCs in upper or lower case. */
+const validLine = fc
+  .oneof(
+    { weight: 4, arbitrary: dataFields.map((f) => encodeDataFrame(f).trimEnd()) },
+    {
+      weight: 1,
+      arbitrary: fc
+        .tuple(word, word, fc.integer({ min: 1, max: 24 }), fc.integer({ min: 1, max: 16 }))
+        .map(([id, fw, bits, ch]) => `H,${id},${fw},${bits},${ch}`),
+    },
+    {
+      weight: 1,
+      arbitrary: fc.array(word, { minLength: 1, maxLength: 4 }).map((a) => `A,${a.join(',')}`),
+    },
+    { weight: 1, arbitrary: fc.tuple(word, word).map(([code, text]) => `E,${code},${text}`) },
+  )
+  .chain((l) =>
+    l.startsWith('D,') ? fc.constant(l) : fc.boolean().map((lower) => referenceLine(l, lower)),
+  );
+
+/** One character of a line replaced by another byte (0..255, as latin1). */
+const mutated = fc
+  .tuple(validLine, fc.nat(), fc.integer({ min: 0, max: 255 }))
+  .map(([line, pos, byte]) => {
+    const at = pos % line.length;
+    return { line, at, bad: line.slice(0, at) + String.fromCharCode(byte) + line.slice(at + 1) };
+  });
+
 /** Text that looks a little like the protocol, to get past the first checks now and then. */
-const protocolish = fc.string({ unit: fc.constantFrom(...'DHAEC,0123456789|ABCDEFabcdef\r-. '), maxLength: 80 });
+const protocolish = fc.string({
+  unit: fc.constantFrom(...'DHAEC,0123456789|ABCDEFabcdef\r-. '),
+  maxLength: 80,
+});
 const latin1 = fc.uint8Array({ maxLength: 300 }).map((b) => Buffer.from(b).toString('latin1'));
 const anyText = fc.oneof(fc.string({ unit: 'binary', maxLength: 120 }), latin1, protocolish);
 
 describe('codec properties', () => {
   it('any text or bytes: decodeRigLine never throws and a reject always names its reason (50 000 runs)', () => {
     fc.assert(
-      fc.property(fc.oneof(anyText, mutated.map((m) => m.bad)), (text) => {
-        const r = decodeRigLine(text, ADC_BITS);
-        if (!r.ok) expect(typeof r.detail).toBe('string');
-      }),
+      fc.property(
+        fc.oneof(
+          anyText,
+          mutated.map((m) => m.bad),
+        ),
+        (text) => {
+          const r = decodeRigLine(text, ADC_BITS);
+          if (!r.ok) expect(typeof r.detail).toBe('string');
+        },
+      ),
       { numRuns: 50_000 },
     );
   });
@@ -80,7 +107,10 @@ describe('codec properties', () => {
   it('every valid data frame decodes to exactly what was encoded (15 000 runs)', () => {
     fc.assert(
       fc.property(dataFields, (f) => {
-        expect(decodeRigLine(encodeDataFrame(f).trimEnd(), ADC_BITS)).toEqual({ ok: true, message: { kind: 'data', ...f } satisfies DataFrame });
+        expect(decodeRigLine(encodeDataFrame(f).trimEnd(), ADC_BITS)).toEqual({
+          ok: true,
+          message: { kind: 'data', ...f } satisfies DataFrame,
+        });
       }),
       { numRuns: 15_000 },
     );
@@ -147,17 +177,24 @@ describe('pipeline properties', () => {
       return nextLine.slice(0, at) + String.fromCharCode(byte) + nextLine.slice(at + 1);
     });
     fc.assert(
-      fc.property(fc.oneof(anyText, mutated.map((m) => m.bad), damagedNext), (bad) => {
-        const hit = replay();
-        const before = snapshot(hit);
-        const out = hit.pipeline.line(bad, t + 50, t + 50);
-        if (out.kind !== 'rejected') return; // a valid line after all (a checksum digit in the other case)
-        expect(snapshot(hit)).toEqual(before);
-        expect(hit.pipeline.counters.rejected).toBe(cleanRejected + 1);
-        // the time base and the session saw nothing: the next good frame comes out the same
-        expect(hit.pipeline.line(nextLine, t + 100, t + 100)).toEqual(cleanNext);
-        expect(snapshot(hit)).toEqual(cleanAfter);
-      }),
+      fc.property(
+        fc.oneof(
+          anyText,
+          mutated.map((m) => m.bad),
+          damagedNext,
+        ),
+        (bad) => {
+          const hit = replay();
+          const before = snapshot(hit);
+          const out = hit.pipeline.line(bad, t + 50, t + 50);
+          if (out.kind !== 'rejected') return; // a valid line after all (a checksum digit in the other case)
+          expect(snapshot(hit)).toEqual(before);
+          expect(hit.pipeline.counters.rejected).toBe(cleanRejected + 1);
+          // the time base and the session saw nothing: the next good frame comes out the same
+          expect(hit.pipeline.line(nextLine, t + 100, t + 100)).toEqual(cleanNext);
+          expect(snapshot(hit)).toEqual(cleanAfter);
+        },
+      ),
       { numRuns: 10_000 },
     );
   });

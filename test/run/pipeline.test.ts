@@ -60,7 +60,15 @@ describe('pipeline: line -> codec -> time base -> chain -> calibration -> sessio
     rig.feed(referenceLine('D,0,1,2'));
     rig.seq += 4; // four frames never arrive
     rig.run(500);
-    const other = encodeDataFrame({ channel: 3, seq: 1, tickMs: 1, vRaw: 1, iRaw: 1, tRaw: 1, flags: 1 }).trimEnd();
+    const other = encodeDataFrame({
+      channel: 3,
+      seq: 1,
+      tickMs: 1,
+      vRaw: 1,
+      iRaw: 1,
+      tRaw: 1,
+      flags: 1,
+    }).trimEnd();
     expect(rig.feed(other)).toEqual({ kind: 'ignored' });
     const c = rig.pipeline.counters;
     expect(c.rejected).toBe(3);
@@ -74,8 +82,14 @@ describe('pipeline: line -> codec -> time base -> chain -> calibration -> sessio
   it('acknowledgements reach the session; hello and rig errors become events', () => {
     const rig = new LineRig();
     rig.run(10_000, () => rig.session.state === 'discharging');
-    expect(rig.feed(referenceLine('H,bench-a,1.4.2,12,1'))).toMatchObject({ kind: 'message', event: { name: 'rig_hello', detail: { adc_bits: 12 } } });
-    expect(rig.feed(referenceLine('E,3,thermistor rail'))).toMatchObject({ kind: 'message', event: { name: 'rig_error', detail: { code: '3' } } });
+    expect(rig.feed(referenceLine('H,bench-a,1.4.2,12,1'))).toMatchObject({
+      kind: 'message',
+      event: { name: 'rig_hello', detail: { adc_bits: 12 } },
+    });
+    expect(rig.feed(referenceLine('E,3,thermistor rail'))).toMatchObject({
+      kind: 'message',
+      event: { name: 'rig_error', detail: { code: '3' } },
+    });
     rig.session.requestStop(rig.t, 'test');
     const ack = rig.feed(referenceLine('A,LOAD,0,0'));
     expect(ack).toMatchObject({ kind: 'message', event: { name: 'rig_ack' } });
@@ -87,7 +101,12 @@ describe('pipeline: line -> codec -> time base -> chain -> calibration -> sessio
   it('a new corrector applies from the next frame and its id goes into the rows', () => {
     const rig = new LineRig();
     rig.run(10_000, () => rig.session.state === 'discharging');
-    rig.pipeline.setCorrector({ id: 'cal-test', voltage: (x) => x, current: (x) => 1.01 * x, temperature: (x) => x });
+    rig.pipeline.setCorrector({
+      id: 'cal-test',
+      voltage: (x) => x,
+      current: (x) => 1.01 * x,
+      temperature: (x) => x,
+    });
     const out = rig.step();
     if (out.kind !== 'sample') throw new Error(out.kind);
     expect(out.row.calibrationId).toBe('cal-test');

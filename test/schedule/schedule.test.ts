@@ -75,7 +75,9 @@ describe('duty cycle: on X s every Y s', () => {
     });
     fc.assert(
       fc.property(shape, fc.integer({ min: 0, max: 3 * 24 * 3600 }), (x, tS) => {
-        const sched = parseScheduleOption(`on ${x.on} s every ${x.on + x.off} s, ${x.windowH} h per day${x.rest ? `, rest ${x.rest} s` : ''}`);
+        const sched = parseScheduleOption(
+          `on ${x.on} s every ${x.on + x.off} s, ${x.windowH} h per day${x.rest ? `, rest ${x.rest} s` : ''}`,
+        );
         return loadOnMsUntil(sched, tS * S) === walkedOnMs(sched, tS * S);
       }),
       { numRuns: 200 },
@@ -83,7 +85,7 @@ describe('duty cycle: on X s every Y s', () => {
   });
 });
 
-describe('IEC 60086-2 application-test shapes (CHECKS.md, from memory of the standard\'s table)', () => {
+describe("IEC 60086-2 application-test shapes (from memory of the standard's table)", () => {
   it('43 Ω for 4 h a day to 0.9 V', () => {
     const s = parseScheduleOption('43 ohm, 4 h per day, to 0.9 V');
     expect(s.loadOhm).toBe(43);
@@ -101,20 +103,34 @@ describe('IEC 60086-2 application-test shapes (CHECKS.md, from memory of the sta
     expect(s.loadOhm).toBe(24);
     expect(s.endPointVPerCell).toBe(1.0);
     expect(loadOnMsUntil(s, 24 * H)).toBe(2 * H);
-    expect(loadPlanAt(s, 8 * H - 30 * S)).toEqual({ on: false, finished: false, nextChangeMs: 24 * H });
-    expect(loadPlanAt(s, 24 * H + 10 * S)).toEqual({ on: true, finished: false, nextChangeMs: 24 * H + 15 * S });
+    expect(loadPlanAt(s, 8 * H - 30 * S)).toEqual({
+      on: false,
+      finished: false,
+      nextChangeMs: 24 * H,
+    });
+    expect(loadPlanAt(s, 24 * H + 10 * S)).toEqual({
+      on: true,
+      finished: false,
+      nextChangeMs: 24 * H + 15 * S,
+    });
   });
 
   it('3.9 Ω for 1 h a day to 0.8 V, also as a schedule file', () => {
     const fromText = parseScheduleOption('3.9 ohm, 1 h per day, to 0.8 V');
-    const fromFile = parseScheduleYaml('description: heavy daily load\nload_ohm: 3.9\ndaily: 1 h\nend_point_V_per_cell: 0.8\n', 'lr6-heavy.yaml');
+    const fromFile = parseScheduleYaml(
+      'description: heavy daily load\nload_ohm: 3.9\ndaily: 1 h\nend_point_V_per_cell: 0.8\n',
+      'lr6-heavy.yaml',
+    );
     expect({ ...fromFile, description: '' }).toEqual({ ...fromText, description: '' });
     expect(fromFile.description).toBe('heavy daily load');
     expect(loadOnMsUntil(fromFile, 3 * 24 * H + 30 * MIN)).toBe(3 * H + 30 * MIN);
   });
 
   it('the 15 s / 1 min / 8 h shape written as a file with a pulse inside a daily window', () => {
-    const s = parseScheduleYaml('load_ohm: 24\npulse: { on: 15 s, every: 1 min }\ndaily: 8 h\nend_point_V_per_cell: 1.0\n', 'lr6-pulse.yaml');
+    const s = parseScheduleYaml(
+      'load_ohm: 24\npulse: { on: 15 s, every: 1 min }\ndaily: 8 h\nend_point_V_per_cell: 1.0\n',
+      'lr6-pulse.yaml',
+    );
     expect(describeSchedule(s)).toBe('24 ohm, on 15 s every 1 min, 8 h per day, to 1 V');
     expect(loadOnMsUntil(s, 24 * H)).toBe(2 * H);
   });
@@ -135,29 +151,61 @@ describe('schedules: other shapes', () => {
   });
 
   it('explicit steps with rests, repeated or run once', () => {
-    const text = 'steps:\n  - load: 10 min\n  - rest: 50 min\n  - load: 2 min\n    pulse: { on: 10 s, every: 30 s }\n  - rest: 1 h\n';
+    const text =
+      'steps:\n  - load: 10 min\n  - rest: 50 min\n  - load: 2 min\n    pulse: { on: 10 s, every: 30 s }\n  - rest: 1 h\n';
     const s = parseScheduleYaml(text, 'steps.yaml');
     // One cycle: 10 min plus 4 pulses of 10 s.
     expect(loadOnMsUntil(s, 2 * H + 2 * MIN)).toBe(10 * MIN + 40 * S);
     expect(loadOnMsUntil(s, 4 * H + 4 * MIN)).toBe(2 * (10 * MIN + 40 * S));
     const once = parseScheduleYaml(`${text}repeat: false\n`, 'once.yaml');
-    expect(loadPlanAt(once, 2 * H + 2 * MIN)).toEqual({ on: false, finished: true, nextChangeMs: null });
-    expect(loadPlanAt(once, 30 * MIN)).toEqual({ on: false, finished: false, nextChangeMs: 60 * MIN });
-    expect(loadPlanAt(once, 61 * MIN)).toEqual({ on: true, finished: false, nextChangeMs: 61 * MIN + 10 * S });
+    expect(loadPlanAt(once, 2 * H + 2 * MIN)).toEqual({
+      on: false,
+      finished: true,
+      nextChangeMs: null,
+    });
+    expect(loadPlanAt(once, 30 * MIN)).toEqual({
+      on: false,
+      finished: false,
+      nextChangeMs: 60 * MIN,
+    });
+    expect(loadPlanAt(once, 61 * MIN)).toEqual({
+      on: true,
+      finished: false,
+      nextChangeMs: 61 * MIN + 10 * S,
+    });
     // The last rest runs into the end of the schedule: the next change is the finish.
-    expect(loadPlanAt(once, 63 * MIN)).toEqual({ on: false, finished: false, nextChangeMs: 2 * H + 2 * MIN });
+    expect(loadPlanAt(once, 63 * MIN)).toEqual({
+      on: false,
+      finished: false,
+      nextChangeMs: 2 * H + 2 * MIN,
+    });
   });
 
   it('refuses what it cannot mean, naming the key and the fix', () => {
     const cases: Array<[() => unknown, string]> = [
-      [() => parseScheduleOption('on 1 min every 30 s'), 'pulse.on (1 min) must be shorter than pulse.every (30 s)'],
+      [
+        () => parseScheduleOption('on 1 min every 30 s'),
+        'pulse.on (1 min) must be shorter than pulse.every (30 s)',
+      ],
       [() => parseScheduleOption('25 h per day'), 'more than a day'],
-      [() => parseScheduleOption('continuous, 4 h per day'), 'continuous cannot be combined with daily'],
+      [
+        () => parseScheduleOption('continuous, 4 h per day'),
+        'continuous cannot be combined with daily',
+      ],
       [() => parseScheduleOption('sometimes'), '"sometimes" is not a schedule clause'],
       [() => parseScheduleOption('on 15 every 60 s'), 'must be a positive duration, got "15"'],
-      [() => parseScheduleYaml('daily: 4 h\nrepat: true\n', 's.yaml'), 'repat is not a schedule key'],
-      [() => parseScheduleYaml('steps:\n  - load: until end\n  - rest: 1 h\n', 's.yaml'), 'only the last step'.replace('only', 'Only')],
-      [() => parseScheduleYaml('steps:\n  - rest: 1 h\n    load: 2 h\n', 's.yaml'), 'exactly one of load and rest'],
+      [
+        () => parseScheduleYaml('daily: 4 h\nrepat: true\n', 's.yaml'),
+        'repat is not a schedule key',
+      ],
+      [
+        () => parseScheduleYaml('steps:\n  - load: until end\n  - rest: 1 h\n', 's.yaml'),
+        'only the last step'.replace('only', 'Only'),
+      ],
+      [
+        () => parseScheduleYaml('steps:\n  - rest: 1 h\n    load: 2 h\n', 's.yaml'),
+        'exactly one of load and rest',
+      ],
     ];
     for (const [f, text] of cases) {
       const e = refusal(f);

@@ -54,10 +54,19 @@ export class Bench {
   readonly rig: RigBehaviour = { obeys: true, acks: false, talks: true };
   reading: (t: number, loadOn: boolean) => Reading;
 
-  constructor(settings: SessionSettings = liIonSettings(), readonly frameMs = 100) {
+  constructor(
+    settings: SessionSettings = liIonSettings(),
+    readonly frameMs = 100,
+  ) {
     this.session = new Session(settings);
     // A healthy cell: 4.00 V at rest, 0.1 Ω, 1 A with the load on, 25 °C.
-    this.reading = (_t, on) => ({ volts: on ? 3.9 : 4.0, amps: on ? 1 : 0, celsius: 25, thermistor: 'ok', flags: 0 });
+    this.reading = (_t, on) => ({
+      volts: on ? 3.9 : 4.0,
+      amps: on ? 1 : 0,
+      celsius: 25,
+      thermistor: 'ok',
+      flags: 0,
+    });
     this.take(this.session.begin(this.t));
   }
 
@@ -98,11 +107,15 @@ export class Bench {
   }
 
   get sent(): { at: number; command: HostCommand }[] {
-    return this.actions.flatMap(({ at, action }) => (action.type === 'send' ? [{ at, command: action.command }] : []));
+    return this.actions.flatMap(({ at, action }) =>
+      action.type === 'send' ? [{ at, command: action.command }] : [],
+    );
   }
 
   loadCommands(on: boolean): number[] {
-    return this.sent.filter((s) => s.command.command === 'LOAD' && s.command.on === on).map((s) => s.at);
+    return this.sent
+      .filter((s) => s.command.command === 'LOAD' && s.command.on === on)
+      .map((s) => s.at);
   }
 
   beats(): number[] {
@@ -115,7 +128,9 @@ export class Bench {
   }
 
   events(name: string): Record<string, unknown>[] {
-    return this.actions.flatMap(({ action }) => (action.type === 'event' && action.name === name ? [action.detail] : []));
+    return this.actions.flatMap(({ action }) =>
+      action.type === 'event' && action.name === name ? [action.detail] : [],
+    );
   }
 
   states(): string[] {

@@ -2,7 +2,13 @@ import { describe, expect, it } from 'vitest';
 import { Integrator } from '../../src/session/integrator.js';
 
 /** Feeds samples of i(t), v(t) every `stepS` seconds from 0 to `totalS`. */
-function integrate(totalS: number, stepS: number, amps: (t: number) => number, volts: (t: number) => number = () => 3.7, loadOn: (t: number) => boolean = () => true): Integrator {
+function integrate(
+  totalS: number,
+  stepS: number,
+  amps: (t: number) => number,
+  volts: (t: number) => number = () => 3.7,
+  loadOn: (t: number) => boolean = () => true,
+): Integrator {
   const integ = new Integrator();
   const n = Math.round(totalS / stepS);
   for (let k = 0; k <= n; k++) {
@@ -13,7 +19,7 @@ function integrate(totalS: number, stepS: number, amps: (t: number) => number, v
 }
 
 describe('integrator: charge is the time integral of current (physics)', () => {
-  it('1 A for 10 min is 1/6 Ah = 166.7 mAh (physics; CHECKS.md)', () => {
+  it('1 A for 10 min is 1/6 Ah = 166.7 mAh (physics)', () => {
     const integ = integrate(600, 0.1, () => 1);
     expect(integ.chargeAh * 1000).toBeCloseTo(166.667, 3);
     expect(integ.chargeAh).toBeCloseTo(1 / 6, 12);
@@ -44,23 +50,45 @@ describe('integrator: charge is the time integral of current (physics)', () => {
   });
 
   it('energy is ∫V·I dt: 3.7 V at 0.5 A for 2 h is 3.7 Wh (physics: P = V·I)', () => {
-    const integ = integrate(7200, 1, () => 0.5, () => 3.7);
+    const integ = integrate(
+      7200,
+      1,
+      () => 0.5,
+      () => 3.7,
+    );
     expect(integ.energyWh).toBeCloseTo(3.7, 10);
     expect(integ.chargeAh).toBeCloseTo(1, 10);
   });
 
   it('energy with a voltage falling linearly 4.2 -> 3.0 V at 1 A for 1 h is the mean voltage times 1 Ah: 3.6 Wh', () => {
-    const integ = integrate(3600, 1, () => 1, (t) => 4.2 - (1.2 * t) / 3600);
+    const integ = integrate(
+      3600,
+      1,
+      () => 1,
+      (t) => 4.2 - (1.2 * t) / 3600,
+    );
     expect(integ.energyWh).toBeCloseTo(3.6, 10);
   });
 
   it('current counts only while the load flag is on: an offset with the load off adds nothing', () => {
-    const off = integrate(600, 1, () => 0.033, () => 3.7, () => false);
+    const off = integrate(
+      600,
+      1,
+      () => 0.033,
+      () => 3.7,
+      () => false,
+    );
     expect(off.chargeAh).toBe(0);
     expect(off.energyWh).toBe(0);
     expect(off.onMs).toBe(0);
     // on for the middle 10 minutes of 30: 1 A for 600 s; each switching step counts half
-    const mixed = integrate(1800, 1, () => 1, () => 3.7, (t) => t >= 600 && t < 1200);
+    const mixed = integrate(
+      1800,
+      1,
+      () => 1,
+      () => 3.7,
+      (t) => t >= 600 && t < 1200,
+    );
     expect(mixed.chargeAh).toBeCloseTo(600 / 3600, 12);
     expect(mixed.onMs).toBe(600_000);
   });

@@ -11,17 +11,23 @@ describe('session: start', () => {
     const b = new Bench();
     b.start();
     expect(b.states()).toEqual(['waiting', 'precheck', 'starting', 'discharging']);
-    const precheckAt = b.actions.find(({ action }) => action.type === 'event' && action.name === 'precheck_passed')!.at;
+    const precheckAt = b.actions.find(
+      ({ action }) => action.type === 'event' && action.name === 'precheck_passed',
+    )!.at;
     expect(precheckAt).toBeGreaterThanOrEqual(1000); // 1 s of resting frames by default
     expect(b.loadCommands(true)).toEqual([precheckAt]);
     expect(b.session.openCircuitV).toBeCloseTo(4.0, 12);
   });
 
-  it('DC internal resistance from the first loaded frame: (4.00 − 3.90) V / 1 A = 0.1 Ω (CHECKS.md: open-circuit/loaded form)', () => {
+  it('DC internal resistance from the first loaded frame: (4.00 − 3.90) V / 1 A = 0.1 Ω (IEC 61951-2, IEC 61960-3: open-circuit/loaded form; from memory)', () => {
     const b = new Bench();
     b.start();
     expect(b.session.dcResistanceOhm).toBeCloseTo(0.1, 12);
-    expect(b.events('load_on')[0]).toMatchObject({ open_circuit_V: 4, loaded_V: 3.9, current_A: 1 });
+    expect(b.events('load_on')[0]).toMatchObject({
+      open_circuit_V: 4,
+      loaded_V: 3.9,
+      current_A: 1,
+    });
   });
 
   it('refuses a resting voltage checkRest rejects: a Li-ion cell at 4.35 V is above 4.25 V (4.20 V full charge, common practice)', () => {
@@ -95,7 +101,13 @@ describe('session: end of discharge with debounce', () => {
   it('a single noisy frame below the cutoff does not end the run', () => {
     const b = discharging();
     const noisyAt = b.t + 1000;
-    b.reading = (t, on) => ({ volts: t === noisyAt ? 2.9 : on ? 3.9 : 4.0, amps: on ? 1 : 0, celsius: 25, thermistor: 'ok', flags: 0 });
+    b.reading = (t, on) => ({
+      volts: t === noisyAt ? 2.9 : on ? 3.9 : 4.0,
+      amps: on ? 1 : 0,
+      celsius: 25,
+      thermistor: 'ok',
+      flags: 0,
+    });
     b.run(20_000);
     expect(b.session.state).toBe('discharging');
   });
@@ -107,7 +119,13 @@ describe('session: end of discharge with debounce', () => {
     b.reading = (t, on) => {
       const k = (t - t0) / 100;
       const low = k === 1 || k === 2 || (k > 20 && k < 70 && k % 2 === 0);
-      return { volts: low ? 2.95 : on ? 3.9 : 4.0, amps: on ? 1 : 0, celsius: 25, thermistor: 'ok', flags: 0 };
+      return {
+        volts: low ? 2.95 : on ? 3.9 : 4.0,
+        amps: on ? 1 : 0,
+        celsius: 25,
+        thermistor: 'ok',
+        flags: 0,
+      };
     };
     b.run(20_000);
     expect(b.session.state).toBe('discharging');
@@ -116,7 +134,13 @@ describe('session: end of discharge with debounce', () => {
   it('a sustained crossing ends it within debounce + 1 s, sends LOAD 0 and waits for the load flag', () => {
     const b = discharging();
     const crossAt = b.t + 100;
-    b.reading = (_t, on) => ({ volts: on ? 2.98 : 3.3, amps: on ? 1 : 0, celsius: 25, thermistor: 'ok', flags: 0 });
+    b.reading = (_t, on) => ({
+      volts: on ? 2.98 : 3.3,
+      amps: on ? 1 : 0,
+      celsius: 25,
+      thermistor: 'ok',
+      flags: 0,
+    });
     const stopAt = b.run(10_000, () => b.session.state === 'stopping');
     expect(stopAt).not.toBeNull();
     expect(stopAt! - crossAt).toBeGreaterThanOrEqual(1000);
@@ -164,31 +188,49 @@ describe('session: end of discharge with debounce', () => {
 
 describe('session: safety trips', () => {
   const trips: [string, (r: Reading) => Reading, string, RegExp][] = [
-    ['over-temperature', (r) => ({ ...r, celsius: 62 }), 'over_temperature', /above the limit of 60/],
-    ['thermistor open', (r) => ({ ...r, thermistor: 'open', celsius: Number.NaN }), 'fault', /thermistor_open/],
-    ['thermistor short', (r) => ({ ...r, thermistor: 'short', celsius: Number.NaN }), 'fault', /thermistor_short/],
+    [
+      'over-temperature',
+      (r) => ({ ...r, celsius: 62 }),
+      'over_temperature',
+      /above the limit of 60/,
+    ],
+    [
+      'thermistor open',
+      (r) => ({ ...r, thermistor: 'open', celsius: Number.NaN }),
+      'fault',
+      /thermistor_open/,
+    ],
+    [
+      'thermistor short',
+      (r) => ({ ...r, thermistor: 'short', celsius: Number.NaN }),
+      'fault',
+      /thermistor_short/,
+    ],
     ['over-current', (r) => ({ ...r, amps: 6 }), 'fault', /over_current/],
     ['rig fault flag', (r) => ({ ...r, flags: FLAG_RIG_FAULT }), 'fault', /rig_fault/],
   ];
 
-  it.each(trips)('%s stops the run within 3 frames, sends LOAD 0 and waits for the confirmation', (_n, bad, reason, detail) => {
-    const b = new Bench();
-    b.start();
-    b.run(2000);
-    const healthy = b.reading;
-    b.reading = (t, on) => bad(healthy(t, on));
-    b.rig.obeys = false; // hold the load on: the session must wait
-    const from = b.t;
-    const stopAt = b.run(5000, () => b.session.state === 'stopping');
-    expect(stopAt! - from).toBeLessThanOrEqual(300);
-    expect(b.loadCommands(false)).toEqual([stopAt]);
-    b.run(900);
-    expect(b.session.state).toBe('stopping');
-    b.loadOn = false; // the rig finally reports the load off
-    b.step();
-    expect(b.end).toMatchObject({ reason, loadOffConfirmed: true });
-    expect(b.end!.detail).toMatch(detail);
-  });
+  it.each(trips)(
+    '%s stops the run within 3 frames, sends LOAD 0 and waits for the confirmation',
+    (_n, bad, reason, detail) => {
+      const b = new Bench();
+      b.start();
+      b.run(2000);
+      const healthy = b.reading;
+      b.reading = (t, on) => bad(healthy(t, on));
+      b.rig.obeys = false; // hold the load on: the session must wait
+      const from = b.t;
+      const stopAt = b.run(5000, () => b.session.state === 'stopping');
+      expect(stopAt! - from).toBeLessThanOrEqual(300);
+      expect(b.loadCommands(false)).toEqual([stopAt]);
+      b.run(900);
+      expect(b.session.state).toBe('stopping');
+      b.loadOn = false; // the rig finally reports the load off
+      b.step();
+      expect(b.end).toMatchObject({ reason, loadOffConfirmed: true });
+      expect(b.end!.detail).toMatch(detail);
+    },
+  );
 
   it('an acknowledgement A,LOAD,<ch>,0 confirms the stop as well as the load flag', () => {
     const b = new Bench();
@@ -236,7 +278,11 @@ describe('session: safety trips', () => {
     b.take(b.session.requestStop(b.t, 'the live page'));
     expect(b.session.state).toBe('stopping');
     b.step();
-    expect(b.end).toMatchObject({ reason: 'stopped', loadOffConfirmed: true, detail: 'stopped by the live page' });
+    expect(b.end).toMatchObject({
+      reason: 'stopped',
+      loadOffConfirmed: true,
+      detail: 'stopped by the live page',
+    });
   });
 
   it('a stop before the load is on ends at once and commands nothing', () => {

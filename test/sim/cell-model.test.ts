@@ -3,7 +3,7 @@ import { CHEMISTRY_IDS, ChemistryCell, ocvPerCell } from '../../src/sim/cell-mod
 import { ThermalModel } from '../../src/sim/thermal.js';
 
 describe('cell model', () => {
-  it('open-circuit volts per cell span the chemistry\'s usual range, full to empty (common practice, from memory)', () => {
+  it("open-circuit volts per cell span the chemistry's usual range, full to empty (common practice, from memory)", () => {
     // Rough resting voltages per cell, full and empty, as commonly quoted.
     const span: Record<(typeof CHEMISTRY_IDS)[number], [number, number]> = {
       'li-ion': [4.18, 2.5],
@@ -43,7 +43,13 @@ describe('cell model', () => {
   });
 
   it('internal resistance rises near empty and in the cold', () => {
-    const cell = new ChemistryCell({ chemistry: 'li-ion', cells: 1, capacityAh: 1, initialSoc: 0.5, internalOhmPerCell: 0.05 });
+    const cell = new ChemistryCell({
+      chemistry: 'li-ion',
+      cells: 1,
+      capacityAh: 1,
+      initialSoc: 0.5,
+      internalOhmPerCell: 0.05,
+    });
     expect(cell.internalOhm(25)).toBeCloseTo(0.05, 12);
     expect(cell.internalOhm(0)).toBeGreaterThan(2 * cell.internalOhm(25));
     cell.step(3600, 0.5);
@@ -51,14 +57,24 @@ describe('cell model', () => {
   });
 
   it('rejects impossible cells', () => {
-    expect(() => new ChemistryCell({ chemistry: 'nimh', cells: 0, capacityAh: 1, initialSoc: 1 })).toThrow(/cells/);
-    expect(() => new ChemistryCell({ chemistry: 'nimh', cells: 1, capacityAh: 0, initialSoc: 1 })).toThrow(/capacity/);
+    expect(
+      () => new ChemistryCell({ chemistry: 'nimh', cells: 0, capacityAh: 1, initialSoc: 1 }),
+    ).toThrow(/cells/);
+    expect(
+      () => new ChemistryCell({ chemistry: 'nimh', cells: 1, capacityAh: 0, initialSoc: 1 }),
+    ).toThrow(/capacity/);
   });
 });
 
 describe('thermal model', () => {
   it('physics: with steady heat P the cell settles at ambient + P/G, with time constant C/G', () => {
-    const m = new ThermalModel({ ambientC: 20, heatCapacityJPerK: 40, conductanceWPerK: 0.1, loadHeatFraction: 0, extraHeatW: 0 });
+    const m = new ThermalModel({
+      ambientC: 20,
+      heatCapacityJPerK: 40,
+      conductanceWPerK: 0.1,
+      loadHeatFraction: 0,
+      extraHeatW: 0,
+    });
     m.step(400, 1); // one time constant: 1 − 1/e of the way to 30 °C
     expect(m.temperatureC).toBeCloseTo(20 + 10 * (1 - Math.exp(-1)), 9);
     for (let k = 0; k < 100; k++) m.step(100, 1);
@@ -66,7 +82,13 @@ describe('thermal model', () => {
   });
 
   it('heat is I²R of the cell plus the coupled share of the load and the extra input', () => {
-    const m = new ThermalModel({ ambientC: 20, heatCapacityJPerK: 40, conductanceWPerK: 0.1, loadHeatFraction: 0.5, extraHeatW: 2 });
+    const m = new ThermalModel({
+      ambientC: 20,
+      heatCapacityJPerK: 40,
+      conductanceWPerK: 0.1,
+      loadHeatFraction: 0.5,
+      extraHeatW: 2,
+    });
     expect(m.heatW(2, 0.05, 1)).toBeCloseTo(4 * 0.05 + 0.5 * 4 * 1 + 2, 12);
   });
 });

@@ -1,9 +1,20 @@
 import { describe, expect, it } from 'vitest';
-import { adcCounts, amplifierGain, FrontEnd, ntcOhm, type FrontEndErrors } from '../../src/sim/front-end.js';
+import {
+  adcCounts,
+  amplifierGain,
+  FrontEnd,
+  ntcOhm,
+  type FrontEndErrors,
+} from '../../src/sim/front-end.js';
 import { mulberry32 } from '../../src/sim/prng.js';
 import { BENCH_PROFILE } from './helpers.js';
 
-const EXACT: FrontEndErrors = { inputOffsetV: 0, connectionOhm: 0, voltageGainError: 0, noiseCounts: 0 };
+const EXACT: FrontEndErrors = {
+  inputOffsetV: 0,
+  connectionOhm: 0,
+  voltageGainError: 0,
+  noiseCounts: 0,
+};
 const fe = (errors: Partial<FrontEndErrors> = {}, profile = BENCH_PROFILE) =>
   new FrontEnd(profile, { ...EXACT, ...errors }, mulberry32(7));
 
@@ -44,13 +55,19 @@ describe('analog front end', () => {
   it('physics (Beta equation): an NTC is R25 at 25 °C and lower when warmer', () => {
     expect(ntcOhm(25, 10000, 3950)).toBeCloseTo(10000, 6);
     // R(T) = R25·exp(B(1/T − 1/T25)) at 50 °C with B = 3950 K.
-    expect(ntcOhm(50, 10000, 3950)).toBeCloseTo(10000 * Math.exp(3950 * (1 / 323.15 - 1 / 298.15)), 6);
+    expect(ntcOhm(50, 10000, 3950)).toBeCloseTo(
+      10000 * Math.exp(3950 * (1 / 323.15 - 1 / 298.15)),
+      6,
+    );
     expect(ntcOhm(60, 10000, 3950)).toBeLessThan(ntcOhm(40, 10000, 3950));
   });
 
   it('NTC position: low reads fewer counts when warmer, high reads more; equal parts at 25 °C give half scale', () => {
     const low = fe();
-    const high = fe({}, { ...BENCH_PROFILE, temperature: { ...BENCH_PROFILE.temperature, ntc_position: 'high' } });
+    const high = fe(
+      {},
+      { ...BENCH_PROFILE, temperature: { ...BENCH_PROFILE.temperature, ntc_position: 'high' } },
+    );
     expect(low.temperature(25).counts).toBe(2048);
     expect(high.temperature(25).counts).toBe(2048);
     expect(low.temperature(60).counts).toBeLessThan(low.temperature(25).counts);
@@ -81,8 +98,13 @@ describe('analog front end', () => {
   });
 
   it('an inverting stage given as rin/rf has gain rf/rin', () => {
-    const profile = { ...BENCH_PROFILE, current: { shunt_ohm: 0.01, rin_ohm: 1000, rf_ohm: 47000 } };
+    const profile = {
+      ...BENCH_PROFILE,
+      current: { shunt_ohm: 0.01, rin_ohm: 1000, rf_ohm: 47000 },
+    };
     expect(amplifierGain(profile)).toBe(47);
-    expect(() => amplifierGain({ ...BENCH_PROFILE, current: { shunt_ohm: 0.01 } })).toThrow(/current\.amplifier_gain/);
+    expect(() => amplifierGain({ ...BENCH_PROFILE, current: { shunt_ohm: 0.01 } })).toThrow(
+      /current\.amplifier_gain/,
+    );
   });
 });

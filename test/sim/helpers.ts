@@ -1,11 +1,13 @@
 import { fileURLToPath } from 'node:url';
 import type { RigProfile } from '../../src/chain/rig-profile-types.js';
-import { VirtualClock } from '../../src/core/clock.js';
+import type { VirtualClock } from '../../src/core/clock.js';
 import { encodeCommand } from '../../src/protocol/codec.js';
 import type { Cell } from '../../src/sim/cell-model.js';
 import { SimRig, type SimRigOptions } from '../../src/sim/sim-rig.js';
 
-export const SCENARIO_FILE = fileURLToPath(new URL('../../config/sim-scenarios.yaml', import.meta.url));
+export const SCENARIO_FILE = fileURLToPath(
+  new URL('../../config/sim-scenarios.yaml', import.meta.url),
+);
 
 /** The bench rig of config/rigs/bench-20mohm.yaml, inlined so these tests stand alone. */
 export const BENCH_PROFILE: RigProfile = {
@@ -56,7 +58,13 @@ export function simpleRig(clock: VirtualClock, over: Partial<SimRigOptions> = {}
     clock,
     profile: BENCH_PROFILE,
     cell: new IdealSource(3.7),
-    thermal: { ambientC: 25, heatCapacityJPerK: 40, conductanceWPerK: 0.1, loadHeatFraction: 0, extraHeatW: 0 },
+    thermal: {
+      ambientC: 25,
+      heatCapacityJPerK: 40,
+      conductanceWPerK: 0.1,
+      loadHeatFraction: 0,
+      extraHeatW: 0,
+    },
     loadOhm: 3,
     mosfetOhm: 0.01,
     frontEnd: { inputOffsetV: 0, connectionOhm: 0, voltageGainError: 0, noiseCounts: 0 },

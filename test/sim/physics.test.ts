@@ -16,7 +16,11 @@ describe('truth record', () => {
   it('physics: the rig drawing a steady 1 A for 10 min of sim time records 166.7 mAh', () => {
     const clock = new VirtualClock();
     // 1 V across a 1 Ω loop (load + shunt, no MOSFET or cell resistance) is 1 A.
-    const rig = simpleRig(clock, { cell: new IdealSource(1), loadOhm: 1 - BENCH_PROFILE.current.shunt_ohm, mosfetOhm: 0 });
+    const rig = simpleRig(clock, {
+      cell: new IdealSource(1),
+      loadOhm: 1 - BENCH_PROFILE.current.shunt_ohm,
+      mosfetOhm: 0,
+    });
     const h = harness(rig, clock);
     h.send({ command: 'LOAD', channel: 0, on: true });
     for (let s = 0; s < 600; s++) {
@@ -32,16 +36,20 @@ describe('truth record', () => {
     expect(t.elapsedS).toBeCloseTo(605, 6);
   });
 
-  it('fact of the trade (Ohm\'s law): 1.5 V across 15 Ω is 100 mA', () => {
+  it("fact of the trade (Ohm's law): 1.5 V across 15 Ω is 100 mA", () => {
     const clock = new VirtualClock();
-    const rig = simpleRig(clock, { cell: new IdealSource(1.5), loadOhm: 15 - BENCH_PROFILE.current.shunt_ohm, mosfetOhm: 0 });
+    const rig = simpleRig(clock, {
+      cell: new IdealSource(1.5),
+      loadOhm: 15 - BENCH_PROFILE.current.shunt_ohm,
+      mosfetOhm: 0,
+    });
     const h = harness(rig, clock);
     h.send({ command: 'LOAD', channel: 0, on: true });
     clock.advance(500);
     expect(rig.truth().currentA).toBeCloseTo(0.1, 9);
   });
 
-  it('a cell resistance drops the terminal voltage by I·R (physics: Ohm\'s law)', () => {
+  it("a cell resistance drops the terminal voltage by I·R (physics: Ohm's law)", () => {
     const clock = new VirtualClock();
     const cell = new IdealSource(4);
     cell.internalOhm = () => 0.1;

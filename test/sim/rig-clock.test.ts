@@ -6,7 +6,9 @@ import { RigTickCounter } from '../../src/sim/rig-clock.js';
 import { harness, simpleRig } from './helpers.js';
 
 function frames(lines: string[]): DataFrame[] {
-  return lines.map((l) => decodeRigLine(l, 12)).flatMap((r) => (r.ok && r.message.kind === 'data' ? [r.message] : []));
+  return lines
+    .map((l) => decodeRigLine(l, 12))
+    .flatMap((r) => (r.ok && r.message.kind === 'data' ? [r.message] : []));
 }
 
 describe('rig clock', () => {

@@ -3,9 +3,14 @@ import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { describe, expect, it } from 'vitest';
 import { VirtualClock } from '../../src/core/clock.js';
-import { CellvigilError } from '../../src/core/errors.js';
+import type { CellvigilError } from '../../src/core/errors.js';
 import { decodeRigLine } from '../../src/protocol/codec.js';
-import { buildSimRig, loadScenarios, pickScenario, type SimOverrides } from '../../src/sim/scenarios.js';
+import {
+  buildSimRig,
+  loadScenarios,
+  pickScenario,
+  type SimOverrides,
+} from '../../src/sim/scenarios.js';
 import { BENCH_PROFILE, harness, SCENARIO_FILE } from './helpers.js';
 
 const set = loadScenarios(SCENARIO_FILE);
@@ -28,10 +33,14 @@ function run(name: string, overrides: SimOverrides = {}) {
 
 describe('scenarios', () => {
   it('the shipped file loads: demo, quick, hot and nimh', () => {
-    expect([...set.byName.keys()]).toEqual(expect.arrayContaining(['demo', 'quick', 'hot', 'nimh']));
+    expect([...set.byName.keys()]).toEqual(
+      expect.arrayContaining(['demo', 'quick', 'hot', 'nimh']),
+    );
     expect(pickScenario(set, 'demo').rig.channel).toBe(0);
     expect(pickScenario(set, 'quick').thermal.extra_heat_W).toBe(0);
-    expect(() => pickScenario(set, 'nope')).toThrow(/no simulator scenario "nope".*Use one of: demo/);
+    expect(() => pickScenario(set, 'nope')).toThrow(
+      /no simulator scenario "nope".*Use one of: demo/,
+    );
   });
 
   it('demo: about 1.2 A through the 20 mΩ rig, with the set offset, gain error and a fast clock', () => {
@@ -51,7 +60,10 @@ describe('scenarios', () => {
     expect(mean).toBeCloseTo(t.currentA * 1.04 + 0.03, 2);
     const first = frames[0]!;
     const last = frames.at(-1)!;
-    expect((last.tickMs - first.tickMs) / ((last.seq - first.seq) * (100 / 1.12))).toBeCloseTo(1.12, 2);
+    expect((last.tickMs - first.tickMs) / ((last.seq - first.seq) * (100 / 1.12))).toBeCloseTo(
+      1.12,
+      2,
+    );
   });
 
   it('quick: reaches 3.0 V under load in 20–40 s of time (the real-time end-to-end budget)', () => {
@@ -84,7 +96,13 @@ describe('scenarios', () => {
   });
 
   it('overrides change clock error, burst size, fault rates and seed', () => {
-    const { h, clock } = run('demo', { clockError: 0.2, burstFrames: 4, dropProbability: 0.5, garbageProbability: 0, seed: 3 });
+    const { h, clock } = run('demo', {
+      clockError: 0.2,
+      burstFrames: 4,
+      dropProbability: 0.5,
+      garbageProbability: 0,
+      seed: 3,
+    });
     h.send({ command: 'BEAT' });
     clock.advance(4010);
     const t = h.rig.truth();
@@ -119,7 +137,9 @@ describe('scenario file validation', () => {
   it('a misspelt key is refused, listing the keys allowed', () => {
     const e = load(shipped.replace('load_ohm: 3.0', 'load_ohms: 3.0'));
     expect(e.message).toMatch(/key scenarios\.demo\.load\.(load_ohms|load_ohm)/);
-    expect(e.message).toMatch(/Remove or rename "load_ohms"; the keys allowed here are: load_ohm, mosfet_ohm|Add the key "load_ohm"/);
+    expect(e.message).toMatch(
+      /Remove or rename "load_ohms"; the keys allowed here are: load_ohm, mosfet_ohm|Add the key "load_ohm"/,
+    );
   });
 
   it('an unknown chemistry lists the known ones', () => {
@@ -129,7 +149,12 @@ describe('scenario file validation', () => {
   });
 
   it('the current offset must be given exactly once, in amps or in volts', () => {
-    const e = load(shipped.replace('current_offset_A: 0.030,', 'current_offset_A: 0.030, current_offset_V: 0.0006,'));
+    const e = load(
+      shipped.replace(
+        'current_offset_A: 0.030,',
+        'current_offset_A: 0.030, current_offset_V: 0.0006,',
+      ),
+    );
     expect(e.message).toContain('key scenarios.demo.front_end');
     expect(e.message).toContain('Give exactly one of: current_offset_A, current_offset_V');
   });

@@ -1,7 +1,12 @@
 import { describe, expect, it } from 'vitest';
 import { VirtualClock } from '../../src/core/clock.js';
 import { decodeRigLine, frameLine } from '../../src/protocol/codec.js';
-import { FLAG_LOAD_ON, FLAG_RIG_FAULT, type DataFrame, type RigMessage } from '../../src/protocol/messages.js';
+import {
+  FLAG_LOAD_ON,
+  FLAG_RIG_FAULT,
+  type DataFrame,
+  type RigMessage,
+} from '../../src/protocol/messages.js';
 import { WATCHDOG_MS } from '../../src/sim/sim-rig.js';
 import { harness, simpleRig } from './helpers.js';
 
@@ -23,7 +28,13 @@ describe('simulated rig, protocol v1', () => {
     h.send({ command: 'HELLO' });
     const m = decoded(h.lines());
     expect(dataOf(m).map((f) => f.seq)).toEqual([0, 1, 2, 3, 4, 5, 6, 7, 8, 9]);
-    expect(m[m.length - 1]).toEqual({ kind: 'hello', rigId: 'test-rig', firmware: 'sim-test', adcBits: 12, channels: 1 });
+    expect(m[m.length - 1]).toEqual({
+      kind: 'hello',
+      rigId: 'test-rig',
+      firmware: 'sim-test',
+      adcBits: 12,
+      channels: 1,
+    });
   });
 
   it('LOAD switches the load, is acknowledged, logged, and shows in flag bit 0', () => {
@@ -123,7 +134,10 @@ describe('simulated rig, protocol v1', () => {
 
   it('every line decodes except injected garbage; dropped frames show as sequence gaps', () => {
     const clock = new VirtualClock();
-    const rig = simpleRig(clock, { faults: { dropProbability: 0.1, garbageProbability: 0.1, burstFrames: 1 }, seed: 99 });
+    const rig = simpleRig(clock, {
+      faults: { dropProbability: 0.1, garbageProbability: 0.1, burstFrames: 1 },
+      seed: 99,
+    });
     const h = harness(rig, clock);
     clock.advance(120_000);
     const results = h.lines().map((l) => decodeRigLine(l, 12));
@@ -159,7 +173,10 @@ describe('simulated rig, protocol v1', () => {
 
   it('burst mode writes N frames per chunk; a reply flushes what is queued first, keeping order', () => {
     const clock = new VirtualClock();
-    const h = harness(simpleRig(clock, { faults: { dropProbability: 0, garbageProbability: 0, burstFrames: 5 } }), clock);
+    const h = harness(
+      simpleRig(clock, { faults: { dropProbability: 0, garbageProbability: 0, burstFrames: 5 } }),
+      clock,
+    );
     clock.advance(1000);
     expect(h.chunks.slice(1).map((c) => c.split('\n').length - 1)).toEqual([5, 5]);
     clock.advance(300);

@@ -43,7 +43,9 @@ describe('LogFile rotation (RFC 4180: a header row per file, whole rows)', () =>
     await log.close();
     const files = await readBack();
     expect(files.length).toBeGreaterThan(10);
-    expect(files.map((f) => f.name)).toEqual(files.map((_, k) => `samples-${String(k + 1).padStart(4, '0')}.csv`));
+    expect(files.map((f) => f.name)).toEqual(
+      files.map((_, k) => `samples-${String(k + 1).padStart(4, '0')}.csv`),
+    );
     for (const f of files) {
       expect(f.lines[0]).toBe(HEADER);
       expect(f.lines.length).toBeGreaterThan(1); // no file holds only a header
@@ -59,37 +61,40 @@ describe('LogFile rotation (RFC 4180: a header row per file, whole rows)', () =>
     ['in the middle', ['1,a', `2,${'y'.repeat(100)}`, '3,b', '4,c']],
     ['first', [`1,${'y'.repeat(100)}`, '2,b', '3,c']],
     ['last', ['1,a', '2,b', `3,${'y'.repeat(100)}`]],
-  ])('a row longer than the limit (%s) gets a file of its own rather than being split', async (_where, rows) => {
-    const log = new LogFile({ dir, name: 'samples-', header: HEADER, rotateBytes: 40 });
-    rows.forEach((r) => log.append(r));
-    await log.close();
-    const files = await readBack();
-    expect(files.flatMap((f) => f.lines.slice(1))).toEqual(rows);
-    expect(files.some((f) => f.lines.length === 2 && f.lines[1]!.length > 100)).toBe(true);
-    files.forEach((f) => expect(f.lines[0]).toBe(HEADER));
-    files.forEach((f) => expect(f.lines.length).toBeGreaterThan(1)); // no file holds only a header
-  });
+  ])(
+    'a row longer than the limit (%s) gets a file of its own rather than being split',
+    async (_where, rows) => {
+      const log = new LogFile({ dir, name: 'samples-', header: HEADER, rotateBytes: 40 });
+      rows.forEach((r) => log.append(r));
+      await log.close();
+      const files = await readBack();
+      expect(files.flatMap((f) => f.lines.slice(1))).toEqual(rows);
+      expect(files.some((f) => f.lines.length === 2 && f.lines[1]!.length > 100)).toBe(true);
+      files.forEach((f) => expect(f.lines[0]).toBe(HEADER));
+      files.forEach((f) => expect(f.lines.length).toBeGreaterThan(1)); // no file holds only a header
+    },
+  );
 
   it('sample rows with the sample header survive rotation unchanged', async () => {
     const log = new LogFile({ dir, name: 'samples-', header: SAMPLE_HEADER, rotateBytes: 1024 });
     const rows = Array.from({ length: 50 }, (_, k) => ({
-        hostS: k * 0.1,
-        wallMs: Date.UTC(2026, 0, 1) + k * 100,
-        channel: 0,
-        seq: k,
-        tickMs: k * 100,
-        vRaw: 2400,
-        iRaw: 1500,
-        tRaw: 2048,
-        flags: 1,
-        volts: 3.86,
-        amps: 1.0,
-        celsius: 25,
-        chargeAh: k / 36000,
-        energyWh: (3.86 * k) / 36000,
-        state: 'discharging',
-        calibrationId: 'none',
-      }));
+      hostS: k * 0.1,
+      wallMs: Date.UTC(2026, 0, 1) + k * 100,
+      channel: 0,
+      seq: k,
+      tickMs: k * 100,
+      vRaw: 2400,
+      iRaw: 1500,
+      tRaw: 2048,
+      flags: 1,
+      volts: 3.86,
+      amps: 1.0,
+      celsius: 25,
+      chargeAh: k / 36000,
+      energyWh: (3.86 * k) / 36000,
+      state: 'discharging',
+      calibrationId: 'none',
+    }));
     rows.forEach((r) => log.appendWith(r, sampleRowMaxBytes(r), writeSampleRow));
     await log.close();
     const files = await readBack();
@@ -97,7 +102,24 @@ describe('LogFile rotation (RFC 4180: a header row per file, whole rows)', () =>
     files.forEach((f) => expect(f.lines[0]).toBe(SAMPLE_HEADER));
     // Each row as the column formats of docs/run-folder.md give it (toFixed, toISOString).
     const text = rows.map((r) =>
-      [r.hostS.toFixed(3), new Date(r.wallMs).toISOString(), 0, r.seq, r.tickMs, 2400, 1500, 2048, '01', '3.86000', '1.00000', '25.00', r.chargeAh.toFixed(7), r.energyWh.toFixed(7), 'discharging', 'none'].join(','),
+      [
+        r.hostS.toFixed(3),
+        new Date(r.wallMs).toISOString(),
+        0,
+        r.seq,
+        r.tickMs,
+        2400,
+        1500,
+        2048,
+        '01',
+        '3.86000',
+        '1.00000',
+        '25.00',
+        r.chargeAh.toFixed(7),
+        r.energyWh.toFixed(7),
+        'discharging',
+        'none',
+      ].join(','),
     );
     expect(files.flatMap((f) => f.lines.slice(1))).toEqual(text);
     for (const f of files) for (const l of f.lines) expect(l.split(',')).toHaveLength(16);
@@ -108,11 +130,27 @@ describe('LogFile rotation (RFC 4180: a header row per file, whole rows)', () =>
     ['1,a', '2,b', '3,c', '4,d', '5,e', '6,f'].forEach((r) => first.append(r));
     await first.close();
     const before = await readBack();
-    const resumed = new LogFile({ dir, name: 'samples-', header: HEADER, rotateBytes: 60, firstIndex: before.length });
+    const resumed = new LogFile({
+      dir,
+      name: 'samples-',
+      header: HEADER,
+      rotateBytes: 60,
+      firstIndex: before.length,
+    });
     ['7,g', '8,h', '9,i'].forEach((r) => resumed.append(r));
     await resumed.close();
     const files = await readBack();
-    expect(files.flatMap((f) => f.lines.slice(1))).toEqual(['1,a', '2,b', '3,c', '4,d', '5,e', '6,f', '7,g', '8,h', '9,i']);
+    expect(files.flatMap((f) => f.lines.slice(1))).toEqual([
+      '1,a',
+      '2,b',
+      '3,c',
+      '4,d',
+      '5,e',
+      '6,f',
+      '7,g',
+      '8,h',
+      '9,i',
+    ]);
     files.forEach((f) => expect(f.lines.filter((l) => l === HEADER)).toHaveLength(1));
   });
 

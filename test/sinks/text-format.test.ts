@@ -25,12 +25,22 @@ describe('writeFixed writes the text of Number.prototype.toFixed (ECMA-262)', ()
   });
 
   it('on values the sample log writes (volts, amps, seconds, ampere-hours) and on exact and near halves', () => {
-    const halves = fc.tuple(fc.integer({ min: -1_000_000, max: 1_000_000 }), fc.integer({ min: 0, max: 7 }), fc.integer({ min: -3, max: 3 })).map(([n, d, ulps]) => {
-      let x = (n + 0.5) / 10 ** d;
-      for (let k = 0; k < Math.abs(ulps); k++) x = ulps > 0 ? x + Number.EPSILON * Math.abs(x) : x - Number.EPSILON * Math.abs(x);
-      return [x, d] as const;
-    });
-    const logged = fc.tuple(fc.double({ min: -20, max: 100_000, noNaN: true }), fc.constantFrom(2, 3, 5, 7));
+    const halves = fc
+      .tuple(
+        fc.integer({ min: -1_000_000, max: 1_000_000 }),
+        fc.integer({ min: 0, max: 7 }),
+        fc.integer({ min: -3, max: 3 }),
+      )
+      .map(([n, d, ulps]) => {
+        let x = (n + 0.5) / 10 ** d;
+        for (let k = 0; k < Math.abs(ulps); k++)
+          x = ulps > 0 ? x + Number.EPSILON * Math.abs(x) : x - Number.EPSILON * Math.abs(x);
+        return [x, d] as const;
+      });
+    const logged = fc.tuple(
+      fc.double({ min: -20, max: 100_000, noNaN: true }),
+      fc.constantFrom(2, 3, 5, 7),
+    );
     fc.assert(
       fc.property(fc.oneof(halves, logged), ([x, d]) => {
         expect(fixedDecimal(x, d)).toBe(x.toFixed(d));
@@ -40,7 +50,17 @@ describe('writeFixed writes the text of Number.prototype.toFixed (ECMA-262)', ()
   });
 
   it('keeps the sign of small negatives and drops the sign of negative zero, as toFixed does', () => {
-    for (const [x, d] of [[-0.0001, 2], [-0, 3], [0.5, 0], [2.5, 0], [1.005, 2], [-1.5, 0], [1e21, 2], [NaN, 2], [-Infinity, 1]] as const) {
+    for (const [x, d] of [
+      [-0.0001, 2],
+      [-0, 3],
+      [0.5, 0],
+      [2.5, 0],
+      [1.005, 2],
+      [-1.5, 0],
+      [1e21, 2],
+      [NaN, 2],
+      [-Infinity, 1],
+    ] as const) {
       expect(fixedDecimal(x, d)).toBe(x.toFixed(d));
     }
   });
@@ -76,17 +96,32 @@ function isoTime(ms: number): string {
 describe('writeIsoTime writes the text of Date.prototype.toISOString (ECMA-262)', () => {
   it('on any time from 1970 to 9999, whole or not, in any order', () => {
     fc.assert(
-      fc.property(fc.oneof(fc.integer({ min: 0, max: 253_402_300_799_999 }), fc.double({ min: 0, max: 4e12, noNaN: true })), (ms) => {
-        expect(isoTime(ms)).toBe(new Date(ms).toISOString());
-      }),
+      fc.property(
+        fc.oneof(
+          fc.integer({ min: 0, max: 253_402_300_799_999 }),
+          fc.double({ min: 0, max: 4e12, noNaN: true }),
+        ),
+        (ms) => {
+          expect(isoTime(ms)).toBe(new Date(ms).toISOString());
+        },
+      ),
       { numRuns: 20_000 },
     );
   });
 
   it('across hour, day and year boundaries, and before 1970', () => {
     const base = Date.UTC(2026, 11, 31, 23, 59, 59, 990);
-    for (let ms = base - 50; ms < base + 50; ms++) expect(isoTime(ms)).toBe(new Date(ms).toISOString());
-    for (const ms of [-1, -86_400_001, Date.UTC(2028, 1, 29, 12), 253_402_300_799_999, 253_402_300_800_000, 253_402_304_400_007]) expect(isoTime(ms)).toBe(new Date(ms).toISOString());
+    for (let ms = base - 50; ms < base + 50; ms++)
+      expect(isoTime(ms)).toBe(new Date(ms).toISOString());
+    for (const ms of [
+      -1,
+      -86_400_001,
+      Date.UTC(2028, 1, 29, 12),
+      253_402_300_799_999,
+      253_402_300_800_000,
+      253_402_304_400_007,
+    ])
+      expect(isoTime(ms)).toBe(new Date(ms).toISOString());
     expect(() => isoTime(Number.NaN)).toThrow(RangeError);
   });
 });
@@ -94,7 +129,8 @@ describe('writeIsoTime writes the text of Date.prototype.toISOString (ECMA-262)'
 describe('formatSampleRow', () => {
   // The column formats of docs/run-folder.md, built with the standard library's own formatters.
   const reference = (r: SampleRow): string => {
-    const num = (x: number, digits: number): string => (Number.isFinite(x) ? x.toFixed(digits) : '');
+    const num = (x: number, digits: number): string =>
+      Number.isFinite(x) ? x.toFixed(digits) : '';
     return [
       r.hostS.toFixed(3),
       new Date(r.wallMs).toISOString(),

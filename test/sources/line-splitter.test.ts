@@ -4,10 +4,17 @@ import { decodeRigLine, encodeDataFrame } from '../../src/protocol/codec.js';
 import { LineSplitter } from '../../src/sources/line-splitter.js';
 
 /** Pushes byte chunks through a splitter synchronously; returns the lines and overlong reports. */
-function split(chunks: readonly Buffer[], maxLength = 256): { lines: string[]; overlong: number[]; splitter: LineSplitter } {
+function split(
+  chunks: readonly Buffer[],
+  maxLength = 256,
+): { lines: string[]; overlong: number[]; splitter: LineSplitter } {
   const lines: string[] = [];
   const overlong: number[] = [];
-  const splitter = new LineSplitter({ maxLength, onLine: (l) => lines.push(l), onOverlong: (n) => overlong.push(n) });
+  const splitter = new LineSplitter({
+    maxLength,
+    onLine: (l) => lines.push(l),
+    onOverlong: (n) => overlong.push(n),
+  });
   for (const c of chunks) splitter.write(c);
   return { lines, overlong, splitter };
 }
@@ -31,17 +38,27 @@ function held(splitter: LineSplitter): number {
   return (Reflect.get(inner, 'buffer') as string).length;
 }
 
-const lineText = fc.string({ unit: fc.integer({ min: 0, max: 255 }).filter((b) => b !== 10).map((b) => String.fromCharCode(b)), maxLength: 80 });
+const lineText = fc.string({
+  unit: fc
+    .integer({ min: 0, max: 255 })
+    .filter((b) => b !== 10)
+    .map((b) => String.fromCharCode(b)),
+  maxLength: 80,
+});
 
 describe('LineSplitter', () => {
   it('lines cut into chunks anywhere come out whole and in order (property)', () => {
     fc.assert(
-      fc.property(fc.array(lineText, { maxLength: 20 }), fc.array(fc.nat(), { maxLength: 30 }), (lines, at) => {
-        const bytes = Buffer.from(lines.map((l) => `${l}\n`).join(''), 'latin1');
-        const out = split(cut(bytes, at));
-        expect(out.lines).toEqual(lines);
-        expect(out.overlong).toEqual([]);
-      }),
+      fc.property(
+        fc.array(lineText, { maxLength: 20 }),
+        fc.array(fc.nat(), { maxLength: 30 }),
+        (lines, at) => {
+          const bytes = Buffer.from(lines.map((l) => `${l}\n`).join(''), 'latin1');
+          const out = split(cut(bytes, at));
+          expect(out.lines).toEqual(lines);
+          expect(out.overlong).toEqual([]);
+        },
+      ),
       { numRuns: 3000 },
     );
   });
@@ -53,8 +70,18 @@ describe('LineSplitter', () => {
   });
 
   it('\\r\\n line ends: the \\r stays for the codec, which tolerates it (protocol v1)', () => {
-    const frame = encodeDataFrame({ channel: 0, seq: 7, tickMs: 700, vRaw: 2400, iRaw: 1500, tRaw: 2048, flags: 1 }).trimEnd();
-    const out = split(cut(Buffer.from(`${frame}\r\n${frame}\r\n`, 'latin1'), [frame.length, frame.length + 1]));
+    const frame = encodeDataFrame({
+      channel: 0,
+      seq: 7,
+      tickMs: 700,
+      vRaw: 2400,
+      iRaw: 1500,
+      tRaw: 2048,
+      flags: 1,
+    }).trimEnd();
+    const out = split(
+      cut(Buffer.from(`${frame}\r\n${frame}\r\n`, 'latin1'), [frame.length, frame.length + 1]),
+    );
     expect(out.lines).toEqual([`${frame}\r`, `${frame}\r`]);
     for (const l of out.lines) expect(decodeRigLine(l, 12).ok).toBe(true);
   });
@@ -75,7 +102,11 @@ describe('LineSplitter', () => {
     const maxLength = 256;
     const lines: string[] = [];
     const overlong: number[] = [];
-    const splitter = new LineSplitter({ maxLength, onLine: (l) => lines.push(l), onOverlong: (n) => overlong.push(n) });
+    const splitter = new LineSplitter({
+      maxLength,
+      onLine: (l) => lines.push(l),
+      onOverlong: (n) => overlong.push(n),
+    });
     const noise = Buffer.alloc(4096, 0x55); // 'U', no newline
     let maxHeld = 0;
     for (let k = 0; k < 2000; k++) {
@@ -92,11 +123,20 @@ describe('LineSplitter', () => {
   it('overlong runs between good lines are each reported once (property)', () => {
     fc.assert(
       fc.property(
-        fc.array(fc.oneof(fc.string({ unit: fc.constantFrom('a', 'b', ','), maxLength: 32 }), fc.integer({ min: 33, max: 300 })), { maxLength: 15 }),
+        fc.array(
+          fc.oneof(
+            fc.string({ unit: fc.constantFrom('a', 'b', ','), maxLength: 32 }),
+            fc.integer({ min: 33, max: 300 }),
+          ),
+          { maxLength: 15 },
+        ),
         fc.array(fc.nat(), { maxLength: 20 }),
         (items, at) => {
           // strings are good lines, numbers the lengths of overlong ones
-          const text = items.map((x) => (typeof x === 'string' ? x : 'z'.repeat(x))).map((l) => `${l}\n`).join('');
+          const text = items
+            .map((x) => (typeof x === 'string' ? x : 'z'.repeat(x)))
+            .map((l) => `${l}\n`)
+            .join('');
           const out = split(cut(Buffer.from(text, 'latin1'), at), 32);
           expect(out.lines).toEqual(items.filter((x) => typeof x === 'string'));
           expect(out.overlong).toEqual(items.filter((x) => typeof x === 'number'));
@@ -115,7 +155,11 @@ describe('LineSplitter', () => {
     for (let k = 0; k < bytes.length; k += 1000) {
       splitter.write(bytes.subarray(k, k + 1000));
       // Every complete line in the bytes written so far has been delivered already.
-      const complete = bytes.subarray(0, Math.min(k + 1000, bytes.length)).toString('latin1').split('\n').length - 1;
+      const complete =
+        bytes
+          .subarray(0, Math.min(k + 1000, bytes.length))
+          .toString('latin1')
+          .split('\n').length - 1;
       expect(got.length).toBe(complete);
     }
     expect(got).toEqual(Array.from({ length: n }, (_, k) => `line ${k}`));

@@ -22,7 +22,17 @@ function chargeAh(stamps: readonly Stamp[], amps: (k: number) => number): Integr
 }
 
 /** A rig sending a frame every `periodMs` of host time; its clock counts `rigRate` ms per host ms. */
-function frames(n: number, o: { periodMs?: number; rigRate?: number; latencyMs?: number; burstMs?: number; firstTick?: number; firstSeq?: number } = {}): Arrival[] {
+function frames(
+  n: number,
+  o: {
+    periodMs?: number;
+    rigRate?: number;
+    latencyMs?: number;
+    burstMs?: number;
+    firstTick?: number;
+    firstSeq?: number;
+  } = {},
+): Arrival[] {
   const period = o.periodMs ?? 100;
   const rate = o.rigRate ?? 1;
   const latency = o.latencyMs ?? 3;
@@ -31,7 +41,11 @@ function frames(n: number, o: { periodMs?: number; rigRate?: number; latencyMs?:
     const made = k * period;
     // A USB adapter batching its buffer: everything made in one burst period arrives together.
     const sent = o.burstMs === undefined ? made : (Math.floor(made / o.burstMs) + 1) * o.burstMs;
-    out.push({ seq: ((o.firstSeq ?? 0) + k) % 65536, tick: ((o.firstTick ?? 0) + Math.round(made * rate)) % 2 ** 32, arrival: 5000 + sent + latency });
+    out.push({
+      seq: ((o.firstSeq ?? 0) + k) % 65536,
+      tick: ((o.firstTick ?? 0) + Math.round(made * rate)) % 2 ** 32,
+      arrival: 5000 + sent + latency,
+    });
   }
   return out;
 }
@@ -70,7 +84,9 @@ describe('time base: frames on host time', () => {
     expect(Math.abs(burst - even) / even).toBeLessThan(1e-3);
     // Control: stamping each frame at its arrival instead is far off with this current.
     const naive = new Integrator();
-    frames(n, { burstMs: 1000 }).forEach((f, k, all) => naive.add(k === 0 ? 0 : f.arrival - all[k - 1]!.arrival, 3.7, pulsed(k), true, false));
+    frames(n, { burstMs: 1000 }).forEach((f, k, all) =>
+      naive.add(k === 0 ? 0 : f.arrival - all[k - 1]!.arrival, 3.7, pulsed(k), true, false),
+    );
     expect(Math.abs(naive.chargeAh - even) / even).toBeGreaterThan(0.05);
   });
 
@@ -98,7 +114,13 @@ describe('time base: rig clock rate', () => {
     const jitter = Array.from({ length: 700 }, () => rng() * 30);
     const tb = new TimeBase();
     // every burst late by its own 0..30 ms; frames keep their order
-    stampAll(frames(6000, { rigRate: 1.2, burstMs: 1000 }).map((x, k) => ({ ...x, arrival: x.arrival + jitter[Math.floor(k / 10)]! })), tb);
+    stampAll(
+      frames(6000, { rigRate: 1.2, burstMs: 1000 }).map((x, k) => ({
+        ...x,
+        arrival: x.arrival + jitter[Math.floor(k / 10)]!,
+      })),
+      tb,
+    );
     expect(Math.abs(tb.rigClockErrorPpm()! - 200_000)).toBeLessThan(2000);
   });
 
@@ -179,7 +201,7 @@ describe('time base: losses, gaps, wraps and restarts', () => {
 });
 
 describe('rate estimator', () => {
-  it('the least-squares slope of an exact line is the line\'s slope, also far from zero', () => {
+  it("the least-squares slope of an exact line is the line's slope, also far from zero", () => {
     const r = new RateEstimator();
     for (let k = 0; k < 1000; k++) r.add(3 * 2 ** 32 + k * 100, 1e9 + k * 99.9);
     expect(r.hostPerTick()).toBeCloseTo(0.999, 9);

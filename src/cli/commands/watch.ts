@@ -1,6 +1,13 @@
 import type { CommandModule } from 'yargs';
 import { watchLive } from '../../live/watch-client.js';
-import { applyMessage, emptyView, exitCodeForResult, liveSocketUrl, statusBlock, statusLine } from '../../live/watch-view.js';
+import {
+  applyMessage,
+  emptyView,
+  exitCodeForResult,
+  liveSocketUrl,
+  statusBlock,
+  statusLine,
+} from '../../live/watch-view.js';
 
 interface WatchArgs {
   url: string;
@@ -10,12 +17,23 @@ interface WatchArgs {
 
 export const watchCommand: CommandModule<object, WatchArgs> = {
   command: 'watch <url>',
-  describe: 'Follow a live run in the terminal; exits with the run\'s exit code when it ends',
+  describe: "Follow a live run in the terminal; exits with the run's exit code when it ends",
   builder: (y) =>
     y
-      .positional('url', { type: 'string', demandOption: true, describe: 'Address the daemon printed, e.g. http://192.168.1.20:8507/' })
-      .option('token', { type: 'string', describe: 'Viewer token (needed when the daemon listens beyond loopback)' })
-      .option('interval', { type: 'number', default: 1, describe: 'Seconds between sample lines when the output is not a terminal' })
+      .positional('url', {
+        type: 'string',
+        demandOption: true,
+        describe: 'Address the daemon printed, e.g. http://192.168.1.20:8507/',
+      })
+      .option('token', {
+        type: 'string',
+        describe: 'Viewer token (needed when the daemon listens beyond loopback)',
+      })
+      .option('interval', {
+        type: 'number',
+        default: 1,
+        describe: 'Seconds between sample lines when the output is not a terminal',
+      })
       .check((a) => {
         if (!(a.interval >= 0)) throw new Error('--interval must be zero or more seconds.');
         return true;
@@ -33,7 +51,9 @@ export const watchCommand: CommandModule<object, WatchArgs> = {
       redrawPending = false;
       const lines = statusBlock(view);
       // Move to the start of the previous block and clear it, then write the new one.
-      out.write(`${drawn > 0 ? `\x1b[${drawn}F\x1b[J` : ''}${lines.map((l) => l.slice(0, Math.max(20, (out.columns || 100) - 1))).join('\n')}\n`);
+      out.write(
+        `${drawn > 0 ? `\x1b[${drawn}F\x1b[J` : ''}${lines.map((l) => l.slice(0, Math.max(20, (out.columns || 100) - 1))).join('\n')}\n`,
+      );
       drawn = lines.length;
     };
     const update = (important: boolean): void => {

@@ -92,7 +92,11 @@
   }
 
   // ---- charts ------------------------------------------------------------------------
-  const AXIS = { stroke: '#9aa3ae', grid: { stroke: '#262d36', width: 1 }, ticks: { stroke: '#262d36', width: 1 } };
+  const AXIS = {
+    stroke: '#9aa3ae',
+    grid: { stroke: '#262d36', width: 1 },
+    ticks: { stroke: '#262d36', width: 1 },
+  };
 
   function chartSize(el) {
     const narrow = window.matchMedia('(max-width: 640px)').matches;
@@ -141,9 +145,18 @@
       scales: { x: { time: false }, y: getLimit ? { range: rangeWith(getLimit) } : {} },
       series: [
         { label: 'elapsed', value: (_u, v) => clock(v) },
-        { label, stroke: color, width: 1.6, points: { show: false }, value: (_u, v) => fixed(v, digits) },
+        {
+          label,
+          stroke: color,
+          width: 1.6,
+          points: { show: false },
+          value: (_u, v) => fixed(v, digits),
+        },
       ],
-      axes: [{ ...AXIS, values: axisTime }, { ...AXIS, size: 56 }],
+      axes: [
+        { ...AXIS, values: axisTime },
+        { ...AXIS, size: 56 },
+      ],
       cursor: { sync: { key: 'cellvigil' }, drag: { x: true, y: false } },
       hooks: getLimit ? { draw: [limitLine(getLimit, '#ff5a4e')] } : {},
     };
@@ -156,7 +169,9 @@
   const charts = [
     makeChart('chart-voltage', 'voltage', '#6cb6ff', 3, 'v', () => cutoffV),
     makeChart('chart-current', 'current', '#f5c26b', 3, 'a', null),
-    makeChart('chart-temp', 'temperature', '#ff7f6e', 1, 'c', () => (run ? run.max_temperature_C : null)),
+    makeChart('chart-temp', 'temperature', '#ff7f6e', 1, 'c', () =>
+      run ? run.max_temperature_C : null,
+    ),
     makeChart('chart-charge', 'charge', '#8fd3c7', 0, 'q', null),
   ];
 
@@ -201,7 +216,10 @@
   }
 
   function showRun() {
-    setText('run-title', run ? `${run.label} · ${run.cells} × ${run.chemistry} · ${run.source}` : 'no run yet');
+    setText(
+      'run-title',
+      run ? `${run.label} · ${run.cells} × ${run.chemistry} · ${run.source}` : 'no run yet',
+    );
     const facts = $('facts');
     facts.replaceChildren();
     if (!run) return;
@@ -224,7 +242,10 @@
     }
     const input = $('cutoff-input');
     input.min = String(run.floor_V);
-    setText('floor-hint', `Never below the floor of ${run.floor_V.toFixed(3)} V for ${run.cells} ${run.chemistry} cell(s).`);
+    setText(
+      'floor-hint',
+      `Never below the floor of ${run.floor_V.toFixed(3)} V for ${run.cells} ${run.chemistry} cell(s).`,
+    );
   }
 
   function logItem(listId, at, parts, newestFirst = true) {
@@ -255,12 +276,23 @@
   }
 
   function addEvent(e) {
-    if (e.kind === 'mark') logItem('events', e.host_s, [['kind', 'note: '], ['', e.note]]);
-    else logItem('events', e.host_s, [['kind', `${e.from} → ${e.to}`], ['', e.why ? ` (${e.why})` : '']]);
+    if (e.kind === 'mark')
+      logItem('events', e.host_s, [
+        ['kind', 'note: '],
+        ['', e.note],
+      ]);
+    else
+      logItem('events', e.host_s, [
+        ['kind', `${e.from} → ${e.to}`],
+        ['', e.why ? ` (${e.why})` : ''],
+      ]);
   }
 
   function addAlarm(a, loud) {
-    logItem('alarms', a.host_s, [['kind', a.kind], ['', a.detail]]);
+    logItem('alarms', a.host_s, [
+      ['kind', a.kind],
+      ['', a.detail],
+    ]);
     setText('alarm-title', `Alarm: ${a.kind}`);
     setText('alarm-text', `${a.detail} (at ${clock(a.host_s)})`);
     $('alarm-banner').hidden = false;
@@ -298,7 +330,11 @@
     setControlsEnabled(false);
     if (loud) {
       document.title = `■ ${words} · ${baseTitle}`;
-      raiseAlert(`cellvigil: run ended (${words})`, parts.join(', '), LIMIT_REASONS.has(reason) ? [880, 660, 880] : [523, 784]);
+      raiseAlert(
+        `cellvigil: run ended (${words})`,
+        parts.join(', '),
+        LIMIT_REASONS.has(reason) ? [880, 660, 880] : [523, 784],
+      );
     }
     schedule();
   }
@@ -393,9 +429,11 @@
     });
     ws.addEventListener('close', () => {
       ws = null;
-      for (const [, p] of pending) p('not connected: the request may or may not have arrived', false);
+      for (const [, p] of pending)
+        p('not connected: the request may or may not have arrived', false);
       pending.clear();
-      const delay = Math.min(BACKOFF_MAX_MS, BACKOFF_MIN_MS * 2 ** attempt) * (0.75 + Math.random() * 0.5);
+      const delay =
+        Math.min(BACKOFF_MAX_MS, BACKOFF_MIN_MS * 2 ** attempt) * (0.75 + Math.random() * 0.5);
       attempt++;
       setLink('down', `reconnecting in ${Math.ceil(delay / 1000)} s`);
       setTimeout(connect, delay);
@@ -540,9 +578,13 @@
   $('stop-btn').addEventListener('click', () => {
     const dialog = $('confirm-dialog');
     dialog.returnValue = '';
-    dialog.addEventListener('close', () => {
-      if (dialog.returnValue === 'yes') control({ type: 'stop' }, 'stop');
-    }, { once: true });
+    dialog.addEventListener(
+      'close',
+      () => {
+        if (dialog.returnValue === 'yes') control({ type: 'stop' }, 'stop');
+      },
+      { once: true },
+    );
     dialog.showModal();
   });
 
@@ -551,7 +593,8 @@
     const text = $('cutoff-input').value.trim();
     const value = Number(text);
     if (!text || !Number.isFinite(value)) return reply('cutoff: give a number of volts', false);
-    if (run && value < run.floor_V) return reply(`cutoff: ${value} V is below the floor of ${run.floor_V.toFixed(3)} V`, false);
+    if (run && value < run.floor_V)
+      return reply(`cutoff: ${value} V is below the floor of ${run.floor_V.toFixed(3)} V`, false);
     control({ type: 'set-cutoff', cutoff_V: value }, `cutoff ${value.toFixed(3)} V`);
   });
 
