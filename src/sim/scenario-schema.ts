@@ -8,7 +8,16 @@ const num = { type: 'number' } as const;
 const nonNegative = { type: 'number', minimum: 0 } as const;
 const positive = { type: 'number', exclusiveMinimum: 0 } as const;
 const probability = { type: 'number', minimum: 0, maximum: 1 } as const;
+const scenarioName = '^[a-z0-9][a-z0-9-]{0,31}$';
 const token = { type: 'string', pattern: '^[A-Za-z0-9._-]{1,32}$' } as const;
+
+const rigRequired = ['rig_id', 'firmware', 'clock_error', 'frame_period_ms'];
+const rigProperties = {
+  rig_id: token,
+  firmware: token,
+  clock_error: { type: 'number', exclusiveMinimum: -1, maximum: 1 },
+  frame_period_ms: { type: 'number', minimum: 1, maximum: 60000 },
+} as const;
 
 const scenario = {
   type: 'object',
@@ -26,6 +35,7 @@ const scenario = {
         capacity_Ah: positive,
         initial_soc: probability,
         internal_ohm_per_cell: nonNegative,
+        state_of_health: { type: 'number', exclusiveMinimum: 0, maximum: 1, default: 1 },
       },
     },
     thermal: {
@@ -57,17 +67,15 @@ const scenario = {
         current_gain_error: { type: 'number', minimum: 0, maximum: 1 },
         voltage_gain_error: { type: 'number', minimum: -0.5, maximum: 0.5 },
         noise_counts: nonNegative,
+        thermistor: { type: 'string', enum: ['ok', 'open', 'short'], default: 'ok' },
       },
     },
     rig: {
       type: 'object',
       additionalProperties: false,
-      required: ['rig_id', 'firmware', 'clock_error', 'frame_period_ms'],
+      required: rigRequired,
       properties: {
-        rig_id: token,
-        firmware: token,
-        clock_error: { type: 'number', exclusiveMinimum: -1, maximum: 1 },
-        frame_period_ms: { type: 'number', minimum: 1, maximum: 60000 },
+        ...rigProperties,
         channel: { type: 'integer', minimum: 0, maximum: 15, default: 0 },
       },
     },
@@ -85,6 +93,29 @@ const scenario = {
   },
 } as const;
 
+/** A rig with several channels: the rig's own parts, and a cell scenario on each channel. */
+const multiRig = {
+  type: 'object',
+  additionalProperties: false,
+  required: ['description', 'rig', 'faults', 'channels'],
+  properties: {
+    description: { type: 'string', minLength: 1 },
+    rig: {
+      type: 'object',
+      additionalProperties: false,
+      required: rigRequired,
+      properties: rigProperties,
+    },
+    faults: scenario.properties.faults,
+    channels: {
+      type: 'object',
+      minProperties: 1,
+      propertyNames: { pattern: '^(1[0-5]|[0-9])$' },
+      additionalProperties: { type: 'string', pattern: scenarioName },
+    },
+  },
+} as const;
+
 export const SCENARIO_FILE_SCHEMA = {
   type: 'object',
   additionalProperties: false,
@@ -93,8 +124,13 @@ export const SCENARIO_FILE_SCHEMA = {
     scenarios: {
       type: 'object',
       minProperties: 1,
-      propertyNames: { pattern: '^[a-z0-9][a-z0-9-]{0,31}$' },
+      propertyNames: { pattern: scenarioName },
       additionalProperties: scenario,
+    },
+    rigs: {
+      type: 'object',
+      propertyNames: { pattern: scenarioName },
+      additionalProperties: multiRig,
     },
   },
 } as const;

@@ -6,6 +6,7 @@ import { parseConfigYaml } from '../core/config-file.js';
 import { ErrorCodes, makeError } from '../core/errors.js';
 import { ChemistryCell, type ChemistryId } from './cell-model.js';
 import { SCENARIO_FILE_SCHEMA } from './scenario-schema.js';
+import type { SimChannelOptions, ThermistorWiring } from './sim-channel.js';
 import { SimRig } from './sim-rig.js';
 
 /** One named scenario of config/sim-scenarios.yaml, after validation (defaults filled in). */
@@ -18,6 +19,8 @@ export interface SimScenario {
     capacity_Ah: number;
     initial_soc: number;
     internal_ohm_per_cell?: number;
+    /** Share of the rated capacity the cell still holds (a worn cell is below 1). */
+    state_of_health?: number;
   };
   thermal: {
     ambient_C: number;
@@ -36,6 +39,7 @@ export interface SimScenario {
     current_gain_error: number;
     voltage_gain_error: number;
     noise_counts: number;
+    thermistor?: ThermistorWiring;
   };
   rig: {
     rig_id: string;
@@ -52,9 +56,20 @@ export interface SimScenario {
   };
 }
 
+/** A rig of several channels in config/sim-scenarios.yaml: a cell scenario on each channel. */
+export interface SimRigScenario {
+  name: string;
+  description: string;
+  rig: Omit<SimScenario['rig'], 'channel'>;
+  faults: SimScenario['faults'];
+  /** Channel number to the scenario whose cell, thermal model, load and front end it has. */
+  channels: ReadonlyMap<number, SimScenario>;
+}
+
 export interface ScenarioSet {
   file: string;
   byName: ReadonlyMap<string, SimScenario>;
+  rigs: ReadonlyMap<string, SimRigScenario>;
 }
 
 /** What tests (and the command line) may change on top of a scenario. */
@@ -107,10 +122,40 @@ export function loadScenarios(path: string): ScenarioSet {
       );
     throw schemaError(path, err);
   }
-  const raw = (data as { scenarios: Record<string, Omit<SimScenario, 'name'>> }).scenarios;
+  const file = data as {
+    scenarios: Record<string, Omit<SimScenario, 'name'>>;
+    rigs?: Record<string, RawRig>;
+  };
   const byName = new Map<string, SimScenario>();
-  for (const [name, s] of Object.entries(raw)) byName.set(name, { name, ...s });
-  return { file: path, byName };
+  for (const [name, s] of Object.entries(file.scenarios)) byName.set(name, { name, ...s });
+  const rigs = new Map<string, SimRigScenario>();
+  for (const [name, r] of Object.entries(file.rigs ?? {}))
+    rigs.set(name, resolveRig(path, name, r, byName));
+  return { file: path, byName, rigs };
+}
+
+type RawRig = Omit<SimRigScenario, 'name' | 'channels'> & { channels: Record<string, string> };
+
+function resolveRig(
+  path: string,
+  name: string,
+  raw: RawRig,
+  byName: ReadonlyMap<string, SimScenario>,
+): SimRigScenario {
+  const channels = new Map<number, SimScenario>();
+  const entries = Object.entries(raw.channels).sort(([a], [b]) => Number(a) - Number(b));
+  for (const [ch, scenarioName] of entries) {
+    const s = byName.get(scenarioName);
+    if (!s)
+      throw makeError(
+        ErrorCodes.CONFIG_INVALID,
+        `rig "${name}" puts the scenario "${scenarioName}" on channel ${ch}, and there is no such scenario`,
+        `${path}, key rigs.${name}.channels.${ch}`,
+        `Use one of: ${[...byName.keys()].join(', ')}.`,
+      );
+    channels.set(Number(ch), s);
+  }
+  return { name, description: raw.description, rig: raw.rig, faults: raw.faults, channels };
 }
 
 /** The scenario called `name`, or a usage error listing the ones there are. */
@@ -125,28 +170,37 @@ export function pickScenario(set: ScenarioSet, name: string): SimScenario {
   );
 }
 
-/** A simulated rig built from a scenario, on the given clock and rig profile. */
-export function buildSimRig(
+/** The rig with several channels called `name`, or a usage error listing the ones there are. */
+export function pickRigScenario(set: ScenarioSet, name: string): SimRigScenario {
+  const r = set.rigs.get(name);
+  if (r) return r;
+  throw makeError(
+    ErrorCodes.USAGE,
+    `there is no simulated rig "${name}" with several channels`,
+    set.file,
+    set.rigs.size > 0
+      ? `Use one of: ${[...set.rigs.keys()].join(', ')}.`
+      : 'Add one under "rigs:" (see docs/simulated-rig.md).',
+  );
+}
+
+/** A channel's cell, thermal model, load and front end as the scenario describes them. */
+export function channelParts(
   scenario: SimScenario,
-  clock: Clock,
   profile: RigProfile,
-  overrides: SimOverrides = {},
-): SimRig {
+): Omit<SimChannelOptions, 'channel'> {
   const shunt = profile.current.shunt_ohm;
   const fe = scenario.front_end;
-  const f = scenario.faults;
   const cell = new ChemistryCell({
     chemistry: scenario.cell.chemistry,
     cells: scenario.cell.cells,
-    capacityAh: scenario.cell.capacity_Ah,
+    capacityAh: scenario.cell.capacity_Ah * (scenario.cell.state_of_health ?? 1),
     initialSoc: scenario.cell.initial_soc,
     ...(scenario.cell.internal_ohm_per_cell !== undefined
       ? { internalOhmPerCell: scenario.cell.internal_ohm_per_cell }
       : {}),
   });
-  return new SimRig({
-    clock,
-    profile,
+  return {
     cell,
     thermal: {
       ambientC: scenario.thermal.ambient_C,
@@ -163,12 +217,54 @@ export function buildSimRig(
       voltageGainError: fe.voltage_gain_error,
       noiseCounts: fe.noise_counts,
     },
+    thermistor: fe.thermistor ?? 'ok',
+  };
+}
+
+/** A simulated rig built from a scenario, on the given clock and rig profile. */
+export function buildSimRig(
+  scenario: SimScenario,
+  clock: Clock,
+  profile: RigProfile,
+  overrides: SimOverrides = {},
+): SimRig {
+  const f = scenario.faults;
+  return new SimRig({
+    clock,
+    profile,
+    ...channelParts(scenario, profile),
     clockError: overrides.clockError ?? scenario.rig.clock_error,
     startTick: overrides.startTick ?? 0,
     framePeriodMs: scenario.rig.frame_period_ms,
     channel: scenario.rig.channel,
     rigId: scenario.rig.rig_id,
     firmware: scenario.rig.firmware,
+    faults: {
+      dropProbability: overrides.dropProbability ?? f.drop_probability,
+      garbageProbability: overrides.garbageProbability ?? f.garbage_probability,
+      burstFrames: overrides.burstFrames ?? f.burst_frames,
+    },
+    seed: overrides.seed ?? f.seed,
+  });
+}
+
+/** A simulated rig with several channels, each channel's parts from its scenario. */
+export function buildMultiChannelRig(
+  r: SimRigScenario,
+  clock: Clock,
+  profile: RigProfile,
+  overrides: SimOverrides = {},
+): SimRig {
+  const f = r.faults;
+  return new SimRig({
+    clock,
+    profile,
+    channels: [...r.channels].map(([channel, s]) => ({ channel, ...channelParts(s, profile) })),
+    clockError: overrides.clockError ?? r.rig.clock_error,
+    startTick: overrides.startTick ?? 0,
+    framePeriodMs: r.rig.frame_period_ms,
+    rigId: r.rig.rig_id,
+    firmware: r.rig.firmware,
     faults: {
       dropProbability: overrides.dropProbability ?? f.drop_probability,
       garbageProbability: overrides.garbageProbability ?? f.garbage_probability,

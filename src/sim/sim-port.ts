@@ -67,7 +67,14 @@ export async function attachSimRig(
   };
 }
 
-/** The truth file the `sim` command keeps up to date, for tests and for checking a run. */
+/**
+ * The truth file the `sim` command keeps up to date, for tests and for checking a run: the
+ * first channel's at the top (as a one-channel rig has always written it), and every
+ * channel's under `channels`.
+ */
 export function truthSnapshot(rig: SimRig, clock: Clock): Record<string, unknown> {
-  return { clock_ms: clock.now(), truth: rig.truth(), load_log: rig.loadLog() };
+  const channels: Record<string, unknown> = {};
+  for (const ch of rig.channelNumbers)
+    channels[ch] = { truth: rig.truth(ch), load_log: rig.loadLog(ch) };
+  return { clock_ms: clock.now(), truth: rig.truth(), load_log: rig.loadLog(), channels };
 }

@@ -2,39 +2,42 @@ import type { RigProfile } from '../chain/rig-profile-types.js';
 import type { Clock, TimerHandle } from '../core/clock.js';
 import { decodeHostLine, encodeDataFrame, frameLine, MAX_LINE_LENGTH } from '../protocol/codec.js';
 import { FLAG_LOAD_ON, FLAG_RIG_FAULT } from '../protocol/messages.js';
-import type { Cell } from './cell-model.js';
 import { FaultInjector, NO_FAULTS, type FaultOptions } from './faults.js';
-import { FrontEnd, type FrontEndErrors } from './front-end.js';
 import { mulberry32 } from './prng.js';
 import { RigTickCounter } from './rig-clock.js';
-import { ThermalModel, type ThermalOptions } from './thermal.js';
-import { TruthRecorder, type ElectricalPoint } from './truth.js';
+import { SimChannel, type LoadSwitch, type SimChannelOptions } from './sim-channel.js';
+
+export type { LoadSwitch } from './sim-channel.js';
 
 /** Protocol v1: a rig that hears no heartbeat for this long while a load is on cuts every load. */
 export const WATCHDOG_MS = 5000;
 
-export interface SimRigOptions {
+/** What belongs to the rig as a whole: its link, clock, identity and line faults. */
+export interface SimRigBase {
   clock: Clock;
   profile: RigProfile;
-  cell: Cell;
-  thermal: ThermalOptions;
-  loadOhm: number;
-  /** MOSFET on-resistance, in series with the load. */
-  mosfetOhm: number;
-  frontEnd: FrontEndErrors;
   /** Rate error of the rig's oscillator: +0.12 counts 12 % fast. */
   clockError: number;
   /** Tick counter value at boot (a real rig boots at 0; a high start exercises the 2^32 wrap). */
   startTick?: number;
   /** Frame period in rig milliseconds; 100 if omitted. */
   framePeriodMs?: number;
-  /** The one channel this rig has; 0 if omitted. */
-  channel?: number;
   rigId: string;
   firmware: string;
   faults?: FaultOptions;
   /** Seed of the noise and fault generator; the same seed gives the same run. */
   seed?: number;
+}
+
+/** A one-channel rig, its channel's parts given inline. */
+export interface SimRigOptions extends SimRigBase, Omit<SimChannelOptions, 'channel'> {
+  /** The one channel this rig has; 0 if omitted. */
+  channel?: number;
+}
+
+/** A rig with several channels, each with its own cell, load and front end. */
+export interface SimMultiRigOptions extends SimRigBase {
+  channels: SimChannelOptions[];
 }
 
 /** True state of the simulated rig and cell, and totals since `start`. */
@@ -55,13 +58,6 @@ export interface SimTruth {
   garbageLines: number;
 }
 
-export interface LoadSwitch {
-  /** Clock time (`clock.now()`) of the switch. */
-  atMs: number;
-  on: boolean;
-  cause: 'host' | 'watchdog' | 'stop';
-}
-
 /**
  * Physics step: far below the cell's electrical and thermal time constants (seconds and up),
  * and the rig steps to every command and frame instant as well, so switches land exactly.
@@ -69,48 +65,38 @@ export interface LoadSwitch {
 const PHYSICS_STEP_MS = 10;
 
 /**
- * A simulated single-channel rig speaking protocol v1, with a cell on its load.
- * Replies: LOAD → `A,LOAD,<ch>,<0|1>`; HELLO → a hello line; BEAT → nothing (a reply once a
- * second would only double the traffic; the watchdog is the rig's whole use of it); anything
- * else → `E,<code>,<text>` with code CRC, SYNTAX, RANGE, CHANNEL or OVERLONG.
- * The watchdog counts true time from the later of the last BEAT and the load switching on.
+ * A simulated rig speaking protocol v1, with a cell on each channel's load. Every frame period
+ * it converts its channels in order and sends one data frame each, with a sequence number per
+ * channel. Replies: LOAD → `A,LOAD,<ch>,<0|1>`; HELLO → a hello line with the channel count;
+ * BEAT → nothing (a reply once a second would only double the traffic; the watchdog is the
+ * rig's whole use of it); anything else → `E,<code>,<text>` with code CRC, SYNTAX, RANGE,
+ * CHANNEL or OVERLONG. The watchdog is the rig's, not a channel's: it counts true time from the
+ * later of the last BEAT and a load switching on, and when it runs out it cuts every load.
  */
 export class SimRig {
   private readonly clock: Clock;
-  private readonly frontEnd: FrontEnd;
-  private readonly thermal: ThermalModel;
   private readonly ticks: RigTickCounter;
   private readonly faults: FaultInjector;
-  private readonly truthRec = new TruthRecorder();
-  private readonly switches: LoadSwitch[] = [];
-  private readonly channel: number;
+  private readonly channels: SimChannel[];
+  private readonly byNumber = new Map<number, SimChannel>();
   private readonly framePeriodMs: number;
+  private readonly base: SimRigBase;
 
   private write: ((chunk: string) => void) | null = null;
   private stopped = false;
   private bootAt = 0;
   private physicsAt = 0;
-  private point: ElectricalPoint = { currentA: 0, terminalV: 0 };
-  private loadOn = false;
-  private fault = false;
-  private seq = 0;
   private pending: string[] = [];
   private pendingFrames = 0;
   private inbox = '';
   private discarding = false;
   private frameTimer: TimerHandle | null = null;
   private watchdogTimer: TimerHandle | null = null;
-  private framesSent = 0;
-  private framesDropped = 0;
-  private garbageLines = 0;
 
-  constructor(private readonly opts: SimRigOptions) {
+  constructor(opts: SimRigOptions | SimMultiRigOptions) {
+    this.base = opts;
     this.clock = opts.clock;
-    this.channel = opts.channel ?? 0;
     this.framePeriodMs = opts.framePeriodMs ?? 100;
-    if (!Number.isInteger(this.channel) || this.channel < 0 || this.channel > 15) {
-      throw new RangeError(`channel must be 0..15, got ${this.channel}`);
-    }
     if (!(this.framePeriodMs > 0))
       throw new RangeError(`frame period must be positive, got ${this.framePeriodMs} ms`);
     if (
@@ -119,15 +105,26 @@ export class SimRig {
     ) {
       throw new RangeError('rig id and firmware must be printable, without spaces, commas or "|"');
     }
+    const specs = 'channels' in opts ? opts.channels : [{ ...opts, channel: opts.channel ?? 0 }];
+    if (specs.length < 1 || specs.length > 16)
+      throw new RangeError(`a rig has 1 to 16 channels, got ${specs.length}`);
+    // One generator for the whole rig, drawn in channel order: the same seed gives the same bytes.
     const rng = mulberry32(opts.seed ?? 1);
-    this.frontEnd = new FrontEnd(opts.profile, opts.frontEnd, rng);
-    this.thermal = new ThermalModel(opts.thermal);
+    this.channels = specs.map((c) => new SimChannel(c, opts.profile, rng));
+    for (const c of this.channels) {
+      if (this.byNumber.has(c.channel)) throw new RangeError(`channel ${c.channel} given twice`);
+      this.byNumber.set(c.channel, c);
+    }
     this.ticks = new RigTickCounter(opts.clockError, opts.startTick ?? 0);
     this.faults = new FaultInjector(opts.faults ?? NO_FAULTS, rng);
-    this.point = this.electrical();
   }
 
-  /** Powers the rig up: a hello at once, then a data frame every frame period of rig time. */
+  /** The channel numbers this rig has, in frame order. */
+  get channelNumbers(): number[] {
+    return this.channels.map((c) => c.channel);
+  }
+
+  /** Powers the rig up: a hello at once, then a data frame per channel every frame period. */
   start(write: (chunk: string) => void): void {
     if (this.write || this.stopped) throw new Error('a SimRig starts once');
     this.write = write;
@@ -165,40 +162,48 @@ export class SimRig {
     }
   }
 
-  /** Powers the rig down: the load drops out, nothing more is sent, the truth stops here. */
+  /** Powers the rig down: every load drops out, nothing more is sent, the truth stops here. */
   stop(): void {
     if (this.stopped) return;
     this.catchUp();
-    if (this.loadOn) this.switchLoad(false, 'stop');
+    for (const c of this.channels) if (c.loadOn) c.switchLoad(false, 'stop', this.clock.now());
     if (this.frameTimer) this.clock.clearTimer(this.frameTimer);
     this.disarmWatchdog();
     this.stopped = true;
   }
 
-  truth(): SimTruth {
+  /** True state and totals of a channel (the first one if not given). */
+  truth(channel?: number): SimTruth {
     this.catchUp();
-    const t = this.truthRec;
+    const c = this.channelOf(channel);
+    const t = c.truthRec;
     return {
       elapsedS: t.elapsedS,
       chargeAh: t.chargeAh,
       energyWh: t.energyWh,
       loadOnS: t.loadOnS,
-      stateOfCharge: this.opts.cell.stateOfCharge,
-      openCircuitV: this.opts.cell.ocvV(),
-      terminalV: this.point.terminalV,
-      currentA: this.point.currentA,
-      temperatureC: this.thermal.temperatureC,
-      loadOn: this.loadOn,
-      rigFault: this.fault,
-      framesSent: this.framesSent,
-      framesDropped: this.framesDropped,
-      garbageLines: this.garbageLines,
+      stateOfCharge: c.cell.stateOfCharge,
+      openCircuitV: c.cell.ocvV(),
+      terminalV: c.point.terminalV,
+      currentA: c.point.currentA,
+      temperatureC: c.thermal.temperatureC,
+      loadOn: c.loadOn,
+      rigFault: c.fault,
+      framesSent: c.framesSent,
+      framesDropped: c.framesDropped,
+      garbageLines: c.garbageLines,
     };
   }
 
-  /** Every load switch so far, in order. */
-  loadLog(): readonly LoadSwitch[] {
-    return this.switches;
+  /** Every load switch of a channel (the first one if not given) so far, in order. */
+  loadLog(channel?: number): readonly LoadSwitch[] {
+    return this.channelOf(channel).switches;
+  }
+
+  private channelOf(channel: number | undefined): SimChannel {
+    const c = channel === undefined ? this.channels[0] : this.byNumber.get(channel);
+    if (!c) throw new RangeError(`this rig has no channel ${String(channel)}`);
+    return c;
   }
 
   private onLine(raw: string): void {
@@ -214,26 +219,30 @@ export class SimRig {
         this.send(this.helloLine(), true);
         return;
       case 'BEAT':
-        if (this.loadOn) this.armWatchdog();
+        if (this.anyLoadOn()) this.armWatchdog();
         return;
-      case 'LOAD':
-        if (cmd.channel !== this.channel) {
+      case 'LOAD': {
+        const c = this.byNumber.get(cmd.channel);
+        if (!c) {
           this.send(frameLine(`E,CHANNEL,no channel ${cmd.channel}`), true);
           return;
         }
-        if (cmd.on) this.fault = false;
-        if (cmd.on !== this.loadOn) this.switchLoad(cmd.on, 'host');
+        if (cmd.on) c.fault = false;
+        if (cmd.on !== c.loadOn) this.switchLoad(c, cmd.on, 'host');
         this.send(frameLine(`A,LOAD,${cmd.channel},${cmd.on ? 1 : 0}`), true);
         return;
+      }
     }
   }
 
-  private switchLoad(on: boolean, cause: LoadSwitch['cause']): void {
-    this.loadOn = on;
-    this.point = this.electrical();
-    this.switches.push({ atMs: this.clock.now(), on, cause });
+  private anyLoadOn(): boolean {
+    return this.channels.some((c) => c.loadOn);
+  }
+
+  private switchLoad(c: SimChannel, on: boolean, cause: LoadSwitch['cause']): void {
+    c.switchLoad(on, cause, this.clock.now());
     if (on) this.armWatchdog();
-    else this.disarmWatchdog();
+    else if (!this.anyLoadOn()) this.disarmWatchdog();
   }
 
   private armWatchdog(): void {
@@ -241,8 +250,11 @@ export class SimRig {
     this.watchdogTimer = this.clock.setTimer(() => {
       this.watchdogTimer = null;
       this.catchUp();
-      this.fault = true;
-      this.switchLoad(false, 'watchdog');
+      for (const c of this.channels) {
+        if (!c.loadOn) continue;
+        c.fault = true;
+        c.switchLoad(false, 'watchdog', this.clock.now());
+      }
     }, WATCHDOG_MS);
   }
 
@@ -253,27 +265,31 @@ export class SimRig {
 
   private onFrame(): void {
     this.catchUp();
-    const seq = this.seq;
-    this.seq = (this.seq + 1) & 0xffff;
+    const tickMs = this.ticks.ticksAt(this.clock.now() - this.bootAt);
+    for (const c of this.channels) this.sendFrame(c, tickMs);
+  }
+
+  private sendFrame(c: SimChannel, tickMs: number): void {
+    const seq = c.seq;
+    c.seq = (c.seq + 1) & 0xffff;
     if (this.faults.dropFrame()) {
-      this.framesDropped++;
+      c.framesDropped++;
       return;
     }
+    const counts = c.counts();
     const frame = encodeDataFrame({
-      channel: this.channel,
+      channel: c.channel,
       seq,
-      tickMs: this.ticks.ticksAt(this.clock.now() - this.bootAt),
-      vRaw: this.frontEnd.voltage(this.point.terminalV).counts,
-      iRaw: this.frontEnd.current(this.point.currentA).counts,
-      tRaw: this.frontEnd.temperature(this.thermal.temperatureC).counts,
-      flags: (this.loadOn ? FLAG_LOAD_ON : 0) | (this.fault ? FLAG_RIG_FAULT : 0),
+      tickMs,
+      ...counts,
+      flags: (c.loadOn ? FLAG_LOAD_ON : 0) | (c.fault ? FLAG_RIG_FAULT : 0),
     });
     const garbage = this.faults.garbageBefore(frame);
     if (garbage !== null) {
-      this.garbageLines++;
+      c.garbageLines++;
       this.send(garbage, false);
     }
-    this.framesSent++;
+    c.framesSent++;
     this.pendingFrames++;
     this.send(frame, this.pendingFrames >= this.faults.burstFrames);
   }
@@ -289,41 +305,17 @@ export class SimRig {
   }
 
   private helloLine(): string {
-    return frameLine(`H,${this.opts.rigId},${this.opts.firmware},${this.opts.profile.adc.bits},1`);
+    const b = this.base;
+    return frameLine(`H,${b.rigId},${b.firmware},${b.profile.adc.bits},${this.channels.length}`);
   }
 
-  /** Everything in series with the cell's internal resistance when the load is on. */
-  private externalOhm(): number {
-    return (
-      this.opts.loadOhm +
-      this.opts.mosfetOhm +
-      this.opts.profile.current.shunt_ohm +
-      this.opts.frontEnd.connectionOhm
-    );
-  }
-
-  private electrical(): ElectricalPoint {
-    const ocv = this.opts.cell.ocvV();
-    if (!this.loadOn) return { currentA: 0, terminalV: ocv };
-    const rCell = this.opts.cell.internalOhm(this.thermal.temperatureC);
-    const currentA = ocv / (this.externalOhm() + rCell);
-    return { currentA, terminalV: ocv - currentA * rCell };
-  }
-
-  /** Steps the physics from where it stopped up to the clock's now. */
+  /** Steps the physics of every channel from where it stopped up to the clock's now. */
   private catchUp(): void {
     if (!this.write || this.stopped) return;
     const now = this.clock.now();
     while (this.physicsAt < now) {
       const dtMs = Math.min(PHYSICS_STEP_MS, now - this.physicsAt);
-      const dtS = dtMs / 1000;
-      const a = this.point;
-      const rCell = this.opts.cell.internalOhm(this.thermal.temperatureC);
-      this.opts.cell.step(dtS, a.currentA);
-      this.thermal.step(dtS, this.thermal.heatW(a.currentA, rCell, this.opts.loadOhm));
-      const b = this.electrical();
-      this.truthRec.add(dtS, a, b, this.loadOn);
-      this.point = b;
+      for (const c of this.channels) c.step(dtMs);
       this.physicsAt += dtMs;
     }
   }

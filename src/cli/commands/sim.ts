@@ -7,6 +7,7 @@ import { ErrorCodes, makeError } from '../../core/errors.js';
 import { DEFAULT_RIG_PATH, DEFAULT_SCENARIOS_PATH } from '../../run/run-config.js';
 import { writeJsonAtomic } from '../../sinks/atomic-json.js';
 import {
+  buildMultiChannelRig,
   buildSimRig,
   loadScenarios,
   pickScenario,
@@ -68,7 +69,7 @@ export const simCommand: CommandModule<object, SimArgs> = {
       .positional('scenario', {
         type: 'string',
         default: 'demo',
-        describe: 'Scenario in config/sim-scenarios.yaml',
+        describe: 'Scenario in config/sim-scenarios.yaml, or a rig with several channels there',
       })
       .option('port', {
         type: 'string',
@@ -106,7 +107,8 @@ export const simCommand: CommandModule<object, SimArgs> = {
         return true;
       }),
   handler: async (args) => {
-    const scenario = pickScenario(loadScenarios(DEFAULT_SCENARIOS_PATH), args.scenario);
+    const set = loadScenarios(DEFAULT_SCENARIOS_PATH);
+    const multi = set.rigs.get(args.scenario);
     const profile = await loadRigProfile(args.rig);
     const overrides: SimOverrides = {
       ...(args['clock-error'] !== undefined ? { clockError: args['clock-error'] } : {}),
@@ -116,12 +118,14 @@ export const simCommand: CommandModule<object, SimArgs> = {
       ...(args.seed !== undefined ? { seed: args.seed } : {}),
     };
     const clock = new HostClock();
-    const rig = buildSimRig(scenario, clock, profile, overrides);
+    const rig = multi
+      ? buildMultiChannelRig(multi, clock, profile, overrides)
+      : buildSimRig(pickScenario(set, args.scenario), clock, profile, overrides);
     const socat = args.pty !== undefined ? await ptyPair(args.pty) : null;
     const device = args.port ?? `${args.pty!}.rig`;
     const link = await attachSimRig(rig, device, profile.frame.baud);
     process.stdout.write(
-      `simulated rig "${scenario.name}" on ${device}${args.pty !== undefined ? `; connect cellvigil to ${args.pty}` : ''}\n`,
+      `simulated rig "${args.scenario}" on ${device}${args.pty !== undefined ? `; connect cellvigil to ${args.pty}` : ''}\n`,
     );
     let writing = false;
     const saveTruth = async (): Promise<void> => {

@@ -1,0 +1,118 @@
+import type { RigProfile } from '../chain/rig-profile-types.js';
+import type { Cell } from './cell-model.js';
+import { FrontEnd, type FrontEndErrors } from './front-end.js';
+import type { Rng } from './prng.js';
+import { ThermalModel, type ThermalOptions } from './thermal.js';
+import { TruthRecorder, type ElectricalPoint } from './truth.js';
+
+/** A thermistor as wired: `open` (a broken lead) or `short` reads as the rail, not as a temperature. */
+export type ThermistorWiring = 'ok' | 'open' | 'short';
+
+/** One channel of a simulated rig: its cell, load, front end and thermistor. */
+export interface SimChannelOptions {
+  /** The channel number in the protocol, 0..15. */
+  channel: number;
+  cell: Cell;
+  thermal: ThermalOptions;
+  loadOhm: number;
+  /** MOSFET on-resistance, in series with the load. */
+  mosfetOhm: number;
+  frontEnd: FrontEndErrors;
+  /** @default 'ok' */
+  thermistor?: ThermistorWiring;
+}
+
+export interface LoadSwitch {
+  /** Clock time (`clock.now()`) of the switch. */
+  atMs: number;
+  on: boolean;
+  cause: 'host' | 'watchdog' | 'stop';
+}
+
+/** Raw counts of one conversion of a channel's three inputs. */
+export interface ChannelCounts {
+  vRaw: number;
+  iRaw: number;
+  tRaw: number;
+}
+
+/**
+ * The physics of one channel: the cell under its load, heating and cooling, read through the
+ * board's imperfect front end. The rig around it owns the link, the clock and the watchdog.
+ */
+export class SimChannel {
+  readonly channel: number;
+  readonly truthRec = new TruthRecorder();
+  readonly switches: LoadSwitch[] = [];
+  readonly thermal: ThermalModel;
+  point: ElectricalPoint = { currentA: 0, terminalV: 0 };
+  loadOn = false;
+  /** Flag bit 1: set when the rig itself cut this channel's load, cleared by the next LOAD on. */
+  fault = false;
+  seq = 0;
+  framesSent = 0;
+  framesDropped = 0;
+  garbageLines = 0;
+  private readonly frontEnd: FrontEnd;
+  /** Everything in series with the cell's internal resistance when the load is on. */
+  private readonly externalOhm: number;
+  private readonly railCount: number;
+
+  constructor(
+    private readonly opts: SimChannelOptions,
+    profile: RigProfile,
+    rng: Rng,
+  ) {
+    this.channel = opts.channel;
+    if (!Number.isInteger(this.channel) || this.channel < 0 || this.channel > 15) {
+      throw new RangeError(`channel must be 0..15, got ${this.channel}`);
+    }
+    this.frontEnd = new FrontEnd(profile, opts.frontEnd, rng);
+    this.thermal = new ThermalModel(opts.thermal);
+    this.externalOhm =
+      opts.loadOhm + opts.mosfetOhm + profile.current.shunt_ohm + opts.frontEnd.connectionOhm;
+    // An open NTC in the low position leaves the input pulled to the reference, a short to ground.
+    const top = 2 ** profile.adc.bits - 1;
+    const low = profile.temperature.ntc_position === 'low';
+    this.railCount = (opts.thermistor === 'open') === low ? top : 0;
+    this.point = this.electrical();
+  }
+
+  get cell(): Cell {
+    return this.opts.cell;
+  }
+
+  switchLoad(on: boolean, cause: LoadSwitch['cause'], atMs: number): void {
+    this.loadOn = on;
+    this.point = this.electrical();
+    this.switches.push({ atMs, on, cause });
+  }
+
+  /** The three conversions of a frame, in the order the front end's noise is drawn. */
+  counts(): ChannelCounts {
+    const vRaw = this.frontEnd.voltage(this.point.terminalV).counts;
+    const iRaw = this.frontEnd.current(this.point.currentA).counts;
+    const tRaw = this.frontEnd.temperature(this.thermal.temperatureC).counts;
+    return { vRaw, iRaw, tRaw: (this.opts.thermistor ?? 'ok') === 'ok' ? tRaw : this.railCount };
+  }
+
+  /** One physics step of `dtMs`, the load state fixed within it. */
+  step(dtMs: number): void {
+    const dtS = dtMs / 1000;
+    const a = this.point;
+    const rCell = this.opts.cell.internalOhm(this.thermal.temperatureC);
+    this.opts.cell.step(dtS, a.currentA);
+    this.thermal.step(dtS, this.thermal.heatW(a.currentA, rCell, this.opts.loadOhm));
+    const b = this.electrical();
+    this.truthRec.add(dtS, a, b, this.loadOn);
+    this.point = b;
+  }
+
+  private electrical(): ElectricalPoint {
+    const ocv = this.opts.cell.ocvV();
+    if (!this.loadOn) return { currentA: 0, terminalV: ocv };
+    const rCell = this.opts.cell.internalOhm(this.thermal.temperatureC);
+    const currentA = ocv / (this.externalOhm + rCell);
+    return { currentA, terminalV: ocv - currentA * rCell };
+  }
+}
