@@ -1,9 +1,10 @@
 import { readFileSync } from 'node:fs';
-import { Ajv, type ErrorObject } from 'ajv';
+import { Ajv } from 'ajv';
 import type { RigProfile } from '../chain/rig-profile-types.js';
 import type { Clock } from '../core/clock.js';
 import { parseConfigYaml } from '../core/config-file.js';
 import { ErrorCodes, makeError } from '../core/errors.js';
+import { schemaError } from '../core/schema-error.js';
 import { ChemistryCell, type ChemistryId } from './cell-model.js';
 import { SCENARIO_FILE_SCHEMA } from './scenario-schema.js';
 import type { SimChannelOptions, ThermistorWiring } from './sim-channel.js';
@@ -120,7 +121,12 @@ export function loadScenarios(path: string): ScenarioSet {
         path,
         'Compare it with the shipped config/sim-scenarios.yaml.',
       );
-    throw schemaError(path, err);
+    throw schemaError(path, err, {
+      what: 'simulator scenario',
+      pattern:
+        'Use lower-case letters, digits and "-" for scenario names, and letters, digits, ".", "_" or "-" for ids (at most 32).',
+      fallback: 'Compare it with the scenarios shipped in config/sim-scenarios.yaml.',
+    });
   }
   const file = data as {
     scenarios: Record<string, Omit<SimScenario, 'name'>>;
@@ -272,59 +278,4 @@ export function buildMultiChannelRig(
     },
     seed: overrides.seed ?? f.seed,
   });
-}
-
-/** A key below `parent` as the user would look for it; odd names (spaces, punctuation) quoted. */
-function childKey(parent: string, child: string): string {
-  const shown = /^[A-Za-z0-9_-]+$/.test(child) ? child : JSON.stringify(child);
-  return parent === '(top level)' ? shown : `${parent}.${shown}`;
-}
-
-function schemaError(file: string, err: ErrorObject): Error {
-  const key = err.instancePath.split('/').filter(Boolean).join('.') || '(top level)';
-  const p = err.params as Record<string, unknown>;
-  let fix: string;
-  let where = key;
-  switch (err.keyword) {
-    case 'required':
-      where = childKey(key, String(p.missingProperty));
-      fix = `Add the key "${String(p.missingProperty)}".`;
-      break;
-    case 'additionalProperties': {
-      where = childKey(key, String(p.additionalProperty));
-      const allowed = Object.keys((err.parentSchema?.properties as object | undefined) ?? {});
-      fix = `Remove or rename ${JSON.stringify(String(p.additionalProperty))}; the keys allowed here are: ${allowed.join(', ')}.`;
-      break;
-    }
-    case 'type':
-      fix = `Make it a ${String(p.type)}.`;
-      break;
-    case 'minimum':
-    case 'maximum':
-    case 'exclusiveMinimum':
-    case 'exclusiveMaximum':
-      fix = `Use a value ${String(p.comparison)} ${String(p.limit)}.`;
-      break;
-    case 'enum':
-      fix = `Use one of: ${(p.allowedValues as unknown[]).join(', ')}.`;
-      break;
-    case 'oneOf': {
-      const keys = (err.schema as Array<{ required: string[] }>).flatMap((alt) => alt.required);
-      fix = `Give exactly one of: ${keys.join(', ')}.`;
-      break;
-    }
-    case 'pattern':
-    case 'propertyNames':
-      fix =
-        'Use lower-case letters, digits and "-" for scenario names, and letters, digits, ".", "_" or "-" for ids (at most 32).';
-      break;
-    default:
-      fix = 'Compare it with the scenarios shipped in config/sim-scenarios.yaml.';
-  }
-  return makeError(
-    ErrorCodes.CONFIG_INVALID,
-    `invalid simulator scenario setting: ${key} ${err.message ?? ''}`.trim(),
-    `${file}, key ${where}`,
-    fix,
-  );
 }
