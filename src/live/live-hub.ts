@@ -24,6 +24,8 @@ export interface LiveHubOptions {
   /** Most recent state changes and marks kept for `hello`. @default 100 */
   eventsKept?: number;
   estimate?: CutoffEstimateOptions;
+  /** The channel this hub's run is on, carried by every message as `channel` (see ChannelTag). */
+  channel?: string;
 }
 
 type HubEvent = HelloMessage['events'][number];
@@ -46,8 +48,10 @@ export class LiveHub {
   private handler: ControlHandler | null = null;
   private readonly alarmsKept: number;
   private readonly eventsKept: number;
+  readonly channel: string | undefined;
 
   constructor(o: LiveHubOptions = {}) {
+    this.channel = o.channel;
     this.history = new DownsampledHistory(o.historyPoints ?? 2000);
     this.estimator = new CutoffEstimator(o.estimate);
     this.alarmsKept = o.alarmsKept ?? 50;
@@ -152,6 +156,22 @@ export class LiveHub {
     return () => this.listeners.delete(listener);
   }
 
+  /** The run's details, or null before one starts. */
+  runInfo(): LiveRunInfo | null {
+    return this.run ? { ...this.run } : null;
+  }
+
+  /** The newest alarm, or null. */
+  lastAlarm(): LiveAlarm | null {
+    const a = this.alarms[this.alarms.length - 1];
+    return a ? { ...a } : null;
+  }
+
+  /** The result once the run has ended, else null. */
+  resultOf(): Record<string, unknown> | null {
+    return this.resultValue ? { ...this.resultValue } : null;
+  }
+
   status(): FeedStatus {
     const est = this.estimator.estimate(this.cutoffV);
     return {
@@ -172,6 +192,7 @@ export class LiveHub {
     return {
       type: 'hello',
       v: LIVE_VERSION,
+      ...(this.channel !== undefined ? { channel: this.channel } : {}),
       run: this.run ? { ...this.run } : null,
       status: this.status(),
       history: { fields: HISTORY_FIELDS, stride: this.history.stride, points },
@@ -187,6 +208,7 @@ export class LiveHub {
   }
 
   private emit(m: BroadcastMessage): void {
+    if (this.channel !== undefined) m.channel = this.channel;
     for (const l of this.listeners) l(m);
   }
 }

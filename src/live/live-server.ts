@@ -7,11 +7,13 @@ import { HostClock, type Clock, type TimerHandle } from '../core/clock.js';
 import { ErrorCodes, makeError } from '../core/errors.js';
 import { hostAllowed, isLoopbackHost, originAllowed, parseListen, requestToken } from './access.js';
 import type { LiveHub } from './live-hub.js';
+import type { StationFeed } from './station-feed.js';
 import {
   LIVE_VERSION,
   type BroadcastMessage,
   type LiveErrorCode,
   type ServerMessage,
+  type StationControlRequest,
 } from './live-types.js';
 import { checkClientMessage } from './message-schemas.js';
 import { loadStaticFiles } from './static-files.js';
@@ -20,7 +22,12 @@ import { ViewerQueue, type ViewerQueueOptions } from './viewer-queue.js';
 import { textFrame } from './ws-frame.js';
 
 export interface LiveServerOptions {
-  hub: LiveHub;
+  /** A one-channel run's feed; give this or `station`. */
+  hub?: LiveHub;
+  /** A station's feed: every channel's hub and the overview (docs/live-feed.md, "Stations"). */
+  station?: StationFeed;
+  /** How often overview viewers of a station get the `station` message, ms. @default 500 */
+  overviewMs?: number;
   /** `host:port`; port 0 picks a free port. */
   listen: string;
   tokenStore: LiveTokens;
@@ -69,8 +76,9 @@ class Outgoing {
 
   constructor(readonly message: ServerMessage) {}
 
+  /** Samples and station overviews: only the newest is worth sending to a viewer behind. */
   get isSample(): boolean {
-    return this.message.type === 'sample';
+    return this.message.type === 'sample' || this.message.type === 'station';
   }
 
   /** UTF-8 bytes of the JSON text, made once however many viewers get them. */
@@ -92,8 +100,12 @@ class Outgoing {
 /** Shortest gap between two sample sends, ms: at most 100 samples a second reach a viewer. */
 const SAMPLE_GAP_MS = 10;
 
+/** What a viewer follows: one channel's hub, or a station's overview. */
+type ViewerFeed = { hub: LiveHub } | { station: StationFeed };
+
 interface Viewer {
   ws: WebSocket;
+  feed: ViewerFeed;
   /** The viewer's connection, which broadcast frames are written to directly (see ws-frame.ts). */
   socket: Duplex;
   queue: ViewerQueue<Outgoing>;
@@ -167,6 +179,18 @@ export async function startLiveServer(o: LiveServerOptions): Promise<LiveServer>
       `--listen ${o.listen}`,
       'Listen on 127.0.0.1, or let cellvigil make its tokens file (docs/live-feed.md "Tokens").',
     );
+  if ((o.hub === undefined) === (o.station === undefined))
+    throw new Error('the live server follows one run (hub) or one station, not both or neither');
+  const station = o.station ?? null;
+  /** What a request asks to follow; null when it names a channel the station does not have. */
+  const feedFor = (url: URL): ViewerFeed | null => {
+    if (!station) return { hub: o.hub! };
+    if (url.searchParams.get('view') === 'station') return { station };
+    // Without a channel, a viewer made for one run follows the station's first channel.
+    const key = url.searchParams.get('channel') ?? station.keys()[0];
+    const hub = key !== undefined ? station.hub(key) : undefined;
+    return hub ? { hub } : null;
+  };
   const clock = o.clock ?? new HostClock();
   const rawLog = o.log ?? (() => {});
   const log = throttled(rawLog, clock);
@@ -221,7 +245,9 @@ export async function startLiveServer(o: LiveServerOptions): Promise<LiveServer>
       });
       return reply(res, 403, 'This server answers only to localhost, 127.0.0.1 or [::1].\n');
     }
-    const file = files.get(url.pathname);
+    // A station's address opens its overview; `?channel=<rig>/<n>` opens that channel's page.
+    const overviewHere = station && url.pathname === '/' && !url.searchParams.has('channel');
+    const file = files.get(overviewHere ? '/station' : url.pathname);
     const isAsset = url.pathname.startsWith('/assets/');
     if (
       !isAsset &&
@@ -241,10 +267,12 @@ export async function startLiveServer(o: LiveServerOptions): Promise<LiveServer>
       );
     }
     if (url.pathname === '/api/state') {
+      const feed = feedFor(url);
+      if (!feed) return reply(res, 404, 'This station has no such channel.\n');
       return reply(
         res,
         200,
-        JSON.stringify(o.hub.hello()),
+        JSON.stringify('hub' in feed ? feed.hub.hello() : feed.station.overview()),
         'application/json; charset=utf-8',
         head,
       );
@@ -292,11 +320,16 @@ export async function startLiveServer(o: LiveServerOptions): Promise<LiveServer>
         `already ${maxViewers} viewers`,
         remote,
       );
-    wss.handleUpgrade(req, socket, headBytes, (ws) => attach(ws, socket, remote ?? 'unknown'));
+    const feed = feedFor(url);
+    if (!feed)
+      return refuseUpgrade(socket, 404, 'Not Found', 'this station has no such channel', remote);
+    wss.handleUpgrade(req, socket, headBytes, (ws) =>
+      attach(ws, socket, remote ?? 'unknown', feed),
+    );
   });
 
-  function attach(ws: WebSocket, socket: Duplex, remote: string): void {
-    const v: Viewer = { ws, socket, queue: new ViewerQueue(o.queue), remote, alive: true };
+  function attach(ws: WebSocket, socket: Duplex, remote: string, feed: ViewerFeed): void {
+    const v: Viewer = { ws, feed, socket, queue: new ViewerQueue(o.queue), remote, alive: true };
     viewers.add(v);
     log('live_viewer_joined', { remote, viewers: viewers.size });
     let leaveWhy = 'closed by the viewer';
@@ -313,7 +346,7 @@ export async function startLiveServer(o: LiveServerOptions): Promise<LiveServer>
       });
     });
     ws.on('message', (data, isBinary) => onMessage(v, data, isBinary));
-    send(v, o.hub.hello());
+    send(v, 'hub' in feed ? feed.hub.hello() : feed.station.overview());
   }
 
   function fail(v: Viewer, id: string | null, code: LiveErrorCode, error: string): void {
@@ -342,13 +375,15 @@ export async function startLiveServer(o: LiveServerOptions): Promise<LiveServer>
       });
       return fail(v, id, 'unauthorized', 'the control token is missing or wrong');
     }
-    const request =
+    const request: StationControlRequest =
       m.type === 'stop'
         ? { type: m.type }
         : m.type === 'set-cutoff'
           ? { type: m.type, cutoff_V: m.cutoff_V }
-          : { type: m.type, note: m.note };
-    const r = o.hub.control(request);
+          : m.type === 'mark'
+            ? { type: m.type, note: m.note }
+            : { type: m.type, ...(m.cell_id !== undefined ? { cell_id: m.cell_id } : {}) };
+    const r = controlFor(v, request, m.channel);
     // A request that passed the token check is always logged: it is the user's own.
     rawLog('live_control', {
       remote: v.remote,
@@ -358,6 +393,23 @@ export async function startLiveServer(o: LiveServerOptions): Promise<LiveServer>
     });
     if (r.ok) send(v, { type: 'ack', v: LIVE_VERSION, id, request: m.type });
     else fail(v, id, 'refused', r.error);
+  }
+
+  /** A station routes a request by the channel it names, else the one the viewer follows. */
+  function controlFor(
+    v: Viewer,
+    request: StationControlRequest,
+    channel: string | undefined,
+  ): { ok: true } | { ok: false; error: string } {
+    if (!station) {
+      if (request.type === 'start')
+        return { ok: false, error: 'start is for the channels of a station; this run has one' };
+      return o.hub!.control(request);
+    }
+    const key = channel ?? ('hub' in v.feed ? v.feed.hub.channel : undefined);
+    if (key === undefined)
+      return { ok: false, error: 'say which channel the request is for ("channel")' };
+    return station.control(key, request);
   }
 
   // Sends happen once per event-loop turn: a burst of samples read in one chunk from the rig
@@ -412,15 +464,40 @@ export async function startLiveServer(o: LiveServerOptions): Promise<LiveServer>
     }
   }
 
-  const unsubscribe = o.hub.subscribe((m: BroadcastMessage) => {
+  /**
+   * A channel's viewer gets its channel's messages; an overview viewer gets every channel's
+   * events as they happen, its samples through the periodic overview instead.
+   */
+  const wants = (v: Viewer, m: BroadcastMessage): boolean =>
+    'hub' in v.feed
+      ? station === null || m.channel === v.feed.hub.channel
+      : m.type !== 'sample' && m.type !== 'hello';
+  const deliver = (m: BroadcastMessage): void => {
     if (viewers.size === 0) return;
     const out = new Outgoing(m);
-    for (const v of viewers) offer(v, out);
-    schedule(out);
-  });
+    let offered = false;
+    for (const v of viewers) {
+      if (!wants(v, m)) continue;
+      offer(v, out);
+      offered = true;
+    }
+    if (offered) schedule(out);
+  };
+  const unsubscribe = station ? station.subscribe(deliver) : o.hub!.subscribe(deliver);
+  const sendOverview = (): void => {
+    if (!station) return;
+    let out: Outgoing | null = null;
+    for (const v of viewers) {
+      if (!('station' in v.feed)) continue;
+      out ??= new Outgoing(station.overview());
+      offer(v, out);
+    }
+    if (out) schedule(out);
+  };
 
   const timers: TimerHandle[] = [
     clock.setTimer(() => viewers.forEach(pump), o.sweepMs ?? 200, true),
+    ...(station ? [clock.setTimer(sendOverview, o.overviewMs ?? 500, true)] : []),
     clock.setTimer(
       () => {
         for (const v of viewers) {

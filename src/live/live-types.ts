@@ -54,6 +54,13 @@ export interface LiveMark {
 
 export type ControlRequest =
   { type: 'stop' } | { type: 'set-cutoff'; cutoff_V: number } | { type: 'mark'; note: string };
+/** Starts the next run on a station's channel (after a cell swap), optionally naming the cell. */
+export interface StartRequest {
+  type: 'start';
+  cell_id?: string;
+}
+/** What a station's channel takes from a viewer: a run's controls, and a start. */
+export type StationControlRequest = ControlRequest | StartRequest;
 export type ControlReply = { ok: true } | { ok: false; error: string };
 export type ControlHandler = (c: ControlRequest) => ControlReply;
 
@@ -80,7 +87,15 @@ export interface FeedStatus {
   ended: boolean;
 }
 
-export interface HelloMessage {
+/**
+ * The channel a message is about: `<rig>/<n>` in a station, the channel number alone in a
+ * one-channel run. Absent only from a daemon older than the field.
+ */
+export interface ChannelTag {
+  channel?: string;
+}
+
+export interface HelloMessage extends ChannelTag {
   type: 'hello';
   v: typeof LIVE_VERSION;
   run: LiveRunInfo | null;
@@ -91,47 +106,47 @@ export interface HelloMessage {
   result: Record<string, unknown> | null;
 }
 
-export interface SampleMessage extends LiveSample {
+export interface SampleMessage extends LiveSample, ChannelTag {
   type: 'sample';
   v: typeof LIVE_VERSION;
   time_to_cutoff_s: number | null;
 }
 
-export interface StateMessage extends LiveStateChange {
+export interface StateMessage extends LiveStateChange, ChannelTag {
   type: 'state';
   v: typeof LIVE_VERSION;
 }
 
-export interface AlarmMessage extends LiveAlarm {
+export interface AlarmMessage extends LiveAlarm, ChannelTag {
   type: 'alarm';
   v: typeof LIVE_VERSION;
 }
 
-export interface MarkMessage extends LiveMark {
+export interface MarkMessage extends LiveMark, ChannelTag {
   type: 'mark';
   v: typeof LIVE_VERSION;
 }
 
-export interface ResultMessage {
+export interface ResultMessage extends ChannelTag {
   type: 'result';
   v: typeof LIVE_VERSION;
   result: Record<string, unknown>;
 }
 
-export interface CutoffMessage {
+export interface CutoffMessage extends ChannelTag {
   type: 'cutoff';
   v: typeof LIVE_VERSION;
   cutoff_V: number;
 }
 
-export interface AckMessage {
+export interface AckMessage extends ChannelTag {
   type: 'ack';
   v: typeof LIVE_VERSION;
   id: string | null;
-  request: ControlRequest['type'];
+  request: StationControlRequest['type'];
 }
 
-export interface ErrorMessage {
+export interface ErrorMessage extends ChannelTag {
   type: 'error';
   v: typeof LIVE_VERSION;
   id: string | null;
@@ -140,6 +155,28 @@ export interface ErrorMessage {
 }
 
 export type LiveErrorCode = 'malformed' | 'unauthorized' | 'refused';
+
+/** One channel of a station as the overview shows it. */
+export interface StationChannel {
+  /** `<rig>/<n>`, the key every other message carries as `channel`. */
+  channel: string;
+  rig: string;
+  ch: number;
+  cell_id: string | null;
+  /** The channel's run, or null for a channel waiting for a start. */
+  run: LiveRunInfo | null;
+  status: FeedStatus;
+  /** The newest alarm of the run, or null. */
+  alarm: LiveAlarm | null;
+  result: Record<string, unknown> | null;
+}
+
+/** The whole station: sent to an overview viewer on connect and then a few times a second. */
+export interface StationMessage {
+  type: 'station';
+  v: typeof LIVE_VERSION;
+  channels: StationChannel[];
+}
 
 /** What the hub broadcasts to every viewer. */
 export type BroadcastMessage =
@@ -151,9 +188,13 @@ export type BroadcastMessage =
   | ResultMessage
   | CutoffMessage;
 /** Everything a viewer can receive. */
-export type ServerMessage = BroadcastMessage | AckMessage | ErrorMessage;
+export type ServerMessage = BroadcastMessage | StationMessage | AckMessage | ErrorMessage;
 
 /** A control message as it arrives from a viewer, after validation. */
-export type ClientMessage = (
-  { type: 'stop' } | { type: 'set-cutoff'; cutoff_V: number } | { type: 'mark'; note: string }
-) & { v: typeof LIVE_VERSION; token: string; id?: string };
+export type ClientMessage = StationControlRequest & {
+  v: typeof LIVE_VERSION;
+  token: string;
+  id?: string;
+  /** Which channel of a station the request is for; a channel's own page may leave it out. */
+  channel?: string;
+};

@@ -12,6 +12,10 @@ const str = { type: 'string' } as const;
 const version = { const: LIVE_VERSION } as const;
 const id = { type: 'string', maxLength: 64 } as const;
 
+/** A station channel's key, `<rig>/<n>`, or a one-channel run's channel number. */
+const channel = { type: 'string', minLength: 1, maxLength: 64 } as const;
+
+/** Every message may say which channel it is about. */
 function message(
   type: string,
   properties: Record<string, unknown>,
@@ -21,7 +25,7 @@ function message(
     type: 'object',
     additionalProperties: false,
     required: ['type', 'v', ...required],
-    properties: { type: { const: type }, v: version, ...properties },
+    properties: { type: { const: type }, v: version, channel, ...properties },
   };
 }
 
@@ -66,6 +70,30 @@ const runInfo = {
   },
 } as const;
 
+const feedStatus = {
+  type: 'object',
+  additionalProperties: false,
+  required: ['sample', 'state', 'cutoff_V', 'time_to_cutoff_s', 'slope_V_per_s', 'ended'],
+  properties: {
+    sample: {
+      oneOf: [
+        { type: 'null' },
+        {
+          type: 'object',
+          additionalProperties: false,
+          required: sampleRequired,
+          properties: sampleFields,
+        },
+      ],
+    },
+    state: str,
+    cutoff_V: numOrNull,
+    time_to_cutoff_s: numOrNull,
+    slope_V_per_s: numOrNull,
+    ended: { type: 'boolean' },
+  },
+} as const;
+
 const stateFields = { host_s: num, from: str, to: str, why: str } as const;
 const alarmFields = { host_s: num, kind: str, detail: str } as const;
 const markFields = { host_s: num, note: str } as const;
@@ -76,29 +104,7 @@ export const SERVER_MESSAGE_SCHEMAS = {
     'hello',
     {
       run: { oneOf: [{ type: 'null' }, runInfo] },
-      status: {
-        type: 'object',
-        additionalProperties: false,
-        required: ['sample', 'state', 'cutoff_V', 'time_to_cutoff_s', 'slope_V_per_s', 'ended'],
-        properties: {
-          sample: {
-            oneOf: [
-              { type: 'null' },
-              {
-                type: 'object',
-                additionalProperties: false,
-                required: sampleRequired,
-                properties: sampleFields,
-              },
-            ],
-          },
-          state: str,
-          cutoff_V: numOrNull,
-          time_to_cutoff_s: numOrNull,
-          slope_V_per_s: numOrNull,
-          ended: { type: 'boolean' },
-        },
-      },
+      status: feedStatus,
       history: {
         type: 'object',
         additionalProperties: false,
@@ -160,9 +166,46 @@ export const SERVER_MESSAGE_SCHEMAS = {
   mark: message('mark', markFields, Object.keys(markFields)),
   result: message('result', { result: resultObject }, ['result']),
   cutoff: message('cutoff', { cutoff_V: num }, ['cutoff_V']),
+  station: message(
+    'station',
+    {
+      channels: {
+        type: 'array',
+        items: {
+          type: 'object',
+          additionalProperties: false,
+          required: ['channel', 'rig', 'ch', 'cell_id', 'run', 'status', 'alarm', 'result'],
+          properties: {
+            channel,
+            rig: str,
+            ch: { type: 'integer', minimum: 0, maximum: 15 },
+            cell_id: { oneOf: [{ type: 'null' }, str] },
+            run: { oneOf: [{ type: 'null' }, runInfo] },
+            status: feedStatus,
+            alarm: {
+              oneOf: [
+                { type: 'null' },
+                {
+                  type: 'object',
+                  additionalProperties: false,
+                  required: Object.keys(alarmFields),
+                  properties: alarmFields,
+                },
+              ],
+            },
+            result: { oneOf: [{ type: 'null' }, resultObject] },
+          },
+        },
+      },
+    },
+    ['channels'],
+  ),
   ack: message(
     'ack',
-    { id: { oneOf: [{ type: 'null' }, id] }, request: { enum: ['stop', 'set-cutoff', 'mark'] } },
+    {
+      id: { oneOf: [{ type: 'null' }, id] },
+      request: { enum: ['stop', 'set-cutoff', 'mark', 'start'] },
+    },
     ['id', 'request'],
   ),
   error: message(
@@ -187,6 +230,21 @@ export const CLIENT_MESSAGE_SCHEMAS = {
     'token',
     'note',
   ]),
+  /** A station's channel only: the next run, on a fresh cell, optionally named. */
+  start: message(
+    'start',
+    {
+      token,
+      id,
+      cell_id: {
+        type: 'string',
+        minLength: 1,
+        maxLength: 64,
+        pattern: '^[^\\u0000-\\u001f\\u007f]+$',
+      },
+    },
+    ['token'],
+  ),
 } as const;
 
 const ajv = new Ajv({ allErrors: false, strict: true, strictTuples: false, allowUnionTypes: true });
@@ -227,7 +285,11 @@ function check<T>(
 
 /** Validates a control message from a viewer (already JSON-parsed). */
 export function checkClientMessage(x: unknown): Checked<ClientMessage> {
-  return check<ClientMessage>(clientValidators, x, 'viewers may send stop, set-cutoff or mark');
+  return check<ClientMessage>(
+    clientValidators,
+    x,
+    'viewers may send stop, set-cutoff, mark, or start (a station channel)',
+  );
 }
 
 /** Validates a message from the daemon, by its type. */

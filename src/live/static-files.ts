@@ -30,6 +30,10 @@ export function loadStaticFiles(): Map<string, StaticFile> {
     ['/assets/live.js', join(PAGE_DIR, 'live.js'), JS],
     ['/assets/live.css', join(PAGE_DIR, 'live.css'), CSS],
     ['/assets/icon.svg', join(PAGE_DIR, 'icon.svg'), 'image/svg+xml'],
+    // A station's overview: one tile per channel, each opening that channel's page.
+    ['/station', join(PAGE_DIR, 'station.html'), 'text/html; charset=utf-8'],
+    ['/assets/station.js', join(PAGE_DIR, 'station.js'), JS],
+    ['/assets/station.css', join(PAGE_DIR, 'station.css'), CSS],
     ['/assets/uplot.js', join(uplot, 'uPlot.iife.min.js'), JS],
     ['/assets/uplot.css', join(uplot, 'uPlot.min.css'), CSS],
   ];

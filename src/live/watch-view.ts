@@ -66,6 +66,7 @@ export function applyMessage(view: WatchView, m: ServerMessage): boolean {
     case 'mark':
     case 'ack':
     case 'error':
+    case 'station':
       return false;
   }
 }
