@@ -8,6 +8,12 @@ import {
   statusBlock,
   statusLine,
 } from '../../live/watch-view.js';
+import {
+  applyStationMessage,
+  stationEventLine,
+  stationTable,
+  type StationView,
+} from '../../live/watch-station.js';
 
 interface WatchArgs {
   url: string;
@@ -39,7 +45,11 @@ export const watchCommand: CommandModule<object, WatchArgs> = {
         return true;
       }),
   handler: async (args) => {
-    const url = liveSocketUrl(args.url, args.token);
+    // A station answers with its overview; a one-channel daemon ignores the parameter.
+    const socket = new URL(liveSocketUrl(args.url, args.token));
+    socket.searchParams.set('view', 'station');
+    const url = socket.toString();
+    let station: StationView | null = null;
     const out = process.stdout;
     const tty = out.isTTY === true;
     const view = emptyView();
@@ -49,7 +59,7 @@ export const watchCommand: CommandModule<object, WatchArgs> = {
 
     const draw = (): void => {
       redrawPending = false;
-      const lines = statusBlock(view);
+      const lines = station ? stationTable(station) : statusBlock(view);
       // Move to the start of the previous block and clear it, then write the new one.
       out.write(
         `${drawn > 0 ? `\x1b[${drawn}F\x1b[J` : ''}${lines.map((l) => l.slice(0, Math.max(20, (out.columns || 100) - 1))).join('\n')}\n`,
@@ -68,7 +78,7 @@ export const watchCommand: CommandModule<object, WatchArgs> = {
       const now = performance.now();
       if (!important && now - lastLine < args.interval * 1000) return;
       lastLine = now;
-      out.write(`${statusLine(view)}\n`);
+      out.write(station ? `${stationTable(station).join('\n')}\n` : `${statusLine(view)}\n`);
     };
 
     let exitCode: number | null = null;
@@ -76,10 +86,20 @@ export const watchCommand: CommandModule<object, WatchArgs> = {
       url,
       onLink: (text) => {
         view.link = text;
+        if (station) station.link = text;
         if (tty) update(true);
         else if (text !== 'live' && text !== 'connecting') process.stderr.write(`watch: ${text}\n`);
       },
       onMessage: (m) => {
+        if (m.type === 'station') station ??= { channels: [], link: view.link };
+        if (station) {
+          if (!applyStationMessage(station, m)) return;
+          if (tty) return update(m.type !== 'station');
+          const event = stationEventLine(m);
+          if (event !== null) out.write(`${event}\n`);
+          else update(false);
+          return;
+        }
         const important = applyMessage(view, m);
         if (m.type === 'sample' || important) update(important);
         if (view.result && exitCode === null) {
