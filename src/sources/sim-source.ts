@@ -13,6 +13,13 @@ export interface SimSourceOptions {
   overrides?: SimOverrides;
 }
 
+/** A simulated rig already built (one with several channels, say), on the clock it runs on. */
+export interface BuiltSimSourceOptions {
+  rig: SimRig;
+  clock: Clock;
+  description: string;
+}
+
 /** Host-to-rig latency on the virtual clock, like a few bytes at 115200 baud. */
 const COMMAND_DELAY_MS = 2;
 
@@ -28,8 +35,13 @@ export class SimSource implements Source {
   private readonly clock: Clock;
   private open_ = false;
 
-  constructor(o: SimSourceOptions) {
+  constructor(o: SimSourceOptions | BuiltSimSourceOptions) {
     this.clock = o.clock;
+    if ('rig' in o) {
+      this.description = o.description;
+      this.rig = o.rig;
+      return;
+    }
     this.description = `simulated rig, scenario ${o.scenario.name}`;
     this.rig = buildSimRig(o.scenario, o.clock, o.profile, o.overrides ?? {});
   }
