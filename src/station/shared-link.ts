@@ -56,10 +56,9 @@ export class SharedRigLink {
     return this.up;
   }
 
-  /** Opens the rig's port; lines for channels without a view yet are dropped. */
+  /** Opens the rig's port (again, after a failed try); lines for channels without a view are dropped. */
   async open(): Promise<void> {
     if (this.opened) return;
-    this.opened = true;
     await this.source.open({
       line: (text) => this.route(text),
       overlong: (n) => this.rig.overlong(n),
@@ -74,6 +73,7 @@ export class SharedRigLink {
         for (const h of [...this.channels.values()]) h.reopened?.();
       },
     });
+    this.opened = true;
     this.up = true;
   }
 
