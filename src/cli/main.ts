@@ -5,6 +5,7 @@ import { CellvigilError } from '../core/errors.js';
 import { assessCommand } from './commands/assess.js';
 import { calibrateCommand } from './commands/calibrate.js';
 import { chemistriesCommand } from './commands/chemistries.js';
+import { controlCommand } from './commands/control.js';
 import { reportCommand } from './commands/report.js';
 import { runCommand } from './commands/run.js';
 import { simCommand } from './commands/sim.js';
@@ -16,6 +17,7 @@ const commands = [
   chemistriesCommand,
   simCommand,
   watchCommand,
+  controlCommand,
   reportCommand,
   calibrateCommand,
   assessCommand,
