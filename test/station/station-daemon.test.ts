@@ -66,12 +66,10 @@ describe('the station daemon', () => {
       'a/2': [2],
       'b/0': [0],
     });
-    const overview = await (await fetch(`${handle.liveUrl!}api/state?view=station`)).json();
-    expect(overview.channels.map((c: { channel: string }) => c.channel)).toEqual([
-      'a/0',
-      'a/2',
-      'b/0',
-    ]);
+    const overview = (await (await fetch(`${handle.liveUrl!}api/state?view=station`)).json()) as {
+      channels: { channel: string }[];
+    };
+    expect(overview.channels.map((c) => c.channel)).toEqual(['a/0', 'a/2', 'b/0']);
     expect(await handle.stop('test')).toBe(3);
     expect(await handle.done).toBe(3);
   });
