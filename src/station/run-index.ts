@@ -3,9 +3,10 @@ import { join } from 'node:path';
 import { writeJsonAtomic } from '../sinks/atomic-json.js';
 
 /**
- * Which run folder each channel of a station is writing, kept beside the run folders and
- * replaced atomically at every start and end. After a crash or power loss the station reads it
- * back and resumes every channel whose folder has no result yet.
+ * Which run folder each channel of a station wrote last, kept beside the run folders and
+ * replaced atomically at every start. After a crash or power loss the station reads it back:
+ * a channel whose folder has no result yet is resumed; one whose run had ended waits for a
+ * start (its cell is discharged; a new run needs a fresh cell).
  */
 export class RunIndex {
   private readonly current = new Map<string, string>();
@@ -31,8 +32,11 @@ export class RunIndex {
     }
   }
 
-  /** The folder a channel was writing when the daemon stopped, if that run never finished. */
-  async unfinished(key: string): Promise<string | null> {
+  /**
+   * A channel's last run: its folder and whether it is unfinished (no result: resume it), or
+   * null when the channel has none (or its folder is gone).
+   */
+  async last(key: string): Promise<{ folder: string; unfinished: boolean } | null> {
     const folder = this.current.get(key);
     if (folder === undefined) return null;
     const exists = (p: string) =>
@@ -41,20 +45,19 @@ export class RunIndex {
         () => false,
       );
     if (!(await exists(join(folder, 'manifest.json')))) return null;
-    return (await exists(join(folder, 'result.json'))) ? null : folder;
+    return { folder, unfinished: !(await exists(join(folder, 'result.json'))) };
   }
 
-  set(key: string, folder: string | null): Promise<void> {
-    if (folder === null) this.current.delete(key);
-    else this.current.set(key, folder);
+  /** Records the folder a channel now writes; rejects when the write fails. */
+  set(key: string, folder: string): Promise<void> {
+    this.current.set(key, folder);
     const snapshot = {
       format: 'cellvigil-station-index',
       channels: Object.fromEntries(this.current),
     };
-    // One write at a time, each with everything known when it starts.
-    this.writing = this.writing
-      .then(() => writeJsonAtomic(this.path, snapshot))
-      .catch(() => undefined);
-    return this.writing;
+    // One write at a time, in order; a failed write does not hold up the next.
+    const next = this.writing.then(() => writeJsonAtomic(this.path, snapshot));
+    this.writing = next.catch(() => undefined);
+    return next;
   }
 }

@@ -85,8 +85,10 @@ export class Station {
   }
 
   /**
-   * Opens every rig and starts every channel, resuming the unfinished runs of a daemon that
-   * died. A rig whose port cannot be opened is reported and its channels wait; the others run.
+   * Opens every rig and starts every channel. After a crash, a channel whose run never
+   * finished is resumed from its folder, and one whose run had ended waits for a start (its
+   * cell is discharged); `fresh` starts them all anew. A rig whose port cannot be opened is
+   * reported and its channels wait; the others run.
    */
   async start(): Promise<void> {
     await this.index.load();
@@ -94,8 +96,14 @@ export class Station {
     if (this.rigs.every((r) => !r.open)) throw new Error('no rig of the station could be opened');
     for (const slot of this.slots.values()) {
       if (!slot.rig.open) continue;
-      const resume = this.o.fresh ? null : await this.index.unfinished(slot.key);
-      await this.launch(slot, resume).catch((e: Error) =>
+      const last = this.o.fresh ? null : await this.index.last(slot.key);
+      if (last && !last.unfinished) {
+        this.o.print(
+          `${slot.key}: its last run has ended (${last.folder}); after a cell swap: cellvigil control ${slot.key} start`,
+        );
+        continue;
+      }
+      await this.launch(slot, last?.folder ?? null).catch((e: Error) =>
         this.o.print(`${slot.key}: not started: ${e.message}`),
       );
     }
@@ -217,11 +225,6 @@ export class Station {
     slot.last = outcome;
     const how = outcome ? String(outcome.result['end_reason']) : `failed: ${e?.message ?? ''}`;
     this.o.print(`${slot.key}: ended: ${how} (${run.folder})`);
-    // A run that has its result is done; one that failed without one stays to be resumed.
-    if (outcome)
-      void this.index
-        .set(slot.key, null)
-        .catch((err: Error) => this.o.print(`station index not written: ${err.message}`));
     this.wakeIdle();
   }
 

@@ -167,7 +167,7 @@ describe('station orchestration', () => {
     });
   });
 
-  it('after a crash every unfinished channel resumes from its own folder; a finished one starts afresh', async () => {
+  it('after a crash every unfinished channel resumes from its own folder; a finished one waits for a start', async () => {
     const first = setup();
     await first.station.start();
     first.runsMade[1]!.end('cutoff');
@@ -176,11 +176,11 @@ describe('station orchestration', () => {
     // The daemon dies here: no result for left/0 and right/2.
     const again = setup({ runs: first.runs });
     await again.station.start();
-    expect(again.runsMade.map((r) => r.request.resume)).toEqual([
-      first.runsMade[0]!.folder,
-      null,
-      first.runsMade[2]!.folder,
+    expect(again.runsMade.map((r) => [r.request.plan.channel, r.request.resume])).toEqual([
+      [0, first.runsMade[0]!.folder],
+      [2, first.runsMade[2]!.folder],
     ]);
+    expect(again.printed.join('\n')).toContain('left/1: its last run has ended');
     const fresh = setup({ runs: first.runs, fresh: true });
     await fresh.station.start();
     expect(fresh.runsMade.map((r) => r.request.resume)).toEqual([null, null, null]);
