@@ -68,6 +68,7 @@ const scenario = {
         voltage_gain_error: { type: 'number', minimum: -0.5, maximum: 0.5 },
         noise_counts: nonNegative,
         thermistor: { type: 'string', enum: ['ok', 'open', 'short'], default: 'ok' },
+        thermistor_fails_after_s: nonNegative,
       },
     },
     rig: {

@@ -41,6 +41,8 @@ export interface SimScenario {
     voltage_gain_error: number;
     noise_counts: number;
     thermistor?: ThermistorWiring;
+    /** The thermistor reads right until this long after the rig's boot, then as `thermistor` says. */
+    thermistor_fails_after_s?: number;
   };
   rig: {
     rig_id: string;
@@ -224,6 +226,9 @@ export function channelParts(
       noiseCounts: fe.noise_counts,
     },
     thermistor: fe.thermistor ?? 'ok',
+    ...(fe.thermistor_fails_after_s !== undefined
+      ? { thermistorFailsAfterMs: fe.thermistor_fails_after_s * 1000 }
+      : {}),
   };
 }
 

@@ -20,6 +20,8 @@ export interface SimChannelOptions {
   frontEnd: FrontEndErrors;
   /** @default 'ok' */
   thermistor?: ThermistorWiring;
+  /** A thermistor that breaks in use: it reads right until this long after the rig's boot. */
+  thermistorFailsAfterMs?: number;
 }
 
 export interface LoadSwitch {
@@ -88,12 +90,15 @@ export class SimChannel {
     this.switches.push({ atMs, on, cause });
   }
 
-  /** The three conversions of a frame, in the order the front end's noise is drawn. */
-  counts(): ChannelCounts {
+  /** The three conversions of a frame `sinceBootMs` after the rig's boot, in the order the front end's noise is drawn. */
+  counts(sinceBootMs: number): ChannelCounts {
     const vRaw = this.frontEnd.voltage(this.point.terminalV).counts;
     const iRaw = this.frontEnd.current(this.point.currentA).counts;
     const tRaw = this.frontEnd.temperature(this.thermal.temperatureC).counts;
-    return { vRaw, iRaw, tRaw: (this.opts.thermistor ?? 'ok') === 'ok' ? tRaw : this.railCount };
+    const broken =
+      (this.opts.thermistor ?? 'ok') !== 'ok' &&
+      sinceBootMs >= (this.opts.thermistorFailsAfterMs ?? 0);
+    return { vRaw, iRaw, tRaw: broken ? this.railCount : tRaw };
   }
 
   /** One physics step of `dtMs`, the load state fixed within it. */

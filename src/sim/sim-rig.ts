@@ -265,18 +265,19 @@ export class SimRig {
 
   private onFrame(): void {
     this.catchUp();
-    const tickMs = this.ticks.ticksAt(this.clock.now() - this.bootAt);
-    for (const c of this.channels) this.sendFrame(c, tickMs);
+    const sinceBootMs = this.clock.now() - this.bootAt;
+    const tickMs = this.ticks.ticksAt(sinceBootMs);
+    for (const c of this.channels) this.sendFrame(c, tickMs, sinceBootMs);
   }
 
-  private sendFrame(c: SimChannel, tickMs: number): void {
+  private sendFrame(c: SimChannel, tickMs: number, sinceBootMs: number): void {
     const seq = c.seq;
     c.seq = (c.seq + 1) & 0xffff;
     if (this.faults.dropFrame()) {
       c.framesDropped++;
       return;
     }
-    const counts = c.counts();
+    const counts = c.counts(sinceBootMs);
     const frame = encodeDataFrame({
       channel: c.channel,
       seq,

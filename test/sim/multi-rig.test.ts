@@ -138,11 +138,21 @@ describe('simulated rig with several channels, protocol v1', () => {
 
   it('a broken thermistor lead reads as the rail: an open NTC in the low position pulls the input to the reference (common practice)', () => {
     const clock = new VirtualClock();
-    const h = harness(quadRig(clock, [{}, { thermistor: 'open' }, { thermistor: 'short' }]), clock);
+    const h = harness(
+      quadRig(clock, [
+        {},
+        { thermistor: 'open' },
+        { thermistor: 'short' },
+        { thermistor: 'open', thermistorFailsAfterMs: 250 },
+      ]),
+      clock,
+    );
     clock.advance(300);
     const m = decoded(h.lines());
     expect(dataOf(m, 1).map((f) => f.tRaw)).toEqual([4095, 4095, 4095]);
     expect(dataOf(m, 2).map((f) => f.tRaw)).toEqual([0, 0, 0]);
+    // A lead that breaks in use: right until then, the rail after.
+    expect(dataOf(m, 3).map((f) => f.tRaw)).toEqual([2048, 2048, 4095]);
     // 25 °C: the NTC equals its R25, so the divider of two 10 kΩ sits at half the reference.
     expect(dataOf(m, 0)[0]!.tRaw).toBe(2048);
   });
