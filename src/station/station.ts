@@ -134,7 +134,11 @@ export class Station {
     if (c.type === 'start') {
       if (slot.run || slot.starting)
         return { ok: false, error: `${key} is running; stop it first` };
-      void this.startChannel(key, c.cell_id ?? null, by);
+      if (this.stopping) return { ok: false, error: 'the station is stopping' };
+      // The run starts (or is refused at its precheck) in its own time; a failure is printed.
+      void this.startChannel(key, c.cell_id ?? null, by).then((r) => {
+        if (!r.ok) this.o.print(`${key}: not started: ${r.error}`);
+      });
       return { ok: true };
     }
     const run = slot.run;
