@@ -239,30 +239,37 @@ export class Station {
 
   private linkFor(plan: RigPlan): SharedRigLink {
     let rig: Rig | undefined;
-    const link = new SharedRigLink(this.o.makeSource(plan), {
-      line: (text) => {
-        rig ??= this.rigs.find((r) => r.plan === plan);
-        if (!text.startsWith('H,') || !rig || rig.helloSeen) return;
-        const d = decodeRigLine(text);
-        if (!d.ok || d.message.kind !== 'hello') return;
-        rig.helloSeen = true;
-        const m = d.message;
-        this.o.print(
-          `rig ${plan.name}: ${m.rigId}, firmware ${m.firmware}, ${m.adcBits}-bit ADC, ${m.channels} channel(s)`,
-        );
-        const beyond = plan.channels.filter((c) => c.channel >= m.channels).map((c) => c.channel);
-        if (beyond.length > 0)
+    const link = new SharedRigLink(
+      this.o.makeSource(plan),
+      {
+        line: (text) => {
+          rig ??= this.rigs.find((r) => r.plan === plan);
+          if (!text.startsWith('H,') || !rig || rig.helloSeen) return;
+          const d = decodeRigLine(text);
+          if (!d.ok || d.message.kind !== 'hello') return;
+          rig.helloSeen = true;
+          const m = d.message;
           this.o.print(
-            `rig ${plan.name}: warning: the rig reports ${m.channels} channel(s), the station file uses ${beyond.join(', ')}`,
+            `rig ${plan.name}: ${m.rigId}, firmware ${m.firmware}, ${m.adcBits}-bit ADC, ${m.channels} channel(s)`,
           );
+          const beyond = plan.channels.filter((c) => c.channel >= m.channels).map((c) => c.channel);
+          if (beyond.length > 0)
+            this.o.print(
+              `rig ${plan.name}: warning: the rig reports ${m.channels} channel(s), the station file uses ${beyond.join(', ')}`,
+            );
+        },
+        overlong: () => undefined,
+        closed: (reason) =>
+          this.o.print(
+            `rig ${plan.name}: the port went away (${reason}); its channels switch their loads off and wait for it`,
+          ),
+        reopened: () => this.o.print(`rig ${plan.name}: back`),
       },
-      overlong: () => undefined,
-      closed: (reason) =>
-        this.o.print(
-          `rig ${plan.name}: the port went away (${reason}); its channels switch their loads off and wait for it`,
-        ),
-      reopened: () => this.o.print(`rig ${plan.name}: back`),
-    });
+      {
+        // Heartbeats are timed on the clock the rig runs on (a simulated station's virtual one).
+        ...(this.o.clock ? { now: () => this.o.clock!.now() } : {}),
+      },
+    );
     return link;
   }
 }
