@@ -90,6 +90,10 @@ describe('end to end over pseudo-terminals: a station of two rigs of four channe
     exitCode = await d.exit;
     output = d.stdout() + d.stderr();
     byCell = runsByCell(runs);
+    // Let the rigs record their last load switches, then power them down while the host end is
+    // still read (a rig writing into an unread pseudo-terminal cannot drain it to close).
+    await new Promise((r) => setTimeout(r, 500));
+    await Promise.all([a.stop(), b.stop()]);
 
     // The same tiny cell alone on a one-channel rig, with today's `run`.
     const alone = await startPtyRig('quick');
