@@ -10,8 +10,9 @@ import { fileURLToPath, pathToFileURL } from 'node:url';
 import { Writable } from 'node:stream';
 
 export type AnalogChainModule = typeof import('../src/chain/analog-chain.js');
-export type RigProfileModule = typeof import('../src/chain/rig-profile.js');
+export type RigProfileModule = typeof import('../src/chain/rig-profile-file.js');
 export type CalibrationModule = typeof import('../src/calibration/calibration.js');
+export type CalibrationFileModule = typeof import('../src/calibration/calibration-file.js');
 export type QuantityFitModule = typeof import('../src/calibration/quantity-fit.js');
 export type CodecModule = typeof import('../src/protocol/codec.js');
 export type DaemonModule = typeof import('../src/run/daemon.js');
@@ -27,6 +28,7 @@ export type LiveLinkModule = typeof import('../src/run/live-link.js');
 export type RunFolderModule = typeof import('../src/replay/run-folder.js');
 export type RecomputeModule = typeof import('../src/report/recompute.js');
 export type ChemistriesModule = typeof import('../src/chemistry/chemistries.js');
+export type ChemistryFileModule = typeof import('../src/chemistry/chemistry-file.js');
 export type ChemistryLimitsModule = typeof import('../src/chemistry/limits.js');
 
 /** The package root: the compiled scripts sit in .bench/scripts/, the sources in scripts/. */
@@ -224,7 +226,7 @@ export class FrameMaker {
 }
 
 export async function benchChain(): Promise<AnalogChain> {
-  const { loadRigProfile } = await product<RigProfileModule>('chain/rig-profile.js');
+  const { loadRigProfile } = await product<RigProfileModule>('chain/rig-profile-file.js');
   const { AnalogChain } = await product<AnalogChainModule>('chain/analog-chain.js');
   return new AnalogChain(await loadRigProfile(RIG_PROFILE));
 }
@@ -236,9 +238,11 @@ export async function benchChain(): Promise<AnalogChain> {
  */
 export async function benchCalibration(
   path: string,
-): Promise<Awaited<ReturnType<CalibrationModule['writeCalibration']>>> {
+): Promise<Awaited<ReturnType<CalibrationFileModule['writeCalibration']>>> {
   const { buildCalibration } = await product<QuantityFitModule>('calibration/quantity-fit.js');
-  const { writeCalibration } = await product<CalibrationModule>('calibration/calibration.js');
+  const { writeCalibration } = await product<CalibrationFileModule>(
+    'calibration/calibration-file.js',
+  );
   const chain = await benchChain();
   const v = (raw: number, ref: number) => ({
     raw_mean: raw,
@@ -323,12 +327,11 @@ export class CoreRun {
     const { SAMPLE_HEADER } = rowWriter;
     const { applyCalibration } = await product<CalibrationModule>('calibration/calibration.js');
     const { writeJsonAtomic } = await product<AtomicJsonModule>('sinks/atomic-json.js');
-    const { loadChemistries, findChemistry } = await product<ChemistriesModule>(
-      'chemistry/chemistries.js',
-    );
+    const { findChemistry } = await product<ChemistriesModule>('chemistry/chemistries.js');
+    const { loadChemistries } = await product<ChemistryFileModule>('chemistry/chemistry-file.js');
     const { checkRestingVoltage, resolveCutoff } =
       await product<ChemistryLimitsModule>('chemistry/limits.js');
-    const { loadRigProfile } = await product<RigProfileModule>('chain/rig-profile.js');
+    const { loadRigProfile } = await product<RigProfileModule>('chain/rig-profile-file.js');
     const { AnalogChain } = await product<AnalogChainModule>('chain/analog-chain.js');
     const profile = await loadRigProfile(RIG_PROFILE);
     const chain = new AnalogChain(profile);

@@ -1,7 +1,7 @@
 /** `cellvigil assess` as a function: check the options, read the files, build the report. */
 import { resolve } from 'node:path';
-import { loadCalibration } from '../calibration/calibration.js';
-import { loadRigProfile } from '../chain/rig-profile.js';
+import { loadCalibration } from '../calibration/calibration-file.js';
+import { loadRigProfile } from '../chain/rig-profile-file.js';
 import { ErrorCodes, makeError } from '../core/errors.js';
 import { assess, type AssessReport } from './assess.js';
 import { formatAssess } from './format.js';

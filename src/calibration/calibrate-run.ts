@@ -6,21 +6,20 @@
 import { basename, resolve } from 'node:path';
 import { AnalogChain } from '../chain/analog-chain.js';
 import type { RigProfile } from '../chain/rig-profile-types.js';
-import { loadRigProfile } from '../chain/rig-profile.js';
-import {
-  DEFAULT_CHEMISTRIES_PATH,
-  findChemistry,
-  loadChemistries,
-} from '../chemistry/chemistries.js';
+import { loadRigProfile } from '../chain/rig-profile-file.js';
+import { findChemistry } from '../chemistry/chemistries.js';
+import { DEFAULT_CHEMISTRIES_PATH, loadChemistries } from '../chemistry/chemistry-file.js';
 import { validateCells } from '../chemistry/limits.js';
-import { HostClock, PacedClock, type Clock } from '../core/clock.js';
+import type { Clock } from '../core/clock.js';
+import { HostClock, PacedClock } from '../core/host-clock.js';
 import { ErrorCodes, makeError } from '../core/errors.js';
 import { DEFAULT_RIG_PATH, DEFAULT_SCENARIOS_PATH } from '../run/run-config.js';
 import { loadScenarios, pickScenario, type SimScenario } from '../sim/scenarios.js';
 import { SerialSource } from '../sources/serial-source.js';
 import { SimSource } from '../sources/sim-source.js';
 import type { Source } from '../sources/source.js';
-import { writeCalibration, type Calibration } from './calibration.js';
+import type { Calibration } from './calibration.js';
+import { writeCalibration } from './calibration-file.js';
 import type { TruthSample } from './capture.js';
 import {
   captureFilePoints,

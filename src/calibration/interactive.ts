@@ -5,11 +5,10 @@
  */
 import type { AnalogChain } from '../chain/analog-chain.js';
 import type { CellvigilError } from '../core/errors.js';
-import type { Quantity } from './calibration.js';
+import { UNITS, type Quantity } from './calibration.js';
 import type { CapturePoint, PointsByQuantity } from './file-points.js';
 import { formatPoint, sig } from './fit-report.js';
 import { toCalibrationPoint } from './nominal-point.js';
-import { UNITS } from './points-file.js';
 import { minPoints, QUANTITIES } from './quantity-fit.js';
 import { parseAccuracy } from './reference-accuracy.js';
 

@@ -6,10 +6,8 @@
 import { Ajv, type ErrorObject, type SchemaObject } from 'ajv';
 import { parseConfigYaml, readConfigText } from '../core/config-file.js';
 import { ErrorCodes, makeError } from '../core/errors.js';
-import type { Quantity } from './calibration.js';
+import { UNITS, type Quantity } from './calibration.js';
 import { parseAccuracy } from './reference-accuracy.js';
-
-export const UNITS: Record<Quantity, string> = { voltage: 'V', current: 'A', temperature: '°C' };
 
 export interface PointSpec {
   /** 1-based position in the file, for messages. */

@@ -5,6 +5,7 @@
  */
 import { ErrorCodes, makeError } from '../core/errors.js';
 import {
+  UNITS,
   CALIBRATION_FORMAT,
   fitQuantity,
   type CalibrationContent,
@@ -13,7 +14,6 @@ import {
   type QuantityCalibration,
   type QuantityFit,
 } from './calibration.js';
-import { UNITS } from './points-file.js';
 
 export const QUANTITIES: readonly Quantity[] = ['voltage', 'current', 'temperature'];
 

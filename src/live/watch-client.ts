@@ -1,5 +1,6 @@
 import { WebSocket } from 'ws';
-import { HostClock, type Clock, type TimerHandle } from '../core/clock.js';
+import type { Clock, TimerHandle } from '../core/clock.js';
+import { HostClock } from '../core/host-clock.js';
 import { ErrorCodes, makeError, type CellvigilError } from '../core/errors.js';
 import type { ServerMessage } from './live-types.js';
 import { checkServerMessage } from './message-schemas.js';

@@ -1,5 +1,5 @@
 /** The page around a report: one self-contained HTML file with its style inline. */
-import { PACKAGE_VERSION } from '../core/paths.js';
+import { packageVersion } from '../core/paths.js';
 import { esc } from './html-text.js';
 
 const STYLE = `
@@ -38,14 +38,14 @@ export function page(title: string, body: string, generatedAt: string): string {
 <head>
 <meta charset="utf-8">
 <meta name="viewport" content="width=device-width, initial-scale=1">
-<meta name="generator" content="cellvigil ${esc(PACKAGE_VERSION)}">
+<meta name="generator" content="cellvigil ${esc(packageVersion())}">
 <title>${esc(title)}</title>
 <style>${STYLE}</style>
 </head>
 <body>
 <main>
 ${body}
-<footer><p>Written by cellvigil ${esc(PACKAGE_VERSION)} on ${esc(generatedAt)} from the raw ADC counts in the run folder. Nothing in this page is fetched from the network.</p></footer>
+<footer><p>Written by cellvigil ${esc(packageVersion())} on ${esc(generatedAt)} from the raw ADC counts in the run folder. Nothing in this page is fetched from the network.</p></footer>
 </main>
 </body>
 </html>

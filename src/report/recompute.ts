@@ -6,7 +6,7 @@
  */
 import { applyCalibration, type Calibration, type Corrector } from '../calibration/calibration.js';
 import { AnalogChain } from '../chain/analog-chain.js';
-import { PACKAGE_VERSION } from '../core/paths.js';
+import { packageVersion } from '../core/paths.js';
 import { FLAG_LOAD_ON } from '../protocol/messages.js';
 import { forEachRunSample, readRunEvents, type RunFolder } from '../replay/run-folder.js';
 import type { Checkpoint } from '../replay/run-json.js';
@@ -576,7 +576,7 @@ export class RunRecompute {
           }
         : null,
       recomputed: {
-        cellvigil_version: PACKAGE_VERSION,
+        cellvigil_version: packageVersion(),
         calibration_file: ctx.calibrationFile,
         from_rows: this.rows,
         cut_lines: ctx.cutLines,

@@ -4,16 +4,15 @@
  */
 import { rm } from 'node:fs/promises';
 import { join } from 'node:path';
-import { applyCalibration, loadCalibration, type Calibration } from '../calibration/calibration.js';
-import {
-  DEFAULT_CHEMISTRIES_PATH,
-  findChemistry,
-  loadChemistries,
-} from '../chemistry/chemistries.js';
+import { applyCalibration, type Calibration } from '../calibration/calibration.js';
+import { loadCalibration } from '../calibration/calibration-file.js';
+import { findChemistry } from '../chemistry/chemistries.js';
+import { DEFAULT_CHEMISTRIES_PATH, loadChemistries } from '../chemistry/chemistry-file.js';
 import { checkRestingVoltage } from '../chemistry/limits.js';
-import { HostClock, PacedClock, type Clock, type TimerHandle } from '../core/clock.js';
+import type { Clock, TimerHandle } from '../core/clock.js';
+import { HostClock, PacedClock } from '../core/host-clock.js';
 import { CellvigilError, ErrorCodes, makeError } from '../core/errors.js';
-import { PACKAGE_VERSION } from '../core/paths.js';
+import { packageVersion } from '../core/paths.js';
 import { encodeCommand } from '../protocol/codec.js';
 import { FLAG_LOAD_ON } from '../protocol/messages.js';
 import { describeSchedule } from '../schedule/schedule.js';
@@ -183,7 +182,7 @@ export async function startRun(req: RunRequest, io: RunIo): Promise<RunHandle> {
   const manifest = {
     format: 'cellvigil-run',
     format_version: 1,
-    cellvigil_version: PACKAGE_VERSION,
+    cellvigil_version: packageVersion(),
     node_version: process.version,
     label,
     started_wall: new Date(startedWall).toISOString(),
@@ -546,7 +545,7 @@ export async function startRun(req: RunRequest, io: RunIo): Promise<RunHandle> {
 
   // Start: cautions first, then the rig.
   status.line(
-    `cellvigil ${PACKAGE_VERSION}: ${cells} × ${chemistry.id} on ${source.description}; cutoff ${cutoff.total.toFixed(3)} V (${cutoff.perCell} V per cell, ${cutoff.source}), limit ${cfg.maxTemperatureC} °C.`,
+    `cellvigil ${packageVersion()}: ${cells} × ${chemistry.id} on ${source.description}; cutoff ${cutoff.total.toFixed(3)} V (${cutoff.perCell} V per cell, ${cutoff.source}), limit ${cfg.maxTemperatureC} °C.`,
   );
   if (cfg.schedule) status.line(`Schedule: ${describeSchedule(cfg.schedule)}.`);
   status.line('Cautions:');
@@ -571,7 +570,7 @@ export async function startRun(req: RunRequest, io: RunIo): Promise<RunHandle> {
       chemistry: chemistry.id,
       cells,
       cutoff_V: cutoff.total,
-      version: PACKAGE_VERSION,
+      version: packageVersion(),
     });
   }
   logEvent('cautions', { lines: cautionLines(chemistry) });

@@ -4,7 +4,7 @@ import { fileURLToPath } from 'node:url';
 import { gunzipSync } from 'node:zlib';
 import { applyCalibration } from '../../src/calibration/calibration.js';
 import { AnalogChain } from '../../src/chain/analog-chain.js';
-import { parseRigProfile } from '../../src/chain/rig-profile.js';
+import { parseRigProfile } from '../../src/chain/rig-profile-file.js';
 import { encodeDataFrame } from '../../src/protocol/codec.js';
 import { Pipeline } from '../../src/run/pipeline.js';
 import { Session } from '../../src/session/session.js';

@@ -14,7 +14,8 @@ import {
 } from '../../src/calibration/calibration.js';
 import { AnalogChain } from '../../src/chain/analog-chain.js';
 import type { RigProfile } from '../../src/chain/rig-profile-types.js';
-import { findChemistry, loadChemistries } from '../../src/chemistry/chemistries.js';
+import { findChemistry } from '../../src/chemistry/chemistries.js';
+import { loadChemistries } from '../../src/chemistry/chemistry-file.js';
 import { checkRestingVoltage, resolveCutoff } from '../../src/chemistry/limits.js';
 import { VirtualClock } from '../../src/core/clock.js';
 import { encodeCommand } from '../../src/protocol/codec.js';

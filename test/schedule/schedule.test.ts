@@ -8,10 +8,10 @@ import {
   loadOnMsUntil,
   loadPlanAt,
   parseScheduleOption,
-  parseScheduleYaml,
   serviceOutput,
   type Schedule,
 } from '../../src/schedule/schedule.js';
+import { parseScheduleYaml } from '../../src/schedule/schedule-file.js';
 
 const S = 1000;
 const MIN = 60_000;

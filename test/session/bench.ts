@@ -1,4 +1,5 @@
-import { loadChemistries, findChemistry } from '../../src/chemistry/chemistries.js';
+import { findChemistry } from '../../src/chemistry/chemistries.js';
+import { loadChemistries } from '../../src/chemistry/chemistry-file.js';
 import { checkRestingVoltage } from '../../src/chemistry/limits.js';
 import type { HostCommand } from '../../src/protocol/messages.js';
 import { FLAG_LOAD_ON } from '../../src/protocol/messages.js';
