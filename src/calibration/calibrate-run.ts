@@ -6,15 +6,19 @@
 import { basename, resolve } from 'node:path';
 import { AnalogChain } from '../chain/analog-chain.js';
 import type { RigProfile } from '../chain/rig-profile-types.js';
-import { loadRigProfile } from '../chain/rig-profile-file.js';
+import { DEFAULT_RIG_PATH, loadRigProfile } from '../chain/rig-profile-file.js';
 import { findChemistry } from '../chemistry/chemistries.js';
 import { DEFAULT_CHEMISTRIES_PATH, loadChemistries } from '../chemistry/chemistry-file.js';
 import { validateCells } from '../chemistry/limits.js';
 import type { Clock } from '../core/clock.js';
 import { HostClock, PacedClock } from '../core/host-clock.js';
 import { ErrorCodes, makeError } from '../core/errors.js';
-import { DEFAULT_RIG_PATH, DEFAULT_SCENARIOS_PATH } from '../run/run-config.js';
-import { loadScenarios, pickScenario, type SimScenario } from '../sim/scenarios.js';
+import {
+  DEFAULT_SCENARIOS_PATH,
+  loadScenarios,
+  pickScenario,
+  type SimScenario,
+} from '../sim/scenarios.js';
 import { SerialSource } from '../sources/serial-source.js';
 import { SimSource } from '../sources/sim-source.js';
 import type { Source } from '../sources/source.js';

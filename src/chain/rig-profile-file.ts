@@ -5,7 +5,11 @@
 import { Ajv, type ErrorObject, type SchemaObject } from 'ajv';
 import { parseConfigYaml, readConfigText } from '../core/config-file.js';
 import { ErrorCodes, makeError } from '../core/errors.js';
+import { packagePath } from '../core/paths.js';
 import type { RigProfile } from './rig-profile-types.js';
+
+/** The rig profile shipped with the package, used when no --rig is given. */
+export const DEFAULT_RIG_PATH = packagePath('config/rigs/bench-20mohm.yaml');
 
 const positive = { type: 'number', exclusiveMinimum: 0 };
 

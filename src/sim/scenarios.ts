@@ -4,9 +4,13 @@ import type { RigProfile } from '../chain/rig-profile-types.js';
 import type { Clock } from '../core/clock.js';
 import { parseConfigYaml } from '../core/config-file.js';
 import { ErrorCodes, makeError } from '../core/errors.js';
+import { packagePath } from '../core/paths.js';
 import { ChemistryCell, type ChemistryId } from './cell-model.js';
 import { SCENARIO_FILE_SCHEMA } from './scenario-schema.js';
 import { SimRig } from './sim-rig.js';
+
+/** The simulator scenarios shipped with the package. */
+export const DEFAULT_SCENARIOS_PATH = packagePath('config/sim-scenarios.yaml');
 
 /** One named scenario of config/sim-scenarios.yaml, after validation (defaults filled in). */
 export interface SimScenario {
