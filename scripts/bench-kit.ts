@@ -289,7 +289,7 @@ type Pipeline = InstanceType<PipelineModule['Pipeline']>;
 type LogFile = InstanceType<LogFileModule['LogFile']>;
 type EventLog = InstanceType<EventLogModule['EventLog']>;
 type Calibration = NonNullable<Parameters<CalibrationModule['applyCalibration']>[0]>;
-type SampleRow = Parameters<SampleRowModule['writeSampleRow']>[0];
+type SampleRow = Parameters<SampleRowModule['formatSampleRow']>[0];
 
 export const ROTATE_BYTES = 16 * 1024 * 1024;
 
@@ -310,7 +310,10 @@ export class CoreRun {
     readonly pipeline: Pipeline,
     readonly samples: LogFile,
     readonly events: EventLog,
-    private readonly rowWriter: Pick<SampleRowModule, 'writeSampleRow' | 'sampleRowMaxBytes'>,
+    private readonly rowWriter: {
+      write: (r: SampleRow, buf: Buffer, at: number) => number;
+      maxBytes: (r: SampleRow) => number;
+    },
     private readonly startWallMs: number,
   ) {}
 
@@ -323,8 +326,9 @@ export class CoreRun {
     const { Pipeline } = await product<PipelineModule>('run/pipeline.js');
     const { LogFile } = await product<LogFileModule>('sinks/log-file.js');
     const { EventLog } = await product<EventLogModule>('run/event-log.js');
-    const rowWriter = await product<SampleRowModule>('sinks/sample-row.js');
-    const { SAMPLE_HEADER } = rowWriter;
+    const { SAMPLE_HEADER, SampleRowWriter, sampleRowMaxBytes } =
+      await product<SampleRowModule>('sinks/sample-row.js');
+    const rowWriter = { write: new SampleRowWriter().write, maxBytes: sampleRowMaxBytes };
     const { applyCalibration } = await product<CalibrationModule>('calibration/calibration.js');
     const { writeJsonAtomic } = await product<AtomicJsonModule>('sinks/atomic-json.js');
     const { findChemistry } = await product<ChemistriesModule>('chemistry/chemistries.js');
@@ -417,11 +421,7 @@ export class CoreRun {
   line(text: string, atMs: number): SampleRow | null {
     const out = this.pipeline.line(text, atMs, this.startWallMs + atMs);
     if (out.kind === 'sample') {
-      this.samples.appendWith(
-        out.row,
-        this.rowWriter.sampleRowMaxBytes(out.row),
-        this.rowWriter.writeSampleRow,
-      );
+      this.samples.appendWith(out.row, this.rowWriter.maxBytes(out.row), this.rowWriter.write);
       this.rows++;
       this.act(out.actions, atMs);
       return out.row;

@@ -23,7 +23,7 @@ import { LogFile } from '../sinks/log-file.js';
 import {
   SAMPLE_HEADER,
   sampleRowMaxBytes,
-  writeSampleRow,
+  SampleRowWriter,
   type SampleRow,
 } from '../sinks/sample-row.js';
 import { SerialSource } from '../sources/serial-source.js';
@@ -151,6 +151,7 @@ export async function startRun(req: RunRequest, io: RunIo): Promise<RunHandle> {
     pipeline.counters.rejected = resume.counters.rejected;
     pipeline.counters.lost = resume.counters.lost;
   }
+  const rowWriter = new SampleRowWriter();
   const samples = new LogFile({
     dir: folder,
     name: 'samples-',
@@ -276,7 +277,7 @@ export async function startRun(req: RunRequest, io: RunIo): Promise<RunHandle> {
           bridgeUnlogged(out.row);
         }
         try {
-          samples.appendWith(out.row, sampleRowMaxBytes(out.row), writeSampleRow);
+          samples.appendWith(out.row, sampleRowMaxBytes(out.row), rowWriter.write);
         } catch (e) {
           onDiskError(e as Error);
         }
