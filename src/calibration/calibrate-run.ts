@@ -187,36 +187,16 @@ export async function runCalibrate(
     );
   }
 
-  let points: PointsByQuantity;
-  let rigName = profile.name ?? basename(rigPath);
-  let date: string;
-  let offConfirmed: boolean | null = null;
-  if (file && req.fromPoints !== undefined) {
-    points = givenFilePoints(file.points, chain);
-    date = new Date().toISOString();
-  } else {
-    const guard = resolveGuard(req, scenario, profile, chain);
-    if (!guard && file?.points.some((p) => p.load === true)) {
-      throw usage(
-        'loaded points need the chemistry and cell count, so that the safety limits apply while the load is on',
-        '--chemistry / --cells',
-        'Name the cell on the rig, e.g. --chemistry li-ion --cells 1.',
-      );
-    }
-    const taken = await captureOnRig(req, io, {
-      profile,
-      chain,
-      guard,
-      scenario,
-      file,
-      askInstrument: instrument === null,
-    });
-    points = taken.points;
-    offConfirmed = taken.offConfirmed;
-    date = taken.date;
-    if (taken.rigId) rigName = taken.rigId;
-    instrument ??= taken.referenceInstrument;
-  }
+  const got = await gatherPoints(req, io, {
+    profile,
+    chain,
+    scenario,
+    file,
+    askInstrument: instrument === null,
+  });
+  const { points, date, offConfirmed } = got;
+  const rigName = got.rigId || (profile.name ?? basename(rigPath));
+  instrument ??= got.referenceInstrument;
   if (instrument === null) {
     throw usage(
       'the reference instrument is not named',
@@ -244,6 +224,39 @@ export async function runCalibrate(
     );
   }
   return { calibration, outcomes, offConfirmed };
+}
+
+/** The points: from the file as given, or captured on the rig (the load guarded by the cell's limits). */
+async function gatherPoints(
+  req: CalibrateRequest,
+  io: CalibrateIo,
+  setup: {
+    profile: RigProfile;
+    chain: AnalogChain;
+    scenario: SimScenario | null;
+    file: PointsFile | null;
+    askInstrument: boolean;
+  },
+): Promise<RigPoints> {
+  const { profile, chain, scenario, file } = setup;
+  if (file && req.fromPoints !== undefined) {
+    return {
+      points: givenFilePoints(file.points, chain),
+      offConfirmed: null,
+      date: new Date().toISOString(),
+      rigId: null,
+      referenceInstrument: null,
+    };
+  }
+  const guard = resolveGuard(req, scenario, profile, chain);
+  if (!guard && file?.points.some((p) => p.load === true)) {
+    throw usage(
+      'loaded points need the chemistry and cell count, so that the safety limits apply while the load is on',
+      '--chemistry / --cells',
+      'Name the cell on the rig, e.g. --chemistry li-ion --cells 1.',
+    );
+  }
+  return captureOnRig(req, io, { ...setup, guard });
 }
 
 function resolveGuard(

@@ -57,6 +57,33 @@ function fmt(x: number): string {
   return Number(x.toPrecision(4)).toString();
 }
 
+/** Refuses points whose reference readings, or the rig's readings, do not spread enough to give a gain. */
+function checkSpread(quantity: Quantity, points: readonly CalibrationPoint[], where: string): void {
+  const unit = UNITS[quantity];
+  const n = points.length;
+  const uMax = Math.max(...points.map(combinedU));
+  const refSpan = span(points.map((p) => p.reference));
+  if (!(refSpan > SEPARATION * uMax) || refSpan === 0) {
+    throw makeError(
+      ErrorCodes.CALIBRATION_FIT,
+      `the ${n} ${quantity} points have ${refSpan === 0 ? 'the same' : 'nearly the same'} reference reading ` +
+        `(spread ${fmt(refSpan)} ${unit} against an uncertainty of ${fmt(uMax)} ${unit}), so no gain can be found`,
+      where,
+      `Take points at clearly different ${quantity}s: ${quantity === 'current' ? 'the load off (0 A) and the load on' : 'e.g. a cell near empty and near full, or a bench supply at two settings'}; check that each reading was typed for its own point.`,
+    );
+  }
+  const nomSpan = span(points.map((p) => p.nominal));
+  const uNomMax = Math.max(...points.map((p) => p.nominal_u ?? 0));
+  if (!(nomSpan > SEPARATION * uNomMax) || nomSpan === 0) {
+    throw makeError(
+      ErrorCodes.CALIBRATION_FIT,
+      `the rig read the same ${quantity} at all ${n} points (spread ${fmt(nomSpan)} ${unit}), so no gain can be found`,
+      where,
+      `Check that the condition really changed between points (the load switched, the supply set) and that the ${quantity} channel is wired.`,
+    );
+  }
+}
+
 /** Fits one quantity, refusing degenerate points with a message that says what to take instead. */
 export function fitCheckedQuantity(
   quantity: Quantity,
@@ -77,29 +104,7 @@ export function fitCheckedQuantity(
     );
   }
   const warnings: string[] = [];
-  if (model === 'gain_offset') {
-    const uMax = Math.max(...points.map(combinedU));
-    const refSpan = span(points.map((p) => p.reference));
-    if (!(refSpan > SEPARATION * uMax) || refSpan === 0) {
-      throw makeError(
-        ErrorCodes.CALIBRATION_FIT,
-        `the ${n} ${quantity} points have ${refSpan === 0 ? 'the same' : 'nearly the same'} reference reading ` +
-          `(spread ${fmt(refSpan)} ${unit} against an uncertainty of ${fmt(uMax)} ${unit}), so no gain can be found`,
-        where,
-        `Take points at clearly different ${quantity}s: ${quantity === 'current' ? 'the load off (0 A) and the load on' : 'e.g. a cell near empty and near full, or a bench supply at two settings'}; check that each reading was typed for its own point.`,
-      );
-    }
-    const nomSpan = span(points.map((p) => p.nominal));
-    const uNomMax = Math.max(...points.map((p) => p.nominal_u ?? 0));
-    if (!(nomSpan > SEPARATION * uNomMax) || nomSpan === 0) {
-      throw makeError(
-        ErrorCodes.CALIBRATION_FIT,
-        `the rig read the same ${quantity} at all ${n} points (spread ${fmt(nomSpan)} ${unit}), so no gain can be found`,
-        where,
-        `Check that the condition really changed between points (the load switched, the supply set) and that the ${quantity} channel is wired.`,
-      );
-    }
-  }
+  if (model === 'gain_offset') checkSpread(quantity, points, where);
   const r = fitQuantity(quantity, points, model, where);
   const fit = r.calibration.fit;
   if (model === 'gain_offset') {
