@@ -211,3 +211,44 @@ export function cycles(graph: ReadonlyMap<string, ReadonlySet<string>>): string[
 export function shortName(root: string, path: string): string {
   return relative(root, path).split('\\').join('/');
 }
+
+export interface FunctionSpan {
+  name: string;
+  line: number;
+  lines: number;
+}
+
+/** Every function, method, arrow function and constructor of a file, with its length in lines. */
+export function functionSpans(file: string, text = readFileSync(file, 'utf8')): FunctionSpan[] {
+  const source = ts.createSourceFile(file, text, ts.ScriptTarget.ES2022, true);
+  const lineOf = (pos: number): number => source.getLineAndCharacterOfPosition(pos).line + 1;
+  const out: FunctionSpan[] = [];
+  const nameOf = (n: ts.FunctionLikeDeclaration, outer: string): string => {
+    if (ts.isConstructorDeclaration(n)) return `${outer}.constructor`;
+    if (n.name) return n.name.getText(source);
+    const p = n.parent;
+    if ((ts.isVariableDeclaration(p) || ts.isPropertyAssignment(p)) && p.name)
+      return p.name.getText(source);
+    if (ts.isPropertyDeclaration(p)) return p.name.getText(source);
+    return `${outer} (inner function)`;
+  };
+  const visit = (node: ts.Node, outer: string): void => {
+    let name = outer;
+    if (
+      ts.isFunctionDeclaration(node) ||
+      ts.isMethodDeclaration(node) ||
+      ts.isArrowFunction(node) ||
+      ts.isFunctionExpression(node) ||
+      ts.isConstructorDeclaration(node) ||
+      ts.isGetAccessorDeclaration(node) ||
+      ts.isSetAccessorDeclaration(node)
+    ) {
+      name = nameOf(node, outer);
+      const line = lineOf(node.getStart(source));
+      out.push({ name, line, lines: lineOf(node.getEnd()) - line + 1 });
+    } else if (ts.isClassDeclaration(node) && node.name) name = node.name.text;
+    ts.forEachChild(node, (child) => visit(child, name));
+  };
+  visit(source, '');
+  return out;
+}
