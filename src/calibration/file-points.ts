@@ -9,7 +9,7 @@ import type { WindowResult } from './capture.js';
 import { formatPoint } from './fit-report.js';
 import { givenStats, toCalibrationPoint } from './nominal-point.js';
 import type { PointRequest } from './point-capture.js';
-import { type PointSpec, type PointsFile } from './points-file.js';
+import type { PointSpec, PointsFile } from './points-file.js';
 import { minPoints, QUANTITIES } from './quantity-fit.js';
 
 export type PointsByQuantity = Partial<Record<Quantity, CalibrationPoint[]>>;

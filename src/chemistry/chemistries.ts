@@ -1,3 +1,4 @@
+/* Chemistry profiles as values; reading and checking the file is in chemistry-file.ts. */
 import { ErrorCodes, makeError } from '../core/errors.js';
 import type { ChemistryProfile } from './chemistry-types.js';
 

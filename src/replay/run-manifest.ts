@@ -4,7 +4,7 @@
  * recompute never runs on a profile the daemon itself would have refused.
  */
 import { Ajv, type SchemaObject } from 'ajv';
-import { type Calibration } from '../calibration/calibration.js';
+import type { Calibration } from '../calibration/calibration.js';
 import { parseCalibration } from '../calibration/calibration-file.js';
 import { parseRigProfile } from '../chain/rig-profile-file.js';
 import type { RigProfile } from '../chain/rig-profile-types.js';

@@ -8,7 +8,7 @@
  */
 import { writeFile } from 'node:fs/promises';
 import { basename, join } from 'node:path';
-import { type Calibration } from '../calibration/calibration.js';
+import type { Calibration } from '../calibration/calibration.js';
 import { loadCalibration } from '../calibration/calibration-file.js';
 import { ErrorCodes, makeError } from '../core/errors.js';
 import { openRunFolder, type RunFolder } from '../replay/run-folder.js';

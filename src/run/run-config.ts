@@ -1,5 +1,5 @@
 import { resolve } from 'node:path';
-import { type Calibration } from '../calibration/calibration.js';
+import type { Calibration } from '../calibration/calibration.js';
 import { loadCalibration } from '../calibration/calibration-file.js';
 import { AnalogChain } from '../chain/analog-chain.js';
 import type { RigProfile } from '../chain/rig-profile-types.js';
