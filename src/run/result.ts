@@ -126,6 +126,8 @@ export function exitCodeFor(end: SessionEnd, detail: string): number {
     case 'over_temperature':
     case 'link_lost':
     case 'fault':
+    case 'implausible_reading':
+    case 'open_load':
       return 3;
     case 'refused':
       // A rig that never spoke is a failure of the set-up, not of the configuration.

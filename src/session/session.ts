@@ -3,6 +3,7 @@ import { FLAG_LOAD_ON, FLAG_RIG_FAULT } from '../protocol/messages.js';
 import { loadPlanAt, type Schedule } from '../schedule/schedule.js';
 import { Integrator } from './integrator.js';
 import { Limits, type LimitSettings } from './limits.js';
+import { Plausibility, type PlausibilitySettings } from './plausibility.js';
 import type { Action, EndReason, Measurement, SessionEnd, SessionState } from './session-types.js';
 
 export interface SessionSettings extends LimitSettings {
@@ -27,7 +28,11 @@ export interface SessionSettings extends LimitSettings {
   confirmMs?: number;
   /** When the load is on, as a function of time since the discharge started; continuous when absent. */
   schedule?: Schedule | null;
+  /** What the chemistry × cells and the rig allow a reading to be (`plausibilityFor`). */
+  plausibility: PlausibilitySettings;
 }
+
+type PlausibleEnd = { reason: 'implausible_reading' | 'open_load'; detail: string };
 
 /** Volts compared with a floor get this slack, so that 3 × 0.9 V is not refused as below 2.7000000000000002. */
 const FLOOR_SLACK_V = 1e-9;
@@ -39,6 +44,7 @@ const FLOOR_SLACK_V = 1e-9;
  */
 export class Session {
   readonly integrator = new Integrator();
+  readonly plausibility: Plausibility;
   private readonly limits: Limits;
   private readonly s: Required<Omit<SessionSettings, keyof LimitSettings>> & SessionSettings;
   private stateValue: SessionState = 'waiting';
@@ -91,6 +97,7 @@ export class Session {
         'Choose a cutoff at or above the floor; the floor cannot be lowered.',
       );
     this.limits = new Limits(settings);
+    this.plausibility = new Plausibility(settings.plausibility);
   }
 
   get state(): SessionState {
@@ -114,8 +121,7 @@ export class Session {
     this.loadOn = (m.flags & FLAG_LOAD_ON) !== 0;
     // After a long gap (a stalled link, a suspended host) the load flag is read afresh too.
     if (this.reread || m.gap) this.afterInterruption(out);
-    this.integrator.add(m.dtMs, m.volts, m.amps, this.loadOn, m.gap);
-    if (this.loadOn) this.lastLoadedV = m.volts;
+    const plausible = this.screen(m, out);
     switch (this.stateValue) {
       case 'waiting':
         this.to('precheck', 'first valid frame from the rig', out);
@@ -126,10 +132,10 @@ export class Session {
         break;
       case 'starting':
         if (this.loadOn) this.confirmOn(m, out);
-        else this.checkLimits(m, out);
+        else this.checkLimits(m, out, plausible);
         break;
       case 'discharging':
-        this.checkLimits(m, out);
+        this.checkLimits(m, out, plausible);
         break;
       case 'stopping':
         if (!this.loadOn) this.finish(true, out);
@@ -451,7 +457,38 @@ export class Session {
     });
   }
 
-  private checkLimits(m: Measurement, out: Action[]): void {
+  /**
+   * Integrates the frame unless its readings cannot be true; the time of a frame left out is
+   * bridged at the last trusted reading and counted as doubt. Returns the plausibility verdict.
+   */
+  private screen(m: Measurement, out: Action[]): { ok: boolean; end: PlausibleEnd | null } {
+    const st = this.stateValue;
+    let verdict: { ok: boolean; end: PlausibleEnd | null } = { ok: true, end: null };
+    if (!this.loadOn) this.plausibility.observeOff(m.amps);
+    if (st === 'starting' || st === 'discharging' || st === 'stopping') {
+      const p = this.plausibility.check({
+        atMs: m.hostMs,
+        volts: m.volts,
+        amps: m.amps,
+        loadOn: this.loadOn,
+      });
+      for (const e of p.events) out.push({ type: 'event', name: e.name, detail: e.detail });
+      verdict = { ok: p.plausible, end: p.end };
+    }
+    if (!verdict.ok) {
+      this.integrator.hold(m.dtMs, this.loadOn);
+      return verdict;
+    }
+    this.integrator.add(m.dtMs, m.volts, m.amps, this.loadOn, m.gap);
+    if (this.loadOn) this.lastLoadedV = m.volts;
+    return verdict;
+  }
+
+  private checkLimits(
+    m: Measurement,
+    out: Action[],
+    plausible: { ok: boolean; end: PlausibleEnd | null },
+  ): void {
     const trip = this.limits.check({
       atMs: m.hostMs,
       volts: m.volts,
@@ -460,9 +497,14 @@ export class Session {
       thermistor: m.thermistor,
       loadOn: this.loadOn,
       rigFault: this.stateValue === 'discharging' && (m.flags & FLAG_RIG_FAULT) !== 0,
+      readingsPlausible: plausible.ok,
     });
     if (trip) {
       this.beginStop(trip.reason, trip.detail, m.hostMs, out);
+      return;
+    }
+    if (plausible.end && this.stateValue === 'discharging') {
+      this.beginStop(plausible.end.reason, plausible.end.detail, m.hostMs, out);
       return;
     }
     // Off because the schedule said so, or still switching: not a fault.

@@ -5,6 +5,7 @@ import type { Clock } from '../core/clock.js';
 import { parseConfigYaml } from '../core/config-file.js';
 import { ErrorCodes, makeError } from '../core/errors.js';
 import { ChemistryCell, type ChemistryId } from './cell-model.js';
+import type { CircuitFaults } from './faults.js';
 import { SCENARIO_FILE_SCHEMA } from './scenario-schema.js';
 import { SimRig } from './sim-rig.js';
 
@@ -65,6 +66,7 @@ export interface SimOverrides {
   garbageProbability?: number;
   seed?: number;
   startTick?: number;
+  circuit?: CircuitFaults;
 }
 
 // strictRequired off: the current offset's oneOf names keys declared on the parent object.
@@ -175,6 +177,7 @@ export function buildSimRig(
       burstFrames: overrides.burstFrames ?? f.burst_frames,
     },
     seed: overrides.seed ?? f.seed,
+    ...(overrides.circuit ? { circuit: overrides.circuit } : {}),
   });
 }
 
