@@ -2,6 +2,8 @@ import { mkdtemp, readFile, rm } from 'node:fs/promises';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
+import { openRunFolder } from '../../src/replay/run-folder.js';
+import { recomputeRun } from '../../src/report/recompute.js';
 import { exitCodeFor } from '../../src/run/result.js';
 import { loadScenarios } from '../../src/sim/scenarios.js';
 import {
@@ -56,6 +58,11 @@ describe('implausible readings through the pipeline, on the simulated rig', () =
     expect(r.named('implausible_reading')[0]).toMatchObject({ count: 1, note: 'not integrated' });
     expect(rel(r.result.energy_Wh, r.truth.energyWh)).toBeLessThan(0.005);
     expect(rel(r.result.capacity_Ah, r.truth.chargeAh)).toBeLessThan(0.005);
+    // The report recomputes the same figures from the raw counts: the same frames left out.
+    const f = await recomputeRun(await openRunFolder(r.folder));
+    expect(f.result.capacity_Ah).toBeCloseTo(r.result.capacity_Ah, 5);
+    expect(f.result.energy_Wh).toBeCloseTo(r.result.energy_Wh, 5);
+    expect(f.result.bridged_Ah).toBeCloseTo(r.result.bridged_Ah, 5);
   });
 
   it('held: the run ends as implausible_reading (exit 3), the load off, the energy still true', async () => {
