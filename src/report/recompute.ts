@@ -505,6 +505,7 @@ export class RunRecompute {
       lastLoadedV: Number.isNaN(this.lastLoadedV) ? null : this.lastLoadedV,
       cutoffV,
       counters: { accepted: this.rows, rejected, lost: this.lost },
+      implausibleFrames: this.plausibility.implausibleFrames,
       rigClockErrorPpm: errorPpm,
       calibration: cal,
       calibrationId: cal?.id ?? 'none',

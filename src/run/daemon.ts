@@ -508,6 +508,7 @@ export async function startRun(req: RunRequest, io: RunIo): Promise<RunHandle> {
         lastLoadedV: session.lastLoadedV,
         cutoffV: session.cutoffV,
         counters: pipeline.counters,
+        implausibleFrames: session.plausibility.implausibleFrames,
         rigClockErrorPpm: pipeline.timeBase.rigClockErrorPpm(),
         calibration,
         calibrationId: pipeline.calibrationId,

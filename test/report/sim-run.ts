@@ -258,6 +258,7 @@ export async function simulateRun(o: SimRunOptions): Promise<SimRun> {
     lastLoadedV: session.lastLoadedV,
     cutoffV: session.cutoffV,
     counters: pipeline.counters,
+    implausibleFrames: session.plausibility.implausibleFrames,
     rigClockErrorPpm: pipeline.timeBase.rigClockErrorPpm(),
     calibration,
     calibrationId: pipeline.calibrationId,

@@ -56,6 +56,9 @@ describe('implausible readings through the pipeline, on the simulated rig', () =
     expect(r.result.end_reason).toBe('cutoff');
     expect(r.named('implausible_reading').length).toBeGreaterThanOrEqual(9);
     expect(r.named('implausible_reading')[0]).toMatchObject({ count: 1, note: 'not integrated' });
+    // 1 s at 10 frames a second, give or take the frame at each edge.
+    expect(r.result.frames_implausible).toBeGreaterThanOrEqual(9);
+    expect(r.result.frames_implausible).toBeLessThanOrEqual(11);
     expect(rel(r.result.energy_Wh, r.truth.energyWh)).toBeLessThan(0.005);
     expect(rel(r.result.capacity_Ah, r.truth.chargeAh)).toBeLessThan(0.005);
     // The report recomputes the same figures from the raw counts: the same frames left out.
@@ -63,6 +66,7 @@ describe('implausible readings through the pipeline, on the simulated rig', () =
     expect(f.result.capacity_Ah).toBeCloseTo(r.result.capacity_Ah, 5);
     expect(f.result.energy_Wh).toBeCloseTo(r.result.energy_Wh, 5);
     expect(f.result.bridged_Ah).toBeCloseTo(r.result.bridged_Ah, 5);
+    expect(f.result.frames_implausible).toBe(r.result.frames_implausible);
   });
 
   it('held: the run ends as implausible_reading (exit 3), the load off, the energy still true', async () => {
@@ -70,6 +74,7 @@ describe('implausible readings through the pipeline, on the simulated rig', () =
       overrides: { circuit: { voltageSense: { fromMs: 60_000, toMs: 75_000, counts: 4095 } } },
     });
     expect(r.result.end_reason).toBe('implausible_reading');
+    expect(r.result.frames_implausible).toBeGreaterThanOrEqual(20);
     expect(r.result.load_off_confirmed).toBe(true);
     expect(r.truth.loadOn).toBe(false);
     expect(exitCodeFor(r.result.end_reason, r.result.end_detail)).toBe(3);
