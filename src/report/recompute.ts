@@ -161,6 +161,7 @@ export class RunRecompute {
   private readonly integrator = new Integrator();
   /** The live run's check of readings that cannot be true, applied to the same rows. */
   private readonly plausibility: Plausibility;
+  private readonly plausibleIn = { atMs: 0, volts: 0, amps: 0, loadOn: false };
   private readonly digest = new EventDigest();
   private readonly curve = new CurveBuilder();
   private readonly steps: VoltageSteps;
@@ -262,7 +263,12 @@ export class RunRecompute {
   ): boolean {
     if (!loadOn) this.plausibility.observeOff(amps);
     if (!CHECKED_STATES.has(state)) return true;
-    return this.plausibility.check({ atMs, volts, amps, loadOn }).plausible;
+    const x = this.plausibleIn;
+    x.atMs = atMs;
+    x.volts = volts;
+    x.amps = amps;
+    x.loadOn = loadOn;
+    return this.plausibility.check(x).plausible;
   }
 
   /** One row, read and not kept: the caller may reuse the record. */

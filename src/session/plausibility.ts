@@ -56,6 +56,7 @@ export interface PlausibilityInput {
   loadOn: boolean;
 }
 
+/** The verdict on one frame; the same object is reused for every call, read it at once. */
 export interface PlausibilityOutcome {
   /** False: the frame is not integrated, nor used for the cutoff. */
   plausible: boolean;
@@ -79,6 +80,10 @@ export class Plausibility {
   private zeroN = 0;
   private zeroMean = 0;
   private zeroM2 = 0;
+  /** The no-current reading and the half-width of its band, kept up to date by `observeOff`. */
+  private zeroA = 0;
+  private bandA: number;
+  private readonly out: PlausibilityOutcome = { plausible: true, events: [], end: null };
   private sinceSummary = 0;
   private summaryAt = -Infinity;
 
@@ -93,6 +98,7 @@ export class Plausibility {
     this.implausible = new Debounce(this.s.implausibleEndMs, this.s.endFrames);
     this.openAlarm = new Debounce(this.s.openLoadAlarmMs, 3);
     this.openEnd = new Debounce(this.s.openLoadEndMs, this.s.endFrames);
+    this.bandA = ZERO_BAND_COUNTS * this.s.ampsPerCount;
   }
 
   /** A load-off reading: the current channel's zero (its offset) and how much it wanders. */
@@ -102,28 +108,24 @@ export class Plausibility {
     const d = amps - this.zeroMean;
     this.zeroMean += d / this.zeroN;
     this.zeroM2 += d * (amps - this.zeroMean);
+    if (this.zeroN < ZERO_MIN_FRAMES) return;
+    const sd = Math.sqrt(this.zeroM2 / (this.zeroN - 1));
+    this.zeroA = this.zeroMean;
+    this.bandA = Math.max(ZERO_BAND_COUNTS * this.s.ampsPerCount, ZERO_BAND_SD * sd);
   }
 
-  /** The current read with no current flowing, and the half-width of "no current" around it. */
-  zero(): { amps: number; band: number } {
-    const known = this.zeroN >= ZERO_MIN_FRAMES;
-    const sd = known ? Math.sqrt(this.zeroM2 / (this.zeroN - 1)) : 0;
-    return {
-      amps: known ? this.zeroMean : 0,
-      band: Math.max(ZERO_BAND_COUNTS * this.s.ampsPerCount, ZERO_BAND_SD * sd),
-    };
-  }
-
-  /** A frame with the load on, during the discharge. */
+  /** A frame during the discharge; with the load off it only clears what was building up. */
   check(x: PlausibilityInput): PlausibilityOutcome {
-    const out: PlausibilityOutcome = { plausible: true, events: [], end: null };
+    const out = this.out;
+    out.plausible = true;
+    if (out.events.length > 0) out.events = [];
+    out.end = null;
     if (!x.loadOn) {
       this.implausible.reset();
       this.resetOpen();
       return out;
     }
-    const zero = this.zero();
-    const why = this.implausibleWhy(x, zero);
+    const why = this.implausibleWhy(x);
     if (why !== null) {
       out.plausible = false;
       this.implausibleFrames++;
@@ -137,19 +139,16 @@ export class Plausibility {
       return out;
     }
     this.implausible.reset();
-    this.checkOpen(x, zero, out);
+    this.checkOpen(x, out);
     return out;
   }
 
-  private implausibleWhy(
-    x: PlausibilityInput,
-    zero: { amps: number; band: number },
-  ): string | null {
+  private implausibleWhy(x: PlausibilityInput): string | null {
     if (!Number.isFinite(x.volts) || !Number.isFinite(x.amps)) return 'a reading is not a number';
     if (x.volts > this.s.maxVolts)
       return `${x.volts.toFixed(3)} V is above ${this.s.maxVolts.toFixed(3)} V, more than the chemistry × cells can show`;
-    if (x.amps < zero.amps - zero.band)
-      return `${x.amps.toFixed(4)} A flows into the cell with the load on (no current reads ${zero.amps.toFixed(4)} A)`;
+    if (x.amps < this.zeroA - this.bandA)
+      return `${x.amps.toFixed(4)} A flows into the cell with the load on (no current reads ${this.zeroA.toFixed(4)} A)`;
     return null;
   }
 
@@ -175,12 +174,8 @@ export class Plausibility {
     }
   }
 
-  private checkOpen(
-    x: PlausibilityInput,
-    zero: { amps: number; band: number },
-    out: PlausibilityOutcome,
-  ): void {
-    const none = Math.abs(x.amps - zero.amps) <= zero.band;
+  private checkOpen(x: PlausibilityInput, out: PlausibilityOutcome): void {
+    const none = Math.abs(x.amps - this.zeroA) <= this.bandA;
     if (!none) {
       this.resetOpen();
       return;
@@ -191,8 +186,8 @@ export class Plausibility {
         name: 'open_load',
         detail: {
           amps: x.amps,
-          no_current_A: zero.amps,
-          band_A: zero.band,
+          no_current_A: this.zeroA,
+          band_A: this.bandA,
           note: 'the load is on but no current flows: a blown fuse, an open load resistor or a broken sense wire',
         },
       });
@@ -200,7 +195,7 @@ export class Plausibility {
     if (this.openEnd.update(true, x.atMs))
       out.end = {
         reason: 'open_load',
-        detail: `open_load: the load has been on for ${this.s.openLoadEndMs / 1000} s with no current (${x.amps.toFixed(4)} A, no current reads ${zero.amps.toFixed(4)} ± ${zero.band.toFixed(4)} A); check the fuse, the load resistor and the sense wiring`,
+        detail: `open_load: the load has been on for ${this.s.openLoadEndMs / 1000} s with no current (${x.amps.toFixed(4)} A, no current reads ${this.zeroA.toFixed(4)} ± ${this.bandA.toFixed(4)} A); check the fuse, the load resistor and the sense wiring`,
       };
   }
 

@@ -45,6 +45,9 @@ const FLOOR_SLACK_V = 1e-9;
 export class Session {
   readonly integrator = new Integrator();
   readonly plausibility: Plausibility;
+  /** The frame's readings as the plausibility check takes them, filled in place per frame. */
+  private readonly plausibleIn = { atMs: 0, volts: 0, amps: 0, loadOn: false };
+  private plausibleEnd: PlausibleEnd | null = null;
   private readonly limits: Limits;
   private readonly s: Required<Omit<SessionSettings, keyof LimitSettings>> & SessionSettings;
   private stateValue: SessionState = 'waiting';
@@ -459,36 +462,38 @@ export class Session {
 
   /**
    * Integrates the frame unless its readings cannot be true; the time of a frame left out is
-   * bridged at the last trusted reading and counted as doubt. Returns the plausibility verdict.
+   * bridged at the last trusted reading and counted as doubt. Returns whether it was trusted;
+   * an end the plausibility check asks for waits in `plausibleEnd` for the limits.
    */
-  private screen(m: Measurement, out: Action[]): { ok: boolean; end: PlausibleEnd | null } {
+  private screen(m: Measurement, out: Action[]): boolean {
     const st = this.stateValue;
-    let verdict: { ok: boolean; end: PlausibleEnd | null } = { ok: true, end: null };
+    let ok = true;
+    this.plausibleEnd = null;
     if (!this.loadOn) this.plausibility.observeOff(m.amps);
     if (st === 'starting' || st === 'discharging' || st === 'stopping') {
-      const p = this.plausibility.check({
-        atMs: m.hostMs,
-        volts: m.volts,
-        amps: m.amps,
-        loadOn: this.loadOn,
-      });
-      for (const e of p.events) out.push({ type: 'event', name: e.name, detail: e.detail });
-      verdict = { ok: p.plausible, end: p.end };
+      const x = this.plausibleIn;
+      x.atMs = m.hostMs;
+      x.volts = m.volts;
+      x.amps = m.amps;
+      x.loadOn = this.loadOn;
+      const p = this.plausibility.check(x);
+      for (let i = 0; i < p.events.length; i++) {
+        const e = p.events[i]!;
+        out.push({ type: 'event', name: e.name, detail: e.detail });
+      }
+      ok = p.plausible;
+      this.plausibleEnd = p.end;
     }
-    if (!verdict.ok) {
+    if (!ok) {
       this.integrator.hold(m.dtMs, this.loadOn);
-      return verdict;
+      return false;
     }
     this.integrator.add(m.dtMs, m.volts, m.amps, this.loadOn, m.gap);
     if (this.loadOn) this.lastLoadedV = m.volts;
-    return verdict;
+    return true;
   }
 
-  private checkLimits(
-    m: Measurement,
-    out: Action[],
-    plausible: { ok: boolean; end: PlausibleEnd | null },
-  ): void {
+  private checkLimits(m: Measurement, out: Action[], plausible: boolean): void {
     const trip = this.limits.check({
       atMs: m.hostMs,
       volts: m.volts,
@@ -497,14 +502,15 @@ export class Session {
       thermistor: m.thermistor,
       loadOn: this.loadOn,
       rigFault: this.stateValue === 'discharging' && (m.flags & FLAG_RIG_FAULT) !== 0,
-      readingsPlausible: plausible.ok,
+      readingsPlausible: plausible,
     });
     if (trip) {
       this.beginStop(trip.reason, trip.detail, m.hostMs, out);
       return;
     }
-    if (plausible.end && this.stateValue === 'discharging') {
-      this.beginStop(plausible.end.reason, plausible.end.detail, m.hostMs, out);
+    const end = this.plausibleEnd;
+    if (end && this.stateValue === 'discharging') {
+      this.beginStop(end.reason, end.detail, m.hostMs, out);
       return;
     }
     // Off because the schedule said so, or still switching: not a fault.
