@@ -19,6 +19,7 @@ export type DaemonModule = typeof import('../src/run/daemon.js');
 export type PipelineModule = typeof import('../src/run/pipeline.js');
 export type EventLogModule = typeof import('../src/run/event-log.js');
 export type SessionModule = typeof import('../src/session/session.js');
+export type PlausibilityModule = typeof import('../src/session/plausibility.js');
 export type LogFileModule = typeof import('../src/sinks/log-file.js');
 export type SampleRowModule = typeof import('../src/sinks/sample-row.js');
 export type AtomicJsonModule = typeof import('../src/sinks/atomic-json.js');
@@ -344,12 +345,18 @@ export class CoreRun {
     const cutoff = resolveCutoff(chemistry, 1);
     const floorV = chemistry.floor_V_per_cell.value;
     const maxCurrentA = 0.98 * chain.fullScale().amps;
+    const { plausibilityFor } = await product<PlausibilityModule>('session/plausibility.js');
     const session = new Session({
       channel: 0,
       cutoffV: cutoff.total,
       floorV,
       maxTemperatureC: chemistry.max_temperature_C.value,
       maxCurrentA,
+      plausibility: plausibilityFor({
+        maxRestVPerCell: chemistry.max_rest_V_per_cell.value,
+        cells: 1,
+        ampsPerCount: chain.ampsPerCount,
+      }),
       checkRest: (restV) => {
         const check = checkRestingVoltage(chemistry, 1, restV, cutoff.perCell, chemistries);
         return check.ok ? null : check.error.message;

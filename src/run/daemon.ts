@@ -16,6 +16,7 @@ import { packageVersion } from '../core/paths.js';
 import { encodeCommand } from '../protocol/codec.js';
 import { FLAG_LOAD_ON } from '../protocol/messages.js';
 import { describeSchedule } from '../schedule/schedule.js';
+import { plausibilityFor } from '../session/plausibility.js';
 import { Session } from '../session/session.js';
 import type { Action, SessionEnd } from '../session/session-types.js';
 import { writeJsonAtomic } from '../sinks/atomic-json.js';
@@ -127,6 +128,11 @@ export async function startRun(req: RunRequest, io: RunIo): Promise<RunHandle> {
     maxCurrentA: cfg.maxCurrentA,
     linkTimeoutMs: req.linkTimeoutS * 1000,
     schedule: cfg.schedule,
+    plausibility: plausibilityFor({
+      maxRestVPerCell: chemistry.max_rest_V_per_cell.value,
+      cells,
+      ampsPerCount: chain.ampsPerCount,
+    }),
     checkRest: (restV) => {
       const check = checkRestingVoltage(chemistry, cells, restV, cutoff.perCell, cfg.chemistries);
       return check.ok ? null : check.error.message;
@@ -502,6 +508,7 @@ export async function startRun(req: RunRequest, io: RunIo): Promise<RunHandle> {
         lastLoadedV: session.lastLoadedV,
         cutoffV: session.cutoffV,
         counters: pipeline.counters,
+        implausibleFrames: session.plausibility.implausibleFrames,
         rigClockErrorPpm: pipeline.timeBase.rigClockErrorPpm(),
         calibration,
         calibrationId: pipeline.calibrationId,

@@ -6,6 +6,7 @@ import { parseConfigYaml } from '../core/config-file.js';
 import { ErrorCodes, makeError } from '../core/errors.js';
 import { packagePath } from '../core/paths.js';
 import { ChemistryCell, type ChemistryId } from './cell-model.js';
+import type { CircuitFaults } from './faults.js';
 import { SCENARIO_FILE_SCHEMA } from './scenario-schema.js';
 import { SimRig } from './sim-rig.js';
 
@@ -69,6 +70,7 @@ export interface SimOverrides {
   garbageProbability?: number;
   seed?: number;
   startTick?: number;
+  circuit?: CircuitFaults;
 }
 
 // strictRequired off: the current offset's oneOf names keys declared on the parent object.
@@ -179,6 +181,7 @@ export function buildSimRig(
       burstFrames: overrides.burstFrames ?? f.burst_frames,
     },
     seed: overrides.seed ?? f.seed,
+    ...(overrides.circuit ? { circuit: overrides.circuit } : {}),
   });
 }
 

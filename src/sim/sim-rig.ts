@@ -3,7 +3,7 @@ import type { Clock, TimerHandle } from '../core/clock.js';
 import { decodeHostLine, encodeDataFrame, frameLine, MAX_LINE_LENGTH } from '../protocol/codec.js';
 import { FLAG_LOAD_ON, FLAG_RIG_FAULT } from '../protocol/messages.js';
 import type { Cell } from './cell-model.js';
-import { FaultInjector, NO_FAULTS, type FaultOptions } from './faults.js';
+import { FaultInjector, NO_FAULTS, type CircuitFaults, type FaultOptions } from './faults.js';
 import { FrontEnd, type FrontEndErrors } from './front-end.js';
 import { mulberry32 } from './prng.js';
 import { RigTickCounter } from './rig-clock.js';
@@ -33,6 +33,7 @@ export interface SimRigOptions {
   rigId: string;
   firmware: string;
   faults?: FaultOptions;
+  circuit?: CircuitFaults;
   /** Seed of the noise and fault generator; the same seed gives the same run. */
   seed?: number;
 }
@@ -259,11 +260,14 @@ export class SimRig {
       this.framesDropped++;
       return;
     }
+    const sinceBoot = this.clock.now() - this.bootAt;
+    const sense = this.opts.circuit?.voltageSense;
+    const vRaw = this.frontEnd.voltage(this.point.terminalV).counts;
     const frame = encodeDataFrame({
       channel: this.channel,
       seq,
-      tickMs: this.ticks.ticksAt(this.clock.now() - this.bootAt),
-      vRaw: this.frontEnd.voltage(this.point.terminalV).counts,
+      tickMs: this.ticks.ticksAt(sinceBoot),
+      vRaw: sense && sinceBoot >= sense.fromMs && sinceBoot < sense.toMs ? sense.counts : vRaw,
       iRaw: this.frontEnd.current(this.point.currentA).counts,
       tRaw: this.frontEnd.temperature(this.thermal.temperatureC).counts,
       flags: (this.loadOn ? FLAG_LOAD_ON : 0) | (this.fault ? FLAG_RIG_FAULT : 0),
@@ -304,7 +308,9 @@ export class SimRig {
 
   private electrical(): ElectricalPoint {
     const ocv = this.opts.cell.ocvV();
-    if (!this.loadOn) return { currentA: 0, terminalV: ocv };
+    const openAt = this.opts.circuit?.openLoadAtMs;
+    const open = openAt !== undefined && this.physicsAt - this.bootAt >= openAt;
+    if (!this.loadOn || open) return { currentA: 0, terminalV: ocv };
     const rCell = this.opts.cell.internalOhm(this.thermal.temperatureC);
     const currentA = ocv / (this.externalOhm() + rCell);
     return { currentA, terminalV: ocv - currentA * rCell };

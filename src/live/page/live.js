@@ -302,13 +302,21 @@
     }
   }
 
-  const LIMIT_REASONS = new Set(['over_temperature', 'link_lost', 'fault']);
+  const LIMIT_REASONS = new Set([
+    'over_temperature',
+    'link_lost',
+    'fault',
+    'implausible_reading',
+    'open_load',
+  ]);
   const REASON_TEXT = {
     cutoff: 'cutoff reached',
     stopped: 'stopped by hand',
     over_temperature: 'over temperature',
     link_lost: 'link to the rig lost',
     fault: 'rig fault',
+    implausible_reading: 'readings that cannot be true',
+    open_load: 'load on but no current',
     refused: 'refused at start',
   };
 
