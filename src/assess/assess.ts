@@ -6,6 +6,8 @@
 import type { Calibration } from '../calibration/calibration.js';
 import { AnalogChain } from '../chain/analog-chain.js';
 import type { RigProfile } from '../chain/rig-profile-types.js';
+import type { ChemistryProfile } from '../chemistry/chemistry-types.js';
+import { batteryRangeWarning } from '../chemistry/full-scale.js';
 import { capacityBudget, type CapacityBudget } from './capacity-budget.js';
 import {
   chainResolution,
@@ -26,6 +28,8 @@ export interface AssessRequest {
   claimResolutionA?: number;
   /** Tolerance of the rig's own oscillator, fraction (0.03 = ±3 %). */
   rigClockTolerance?: number;
+  /** The battery to be tested: warned about when a full one is beyond the voltage range. */
+  battery?: { chemistry: ChemistryProfile; cells: number };
 }
 
 export interface AssessReport {
@@ -50,6 +54,16 @@ export function assess(req: AssessRequest): AssessReport {
     smallest_current: floor,
     warnings,
   };
+  if (req.battery) {
+    const w = batteryRangeWarning(
+      req.battery.chemistry,
+      req.battery.cells,
+      resolution.full_scale_V,
+      chain.adcVoltsPerCount * 2 ** chain.bits,
+      req.profile.voltage.divider_bottom_ohm,
+    );
+    if (w) warnings.push(w);
+  }
   if (req.claimResolutionA !== undefined) {
     const w = checkResolutionClaim(req.claimResolutionA, resolution, req.profile);
     if (w) warnings.push(w);

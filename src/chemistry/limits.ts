@@ -142,7 +142,12 @@ export function describeFits(restV: number, fits: readonly ChemistryFit[]): stri
 }
 
 export type RestRefusal =
-  'not_a_reading' | 'reversed' | 'below_min_rest' | 'above_max_rest' | 'at_or_below_cutoff';
+  | 'not_a_reading'
+  | 'reversed'
+  | 'below_min_rest'
+  | 'above_max_rest'
+  | 'at_or_below_cutoff'
+  | 'beyond_range';
 
 export type RestCheck =
   { ok: true } | { ok: false; reason: RestRefusal; error: CellvigilError; fits: ChemistryFit[] };

@@ -8,6 +8,7 @@ export const ErrorCodes = {
   USAGE: 'CV_USAGE',
   CUTOFF_BELOW_FLOOR: 'CV_CUTOFF_BELOW_FLOOR',
   PRECHECK_REFUSED: 'CV_PRECHECK_REFUSED',
+  BEYOND_RANGE: 'CV_BEYOND_RANGE',
   PORT_OPEN: 'CV_PORT_OPEN',
   RIG_SILENT: 'CV_RIG_SILENT',
   LOAD_NOT_CONFIRMED: 'CV_LOAD_NOT_CONFIRMED',
@@ -51,6 +52,7 @@ export function makeError(
     code === ErrorCodes.USAGE ||
     code === ErrorCodes.CUTOFF_BELOW_FLOOR ||
     code === ErrorCodes.PRECHECK_REFUSED ||
+    code === ErrorCodes.BEYOND_RANGE ||
     code === ErrorCodes.CALIBRATION_INVALID ||
     code === ErrorCodes.TOKEN_FILE ||
     code === ErrorCodes.LIVE_UNPROTECTED ||

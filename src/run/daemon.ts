@@ -10,7 +10,7 @@ import {
   findChemistry,
   loadChemistries,
 } from '../chemistry/chemistries.js';
-import { checkRestingVoltage } from '../chemistry/limits.js';
+import { checkStartVoltage } from '../chemistry/full-scale.js';
 import { HostClock, PacedClock, type Clock, type TimerHandle } from '../core/clock.js';
 import { CellvigilError, ErrorCodes, makeError } from '../core/errors.js';
 import { PACKAGE_VERSION } from '../core/paths.js';
@@ -129,7 +129,14 @@ export async function startRun(req: RunRequest, io: RunIo): Promise<RunHandle> {
     linkTimeoutMs: req.linkTimeoutS * 1000,
     schedule: cfg.schedule,
     checkRest: (restV) => {
-      const check = checkRestingVoltage(chemistry, cells, restV, cutoff.perCell, cfg.chemistries);
+      const check = checkStartVoltage(
+        chemistry,
+        cells,
+        restV,
+        cutoff.perCell,
+        cfg.chemistries,
+        applyCalibration(cfg.calibration).voltage(chain.fullScale().volts),
+      );
       return check.ok ? null : check.error.message;
     },
   });
