@@ -81,7 +81,10 @@ export function assess(req: AssessRequest): AssessReport {
     });
     if (currentA > 0.98 * resolution.full_scale_A) {
       warnings.push(
-        `the test current ${currentA} A is at or beyond the current channel's full scale of ${resolution.full_scale_A.toFixed(3)} A: readings pin at the top count. Use less amplifier gain or a smaller shunt.`,
+        `the test current ${currentA} A is at or beyond the current channel's full scale of ${resolution.full_scale_A.toFixed(3)} A: readings pin at the top count. ` +
+          (currentA / 1000 < 0.98 * resolution.full_scale_A
+            ? `Did you mean ${currentA / 1000} A (${currentA} looks like mA)? Otherwise use less amplifier gain or a smaller shunt.`
+            : 'Use less amplifier gain or a smaller shunt.'),
       );
     }
     const calibrated = report.test.mode !== 'uncalibrated';

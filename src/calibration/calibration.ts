@@ -9,6 +9,7 @@ import { Ajv, type SchemaObject } from 'ajv';
 import { readConfigText } from '../core/config-file.js';
 import { ErrorCodes, makeError } from '../core/errors.js';
 import { fitLine, fitOffset, type FitOptions, type LinearFit } from './fit.js';
+import { checkCalibrationPlausible } from './plausible.js';
 
 export const CALIBRATION_FORMAT = 1;
 
@@ -243,6 +244,7 @@ export function parseCalibration(text: string, where: string): Calibration {
     );
   }
   const cal = data as Calibration;
+  checkCalibrationPlausible(cal, where);
   const computed = calibrationId(cal);
   if (computed !== cal.id) {
     throw makeError(

@@ -5,6 +5,7 @@
 import { Ajv, type ErrorObject, type SchemaObject } from 'ajv';
 import { parseConfigYaml, readConfigText } from '../core/config-file.js';
 import { ErrorCodes, makeError } from '../core/errors.js';
+import { checkRigPlausible } from './rig-plausible.js';
 import type { RigProfile } from './rig-profile-types.js';
 
 const positive = { type: 'number', exclusiveMinimum: 0 };
@@ -141,6 +142,7 @@ export function parseRigProfile(text: string, where: string): RigProfile {
       problems.map((p) => p.fix).join(' '),
     );
   }
+  checkRigPlausible(data as RigProfile, where);
   return data as RigProfile;
 }
 

@@ -1,4 +1,5 @@
 import { ErrorCodes, makeError, type CellvigilError } from '../core/errors.js';
+import { meaningful } from '../core/meaningful.js';
 import type { ChemistryProfile } from './chemistry-types.js';
 
 /** Most cells in series a run accepts. */
@@ -30,6 +31,14 @@ function round(x: number, digits = 6): number {
 export function fmtV(x: number): string {
   const s = round(x, 3).toFixed(3);
   return s.endsWith('0') ? s.slice(0, -1) : s;
+}
+
+/** " Did you mean 3.0 V?" when a cutoff read as millivolts falls where a cutoff belongs. */
+function millivoltHint(value: number, floorV: number, nominalV: number): string {
+  const volts = value / 1000;
+  return volts >= floorV && volts < nominalV
+    ? ` Did you mean ${meaningful(volts)} V? ${meaningful(value)} looks like mV.`
+    : '';
 }
 
 /** Checks a cell count: an integer from 1 to 64. Returns it, or throws CV_USAGE. */
@@ -92,8 +101,9 @@ export function resolveCutoff(
       `Cutoff ${fmtV(requestedPerCell)} V per cell is at or above the ${profile.id} nominal voltage of ` +
         `${fmtV(nominal.value)} V per cell, so the run would end at once`,
       where,
-      `Give the cutoff per cell, not for the whole string: between ${fmtV(floor.value)} and ` +
-        `${fmtV(nominal.value)} V (the default is ${fmtV(profile.cutoff_V_per_cell.value)} V).`,
+      `Give the cutoff per cell in volts, not for the whole string: between ${fmtV(floor.value)} and ` +
+        `${fmtV(nominal.value)} V (the default is ${fmtV(profile.cutoff_V_per_cell.value)} V).` +
+        millivoltHint(requestedPerCell, floor.value, nominal.value),
     );
   }
   return {
