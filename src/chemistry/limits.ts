@@ -91,7 +91,10 @@ export function resolveCutoff(
         `${fmtV(floor.value)} V per cell (source: ${floor.source})`,
       where,
       `Choose ${fmtV(floor.value)} V per cell or more (the default is ` +
-        `${fmtV(profile.cutoff_V_per_cell.value)} V); the floor cannot be lowered by any option or command.`,
+        `${fmtV(profile.cutoff_V_per_cell.value)} V); the floor cannot be lowered by any option or command. ` +
+        "To follow a cell maker's datasheet that allows less, add a chemistry profile for that cell " +
+        'with its own floor and the datasheet as its source, and run with --chemistries-file <file> ' +
+        '--chemistry <its id> (docs/chemistry-profiles.md).',
     );
   }
   const nominal = profile.nominal_V_per_cell;

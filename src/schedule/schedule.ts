@@ -8,6 +8,7 @@ import { parseConfigYaml, readConfigText } from '../core/config-file.js';
 import { ErrorCodes, makeError } from '../core/errors.js';
 import { formatDuration, parseDuration } from './duration.js';
 import { SCHEDULE_KEYS, SCHEDULE_SCHEMA, type ScheduleSpec } from './schedule-schema.js';
+import { durationProblem, looksLikeFileName, missingScheduleFile } from './option-hints.js';
 
 export interface Pulse {
   onMs: number;
@@ -80,11 +81,8 @@ function invalid(
 function durationMs(value: string | number, where: string, key: string): number {
   const ms = typeof value === 'number' ? value * 1000 : parseDuration(value);
   if (ms === null || !Number.isFinite(ms) || ms <= 0) {
-    throw invalid(
-      `${key} must be a positive duration, got ${JSON.stringify(value)}`,
-      where,
-      `Write it with a unit, e.g. "15 s", "1 min" or "4 h" (a bare number counts as seconds).`,
-    );
+    const { what, fix } = durationProblem(value, key);
+    throw invalid(what, where, fix);
   }
   return ms;
 }
@@ -281,6 +279,7 @@ export function parseScheduleOption(text: string, where = '--schedule'): Schedul
       where,
       'Give e.g. "continuous" or "on 15 s every 1 min, 8 h per day, to 1.0 V".',
     );
+  if (looksLikeFileName(text)) throw missingScheduleFile(text, where);
   for (const clause of clauses) {
     const i = CLAUSES.findIndex(([re]) => re.test(clause));
     if (i < 0) {

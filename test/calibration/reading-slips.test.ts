@@ -137,7 +137,20 @@ describe('the dialogue asks again at once', () => {
   it('keeps a doubtful reading typed twice (the meter may be right)', async () => {
     const clock = new VirtualClock();
     const conn = simConnection(clock, scenario('demo'), profile);
-    const answers = ['bench DMM', 'y', '', '', '12.6', '12.6', 'u=0.01', 'r', '', '', '4.1'];
+    const answers = [
+      'bench DMM',
+      'y',
+      '',
+      '',
+      '12.6',
+      '12.6',
+      '1/2 %',
+      'u=0.01',
+      'r',
+      '',
+      '',
+      '4.1',
+    ];
     const shown: string[] = [];
     const prompter: Prompter = {
       print: (l) => shown.push(l),
@@ -159,6 +172,10 @@ describe('the dialogue asks again at once', () => {
     expect(text).toMatch(/full scale/);
     expect(text).toContain('recorded: raw mean');
     expect(text).toContain('point 1 dropped; take it again.');
+    // A bad accuracy names the point it was typed for.
+    expect(text).toContain(
+      '"1/2 %" is not an accuracy (meter accuracy for voltage point 1 (load off))',
+    );
   });
 });
 
