@@ -77,7 +77,11 @@ export function voltageChargePlot(series: PlotSeries[], cutoffV: number | null):
 }
 
 /** Voltage, current and temperature against time since the start, one panel each. */
-export function timePlots(curve: readonly CurveBucket[], cutoffV: number | null): string {
+export function timePlots(
+  curve: readonly CurveBucket[],
+  cutoffV: number | null,
+  maxTemperatureC: number | null = null,
+): string {
   const { t0, t1 } = spanOf(curve);
   const unit = timeUnitFor(t1 - t0);
   const x = { label: `time since the start (${unit.name})`, min: 0 };
@@ -112,10 +116,18 @@ export function timePlots(curve: readonly CurveBucket[], cutoffV: number | null)
     }),
     linePlot({
       id: 'temperature-time',
-      title: 'Cell temperature against time',
+      title: 'Cell temperature against time (dashed: limit)',
       x,
       y: { label: 'temperature (°C)', minSpan: 4 },
       series: [temp],
+      // The limit is drawn, and kept in view, so the margin to it can be read off.
+      ...(maxTemperatureC !== null
+        ? {
+            rules: [
+              { y: maxTemperatureC, label: `limit ${maxTemperatureC} °C`, color: RULE_COLOUR },
+            ],
+          }
+        : {}),
       height: 240,
     }),
   ].join('\n');

@@ -77,7 +77,7 @@ function label(v: number, step: number): string {
 }
 
 export function linePlot(p: PlotSpec): string {
-  const W = p.width ?? 760;
+  const W = p.width ?? 1000;
   const H = p.height ?? 300;
   const m = { l: 64, r: 16, t: 34, b: 46 };
   const xs = p.series.flatMap((s) => s.points.map((q) => q[0]));

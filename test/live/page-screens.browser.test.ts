@@ -10,24 +10,11 @@ import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { chromium, type Browser, type Page } from 'playwright-core';
 import { LiveHub } from '../../src/live/live-hub.js';
 import { scriptedDischarge, startRig, type Rig } from './helpers.js';
+import { overflowing } from './overflow.js';
 
 const CHROMIUM = '/usr/bin/chromium';
 const TIME_AXIS = fileURLToPath(new URL('../../src/live/page/time-axis.js', import.meta.url));
 const skip = !existsSync(CHROMIUM) && !process.env.CI;
-
-/** Text boxes whose content is wider than the box (cut by an ellipsis, or running out of it). */
-export function overflowing(page: Page, selectors: string): Promise<string[]> {
-  // Runs in the page; a string, since the project compiles without the DOM library.
-  return page.evaluate<string[]>(`(() => {
-    const out = [];
-    for (const el of document.querySelectorAll(${JSON.stringify(selectors)})) {
-      if (el.closest('[hidden]') || el.offsetParent === null) continue;
-      if (el.scrollWidth > el.clientWidth + 1)
-        out.push((el.id || el.className) + ': "' + el.textContent.trim().slice(0, 60) + '" ' + el.scrollWidth + ' > ' + el.clientWidth);
-    }
-    return out;
-  })()`);
-}
 
 const TEXT_BOXES =
   '.tile-value, .tile-label, .banner strong, .banner > span, .log li, .facts dd, .facts dt, .run-title, figcaption, .hint, .control-reply';

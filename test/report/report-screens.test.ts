@@ -1,0 +1,189 @@
+/**
+ * The report read as a person reads it: a swarm of lost frames summed per minute instead of a
+ * red row each, a safety end highlighted, no rows for steps never reached, the temperature
+ * limit drawn, times in local time with the zone, and nothing running out of its box at a
+ * phone's width (390 CSS px) or a desktop's (1280 px). Peukert's law (t = H·(C/(I·H))^k,
+ * hours-rate form) is fitted only across runs of one kind of cell.
+ */
+import { existsSync, mkdirSync } from 'node:fs';
+import { mkdtemp, readFile, rm } from 'node:fs/promises';
+import { tmpdir } from 'node:os';
+import { join, resolve } from 'node:path';
+import { chromium, type Browser } from 'playwright-core';
+import { afterAll, beforeAll, describe, expect, it } from 'vitest';
+import type { ListedEvent } from '../../src/report/event-digest.js';
+import { eventRows } from '../../src/report/html-events.js';
+import { localTime } from '../../src/report/html-text.js';
+import {
+  fitPeukert,
+  peukertHours,
+  selectPeukertRuns,
+  type PeukertCandidate,
+} from '../../src/report/peukert.js';
+import { reportRuns, type ReportOutcome } from '../../src/report/report-runs.js';
+import { overflowing } from '../live/overflow.js';
+import { demoScenario, simulateRun } from './sim-run.js';
+
+const CHROMIUM = '/usr/bin/chromium';
+const skip = !existsSync(CHROMIUM) && !process.env.CI;
+
+describe('report parts (pure)', () => {
+  it('sums 120 lost-frame events over two minutes into two rows, keeps the frame count', () => {
+    const listed: ListedEvent[] = [];
+    for (let k = 0; k < 120; k++)
+      listed.push({ hostS: k, name: 'frames_lost', alarm: true, detail: `count: 2; seq: ${k}` });
+    listed.push({
+      hostS: 130,
+      name: 'clock_warning',
+      alarm: true,
+      detail: 'rig_clock_error_ppm: 80000',
+    });
+    listed.push({ hostS: 140, name: 'load_off_unconfirmed', alarm: true, detail: '' });
+    const rows = eventRows(listed);
+    expect(rows.map((r) => [r.name, r.events, r.level])).toEqual([
+      ['frames_lost', 60, 'warning'],
+      ['frames_lost', 60, 'warning'],
+      ['clock_warning', 1, 'note'],
+      ['load_off_unconfirmed', 1, 'alarm'],
+    ]);
+    expect(rows[0]!.detail).toBe('120 frames lost in 60 gaps of the sequence');
+  });
+
+  it('writes local time with its zone (09:15:02 UTC is 10:15:02 in Berlin in December, CET = UTC+1)', () => {
+    expect(localTime('2026-12-03T09:15:02Z', 'Europe/Berlin')).toMatch(
+      /^2026-12-03 10:15:02 (CET|GMT\+1)$/,
+    );
+    expect(localTime('2026-12-03T09:15:02Z', 'UTC')).toBe('2026-12-03 09:15:02 UTC');
+  });
+
+  it('fits Peukert only across one kind of cell: a NiMH and an 8 mAh run are left out, with the reason', () => {
+    // Hours from the law itself with k = 1.2, C = 2.6 Ah at the 20-hour rate.
+    const li = (currentA: number, name: string): PeukertCandidate => ({
+      name,
+      currentA,
+      hours: peukertHours(20, 2.6, 1.2, currentA),
+      chemistry: 'li-ion',
+      cells: 1,
+      ratedAh: null,
+      capacityAh: currentA * peukertHours(20, 2.6, 1.2, currentA),
+      endReason: 'cutoff',
+    });
+    const runs = [
+      li(0.5, 'li-a'),
+      li(1.0, 'li-b'),
+      li(2.0, 'li-c'),
+      { ...li(0.1, 'nimh'), chemistry: 'nimh', hours: 5, capacityAh: 0.5 },
+      { ...li(0.004, 'tiny'), hours: 2, capacityAh: 0.008 },
+      { ...li(1.5, 'hot'), endReason: 'over_temperature' },
+    ];
+    const s = selectPeukertRuns(runs);
+    expect(s.used.map((r) => r.name)).toEqual(['li-a', 'li-b', 'li-c']);
+    expect(s.group).toBe('1 × li-ion');
+    const why = Object.fromEntries(s.excluded.map((x) => [x.name, x.why]));
+    expect(why['nimh']).toContain('1 × nimh, not 1 × li-ion');
+    expect(why['tiny']).toContain('another kind of cell');
+    expect(why['hot']).toContain('not at its cutoff');
+    expect(fitPeukert(s.used).k).toBeCloseTo(1.2, 9);
+  });
+});
+
+let root: string;
+let normal: ReportOutcome;
+let hot: ReportOutcome;
+beforeAll(async () => {
+  root = await mkdtemp(join(tmpdir(), 'cv-screens-'));
+  const lossy = await simulateRun({
+    dir: join(root, 'lossy'),
+    scenario: demoScenario({
+      name: 'lossy-link',
+      faults: { drop_probability: 0.03, garbage_probability: 0.01, burst_frames: 2, seed: 7 },
+    }),
+  });
+  normal = await reportRuns({ folders: [lossy.folder], generatedAt: '2026-12-03T10:00:00Z' });
+  const heated = await simulateRun({
+    dir: join(root, 'hot'),
+    scenario: demoScenario({
+      name: 'hot-cell',
+      thermal: {
+        ambient_C: 40,
+        heat_capacity_J_per_K: 5,
+        conductance_W_per_K: 0.02,
+        load_heat_fraction: 0,
+        extra_heat_W: 1,
+      },
+    }),
+  });
+  hot = await reportRuns({ folders: [heated.folder], generatedAt: '2026-12-03T10:00:00Z' });
+}, 120_000);
+afterAll(async () => {
+  await rm(root, { recursive: true, force: true });
+});
+
+describe('report.html', () => {
+  it('sums lost frames per minute, drops unreached steps, draws the temperature limit', async () => {
+    const r = normal.runs[0]!;
+    expect(r.figures.result.frames_lost).toBeGreaterThan(50);
+    const html = await readFile(r.reportPath, 'utf8');
+    const eventRowsHtml = html.match(/<tr class="ev-[a-z]+"/g) ?? [];
+    const minutes = Math.ceil(r.figures.result.duration_s / 60) + 2;
+    // At most a row per kind and minute, where each lost frame had its own row before.
+    expect(eventRowsHtml.length).toBeLessThan(r.figures.result.frames_lost);
+    expect(html.match(/frames_lost ×\d+/g)!.length).toBeLessThanOrEqual(minutes);
+    expect(html).not.toContain('not reached</td>');
+    expect(html).toMatch(/data-plot="temperature-time"[\s\S]*?limit 60 °C/);
+    expect(html).not.toContain('data-end="safety"');
+  });
+
+  it('highlights a run that ended on its temperature limit', async () => {
+    const r = hot.runs[0]!;
+    expect(r.figures.result.end_reason).toBe('over_temperature');
+    const html = await readFile(r.reportPath, 'utf8');
+    expect(html).toContain('data-end="safety"');
+    expect(html).toContain('the cell passed its temperature limit');
+    expect(html).toContain('<tr class="safety-end"><th>How it ended</th>');
+  });
+});
+
+describe.skipIf(skip)('report.html in a browser at phone and desktop widths', () => {
+  let browser: Browser;
+  beforeAll(async () => {
+    mkdirSync('test-artifacts', { recursive: true });
+    browser = await chromium.launch({
+      executablePath: CHROMIUM,
+      args: ['--headless', '--no-sandbox', '--disable-gpu', '--no-first-run'],
+    });
+  });
+  afterAll(async () => {
+    await browser?.close();
+  });
+
+  it('no text runs out of its box; the plots take the page width', async () => {
+    for (const [name, outcome] of [
+      ['lossy', normal],
+      ['hot', hot],
+    ] as const) {
+      for (const width of [390, 1280]) {
+        const page = await browser.newPage({ viewport: { width, height: 900 } });
+        await page.goto(`file://${resolve(outcome.runs[0]!.reportPath)}`);
+        expect(
+          await overflowing(page, 'h1, h2, h3, p, li, th, td, .box, .label'),
+          `${name} at ${width} px`,
+        ).toEqual([]);
+        const wider = await page.evaluate<number>(
+          'document.documentElement.scrollWidth - window.innerWidth',
+        );
+        expect(wider, `${name} at ${width} px`).toBeLessThanOrEqual(0);
+        // A plot spans the main column (less its border), not a fixed 760 px.
+        const plot = await page.evaluate<number[]>(
+          `[document.querySelector('svg.cv-plot').getBoundingClientRect().width, document.querySelector('main').clientWidth]`,
+        );
+        expect(plot[0]!).toBeGreaterThan(plot[1]! - 60);
+        await page.screenshot({
+          path: `test-artifacts/report-${name}-${width}.png`,
+          fullPage: true,
+        });
+        await page.close();
+      }
+    }
+  });
+});
