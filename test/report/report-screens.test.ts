@@ -21,6 +21,7 @@ import {
   type PeukertCandidate,
 } from '../../src/report/peukert.js';
 import { reportRuns, type ReportOutcome } from '../../src/report/report-runs.js';
+import { isPulsed, timePlots } from '../../src/report/run-plots.js';
 import { overflowing } from '../live/overflow.js';
 import { demoScenario, simulateRun } from './sim-run.js';
 
@@ -185,5 +186,46 @@ describe.skipIf(skip)('report.html in a browser at phone and desktop widths', ()
         await page.close();
       }
     }
+  });
+});
+
+describe('a pulsed run is plotted without averaging the pulses away', () => {
+  it('draws the loaded and the resting voltage apart (a bucket of 5 loaded frames at 3.6 V and 5 at rest at 3.9 V)', () => {
+    const bucket = (k: number) => ({
+      t0: k * 60,
+      t1: k * 60 + 59,
+      q0: k * 0.01,
+      q1: (k + 1) * 0.01,
+      e1: 0,
+      n: 10,
+      nOn: 5,
+      vMin: 3.6 - k * 0.01,
+      vMax: 3.9 - k * 0.01,
+      vSum: 5 * (3.6 - k * 0.01) + 5 * (3.9 - k * 0.01),
+      vOnSum: 5 * (3.6 - k * 0.01),
+      iMin: 0,
+      iMax: 1.2,
+      iSum: 5 * 1.2,
+      tempSum: 250,
+      tempN: 10,
+    });
+    const curve = Array.from({ length: 20 }, (_, k) => bucket(k));
+    expect(isPulsed(curve)).toBe(true);
+    const svg = timePlots(curve, 3.0, 60);
+    const voltage = svg.slice(0, svg.indexOf('data-plot="current-time"'));
+    expect(voltage).toContain('data-series="loaded"');
+    expect(voltage).toContain('data-series="at rest"');
+    // The plain mean (3.75 V at the first bucket) would be the only line; the loaded line is
+    // lower than the resting one everywhere.
+    const ys = (name: string): number[] =>
+      /data-series="([^"]+)"[^>]*points="([^"]+)"/g
+        .exec(voltage.slice(voltage.indexOf(`data-series="${name}"`)))![2]!
+        .split(' ')
+        .map((p) => Number(p.split(',')[1]));
+    const loaded = ys('loaded');
+    const rest = ys('at rest');
+    // SVG y grows downwards: a lower voltage has a larger y.
+    loaded.forEach((y, i) => expect(y).toBeGreaterThan(rest[i]!));
+    expect(svg).toContain('data-series="current while loaded"');
   });
 });
