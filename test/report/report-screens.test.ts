@@ -22,6 +22,7 @@ import {
 } from '../../src/report/peukert.js';
 import { reportRuns, type ReportOutcome } from '../../src/report/report-runs.js';
 import { isPulsed, timePlots } from '../../src/report/run-plots.js';
+import { linePlot } from '../../src/report/svg-plot.js';
 import { overflowing } from '../live/overflow.js';
 import { demoScenario, simulateRun } from './sim-run.js';
 
@@ -227,5 +228,27 @@ describe('a pulsed run is plotted without averaging the pulses away', () => {
     // SVG y grows downwards: a lower voltage has a larger y.
     loaded.forEach((y, i) => expect(y).toBeGreaterThan(rest[i]!));
     expect(svg).toContain('data-series="current while loaded"');
+  });
+});
+
+describe('the legend of a comparison fits its plot', () => {
+  it('eight runs with long folder names wrap inside the frame, each name shortened to fit', () => {
+    const series = Array.from({ length: 8 }, (_, k) => ({
+      name: `20261203-0${k}1500-batch-b-cell-${k}-second-try`,
+      color: '#000',
+      points: [[0, 4.1] as const, [1, 3.0] as const],
+    }));
+    const svg = linePlot({ id: 'x', title: 't', x: { label: 'x' }, y: { label: 'y' }, series });
+    const texts = [
+      ...svg.matchAll(
+        /<text x="([\d.]+)" y="([\d.]+)" class="cv-legend"[^>]*><title>[^<]*<\/title>([^<]*)</g,
+      ),
+    ];
+    expect(texts).toHaveLength(8);
+    for (const [, x, , shown] of texts) {
+      expect(shown!.length).toBeLessThanOrEqual(26);
+      expect(Number(x) + shown!.length * 6.4).toBeLessThanOrEqual(1000 - 16);
+    }
+    expect(new Set(texts.map((t) => t[2])).size).toBeGreaterThan(1);
   });
 });
