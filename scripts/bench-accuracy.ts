@@ -20,6 +20,7 @@ import {
   type AtomicJsonModule,
   type CalibrationModule,
   type ChemistriesModule,
+  type ChemistryFileModule,
   type ChemistryLimitsModule,
   type CodecModule,
   type EventLogModule,
@@ -84,6 +85,7 @@ interface Modules {
   sampleRow: SampleRowModule;
   atomicJson: AtomicJsonModule;
   chemistries: ChemistriesModule;
+  chemistryFile: ChemistryFileModule;
   limits: ChemistryLimitsModule;
   chain: AnalogChainModule;
   rigProfile: RigProfileModule;
@@ -111,6 +113,7 @@ async function load(): Promise<Modules> {
     sampleRow: await product<SampleRowModule>('sinks/sample-row.js'),
     atomicJson: await product<AtomicJsonModule>('sinks/atomic-json.js'),
     chemistries: await product<ChemistriesModule>('chemistry/chemistries.js'),
+    chemistryFile: await product<ChemistryFileModule>('chemistry/chemistry-file.js'),
     limits: await product<ChemistryLimitsModule>('chemistry/limits.js'),
     chain: await product<AnalogChainModule>('chain/analog-chain.js'),
     rigProfile: await product<RigProfileModule>('chain/rig-profile.js'),
@@ -245,7 +248,7 @@ async function discharge(
   const startedWall = Date.UTC(2026, 11, 3, 9, 0, 0);
   const clock = new m.clock.VirtualClock(0, startedWall);
   const rig = m.scenarios.buildSimRig(scenario, clock, profile);
-  const chemistries = m.chemistries.loadChemistries();
+  const chemistries = m.chemistryFile.loadChemistries();
   const chemistry = m.chemistries.findChemistry(chemistries, scenario.cell.chemistry);
   const cells = scenario.cell.cells;
   const cutoff = m.limits.resolveCutoff(chemistry, cells);
@@ -273,6 +276,7 @@ async function discharge(
     session,
     originMs: 0,
   });
+  const rowWriter = new m.sampleRow.SampleRowWriter();
   const samples = new m.logFile.LogFile({
     dir,
     name: 'samples-',
@@ -302,11 +306,7 @@ async function discharge(
       if (end) return;
       const out = pipeline.line(text, clock.now(), clock.wallNow());
       if (out.kind === 'sample') {
-        samples.appendWith(
-          out.row,
-          m.sampleRow.sampleRowMaxBytes(out.row),
-          m.sampleRow.writeSampleRow,
-        );
+        samples.appendWith(out.row, m.sampleRow.sampleRowMaxBytes(out.row), rowWriter.write);
         if (session.loadOn) loaded++;
         if (out.gap) gaps++;
         dispatch(out.actions);

@@ -35,6 +35,7 @@ import { formatOutcome } from './fit-report.js';
 import { captureInteractive, type Prompter } from './interactive.js';
 import { makeLoadGuard, type LoadGuard } from './load-guard.js';
 import { capturePoint } from './point-capture.js';
+import { savePointsAfterRefusal } from './points-save.js';
 import { loadPointsFile, type PointsFile } from './points-file.js';
 import { buildCalibration, type QuantityOutcome } from './quantity-fit.js';
 import { RigLink } from './rig-link.js';
@@ -197,18 +198,22 @@ export async function runCalibrate(
   const { points, date, offConfirmed } = got;
   const rigName = got.rigId || (profile.name ?? basename(rigPath));
   instrument ??= got.referenceInstrument;
-  if (instrument === null) {
-    throw usage(
-      'the reference instrument is not named',
-      '--reference',
-      'Say which meter gave the readings (--reference "…"); nothing was written.',
-    );
+  let built: ReturnType<typeof buildCalibration>;
+  try {
+    if (instrument === null) {
+      throw usage(
+        'the reference instrument is not named',
+        '--reference',
+        'Say which meter gave the readings (--reference "…"); nothing was written.',
+      );
+    }
+    built = buildCalibration({ rig: rigName, date, referenceInstrument: instrument }, points);
+  } catch (e) {
+    if (req.fromPoints === undefined)
+      io.print(await savePointsAfterRefusal(resolve(req.out), points, instrument));
+    throw e;
   }
-
-  const { content, outcomes } = buildCalibration(
-    { rig: rigName, date, referenceInstrument: instrument },
-    points,
-  );
+  const { content, outcomes } = built;
   io.print('');
   for (const o of outcomes) for (const line of formatOutcome(o)) io.print(line);
   const out = resolve(req.out);

@@ -9,6 +9,7 @@ import {
   type Calibration,
   type CalibrationContent,
 } from './calibration.js';
+import { checkCalibrationPlausible } from './plausible.js';
 
 /* Reading, checking and writing the calibration file; the model it holds is in calibration.ts. */
 
@@ -125,6 +126,7 @@ export function parseCalibration(text: string, where: string): Calibration {
     );
   }
   const cal = data as Calibration;
+  checkCalibrationPlausible(cal, where);
   const computed = calibrationId(cal);
   if (computed !== cal.id) {
     throw makeError(

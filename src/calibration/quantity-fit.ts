@@ -14,6 +14,7 @@ import {
   type QuantityCalibration,
   type QuantityFit,
 } from './calibration.js';
+import { gainProblem } from './plausible.js';
 
 export const QUANTITIES: readonly Quantity[] = ['voltage', 'current', 'temperature'];
 
@@ -26,8 +27,6 @@ export function minPoints(quantity: Quantity): number {
   return modelFor(quantity) === 'offset' ? 1 : 2;
 }
 
-/** A gain this far from 1 means wrong units or a rig profile that does not describe the board. */
-const GAIN_REFUSE = { low: 0.5, high: 2 };
 /** Warn outside this band: a real board is seldom more than a few percent off its profile. */
 const GAIN_WARN = { low: 0.8, high: 1.25 };
 /** Warn when the gain is known to worse than this (relative standard uncertainty). */
@@ -108,10 +107,11 @@ export function fitCheckedQuantity(
   const r = fitQuantity(quantity, points, model, where);
   const fit = r.calibration.fit;
   if (model === 'gain_offset') {
-    if (!(fit.gain >= GAIN_REFUSE.low && fit.gain <= GAIN_REFUSE.high)) {
+    const gainRefused = gainProblem(quantity, fit.gain);
+    if (gainRefused !== null) {
       throw makeError(
         ErrorCodes.CALIBRATION_FIT,
-        `the fitted ${quantity} gain is ${fmt(fit.gain)}: the reference ${fit.gain <= 0 ? "falls as the rig's reading rises" : `differs from the rig by a factor of ${fmt(fit.gain)}`}`,
+        `the fitted ${gainRefused}`,
         where,
         `Check that the readings are in ${unit} (not m${unit}) and typed for the right points, and that the rig profile (--rig) describes this board.`,
       );

@@ -8,7 +8,9 @@ export const ErrorCodes = {
   USAGE: 'CV_USAGE',
   CUTOFF_BELOW_FLOOR: 'CV_CUTOFF_BELOW_FLOOR',
   PRECHECK_REFUSED: 'CV_PRECHECK_REFUSED',
+  BEYOND_RANGE: 'CV_BEYOND_RANGE',
   PORT_OPEN: 'CV_PORT_OPEN',
+  PORT_BUSY: 'CV_PORT_BUSY',
   RIG_SILENT: 'CV_RIG_SILENT',
   LOAD_NOT_CONFIRMED: 'CV_LOAD_NOT_CONFIRMED',
   RUN_FOLDER: 'CV_RUN_FOLDER',
@@ -20,6 +22,7 @@ export const ErrorCodes = {
   LIVE_UNPROTECTED: 'CV_LIVE_UNPROTECTED',
   LIVE_LISTEN: 'CV_LIVE_LISTEN',
   WATCH_REFUSED: 'CV_WATCH_REFUSED',
+  WATCH_UNREACHABLE: 'CV_WATCH_UNREACHABLE',
   RUN_DATA: 'CV_RUN_DATA',
 } as const;
 
@@ -51,6 +54,7 @@ export function makeError(
     code === ErrorCodes.USAGE ||
     code === ErrorCodes.CUTOFF_BELOW_FLOOR ||
     code === ErrorCodes.PRECHECK_REFUSED ||
+    code === ErrorCodes.BEYOND_RANGE ||
     code === ErrorCodes.CALIBRATION_INVALID ||
     code === ErrorCodes.TOKEN_FILE ||
     code === ErrorCodes.LIVE_UNPROTECTED ||

@@ -76,8 +76,12 @@ function label(v: number, step: number): string {
   return v.toFixed(digits);
 }
 
+/** Legend names longer than this are cut; an 11 px sans-serif character is about 6.4 px wide. */
+const LEGEND_CHARS = 26;
+const LEGEND_CHAR_PX = 6.4;
+
 export function linePlot(p: PlotSpec): string {
-  const W = p.width ?? 760;
+  const W = p.width ?? 1000;
   const H = p.height ?? 300;
   const m = { l: 64, r: 16, t: 34, b: 46 };
   const xs = p.series.flatMap((s) => s.points.map((q) => q[0]));
@@ -155,11 +159,21 @@ export function linePlot(p: PlotSpec): string {
     out.push(`<text x="${W / 2}" y="${H / 2}" text-anchor="middle" class="cv-axis">no data</text>`);
   }
   if (p.series.length > 1) {
+    // Names are cut to what the spacing allows, and the legend wraps before the frame's edge.
     let lx = m.l + 8;
+    let ly = m.t + 8;
     for (const s of p.series) {
-      out.push(`<rect x="${lx}" y="${m.t + 8}" width="14" height="3" fill="${s.color}"/>`);
-      out.push(`<text x="${lx + 18}" y="${m.t + 13}" class="cv-legend">${esc(s.name)}</text>`);
-      lx += 28 + Math.min(26, s.name.length) * 6.4;
+      const shown = s.name.length > LEGEND_CHARS ? `${s.name.slice(0, LEGEND_CHARS - 1)}…` : s.name;
+      const width = 28 + shown.length * LEGEND_CHAR_PX;
+      if (lx > m.l + 8 && lx + width > W - m.r) {
+        lx = m.l + 8;
+        ly += 15;
+      }
+      out.push(`<rect x="${lx}" y="${ly}" width="14" height="3" fill="${s.color}"/>`);
+      out.push(
+        `<text x="${lx + 18}" y="${ly + 5}" class="cv-legend" data-legend="${esc(s.name)}"><title>${esc(s.name)}</title>${esc(shown)}</text>`,
+      );
+      lx += width;
     }
   }
   out.push('</svg>');

@@ -8,7 +8,7 @@ import { applyCalibration, type Calibration } from '../calibration/calibration.j
 import { loadCalibration } from '../calibration/calibration-file.js';
 import { findChemistry } from '../chemistry/chemistries.js';
 import { DEFAULT_CHEMISTRIES_PATH, loadChemistries } from '../chemistry/chemistry-file.js';
-import { checkRestingVoltage } from '../chemistry/limits.js';
+import { checkStartVoltage } from '../chemistry/full-scale.js';
 import type { Clock, TimerHandle } from '../core/clock.js';
 import { HostClock, PacedClock } from '../core/host-clock.js';
 import { CellvigilError, ErrorCodes, makeError } from '../core/errors.js';
@@ -134,7 +134,14 @@ export async function startRun(req: RunRequest, io: RunIo): Promise<RunHandle> {
       ampsPerCount: chain.ampsPerCount,
     }),
     checkRest: (restV) => {
-      const check = checkRestingVoltage(chemistry, cells, restV, cutoff.perCell, cfg.chemistries);
+      const check = checkStartVoltage(
+        chemistry,
+        cells,
+        restV,
+        cutoff.perCell,
+        cfg.chemistries,
+        applyCalibration(cfg.calibration).voltage(chain.fullScale().volts),
+      );
       return check.ok ? null : check.error.message;
     },
   });

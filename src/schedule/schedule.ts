@@ -6,6 +6,7 @@
 import { ErrorCodes, makeError } from '../core/errors.js';
 import { formatDuration, parseDuration } from './duration.js';
 import type { ScheduleSpec } from './schedule-schema.js';
+import { durationProblem, looksLikeFileName, missingScheduleFile } from './option-hints.js';
 
 export interface Pulse {
   onMs: number;
@@ -75,11 +76,8 @@ export function invalidSchedule(
 function durationMs(value: string | number, where: string, key: string): number {
   const ms = typeof value === 'number' ? value * 1000 : parseDuration(value);
   if (ms === null || !Number.isFinite(ms) || ms <= 0) {
-    throw invalidSchedule(
-      `${key} must be a positive duration, got ${JSON.stringify(value)}`,
-      where,
-      `Write it with a unit, e.g. "15 s", "1 min" or "4 h" (a bare number counts as seconds).`,
-    );
+    const { what, fix } = durationProblem(value, key);
+    throw invalidSchedule(what, where, fix);
   }
   return ms;
 }
@@ -236,6 +234,7 @@ export function parseScheduleOption(text: string, where = '--schedule'): Schedul
       where,
       'Give e.g. "continuous" or "on 15 s every 1 min, 8 h per day, to 1.0 V".',
     );
+  if (looksLikeFileName(text)) throw missingScheduleFile(text, where);
   for (const clause of clauses) {
     const i = CLAUSES.findIndex(([re]) => re.test(clause));
     if (i < 0) {

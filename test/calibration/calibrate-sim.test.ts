@@ -336,6 +336,7 @@ describe('calibrate at a terminal (the dialogue, scripted)', () => {
       '', // press Enter
       '', // reading: 0 (default for load off)
       '', // accuracy: u=0 (nothing flows)
+      '', // next point (Enter; r would take point 1 again)
       '', // point 2: load on (default for the second point)
       '', // press Enter
       () => loadedTruth.toFixed(4), // what the meter showed
