@@ -64,7 +64,9 @@ bool loads_take_beat_lost(void)
 void tick_hook(uint32_t now)
 {
 	uint8_t on = PORTB & LOAD_MASK;
-	if (on && now - last_beat >= HEARTBEAT_TIMEOUT_MS) {
+	/* Strictly more: last_beat was stamped up to 1 ms after the tick it reads, so this cuts
+	 * between 5.000 and 5.001 s after the host's last word, never before. */
+	if (on && now - last_beat > HEARTBEAT_TIMEOUT_MS) {
 		PORTB &= ~LOAD_MASK;
 		cut_by_rig |= on;
 		beat_lost = true;
