@@ -8,7 +8,7 @@
 
 static volatile uint8_t cut_by_rig; /* bit per channel: flag bit 1 of its frames */
 static volatile uint32_t last_beat;
-static volatile bool beat_lost;
+static volatile uint8_t beat_lost; /* channels the heartbeat watchdog cut, not yet told */
 
 /* The pins are made outputs, driven low, by the first instructions after reset (see
  * reset_cause.c); from then on only these functions and the watchdog touch PORTB0..1. */
@@ -48,13 +48,13 @@ void loads_heartbeat(void)
 	ATOMIC_BLOCK(ATOMIC_RESTORESTATE) { last_beat = tick_ms(); }
 }
 
-bool loads_take_beat_lost(void)
+uint8_t loads_take_beat_lost(void)
 {
-	bool was;
+	uint8_t was;
 	ATOMIC_BLOCK(ATOMIC_RESTORESTATE)
 	{
 		was = beat_lost;
-		beat_lost = false;
+		beat_lost = 0;
 	}
 	return was;
 }
@@ -69,6 +69,6 @@ void tick_hook(uint32_t now)
 	if (on && now - last_beat > HEARTBEAT_TIMEOUT_MS) {
 		PORTB &= ~LOAD_MASK;
 		cut_by_rig |= on;
-		beat_lost = true;
+		beat_lost |= on;
 	}
 }

@@ -11,7 +11,8 @@ uint8_t loads_flags(uint8_t ch);
 /* Marks every channel as cut by the rig (after a watchdog or brown-out reset). */
 void loads_mark_all_cut(void);
 void loads_heartbeat(void);
-/* True once after the heartbeat watchdog has cut the loads, so the main loop can say so. */
-bool loads_take_beat_lost(void);
+/* The channels (a bit each) the heartbeat watchdog has cut since the last call, so the main
+ * loop can say so. */
+uint8_t loads_take_beat_lost(void);
 
 #endif

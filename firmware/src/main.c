@@ -12,6 +12,7 @@
 #include <avr/pgmspace.h>
 #include <avr/sleep.h>
 #include <avr/wdt.h>
+#include <stdbool.h>
 #include <stdlib.h>
 #include <string.h>
 
@@ -88,12 +89,19 @@ static void answer(struct parsed p)
 	case CMD_BEAT:
 		loads_heartbeat();
 		return;
-	case CMD_LOAD:
+	case CMD_LOAD: {
+		bool changed = loads_on(p.channel) != p.on;
 		loads_set(p.channel, p.on);
 		strcpy(line, "A,LOAD");
 		field(field(line + 6, p.channel), p.on);
 		send_line(line);
+		/* A frame at once after a switch, out of the regular period: the host then knows
+		 * the moment of switching to within a few ms rather than a frame period, which over
+		 * a short discharge is worth tenths of a percent of the capacity. */
+		if (changed)
+			send_frame(p.channel, tick_ms());
 		return;
+	}
 	case CMD_BAD:
 		strcpy(line, "E,");
 		strcat_P(line, p.error_code);
@@ -151,8 +159,13 @@ int main(void)
 	for (;;) {
 		wdt_reset();
 		read_host();
-		if (loads_take_beat_lost())
+		uint8_t cut = loads_take_beat_lost();
+		if (cut) {
 			send_line_P(PSTR("E,BEAT_LOST,no heartbeat for 5 s: every load cut"));
+			for (uint8_t ch = 0; ch < CHANNELS; ch++)
+				if (cut & _BV(ch))
+					send_frame(ch, tick_ms());
+		}
 		uint32_t now = tick_ms();
 		for (uint8_t ch = 0; ch < CHANNELS; ch++) {
 			if ((int32_t)(now - due[ch]) >= 0) {

@@ -17,6 +17,8 @@ export const RIG_PROFILE = root('config/rigs/cv328-reference.yaml');
 
 export interface Segment {
   from_ms: number;
+  /** The harness's real (monotonic) clock at the segment's start, ms from boot. */
+  from_real_ms: number;
   to_ms: number;
   load: boolean;
   mean_A: number;

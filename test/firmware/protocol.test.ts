@@ -84,17 +84,22 @@ describe('reference firmware on an emulated ATmega328P: protocol v1', () => {
     expect(heard.some((h) => h.line.startsWith('E,RST_'))).toBe(false);
   });
 
-  it('sends ten frames a second on each channel, 100 ms apart on its own clock', () => {
+  it('sends ten frames a second on each channel, 100 ms apart on its own clock, and one more at once after a switch', () => {
     for (const ch of [0, 1]) {
       const frames = heard
         .map((h) => decodeRigLine(h.line, 12))
         .flatMap((d) => (d.ok && d.message.kind === 'data' ? [d.message] : []))
         .filter((f) => f.channel === ch);
       expect(frames.length).toBeGreaterThan(50);
-      for (let k = 1; k < frames.length; k++) {
+      for (let k = 1; k < frames.length; k++)
         expect(frames[k]!.seq).toBe((frames[k - 1]!.seq + 1) & 0xffff);
-        expect(frames[k]!.tickMs - frames[k - 1]!.tickMs).toBe(100);
-      }
+      const phase = frames[0]!.tickMs % 100;
+      const regular = frames.filter((f) => f.tickMs % 100 === phase);
+      for (let k = 1; k < regular.length; k++)
+        expect(regular[k]!.tickMs - regular[k - 1]!.tickMs).toBe(100);
+      // Channel 1 switched twice (on by the host, off by the heartbeat watchdog).
+      const extra = frames.filter((f) => f.tickMs % 100 !== phase);
+      expect(extra.map((f) => f.flags)).toEqual(ch === 1 ? [0x01, 0x02] : []);
     }
   });
 

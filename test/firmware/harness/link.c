@@ -2,6 +2,7 @@
 #include "link.h"
 #include <errno.h>
 #include <fcntl.h>
+#include <poll.h>
 #include <simavr/avr_uart.h>
 #include <stdio.h>
 #include <stdlib.h>
@@ -9,10 +10,10 @@
 #include <termios.h>
 #include <unistd.h>
 
-/* A byte the chip sends waits here until the pseudo-terminal takes it. When nobody reads the
- * terminal, the kernel's buffer fills and so does this one; past that bytes are dropped and
- * counted, as a USB serial adapter drops what its host does not collect. */
-#define OUT_SIZE 16384
+/* A byte the chip sends waits here until the pseudo-terminal takes it; past this (about 1.5 s of
+ * frames) bytes are dropped and counted. While no host has the port open, everything is dropped,
+ * as a USB serial adapter does: otherwise a host would open the port onto seconds of old frames. */
+#define OUT_SIZE 1024
 static uint8_t out_buf[OUT_SIZE];
 static unsigned out_head, out_len;
 
@@ -21,7 +22,7 @@ static unsigned out_head, out_len;
 static uint8_t in_buf[256];
 static unsigned in_pos, in_len;
 
-static int master = -1, slave = -1;
+static int master = -1;
 static char link_path_copy[512];
 static bool uart_ready; /* the UART's receive FIFO has room (its XON/XOFF IRQs) */
 static avr_irq_t *uart_input;
@@ -61,14 +62,16 @@ int link_open(avr_t *avr, const char *link_path)
 	if (master < 0 || grantpt(master) || unlockpt(master))
 		return -1;
 	const char *dev = ptsname(master);
-	/* The harness holds the terminal's other end open itself: without it, the master reports a
-	 * hang-up whenever no host has the port open (between two daemons, say). */
-	slave = open(dev, O_RDWR | O_NOCTTY | O_NONBLOCK);
+	/* Raw from the start, for a host that does not set the mode itself. The other end is then
+	 * closed again: the master reports a hang-up while no host holds it, which is how the
+	 * harness knows whether anyone listens. */
+	int slave = open(dev, O_RDWR | O_NOCTTY | O_NONBLOCK);
 	struct termios t;
 	if (slave < 0 || tcgetattr(slave, &t))
 		return -1;
 	cfmakeraw(&t);
 	tcsetattr(slave, TCSANOW, &t);
+	close(slave);
 	snprintf(link_path_copy, sizeof link_path_copy, "%s", link_path);
 	unlink(link_path);
 	if (symlink(dev, link_path))
@@ -87,8 +90,20 @@ int link_open(avr_t *avr, const char *link_path)
 	return 0;
 }
 
+static bool host_present(void)
+{
+	struct pollfd p = {master, POLLIN, 0};
+	return poll(&p, 1, 0) >= 0 && !(p.revents & POLLHUP);
+}
+
 bool link_poll(double now_ms)
 {
+	if (!host_present()) {
+		stats.bytes_dropped += out_len;
+		out_len = 0;
+		in_pos = in_len = 0;
+		return false;
+	}
 	while (out_len) {
 		unsigned run = out_head + out_len > OUT_SIZE ? OUT_SIZE - out_head : out_len;
 		ssize_t n = write(master, out_buf + out_head, run);
@@ -129,8 +144,6 @@ void link_close(void)
 {
 	if (link_path_copy[0])
 		unlink(link_path_copy);
-	if (slave >= 0)
-		close(slave);
 	if (master >= 0)
 		close(master);
 }

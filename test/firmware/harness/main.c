@@ -126,7 +126,6 @@ static void note_reset(void)
 	const char *cause = f & 0x08 ? "watchdog" : f & 0x04 ? "brown-out" : f & 0x02 ? "external" : "power-on";
 	if (nresets < RESETS_MAX)
 		resets[nresets++] = (typeof(resets[0])){emulated_ms(), cause};
-	hung_at_ms = -1;
 	link_chip_reset();
 }
 
@@ -156,8 +155,8 @@ static void write_channel(FILE *f, const struct channel *c)
 		const struct segment *s = &c->seg[i];
 		double span = s->to_ms - s->from_ms;
 		double d = span > 0 ? span : 1;
-		fprintf(f, "%s{\"from_ms\":%.3f,\"to_ms\":%.3f,\"load\":%s,\"mean_A\":%.7f,\"mean_V\":%.7f,\"mean_C\":%.4f}",
-			i ? "," : "", s->from_ms, s->to_ms, s->load ? "true" : "false", s->sum_a / d, s->sum_v / d,
+		fprintf(f, "%s{\"from_ms\":%.3f,\"from_real_ms\":%.3f,\"to_ms\":%.3f,\"load\":%s,\"mean_A\":%.7f,\"mean_V\":%.7f,\"mean_C\":%.4f}",
+			i ? "," : "", s->from_ms, s->from_real_ms, s->to_ms, s->load ? "true" : "false", s->sum_a / d, s->sum_v / d,
 			s->sum_c / d);
 	}
 	fprintf(f, "]}");
@@ -369,7 +368,8 @@ int main(int argc, char **argv)
 			double t = emulated_ms();
 			advance_world(t);
 			for (int k = 0; k < 2; k++)
-				channel_switch(&ch[k], t, now_pins & (1 << k));
+				if (channel_switch(&ch[k], t, now_pins & (1 << k)))
+					ch[k].seg[ch[k].nseg - 1].from_real_ms = real_ms();
 			pins = now_pins;
 		}
 		if (avr->cycle < next_ms)

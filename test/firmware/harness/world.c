@@ -78,13 +78,14 @@ void channel_step(struct channel *c, double now_ms, double dt_ms)
 	solve(c);
 }
 
-void channel_switch(struct channel *c, double now_ms, bool load)
+bool channel_switch(struct channel *c, double now_ms, bool load)
 {
 	if (load == c->load)
-		return;
+		return false;
 	c->load = load;
 	solve(c);
 	open_segment(c, now_ms);
+	return true;
 }
 
 double channel_pin_v(const struct channel *c, int which)

@@ -12,6 +12,7 @@
  * give a calibration the true current and voltage of the window it averaged. */
 struct segment {
 	double from_ms, to_ms;
+	double from_real_ms; /* the host's time at its start, by the harness's clock */
 	bool load;
 	double sum_a, sum_v, sum_c; /* time integrals over the stretch, in unit x ms */
 };
@@ -57,7 +58,8 @@ struct channel {
 void channel_init(struct channel *c, const struct cell_params *p, const struct board_errors *b);
 /* Advances the physics by dt_ms of emulated time (the load steady meanwhile). */
 void channel_step(struct channel *c, double now_ms, double dt_ms);
-void channel_switch(struct channel *c, double now_ms, bool load);
+/* Returns true when the load really changed (a new segment began). */
+bool channel_switch(struct channel *c, double now_ms, bool load);
 /* The voltage at ADC input `which` (0 voltage, 1 current, 2 thermistor), in volts, noise-free. */
 double channel_pin_v(const struct channel *c, int which);
 
