@@ -29,9 +29,12 @@ static char *field(char *p, uint32_t value)
 	return p + strlen(p);
 }
 
+#define TEXT(x) #x
+#define NUMBER(x) TEXT(x)
+
 static void send_hello(void)
 {
-	send_line_P(PSTR("H," RIG_ID "," FIRMWARE_VERSION ",12,2"));
+	send_line_P(PSTR("H," RIG_ID "," FIRMWARE_VERSION "," NUMBER(ADC_BITS) "," NUMBER(CHANNELS)));
 }
 
 static void send_frame(uint8_t ch, uint32_t tick)

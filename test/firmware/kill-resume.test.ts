@@ -71,8 +71,10 @@ describe('reference firmware on an emulated chip: daemon SIGKILLed, the firmware
   it('the load pin fell 5 s after the host’s last heartbeat reached the chip (emulated time)', () => {
     const cutAt = afterKill.channels[0].segments[2]!.from_ms;
     const lastHeard = afterKill.link.last_host_byte_ms;
+    // A line that arrives while the firmware takes a frame's conversions (5.3 ms) waits for
+    // them: the heartbeat is stamped up to that much after its bytes came in.
     expect(cutAt - lastHeard).toBeGreaterThan(5000);
-    expect(cutAt - lastHeard).toBeLessThan(5003);
+    expect(cutAt - lastHeard).toBeLessThan(5010);
   });
 
   it('the second daemon resumed the run: a new precheck, the load on again, off at the cutoff', () => {
