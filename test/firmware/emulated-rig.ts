@@ -45,7 +45,9 @@ export interface HarnessTruth {
   pace: { speed: number; max_lag_ms: number; mean_lag_ms: number };
   link: { bytes_in: number; bytes_out: number; bytes_dropped: number; last_host_byte_ms: number };
   hung_at_ms: number;
-  resets: { at_ms: number; cause: string }[];
+  /** Cycles from power-on until both load pins were driven outputs. */
+  boot_pins_driven_after_cycles: number;
+  resets: { at_ms: number; cause: string; pins_driven_after_cycles: number }[];
   channels: [ChannelTruth, ChannelTruth];
 }
 

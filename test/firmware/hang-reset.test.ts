@@ -70,6 +70,7 @@ describe('reference firmware on an emulated chip: a hung firmware is reset by th
     expect(reset.at_ms - truth.hung_at_ms).toBeLessThan(530);
     const segs = truth.channels[0].segments;
     expect(segs.map((s) => s.load)).toEqual([false, true, false, true, false]);
+    expect(reset.pins_driven_after_cycles).toBeLessThanOrEqual(11);
     // The hang itself leaves the pin as it was: only the reset lets go of it.
     expect(Math.abs(segs[2]!.from_ms - reset.at_ms)).toBeLessThan(0.01);
   });

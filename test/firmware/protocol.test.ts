@@ -76,6 +76,11 @@ describe('reference firmware on an emulated ATmega328P: protocol v1', () => {
     }
   });
 
+  it('drives both load pins low within the first instructions after power-on (3-cycle jump, 2 cycles per cbi/sbi: ATmega328P instruction set, from memory)', () => {
+    expect(truth.boot_pins_driven_after_cycles).toBeGreaterThan(0);
+    expect(truth.boot_pins_driven_after_cycles).toBeLessThanOrEqual(11);
+  });
+
   it('says hello at boot and when asked: 12-bit counts, two channels', () => {
     const hellos = heard.filter((h) => h.line.startsWith('H,'));
     expect(hellos.length).toBeGreaterThanOrEqual(2);

@@ -24,6 +24,7 @@
 
 #define F_CPU 16000000u
 #define PORTB_ADDR 0x25 /* data-space address of PORTB */
+#define DDRB_ADDR 0x24
 #define MCUSR_ADDR 0x54
 #define LOAD_PINS 0x03	/* PB0: channel 0, PB1: channel 1 */
 
@@ -49,8 +50,12 @@ static struct {
 static struct {
 	double at_ms;
 	const char *cause;
+	long driven_after; /* cycles until both load pins were driven outputs, -1 while not yet */
 } resets[RESETS_MAX];
 static unsigned nresets;
+/* Cycles from power-on until the firmware drove both load pins, -1 while not yet. */
+static long boot_driven_after = -1;
+static avr_cycle_count_t last_reset_cycle;
 static bool reset_pending;
 static double hung_at_ms = -1;
 static void (*core_reset)(avr_t *);
@@ -125,7 +130,8 @@ static void note_reset(void)
 	uint8_t f = avr->data[MCUSR_ADDR];
 	const char *cause = f & 0x08 ? "watchdog" : f & 0x04 ? "brown-out" : f & 0x02 ? "external" : "power-on";
 	if (nresets < RESETS_MAX)
-		resets[nresets++] = (typeof(resets[0])){emulated_ms(), cause};
+		resets[nresets++] = (typeof(resets[0])){emulated_ms(), cause, -1};
+	last_reset_cycle = avr->cycle;
 	link_chip_reset();
 }
 
@@ -179,9 +185,11 @@ static void write_truth(void)
 	fprintf(f, "\"link\":{\"bytes_in\":%llu,\"bytes_out\":%llu,\"bytes_dropped\":%llu,\"last_host_byte_ms\":%.3f},",
 		(unsigned long long)l->bytes_in, (unsigned long long)l->bytes_out,
 		(unsigned long long)l->bytes_dropped, l->last_host_byte_ms);
-	fprintf(f, "\"hung_at_ms\":%.3f,\"resets\":[", hung_at_ms);
+	fprintf(f, "\"hung_at_ms\":%.3f,\"boot_pins_driven_after_cycles\":%ld,\"resets\":[", hung_at_ms,
+		boot_driven_after);
 	for (unsigned i = 0; i < nresets; i++)
-		fprintf(f, "%s{\"at_ms\":%.3f,\"cause\":\"%s\"}", i ? "," : "", resets[i].at_ms, resets[i].cause);
+		fprintf(f, "%s{\"at_ms\":%.3f,\"cause\":\"%s\",\"pins_driven_after_cycles\":%ld}", i ? "," : "",
+			resets[i].at_ms, resets[i].cause, resets[i].driven_after);
 	fprintf(f, "],\"channels\":[");
 	write_channel(f, &ch[0]);
 	fputc(',', f);
@@ -361,6 +369,10 @@ int main(int argc, char **argv)
 			reset_pending = false;
 			note_reset();
 		}
+		/* How soon after power-on or a reset the firmware drives both load pins (low). */
+		long *driven = nresets ? &resets[nresets - 1].driven_after : &boot_driven_after;
+		if (*driven < 0 && (avr->data[DDRB_ADDR] & LOAD_PINS) == LOAD_PINS)
+			*driven = (long)(avr->cycle - last_reset_cycle);
 		/* A load is on while its PORTB bit is set: driven high as an output, or, as an input,
 		 * through the internal pull-up, which beats the gate's pull-down. */
 		uint8_t now_pins = avr->data[PORTB_ADDR] & LOAD_PINS;
