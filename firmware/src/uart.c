@@ -7,7 +7,7 @@
 
 /* Powers of two, so the indices wrap with a mask. The send buffer holds several frames: the
  * main loop queues a frame and goes back to sampling while the interrupt sends it. */
-#define RX_SIZE 64
+#define RX_SIZE 128
 #define TX_SIZE 256
 
 static volatile uint8_t rx_buf[RX_SIZE];
