@@ -237,10 +237,10 @@ export function groupSpread(groups: readonly number[][], values: readonly number
 }
 
 /**
- * A lower bound of the spread any balanced partition can reach: the group holding the largest
- * number holds at least it and the P − 1 smallest others, and some group is at or below the mean;
- * the group holding the smallest number holds at most it and the P − 1 largest others, and some
- * group is at or above the mean.
+ * A lower bound of the spread any balanced partition can reach, the largest of three: the group
+ * holding the largest number holds at least it and the P − 1 smallest others, and some group is
+ * at or below the mean; the group holding the smallest number holds at most it and the P − 1
+ * largest others, and some group is at or above the mean; and the quantum bound below.
  */
 export function spreadLowerBound(values: readonly number[], groups: number): number {
   const n = values.length;
@@ -255,5 +255,31 @@ export function spreadLowerBound(values: readonly number[], groups: number): num
   for (let i = 0; i < per - 1; i++) largest += sorted[n - 1 - i]!;
   const withMax = sorted[n - 1]! + smallest;
   const withMin = sorted[0]! + largest;
-  return Math.max(0, withMax - mean, mean - withMin);
+  return Math.max(0, withMax - mean, mean - withMin, quantumBound(sorted, groups));
+}
+
+/** Whole numbers of this unit are looked for: 1 µAh when the values are in Ah. */
+const QUANTUM_SCALE = 1e6;
+
+function gcd(a: number, b: number): number {
+  while (b !== 0) [a, b] = [b, a % b];
+  return a;
+}
+
+/**
+ * When every number is a whole multiple of a quantum q (capacities rounded to 1 mAh, say), every
+ * group sum is too; if the total does not split into S equal multiples of q, the sums cannot all
+ * be equal and differ by at least q.
+ */
+function quantumBound(values: readonly number[], groups: number): number {
+  let g = 0;
+  let total = 0;
+  for (const v of values) {
+    const k = Math.round(v * QUANTUM_SCALE);
+    if (Math.abs(k - v * QUANTUM_SCALE) > 1e-6 * Math.max(1, Math.abs(k))) return 0;
+    g = gcd(g, Math.abs(k));
+    total += k;
+  }
+  if (g === 0 || !Number.isSafeInteger(total)) return 0;
+  return (total / g) % groups === 0 ? 0 : g / QUANTUM_SCALE;
 }

@@ -16,12 +16,20 @@ export function registryError(e: unknown, path: string, doing: string): Cellvigi
       path,
       `Wait for the other cellvigil command to finish and try again. ${REBUILD}`,
     );
-  if (code === 'SQLITE_FULL' || code === 'ENOSPC' || code === 'SQLITE_IOERR_WRITE')
+  if (code === 'SQLITE_FULL' || code === 'ENOSPC')
     return makeError(
       ErrorCodes.REGISTRY_WRITE,
       `the disk is full while ${doing} (${text})`,
       path,
       `Free some space on the registry's disk and try again. ${REBUILD}`,
+    );
+  // A full disk can also show as a failed write of the WAL or its shared-memory index.
+  if (code.startsWith('SQLITE_IOERR'))
+    return makeError(
+      ErrorCodes.REGISTRY_WRITE,
+      `a disk write failed while ${doing} (${code}): the disk is full or failing`,
+      path,
+      `Free some space on the registry's disk (or check the disk) and try again. ${REBUILD}`,
     );
   if (
     code === 'SQLITE_CANTOPEN' ||

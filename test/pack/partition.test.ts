@@ -109,3 +109,14 @@ describe('balanced partitioning', () => {
     expect(groupSpread(both, g)).toBeLessThan(groupSpread(plain, g));
   });
 });
+
+describe('the lower bound of the spread', () => {
+  it('counts the quantum: whole mAh whose total does not split evenly cannot give equal groups', () => {
+    // 1 + 2 + 3 + 5 = 11 mAh into 2 groups of 2: 11 is odd, so the best is 5 against 6 (spread 1).
+    const v = [0.001, 0.002, 0.003, 0.005];
+    expect(spreadLowerBound(v, 2)).toBeCloseTo(0.001, 12);
+    expect(exhaustiveBestSpread(v, 2)).toBeCloseTo(0.001, 12);
+    // An even total allows a perfect split: 1 + 4 = 2 + 3.
+    expect(spreadLowerBound([0.001, 0.002, 0.003, 0.004], 2)).toBe(0);
+  });
+});
