@@ -64,7 +64,7 @@ export function listGraded(registryPath: string, q: ListRequest, rules: GradeRul
       q.descending ?? false,
       q.grades === undefined ? (q.limit ?? -1) : -1,
     );
-    const runs = r.runsOfCells(rows.map((c) => c.cell_id));
+    const runs = r.gradeRunsOfCells(rows.map((c) => c.cell_id));
     const graded = rows.map((c) => ({
       ...c,
       grade: gradeCell(c, runs.get(c.cell_id) ?? [], rules),

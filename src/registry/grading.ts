@@ -33,6 +33,10 @@ type TrustFields = Pick<
   'end_reason' | 'calibration_id' | 'capacity_Ah' | 'capacity_u_Ah'
 >;
 
+/** What grading reads of a run (lists fetch only these columns). */
+export type GradeRun = TrustFields &
+  Pick<RunRecord, 'cell_id' | 'started_ms' | 'dc_resistance_ohm'>;
+
 /** The reasons a run cannot be trusted for grading and fade; empty when it can. */
 export function runDoubts(run: TrustFields, trust: TrustRules): RunDoubt[] {
   const doubts: RunDoubt[] = [];
@@ -49,9 +53,9 @@ export function runDoubts(run: TrustFields, trust: TrustRules): RunDoubt[] {
   return doubts;
 }
 
-export type CellGrade =
-  | { status: 'graded'; grade: string; share: number; run: RunRecord }
-  | { status: 'recycle'; share: number; run: RunRecord; why: string }
+export type CellGrade<R extends GradeRun = GradeRun> =
+  | { status: 'graded'; grade: string; share: number; run: R }
+  | { status: 'recycle'; share: number; run: R; why: string }
   | { status: 'ungraded'; reason: string };
 
 export interface GradedCellInput {
@@ -71,11 +75,11 @@ function meets(rule: GradeRule, share: number, resistance: number | null): strin
 }
 
 /** Grades a cell from its runs (any order). */
-export function gradeCell(
+export function gradeCell<R extends GradeRun>(
   cell: GradedCellInput,
-  runs: readonly RunRecord[],
+  runs: readonly R[],
   rules: GradeRules,
-): CellGrade {
+): CellGrade<R> {
   const ruleSet = rules.chemistries[cell.chemistry];
   if (ruleSet === undefined)
     return { status: 'ungraded', reason: `no grade rules for chemistry ${cell.chemistry}` };

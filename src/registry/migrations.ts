@@ -15,8 +15,10 @@ export const MIGRATIONS: readonly string[] = [
     registered_at TEXT NOT NULL
   ) WITHOUT ROWID;
 
+  -- Clustered by cell and time, so that a cell's runs sit together on disk: a history or a
+  -- graded list reads a page or two per cell.
   CREATE TABLE runs (
-    run_key           TEXT PRIMARY KEY,
+    run_key           TEXT NOT NULL UNIQUE,
     cell_id           TEXT NOT NULL,
     folder            TEXT NOT NULL,
     started_ms        INTEGER NOT NULL,
@@ -36,9 +38,9 @@ export const MIGRATIONS: readonly string[] = [
     temperature_C     REAL,
     duration_s        REAL NOT NULL,
     calibration_id    TEXT NOT NULL,
-    filed_at          TEXT NOT NULL
-  );
-  CREATE INDEX runs_by_cell ON runs (cell_id, started_ms);
+    filed_at          TEXT NOT NULL,
+    PRIMARY KEY (cell_id, started_ms, run_key)
+  ) WITHOUT ROWID;
 
   -- The latest run that reached the cutoff, per cell id (registered or not): what lists show.
   CREATE TABLE cell_summary (
