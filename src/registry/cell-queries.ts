@@ -6,7 +6,13 @@
 import { stringify } from 'csv-stringify/sync';
 import { ErrorCodes, makeError } from '../core/errors.js';
 import { planPack, type PackCell, type PackPlan } from '../pack/pack-plan.js';
-import { gradeCell, gradeLabel, type CellGrade, type GradeRules } from './grading.js';
+import {
+  gradeCell,
+  gradeFromSummary,
+  gradeLabel,
+  type CellGrade,
+  type GradeRules,
+} from './grading.js';
 import { cellHistory, type CellHistory } from './history.js';
 import { Registry, type CellFilter, type CellListRow, type CellSortKey } from './registry-db.js';
 
@@ -64,10 +70,17 @@ export function listGraded(registryPath: string, q: ListRequest, rules: GradeRul
       q.descending ?? false,
       q.grades === undefined ? (q.limit ?? -1) : -1,
     );
-    const runs = r.gradeRunsOfCells(rows.map((c) => c.cell_id));
+    const sums = r.trustSummaries(
+      rows.map((c) => c.cell_id),
+      rules.trust,
+    );
     const graded = rows.map((c) => ({
       ...c,
-      grade: gradeCell(c, runs.get(c.cell_id) ?? [], rules),
+      grade: gradeFromSummary(
+        c,
+        sums.get(c.cell_id) ?? { runs: 0, trusted: 0, latest: null, doubts: [] },
+        rules,
+      ),
     }));
     const kept =
       q.grades === undefined

@@ -74,25 +74,52 @@ function meets(rule: GradeRule, share: number, resistance: number | null): strin
   return null;
 }
 
-/** Grades a cell from its runs (any order). */
-export function gradeCell<R extends GradeRun>(
-  cell: GradedCellInput,
+/** What grading needs to know of a cell's runs; lists get it from the database in one row. */
+export interface TrustSummary<R extends GradeRun = GradeRun> {
+  runs: number;
+  trusted: number;
+  /** The latest run that counts, or null. */
+  latest: R | null;
+  /** Every doubt found among the runs, in the order of RUN_DOUBTS. */
+  doubts: RunDoubt[];
+}
+
+export const RUN_DOUBTS: readonly RunDoubt[] = ['interrupted', 'uncalibrated', 'uncertain'];
+
+/** The summary of a cell's runs (any order) under the trust rules. */
+export function trustSummary<R extends GradeRun>(
   runs: readonly R[],
+  trust: TrustRules,
+): TrustSummary<R> {
+  let trusted = 0;
+  let latest: R | null = null;
+  const found = new Set<RunDoubt>();
+  for (const r of runs) {
+    const d = runDoubts(r, trust);
+    for (const x of d) found.add(x);
+    if (d.length > 0) continue;
+    trusted++;
+    if (latest === null || r.started_ms > latest.started_ms) latest = r;
+  }
+  return { runs: runs.length, trusted, latest, doubts: RUN_DOUBTS.filter((d) => found.has(d)) };
+}
+
+/** Grades a cell from the summary of its runs. */
+export function gradeFromSummary<R extends GradeRun>(
+  cell: GradedCellInput,
+  s: TrustSummary<R>,
   rules: GradeRules,
 ): CellGrade<R> {
   const ruleSet = rules.chemistries[cell.chemistry];
   if (ruleSet === undefined)
     return { status: 'ungraded', reason: `no grade rules for chemistry ${cell.chemistry}` };
-  if (runs.length === 0) return { status: 'ungraded', reason: 'no runs' };
-  const trusted = runs.filter((r) => runDoubts(r, rules.trust).length === 0);
-  if (trusted.length < rules.trust.min_runs) {
-    const doubts = new Set(runs.flatMap((r) => runDoubts(r, rules.trust)));
+  if (s.runs === 0) return { status: 'ungraded', reason: 'no runs' };
+  if (s.trusted < rules.trust.min_runs || s.latest === null)
     return {
       status: 'ungraded',
-      reason: `${trusted.length} trustworthy run(s) of ${rules.trust.min_runs} needed (${[...doubts].join(', ')})`,
+      reason: `${s.trusted} trustworthy run(s) of ${rules.trust.min_runs} needed (${s.doubts.join(', ')})`,
     };
-  }
-  const latest = trusted.reduce((a, b) => (b.started_ms > a.started_ms ? b : a));
+  const latest = s.latest;
   const share = latest.capacity_Ah / cell.rated_Ah;
   let why = 'no grade';
   for (const rule of ruleSet.grades) {
@@ -101,6 +128,15 @@ export function gradeCell<R extends GradeRun>(
     why = miss;
   }
   return { status: 'recycle', share, run: latest, why };
+}
+
+/** Grades a cell from its runs (any order). */
+export function gradeCell<R extends GradeRun>(
+  cell: GradedCellInput,
+  runs: readonly R[],
+  rules: GradeRules,
+): CellGrade<R> {
+  return gradeFromSummary(cell, trustSummary(runs, rules.trust), rules);
 }
 
 /** A short word for lists: the grade, "recycle", or "ungraded". */

@@ -62,7 +62,7 @@ describe('grading by the shipped rules', () => {
     );
     expect(doubtful).toEqual({
       status: 'ungraded',
-      reason: '0 trustworthy run(s) of 1 needed (uncalibrated, interrupted, uncertain)',
+      reason: '0 trustworthy run(s) of 1 needed (interrupted, uncalibrated, uncertain)',
     });
     expect(gradeCell({ chemistry: 'alkaline', rated_Ah: 2.5 }, [run({})], rules)).toMatchObject({
       status: 'ungraded',

@@ -3,11 +3,13 @@ import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import Database from 'better-sqlite3';
 import { afterEach, beforeEach, describe, expect, it } from 'vitest';
-import { fileRunResult } from '../../src/registry/file-run.js';
+import { fileRecord, fileRunResult } from '../../src/registry/file-run.js';
+import { trustSummary, type TrustRules } from '../../src/registry/grading.js';
+import { recordFromResult, type RunRecord } from '../../src/registry/run-record.js';
 import { rebuildRegistry } from '../../src/registry/rebuild.js';
 import { Registry } from '../../src/registry/registry-db.js';
 import { defaultRegistryPath } from '../../src/registry/registry-path.js';
-import { writeFixtureRun } from './run-fixtures.js';
+import { fixtureResult, writeFixtureRun, type FixtureRun } from './run-fixtures.js';
 
 let dir: string;
 let runs: string;
@@ -127,6 +129,47 @@ describe('registry database', () => {
     expect(report.unregistered).toEqual(['A']);
     const reg = Registry.open(dbPath);
     expect(reg.runsOf('A').map((r) => r.capacity_Ah)).toEqual([2.5, 2.4]);
+    reg.close();
+  });
+
+  it("sums up a cell's runs inside SQLite exactly as the grading code does", async () => {
+    const mk = (r: FixtureRun, u?: number | null): RunRecord => {
+      const rec = recordFromResult(fixtureResult(r) as never, 'f', null);
+      if (typeof rec === 'string') throw new Error(rec);
+      return u === undefined ? rec : { ...rec, capacity_u_Ah: u };
+    };
+    const at = (d: number): string => new Date(Date.UTC(2026, 0, 1 + d)).toISOString();
+    const runs: RunRecord[] = [
+      mk({ cell_id: 'S1', started: at(0), capacity_Ah: 2.4 }),
+      mk({ cell_id: 'S1', started: at(1), capacity_Ah: 2.3, calibration_id: 'none' }),
+      mk({ cell_id: 'S1', started: at(2), capacity_Ah: 2.2, end_reason: 'stopped' }),
+      mk({ cell_id: 'S2', started: at(0), capacity_Ah: 2.0 }, null),
+      mk({ cell_id: 'S2', started: at(1), capacity_Ah: 0 }),
+      // 2u/C exactly at the limit counts; just above does not.
+      mk({ cell_id: 'S3', started: at(0), capacity_Ah: 2, u_Ah: 0.05 }),
+      mk({ cell_id: 'S3', started: at(1), capacity_Ah: 2, u_Ah: 0.0501 }),
+      mk({ cell_id: 'S3', started: at(2), capacity_Ah: 1.9, u_Ah: 0.001 }),
+    ];
+    for (const r of runs) expect((await fileRecord(dbPath, r)).status).toBe('filed');
+    const reg = Registry.open(dbPath);
+    for (const trust of [
+      { min_runs: 1, max_relative_uncertainty: 0.05, require_calibration: true },
+      { min_runs: 2, max_relative_uncertainty: 0.2, require_calibration: false },
+    ] satisfies TrustRules[]) {
+      const sql = reg.trustSummaries(['S1', 'S2', 'S3', 'none'], trust);
+      for (const id of ['S1', 'S2', 'S3']) {
+        const ts = trustSummary(
+          runs.filter((r) => r.cell_id === id),
+          trust,
+        );
+        const got = sql.get(id)!;
+        expect({ ...got, latest: got.latest?.started_ms ?? null }).toEqual({
+          ...ts,
+          latest: ts.latest?.started_ms ?? null,
+        });
+      }
+      expect(sql.has('none')).toBe(false);
+    }
     reg.close();
   });
 });
