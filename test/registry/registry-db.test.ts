@@ -3,7 +3,7 @@ import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import Database from 'better-sqlite3';
 import { afterEach, beforeEach, describe, expect, it } from 'vitest';
-import { fileRecord, fileRunResult } from '../../src/registry/file-run.js';
+import { describeFiling, fileRecord, fileRunResult } from '../../src/registry/file-run.js';
 import { trustSummary, type TrustRules } from '../../src/registry/grading.js';
 import { recordFromResult, type RunRecord } from '../../src/registry/run-record.js';
 import { rebuildRegistry } from '../../src/registry/rebuild.js';
@@ -53,7 +53,13 @@ describe('registry database', () => {
       capacity_Ah: 2.4,
     });
     expect((await fileRunResult(dbPath, folder)).status).toBe('filed');
-    expect((await fileRunResult(dbPath, folder)).status).toBe('filed');
+    const again = await fileRunResult(dbPath, folder);
+    expect(describeFiling(again, dbPath)).toBe(`filed in the registry ${dbPath} under cell C-001`);
+    const unfinished = join(runs, 'still-going');
+    mkdirSync(unfinished);
+    expect(describeFiling(await fileRunResult(dbPath, unfinished), dbPath)).toBe(
+      `not filed in the registry: ${unfinished} has no result.json yet`,
+    );
     const reg = Registry.open(dbPath);
     expect(reg.runsOf('C-001')).toHaveLength(1);
     expect(reg.counts().runs).toBe(1);
