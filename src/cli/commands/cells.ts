@@ -134,7 +134,7 @@ const rebuildCommand: CommandModule<object, RebuildArgs> = {
 };
 
 export const cellsCommand: CommandModule = {
-  command: 'cells <action>',
+  command: 'cells',
   describe: 'The cell registry: register cells, list, show a history, export, rebuild',
   builder: (y) =>
     y
