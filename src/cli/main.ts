@@ -4,7 +4,9 @@ import { hideBin } from 'yargs/helpers';
 import { CellvigilError } from '../core/errors.js';
 import { assessCommand } from './commands/assess.js';
 import { calibrateCommand } from './commands/calibrate.js';
+import { cellsCommand } from './commands/cells.js';
 import { chemistriesCommand } from './commands/chemistries.js';
+import { packCommand } from './commands/pack.js';
 import { reportCommand } from './commands/report.js';
 import { runCommand } from './commands/run.js';
 import { simCommand } from './commands/sim.js';
@@ -19,6 +21,8 @@ const commands = [
   reportCommand,
   calibrateCommand,
   assessCommand,
+  cellsCommand,
+  packCommand,
 ];
 
 async function main(): Promise<void> {

@@ -24,6 +24,13 @@ export const ErrorCodes = {
   WATCH_REFUSED: 'CV_WATCH_REFUSED',
   WATCH_UNREACHABLE: 'CV_WATCH_UNREACHABLE',
   RUN_DATA: 'CV_RUN_DATA',
+  REGISTRY_OPEN: 'CV_REGISTRY_OPEN',
+  REGISTRY_LOCKED: 'CV_REGISTRY_LOCKED',
+  REGISTRY_WRITE: 'CV_REGISTRY_WRITE',
+  REGISTRY_CSV: 'CV_REGISTRY_CSV',
+  REGISTRY_DUPLICATE: 'CV_REGISTRY_DUPLICATE',
+  REGISTRY_UNKNOWN_CELL: 'CV_REGISTRY_UNKNOWN_CELL',
+  PACK_TOO_FEW_CELLS: 'CV_PACK_TOO_FEW_CELLS',
 } as const;
 
 export type ErrorCode = (typeof ErrorCodes)[keyof typeof ErrorCodes];
@@ -58,6 +65,10 @@ export function makeError(
     code === ErrorCodes.CALIBRATION_INVALID ||
     code === ErrorCodes.TOKEN_FILE ||
     code === ErrorCodes.LIVE_UNPROTECTED ||
-    code === ErrorCodes.WATCH_REFUSED;
+    code === ErrorCodes.WATCH_REFUSED ||
+    code === ErrorCodes.REGISTRY_CSV ||
+    code === ErrorCodes.REGISTRY_DUPLICATE ||
+    code === ErrorCodes.REGISTRY_UNKNOWN_CELL ||
+    code === ErrorCodes.PACK_TOO_FEW_CELLS;
   return new CellvigilError(code, `${what} (${where}). ${fix}`, usage ? 2 : 1);
 }

@@ -10,6 +10,12 @@ export interface PlotSeries {
   points: ReadonlyArray<readonly [number, number]>;
   /** Shaded band: x, low, high. */
   band?: ReadonlyArray<readonly [number, number, number]>;
+  /** Vertical error bars: x, low, high. */
+  errorBars?: ReadonlyArray<readonly [number, number, number]>;
+  /** A dot at every point (for sparse series, such as one figure per run). */
+  markers?: boolean;
+  /** Join the points by a line. @default true */
+  line?: boolean;
 }
 
 export interface PlotAxis {
@@ -86,7 +92,11 @@ export function linePlot(p: PlotSpec): string {
   const m = { l: 64, r: 16, t: 34, b: 46 };
   const xs = p.series.flatMap((s) => s.points.map((q) => q[0]));
   const ys = p.series
-    .flatMap((s) => [...s.points.map((q) => q[1]), ...(s.band ?? []).flatMap((b) => [b[1], b[2]])])
+    .flatMap((s) => [
+      ...s.points.map((q) => q[1]),
+      ...(s.band ?? []).flatMap((b) => [b[1], b[2]]),
+      ...(s.errorBars ?? []).flatMap((b) => [b[1], b[2]]),
+    ])
     .concat((p.rules ?? []).map((r) => r.y));
   const [x0, x1] = extent(xs, p.x.min, p.x.max, p.x.minSpan);
   const [y0, y1] = extent(ys, p.y.min, p.y.max, p.y.minSpan);
@@ -148,10 +158,20 @@ export function linePlot(p: PlotSpec): string {
         `<polygon points="${[...upper, ...lower].join(' ')}" fill="${s.color}" fill-opacity="0.16" stroke="none"/>`,
       );
     }
-    if (s.points.length > 0) {
+    if (s.points.length > 0 && s.line !== false) {
       out.push(
         `<polyline data-series="${esc(s.name)}" data-points="${s.points.length}" points="${s.points.map((q) => `${f(px(q[0]))},${f(py(q[1]))}`).join(' ')}" fill="none" stroke="${s.color}" stroke-width="1.6" stroke-linejoin="round"/>`,
       );
+    }
+    for (const [x, lo, hi] of s.errorBars ?? []) {
+      const X = f(px(x));
+      out.push(
+        `<path class="cv-error-bar" d="M${X},${f(py(lo))}V${f(py(hi))}M${f(px(x) - 4)},${f(py(lo))}h8M${f(px(x) - 4)},${f(py(hi))}h8" stroke="${s.color}" stroke-width="1.2" fill="none"/>`,
+      );
+    }
+    if (s.markers) {
+      for (const [x, y] of s.points)
+        out.push(`<circle cx="${f(px(x))}" cy="${f(py(y))}" r="3" fill="${s.color}"/>`);
     }
   }
   out.push('</g>');
