@@ -10,14 +10,16 @@ import { fileURLToPath, pathToFileURL } from 'node:url';
 import { Writable } from 'node:stream';
 
 export type AnalogChainModule = typeof import('../src/chain/analog-chain.js');
-export type RigProfileModule = typeof import('../src/chain/rig-profile.js');
+export type RigProfileModule = typeof import('../src/chain/rig-profile-file.js');
 export type CalibrationModule = typeof import('../src/calibration/calibration.js');
+export type CalibrationFileModule = typeof import('../src/calibration/calibration-file.js');
 export type QuantityFitModule = typeof import('../src/calibration/quantity-fit.js');
 export type CodecModule = typeof import('../src/protocol/codec.js');
 export type DaemonModule = typeof import('../src/run/daemon.js');
 export type PipelineModule = typeof import('../src/run/pipeline.js');
 export type EventLogModule = typeof import('../src/run/event-log.js');
 export type SessionModule = typeof import('../src/session/session.js');
+export type PlausibilityModule = typeof import('../src/session/plausibility.js');
 export type LogFileModule = typeof import('../src/sinks/log-file.js');
 export type SampleRowModule = typeof import('../src/sinks/sample-row.js');
 export type AtomicJsonModule = typeof import('../src/sinks/atomic-json.js');
@@ -27,6 +29,7 @@ export type LiveLinkModule = typeof import('../src/run/live-link.js');
 export type RunFolderModule = typeof import('../src/replay/run-folder.js');
 export type RecomputeModule = typeof import('../src/report/recompute.js');
 export type ChemistriesModule = typeof import('../src/chemistry/chemistries.js');
+export type ChemistryFileModule = typeof import('../src/chemistry/chemistry-file.js');
 export type ChemistryLimitsModule = typeof import('../src/chemistry/limits.js');
 
 /** The package root: the compiled scripts sit in .bench/scripts/, the sources in scripts/. */
@@ -224,7 +227,7 @@ export class FrameMaker {
 }
 
 export async function benchChain(): Promise<AnalogChain> {
-  const { loadRigProfile } = await product<RigProfileModule>('chain/rig-profile.js');
+  const { loadRigProfile } = await product<RigProfileModule>('chain/rig-profile-file.js');
   const { AnalogChain } = await product<AnalogChainModule>('chain/analog-chain.js');
   return new AnalogChain(await loadRigProfile(RIG_PROFILE));
 }
@@ -236,9 +239,11 @@ export async function benchChain(): Promise<AnalogChain> {
  */
 export async function benchCalibration(
   path: string,
-): Promise<Awaited<ReturnType<CalibrationModule['writeCalibration']>>> {
+): Promise<Awaited<ReturnType<CalibrationFileModule['writeCalibration']>>> {
   const { buildCalibration } = await product<QuantityFitModule>('calibration/quantity-fit.js');
-  const { writeCalibration } = await product<CalibrationModule>('calibration/calibration.js');
+  const { writeCalibration } = await product<CalibrationFileModule>(
+    'calibration/calibration-file.js',
+  );
   const chain = await benchChain();
   const v = (raw: number, ref: number) => ({
     raw_mean: raw,
@@ -285,7 +290,7 @@ type Pipeline = InstanceType<PipelineModule['Pipeline']>;
 type LogFile = InstanceType<LogFileModule['LogFile']>;
 type EventLog = InstanceType<EventLogModule['EventLog']>;
 type Calibration = NonNullable<Parameters<CalibrationModule['applyCalibration']>[0]>;
-type SampleRow = Parameters<SampleRowModule['writeSampleRow']>[0];
+type SampleRow = Parameters<SampleRowModule['formatSampleRow']>[0];
 
 export const ROTATE_BYTES = 16 * 1024 * 1024;
 
@@ -306,7 +311,10 @@ export class CoreRun {
     readonly pipeline: Pipeline,
     readonly samples: LogFile,
     readonly events: EventLog,
-    private readonly rowWriter: Pick<SampleRowModule, 'writeSampleRow' | 'sampleRowMaxBytes'>,
+    private readonly rowWriter: {
+      write: (r: SampleRow, buf: Buffer, at: number) => number;
+      maxBytes: (r: SampleRow) => number;
+    },
     private readonly startWallMs: number,
   ) {}
 
@@ -319,16 +327,16 @@ export class CoreRun {
     const { Pipeline } = await product<PipelineModule>('run/pipeline.js');
     const { LogFile } = await product<LogFileModule>('sinks/log-file.js');
     const { EventLog } = await product<EventLogModule>('run/event-log.js');
-    const rowWriter = await product<SampleRowModule>('sinks/sample-row.js');
-    const { SAMPLE_HEADER } = rowWriter;
+    const { SAMPLE_HEADER, SampleRowWriter, sampleRowMaxBytes } =
+      await product<SampleRowModule>('sinks/sample-row.js');
+    const rowWriter = { write: new SampleRowWriter().write, maxBytes: sampleRowMaxBytes };
     const { applyCalibration } = await product<CalibrationModule>('calibration/calibration.js');
     const { writeJsonAtomic } = await product<AtomicJsonModule>('sinks/atomic-json.js');
-    const { loadChemistries, findChemistry } = await product<ChemistriesModule>(
-      'chemistry/chemistries.js',
-    );
+    const { findChemistry } = await product<ChemistriesModule>('chemistry/chemistries.js');
+    const { loadChemistries } = await product<ChemistryFileModule>('chemistry/chemistry-file.js');
     const { checkRestingVoltage, resolveCutoff } =
       await product<ChemistryLimitsModule>('chemistry/limits.js');
-    const { loadRigProfile } = await product<RigProfileModule>('chain/rig-profile.js');
+    const { loadRigProfile } = await product<RigProfileModule>('chain/rig-profile-file.js');
     const { AnalogChain } = await product<AnalogChainModule>('chain/analog-chain.js');
     const profile = await loadRigProfile(RIG_PROFILE);
     const chain = new AnalogChain(profile);
@@ -337,12 +345,18 @@ export class CoreRun {
     const cutoff = resolveCutoff(chemistry, 1);
     const floorV = chemistry.floor_V_per_cell.value;
     const maxCurrentA = 0.98 * chain.fullScale().amps;
+    const { plausibilityFor } = await product<PlausibilityModule>('session/plausibility.js');
     const session = new Session({
       channel: 0,
       cutoffV: cutoff.total,
       floorV,
       maxTemperatureC: chemistry.max_temperature_C.value,
       maxCurrentA,
+      plausibility: plausibilityFor({
+        maxRestVPerCell: chemistry.max_rest_V_per_cell.value,
+        cells: 1,
+        ampsPerCount: chain.ampsPerCount,
+      }),
       checkRest: (restV) => {
         const check = checkRestingVoltage(chemistry, 1, restV, cutoff.perCell, chemistries);
         return check.ok ? null : check.error.message;
@@ -414,11 +428,7 @@ export class CoreRun {
   line(text: string, atMs: number): SampleRow | null {
     const out = this.pipeline.line(text, atMs, this.startWallMs + atMs);
     if (out.kind === 'sample') {
-      this.samples.appendWith(
-        out.row,
-        this.rowWriter.sampleRowMaxBytes(out.row),
-        this.rowWriter.writeSampleRow,
-      );
+      this.samples.appendWith(out.row, this.rowWriter.maxBytes(out.row), this.rowWriter.write);
       this.rows++;
       this.act(out.actions, atMs);
       return out.row;

@@ -1,12 +1,19 @@
 #!/usr/bin/env bash
-# Debian packages the tests need: socat (pseudo-terminal pairs for the serial end-to-end
-# tests) and chromium (the live page's browser test). Installs only what is missing.
+# Debian packages the tests need, installed only when missing:
+# - socat: pseudo-terminal pairs for the serial end-to-end tests;
+# - chromium: the live page's browser test;
+# - gcc-avr, avr-libc, binutils-avr: build the reference firmware (firmware/);
+# - gcc, make, libc6-dev, pkg-config, libsimavr-dev, libsimavrparts1, libelf-dev: build the
+#   emulated rig (test/firmware/), which runs that firmware on simavr's ATmega328P.
 set -euo pipefail
+packages=(socat chromium gcc-avr avr-libc binutils-avr gcc make libc6-dev pkg-config
+  libsimavr-dev libsimavrparts1 libelf-dev)
 need=()
-command -v socat >/dev/null 2>&1 || need+=(socat)
-command -v chromium >/dev/null 2>&1 || need+=(chromium)
+for p in "${packages[@]}"; do
+  dpkg-query -W -f='${Status}' "$p" 2>/dev/null | grep -q "install ok installed" || need+=("$p")
+done
 if [ ${#need[@]} -eq 0 ]; then
-  echo "test tools present: socat, chromium"
+  echo "test tools present: ${packages[*]}"
   exit 0
 fi
 sudo=""

@@ -6,6 +6,8 @@
 import type { Calibration } from '../calibration/calibration.js';
 import { AnalogChain } from '../chain/analog-chain.js';
 import type { RigProfile } from '../chain/rig-profile-types.js';
+import type { ChemistryProfile } from '../chemistry/chemistry-types.js';
+import { batteryRangeWarning } from '../chemistry/full-scale.js';
 import { capacityBudget, type CapacityBudget } from './capacity-budget.js';
 import {
   chainResolution,
@@ -26,6 +28,8 @@ export interface AssessRequest {
   claimResolutionA?: number;
   /** Tolerance of the rig's own oscillator, fraction (0.03 = ±3 %). */
   rigClockTolerance?: number;
+  /** The battery to be tested: warned about when a full one is beyond the voltage range. */
+  battery?: { chemistry: ChemistryProfile; cells: number };
 }
 
 export interface AssessReport {
@@ -50,6 +54,16 @@ export function assess(req: AssessRequest): AssessReport {
     smallest_current: floor,
     warnings,
   };
+  if (req.battery) {
+    const w = batteryRangeWarning(
+      req.battery.chemistry,
+      req.battery.cells,
+      resolution.full_scale_V,
+      chain.adcVoltsPerCount * 2 ** chain.bits,
+      req.profile.voltage.divider_bottom_ohm,
+    );
+    if (w) warnings.push(w);
+  }
   if (req.claimResolutionA !== undefined) {
     const w = checkResolutionClaim(req.claimResolutionA, resolution, req.profile);
     if (w) warnings.push(w);
@@ -67,7 +81,10 @@ export function assess(req: AssessRequest): AssessReport {
     });
     if (currentA > 0.98 * resolution.full_scale_A) {
       warnings.push(
-        `the test current ${currentA} A is at or beyond the current channel's full scale of ${resolution.full_scale_A.toFixed(3)} A: readings pin at the top count. Use less amplifier gain or a smaller shunt.`,
+        `the test current ${currentA} A is at or beyond the current channel's full scale of ${resolution.full_scale_A.toFixed(3)} A: readings pin at the top count. ` +
+          (currentA / 1000 < 0.98 * resolution.full_scale_A
+            ? `Did you mean ${currentA / 1000} A (${currentA} looks like mA)? Otherwise use less amplifier gain or a smaller shunt.`
+            : 'Use less amplifier gain or a smaller shunt.'),
       );
     }
     const calibrated = report.test.mode !== 'uncalibrated';

@@ -60,6 +60,40 @@ export interface CapacityBudget {
 
 const SQRT12 = Math.sqrt(12);
 
+/** Without a calibration: the front end's offset and gain errors, or assumed ones. */
+function uncalibratedTerms(x: BudgetInput, q: number): BudgetTerm[] {
+  const out: BudgetTerm[] = [];
+  const offset = x.frontEnd.offset_A;
+  out.push(
+    offset !== undefined
+      ? {
+          term: 'current offset (uncalibrated)',
+          basis: `op-amp input offset / shunt = ±${fmt(Math.abs(offset) * 1000)} mA, rectangular`,
+          u_Ah: rectangularU(offset) * x.hours,
+        }
+      : {
+          term: 'current offset (uncalibrated)',
+          basis: `not in the rig profile; assumed ±${UNCALIBRATED_CURRENT_OFFSET_HALF_WIDTH_A * 1000} mA, rectangular`,
+          u_Ah: rectangularU(UNCALIBRATED_CURRENT_OFFSET_HALF_WIDTH_A) * x.hours,
+        },
+  );
+  const gain = x.frontEnd.connection_gain_error;
+  out.push(
+    gain !== undefined
+      ? {
+          term: 'current gain (uncalibrated)',
+          basis: `connection / shunt resistance = ±${fmt(gain * 100)} %, rectangular`,
+          u_Ah: rectangularU(gain) * q,
+        }
+      : {
+          term: 'current gain (uncalibrated)',
+          basis: `not in the rig profile; assumed ±${UNCALIBRATED_GAIN_HALF_WIDTH * 100} %, rectangular`,
+          u_Ah: rectangularU(UNCALIBRATED_GAIN_HALF_WIDTH) * q,
+        },
+  );
+  return out;
+}
+
 export function capacityBudget(x: BudgetInput): CapacityBudget {
   const q = x.currentA * x.hours;
   const terms: BudgetTerm[] = [];
@@ -93,34 +127,7 @@ export function capacityBudget(x: BudgetInput): CapacityBudget {
     });
   } else {
     mode = 'uncalibrated';
-    const offset = x.frontEnd.offset_A;
-    terms.push(
-      offset !== undefined
-        ? {
-            term: 'current offset (uncalibrated)',
-            basis: `op-amp input offset / shunt = ±${fmt(Math.abs(offset) * 1000)} mA, rectangular`,
-            u_Ah: rectangularU(offset) * x.hours,
-          }
-        : {
-            term: 'current offset (uncalibrated)',
-            basis: `not in the rig profile; assumed ±${UNCALIBRATED_CURRENT_OFFSET_HALF_WIDTH_A * 1000} mA, rectangular`,
-            u_Ah: rectangularU(UNCALIBRATED_CURRENT_OFFSET_HALF_WIDTH_A) * x.hours,
-          },
-    );
-    const gain = x.frontEnd.connection_gain_error;
-    terms.push(
-      gain !== undefined
-        ? {
-            term: 'current gain (uncalibrated)',
-            basis: `connection / shunt resistance = ±${fmt(gain * 100)} %, rectangular`,
-            u_Ah: rectangularU(gain) * q,
-          }
-        : {
-            term: 'current gain (uncalibrated)',
-            basis: `not in the rig profile; assumed ±${UNCALIBRATED_GAIN_HALF_WIDTH * 100} %, rectangular`,
-            u_Ah: rectangularU(UNCALIBRATED_GAIN_HALF_WIDTH) * q,
-          },
-    );
+    terms.push(...uncalibratedTerms(x, q));
   }
   terms.push({
     term: 'quantisation',

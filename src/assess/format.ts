@@ -21,11 +21,9 @@ const MODE_TEXT = {
   uncalibrated: 'uncalibrated',
 } as const;
 
-export function formatAssess(r: AssessReport): string {
-  const c = r.chain;
+/** What one ADC count is worth on each channel. */
+function resolutionLines(c: AssessReport['chain']): string[] {
   const out: string[] = [];
-  out.push(`Rig profile ${r.rig.file}${r.rig.name ? ` (${r.rig.name})` : ''}`);
-  out.push('');
   out.push('Resolution: what one ADC count is worth');
   out.push(row('ADC', `${c.adc_bits} bits, ${p3(c.adc_V_per_count * 1000)} mV per count`));
   out.push(
@@ -46,9 +44,13 @@ export function formatAssess(r: AssessReport): string {
       c.degrees_per_count.map((d) => `${p3(d.per_count)} °C at ${d.celsius} °C`).join(', '),
     ),
   );
-  out.push('');
+  return out;
+}
+
+/** The current channel's errors before calibration. */
+function frontEndLines(fe: AssessReport['front_end']): string[] {
+  const out: string[] = [];
   out.push('Current channel before calibration');
-  const fe = r.front_end;
   out.push(
     row(
       'op-amp input offset',
@@ -66,9 +68,13 @@ export function formatAssess(r: AssessReport): string {
     ),
   );
   out.push('  A calibration against a reference meter removes both.');
-  out.push('');
+  return out;
+}
+
+/** The smallest current worth measuring. */
+function floorLines(f: AssessReport['smallest_current']): string[] {
+  const out: string[] = [];
   out.push('Smallest current worth measuring');
-  const f = r.smallest_current;
   const pct = FLOOR_SHARE * 100;
   out.push(
     row(
@@ -92,30 +98,48 @@ export function formatAssess(r: AssessReport): string {
       ),
     );
   }
-  const t = r.test;
-  if (t) {
+  return out;
+}
+
+/** A planned capacity test's uncertainty budget (GUM, JCGM 100:2008). */
+function testLines(t: NonNullable<AssessReport['test']>): string[] {
+  const out: string[] = [];
+  out.push(
+    `Capacity test: ${p3(t.current_A)} A for ${p3(t.hours)} h = ${p3(t.capacity_Ah)} Ah, ${MODE_TEXT[t.mode]} (GUM, JCGM 100:2008)`,
+  );
+  out.push(`  ${'term'.padEnd(44)}${'u (Ah)'.padStart(10)}${'u (%)'.padStart(9)}  basis`);
+  for (const term of t.terms) {
+    out.push(
+      `  ${term.term.padEnd(44)}${p3(term.u_Ah).padStart(10)}${p3((100 * term.u_Ah) / t.capacity_Ah).padStart(9)}  ${term.basis}`,
+    );
+  }
+  out.push(
+    `  ${'combined standard uncertainty'.padEnd(44)}${p3(t.combined_u_Ah).padStart(10)}${p3((100 * t.combined_u_Ah) / t.capacity_Ah).padStart(9)}`,
+  );
+  out.push(
+    `  ${'expanded uncertainty, k = 2'.padEnd(44)}${`±${p3(t.expanded_U_Ah)}`.padStart(10)}${`±${p3(100 * t.expanded_relative)}`.padStart(9)}`,
+  );
+  if (t.rig_clock) {
+    out.push(
+      `  Timed by the rig's own oscillator (±${p3(t.rig_clock.tolerance * 100)} %) instead of the host clock, the charge could be off by up to ` +
+        `±${p3(t.rig_clock.half_width_Ah)} Ah (±${p3(t.rig_clock.tolerance * 100)} %); cellvigil times frames by the host.`,
+    );
+  }
+  return out;
+}
+
+export function formatAssess(r: AssessReport): string {
+  const out: string[] = [];
+  out.push(`Rig profile ${r.rig.file}${r.rig.name ? ` (${r.rig.name})` : ''}`);
+  out.push('');
+  out.push(...resolutionLines(r.chain));
+  out.push('');
+  out.push(...frontEndLines(r.front_end));
+  out.push('');
+  out.push(...floorLines(r.smallest_current));
+  if (r.test) {
     out.push('');
-    out.push(
-      `Capacity test: ${p3(t.current_A)} A for ${p3(t.hours)} h = ${p3(t.capacity_Ah)} Ah, ${MODE_TEXT[t.mode]} (GUM, JCGM 100:2008)`,
-    );
-    out.push(`  ${'term'.padEnd(44)}${'u (Ah)'.padStart(10)}${'u (%)'.padStart(9)}  basis`);
-    for (const term of t.terms) {
-      out.push(
-        `  ${term.term.padEnd(44)}${p3(term.u_Ah).padStart(10)}${p3((100 * term.u_Ah) / t.capacity_Ah).padStart(9)}  ${term.basis}`,
-      );
-    }
-    out.push(
-      `  ${'combined standard uncertainty'.padEnd(44)}${p3(t.combined_u_Ah).padStart(10)}${p3((100 * t.combined_u_Ah) / t.capacity_Ah).padStart(9)}`,
-    );
-    out.push(
-      `  ${'expanded uncertainty, k = 2'.padEnd(44)}${`±${p3(t.expanded_U_Ah)}`.padStart(10)}${`±${p3(100 * t.expanded_relative)}`.padStart(9)}`,
-    );
-    if (t.rig_clock) {
-      out.push(
-        `  Timed by the rig's own oscillator (±${p3(t.rig_clock.tolerance * 100)} %) instead of the host clock, the charge could be off by up to ` +
-          `±${p3(t.rig_clock.half_width_Ah)} Ah (±${p3(t.rig_clock.tolerance * 100)} %); cellvigil times frames by the host.`,
-      );
-    }
+    out.push(...testLines(r.test));
   }
   if (r.warnings.length > 0) out.push('');
   for (const w of r.warnings) out.push(`warning: ${w}`);

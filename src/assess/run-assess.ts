@@ -1,7 +1,10 @@
 /** `cellvigil assess` as a function: check the options, read the files, build the report. */
 import { resolve } from 'node:path';
-import { loadCalibration } from '../calibration/calibration.js';
-import { loadRigProfile } from '../chain/rig-profile.js';
+import { loadCalibration } from '../calibration/calibration-file.js';
+import { loadRigProfile } from '../chain/rig-profile-file.js';
+import { findChemistry } from '../chemistry/chemistries.js';
+import { DEFAULT_CHEMISTRIES_PATH, loadChemistries } from '../chemistry/chemistry-file.js';
+import { validateCells } from '../chemistry/limits.js';
 import { ErrorCodes, makeError } from '../core/errors.js';
 import { assess, type AssessReport } from './assess.js';
 import { formatAssess } from './format.js';
@@ -16,6 +19,10 @@ export interface AssessOptions {
   /** Percent. */
   rigClockTolerancePct?: number;
   temperatures?: number[];
+  /** The battery to be tested (chemistry id), with its cells in series. */
+  chemistry?: string;
+  cells?: number;
+  chemistriesFile?: string;
 }
 
 function usage(what: string, where: string, fix: string): Error {
@@ -80,6 +87,22 @@ export async function runAssess(o: AssessOptions): Promise<{ report: AssessRepor
         'Give temperatures between −55 and 150 °C, e.g. 0 25 45 60.',
       );
   }
+  if (o.cells !== undefined && o.chemistry === undefined)
+    throw usage(
+      '--cells without --chemistry',
+      '--chemistry',
+      'Name the chemistry too, e.g. --chemistry lead-acid --cells 6.',
+    );
+  const battery =
+    o.chemistry !== undefined
+      ? {
+          chemistry: findChemistry(
+            loadChemistries(o.chemistriesFile ?? DEFAULT_CHEMISTRIES_PATH),
+            o.chemistry,
+          ),
+          cells: validateCells(o.cells ?? 1),
+        }
+      : undefined;
   const rigFile = resolve(o.rig);
   const profile = await loadRigProfile(rigFile);
   const calibration =
@@ -93,6 +116,7 @@ export async function runAssess(o: AssessOptions): Promise<{ report: AssessRepor
     ...(o.referenceAccuracy !== undefined ? { referenceAccuracy: o.referenceAccuracy } : {}),
     ...(o.claimResolutionA !== undefined ? { claimResolutionA: o.claimResolutionA } : {}),
     ...(tol !== undefined ? { rigClockTolerance: tol / 100 } : {}),
+    ...(battery ? { battery } : {}),
   });
   return { report, text: formatAssess(report) };
 }

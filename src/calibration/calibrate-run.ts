@@ -6,21 +6,24 @@
 import { basename, resolve } from 'node:path';
 import { AnalogChain } from '../chain/analog-chain.js';
 import type { RigProfile } from '../chain/rig-profile-types.js';
-import { loadRigProfile } from '../chain/rig-profile.js';
-import {
-  DEFAULT_CHEMISTRIES_PATH,
-  findChemistry,
-  loadChemistries,
-} from '../chemistry/chemistries.js';
+import { DEFAULT_RIG_PATH, loadRigProfile } from '../chain/rig-profile-file.js';
+import { findChemistry } from '../chemistry/chemistries.js';
+import { DEFAULT_CHEMISTRIES_PATH, loadChemistries } from '../chemistry/chemistry-file.js';
 import { validateCells } from '../chemistry/limits.js';
-import { HostClock, PacedClock, type Clock } from '../core/clock.js';
+import type { Clock } from '../core/clock.js';
+import { HostClock, PacedClock } from '../core/host-clock.js';
 import { ErrorCodes, makeError } from '../core/errors.js';
-import { DEFAULT_RIG_PATH, DEFAULT_SCENARIOS_PATH } from '../run/run-config.js';
-import { loadScenarios, pickScenario, type SimScenario } from '../sim/scenarios.js';
+import {
+  DEFAULT_SCENARIOS_PATH,
+  loadScenarios,
+  pickScenario,
+  type SimScenario,
+} from '../sim/scenarios.js';
 import { SerialSource } from '../sources/serial-source.js';
 import { SimSource } from '../sources/sim-source.js';
 import type { Source } from '../sources/source.js';
-import { writeCalibration, type Calibration } from './calibration.js';
+import type { Calibration } from './calibration.js';
+import { writeCalibration } from './calibration-file.js';
 import type { TruthSample } from './capture.js';
 import {
   captureFilePoints,
@@ -32,6 +35,7 @@ import { formatOutcome } from './fit-report.js';
 import { captureInteractive, type Prompter } from './interactive.js';
 import { makeLoadGuard, type LoadGuard } from './load-guard.js';
 import { capturePoint } from './point-capture.js';
+import { savePointsAfterRefusal } from './points-save.js';
 import { loadPointsFile, type PointsFile } from './points-file.js';
 import { buildCalibration, type QuantityOutcome } from './quantity-fit.js';
 import { RigLink } from './rig-link.js';
@@ -184,48 +188,32 @@ export async function runCalibrate(
     );
   }
 
-  let points: PointsByQuantity;
-  let rigName = profile.name ?? basename(rigPath);
-  let date: string;
-  let offConfirmed: boolean | null = null;
-  if (file && req.fromPoints !== undefined) {
-    points = givenFilePoints(file.points, chain);
-    date = new Date().toISOString();
-  } else {
-    const guard = resolveGuard(req, scenario, profile, chain);
-    if (!guard && file?.points.some((p) => p.load === true)) {
+  const got = await gatherPoints(req, io, {
+    profile,
+    chain,
+    scenario,
+    file,
+    askInstrument: instrument === null,
+  });
+  const { points, date, offConfirmed } = got;
+  const rigName = got.rigId || (profile.name ?? basename(rigPath));
+  instrument ??= got.referenceInstrument;
+  let built: ReturnType<typeof buildCalibration>;
+  try {
+    if (instrument === null) {
       throw usage(
-        'loaded points need the chemistry and cell count, so that the safety limits apply while the load is on',
-        '--chemistry / --cells',
-        'Name the cell on the rig, e.g. --chemistry li-ion --cells 1.',
+        'the reference instrument is not named',
+        '--reference',
+        'Say which meter gave the readings (--reference "…"); nothing was written.',
       );
     }
-    const taken = await captureOnRig(req, io, {
-      profile,
-      chain,
-      guard,
-      scenario,
-      file,
-      askInstrument: instrument === null,
-    });
-    points = taken.points;
-    offConfirmed = taken.offConfirmed;
-    date = taken.date;
-    if (taken.rigId) rigName = taken.rigId;
-    instrument ??= taken.referenceInstrument;
+    built = buildCalibration({ rig: rigName, date, referenceInstrument: instrument }, points);
+  } catch (e) {
+    if (req.fromPoints === undefined)
+      io.print(await savePointsAfterRefusal(resolve(req.out), points, instrument));
+    throw e;
   }
-  if (instrument === null) {
-    throw usage(
-      'the reference instrument is not named',
-      '--reference',
-      'Say which meter gave the readings (--reference "…"); nothing was written.',
-    );
-  }
-
-  const { content, outcomes } = buildCalibration(
-    { rig: rigName, date, referenceInstrument: instrument },
-    points,
-  );
+  const { content, outcomes } = built;
   io.print('');
   for (const o of outcomes) for (const line of formatOutcome(o)) io.print(line);
   const out = resolve(req.out);
@@ -241,6 +229,39 @@ export async function runCalibrate(
     );
   }
   return { calibration, outcomes, offConfirmed };
+}
+
+/** The points: from the file as given, or captured on the rig (the load guarded by the cell's limits). */
+async function gatherPoints(
+  req: CalibrateRequest,
+  io: CalibrateIo,
+  setup: {
+    profile: RigProfile;
+    chain: AnalogChain;
+    scenario: SimScenario | null;
+    file: PointsFile | null;
+    askInstrument: boolean;
+  },
+): Promise<RigPoints> {
+  const { profile, chain, scenario, file } = setup;
+  if (file && req.fromPoints !== undefined) {
+    return {
+      points: givenFilePoints(file.points, chain),
+      offConfirmed: null,
+      date: new Date().toISOString(),
+      rigId: null,
+      referenceInstrument: null,
+    };
+  }
+  const guard = resolveGuard(req, scenario, profile, chain);
+  if (!guard && file?.points.some((p) => p.load === true)) {
+    throw usage(
+      'loaded points need the chemistry and cell count, so that the safety limits apply while the load is on',
+      '--chemistry / --cells',
+      'Name the cell on the rig, e.g. --chemistry li-ion --cells 1.',
+    );
+  }
+  return captureOnRig(req, io, { ...setup, guard });
 }
 
 function resolveGuard(

@@ -4,12 +4,12 @@
  */
 import type { AnalogChain } from '../chain/analog-chain.js';
 import { ErrorCodes, makeError } from '../core/errors.js';
-import type { CalibrationPoint, Quantity } from './calibration.js';
+import { UNITS, type CalibrationPoint, type Quantity } from './calibration.js';
 import type { WindowResult } from './capture.js';
 import { formatPoint } from './fit-report.js';
 import { givenStats, toCalibrationPoint } from './nominal-point.js';
 import type { PointRequest } from './point-capture.js';
-import { UNITS, type PointSpec, type PointsFile } from './points-file.js';
+import type { PointSpec, PointsFile } from './points-file.js';
 import { minPoints, QUANTITIES } from './quantity-fit.js';
 
 export type PointsByQuantity = Partial<Record<Quantity, CalibrationPoint[]>>;

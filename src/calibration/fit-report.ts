@@ -1,6 +1,5 @@
 /** Plain-text printout of captured points and of each quantity's fit, for `calibrate`. */
-import type { CalibrationPoint, Quantity } from './calibration.js';
-import { UNITS } from './points-file.js';
+import { UNITS, type CalibrationPoint, type Quantity } from './calibration.js';
 import type { QuantityOutcome } from './quantity-fit.js';
 
 /** Six significant digits, no exponent for ordinary magnitudes. */

@@ -57,6 +57,35 @@ export interface FitOptions {
   where?: string;
 }
 
+/**
+ * Two points: the line passes through both, so the uncertainties come from the points' own
+ * (propagated through the two-point formulas), with no degrees of freedom left for scatter.
+ */
+function twoPointFit(
+  [a, b]: readonly [FitPoint, FitPoint],
+  gain: number,
+  offset: number,
+  weighted: boolean,
+  residuals: number[],
+): FitResult {
+  const d = b.x - a.x;
+  const ua2 = (a.u ?? 0) ** 2;
+  const ub2 = (b.u ?? 0) ** 2;
+  return {
+    gain,
+    offset,
+    u_gain: Math.sqrt(ua2 + ub2) / Math.abs(d),
+    u_offset: Math.sqrt(b.x * b.x * ua2 + a.x * a.x * ub2) / Math.abs(d),
+    cov_gain_offset: -(b.x * ua2 + a.x * ub2) / (d * d),
+    residual_sd: 0,
+    dof: 0,
+    weighted,
+    residuals,
+    standardized: [Number.NaN, Number.NaN],
+    outliers: [],
+  };
+}
+
 /** Fits reference = gain × nominal + offset. */
 export function fitLine(points: readonly FitPoint[], options: FitOptions = {}): FitResult {
   const quantity = options.quantity ?? 'quantity';
@@ -109,25 +138,8 @@ export function fitLine(points: readonly FitPoint[], options: FitOptions = {}): 
   const offset = ym - gain * xm;
   const residuals = points.map((p) => p.y - (gain * p.x + offset));
 
-  if (n === 2) {
-    const [a, b] = points as readonly [FitPoint, FitPoint];
-    const d = b.x - a.x;
-    const ua2 = (a.u ?? 0) ** 2;
-    const ub2 = (b.u ?? 0) ** 2;
-    return {
-      gain,
-      offset,
-      u_gain: Math.sqrt(ua2 + ub2) / Math.abs(d),
-      u_offset: Math.sqrt(b.x * b.x * ua2 + a.x * a.x * ub2) / Math.abs(d),
-      cov_gain_offset: -(b.x * ua2 + a.x * ub2) / (d * d),
-      residual_sd: 0,
-      dof: 0,
-      weighted,
-      residuals,
-      standardized: [Number.NaN, Number.NaN],
-      outliers: [],
-    };
-  }
+  if (n === 2)
+    return twoPointFit(points as readonly [FitPoint, FitPoint], gain, offset, weighted, residuals);
 
   const dof = n - 2;
   const { ss, chi2, scale } = scatter(residuals, w, dof, weighted);

@@ -5,12 +5,13 @@
  */
 import type { AnalogChain } from '../chain/analog-chain.js';
 import type { CellvigilError } from '../core/errors.js';
-import type { Quantity } from './calibration.js';
+import { UNITS, type CalibrationPoint, type Quantity } from './calibration.js';
 import type { CapturePoint, PointsByQuantity } from './file-points.js';
+import type { CountStats } from './capture.js';
 import { formatPoint, sig } from './fit-report.js';
-import { toCalibrationPoint } from './nominal-point.js';
-import { UNITS } from './points-file.js';
+import { nominalOf, toCalibrationPoint } from './nominal-point.js';
 import { minPoints, QUANTITIES } from './quantity-fit.js';
+import { readingSlip } from './reading-check.js';
 import { parseAccuracy } from './reference-accuracy.js';
 
 export interface Prompter {
@@ -41,13 +42,41 @@ function yes(answer: string, byDefault: boolean): boolean {
   return a === 'y' || a === 'yes';
 }
 
-async function askNumber(io: Prompter, question: string, byDefault?: number): Promise<number> {
+/** What the person answered for a reference reading: a number, or a wish to average again. */
+type ReadingAnswer = { reading: number } | 'retake';
+
+/**
+ * Asks for the reference reading and checks it against the rig's own reading at once; a reading
+ * that looks like a slip is asked again, and kept only when the same value is typed twice.
+ */
+async function askReading(
+  io: Prompter,
+  question: string,
+  check: (reading: number) => string | null,
+  byDefault?: number,
+): Promise<ReadingAnswer> {
+  let doubted: number | null = null;
   for (;;) {
     const a = (await io.ask(question)).trim();
-    if (a === '' && byDefault !== undefined) return byDefault;
-    const x = Number(a);
-    if (a !== '' && Number.isFinite(x)) return x;
-    io.print(`  "${a}" is not a number; type it with a decimal point, e.g. 1.234`);
+    if (a.toLowerCase() === 'r') return 'retake';
+    const x = a === '' && byDefault !== undefined ? byDefault : Number(a);
+    if (a !== '' && !Number.isFinite(x)) {
+      io.print(
+        `  "${a}" is not a number; type it with a decimal point, e.g. 1.234 (or r to average again)`,
+      );
+      continue;
+    }
+    if (a === '' && byDefault === undefined) {
+      io.print('  type the reading the reference meter shows (or r to average again)');
+      continue;
+    }
+    const slip = check(x);
+    if (slip === null || doubted === x) return { reading: x };
+    doubted = x;
+    io.print(`  ${slip}.`);
+    io.print(
+      '  Type the reading again; to keep this very value, type it once more. r averages again.',
+    );
   }
 }
 
@@ -56,6 +85,7 @@ async function askUncertainty(
   reading: number,
   quantity: Quantity,
   exact: boolean,
+  label: string,
 ): Promise<number> {
   const unit = UNITS[quantity];
   const hint = exact ? ' [u=0: nothing flows]' : '';
@@ -66,7 +96,12 @@ async function askUncertainty(
       )
     ).trim();
     try {
-      const r = parseAccuracy(a === '' && exact ? 'u=0' : a, reading, 'accuracy', unit);
+      const r = parseAccuracy(
+        a === '' && exact ? 'u=0' : a,
+        reading,
+        `meter accuracy for ${label}`,
+        unit,
+      );
       io.print(`  reference uncertainty ${sig(r.u, 2)} ${unit} (${r.basis})`);
       return r.u;
     } catch (e) {
@@ -78,6 +113,62 @@ async function askUncertainty(
 export interface InteractiveResult {
   points: PointsByQuantity;
   referenceInstrument: string | null;
+}
+
+/** One point of a quantity: capture, show what the rig read, ask for the reference. */
+async function takePoint(
+  io: Prompter,
+  capture: CapturePoint,
+  chain: AnalogChain,
+  windowMs: number,
+  q: Quantity,
+  k: number,
+): Promise<CalibrationPoint> {
+  const loadDefault = q === 'current' && k === 2;
+  const loadOn =
+    q === 'temperature'
+      ? false
+      : yes(
+          await io.ask(`Point ${k}: switch the load on for it? [${loadDefault ? 'Y/n' : 'y/N'}] `),
+          loadDefault,
+        );
+  const label = `${q} point ${k} (load ${loadOn ? 'on' : 'off'})`;
+  const fullScale = q === 'voltage' ? chain.fullScale().volts : chain.fullScale().amps;
+  const exactZero = q === 'current' && !loadOn;
+  for (;;) {
+    await io.ask(
+      loadOn
+        ? `Press Enter to switch the load on and average for ${windowMs / 1000} s; read the meter while it averages `
+        : `Set the condition, then press Enter to average for ${windowMs / 1000} s `,
+    );
+    const w = await capture({ loadOn, windowMs, label });
+    const stats: CountStats = w[q];
+    const { nominal } = nominalOf(chain, q, stats, label);
+    io.print(
+      `  rig: raw mean ${stats.mean.toFixed(2)}, sd ${stats.sd.toFixed(2)} counts over ${stats.n} frames (nominal ${sig(nominal, 4)} ${UNITS[q]})`,
+    );
+    const answer = await askReading(
+      io,
+      `  Reference reading (${UNITS[q]})${exactZero ? ' [0]' : ''}, or r to average again: `,
+      (x) => readingSlip(q, x, nominal, fullScale),
+      exactZero ? 0 : undefined,
+    );
+    if (answer === 'retake') continue;
+    const u = await askUncertainty(io, answer.reading, q, exactZero && answer.reading === 0, label);
+    return toCalibrationPoint(chain, q, stats, answer.reading, u, label);
+  }
+}
+
+/** After point k: go on, stop, or take point k again ('retake'). */
+async function nextStep(io: Prompter, q: Quantity, k: number): Promise<'more' | 'done' | 'retake'> {
+  if (k < minPoints(q)) {
+    const a = await io.ask(`Next ${q} point [Enter], or r to take point ${k} again: `);
+    return a.trim().toLowerCase() === 'r' ? 'retake' : 'more';
+  }
+  const recommend = q === 'temperature' ? '' : k < 3 ? ' (three or more recommended)' : '';
+  const a = await io.ask(`Another ${q} point?${recommend} [y/N, r takes point ${k} again] `);
+  if (a.trim().toLowerCase() === 'r') return 'retake';
+  return yes(a, false) ? 'more' : 'done';
 }
 
 export async function captureInteractive(
@@ -100,43 +191,17 @@ export async function captureInteractive(
     io.print(`== ${q} ==`);
     for (const line of HOW[q]) io.print(line);
     if (!yes(await io.ask(`Calibrate the ${q}? [Y/n] `), true)) continue;
-    const taken = (points[q] = [] as NonNullable<PointsByQuantity[Quantity]>);
-    for (let k = 1; ; k++) {
-      const loadDefault = q === 'current' && k === 2;
-      const loadOn =
-        q === 'temperature'
-          ? false
-          : yes(
-              await io.ask(
-                `Point ${k}: switch the load on for it? [${loadDefault ? 'Y/n' : 'y/N'}] `,
-              ),
-              loadDefault,
-            );
-      const label = `${q} point ${k} (load ${loadOn ? 'on' : 'off'})`;
-      await io.ask(
-        loadOn
-          ? `Press Enter to switch the load on and average for ${windowMs / 1000} s; read the meter while it averages `
-          : `Set the condition, then press Enter to average for ${windowMs / 1000} s `,
-      );
-      const w = await capture({ loadOn, windowMs, label });
-      const stats = w[q];
-      io.print(
-        `  rig: raw mean ${stats.mean.toFixed(2)}, sd ${stats.sd.toFixed(2)} counts over ${stats.n} frames`,
-      );
-      const exactZero = q === 'current' && !loadOn;
-      const reading = await askNumber(
-        io,
-        `  Reference reading (${UNITS[q]})${exactZero ? ' [0]' : ''}: `,
-        exactZero ? 0 : undefined,
-      );
-      const u = await askUncertainty(io, reading, q, exactZero && reading === 0);
-      const point = toCalibrationPoint(chain, q, stats, reading, u, label);
+    const taken = (points[q] = [] as CalibrationPoint[]);
+    for (let k = 1; ;) {
+      const point = await takePoint(io, capture, chain, windowMs, q, k);
       taken.push(point);
       io.print(`  ${formatPoint('recorded', q, point)}`);
-      const need = minPoints(q);
-      if (k < need) continue;
-      const recommend = q === 'temperature' ? '' : k < 3 ? ' (three or more recommended)' : '';
-      if (!yes(await io.ask(`Another ${q} point?${recommend} [y/N] `), false)) break;
+      const step = await nextStep(io, q, k);
+      if (step === 'done') break;
+      if (step === 'retake') {
+        taken.pop();
+        io.print(`  point ${k} dropped; take it again.`);
+      } else k++;
     }
   }
   return { points, referenceInstrument };

@@ -4,12 +4,11 @@
  * taken without prompts. Format in docs/calibration.md.
  */
 import { Ajv, type ErrorObject, type SchemaObject } from 'ajv';
+import { stringify as stringifyYaml } from 'yaml';
 import { parseConfigYaml, readConfigText } from '../core/config-file.js';
 import { ErrorCodes, makeError } from '../core/errors.js';
-import type { Quantity } from './calibration.js';
+import { UNITS, type CalibrationPoint, type Quantity } from './calibration.js';
 import { parseAccuracy } from './reference-accuracy.js';
-
-export const UNITS: Record<Quantity, string> = { voltage: 'V', current: 'A', temperature: '°C' };
 
 export interface PointSpec {
   /** 1-based position in the file, for messages. */
@@ -29,6 +28,12 @@ export interface PointSpec {
   raw?: { mean: number; sd?: number; samples?: number };
   note?: string;
 }
+
+/** What a saved point keeps of a captured one. */
+export type CapturedPoint = Pick<
+  CalibrationPoint,
+  'raw_mean' | 'raw_sd' | 'samples' | 'reference' | 'reference_u'
+>;
 
 export interface PointsFile {
   file: string;
@@ -202,4 +207,36 @@ function describe(errors: readonly ErrorObject[], data: unknown): string {
         : 'it must be a list of points or a mapping with "points"',
     );
   return [...new Set(parts)].join('; ');
+}
+
+/**
+ * The points file for `--from-points` from points already captured: raw means with their spread
+ * next to the reference readings, so that a refused fit can be mended and fitted again without
+ * taking the points anew. The inverse of parsePointsFile for those keys.
+ */
+export function formatPointsFile(
+  points: Partial<Record<Quantity, readonly CapturedPoint[]>>,
+  referenceInstrument: string | null,
+): string {
+  const list: Record<string, unknown>[] = [];
+  for (const quantity of ['voltage', 'current', 'temperature'] as const) {
+    for (const p of points[quantity] ?? []) {
+      const row: Record<string, unknown> = {
+        quantity,
+        reference: p.reference,
+        u: p.reference_u,
+        raw_mean: p.raw_mean,
+      };
+      if (p.raw_sd !== undefined) row['raw_sd'] = p.raw_sd;
+      if (p.samples !== undefined) row['samples'] = p.samples;
+      list.push(row);
+    }
+  }
+  const doc: Record<string, unknown> = {};
+  if (referenceInstrument !== null) doc['reference_instrument'] = referenceInstrument;
+  doc['points'] = list;
+  return (
+    '# Points captured by `cellvigil calibrate`; mend a reading, then fit with --from-points.\n' +
+    stringifyYaml(doc, { lineWidth: 0 })
+  );
 }

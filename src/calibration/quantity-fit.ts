@@ -5,6 +5,7 @@
  */
 import { ErrorCodes, makeError } from '../core/errors.js';
 import {
+  UNITS,
   CALIBRATION_FORMAT,
   fitQuantity,
   type CalibrationContent,
@@ -13,7 +14,7 @@ import {
   type QuantityCalibration,
   type QuantityFit,
 } from './calibration.js';
-import { UNITS } from './points-file.js';
+import { gainProblem } from './plausible.js';
 
 export const QUANTITIES: readonly Quantity[] = ['voltage', 'current', 'temperature'];
 
@@ -26,8 +27,6 @@ export function minPoints(quantity: Quantity): number {
   return modelFor(quantity) === 'offset' ? 1 : 2;
 }
 
-/** A gain this far from 1 means wrong units or a rig profile that does not describe the board. */
-const GAIN_REFUSE = { low: 0.5, high: 2 };
 /** Warn outside this band: a real board is seldom more than a few percent off its profile. */
 const GAIN_WARN = { low: 0.8, high: 1.25 };
 /** Warn when the gain is known to worse than this (relative standard uncertainty). */
@@ -57,6 +56,33 @@ function fmt(x: number): string {
   return Number(x.toPrecision(4)).toString();
 }
 
+/** Refuses points whose reference readings, or the rig's readings, do not spread enough to give a gain. */
+function checkSpread(quantity: Quantity, points: readonly CalibrationPoint[], where: string): void {
+  const unit = UNITS[quantity];
+  const n = points.length;
+  const uMax = Math.max(...points.map(combinedU));
+  const refSpan = span(points.map((p) => p.reference));
+  if (!(refSpan > SEPARATION * uMax) || refSpan === 0) {
+    throw makeError(
+      ErrorCodes.CALIBRATION_FIT,
+      `the ${n} ${quantity} points have ${refSpan === 0 ? 'the same' : 'nearly the same'} reference reading ` +
+        `(spread ${fmt(refSpan)} ${unit} against an uncertainty of ${fmt(uMax)} ${unit}), so no gain can be found`,
+      where,
+      `Take points at clearly different ${quantity}s: ${quantity === 'current' ? 'the load off (0 A) and the load on' : 'e.g. a cell near empty and near full, or a bench supply at two settings'}; check that each reading was typed for its own point.`,
+    );
+  }
+  const nomSpan = span(points.map((p) => p.nominal));
+  const uNomMax = Math.max(...points.map((p) => p.nominal_u ?? 0));
+  if (!(nomSpan > SEPARATION * uNomMax) || nomSpan === 0) {
+    throw makeError(
+      ErrorCodes.CALIBRATION_FIT,
+      `the rig read the same ${quantity} at all ${n} points (spread ${fmt(nomSpan)} ${unit}), so no gain can be found`,
+      where,
+      `Check that the condition really changed between points (the load switched, the supply set) and that the ${quantity} channel is wired.`,
+    );
+  }
+}
+
 /** Fits one quantity, refusing degenerate points with a message that says what to take instead. */
 export function fitCheckedQuantity(
   quantity: Quantity,
@@ -77,36 +103,15 @@ export function fitCheckedQuantity(
     );
   }
   const warnings: string[] = [];
-  if (model === 'gain_offset') {
-    const uMax = Math.max(...points.map(combinedU));
-    const refSpan = span(points.map((p) => p.reference));
-    if (!(refSpan > SEPARATION * uMax) || refSpan === 0) {
-      throw makeError(
-        ErrorCodes.CALIBRATION_FIT,
-        `the ${n} ${quantity} points have ${refSpan === 0 ? 'the same' : 'nearly the same'} reference reading ` +
-          `(spread ${fmt(refSpan)} ${unit} against an uncertainty of ${fmt(uMax)} ${unit}), so no gain can be found`,
-        where,
-        `Take points at clearly different ${quantity}s: ${quantity === 'current' ? 'the load off (0 A) and the load on' : 'e.g. a cell near empty and near full, or a bench supply at two settings'}; check that each reading was typed for its own point.`,
-      );
-    }
-    const nomSpan = span(points.map((p) => p.nominal));
-    const uNomMax = Math.max(...points.map((p) => p.nominal_u ?? 0));
-    if (!(nomSpan > SEPARATION * uNomMax) || nomSpan === 0) {
-      throw makeError(
-        ErrorCodes.CALIBRATION_FIT,
-        `the rig read the same ${quantity} at all ${n} points (spread ${fmt(nomSpan)} ${unit}), so no gain can be found`,
-        where,
-        `Check that the condition really changed between points (the load switched, the supply set) and that the ${quantity} channel is wired.`,
-      );
-    }
-  }
+  if (model === 'gain_offset') checkSpread(quantity, points, where);
   const r = fitQuantity(quantity, points, model, where);
   const fit = r.calibration.fit;
   if (model === 'gain_offset') {
-    if (!(fit.gain >= GAIN_REFUSE.low && fit.gain <= GAIN_REFUSE.high)) {
+    const gainRefused = gainProblem(quantity, fit.gain);
+    if (gainRefused !== null) {
       throw makeError(
         ErrorCodes.CALIBRATION_FIT,
-        `the fitted ${quantity} gain is ${fmt(fit.gain)}: the reference ${fit.gain <= 0 ? "falls as the rig's reading rises" : `differs from the rig by a factor of ${fmt(fit.gain)}`}`,
+        `the fitted ${gainRefused}`,
         where,
         `Check that the readings are in ${unit} (not m${unit}) and typed for the right points, and that the rig profile (--rig) describes this board.`,
       );

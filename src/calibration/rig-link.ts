@@ -8,6 +8,7 @@ import { ErrorCodes, makeError, type CellvigilError } from '../core/errors.js';
 import { decodeRigLine, encodeCommand } from '../protocol/codec.js';
 import type { DataFrame, HelloFrame, RigMessage } from '../protocol/messages.js';
 import type { Source } from '../sources/source.js';
+import { missingChannel } from '../protocol/hello-check.js';
 
 export interface RigLinkOptions {
   source: Source;
@@ -85,14 +86,8 @@ export class RigLink {
         'Use the rig profile written for this board (--rig), or correct adc.bits in it.',
       );
     }
-    if (this.o.channel >= hello.channels) {
-      throw makeError(
-        ErrorCodes.USAGE,
-        `the rig has ${hello.channels} channel(s); channel ${this.o.channel} does not exist`,
-        '--channel',
-        `Give a channel from 0 to ${hello.channels - 1}.`,
-      );
-    }
+    const missing = missingChannel(this.o.channel, hello);
+    if (missing) throw missing;
     return hello;
   }
 

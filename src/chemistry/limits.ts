@@ -1,4 +1,5 @@
 import { ErrorCodes, makeError, type CellvigilError } from '../core/errors.js';
+import { meaningful } from '../core/meaningful.js';
 import type { ChemistryProfile } from './chemistry-types.js';
 
 /** Most cells in series a run accepts. */
@@ -30,6 +31,14 @@ function round(x: number, digits = 6): number {
 export function fmtV(x: number): string {
   const s = round(x, 3).toFixed(3);
   return s.endsWith('0') ? s.slice(0, -1) : s;
+}
+
+/** " Did you mean 3.0 V?" when a cutoff read as millivolts falls where a cutoff belongs. */
+function millivoltHint(value: number, floorV: number, nominalV: number): string {
+  const volts = value / 1000;
+  return volts >= floorV && volts < nominalV
+    ? ` Did you mean ${meaningful(volts)} V? ${meaningful(value)} looks like mV.`
+    : '';
 }
 
 /** Checks a cell count: an integer from 1 to 64. Returns it, or throws CV_USAGE. */
@@ -82,7 +91,10 @@ export function resolveCutoff(
         `${fmtV(floor.value)} V per cell (source: ${floor.source})`,
       where,
       `Choose ${fmtV(floor.value)} V per cell or more (the default is ` +
-        `${fmtV(profile.cutoff_V_per_cell.value)} V); the floor cannot be lowered by any option or command.`,
+        `${fmtV(profile.cutoff_V_per_cell.value)} V); the floor cannot be lowered by any option or command. ` +
+        "To follow a cell maker's datasheet that allows less, add a chemistry profile for that cell " +
+        'with its own floor and the datasheet as its source, and run with --chemistries-file <file> ' +
+        '--chemistry <its id> (docs/chemistry-profiles.md).',
     );
   }
   const nominal = profile.nominal_V_per_cell;
@@ -92,8 +104,9 @@ export function resolveCutoff(
       `Cutoff ${fmtV(requestedPerCell)} V per cell is at or above the ${profile.id} nominal voltage of ` +
         `${fmtV(nominal.value)} V per cell, so the run would end at once`,
       where,
-      `Give the cutoff per cell, not for the whole string: between ${fmtV(floor.value)} and ` +
-        `${fmtV(nominal.value)} V (the default is ${fmtV(profile.cutoff_V_per_cell.value)} V).`,
+      `Give the cutoff per cell in volts, not for the whole string: between ${fmtV(floor.value)} and ` +
+        `${fmtV(nominal.value)} V (the default is ${fmtV(profile.cutoff_V_per_cell.value)} V).` +
+        millivoltHint(requestedPerCell, floor.value, nominal.value),
     );
   }
   return {
@@ -142,7 +155,12 @@ export function describeFits(restV: number, fits: readonly ChemistryFit[]): stri
 }
 
 export type RestRefusal =
-  'not_a_reading' | 'reversed' | 'below_min_rest' | 'above_max_rest' | 'at_or_below_cutoff';
+  | 'not_a_reading'
+  | 'reversed'
+  | 'below_min_rest'
+  | 'above_max_rest'
+  | 'at_or_below_cutoff'
+  | 'beyond_range';
 
 export type RestCheck =
   { ok: true } | { ok: false; reason: RestRefusal; error: CellvigilError; fits: ChemistryFit[] };

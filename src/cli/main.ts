@@ -4,8 +4,10 @@ import { hideBin } from 'yargs/helpers';
 import { CellvigilError } from '../core/errors.js';
 import { assessCommand } from './commands/assess.js';
 import { calibrateCommand } from './commands/calibrate.js';
+import { cellsCommand } from './commands/cells.js';
 import { chemistriesCommand } from './commands/chemistries.js';
 import { controlCommand } from './commands/control.js';
+import { packCommand } from './commands/pack.js';
 import { reportCommand } from './commands/report.js';
 import { runCommand } from './commands/run.js';
 import { simCommand } from './commands/sim.js';
@@ -21,6 +23,8 @@ const commands = [
   reportCommand,
   calibrateCommand,
   assessCommand,
+  cellsCommand,
+  packCommand,
 ];
 
 async function main(): Promise<void> {

@@ -8,7 +8,9 @@ export const ErrorCodes = {
   USAGE: 'CV_USAGE',
   CUTOFF_BELOW_FLOOR: 'CV_CUTOFF_BELOW_FLOOR',
   PRECHECK_REFUSED: 'CV_PRECHECK_REFUSED',
+  BEYOND_RANGE: 'CV_BEYOND_RANGE',
   PORT_OPEN: 'CV_PORT_OPEN',
+  PORT_BUSY: 'CV_PORT_BUSY',
   RIG_SILENT: 'CV_RIG_SILENT',
   LOAD_NOT_CONFIRMED: 'CV_LOAD_NOT_CONFIRMED',
   RUN_FOLDER: 'CV_RUN_FOLDER',
@@ -20,7 +22,15 @@ export const ErrorCodes = {
   LIVE_UNPROTECTED: 'CV_LIVE_UNPROTECTED',
   LIVE_LISTEN: 'CV_LIVE_LISTEN',
   WATCH_REFUSED: 'CV_WATCH_REFUSED',
+  WATCH_UNREACHABLE: 'CV_WATCH_UNREACHABLE',
   RUN_DATA: 'CV_RUN_DATA',
+  REGISTRY_OPEN: 'CV_REGISTRY_OPEN',
+  REGISTRY_LOCKED: 'CV_REGISTRY_LOCKED',
+  REGISTRY_WRITE: 'CV_REGISTRY_WRITE',
+  REGISTRY_CSV: 'CV_REGISTRY_CSV',
+  REGISTRY_DUPLICATE: 'CV_REGISTRY_DUPLICATE',
+  REGISTRY_UNKNOWN_CELL: 'CV_REGISTRY_UNKNOWN_CELL',
+  PACK_TOO_FEW_CELLS: 'CV_PACK_TOO_FEW_CELLS',
 } as const;
 
 export type ErrorCode = (typeof ErrorCodes)[keyof typeof ErrorCodes];
@@ -51,9 +61,14 @@ export function makeError(
     code === ErrorCodes.USAGE ||
     code === ErrorCodes.CUTOFF_BELOW_FLOOR ||
     code === ErrorCodes.PRECHECK_REFUSED ||
+    code === ErrorCodes.BEYOND_RANGE ||
     code === ErrorCodes.CALIBRATION_INVALID ||
     code === ErrorCodes.TOKEN_FILE ||
     code === ErrorCodes.LIVE_UNPROTECTED ||
-    code === ErrorCodes.WATCH_REFUSED;
+    code === ErrorCodes.WATCH_REFUSED ||
+    code === ErrorCodes.REGISTRY_CSV ||
+    code === ErrorCodes.REGISTRY_DUPLICATE ||
+    code === ErrorCodes.REGISTRY_UNKNOWN_CELL ||
+    code === ErrorCodes.PACK_TOO_FEW_CELLS;
   return new CellvigilError(code, `${what} (${where}). ${fix}`, usage ? 2 : 1);
 }

@@ -11,6 +11,8 @@ export function packagePath(relative: string): string {
   return fileURLToPath(new URL(`../../${relative}`, import.meta.url));
 }
 
-export const PACKAGE_VERSION: string = (
-  JSON.parse(readFileSync(packagePath('package.json'), 'utf8')) as { version: string }
-).version;
+/** The package's version, read from package.json when asked (never when a module imports this). */
+export function packageVersion(): string {
+  return (JSON.parse(readFileSync(packagePath('package.json'), 'utf8')) as { version: string })
+    .version;
+}

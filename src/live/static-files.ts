@@ -28,6 +28,7 @@ export function loadStaticFiles(): Map<string, StaticFile> {
   const files: Array<[string, string, string]> = [
     ['/', join(PAGE_DIR, 'index.html'), 'text/html; charset=utf-8'],
     ['/assets/live.js', join(PAGE_DIR, 'live.js'), JS],
+    ['/assets/time-axis.js', join(PAGE_DIR, 'time-axis.js'), JS],
     ['/assets/live.css', join(PAGE_DIR, 'live.css'), CSS],
     ['/assets/icon.svg', join(PAGE_DIR, 'icon.svg'), 'image/svg+xml'],
     // A station's overview: one tile per channel, each opening that channel's page.

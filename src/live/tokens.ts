@@ -3,15 +3,17 @@ import {
   chmodSync,
   closeSync,
   fsyncSync,
+  lstatSync,
   mkdirSync,
   openSync,
   readFileSync,
   renameSync,
   statSync,
   writeSync,
+  type Stats,
 } from 'node:fs';
 import { homedir } from 'node:os';
-import { join } from 'node:path';
+import { dirname, join } from 'node:path';
 import { Ajv } from 'ajv';
 import { ErrorCodes, makeError } from '../core/errors.js';
 
@@ -68,22 +70,86 @@ function unreadable(path: string, e: unknown): Error {
   );
 }
 
-/** The file's text, or null when there is none; refuses a file other users can read or change. */
-function readPrivateFile(path: string): string | null {
-  let mode: number;
+/** The user running the daemon, or null where ownership cannot be checked (Windows). */
+function ownUid(): number | null {
+  return process.platform === 'win32' || typeof process.getuid !== 'function'
+    ? null
+    : process.getuid();
+}
+
+function refused(path: string, what: string, fix: string): Error {
+  return makeError(ErrorCodes.TOKEN_FILE, what, path, fix);
+}
+
+/**
+ * Refuses a folder in which someone else could have put or swapped the token file: one owned
+ * by another user (root excepted, who can do anything anyway), or one that the group or others
+ * may write to, unless its sticky bit is set (as on /tmp: there only a file's owner may rename
+ * or delete it, and the file's own owner is checked as well).
+ */
+function checkFolder(dir: string, st: Stats, uid: number): void {
+  if (st.uid !== uid && st.uid !== 0)
+    throw refused(
+      dir,
+      `the live-feed token folder belongs to another user (uid ${st.uid}), who could place tokens in it`,
+      'Use a folder of your own: set CELLVIGIL_HOME, or fix the owner of this one.',
+    );
+  const sticky = (st.mode & 0o1000) !== 0;
+  if ((st.mode & 0o022) !== 0 && !sticky)
+    throw refused(
+      dir,
+      `the live-feed token folder can be written by other users (mode ${(st.mode & 0o777).toString(8)}), who could place tokens in it`,
+      `Run chmod go-w '${dir}' (or chmod 700), or set CELLVIGIL_HOME to a folder of your own.`,
+    );
+}
+
+/** Refuses a token file that is not a plain file of ours, or that others can read or change. */
+function checkFile(path: string, st: Stats, uid: number | null): void {
+  if (!st.isFile())
+    throw refused(
+      path,
+      'the live-feed token file is not a regular file (a link or a device)',
+      'Delete it to have new tokens made.',
+    );
+  if (uid !== null && st.uid !== uid)
+    throw refused(
+      path,
+      `the live-feed token file belongs to another user (uid ${st.uid}), who could have chosen its tokens`,
+      'Delete it to have new tokens made (they are made owner-only).',
+    );
+  if (uid !== null && (st.mode & 0o077) !== 0)
+    throw refused(
+      path,
+      `the live-feed token file can be read or changed by other users (mode ${(st.mode & 0o777).toString(8)})`,
+      `Run chmod 600 '${path}' if nobody else could have read it, or delete it to have new tokens made.`,
+    );
+}
+
+/** The folder's status, or null when it does not exist yet; an unsafe folder is refused. */
+function safeFolder(dir: string): Stats | null {
+  let st: Stats;
   try {
-    mode = statSync(path).mode;
+    st = statSync(dir);
+  } catch (e) {
+    if ((e as NodeJS.ErrnoException).code === 'ENOENT') return null;
+    throw unreadable(dir, e);
+  }
+  const uid = ownUid();
+  if (uid !== null) checkFolder(dir, st, uid);
+  return st;
+}
+
+/** The file's text, or null when there is none; refuses a file someone else could have placed or read. */
+function readPrivateFile(path: string): string | null {
+  if (safeFolder(dirname(path)) === null) return null;
+  let st: Stats;
+  try {
+    st = lstatSync(path);
   } catch (e) {
     if ((e as NodeJS.ErrnoException).code === 'ENOENT') return null;
     throw unreadable(path, e);
   }
-  if (process.platform !== 'win32' && (mode & 0o077) !== 0)
-    throw makeError(
-      ErrorCodes.TOKEN_FILE,
-      `the live-feed token file can be read or changed by other users (mode ${(mode & 0o777).toString(8)})`,
-      path,
-      `Run chmod 600 '${path}' if nobody else could have read it, or delete it to have new tokens made.`,
-    );
+  checkFile(path, st, ownUid());
   try {
     return readFileSync(path, 'utf8');
   } catch (e) {
@@ -92,8 +158,10 @@ function readPrivateFile(path: string): string | null {
 }
 
 /**
- * Reads the tokens from `<dir>/tokens.json`, making both on first use. The folder is 0700 and
- * the file 0600; a file other users can read or write is refused, since its tokens may be known.
+ * Reads the tokens from `<dir>/tokens.json`, making both on first use. A folder it makes is 0700
+ * and the file 0600. Refused, since the tokens may be known or chosen by someone else: a file
+ * other users can read or write, a file owned by another user, and a folder another user owns
+ * or may write to (a sticky folder such as /tmp excepted, the file being checked as ours).
  */
 export function loadTokens(dir: string = configDir()): TokenFile {
   const path = join(dir, 'tokens.json');
@@ -116,8 +184,9 @@ export function loadTokens(dir: string = configDir()): TokenFile {
   }
   const tokens = { control: newToken(), viewer: newToken() };
   try {
-    mkdirSync(dir, { recursive: true, mode: 0o700 });
-    chmodSync(dir, 0o700);
+    // A folder that was there already keeps its mode (it passed the checks above); one made
+    // here is 0700 whatever the umask.
+    if (mkdirSync(dir, { recursive: true, mode: 0o700 }) !== undefined) chmodSync(dir, 0o700);
     const tmp = `${path}.${process.pid}.tmp`;
     const fd = openSync(tmp, 'wx', 0o600);
     try {

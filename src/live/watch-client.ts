@@ -1,5 +1,6 @@
 import { WebSocket } from 'ws';
-import { HostClock, type Clock, type TimerHandle } from '../core/clock.js';
+import type { Clock, TimerHandle } from '../core/clock.js';
+import { HostClock } from '../core/host-clock.js';
 import { ErrorCodes, makeError, type CellvigilError } from '../core/errors.js';
 import type { ServerMessage } from './live-types.js';
 import { checkServerMessage } from './message-schemas.js';
@@ -15,6 +16,12 @@ export interface WatchClientOptions {
   backoffMinMs?: number;
   /** @default 15000 */
   backoffMaxMs?: number;
+  /**
+   * How long a first connection is tried before giving up: an address that never answered is
+   * most likely wrong. Once connected, a lost feed is retried for as long as the viewer runs.
+   * @default 10000
+   */
+  firstConnectMs?: number;
 }
 
 export interface WatchClient {
@@ -26,8 +33,28 @@ export interface WatchClient {
 /**
  * A live-feed connection that comes back by itself: after a drop or a daemon restart it
  * retries with doubling delays (with jitter) up to a ceiling. A refusal (401, 403, 404) ends
- * it, since retrying cannot help.
+ * it, since retrying cannot help, and so does an address that never answered within
+ * `firstConnectMs`.
  */
+const FIRST_CONNECT_MS = 10_000;
+
+function unreachable(url: string, why: string, ms: number): CellvigilError {
+  const reason =
+    why === 'ECONNREFUSED'
+      ? 'nothing listens there (connection refused)'
+      : why === 'ENOTFOUND' || why === 'EAI_AGAIN'
+        ? 'the host name is not known'
+        : why === 'EHOSTUNREACH' || why === 'ENETUNREACH'
+          ? 'the host cannot be reached'
+          : why;
+  return makeError(
+    ErrorCodes.WATCH_UNREACHABLE,
+    `no live feed answered within ${Math.round(ms / 1000)} s: ${reason}`,
+    url.replace(/token=[^&]*/, 'token=…'),
+    'Check the address and port the daemon printed at start (its "live" line), that the run is still going, and that it listens beyond loopback (--listen 0.0.0.0:8507) when watching from another machine.',
+  );
+}
+
 export function watchLive(o: WatchClientOptions): WatchClient {
   const clock = o.clock ?? new HostClock();
   const minMs = o.backoffMinMs ?? 500;
@@ -42,8 +69,24 @@ export function watchLive(o: WatchClientOptions): WatchClient {
     finish = resolve;
     refuse = reject;
   });
+  let lastWhy = 'no answer';
+  const firstMs = o.firstConnectMs ?? FIRST_CONNECT_MS;
+  let giveUp: TimerHandle | null = clock.setTimer(() => {
+    giveUp = null;
+    if (stopped) return;
+    stopped = true;
+    if (timer) clock.clearTimer(timer);
+    timer = null;
+    ws?.terminate();
+    refuse(unreachable(o.url, lastWhy, firstMs));
+  }, firstMs);
+  const connected = (): void => {
+    if (giveUp) clock.clearTimer(giveUp);
+    giveUp = null;
+  };
 
   function retry(why: string): void {
+    lastWhy = why;
     if (stopped) return;
     const delay = Math.min(maxMs, minMs * 2 ** attempt) * (0.75 + Math.random() * 0.5);
     attempt++;
@@ -64,6 +107,7 @@ export function watchLive(o: WatchClientOptions): WatchClient {
       sock.terminate();
       if (status === 401 || status === 403 || status === 404) {
         stopped = true;
+        connected();
         refuse(
           makeError(
             ErrorCodes.WATCH_REFUSED,
@@ -77,7 +121,10 @@ export function watchLive(o: WatchClientOptions): WatchClient {
       } else why = `HTTP ${status}`;
     });
     sock.on('error', (e: NodeJS.ErrnoException) => (why = e.code ?? e.message));
-    sock.on('open', () => o.onLink('live'));
+    sock.on('open', () => {
+      connected();
+      o.onLink('live');
+    });
     sock.on('message', (data, isBinary) => {
       if (isBinary) return;
       let parsed: unknown;
@@ -106,6 +153,7 @@ export function watchLive(o: WatchClientOptions): WatchClient {
       if (stopped) return;
       stopped = true;
       if (timer) clock.clearTimer(timer);
+      connected();
       ws?.close(1000);
       finish();
     },

@@ -1,6 +1,6 @@
 import { ErrorCodes, makeError } from '../core/errors.js';
 import { exitCodeFor } from '../run/result.js';
-import type { SessionEnd } from '../session/session-types.js';
+import { SAFETY_END_REASONS, type SessionEnd } from '../session/session-types.js';
 import type { LiveAlarm, LiveRunInfo, LiveSample, ServerMessage } from './live-types.js';
 
 /** What the terminal viewer shows, folded from the live-feed messages. Pure. */
@@ -71,14 +71,7 @@ export function applyMessage(view: WatchView, m: ServerMessage): boolean {
   }
 }
 
-const END_REASONS = new Set<string>([
-  'cutoff',
-  'stopped',
-  'over_temperature',
-  'link_lost',
-  'fault',
-  'refused',
-]);
+const END_REASONS = new Set<string>(['cutoff', 'stopped', 'refused', ...SAFETY_END_REASONS]);
 
 /** The run's exit code from result.json's end_reason (and end_detail), the daemon's own mapping. */
 export function exitCodeForResult(result: Record<string, unknown>): number {

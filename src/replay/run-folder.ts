@@ -14,9 +14,8 @@ import { readCheckpointFile, readResultFile, type Checkpoint } from './run-json.
 import { parseManifest, type RunManifest } from './run-manifest.js';
 import {
   blankSampleRecord,
+  SampleReader,
   checkSampleHeader,
-  parseSampleBytes,
-  parseSampleLine,
   SampleLineError,
   type SampleRecord,
 } from './sample-csv.js';
@@ -189,6 +188,7 @@ async function* visitRunSamples(
   visit: (row: SampleRecord) => void,
 ): AsyncGenerator<void> {
   const row = blankSampleRecord();
+  const reader = new SampleReader();
   const channel = run.manifest.channel;
   const lastFile = run.sampleFiles.length - 1;
   for (const [fi, f] of run.sampleFiles.entries()) {
@@ -219,7 +219,7 @@ async function* visitRunSamples(
         return true;
       }
       try {
-        parseSampleLine(line.text, row);
+        reader.parseLine(line.text, row);
       } catch (e) {
         if (!(e instanceof SampleLineError)) throw e;
         if (cut) return false;
@@ -250,7 +250,7 @@ async function* visitRunSamples(
         }
         try {
           for (; k < starts.length; k++) {
-            parseSampleBytes(bytes, starts[k]!, ends[k]!, row);
+            reader.parseBytes(bytes, starts[k]!, ends[k]!, row);
             if (row.channel !== channel) throw wrongChannel(first + k);
             visit(row);
           }

@@ -4,10 +4,11 @@
  * recompute never runs on a profile the daemon itself would have refused.
  */
 import { Ajv, type SchemaObject } from 'ajv';
-import { parseCalibration, type Calibration } from '../calibration/calibration.js';
-import { parseRigProfile } from '../chain/rig-profile.js';
+import type { Calibration } from '../calibration/calibration.js';
+import { parseCalibration } from '../calibration/calibration-file.js';
+import { parseRigProfile } from '../chain/rig-profile-file.js';
 import type { RigProfile } from '../chain/rig-profile-types.js';
-import { parseChemistries } from '../chemistry/chemistries.js';
+import { parseChemistries } from '../chemistry/chemistry-file.js';
 import type { ChemistryProfile } from '../chemistry/chemistry-types.js';
 import { CellvigilError, ErrorCodes, makeError } from '../core/errors.js';
 

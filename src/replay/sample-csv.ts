@@ -154,31 +154,6 @@ export function blankSampleRecord(): SampleRecord {
   };
 }
 
-/** One row into a record (a new one unless given); throws SampleLineError saying which column is wrong. */
-export function parseSampleLine(
-  line: string,
-  into: SampleRecord = blankSampleRecord(),
-): SampleRecord {
-  // Only ASCII can be a valid row; other text goes straight to the rules and their message.
-  if (Buffer.byteLength(line, 'utf8') !== line.length)
-    return Object.assign(into, parseByRules(line));
-  // With a line end after it, as rows read from a file have.
-  const bytes = Buffer.from(`${line}\n`, 'latin1');
-  return readFast(bytes, 0, line.length, into) ? into : Object.assign(into, parseByRules(line));
-}
-
-/** The row in `bytes` from `start` to `end` (ASCII, its line end at `end`); as parseSampleLine. */
-export function parseSampleBytes(
-  bytes: Buffer,
-  start: number,
-  end: number,
-  into: SampleRecord = blankSampleRecord(),
-): SampleRecord {
-  return readFast(bytes, start, end, into)
-    ? into
-    : Object.assign(into, parseByRules(bytes.toString('latin1', start, end)));
-}
-
 function parseByRules(line: string): SampleRecord {
   const f = splitCsvLine(line);
   if (f === null) throw new SampleLineError('a quoted field is not closed');
@@ -225,17 +200,6 @@ function holds(bytes: Buffer, at: number, want: Buffer): boolean {
   return true;
 }
 
-/** A view of the buffer last read from, for reading four bytes at once. */
-let viewed: Buffer = Buffer.alloc(0);
-let view = new DataView(viewed.buffer, viewed.byteOffset, 0);
-function viewOf(b: Buffer): DataView {
-  if (b !== viewed) {
-    viewed = b;
-    view = new DataView(b.buffer, b.byteOffset, b.length);
-  }
-  return view;
-}
-
 /**
  * Text validated before and expected again (most rows repeat the last row's hour, state and
  * calibration id), compared four bytes at a time.
@@ -256,10 +220,9 @@ class KnownText {
     this.tail = Buffer.from(b.subarray(start + 4 * whole, end));
   }
 
-  /** Whether `b` holds the text at `at`; the caller has checked that it fits. */
-  at(b: Buffer, at: number): boolean {
+  /** Whether `b` (seen through `v`) holds the text at `at`; the caller has checked that it fits. */
+  at(b: Buffer, v: DataView, at: number): boolean {
     if (this.text.length === 0) return false;
-    const v = viewOf(b);
     const words = this.words;
     for (let k = 0; k < words.length; k++)
       if (v.getInt32(at + 4 * k, true) !== words[k]) return false;
@@ -323,122 +286,6 @@ const MAX = Float64Array.of(
   0,
   0,
 );
-const value = new Float64Array(KIND.length);
-/** Where the wall time of the row last scanned starts. */
-let wallAt = 0;
-/** A validated `YYYY-MM-DDTHH:` (hour 00-23): any minute and second of that hour is a valid time. */
-const hour = new KnownText();
-/** The state and calibration id of the last row, as `state,id`. */
-const stateAndId = new KnownText();
-let knownState = '';
-let knownId = '';
-
-/** `YYYY-MM-DDTHH:MM:SS.sssZ` at `i`, followed by a comma; a new date and hour is checked by Date.parse once. */
-function isWallTime(b: Buffer, i: number, end: number): boolean {
-  if (i + 24 >= end || b[i + 24] !== 44 || b[i + 23] !== 90 || b[i + 16] !== 58 || b[i + 19] !== 46)
-    return false;
-  if (
-    !twoDigits(b, i + 14, 59) ||
-    !twoDigits(b, i + 17, 59) ||
-    !twoDigits(b, i + 20, 99) ||
-    !twoDigits(b, i + 21, 99)
-  )
-    return false;
-  if (hour.at(b, i)) return true;
-  const prefix = b.toString('latin1', i, i + 14);
-  if (
-    !/^\d{4}-\d{2}-\d{2}T\d{2}:$/.test(prefix) ||
-    !twoDigits(b, i + 11, 23) ||
-    !Number.isFinite(Date.parse(`${prefix}00:00.000Z`))
-  )
-    return false;
-  hour.set(b, i, i + 14);
-  secondOfHour = -1;
-  return true;
-}
-
-/**
- * The first 14 columns into `value` (the wall time's place into `wallAt`); returns where the
- * state starts, or -1 for a row the fast way does not take. Whole numbers: digits (leading
- * zeros allowed, as /^\d+$/) up to the column's maximum. Decimals: `-?digits`, `-?digits.` or
- * `-?digits.digits`, or empty where allowed (NaN); up to 15 digits the value is their integer
- * over a power of ten, both exact, so the one rounding of the division gives the same double
- * as Number(); longer ones go to Number(). Flags: one or two hex digits.
- */
-function scanColumns(b: Buffer, start: number, end: number): number {
-  // The digit loops stop at the first byte that is not a digit without checking `end`: the
-  // line end at `end` is such a byte, and the checks after each loop refuse a field that ran
-  // into it. Without one there, the rules take the row.
-  if (b[end] !== 10 && b[end] !== 13) return -1;
-  let i = start;
-  for (let col = 0; col < KIND.length; col++) {
-    const kind = KIND[col]!;
-    if (kind === K_WHOLE) {
-      const first = i;
-      let n = 0;
-      for (; ; i++) {
-        const d = b[i]! - 48;
-        // One unsigned comparison for the common case, a digit; a comma is 44 - 48 = -4.
-        if (d >>> 0 > 9) {
-          if (d === -4) break;
-          return -1;
-        }
-        n = n * 10 + d;
-      }
-      if (i === first || i === end || n > MAX[col]!) return -1;
-      value[col] = n;
-    } else if (kind === K_WALL) {
-      if (!isWallTime(b, i, end)) return -1;
-      wallAt = i;
-      i += 24;
-    } else if (kind === K_FLAGS) {
-      if (i + 2 >= end) return -1;
-      const hi = hexDigit(b[i]!);
-      if (hi < 0) return -1;
-      if (b[i + 1] === 44) {
-        value[col] = hi;
-        i += 1;
-      } else {
-        const lo = hexDigit(b[i + 1]!);
-        if (lo < 0 || b[i + 2] !== 44) return -1;
-        value[col] = hi * 16 + lo;
-        i += 2;
-      }
-    } else {
-      const first = i;
-      const negative = b[i] === 45;
-      if (negative) i++;
-      const digitsFrom = i;
-      let point = -1;
-      let m = 0;
-      for (; ; i++) {
-        const d = b[i]! - 48;
-        if (d >>> 0 <= 9) {
-          m = m * 10 + d;
-          continue;
-        }
-        if (d === -4) break;
-        if (d !== -2 || point >= 0) return -1;
-        point = i;
-      }
-      if (i === end) return -1;
-      if (i === first && kind === K_DECIMAL_OR_EMPTY) value[col] = Number.NaN;
-      else {
-        if (i === digitsFrom || point === digitsFrom) return -1;
-        const digits = i - digitsFrom - (point < 0 ? 0 : 1);
-        const x =
-          digits > 15
-            ? Number(b.toString('latin1', digitsFrom, i))
-            : point < 0
-              ? m
-              : m / POW10[i - point - 1]!;
-        value[col] = negative ? -x : x;
-      }
-    }
-    i++; // the comma
-  }
-  return i;
-}
 
 const pad = (n: number, width: number): string => String(n).padStart(width, '0');
 /** `MM:SS.` for every minute and second of an hour, and `sssZ` for every millisecond. */
@@ -447,58 +294,228 @@ const MINUTE_SECOND = Array.from(
   (_, k) => `${pad(Math.floor(k / 60), 2)}:${pad(k % 60, 2)}.`,
 );
 const MILLI_Z = Array.from({ length: 1000 }, (_, k) => `${pad(k, 3)}Z`);
-/** The wall time of the last row up to its second (`YYYY-MM-DDTHH:MM:SS.`): rows come many a second. */
-let secondOfHour = -1;
-let secondText = '';
 
-/*
- * The fast way through a row as the daemon writes it, in one pass over its bytes without
- * splitting or regular expressions: a recompute reads millions. It takes only what the rules
- * above surely accept, with the values they give, and hands anything else (quotes, exponents,
- * odd widths, every fault) back to them, so results and messages are the rules' own.
+/**
+ * Reads the rows of one sample file, one after another. Each reader keeps what it learnt from the
+ * rows before (the hour, the state and calibration id, the second) to itself: two readers at once
+ * never share it.
  */
-function readFast(b: Buffer, start: number, end: number, r: SampleRecord): boolean {
-  const stateAt = scanColumns(b, start, end);
-  if (stateAt < 0) return false;
-  if (end - stateAt !== stateAndId.length || !stateAndId.at(b, stateAt)) {
-    let comma = stateAt;
-    while (comma < end && b[comma] !== 44) comma++;
-    if (comma === end) return false;
-    const state = STATE_BYTES.find(
-      (s) => comma - stateAt === s.bytes.length && holds(b, stateAt, s.bytes),
-    );
-    if (state === undefined) return false;
-    const id = b.toString('latin1', comma + 1, end);
-    if (!/^(none|[0-9a-f]{16})$/.test(id)) return false;
-    stateAndId.set(b, stateAt, end);
-    knownState = state.text;
-    knownId = id;
+export class SampleReader {
+  /** The first 14 columns of the row last scanned. */
+  private readonly value = new Float64Array(KIND.length);
+  /** Where the wall time of the row last scanned starts. */
+  private wallAt = 0;
+  /** A validated `YYYY-MM-DDTHH:` (hour 00-23): any minute and second of that hour is a valid time. */
+  private readonly hour = new KnownText();
+  /** The state and calibration id of the last row, as `state,id`. */
+  private readonly stateAndId = new KnownText();
+  private knownState = '';
+  private knownId = '';
+  /** The wall time of the last row up to its second (`YYYY-MM-DDTHH:MM:SS.`): rows come many a second. */
+  private secondOfHour = -1;
+  private secondText = '';
+  /** A view of the buffer last read from, for reading four bytes at once. */
+  private viewed: Buffer = Buffer.alloc(0);
+  private view = new DataView(this.viewed.buffer, this.viewed.byteOffset, 0);
+
+  /** One row into a record (a new one unless given); throws SampleLineError saying which column is wrong. */
+  parseLine(line: string, into: SampleRecord = blankSampleRecord()): SampleRecord {
+    // Only ASCII can be a valid row; other text goes straight to the rules and their message.
+    if (Buffer.byteLength(line, 'utf8') !== line.length)
+      return Object.assign(into, parseByRules(line));
+    // With a line end after it, as rows read from a file have.
+    const bytes = Buffer.from(`${line}\n`, 'latin1');
+    return this.readFast(bytes, 0, line.length, into)
+      ? into
+      : Object.assign(into, parseByRules(line));
   }
-  // The same text as the wall time's bytes, from pieces already made: no string is decoded per row.
-  const w = wallAt;
-  const minute = (b[w + 14]! - 48) * 10 + b[w + 15]! - 48;
-  const second = (b[w + 17]! - 48) * 10 + b[w + 18]! - 48;
-  const milli = (b[w + 20]! - 48) * 100 + (b[w + 21]! - 48) * 10 + b[w + 22]! - 48;
-  if (minute * 60 + second !== secondOfHour) {
-    secondOfHour = minute * 60 + second;
-    secondText = hour.text + MINUTE_SECOND[secondOfHour]!;
+
+  /** The row in `bytes` from `start` to `end` (ASCII, its line end at `end`); as parseLine. */
+  parseBytes(
+    bytes: Buffer,
+    start: number,
+    end: number,
+    into: SampleRecord = blankSampleRecord(),
+  ): SampleRecord {
+    return this.readFast(bytes, start, end, into)
+      ? into
+      : Object.assign(into, parseByRules(bytes.toString('latin1', start, end)));
   }
-  const v = value;
-  r.hostS = v[0]!;
-  r.wallTime = secondText + MILLI_Z[milli]!;
-  r.channel = v[2]!;
-  r.seq = v[3]!;
-  r.tickMs = v[4]!;
-  r.vRaw = v[5]!;
-  r.iRaw = v[6]!;
-  r.tRaw = v[7]!;
-  r.flags = v[8]!;
-  r.volts = v[9]!;
-  r.amps = v[10]!;
-  r.celsius = v[11]!;
-  r.chargeAh = v[12]!;
-  r.energyWh = v[13]!;
-  r.state = knownState;
-  r.calibrationId = knownId;
-  return true;
+
+  private viewOf(b: Buffer): DataView {
+    if (b !== this.viewed) {
+      this.viewed = b;
+      this.view = new DataView(b.buffer, b.byteOffset, b.length);
+    }
+    return this.view;
+  }
+
+  /** `YYYY-MM-DDTHH:MM:SS.sssZ` at `i`, followed by a comma; a new date and hour is checked by Date.parse once. */
+  private isWallTime(b: Buffer, i: number, end: number): boolean {
+    if (
+      i + 24 >= end ||
+      b[i + 24] !== 44 ||
+      b[i + 23] !== 90 ||
+      b[i + 16] !== 58 ||
+      b[i + 19] !== 46
+    )
+      return false;
+    if (
+      !twoDigits(b, i + 14, 59) ||
+      !twoDigits(b, i + 17, 59) ||
+      !twoDigits(b, i + 20, 99) ||
+      !twoDigits(b, i + 21, 99)
+    )
+      return false;
+    if (this.hour.at(b, this.viewOf(b), i)) return true;
+    const prefix = b.toString('latin1', i, i + 14);
+    if (
+      !/^\d{4}-\d{2}-\d{2}T\d{2}:$/.test(prefix) ||
+      !twoDigits(b, i + 11, 23) ||
+      !Number.isFinite(Date.parse(`${prefix}00:00.000Z`))
+    )
+      return false;
+    this.hour.set(b, i, i + 14);
+    this.secondOfHour = -1;
+    return true;
+  }
+
+  /**
+   * The first 14 columns into `value` (the wall time's place into `wallAt`); returns where the
+   * state starts, or -1 for a row the fast way does not take. Whole numbers: digits (leading
+   * zeros allowed, as /^\d+$/) up to the column's maximum. Decimals: `-?digits`, `-?digits.` or
+   * `-?digits.digits`, or empty where allowed (NaN); up to 15 digits the value is their integer
+   * over a power of ten, both exact, so the one rounding of the division gives the same double
+   * as Number(); longer ones go to Number(). Flags: one or two hex digits.
+   */
+  private scanColumns(b: Buffer, start: number, end: number): number {
+    const value = this.value;
+    // The digit loops stop at the first byte that is not a digit without checking `end`: the
+    // line end at `end` is such a byte, and the checks after each loop refuse a field that ran
+    // into it. Without one there, the rules take the row.
+    if (b[end] !== 10 && b[end] !== 13) return -1;
+    let i = start;
+    for (let col = 0; col < KIND.length; col++) {
+      const kind = KIND[col]!;
+      if (kind === K_WHOLE) {
+        const first = i;
+        let n = 0;
+        for (; ; i++) {
+          const d = b[i]! - 48;
+          // One unsigned comparison for the common case, a digit; a comma is 44 - 48 = -4.
+          if (d >>> 0 > 9) {
+            if (d === -4) break;
+            return -1;
+          }
+          n = n * 10 + d;
+        }
+        if (i === first || i === end || n > MAX[col]!) return -1;
+        value[col] = n;
+      } else if (kind === K_WALL) {
+        if (!this.isWallTime(b, i, end)) return -1;
+        this.wallAt = i;
+        i += 24;
+      } else if (kind === K_FLAGS) {
+        if (i + 2 >= end) return -1;
+        const hi = hexDigit(b[i]!);
+        if (hi < 0) return -1;
+        if (b[i + 1] === 44) {
+          value[col] = hi;
+          i += 1;
+        } else {
+          const lo = hexDigit(b[i + 1]!);
+          if (lo < 0 || b[i + 2] !== 44) return -1;
+          value[col] = hi * 16 + lo;
+          i += 2;
+        }
+      } else {
+        const first = i;
+        const negative = b[i] === 45;
+        if (negative) i++;
+        const digitsFrom = i;
+        let point = -1;
+        let m = 0;
+        for (; ; i++) {
+          const d = b[i]! - 48;
+          if (d >>> 0 <= 9) {
+            m = m * 10 + d;
+            continue;
+          }
+          if (d === -4) break;
+          if (d !== -2 || point >= 0) return -1;
+          point = i;
+        }
+        if (i === end) return -1;
+        if (i === first && kind === K_DECIMAL_OR_EMPTY) value[col] = Number.NaN;
+        else {
+          if (i === digitsFrom || point === digitsFrom) return -1;
+          const digits = i - digitsFrom - (point < 0 ? 0 : 1);
+          const x =
+            digits > 15
+              ? Number(b.toString('latin1', digitsFrom, i))
+              : point < 0
+                ? m
+                : m / POW10[i - point - 1]!;
+          value[col] = negative ? -x : x;
+        }
+      }
+      i++; // the comma
+    }
+    return i;
+  }
+
+  /*
+   * The fast way through a row as the daemon writes it, in one pass over its bytes without
+   * splitting or regular expressions: a recompute reads millions. It takes only what the rules
+   * above surely accept, with the values they give, and hands anything else (quotes, exponents,
+   * odd widths, every fault) back to them, so results and messages are the rules' own.
+   */
+  private readFast(b: Buffer, start: number, end: number, r: SampleRecord): boolean {
+    const stateAt = this.scanColumns(b, start, end);
+    if (stateAt < 0) return false;
+    if (
+      end - stateAt !== this.stateAndId.length ||
+      !this.stateAndId.at(b, this.viewOf(b), stateAt)
+    ) {
+      let comma = stateAt;
+      while (comma < end && b[comma] !== 44) comma++;
+      if (comma === end) return false;
+      const state = STATE_BYTES.find(
+        (s) => comma - stateAt === s.bytes.length && holds(b, stateAt, s.bytes),
+      );
+      if (state === undefined) return false;
+      const id = b.toString('latin1', comma + 1, end);
+      if (!/^(none|[0-9a-f]{16})$/.test(id)) return false;
+      this.stateAndId.set(b, stateAt, end);
+      this.knownState = state.text;
+      this.knownId = id;
+    }
+    // The same text as the wall time's bytes, from pieces already made: no string is decoded per row.
+    const w = this.wallAt;
+    const minute = (b[w + 14]! - 48) * 10 + b[w + 15]! - 48;
+    const second = (b[w + 17]! - 48) * 10 + b[w + 18]! - 48;
+    const milli = (b[w + 20]! - 48) * 100 + (b[w + 21]! - 48) * 10 + b[w + 22]! - 48;
+    if (minute * 60 + second !== this.secondOfHour) {
+      this.secondOfHour = minute * 60 + second;
+      this.secondText = this.hour.text + MINUTE_SECOND[this.secondOfHour]!;
+    }
+    const v = this.value;
+    r.hostS = v[0]!;
+    r.wallTime = this.secondText + MILLI_Z[milli]!;
+    r.channel = v[2]!;
+    r.seq = v[3]!;
+    r.tickMs = v[4]!;
+    r.vRaw = v[5]!;
+    r.iRaw = v[6]!;
+    r.tRaw = v[7]!;
+    r.flags = v[8]!;
+    r.volts = v[9]!;
+    r.amps = v[10]!;
+    r.celsius = v[11]!;
+    r.chargeAh = v[12]!;
+    r.energyWh = v[13]!;
+    r.state = this.knownState;
+    r.calibrationId = this.knownId;
+    return true;
+  }
 }

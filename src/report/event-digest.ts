@@ -4,6 +4,7 @@
  * the rejected-line count.
  */
 import type { EventRecord } from '../run/event-log.js';
+import { SAFETY_END_REASONS } from '../session/session-types.js';
 
 /** Events that call for attention in the report. */
 const ALARMS = new Set([
@@ -21,8 +22,11 @@ const ALARMS = new Set([
   'signal',
   'unlogged_discharge',
   'calibration_rejected',
+  'implausible_reading',
+  'implausible_summary',
+  'open_load',
 ]);
-const SAFETY_ENDS = new Set(['over_temperature', 'link_lost', 'fault']);
+const SAFETY_ENDS = new Set<string>(SAFETY_END_REASONS);
 
 export interface ListedEvent {
   hostS: number;

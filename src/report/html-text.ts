@@ -40,3 +40,25 @@ export function hms(seconds: number | null | undefined): string {
 export function cell(key: string, value: number | null, text: string): string {
   return `<td data-key="${esc(key)}" data-value="${value === null || !Number.isFinite(value) ? '' : String(value)}">${esc(text)}</td>`;
 }
+
+/**
+ * An ISO time as local date and time with the zone it is in, e.g. "2026-12-03 10:15:02 CET"
+ * (the zone of the machine writing the report unless one is given).
+ */
+export function localTime(iso: string, timeZone?: string): string {
+  const d = new Date(iso);
+  if (Number.isNaN(d.getTime())) return iso;
+  const parts = new Intl.DateTimeFormat('en-CA', {
+    year: 'numeric',
+    month: '2-digit',
+    day: '2-digit',
+    hour: '2-digit',
+    minute: '2-digit',
+    second: '2-digit',
+    hourCycle: 'h23',
+    timeZoneName: 'short',
+    ...(timeZone !== undefined ? { timeZone } : {}),
+  }).formatToParts(d);
+  const get = (t: string): string => parts.find((p) => p.type === t)?.value ?? '';
+  return `${get('year')}-${get('month')}-${get('day')} ${get('hour')}:${get('minute')}:${get('second')} ${get('timeZoneName')}`;
+}

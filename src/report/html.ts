@@ -8,7 +8,8 @@ import type { FigureUncertainty } from '../results/uncertainty.js';
 import { cautionLines } from '../run/cautions.js';
 import type { ResistanceMethod, ResistanceSummary } from './dc-resistance.js';
 import { page, section, VOLTAGE_COLOUR } from './html-page.js';
-import { cell, esc, hms, num, sig } from './html-text.js';
+import { eventRowHtml, eventRows } from './html-events.js';
+import { cell, esc, hms, localTime, num, sig } from './html-text.js';
 import type { RunFigures } from './recompute.js';
 import { timePlots, voltageChargePlot, voltageChargeSeries } from './run-plots.js';
 import type { Verdict } from './verdicts.js';
@@ -27,12 +28,20 @@ const ah = (x: number | null): string =>
       ? `${x.toFixed(4)} Ah (${(x * 1000).toFixed(1)} mAh)`
       : `${x.toFixed(3)} Ah`;
 
+/** End reasons that are safety limits, in words. */
+const SAFETY_WORDS: Record<string, string> = {
+  over_temperature: 'the cell passed its temperature limit',
+  link_lost: 'the link to the rig was lost',
+  fault: 'a rig or sensor fault',
+};
+
 export function figuresTable(f: RunFigures): string {
   const r = f.result;
   const uq = r.uncertainty.capacity_Ah;
   const ue = r.uncertainty.energy_Wh;
   const rel = (u: FigureUncertainty, x: number): string =>
     x !== 0 ? ` (${((u.expanded / Math.abs(x)) * 100).toFixed(2)} %)` : '';
+  const safety = r.end_reason in SAFETY_WORDS;
   const rows: string[] = [
     `<tr><th>Capacity</th>${cell('capacity_Ah', r.capacity_Ah, ah(r.capacity_Ah))}${cell('uncertainty.capacity_Ah.expanded', uq.expanded, `± ${uq.expanded.toFixed(4)} Ah${rel(uq, r.capacity_Ah)}, k = 2`)}</tr>`,
     `<tr><th>Energy</th>${cell('energy_Wh', r.energy_Wh, `${r.energy_Wh.toFixed(4)} Wh`)}${cell('uncertainty.energy_Wh.expanded', ue.expanded, `± ${ue.expanded.toFixed(4)} Wh${rel(ue, r.energy_Wh)}, k = 2`)}</tr>`,
@@ -51,9 +60,12 @@ export function figuresTable(f: RunFigures): string {
     `<tr><th>Open-circuit voltage</th>${cell('open_circuit_V', r.open_circuit_V, `${num(r.open_circuit_V, 3)} V`)}<td class="small">at rest just before the load went on</td></tr>`,
     `<tr><th>DC internal resistance</th>${cell('dc_resistance_ohm', r.dc_resistance_ohm, r.dc_resistance_ohm === null ? '—' : `${(r.dc_resistance_ohm * 1000).toFixed(1)} mΩ`)}<td class="small">at switch-on: (U_open − U_load) ÷ I_load</td></tr>`,
     `<tr><th>Cell temperature</th>${cell('temperature_max_C', f.temperature.maxC, `${num(f.temperature.startC, 1)} °C at the start, ${num(f.temperature.maxC, 1)} °C at most`)}<td class="small">limit ${f.manifest.limits.max_temperature_C} °C</td></tr>`,
-    `<tr><th>How it ended</th><td data-key="end_reason">${esc(r.end_reason)}</td><td class="small">${esc(r.end_detail)}</td></tr>`,
+    `<tr${safety ? ' class="safety-end"' : ''}><th>How it ended</th><td data-key="end_reason">${esc(r.end_reason)}</td><td class="small">${esc(r.end_detail)}</td></tr>`,
   ];
-  return `<table class="figures"><tbody>\n${rows.join('\n')}\n</tbody></table>`;
+  const banner = safety
+    ? `<div class="box safety-end" data-end="safety"><div class="label">Ended on a safety limit</div><p><strong>${esc(SAFETY_WORDS[r.end_reason] ?? r.end_reason)}</strong>: ${esc(r.end_detail)}. The figures below stop where the load was cut; check the cell, the wiring and the rig before another run.</p></div>`
+    : '';
+  return `${banner}<div class="scroll"><table class="figures"><tbody>\n${rows.join('\n')}\n</tbody></table></div>`;
 }
 
 function verdictBox(v: Verdict | null, chemistry: string): string {
@@ -73,7 +85,9 @@ function stepsTable(f: RunFigures): string {
   const rated = f.result.rated_Ah;
   const head = `<thead><tr><th>down to (V per cell)</th><th>down to (V)</th><th>capacity (Ah)</th><th>energy (Wh)</th><th>${rated === null ? 'share of this run' : 'share of the rating'}</th><th>load-on time</th></tr></thead>`;
   // The values of the result file, so that the page and the file agree to the last digit.
-  const rows = f.result.capacity_by_voltage.map((s) => {
+  const reached = f.result.capacity_by_voltage.filter((s) => s.capacity_Ah !== null);
+  const unreached = f.result.capacity_by_voltage.length - reached.length;
+  const rows = reached.map((s) => {
     const share = s.capacity_Ah === null ? null : (s.capacity_Ah / (rated ?? total)) * 100;
     return `<tr>${cell('step.V_per_cell', s.V_per_cell, s.V_per_cell.toFixed(3))}${cell('step.V', s.V, s.V.toFixed(3))}${cell('step.capacity_Ah', s.capacity_Ah, s.capacity_Ah === null ? 'not reached' : s.capacity_Ah.toFixed(4))}${cell('step.energy_Wh', s.energy_Wh, num(s.energy_Wh, 4))}<td class="num">${share === null ? '—' : `${share.toFixed(1)} %`}</td><td class="num">${hms(s.load_on_s)}</td></tr>`;
   });
@@ -81,6 +95,7 @@ function stepsTable(f: RunFigures): string {
     `<tr class="total"><th colspan="2">whole run (to ${num(f.result.end_voltage_V, 3)} V)</th>${cell('capacity_Ah', total, total.toFixed(4))}${cell('energy_Wh', f.result.energy_Wh, f.result.energy_Wh.toFixed(4))}<td class="num">${rated === null ? '100 %' : `${num(f.result.percent_of_rated, 1)} %`}</td><td class="num">${hms(f.result.duration_s)}</td></tr>`,
   );
   return `<table class="steps" data-table="capacity-by-voltage">${head}<tbody>\n${rows.join('\n')}\n</tbody></table>
+${unreached > 0 ? `<p class="small">${unreached} lower step${unreached > 1 ? 's were' : ' was'} not reached before the run ended.</p>` : ''}
 <p class="small">A step counts as passed when the loaded voltage has stayed below it for three loaded frames in a row; the figures are those at the first of them. Steps every ${f.stepPerCellV} V per cell.</p>`;
 }
 
@@ -181,20 +196,18 @@ function eventsSection(f: RunFigures): string {
     .map(([k, v]) => `${esc(k)} ${v}`)
     .join(', ');
   if (ev.listed.length === 0) return '<p class="small">The run has no events.</p>';
-  const rows = ev.listed.map(
-    (e) =>
-      `<tr${e.alarm ? ' class="alarm"' : ''}><td class="num">${hms(e.hostS)}</td><td>${e.alarm ? 'alarm' : 'info'}</td><td>${esc(e.name)}</td><td class="small">${esc(e.detail)}</td></tr>`,
-  );
+  const rows = eventRows(ev.listed).map(eventRowHtml);
   return `<p class="small">By name: ${counts}.${ev.unlisted ? ` ${ev.unlisted} more (commands, the cautions and repeated rejected lines) are counted but not listed.` : ''}</p>
-<table data-table="events"><thead><tr><th>time</th><th>kind</th><th>event</th><th>detail</th></tr></thead><tbody>
+<p class="small">Lost frames, rejected lines and gaps are summed per minute.</p>
+<div class="scroll"><table data-table="events"><thead><tr><th>time</th><th>level</th><th>event</th><th>detail</th></tr></thead><tbody>
 ${rows.join('\n')}
-</tbody></table>`;
+</tbody></table></div>`;
 }
 
 export function runHeading(f: RunFigures): string {
   const m = f.manifest;
   return `<h1>Discharge report: ${esc(m.label)}</h1>
-<p class="sub">${esc(basename(f.folder))} · started ${esc(m.started_wall)} · ${m.cells} × ${esc(m.chemistry.profile.name)} · rig “${esc(m.rig.profile.name ?? 'unnamed')}” · ${esc(m.source.description)} · channel ${m.channel}</p>`;
+<p class="sub">${esc(basename(f.folder))} · started <time datetime="${esc(m.started_wall)}">${esc(localTime(m.started_wall))}</time> · ${m.cells} × ${esc(m.chemistry.profile.name)} · rig “${esc(m.rig.profile.name ?? 'unnamed')}” · ${esc(m.source.description)} · channel ${m.channel}</p>`;
 }
 
 export function renderRunReport(f: RunFigures, o: RenderOptions = {}): string {
@@ -210,7 +223,7 @@ export function renderRunReport(f: RunFigures, o: RenderOptions = {}): string {
     section(
       'plots',
       'Plots',
-      `${voltageChargePlot([voltageChargeSeries(f.curve, 'loaded voltage', VOLTAGE_COLOUR)], f.result.cutoff_V)}\n${timePlots(f.curve, f.result.cutoff_V)}`,
+      `${voltageChargePlot([voltageChargeSeries(f.curve, 'loaded voltage', VOLTAGE_COLOUR)], f.result.cutoff_V)}\n${timePlots(f.curve, f.result.cutoff_V, m.limits.max_temperature_C)}`,
     ),
     section('capacity-by-voltage', 'Capacity and energy down to each voltage', stepsTable(f)),
     section(

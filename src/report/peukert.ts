@@ -83,3 +83,65 @@ export function fitPeukert(runs: readonly PeukertRun[], rateHours = 20): Peukert
     currentRangeA: [Math.min(...cs), Math.max(...cs)],
   };
 }
+
+/** A run offered to the Peukert fit, with what decides whether it belongs with the others. */
+export interface PeukertCandidate extends PeukertRun {
+  name: string;
+  chemistry: string;
+  cells: number;
+  /** The rated capacity given for it, Ah, or null. */
+  ratedAh: number | null;
+  /** What it gave down to its cutoff, Ah. */
+  capacityAh: number;
+  endReason: string;
+}
+
+export interface PeukertSelection {
+  used: PeukertCandidate[];
+  excluded: Array<{ name: string; why: string }>;
+  /** What the used runs share, in words ("1 × li-ion, rated 2.6 Ah"). */
+  group: string | null;
+}
+
+/**
+ * Capacities further apart than this factor are not one kind of cell: the rate changes what a
+ * cell gives by tens of percent, not by a factor of two (common practice).
+ */
+export const SAME_KIND_FACTOR = 2;
+
+/**
+ * Which runs one Peukert law can describe: runs to the cutoff of one chemistry and cell count,
+ * and of one rated capacity (when given) or capacities within SAME_KIND_FACTOR of each other.
+ * The largest such group is kept; every other run is named with the reason it was left out.
+ */
+export function selectPeukertRuns(runs: readonly PeukertCandidate[]): PeukertSelection {
+  const excluded: Array<{ name: string; why: string }> = [];
+  const ended = runs.filter((r) => {
+    if (r.endReason === 'cutoff') return true;
+    excluded.push({ name: r.name, why: `ended by ${r.endReason}, not at its cutoff` });
+    return false;
+  });
+  const key = (r: PeukertCandidate): string =>
+    `${r.cells} × ${r.chemistry}${r.ratedAh !== null ? `, rated ${r.ratedAh} Ah` : ''}`;
+  const groups = new Map<string, PeukertCandidate[]>();
+  for (const r of ended) groups.set(key(r), [...(groups.get(key(r)) ?? []), r]);
+  const [group, members] = [...groups.entries()].sort((a, b) => b[1].length - a[1].length)[0] ?? [
+    null,
+    [],
+  ];
+  for (const r of ended)
+    if (key(r) !== group) excluded.push({ name: r.name, why: `${key(r)}, not ${group}` });
+  const caps = members.map((r) => r.capacityAh).sort((a, b) => a - b);
+  const median = caps[Math.floor(caps.length / 2)] ?? 0;
+  const used = members.filter((r) => {
+    const ok =
+      r.capacityAh * SAME_KIND_FACTOR >= median && r.capacityAh <= median * SAME_KIND_FACTOR;
+    if (!ok)
+      excluded.push({
+        name: r.name,
+        why: `gave ${r.capacityAh.toPrecision(3)} Ah where the others gave about ${median.toPrecision(3)} Ah: another kind of cell`,
+      });
+    return ok;
+  });
+  return { used, excluded, group };
+}

@@ -6,7 +6,7 @@
  */
 import { applyCalibration, type Calibration, type Corrector } from '../calibration/calibration.js';
 import { AnalogChain } from '../chain/analog-chain.js';
-import { PACKAGE_VERSION } from '../core/paths.js';
+import { packageVersion } from '../core/paths.js';
 import { FLAG_LOAD_ON } from '../protocol/messages.js';
 import { forEachRunSample, readRunEvents, type RunFolder } from '../replay/run-folder.js';
 import type { Checkpoint } from '../replay/run-json.js';
@@ -15,6 +15,7 @@ import type { SampleRecord } from '../replay/sample-csv.js';
 import { runUncertainty } from '../results/uncertainty.js';
 import { buildResult, CLOCK_WARN_PPM, type RunResult } from '../run/result.js';
 import { Integrator } from '../session/integrator.js';
+import { Plausibility, plausibilityFor } from '../session/plausibility.js';
 import { RateEstimator } from '../timebase/rate-estimator.js';
 import { Unwrapper } from '../timebase/unwrap.js';
 import { CurveBuilder, loadedVoltageAtCharge, type CurveBucket, type CurvePoint } from './curve.js';
@@ -151,10 +152,16 @@ class DistinctCodes {
   }
 }
 
+/** States in which the session checks a frame's readings before integrating it. */
+const CHECKED_STATES = new Set(['starting', 'discharging', 'stopping', 'ended']);
+
 export class RunRecompute {
   private readonly chain: AnalogChain;
   private readonly corrector: Corrector;
   private readonly integrator = new Integrator();
+  /** The live run's check of readings that cannot be true, applied to the same rows. */
+  private readonly plausibility: Plausibility;
+  private readonly plausibleIn = { atMs: 0, volts: 0, amps: 0, loadOn: false };
   private readonly digest = new EventDigest();
   private readonly curve = new CurveBuilder();
   private readonly steps: VoltageSteps;
@@ -223,6 +230,13 @@ export class RunRecompute {
   ) {
     this.chain = new AnalogChain(manifest.rig.profile);
     this.corrector = applyCalibration(calibration);
+    this.plausibility = new Plausibility(
+      plausibilityFor({
+        maxRestVPerCell: manifest.chemistry.profile.max_rest_V_per_cell.value,
+        cells: manifest.cells,
+        ampsPerCount: this.chain.ampsPerCount,
+      }),
+    );
     this.stepPerCellV = o.stepPerCellV ?? 0.05;
     this.steps = new VoltageSteps({
       stepPerCellV: this.stepPerCellV,
@@ -234,6 +248,27 @@ export class RunRecompute {
   /** Feed every event first: a resumed run starts new integration segments where it resumed. */
   event(e: Parameters<EventDigest['add']>[0]): void {
     this.digest.add(e);
+  }
+
+  /**
+   * The session's verdict on a row's readings: checked in the states it checks them in (the
+   * row holds the state after its frame, which for a checked frame is one of these too).
+   */
+  private plausible(
+    state: string,
+    atMs: number,
+    volts: number,
+    amps: number,
+    loadOn: boolean,
+  ): boolean {
+    if (!loadOn) this.plausibility.observeOff(amps);
+    if (!CHECKED_STATES.has(state)) return true;
+    const x = this.plausibleIn;
+    x.atMs = atMs;
+    x.volts = volts;
+    x.amps = amps;
+    x.loadOn = loadOn;
+    return this.plausibility.check(x).plausible;
   }
 
   /** One row, read and not kept: the caller may reuse the record. */
@@ -332,7 +367,10 @@ export class RunRecompute {
         s.chargeAh !== live.chargeAh ||
         s.energyWh !== live.energyWh;
     }
-    if (integrate) {
+    if (integrate && !this.plausible(s.state, hostMs, volts, amps, loadOn)) {
+      // Left out as the live run left it: its time held at the last trusted reading.
+      this.integrator.hold(dtMs, loadOn);
+    } else if (integrate) {
       this.integrator.add(dtMs, volts, amps, loadOn, gap);
       const onA = loadOn ? nominalA : 0;
       this.nominalAh += ((this.prevNominalA + onA) / 2) * (dtMs / 3_600_000);
@@ -473,6 +511,7 @@ export class RunRecompute {
       lastLoadedV: Number.isNaN(this.lastLoadedV) ? null : this.lastLoadedV,
       cutoffV,
       counters: { accepted: this.rows, rejected, lost: this.lost },
+      implausibleFrames: this.plausibility.implausibleFrames,
       rigClockErrorPpm: errorPpm,
       calibration: cal,
       calibrationId: cal?.id ?? 'none',
@@ -576,7 +615,7 @@ export class RunRecompute {
           }
         : null,
       recomputed: {
-        cellvigil_version: PACKAGE_VERSION,
+        cellvigil_version: packageVersion(),
         calibration_file: ctx.calibrationFile,
         from_rows: this.rows,
         cut_lines: ctx.cutLines,

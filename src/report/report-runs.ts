@@ -8,12 +8,14 @@
  */
 import { writeFile } from 'node:fs/promises';
 import { basename, join } from 'node:path';
-import { loadCalibration, type Calibration } from '../calibration/calibration.js';
+import type { Calibration } from '../calibration/calibration.js';
+import { loadCalibration } from '../calibration/calibration-file.js';
 import { ErrorCodes, makeError } from '../core/errors.js';
 import { openRunFolder, type RunFolder } from '../replay/run-folder.js';
 import { writeJsonAtomic } from '../sinks/atomic-json.js';
 import { renderComparisonReport } from './html-compare.js';
 import { renderRunReport } from './html.js';
+import { checkRatedOption, ratedAgainstRun } from './rated-check.js';
 import { recomputeRun, type RunFigures } from './recompute.js';
 
 export interface ReportRequest {
@@ -63,14 +65,7 @@ function checkRequest(r: ReportRequest): void {
       'cellvigil report',
       'Name one or more run folders, e.g. cellvigil report runs/20261202-110000-demo.',
     );
-  if (r.ratedAh !== undefined && !(r.ratedAh > 0 && Number.isFinite(r.ratedAh))) {
-    throw makeError(
-      ErrorCodes.USAGE,
-      `rated capacity ${r.ratedAh} is not a positive number of Ah`,
-      '--rated',
-      'Give the capacity printed on the cell in Ah, e.g. --rated 2.6 for 2600 mAh.',
-    );
-  }
+  if (r.ratedAh !== undefined) checkRatedOption(r.ratedAh);
   if (
     r.stepPerCellV !== undefined &&
     !(r.stepPerCellV >= MIN_STEP_V && r.stepPerCellV <= MAX_STEP_V)
@@ -112,6 +107,15 @@ export async function reportRuns(r: ReportRequest): Promise<ReportOutcome> {
           }
         : {}),
     });
+    if (r.ratedAh !== undefined) {
+      const slip = ratedAgainstRun(
+        r.ratedAh,
+        figures.result.capacity_Ah,
+        figures.result.end_reason,
+        folder,
+      );
+      if (slip) throw slip;
+    }
     const resultName = resultFileName(run, figures.calibration.id);
     const resultPath = join(folder, resultName);
     const reportPath =

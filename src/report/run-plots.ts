@@ -3,6 +3,9 @@ import type { CurveBucket } from './curve.js';
 import { CURRENT_COLOUR, RULE_COLOUR, TEMPERATURE_COLOUR, VOLTAGE_COLOUR } from './html-page.js';
 import { linePlot, type PlotSeries } from './svg-plot.js';
 
+/** The resting voltage of a pulsed run: grey, beside the loaded line. */
+const REST_COLOUR = '#64748b';
+
 export interface TimeUnit {
   name: string;
   seconds: number;
@@ -38,6 +41,22 @@ type Pick = (b: CurveBucket) => { mean: number; lo: number; hi: number } | null;
 
 const pickVoltage: Pick = (b) => ({ mean: b.vSum / b.n, lo: b.vMin, hi: b.vMax });
 const pickCurrent: Pick = (b) => ({ mean: b.iSum / b.n, lo: b.iMin, hi: b.iMax });
+// A pulsed run's buckets hold loaded and resting frames; their plain mean would draw a line
+// between the two that the cell never showed. Loaded and resting are drawn apart instead.
+const pickLoadedVoltage: Pick = (b) =>
+  b.nOn > 0 ? { mean: b.vOnSum / b.nOn, lo: b.vMin, hi: b.vMax } : null;
+const pickRestingVoltage: Pick = (b) =>
+  b.n > b.nOn
+    ? { mean: (b.vSum - b.vOnSum) / (b.n - b.nOn), lo: Number.NaN, hi: Number.NaN }
+    : null;
+// With the load off no current flows, so the current while loaded is the sum over loaded frames.
+const pickLoadedCurrent: Pick = (b) =>
+  b.nOn > 0 ? { mean: b.iSum / b.nOn, lo: b.iMin, hi: b.iMax } : null;
+
+/** Whether some bucket mixes loaded and resting frames (a pulsed or scheduled run). */
+export function isPulsed(curve: readonly CurveBucket[]): boolean {
+  return curve.some((b) => b.nOn > 0 && b.nOn < b.n);
+}
 const pickTemperature: Pick = (b) =>
   b.tempN > 0 ? { mean: b.tempSum / b.tempN, lo: Number.NaN, hi: Number.NaN } : null;
 
@@ -77,7 +96,11 @@ export function voltageChargePlot(series: PlotSeries[], cutoffV: number | null):
 }
 
 /** Voltage, current and temperature against time since the start, one panel each. */
-export function timePlots(curve: readonly CurveBucket[], cutoffV: number | null): string {
+export function timePlots(
+  curve: readonly CurveBucket[],
+  cutoffV: number | null,
+  maxTemperatureC: number | null = null,
+): string {
   const { t0, t1 } = spanOf(curve);
   const unit = timeUnitFor(t1 - t0);
   const x = { label: `time since the start (${unit.name})`, min: 0 };
@@ -90,13 +113,22 @@ export function timePlots(curve: readonly CurveBucket[], cutoffV: number | null)
     TEMPERATURE_COLOUR,
     false,
   );
+  const pulsed = isPulsed(curve);
+  const voltageSeries = pulsed
+    ? [
+        timeSeries(curve, pickLoadedVoltage, unit, t0, 'loaded', VOLTAGE_COLOUR, true),
+        timeSeries(curve, pickRestingVoltage, unit, t0, 'at rest', REST_COLOUR, false),
+      ]
+    : [timeSeries(curve, pickVoltage, unit, t0, 'voltage', VOLTAGE_COLOUR, true)];
   return [
     linePlot({
       id: 'voltage-time',
-      title: 'Voltage against time (shaded: lowest to highest reading)',
+      title: pulsed
+        ? 'Voltage against time, loaded and at rest (shaded: lowest to highest reading)'
+        : 'Voltage against time (shaded: lowest to highest reading)',
       x,
       y: { label: 'voltage (V)' },
-      series: [timeSeries(curve, pickVoltage, unit, t0, 'voltage', VOLTAGE_COLOUR, true)],
+      series: voltageSeries,
       ...(cutoffV !== null
         ? { rules: [{ y: cutoffV, label: `cutoff ${cutoffV.toFixed(3)} V`, color: RULE_COLOUR }] }
         : {}),
@@ -107,15 +139,33 @@ export function timePlots(curve: readonly CurveBucket[], cutoffV: number | null)
       title: 'Current against time (shaded: lowest to highest reading)',
       x,
       y: { label: 'current (A)', min: 0 },
-      series: [timeSeries(curve, pickCurrent, unit, t0, 'current', CURRENT_COLOUR, true)],
+      series: [
+        timeSeries(
+          curve,
+          pulsed ? pickLoadedCurrent : pickCurrent,
+          unit,
+          t0,
+          pulsed ? 'current while loaded' : 'current',
+          CURRENT_COLOUR,
+          true,
+        ),
+      ],
       height: 240,
     }),
     linePlot({
       id: 'temperature-time',
-      title: 'Cell temperature against time',
+      title: 'Cell temperature against time (dashed: limit)',
       x,
       y: { label: 'temperature (°C)', minSpan: 4 },
       series: [temp],
+      // The limit is drawn, and kept in view, so the margin to it can be read off.
+      ...(maxTemperatureC !== null
+        ? {
+            rules: [
+              { y: maxTemperatureC, label: `limit ${maxTemperatureC} °C`, color: RULE_COLOUR },
+            ],
+          }
+        : {}),
       height: 240,
     }),
   ].join('\n');

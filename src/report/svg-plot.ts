@@ -10,6 +10,12 @@ export interface PlotSeries {
   points: ReadonlyArray<readonly [number, number]>;
   /** Shaded band: x, low, high. */
   band?: ReadonlyArray<readonly [number, number, number]>;
+  /** Vertical error bars: x, low, high. */
+  errorBars?: ReadonlyArray<readonly [number, number, number]>;
+  /** A dot at every point (for sparse series, such as one figure per run). */
+  markers?: boolean;
+  /** Join the points by a line. @default true */
+  line?: boolean;
 }
 
 export interface PlotAxis {
@@ -76,13 +82,21 @@ function label(v: number, step: number): string {
   return v.toFixed(digits);
 }
 
+/** Legend names longer than this are cut; an 11 px sans-serif character is about 6.4 px wide. */
+const LEGEND_CHARS = 26;
+const LEGEND_CHAR_PX = 6.4;
+
 export function linePlot(p: PlotSpec): string {
-  const W = p.width ?? 760;
+  const W = p.width ?? 1000;
   const H = p.height ?? 300;
   const m = { l: 64, r: 16, t: 34, b: 46 };
   const xs = p.series.flatMap((s) => s.points.map((q) => q[0]));
   const ys = p.series
-    .flatMap((s) => [...s.points.map((q) => q[1]), ...(s.band ?? []).flatMap((b) => [b[1], b[2]])])
+    .flatMap((s) => [
+      ...s.points.map((q) => q[1]),
+      ...(s.band ?? []).flatMap((b) => [b[1], b[2]]),
+      ...(s.errorBars ?? []).flatMap((b) => [b[1], b[2]]),
+    ])
     .concat((p.rules ?? []).map((r) => r.y));
   const [x0, x1] = extent(xs, p.x.min, p.x.max, p.x.minSpan);
   const [y0, y1] = extent(ys, p.y.min, p.y.max, p.y.minSpan);
@@ -144,10 +158,20 @@ export function linePlot(p: PlotSpec): string {
         `<polygon points="${[...upper, ...lower].join(' ')}" fill="${s.color}" fill-opacity="0.16" stroke="none"/>`,
       );
     }
-    if (s.points.length > 0) {
+    if (s.points.length > 0 && s.line !== false) {
       out.push(
         `<polyline data-series="${esc(s.name)}" data-points="${s.points.length}" points="${s.points.map((q) => `${f(px(q[0]))},${f(py(q[1]))}`).join(' ')}" fill="none" stroke="${s.color}" stroke-width="1.6" stroke-linejoin="round"/>`,
       );
+    }
+    for (const [x, lo, hi] of s.errorBars ?? []) {
+      const X = f(px(x));
+      out.push(
+        `<path class="cv-error-bar" d="M${X},${f(py(lo))}V${f(py(hi))}M${f(px(x) - 4)},${f(py(lo))}h8M${f(px(x) - 4)},${f(py(hi))}h8" stroke="${s.color}" stroke-width="1.2" fill="none"/>`,
+      );
+    }
+    if (s.markers) {
+      for (const [x, y] of s.points)
+        out.push(`<circle cx="${f(px(x))}" cy="${f(py(y))}" r="3" fill="${s.color}"/>`);
     }
   }
   out.push('</g>');
@@ -155,11 +179,21 @@ export function linePlot(p: PlotSpec): string {
     out.push(`<text x="${W / 2}" y="${H / 2}" text-anchor="middle" class="cv-axis">no data</text>`);
   }
   if (p.series.length > 1) {
+    // Names are cut to what the spacing allows, and the legend wraps before the frame's edge.
     let lx = m.l + 8;
+    let ly = m.t + 8;
     for (const s of p.series) {
-      out.push(`<rect x="${lx}" y="${m.t + 8}" width="14" height="3" fill="${s.color}"/>`);
-      out.push(`<text x="${lx + 18}" y="${m.t + 13}" class="cv-legend">${esc(s.name)}</text>`);
-      lx += 28 + Math.min(26, s.name.length) * 6.4;
+      const shown = s.name.length > LEGEND_CHARS ? `${s.name.slice(0, LEGEND_CHARS - 1)}…` : s.name;
+      const width = 28 + shown.length * LEGEND_CHAR_PX;
+      if (lx > m.l + 8 && lx + width > W - m.r) {
+        lx = m.l + 8;
+        ly += 15;
+      }
+      out.push(`<rect x="${lx}" y="${ly}" width="14" height="3" fill="${s.color}"/>`);
+      out.push(
+        `<text x="${lx + 18}" y="${ly + 5}" class="cv-legend" data-legend="${esc(s.name)}"><title>${esc(s.name)}</title>${esc(shown)}</text>`,
+      );
+      lx += width;
     }
   }
   out.push('</svg>');

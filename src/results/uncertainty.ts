@@ -112,16 +112,14 @@ function combine(terms: UncertaintyTerm[], basis: string): FigureUncertainty {
 
 const pct = (x: number): string => `${Number((x * 100).toPrecision(3))} %`;
 
-export function runUncertainty(x: UncertaintyInput): {
-  capacity_Ah: FigureUncertainty;
-  energy_Wh: FigureUncertainty;
-} {
-  const hours = x.onS / 3600;
+/** The charge's calibration (or uncalibrated gain and offset) terms into `qt`; returns the basis. */
+function chargeCalibrationTerms(
+  x: UncertaintyInput,
+  q: number,
+  hours: number,
+  qt: UncertaintyTerm[],
+): string {
   const cal = x.calibration;
-  const q = Math.abs(x.chargeAh);
-  const n = Math.max(1, x.samples);
-  const qt: UncertaintyTerm[] = [];
-  let basis: string;
   if (cal?.current) {
     const f = cal.current.fit;
     qt.push({
@@ -141,7 +139,7 @@ export function runUncertainty(x: UncertaintyInput): {
         over_run: 'correlated',
       });
     }
-    basis = `calibration ${cal.id}`;
+    return `calibration ${cal.id}`;
   } else {
     qt.push({
       name: 'uncalibrated current gain (rectangular ±5 %)',
@@ -157,8 +155,18 @@ export function runUncertainty(x: UncertaintyInput): {
       basis: 'rectangular, half-width 50 mA over the load-on time: a/√3',
       over_run: 'correlated',
     });
-    basis = 'no calibration: assumed rectangular errors of ±5 % gain and ±50 mA offset';
+    return 'no calibration: assumed rectangular errors of ±5 % gain and ±50 mA offset';
   }
+}
+
+/** The charge's noise, quantisation, time base and bridged-gap terms into `qt`. */
+function chargeReadingTerms(
+  x: UncertaintyInput,
+  q: number,
+  hours: number,
+  n: number,
+  qt: UncertaintyTerm[],
+): void {
   if (x.currentNoiseA !== undefined) {
     qt.push({
       name: 'current noise (averaged over the samples)',
@@ -192,10 +200,11 @@ export function runUncertainty(x: UncertaintyInput): {
       over_run: 'correlated',
     });
   }
-  const capacity = combine(qt, basis);
+}
 
-  // Energy: the charge terms scale by the mean voltage; the voltage channel adds its own.
-  const et: UncertaintyTerm[] = qt.map((t) => ({ ...t, u: t.u * x.meanVoltageV }));
+/** The voltage channel's own terms of the energy into `et`. */
+function voltageTerms(x: UncertaintyInput, q: number, n: number, et: UncertaintyTerm[]): void {
+  const cal = x.calibration;
   if (cal?.voltage) {
     const f = cal.voltage.fit;
     const vNominal = f.gain !== 0 ? (x.meanVoltageV - f.offset) / f.gain : x.meanVoltageV;
@@ -242,6 +251,23 @@ export function runUncertainty(x: UncertaintyInput): {
     basis: `rectangular ±½ count (${(x.voltsPerCount * 1000).toPrecision(3)} mV a count): a/√3, ÷ √${nqV}, times the charge`,
     over_run: 'averaged',
   });
+}
+
+export function runUncertainty(x: UncertaintyInput): {
+  capacity_Ah: FigureUncertainty;
+  energy_Wh: FigureUncertainty;
+} {
+  const hours = x.onS / 3600;
+  const q = Math.abs(x.chargeAh);
+  const n = Math.max(1, x.samples);
+  const qt: UncertaintyTerm[] = [];
+  const basis = chargeCalibrationTerms(x, q, hours, qt);
+  chargeReadingTerms(x, q, hours, n, qt);
+  const capacity = combine(qt, basis);
+
+  // Energy: the charge terms scale by the mean voltage; the voltage channel adds its own.
+  const et: UncertaintyTerm[] = qt.map((t) => ({ ...t, u: t.u * x.meanVoltageV }));
+  voltageTerms(x, q, n, et);
   const energy = combine(et, basis);
   return { capacity_Ah: capacity, energy_Wh: energy };
 }

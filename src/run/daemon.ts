@@ -4,19 +4,19 @@
  */
 import { rm } from 'node:fs/promises';
 import { join } from 'node:path';
-import { applyCalibration, loadCalibration, type Calibration } from '../calibration/calibration.js';
-import {
-  DEFAULT_CHEMISTRIES_PATH,
-  findChemistry,
-  loadChemistries,
-} from '../chemistry/chemistries.js';
-import { checkRestingVoltage } from '../chemistry/limits.js';
-import { HostClock, PacedClock, type Clock, type TimerHandle } from '../core/clock.js';
+import { applyCalibration, type Calibration } from '../calibration/calibration.js';
+import { loadCalibration } from '../calibration/calibration-file.js';
+import { findChemistry } from '../chemistry/chemistries.js';
+import { DEFAULT_CHEMISTRIES_PATH, loadChemistries } from '../chemistry/chemistry-file.js';
+import { checkStartVoltage } from '../chemistry/full-scale.js';
+import type { Clock, TimerHandle } from '../core/clock.js';
+import { HostClock, PacedClock } from '../core/host-clock.js';
 import { CellvigilError, ErrorCodes, makeError } from '../core/errors.js';
-import { PACKAGE_VERSION } from '../core/paths.js';
+import { packageVersion } from '../core/paths.js';
 import { encodeCommand } from '../protocol/codec.js';
 import { FLAG_LOAD_ON } from '../protocol/messages.js';
 import { describeSchedule } from '../schedule/schedule.js';
+import { plausibilityFor } from '../session/plausibility.js';
 import { Session } from '../session/session.js';
 import type { Action, SessionEnd } from '../session/session-types.js';
 import { writeJsonAtomic } from '../sinks/atomic-json.js';
@@ -24,7 +24,7 @@ import { LogFile } from '../sinks/log-file.js';
 import {
   SAMPLE_HEADER,
   sampleRowMaxBytes,
-  writeSampleRow,
+  SampleRowWriter,
   type SampleRow,
 } from '../sinks/sample-row.js';
 import { SerialSource } from '../sources/serial-source.js';
@@ -128,8 +128,20 @@ export async function startRun(req: RunRequest, io: RunIo): Promise<RunHandle> {
     maxCurrentA: cfg.maxCurrentA,
     linkTimeoutMs: req.linkTimeoutS * 1000,
     schedule: cfg.schedule,
+    plausibility: plausibilityFor({
+      maxRestVPerCell: chemistry.max_rest_V_per_cell.value,
+      cells,
+      ampsPerCount: chain.ampsPerCount,
+    }),
     checkRest: (restV) => {
-      const check = checkRestingVoltage(chemistry, cells, restV, cutoff.perCell, cfg.chemistries);
+      const check = checkStartVoltage(
+        chemistry,
+        cells,
+        restV,
+        cutoff.perCell,
+        cfg.chemistries,
+        applyCalibration(cfg.calibration).voltage(chain.fullScale().volts),
+      );
       return check.ok ? null : check.error.message;
     },
   });
@@ -152,6 +164,7 @@ export async function startRun(req: RunRequest, io: RunIo): Promise<RunHandle> {
     pipeline.counters.rejected = resume.counters.rejected;
     pipeline.counters.lost = resume.counters.lost;
   }
+  const rowWriter = new SampleRowWriter();
   const samples = new LogFile({
     dir: folder,
     name: 'samples-',
@@ -183,7 +196,7 @@ export async function startRun(req: RunRequest, io: RunIo): Promise<RunHandle> {
   const manifest = {
     format: 'cellvigil-run',
     format_version: 1,
-    cellvigil_version: PACKAGE_VERSION,
+    cellvigil_version: packageVersion(),
     node_version: process.version,
     label,
     started_wall: new Date(startedWall).toISOString(),
@@ -277,7 +290,7 @@ export async function startRun(req: RunRequest, io: RunIo): Promise<RunHandle> {
           bridgeUnlogged(out.row);
         }
         try {
-          samples.appendWith(out.row, sampleRowMaxBytes(out.row), writeSampleRow);
+          samples.appendWith(out.row, sampleRowMaxBytes(out.row), rowWriter.write);
         } catch (e) {
           onDiskError(e as Error);
         }
@@ -502,6 +515,7 @@ export async function startRun(req: RunRequest, io: RunIo): Promise<RunHandle> {
         lastLoadedV: session.lastLoadedV,
         cutoffV: session.cutoffV,
         counters: pipeline.counters,
+        implausibleFrames: session.plausibility.implausibleFrames,
         rigClockErrorPpm: pipeline.timeBase.rigClockErrorPpm(),
         calibration,
         calibrationId: pipeline.calibrationId,
@@ -546,7 +560,7 @@ export async function startRun(req: RunRequest, io: RunIo): Promise<RunHandle> {
 
   // Start: cautions first, then the rig.
   status.line(
-    `cellvigil ${PACKAGE_VERSION}: ${cells} × ${chemistry.id} on ${source.description}; cutoff ${cutoff.total.toFixed(3)} V (${cutoff.perCell} V per cell, ${cutoff.source}), limit ${cfg.maxTemperatureC} °C.`,
+    `cellvigil ${packageVersion()}: ${cells} × ${chemistry.id} on ${source.description}; cutoff ${cutoff.total.toFixed(3)} V (${cutoff.perCell} V per cell, ${cutoff.source}), limit ${cfg.maxTemperatureC} °C.`,
   );
   if (cfg.schedule) status.line(`Schedule: ${describeSchedule(cfg.schedule)}.`);
   status.line('Cautions:');
@@ -571,7 +585,7 @@ export async function startRun(req: RunRequest, io: RunIo): Promise<RunHandle> {
       chemistry: chemistry.id,
       cells,
       cutoff_V: cutoff.total,
-      version: PACKAGE_VERSION,
+      version: packageVersion(),
     });
   }
   logEvent('cautions', { lines: cautionLines(chemistry) });

@@ -5,6 +5,7 @@
 import { LiveHub } from '../live/live-hub.js';
 import { startLiveServer, type LiveServer } from '../live/live-server.js';
 import type { LiveRunInfo, LiveSample } from '../live/live-types.js';
+import { SAFETY_END_REASONS } from '../session/session-types.js';
 import type { SampleRow } from '../sinks/sample-row.js';
 import { loadTokens } from '../live/tokens.js';
 import type { EventRecord } from './event-log.js';
@@ -32,11 +33,14 @@ const ALARM_TEXT: Record<string, (d: Record<string, unknown>) => string> = {
     `an edited calibration was rejected; ${String(d['kept_id'])} stays in force`,
   chemistry_rejected: () => 'an edited chemistry file was rejected; the limits in force stay',
   rig_error: (d) => `the rig reports ${String(d['code'])}: ${String(d['text'])}`,
+  implausible_reading: (d) => `a reading that cannot be true was left out: ${String(d['why'])}`,
+  open_load: () =>
+    'the load is on but no current flows: check the fuse, the load resistor and the sense wiring',
   unlogged_discharge: (d) =>
     `about ${Number(d['estimated_s']).toFixed(1)} s of discharge went unlogged while the daemon was down`,
 };
 /** A run ending on these is an alarm; at the cutoff or by the user it is the normal end. */
-const LIMIT_REASONS = ['over_temperature', 'link_lost', 'fault'];
+const LIMIT_REASONS: readonly string[] = SAFETY_END_REASONS;
 
 /** A logged sample as the live feed shows it (an open or shorted thermistor has no temperature). */
 export function toLiveSample(row: SampleRow, loadOn: boolean): LiveSample {

@@ -14,6 +14,8 @@ export interface RunResult {
   frames_accepted: number;
   frames_rejected: number;
   frames_lost: number;
+  /** Frames whose readings could not be true: not integrated (docs/safety.md). */
+  frames_implausible: number;
   rig_clock_error_ppm: number | null;
   calibration_id: string;
   uncertainty: { capacity_Ah: FigureUncertainty; energy_Wh: FigureUncertainty };
@@ -50,6 +52,8 @@ export interface ResultInput {
   lastLoadedV: number | null;
   cutoffV: number;
   counters: { accepted: number; rejected: number; lost: number };
+  /** Frames the session left out as implausible. @default 0 */
+  implausibleFrames?: number;
   rigClockErrorPpm: number | null;
   calibration: Calibration | null;
   calibrationId: string;
@@ -95,6 +99,7 @@ export function buildResult(x: ResultInput): RunResult {
     frames_accepted: x.counters.accepted,
     frames_rejected: x.counters.rejected,
     frames_lost: x.counters.lost,
+    frames_implausible: x.implausibleFrames ?? 0,
     rig_clock_error_ppm: rn(x.rigClockErrorPpm, 0),
     calibration_id: x.calibrationId,
     uncertainty,
@@ -126,6 +131,8 @@ export function exitCodeFor(end: SessionEnd, detail: string): number {
     case 'over_temperature':
     case 'link_lost':
     case 'fault':
+    case 'implausible_reading':
+    case 'open_load':
       return 3;
     case 'refused':
       // A rig that never spoke is a failure of the set-up, not of the configuration.

@@ -1,26 +1,26 @@
 import { resolve } from 'node:path';
-import { loadCalibration, type Calibration } from '../calibration/calibration.js';
+import type { Calibration } from '../calibration/calibration.js';
+import { loadCalibration } from '../calibration/calibration-file.js';
 import { AnalogChain } from '../chain/analog-chain.js';
 import type { RigProfile } from '../chain/rig-profile-types.js';
-import { loadRigProfile } from '../chain/rig-profile.js';
-import {
-  DEFAULT_CHEMISTRIES_PATH,
-  findChemistry,
-  loadChemistries,
-} from '../chemistry/chemistries.js';
+import { DEFAULT_RIG_PATH, loadRigProfile } from '../chain/rig-profile-file.js';
+import { findChemistry } from '../chemistry/chemistries.js';
+import { DEFAULT_CHEMISTRIES_PATH, loadChemistries } from '../chemistry/chemistry-file.js';
 import type { ChemistryProfile } from '../chemistry/chemistry-types.js';
 import { resolveCutoff, validateCells, type ResolvedCutoff } from '../chemistry/limits.js';
 import { ErrorCodes, makeError } from '../core/errors.js';
-import { packagePath } from '../core/paths.js';
-import { loadScenarios, pickScenario, type SimScenario } from '../sim/scenarios.js';
+import {
+  DEFAULT_SCENARIOS_PATH,
+  loadScenarios,
+  pickScenario,
+  type SimScenario,
+} from '../sim/scenarios.js';
 import type { RunManifest } from '../replay/run-manifest.js';
-import { parseScheduleOption, parseScheduleYaml, type Schedule } from '../schedule/schedule.js';
+import { parseScheduleOption, type Schedule } from '../schedule/schedule.js';
+import { parseScheduleYaml } from '../schedule/schedule-file.js';
 import { readConfigText } from '../core/config-file.js';
 import { existsSync } from 'node:fs';
 import type { RunRequest } from './run-request.js';
-
-export const DEFAULT_RIG_PATH = packagePath('config/rigs/bench-20mohm.yaml');
-export const DEFAULT_SCENARIOS_PATH = packagePath('config/sim-scenarios.yaml');
 
 /** Everything a run needs, checked before anything is opened or switched. */
 export interface RunConfig {

@@ -3,11 +3,10 @@
  * since the discharge started. The daemon asks `loadPlanAt` what to do now and when to ask
  * again; the report turns the time the end point was reached into service output.
  */
-import { Ajv } from 'ajv';
-import { parseConfigYaml, readConfigText } from '../core/config-file.js';
 import { ErrorCodes, makeError } from '../core/errors.js';
 import { formatDuration, parseDuration } from './duration.js';
-import { SCHEDULE_KEYS, SCHEDULE_SCHEMA, type ScheduleSpec } from './schedule-schema.js';
+import type { ScheduleSpec } from './schedule-schema.js';
+import { durationProblem, looksLikeFileName, missingScheduleFile } from './option-hints.js';
 
 export interface Pulse {
   onMs: number;
@@ -65,11 +64,8 @@ export const CONTINUOUS: Schedule = {
   loadOhm: null,
 };
 
-const validate = new Ajv({ allErrors: false, strict: true, allowUnionTypes: true }).compile(
-  SCHEDULE_SCHEMA,
-);
-
-function invalid(
+/** A schedule error: what was wrong, where, and (by default) where the format is described. */
+export function invalidSchedule(
   what: string,
   where: string,
   fix = 'See docs/schedules.md for the schedule format.',
@@ -80,11 +76,8 @@ function invalid(
 function durationMs(value: string | number, where: string, key: string): number {
   const ms = typeof value === 'number' ? value * 1000 : parseDuration(value);
   if (ms === null || !Number.isFinite(ms) || ms <= 0) {
-    throw invalid(
-      `${key} must be a positive duration, got ${JSON.stringify(value)}`,
-      where,
-      `Write it with a unit, e.g. "15 s", "1 min" or "4 h" (a bare number counts as seconds).`,
-    );
+    const { what, fix } = durationProblem(value, key);
+    throw invalidSchedule(what, where, fix);
   }
   return ms;
 }
@@ -97,7 +90,7 @@ function pulseOf(
   const onMs = durationMs(p.on, where, `${key}.on`);
   const everyMs = durationMs(p.every, where, `${key}.every`);
   if (onMs >= everyMs) {
-    throw invalid(
+    throw invalidSchedule(
       `${key}.on (${formatDuration(onMs)}) must be shorter than ${key}.every (${formatDuration(everyMs)})`,
       where,
       'A pulse is on for part of each period; for a load that stays on, leave the pulse out.',
@@ -112,21 +105,21 @@ export function buildSchedule(spec: ScheduleSpec, where: string): Schedule {
     (k) => spec[k] !== undefined && spec[k] !== false,
   );
   if (shapes.includes('continuous') && shapes.length > 1) {
-    throw invalid(
+    throw invalidSchedule(
       `continuous cannot be combined with ${shapes.filter((s) => s !== 'continuous').join(' and ')}`,
       where,
       'Give continuous alone, or a pulse and/or daily hours, or explicit steps.',
     );
   }
   if (shapes.includes('steps') && shapes.length > 1) {
-    throw invalid(
+    throw invalidSchedule(
       `steps cannot be combined with ${shapes.filter((s) => s !== 'steps').join(' and ')}`,
       where,
       'Put the pulse inside a step ({ load: 8 h, pulse: { on: 15 s, every: 1 min } }) instead.',
     );
   }
   if (spec.repeat !== undefined && !shapes.includes('steps')) {
-    throw invalid(
+    throw invalidSchedule(
       'repeat applies to steps only',
       where,
       'Remove repeat, or write the schedule as steps.',
@@ -148,7 +141,7 @@ export function buildSchedule(spec: ScheduleSpec, where: string): Schedule {
     const pulse = spec.pulse ? pulseOf(spec.pulse, where, 'pulse') : null;
     const windowMs = spec.daily !== undefined ? durationMs(spec.daily, where, 'daily') : null;
     if (windowMs !== null && windowMs > DAY_MS) {
-      throw invalid(
+      throw invalidSchedule(
         `daily (${formatDuration(windowMs)}) is more than a day`,
         where,
         'Give the load hours per day, at most 24 h.',
@@ -181,7 +174,7 @@ function stepOf(
 ): ScheduleStep {
   const key = `steps[${i}]`;
   if ((s.load === undefined) === (s.rest === undefined)) {
-    throw invalid(
+    throw invalidSchedule(
       `${key} must have exactly one of load and rest`,
       where,
       'Write each step as { load: <duration> } or { rest: <duration> }.',
@@ -189,7 +182,7 @@ function stepOf(
   }
   if (s.rest !== undefined) {
     if (s.pulse)
-      throw invalid(
+      throw invalidSchedule(
         `${key} is a rest and cannot have a pulse`,
         where,
         'Move the pulse to a load step.',
@@ -198,7 +191,7 @@ function stepOf(
   }
   const untilEnd = typeof s.load === 'string' && /^\s*until (the )?end( point)?\s*$/i.test(s.load);
   if (untilEnd && i !== count - 1) {
-    throw invalid(
+    throw invalidSchedule(
       `${key}.load is "until end" but steps follow it`,
       where,
       'Only the last step can last until the end point.',
@@ -209,46 +202,6 @@ function stepOf(
     durationMs: untilEnd ? Infinity : durationMs(s.load!, where, `${key}.load`),
     pulse: s.pulse ? pulseOf(s.pulse, where, `${key}.pulse`) : null,
   };
-}
-
-/** Parses and validates schedule YAML; `where` names the file in messages. */
-export function parseScheduleYaml(text: string, where: string): Schedule {
-  const data = parseConfigYaml(text, 'schedule', where, 'Fix the YAML syntax at the line shown.');
-  if (!validate(data)) {
-    const e = validate.errors?.[0];
-    const key = e?.instancePath.split('/').filter(Boolean).join('.') ?? '';
-    if (e?.keyword === 'additionalProperties') {
-      const extra = String((e.params as { additionalProperty: string }).additionalProperty);
-      throw invalid(
-        `${key ? `${key}.` : ''}${extra} is not a schedule key`,
-        where,
-        `Use the keys ${Object.keys(SCHEDULE_KEYS).join(', ')} (docs/schedules.md).`,
-      );
-    }
-    if (key === '' && e?.keyword === 'type')
-      throw invalid(
-        'the schedule must be a YAML mapping',
-        where,
-        'Start from an example in docs/schedules.md.',
-      );
-    const top = key.split('.')[0] ?? '';
-    throw invalid(
-      `${key || '(top level)'} ${e?.message ?? 'is invalid'}`,
-      where,
-      `Set ${key} to ${SCHEDULE_KEYS[top] ?? 'a valid value'}.`,
-    );
-  }
-  return buildSchedule(data as ScheduleSpec, where);
-}
-
-/** Reads a schedule file. */
-export async function loadSchedule(path: string): Promise<Schedule> {
-  const text = await readConfigText(
-    path,
-    'schedule file',
-    'Check the path given for the schedule.',
-  );
-  return parseScheduleYaml(text, path);
 }
 
 const NUMBER = '(\\d+(?:\\.\\d+)?|\\.\\d+)';
@@ -276,22 +229,23 @@ export function parseScheduleOption(text: string, where = '--schedule'): Schedul
     .map((c) => c.trim().replace(/\s+/g, ' ').toLowerCase())
     .filter((c) => c !== '');
   if (clauses.length === 0)
-    throw invalid(
+    throw invalidSchedule(
       'the schedule is empty',
       where,
       'Give e.g. "continuous" or "on 15 s every 1 min, 8 h per day, to 1.0 V".',
     );
+  if (looksLikeFileName(text)) throw missingScheduleFile(text, where);
   for (const clause of clauses) {
     const i = CLAUSES.findIndex(([re]) => re.test(clause));
     if (i < 0) {
-      throw invalid(
+      throw invalidSchedule(
         `"${clause}" is not a schedule clause`,
         where,
         'Use clauses such as: continuous; on 15 s every 1 min; 4 h per day; rest 30 min; to 0.9 V; 43 ohm — separated by commas.',
       );
     }
     if (seen.has(i))
-      throw invalid(
+      throw invalidSchedule(
         `"${clause}" repeats a clause already given`,
         where,
         'Give each kind of clause once.',

@@ -41,6 +41,20 @@ export class Integrator {
   }
 
   /**
+   * A frame whose readings cannot be true: its time is bridged at the last trusted reading,
+   * counted in full as doubt; the reading itself is never integrated, and the next frame
+   * integrates from the last trusted one.
+   */
+  hold(dtMs: number, loadOn: boolean): void {
+    if (!this.hasPrev || dtMs <= 0 || !(loadOn && this.prevOn)) return;
+    const dAh = this.prevI * (dtMs / MS_PER_HOUR);
+    this.chargeAh += dAh;
+    this.energyWh += this.prevP * (dtMs / MS_PER_HOUR);
+    this.onMs += dtMs;
+    this.bridgedAh += Math.abs(dAh);
+  }
+
+  /**
    * Charge that flowed while nobody was logging (the daemon down, the rig's load still on),
    * estimated by the caller; counted in the totals and, in full, as doubt.
    */

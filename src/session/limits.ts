@@ -24,6 +24,11 @@ export interface LimitInput {
   thermistor: 'ok' | 'open' | 'short';
   loadOn: boolean;
   rigFault: boolean;
+  /**
+   * False for a frame whose voltage or current cannot be true: it neither advances nor resets
+   * the current and cutoff debounces. @default true
+   */
+  readingsPlausible?: boolean;
 }
 
 /**
@@ -82,6 +87,7 @@ export class Limits {
         reason: 'over_temperature',
         detail: `${x.celsius.toFixed(1)} °C is above the limit of ${this.maxT} °C`,
       };
+    if (x.readingsPlausible === false) return null;
     if (this.current.update(x.loadOn && x.amps > this.maxI, x.atMs))
       return {
         reason: 'fault',

@@ -3,6 +3,7 @@ import { FLAG_LOAD_ON, FLAG_RIG_FAULT } from '../protocol/messages.js';
 import { loadPlanAt, type Schedule } from '../schedule/schedule.js';
 import { Integrator } from './integrator.js';
 import { Limits, type LimitSettings } from './limits.js';
+import { Plausibility, type PlausibilitySettings } from './plausibility.js';
 import type { Action, EndReason, Measurement, SessionEnd, SessionState } from './session-types.js';
 
 export interface SessionSettings extends LimitSettings {
@@ -27,7 +28,11 @@ export interface SessionSettings extends LimitSettings {
   confirmMs?: number;
   /** When the load is on, as a function of time since the discharge started; continuous when absent. */
   schedule?: Schedule | null;
+  /** What the chemistry × cells and the rig allow a reading to be (`plausibilityFor`). */
+  plausibility: PlausibilitySettings;
 }
+
+type PlausibleEnd = { reason: 'implausible_reading' | 'open_load'; detail: string };
 
 /** Volts compared with a floor get this slack, so that 3 × 0.9 V is not refused as below 2.7000000000000002. */
 const FLOOR_SLACK_V = 1e-9;
@@ -39,6 +44,10 @@ const FLOOR_SLACK_V = 1e-9;
  */
 export class Session {
   readonly integrator = new Integrator();
+  readonly plausibility: Plausibility;
+  /** The frame's readings as the plausibility check takes them, filled in place per frame. */
+  private readonly plausibleIn = { atMs: 0, volts: 0, amps: 0, loadOn: false };
+  private plausibleEnd: PlausibleEnd | null = null;
   private readonly limits: Limits;
   private readonly s: Required<Omit<SessionSettings, keyof LimitSettings>> & SessionSettings;
   private stateValue: SessionState = 'waiting';
@@ -91,6 +100,7 @@ export class Session {
         'Choose a cutoff at or above the floor; the floor cannot be lowered.',
       );
     this.limits = new Limits(settings);
+    this.plausibility = new Plausibility(settings.plausibility);
   }
 
   get state(): SessionState {
@@ -114,8 +124,7 @@ export class Session {
     this.loadOn = (m.flags & FLAG_LOAD_ON) !== 0;
     // After a long gap (a stalled link, a suspended host) the load flag is read afresh too.
     if (this.reread || m.gap) this.afterInterruption(out);
-    this.integrator.add(m.dtMs, m.volts, m.amps, this.loadOn, m.gap);
-    if (this.loadOn) this.lastLoadedV = m.volts;
+    const plausible = this.screen(m, out);
     switch (this.stateValue) {
       case 'waiting':
         this.to('precheck', 'first valid frame from the rig', out);
@@ -126,10 +135,10 @@ export class Session {
         break;
       case 'starting':
         if (this.loadOn) this.confirmOn(m, out);
-        else this.checkLimits(m, out);
+        else this.checkLimits(m, out, plausible);
         break;
       case 'discharging':
-        this.checkLimits(m, out);
+        this.checkLimits(m, out, plausible);
         break;
       case 'stopping':
         if (!this.loadOn) this.finish(true, out);
@@ -451,7 +460,40 @@ export class Session {
     });
   }
 
-  private checkLimits(m: Measurement, out: Action[]): void {
+  /**
+   * Integrates the frame unless its readings cannot be true; the time of a frame left out is
+   * bridged at the last trusted reading and counted as doubt. Returns whether it was trusted;
+   * an end the plausibility check asks for waits in `plausibleEnd` for the limits.
+   */
+  private screen(m: Measurement, out: Action[]): boolean {
+    const st = this.stateValue;
+    let ok = true;
+    this.plausibleEnd = null;
+    if (!this.loadOn) this.plausibility.observeOff(m.amps);
+    if (st === 'starting' || st === 'discharging' || st === 'stopping') {
+      const x = this.plausibleIn;
+      x.atMs = m.hostMs;
+      x.volts = m.volts;
+      x.amps = m.amps;
+      x.loadOn = this.loadOn;
+      const p = this.plausibility.check(x);
+      for (let i = 0; i < p.events.length; i++) {
+        const e = p.events[i]!;
+        out.push({ type: 'event', name: e.name, detail: e.detail });
+      }
+      ok = p.plausible;
+      this.plausibleEnd = p.end;
+    }
+    if (!ok) {
+      this.integrator.hold(m.dtMs, this.loadOn);
+      return false;
+    }
+    this.integrator.add(m.dtMs, m.volts, m.amps, this.loadOn, m.gap);
+    if (this.loadOn) this.lastLoadedV = m.volts;
+    return true;
+  }
+
+  private checkLimits(m: Measurement, out: Action[], plausible: boolean): void {
     const trip = this.limits.check({
       atMs: m.hostMs,
       volts: m.volts,
@@ -460,9 +502,15 @@ export class Session {
       thermistor: m.thermistor,
       loadOn: this.loadOn,
       rigFault: this.stateValue === 'discharging' && (m.flags & FLAG_RIG_FAULT) !== 0,
+      readingsPlausible: plausible,
     });
     if (trip) {
       this.beginStop(trip.reason, trip.detail, m.hostMs, out);
+      return;
+    }
+    const end = this.plausibleEnd;
+    if (end && this.stateValue === 'discharging') {
+      this.beginStop(end.reason, end.detail, m.hostMs, out);
       return;
     }
     // Off because the schedule said so, or still switching: not a fault.

@@ -10,6 +10,17 @@ export interface FaultOptions {
   burstFrames: number;
 }
 
+/**
+ * Faults of the rig's own circuit, at moments of true time since the rig booted, to exercise
+ * the host's checks of readings that cannot be true.
+ */
+export interface CircuitFaults {
+  /** From this moment the load circuit is open (a blown fuse): no current flows, the load flag stays on. */
+  openLoadAtMs?: number;
+  /** Within this window the voltage channel reads a fixed count (a broken divider wire). */
+  voltageSense?: { fromMs: number; toMs: number; counts: number };
+}
+
 export const NO_FAULTS: FaultOptions = {
   dropProbability: 0,
   garbageProbability: 0,

@@ -5,10 +5,15 @@ import type { Clock } from '../core/clock.js';
 import { parseConfigYaml } from '../core/config-file.js';
 import { ErrorCodes, makeError } from '../core/errors.js';
 import { schemaError } from '../core/schema-error.js';
+import { packagePath } from '../core/paths.js';
 import { ChemistryCell, type ChemistryId } from './cell-model.js';
+import type { CircuitFaults } from './faults.js';
 import { SCENARIO_FILE_SCHEMA } from './scenario-schema.js';
 import type { SimChannelOptions, ThermistorWiring } from './sim-channel.js';
 import { SimRig } from './sim-rig.js';
+
+/** The simulator scenarios shipped with the package. */
+export const DEFAULT_SCENARIOS_PATH = packagePath('config/sim-scenarios.yaml');
 
 /** One named scenario of config/sim-scenarios.yaml, after validation (defaults filled in). */
 export interface SimScenario {
@@ -83,6 +88,7 @@ export interface SimOverrides {
   garbageProbability?: number;
   seed?: number;
   startTick?: number;
+  circuit?: CircuitFaults;
 }
 
 // strictRequired off: the current offset's oneOf names keys declared on the parent object.
@@ -256,6 +262,7 @@ export function buildSimRig(
       burstFrames: overrides.burstFrames ?? f.burst_frames,
     },
     seed: overrides.seed ?? f.seed,
+    ...(overrides.circuit ? { circuit: overrides.circuit } : {}),
   });
 }
 

@@ -1,5 +1,6 @@
 import type { RigProfile } from '../chain/rig-profile-types.js';
 import type { Cell } from './cell-model.js';
+import type { CircuitFaults } from './faults.js';
 import { FrontEnd, type FrontEndErrors } from './front-end.js';
 import type { Rng } from './prng.js';
 import { ThermalModel, type ThermalOptions } from './thermal.js';
@@ -22,6 +23,8 @@ export interface SimChannelOptions {
   thermistor?: ThermistorWiring;
   /** A thermistor that breaks in use: it reads right until this long after the rig's boot. */
   thermistorFailsAfterMs?: number;
+  /** Faults of this channel's own circuit (an open load, a broken sense wire). */
+  circuit?: CircuitFaults;
 }
 
 export interface LoadSwitch {
@@ -77,22 +80,26 @@ export class SimChannel {
     const top = 2 ** profile.adc.bits - 1;
     const low = profile.temperature.ntc_position === 'low';
     this.railCount = (opts.thermistor === 'open') === low ? top : 0;
-    this.point = this.electrical();
+    this.point = this.electrical(0);
   }
 
   get cell(): Cell {
     return this.opts.cell;
   }
 
-  switchLoad(on: boolean, cause: LoadSwitch['cause'], atMs: number): void {
+  /** Switches the load at clock time `atMs`, `sinceBootMs` after the rig's boot. */
+  switchLoad(on: boolean, cause: LoadSwitch['cause'], atMs: number, sinceBootMs: number): void {
     this.loadOn = on;
-    this.point = this.electrical();
+    this.point = this.electrical(sinceBootMs);
     this.switches.push({ atMs, on, cause });
   }
 
   /** The three conversions of a frame `sinceBootMs` after the rig's boot, in the order the front end's noise is drawn. */
   counts(sinceBootMs: number): ChannelCounts {
-    const vRaw = this.frontEnd.voltage(this.point.terminalV).counts;
+    const sense = this.opts.circuit?.voltageSense;
+    const measured = this.frontEnd.voltage(this.point.terminalV).counts;
+    const vRaw =
+      sense && sinceBootMs >= sense.fromMs && sinceBootMs < sense.toMs ? sense.counts : measured;
     const iRaw = this.frontEnd.current(this.point.currentA).counts;
     const tRaw = this.frontEnd.temperature(this.thermal.temperatureC).counts;
     const broken =
@@ -101,21 +108,23 @@ export class SimChannel {
     return { vRaw, iRaw, tRaw: broken ? this.railCount : tRaw };
   }
 
-  /** One physics step of `dtMs`, the load state fixed within it. */
-  step(dtMs: number): void {
+  /** One physics step of `dtMs` starting `sinceBootMs` after the rig's boot, the load state fixed within it. */
+  step(dtMs: number, sinceBootMs: number): void {
     const dtS = dtMs / 1000;
     const a = this.point;
     const rCell = this.opts.cell.internalOhm(this.thermal.temperatureC);
     this.opts.cell.step(dtS, a.currentA);
     this.thermal.step(dtS, this.thermal.heatW(a.currentA, rCell, this.opts.loadOhm));
-    const b = this.electrical();
+    const b = this.electrical(sinceBootMs);
     this.truthRec.add(dtS, a, b, this.loadOn);
     this.point = b;
   }
 
-  private electrical(): ElectricalPoint {
+  private electrical(sinceBootMs: number): ElectricalPoint {
     const ocv = this.opts.cell.ocvV();
-    if (!this.loadOn) return { currentA: 0, terminalV: ocv };
+    const openAt = this.opts.circuit?.openLoadAtMs;
+    const open = openAt !== undefined && sinceBootMs >= openAt;
+    if (!this.loadOn || open) return { currentA: 0, terminalV: ocv };
     const rCell = this.opts.cell.internalOhm(this.thermal.temperatureC);
     const currentA = ocv / (this.externalOhm + rCell);
     return { currentA, terminalV: ocv - currentA * rCell };

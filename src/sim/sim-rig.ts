@@ -166,7 +166,7 @@ export class SimRig {
   stop(): void {
     if (this.stopped) return;
     this.catchUp();
-    for (const c of this.channels) if (c.loadOn) c.switchLoad(false, 'stop', this.clock.now());
+    for (const c of this.channels) if (c.loadOn) c.switchLoad(false, 'stop', ...this.when());
     if (this.frameTimer) this.clock.clearTimer(this.frameTimer);
     this.disarmWatchdog();
     this.stopped = true;
@@ -239,8 +239,14 @@ export class SimRig {
     return this.channels.some((c) => c.loadOn);
   }
 
+  /** Clock time now, and the time since the rig's boot. */
+  private when(): [number, number] {
+    const now = this.clock.now();
+    return [now, now - this.bootAt];
+  }
+
   private switchLoad(c: SimChannel, on: boolean, cause: LoadSwitch['cause']): void {
-    c.switchLoad(on, cause, this.clock.now());
+    c.switchLoad(on, cause, ...this.when());
     if (on) this.armWatchdog();
     else if (!this.anyLoadOn()) this.disarmWatchdog();
   }
@@ -253,7 +259,7 @@ export class SimRig {
       for (const c of this.channels) {
         if (!c.loadOn) continue;
         c.fault = true;
-        c.switchLoad(false, 'watchdog', this.clock.now());
+        c.switchLoad(false, 'watchdog', ...this.when());
       }
     }, WATCHDOG_MS);
   }
@@ -316,7 +322,7 @@ export class SimRig {
     const now = this.clock.now();
     while (this.physicsAt < now) {
       const dtMs = Math.min(PHYSICS_STEP_MS, now - this.physicsAt);
-      for (const c of this.channels) c.step(dtMs);
+      for (const c of this.channels) c.step(dtMs, this.physicsAt - this.bootAt);
       this.physicsAt += dtMs;
     }
   }

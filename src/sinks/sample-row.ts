@@ -1,5 +1,5 @@
 import { writeFixed, writeText, writeUint } from './ascii-writer.js';
-import { writeIsoTime } from './iso-time.js';
+import { IsoTimeWriter } from './iso-time.js';
 
 /** The columns of samples-NNNN.csv (docs/run-folder.md); the order is a contract. */
 export const SAMPLE_COLUMNS = [
@@ -57,8 +57,6 @@ interface CachedText {
   text: string | null;
   bytes: Buffer;
 }
-const stateText: CachedText = { text: null, bytes: Buffer.alloc(0) };
-const idText: CachedText = { text: null, bytes: Buffer.alloc(0) };
 
 function writeCached(c: CachedText, buf: Buffer, at: number, text: string): number {
   if (c.text !== text) {
@@ -80,30 +78,40 @@ function hexDigit(n: number): number {
 }
 
 /**
- * One RFC 4180 row and its line end, written into `buf` at `at` (with sampleRowMaxBytes of
- * room); returns the position after it. No field can hold a comma, quote or newline, so none
- * needs quoting.
+ * Writes the rows of one sample log. Each writer keeps its own copies of the text that rarely
+ * changes (the hour, the state, the calibration id): two logs at once never share them.
  */
-export function writeSampleRow(r: SampleRow, buf: Buffer, at: number): number {
-  let p = comma(buf, writeFixed(buf, at, r.hostS, 3));
-  p = comma(buf, writeIsoTime(buf, p, r.wallMs));
-  for (const n of [r.channel, r.seq, r.tickMs, r.vRaw, r.iRaw, r.tRaw])
-    p = comma(buf, writeUint(buf, p, n));
-  if (r.flags > 0xff) p = writeText(buf, p, r.flags.toString(16).toUpperCase());
-  else {
-    buf[p++] = hexDigit(r.flags >> 4);
-    buf[p++] = hexDigit(r.flags & 15);
-  }
-  p = comma(buf, p);
-  p = comma(buf, writeReading(buf, p, r.volts, 5));
-  p = comma(buf, writeReading(buf, p, r.amps, 5));
-  p = comma(buf, writeReading(buf, p, r.celsius, 2));
-  p = comma(buf, writeFixed(buf, p, r.chargeAh, 7));
-  p = comma(buf, writeFixed(buf, p, r.energyWh, 7));
-  p = comma(buf, writeCached(stateText, buf, p, r.state));
-  p = writeCached(idText, buf, p, r.calibrationId);
-  buf[p] = 10;
-  return p + 1;
+export class SampleRowWriter {
+  private readonly time = new IsoTimeWriter();
+  private readonly state: CachedText = { text: null, bytes: Buffer.alloc(0) };
+  private readonly id: CachedText = { text: null, bytes: Buffer.alloc(0) };
+
+  /**
+   * One RFC 4180 row and its line end, written into `buf` at `at` (with sampleRowMaxBytes of
+   * room); returns the position after it. No field can hold a comma, quote or newline, so none
+   * needs quoting. Bound, so it can be handed on as it is.
+   */
+  readonly write = (r: SampleRow, buf: Buffer, at: number): number => {
+    let p = comma(buf, writeFixed(buf, at, r.hostS, 3));
+    p = comma(buf, this.time.write(buf, p, r.wallMs));
+    for (const n of [r.channel, r.seq, r.tickMs, r.vRaw, r.iRaw, r.tRaw])
+      p = comma(buf, writeUint(buf, p, n));
+    if (r.flags > 0xff) p = writeText(buf, p, r.flags.toString(16).toUpperCase());
+    else {
+      buf[p++] = hexDigit(r.flags >> 4);
+      buf[p++] = hexDigit(r.flags & 15);
+    }
+    p = comma(buf, p);
+    p = comma(buf, writeReading(buf, p, r.volts, 5));
+    p = comma(buf, writeReading(buf, p, r.amps, 5));
+    p = comma(buf, writeReading(buf, p, r.celsius, 2));
+    p = comma(buf, writeFixed(buf, p, r.chargeAh, 7));
+    p = comma(buf, writeFixed(buf, p, r.energyWh, 7));
+    p = comma(buf, writeCached(this.state, buf, p, r.state));
+    p = writeCached(this.id, buf, p, r.calibrationId);
+    buf[p] = 10;
+    return p + 1;
+  };
 }
 
 /** The field separator after what ends at `at`. */
@@ -112,11 +120,8 @@ function comma(buf: Buffer, at: number): number {
   return at + 1;
 }
 
-let scratch = Buffer.alloc(1024);
-
 /** The same row as a string, without its line end (for tools and tests that build run folders). */
 export function formatSampleRow(r: SampleRow): string {
-  const need = sampleRowMaxBytes(r);
-  if (scratch.length < need) scratch = Buffer.alloc(need);
-  return scratch.toString('utf8', 0, writeSampleRow(r, scratch, 0) - 1);
+  const buf = Buffer.alloc(sampleRowMaxBytes(r));
+  return buf.toString('utf8', 0, new SampleRowWriter().write(r, buf, 0) - 1);
 }

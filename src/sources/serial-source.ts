@@ -2,6 +2,7 @@ import { SerialPort } from 'serialport';
 import { LineSplitter } from './line-splitter.js';
 import type { Source, SourceHandlers } from './source.js';
 import { ErrorCodes, makeError } from '../core/errors.js';
+import { lockPort, type PortLock } from './port-lock.js';
 
 export interface SerialSourceOptions {
   path: string;
@@ -9,6 +10,10 @@ export interface SerialSourceOptions {
   baudRate?: number;
   /** Longest wait between attempts to reopen a port that went away. @default 1000 */
   maxRetryMs?: number;
+  /** Who holds the port, for a second program's refusal (the run). @default the command line */
+  holder?: string;
+  /** Where port lock files go. @default the OS temporary folder */
+  lockDir?: string;
 }
 
 /** Bytes read but not yet handed to the core before the port is paused. */
@@ -25,6 +30,8 @@ export class SerialSource implements Source {
   private port: SerialPort | null = null;
   private wanted = false;
   private retryTimer: NodeJS.Timeout | null = null;
+  private lock: PortLock | null = null;
+  private readonly releaseOnExit = (): void => this.unlock();
   private readonly options: SerialSourceOptions;
 
   constructor(options: SerialSourceOptions) {
@@ -33,18 +40,31 @@ export class SerialSource implements Source {
   }
 
   async open(handlers: SourceHandlers): Promise<void> {
+    const holder = this.options.holder ?? `cellvigil ${process.argv.slice(2).join(' ')}`;
+    this.lock = lockPort(this.options.path, holder, this.options.lockDir);
+    process.once('exit', this.releaseOnExit);
     this.wanted = true;
     try {
       await this.connect(handlers);
     } catch (err) {
       this.wanted = false;
+      this.unlock();
+      const message = (err as Error).message;
       throw makeError(
         ErrorCodes.PORT_OPEN,
-        `Could not open serial port: ${(err as Error).message}`,
+        `Could not open serial port: ${message}`,
         `--port ${this.options.path}`,
-        'Check the path (ls /dev/ttyUSB* /dev/ttyACM*), that no other program holds the port, and that you may read it (group dialout).',
+        /Cannot lock port/.test(message)
+          ? 'Another program (a terminal, a flasher, a serial monitor) holds the port; close it and start again.'
+          : 'Check the path (ls /dev/ttyUSB* /dev/ttyACM*), that no other program holds the port, and that you may read it (group dialout).',
       );
     }
+  }
+
+  private unlock(): void {
+    process.off('exit', this.releaseOnExit);
+    this.lock?.release();
+    this.lock = null;
   }
 
   private async connect(handlers: SourceHandlers): Promise<void> {
@@ -52,6 +72,8 @@ export class SerialSource implements Source {
       path: this.options.path,
       baudRate: this.options.baudRate ?? 115200,
       autoOpen: false,
+      // An exclusive lock on the device itself, against programs that do not know our lock file.
+      lock: true,
     });
     await new Promise<void>((resolve, reject) =>
       port.open((err) => (err ? reject(err) : resolve())),
@@ -120,7 +142,8 @@ export class SerialSource implements Source {
     this.retryTimer = null;
     const port = this.port;
     this.port = null;
-    if (!port || !port.isOpen) return;
-    await new Promise<void>((resolve) => port.drain(() => port.close(() => resolve())));
+    if (port?.isOpen)
+      await new Promise<void>((resolve) => port.drain(() => port.close(() => resolve())));
+    this.unlock();
   }
 }

@@ -1,14 +1,18 @@
 import { basename, extname } from 'node:path';
 import type { RigProfile } from '../chain/rig-profile-types.js';
-import { loadRigProfile } from '../chain/rig-profile.js';
-import { DEFAULT_CHEMISTRIES_PATH, loadChemistries } from '../chemistry/chemistries.js';
-import { PacedClock } from '../core/clock.js';
+import { DEFAULT_RIG_PATH, loadRigProfile } from '../chain/rig-profile-file.js';
+import { DEFAULT_CHEMISTRIES_PATH, loadChemistries } from '../chemistry/chemistry-file.js';
+import { PacedClock } from '../core/host-clock.js';
 import { ErrorCodes, makeError } from '../core/errors.js';
-import { packagePath } from '../core/paths.js';
 import { startLiveServer, type LiveServer } from '../live/live-server.js';
 import { StationFeed } from '../live/station-feed.js';
 import { loadTokens } from '../live/tokens.js';
-import { buildMultiChannelRig, buildSimRig, loadScenarios } from '../sim/scenarios.js';
+import {
+  buildMultiChannelRig,
+  buildSimRig,
+  DEFAULT_SCENARIOS_PATH,
+  loadScenarios,
+} from '../sim/scenarios.js';
 import { SerialSource } from '../sources/serial-source.js';
 import { SimSource } from '../sources/sim-source.js';
 import type { Source } from '../sources/source.js';
@@ -51,8 +55,6 @@ export interface StationHandle {
   stop(by: string): Promise<number>;
 }
 
-const DEFAULT_RIG = packagePath('config/rigs/bench-20mohm.yaml');
-const SCENARIOS = packagePath('config/sim-scenarios.yaml');
 const DEFAULT_LISTEN = '127.0.0.1:8507';
 
 /**
@@ -74,7 +76,7 @@ export async function startStation(
   checkStationPlan(
     plan,
     loadChemistries(req.chemistriesFile ?? DEFAULT_CHEMISTRIES_PATH),
-    loadScenarios(SCENARIOS),
+    loadScenarios(DEFAULT_SCENARIOS_PATH),
   );
   const simulated = plan.rigs.some((r) => r.link.kind === 'sim');
   if (!(req.speed > 0) || !Number.isFinite(req.speed))
@@ -92,10 +94,11 @@ export async function startStation(
       'Leave --speed out; it applies to stations of simulated rigs only.',
     );
   const profiles = new Map<string, RigProfile>();
-  for (const r of plan.rigs) profiles.set(r.name, await loadRigProfile(r.profile ?? DEFAULT_RIG));
+  for (const r of plan.rigs)
+    profiles.set(r.name, await loadRigProfile(r.profile ?? DEFAULT_RIG_PATH));
   // Simulated rigs share one virtual clock, paced at --speed: one station time for all.
   const paced = simulated ? new PacedClock(0, Date.now()) : null;
-  const scenarios = simulated ? loadScenarios(SCENARIOS) : null;
+  const scenarios = simulated ? loadScenarios(DEFAULT_SCENARIOS_PATH) : null;
   const makeSource = (r: RigPlan): Source => {
     const profile = profiles.get(r.name)!;
     if (r.link.kind === 'port')

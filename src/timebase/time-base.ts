@@ -1,8 +1,19 @@
 import { RateEstimator } from './rate-estimator.js';
 import { Unwrapper } from './unwrap.js';
 
-/** Span over which a lag common to all frames is looked for. */
-const LAG_WINDOW_MS = 2000;
+/**
+ * A frame that arrives sooner after the one before than this fraction of their tick spacing
+ * came in the same delivery (a USB bridge's clump, a buffer read at once): the one before was
+ * not the last of its clump, so its arrival says nothing about when it was made. Well below
+ * the 0.77 a rig clock 30 % fast gives for frames delivered one by one.
+ */
+const SAME_DELIVERY_FRACTION = 0.25;
+
+/** Baseline of fresh arrivals from which a first rate is used, before the settled estimate. */
+const PROVISIONAL_SPAN_MS = 500;
+const PROVISIONAL_POINTS = 3;
+/** A first rate outside this range of host ms per rig ms is not believed (a rig clock off by 2×). */
+const PLAUSIBLE_SCALE = { min: 0.5, max: 2 };
 
 export interface TimeBaseOptions {
   /** Host gap between frames that is flagged as a gap rather than bridged quietly. @default 2000 */
@@ -24,11 +35,21 @@ export interface Stamp {
   rigRestart: boolean;
 }
 
+interface Seen {
+  hostMs: number;
+  tick: number;
+  arrival: number;
+}
+
 /**
- * Places each frame on the host's monotonic clock. The integral spans host time only; within
- * a burst (several frames delivered together) the frames are spread back by their tick
- * spacing scaled to host time, and never placed later than their arrival or more than
- * `maxLagMs` before it.
+ * Places each frame on the host's monotonic clock. The integral spans host time only. The last
+ * frame of each delivery is taken to arrive when it was made (an anchor); the frames after it
+ * are placed at the anchor's arrival plus their tick distance from it scaled to host time, never
+ * later than their own arrival nor more than `maxLagMs` before it, nor before the frame before.
+ * Placing from the latest anchor rather than from the frame before keeps an error in the scale
+ * (a rig clock 30 % slow before its rate is known) from piling up into a lag that would stretch
+ * the load-on time; only the anchors, fresh arrivals, feed the rate estimate, so frames buffered
+ * before the port opened, or held in a clump, do not read as a fast rig clock.
  */
 export class TimeBase {
   private readonly longGapMs: number;
@@ -36,9 +57,8 @@ export class TimeBase {
   private readonly ticks = new Unwrapper(2 ** 32);
   private readonly seqs = new Unwrapper(65536);
   private readonly rate = new RateEstimator();
-  private prev: { hostMs: number; tick: number; arrival: number } | null = null;
-  private windowStart = -Infinity;
-  private windowMinLag = Infinity;
+  private prev: Seen | null = null;
+  private anchor: Seen | null = null;
 
   constructor(options: TimeBaseOptions = {}) {
     this.longGapMs = options.longGapMs ?? 2000;
@@ -52,51 +72,30 @@ export class TimeBase {
     const seqStep = this.seqs.step;
     const prev = this.prev;
     const rigRestart = tickStep !== null && tickStep < 0;
-    if (prev === null || rigRestart) {
-      if (rigRestart) {
-        this.ticks.reset();
-        this.seqs.reset();
-        this.ticks.next(tickMs);
-        this.seqs.next(seq);
-        this.rate.reset();
-      }
-      const hostMs = prev === null ? arrivalMs : Math.max(prev.hostMs, arrivalMs);
-      this.windowStart = arrivalMs;
-      this.windowMinLag = Infinity;
-      this.prev = { hostMs, tick: rigRestart ? tickMs : tick, arrival: arrivalMs };
-      this.rate.add(rigRestart ? tickMs : tick, arrivalMs);
-      return {
-        hostMs,
-        dtMs: prev === null ? 0 : hostMs - prev.hostMs,
-        lost: 0,
-        gap: prev !== null,
-        rigRestart,
-      };
-    }
+    if (prev === null || rigRestart)
+      return this.restart(prev, seq, tickMs, tick, arrivalMs, rigRestart);
     // Ticks that ran on while the host stood still (suspended) would wreck the rate estimate.
     const hostStood =
-      (tick - prev.tick) * (this.rate.hostPerTick() ?? 1) - (arrivalMs - prev.arrival) >
-      this.longGapMs;
-    if (hostStood) this.rate.reset();
-    this.rate.add(tick, arrivalMs);
-    const scale = this.rate.hostPerTick() ?? 1;
-    let predicted = prev.hostMs + (tick - prev.tick) * scale;
-    // A lag behind arrival that every frame of a window shares (built up before the rate was
-    // known, a slow rig clock read as a true one) is removed at once; in bursts the last frame
-    // of each burst arrives on time, so their spreading is left alone.
-    this.windowMinLag = Math.min(this.windowMinLag, arrivalMs - predicted);
-    if (arrivalMs - this.windowStart >= LAG_WINDOW_MS) {
-      if (this.windowMinLag > 0) predicted += this.windowMinLag;
-      this.windowStart = arrivalMs;
-      this.windowMinLag = Infinity;
+      (tick - prev.tick) * this.scale() - (arrivalMs - prev.arrival) > this.longGapMs;
+    if (hostStood) {
+      this.rate.reset();
+      this.anchor = null;
+    } else if (
+      arrivalMs - prev.arrival >=
+      SAME_DELIVERY_FRACTION * (tick - prev.tick) * this.scale()
+    ) {
+      // The frame before ended its delivery: its arrival is as fresh as any.
+      this.anchor = { hostMs: prev.arrival, tick: prev.tick, arrival: prev.arrival };
+      this.rate.add(prev.tick, prev.arrival);
     }
+    const from = this.anchor ?? prev;
+    const predicted = from.hostMs + (tick - from.tick) * this.scale();
     const lower = Math.max(prev.hostMs, arrivalMs - this.maxLagMs);
     const hostMs = Math.min(arrivalMs, Math.max(lower, predicted));
-    const dtMs = hostMs - prev.hostMs;
     this.prev = { hostMs, tick, arrival: arrivalMs };
     return {
       hostMs,
-      dtMs,
+      dtMs: hostMs - prev.hostMs,
       lost: Math.max(0, (seqStep ?? 1) - 1),
       // A long silence on the host's clock, or the rig's ticks showing far more time than the
       // host saw: the monotonic clock stands still while the host is suspended.
@@ -107,5 +106,43 @@ export class TimeBase {
 
   rigClockErrorPpm(): number | null {
     return this.rate.errorPpm();
+  }
+
+  /** Host ms per rig ms: the settled estimate, else a first one from a short baseline, else 1. */
+  private scale(): number {
+    const settled = this.rate.hostPerTick();
+    if (settled !== null) return settled;
+    const first = this.rate.hostPerTick(PROVISIONAL_SPAN_MS, PROVISIONAL_POINTS);
+    return first !== null && first >= PLAUSIBLE_SCALE.min && first <= PLAUSIBLE_SCALE.max
+      ? first
+      : 1;
+  }
+
+  /** The first frame, or the first after the rig restarted: stamped at its arrival. */
+  private restart(
+    prev: Seen | null,
+    seq: number,
+    tickMs: number,
+    tick: number,
+    arrivalMs: number,
+    rigRestart: boolean,
+  ): Stamp {
+    if (rigRestart) {
+      this.ticks.reset();
+      this.seqs.reset();
+      this.ticks.next(tickMs);
+      this.seqs.next(seq);
+      this.rate.reset();
+    }
+    const hostMs = prev === null ? arrivalMs : Math.max(prev.hostMs, arrivalMs);
+    this.anchor = null;
+    this.prev = { hostMs, tick: rigRestart ? tickMs : tick, arrival: arrivalMs };
+    return {
+      hostMs,
+      dtMs: prev === null ? 0 : hostMs - prev.hostMs,
+      lost: 0,
+      gap: prev !== null,
+      rigRestart,
+    };
   }
 }

@@ -8,7 +8,7 @@ import {
   CALIBRATION_FORMAT,
 } from '../../src/calibration/calibration.js';
 import type { RigProfile } from '../../src/chain/rig-profile-types.js';
-import { loadRigProfile } from '../../src/chain/rig-profile.js';
+import { loadRigProfile } from '../../src/chain/rig-profile-file.js';
 import { CellvigilError, ErrorCodes } from '../../src/core/errors.js';
 
 const rigFile = (name: string): string =>

@@ -7,7 +7,8 @@ import { mkdtemp, readdir, rm, writeFile } from 'node:fs/promises';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { afterEach, beforeEach, describe, expect, it } from 'vitest';
-import { applyCalibration, loadCalibration } from '../../src/calibration/calibration.js';
+import { applyCalibration } from '../../src/calibration/calibration.js';
+import { loadCalibration } from '../../src/calibration/calibration-file.js';
 import {
   runCalibrate,
   type CalibrateIo,
@@ -20,8 +21,9 @@ import { capturePoint } from '../../src/calibration/point-capture.js';
 import { RigLink } from '../../src/calibration/rig-link.js';
 import { AnalogChain } from '../../src/chain/analog-chain.js';
 import type { RigProfile } from '../../src/chain/rig-profile-types.js';
-import { loadRigProfile } from '../../src/chain/rig-profile.js';
-import { findChemistry, loadChemistries } from '../../src/chemistry/chemistries.js';
+import { loadRigProfile } from '../../src/chain/rig-profile-file.js';
+import { findChemistry } from '../../src/chemistry/chemistries.js';
+import { loadChemistries } from '../../src/chemistry/chemistry-file.js';
 import { VirtualClock } from '../../src/core/clock.js';
 import { CellvigilError, ErrorCodes, makeError } from '../../src/core/errors.js';
 import { WATCHDOG_MS } from '../../src/sim/sim-rig.js';
@@ -334,6 +336,7 @@ describe('calibrate at a terminal (the dialogue, scripted)', () => {
       '', // press Enter
       '', // reading: 0 (default for load off)
       '', // accuracy: u=0 (nothing flows)
+      '', // next point (Enter; r would take point 1 again)
       '', // point 2: load on (default for the second point)
       '', // press Enter
       () => loadedTruth.toFixed(4), // what the meter showed

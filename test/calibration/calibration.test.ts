@@ -8,13 +8,15 @@ import {
   calibrationId,
   canonicalJson,
   fitQuantity,
-  loadCalibration,
-  parseCalibration,
   sealCalibration,
-  writeCalibration,
   type CalibrationContent,
   type CalibrationPoint,
 } from '../../src/calibration/calibration.js';
+import {
+  loadCalibration,
+  parseCalibration,
+  writeCalibration,
+} from '../../src/calibration/calibration-file.js';
 
 // Current shown by the chain: 33 mA + 1.057 × true current (fact of the trade: op-amp offset
 // through the shunt plus connection resistance in series with a two-terminal shunt).

@@ -3,11 +3,12 @@ import { mkdtemp, readdir, rm, writeFile } from 'node:fs/promises';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { afterEach, beforeEach, describe, expect, it } from 'vitest';
-import { applyCalibration, loadCalibration } from '../../src/calibration/calibration.js';
+import { applyCalibration } from '../../src/calibration/calibration.js';
+import { loadCalibration } from '../../src/calibration/calibration-file.js';
 import { runCalibrate, type CalibrateRequest } from '../../src/calibration/calibrate-run.js';
 import { fitCheckedQuantity } from '../../src/calibration/quantity-fit.js';
 import { AnalogChain } from '../../src/chain/analog-chain.js';
-import { loadRigProfile } from '../../src/chain/rig-profile.js';
+import { loadRigProfile } from '../../src/chain/rig-profile-file.js';
 import { CellvigilError, ErrorCodes } from '../../src/core/errors.js';
 import { BENCH_RIG } from './sim-driver.js';
 

@@ -69,6 +69,19 @@ async function refusal(p: Promise<unknown>): Promise<CellvigilError> {
 }
 
 describe('RigLink', () => {
+  it('refuses a --channel the hello does not list, before any load command (protocol v1: channels count from 0)', async () => {
+    const clock = new VirtualClock();
+    const rig = new ScriptedRig(clock);
+    const l = new RigLink({ source: rig, clock, channel: 1, adcBits: 12 });
+    const e = await refusal(drive(clock, l.open()));
+    expect(e.code).toBe(ErrorCodes.USAGE);
+    expect(e.message).toContain(
+      'rig rig-7 reports 1 channel in its hello; channel 1 does not exist',
+    );
+    expect(e.message).toContain('only channel 0');
+    expect(rig.sent('C,LOAD')).toEqual([]);
+  });
+
   it('beats at least once a second while the load is on, and stops when it is off (protocol v1)', async () => {
     const clock = new VirtualClock();
     const rig = new ScriptedRig(clock);

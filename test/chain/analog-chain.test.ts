@@ -1,7 +1,7 @@
 import { fileURLToPath } from 'node:url';
 import { describe, expect, it } from 'vitest';
 import { AnalogChain } from '../../src/chain/analog-chain.js';
-import { loadRigProfile } from '../../src/chain/rig-profile.js';
+import { loadRigProfile } from '../../src/chain/rig-profile-file.js';
 import type { RigProfile } from '../../src/chain/rig-profile-types.js';
 import { betaResistance } from '../../src/chain/thermistor.js';
 

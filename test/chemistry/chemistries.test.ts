@@ -2,12 +2,12 @@ import { mkdtempSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { describe, expect, it } from 'vitest';
+import { findChemistry } from '../../src/chemistry/chemistries.js';
 import {
   DEFAULT_CHEMISTRIES_PATH,
-  findChemistry,
   loadChemistries,
   parseChemistries,
-} from '../../src/chemistry/chemistries.js';
+} from '../../src/chemistry/chemistry-file.js';
 import type { ChemistryProfile } from '../../src/chemistry/chemistry-types.js';
 import { CellvigilError } from '../../src/core/errors.js';
 

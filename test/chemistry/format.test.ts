@@ -1,5 +1,5 @@
 import { describe, expect, it } from 'vitest';
-import { loadChemistries, parseChemistries } from '../../src/chemistry/chemistries.js';
+import { loadChemistries, parseChemistries } from '../../src/chemistry/chemistry-file.js';
 import { formatChemistryTable, TABLE_WIDTH } from '../../src/chemistry/format.js';
 
 const all = loadChemistries();

@@ -1,5 +1,6 @@
 import { describe, expect, it } from 'vitest';
-import { findChemistry, loadChemistries } from '../../src/chemistry/chemistries.js';
+import { findChemistry } from '../../src/chemistry/chemistries.js';
+import { loadChemistries } from '../../src/chemistry/chemistry-file.js';
 import {
   checkRestingVoltage,
   fitsFor,

@@ -4,7 +4,7 @@ import { join } from 'node:path';
 import { PassThrough } from 'node:stream';
 import { describe, expect, it } from 'vitest';
 import { fitQuantity, sealCalibration } from '../../src/calibration/calibration.js';
-import { DEFAULT_CHEMISTRIES_PATH } from '../../src/chemistry/chemistries.js';
+import { DEFAULT_CHEMISTRIES_PATH } from '../../src/chemistry/chemistry-file.js';
 import { startRun, type RunHandle } from '../../src/run/daemon.js';
 import type { RunRequest } from '../../src/run/run-request.js';
 

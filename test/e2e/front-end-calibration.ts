@@ -4,7 +4,7 @@
  * board's front end reads for it (noise off), fitted by the product's own fitter.
  */
 import { AnalogChain } from '../../src/chain/analog-chain.js';
-import { parseRigProfile } from '../../src/chain/rig-profile.js';
+import { parseRigProfile } from '../../src/chain/rig-profile-file.js';
 import {
   sealCalibration,
   fitQuantity,

@@ -6,13 +6,10 @@ import { readFileSync } from 'node:fs';
 import { fileURLToPath } from 'node:url';
 import { describe, expect, it } from 'vitest';
 import { parse as parseYaml, stringify as toYaml } from 'yaml';
-import {
-  fitQuantity,
-  parseCalibration,
-  sealCalibration,
-} from '../../src/calibration/calibration.js';
-import { parseRigProfile } from '../../src/chain/rig-profile.js';
-import { parseChemistries } from '../../src/chemistry/chemistries.js';
+import { fitQuantity, sealCalibration } from '../../src/calibration/calibration.js';
+import { parseCalibration } from '../../src/calibration/calibration-file.js';
+import { parseRigProfile } from '../../src/chain/rig-profile-file.js';
+import { parseChemistries } from '../../src/chemistry/chemistry-file.js';
 import { CellvigilError, ErrorCodes, type ErrorCode } from '../../src/core/errors.js';
 import { BENCH_RIG_TEXT, namesPlaceAndFix } from './helpers.js';
 

@@ -12,14 +12,14 @@ import { afterAll, describe, expect, it } from 'vitest';
 import { parse as parseYaml, stringify as toYaml } from 'yaml';
 import {
   fitQuantity,
-  parseCalibration,
   sealCalibration,
   calibrationId,
   type Calibration,
 } from '../../src/calibration/calibration.js';
+import { parseCalibration } from '../../src/calibration/calibration-file.js';
 import { AnalogChain } from '../../src/chain/analog-chain.js';
-import { parseRigProfile } from '../../src/chain/rig-profile.js';
-import { parseChemistries } from '../../src/chemistry/chemistries.js';
+import { parseRigProfile } from '../../src/chain/rig-profile-file.js';
+import { parseChemistries } from '../../src/chemistry/chemistry-file.js';
 import { CellvigilError, ErrorCodes } from '../../src/core/errors.js';
 import { loadScenarios } from '../../src/sim/scenarios.js';
 import { BENCH_RIG_TEXT, namesPlaceAndFix } from './helpers.js';

@@ -4,9 +4,10 @@ import { fileURLToPath } from 'node:url';
 import { gunzipSync } from 'node:zlib';
 import { applyCalibration } from '../../src/calibration/calibration.js';
 import { AnalogChain } from '../../src/chain/analog-chain.js';
-import { parseRigProfile } from '../../src/chain/rig-profile.js';
+import { parseRigProfile } from '../../src/chain/rig-profile-file.js';
 import { encodeDataFrame } from '../../src/protocol/codec.js';
 import { Pipeline } from '../../src/run/pipeline.js';
+import { plausibilityFor } from '../../src/session/plausibility.js';
 import { Session } from '../../src/session/session.js';
 
 export const BENCH_RIG_PATH = fileURLToPath(
@@ -74,6 +75,12 @@ export function benchPipeline(originMs = 0): { pipeline: Pipeline; session: Sess
     floorV: 2.5,
     maxTemperatureC: 60,
     maxCurrentA: 10,
+    // One Li-ion cell: 4.25 V the highest resting voltage (config/chemistries.yaml).
+    plausibility: plausibilityFor({
+      maxRestVPerCell: 4.25,
+      cells: 1,
+      ampsPerCount: BENCH_CHAIN.ampsPerCount,
+    }),
     checkRest: () => null,
   });
   const pipeline = new Pipeline({
@@ -118,8 +125,9 @@ export function warmUp(
 ): { seq: number; tick: number; at: number } {
   let seq = 0;
   let at = startMs;
+  // At rest no current flows: the channel reads its offset, a couple of counts.
   for (; seq < 12; seq++, at += FRAME_MS)
-    p.line(dataLine({ seq, tickMs: seq * FRAME_MS, loadOn: false }), at, at);
+    p.line(dataLine({ seq, tickMs: seq * FRAME_MS, loadOn: false, iRaw: 2 }), at, at);
   for (; session.state !== 'discharging'; seq++, at += FRAME_MS) {
     if (seq > 40) throw new Error(`the session did not reach discharging (${session.state})`);
     p.line(dataLine({ seq, tickMs: seq * FRAME_MS, loadOn: true }), at, at);

@@ -103,7 +103,8 @@ describe.skipIf(skip)('live page in headless Chromium', () => {
       detail: '60.4 °C is above the limit of 60 °C',
     });
     await page.waitForSelector('#alarm-banner:not([hidden])');
-    await expect(page.textContent('#alarm-title')).resolves.toContain('over_temperature');
+    await expect(page.textContent('#alarm-title')).resolves.toBe('Alarm: over temperature');
+    await expect(page.getAttribute('#alarm-banner', 'data-level')).resolves.toBe('alarm');
     rig.hub.state({ host_s: 5995, from: 'discharging', to: 'ended', why: 'over temperature' });
     rig.hub.result({
       end_reason: 'over_temperature',

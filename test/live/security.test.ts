@@ -1,4 +1,4 @@
-import { statSync, writeFileSync, chmodSync, mkdirSync } from 'node:fs';
+import { statSync, writeFileSync, chmodSync, chownSync, mkdirSync, symlinkSync } from 'node:fs';
 import { join } from 'node:path';
 import { request } from 'node:http';
 import { afterEach, describe, expect, it } from 'vitest';
@@ -84,6 +84,72 @@ describe('tokens', () => {
     mkdirSync(other, { mode: 0o700 });
     writeFileSync(join(other, 'tokens.json'), '{"v":1,"control":"short"}', { mode: 0o600 });
     expect(() => loadTokens(other)).toThrow(expect.objectContaining({ code: 'CV_TOKEN_FILE' }));
+  });
+
+  // Common practice of careful daemons (a key another user could have placed is not trusted):
+  // the file must be ours, and its folder neither another user's nor writable by others.
+  const asRoot = process.getuid?.() === 0;
+  const refusedWith = (text: string): unknown =>
+    expect.objectContaining({ code: 'CV_TOKEN_FILE', message: expect.stringContaining(text) });
+
+  it.skipIf(!asRoot)('refuses a token file owned by another user, mode 0600 or not', () => {
+    const home = tempHome();
+    const { path } = loadTokens(home);
+    expect(() => loadTokens(home)).not.toThrow();
+    chownSync(path, 4321, 4321);
+    expect(() => loadTokens(home)).toThrow(refusedWith('belongs to another user (uid 4321)'));
+  });
+
+  it.skipIf(!asRoot)('refuses a token folder owned by another user', () => {
+    const home = tempHome();
+    loadTokens(home);
+    chownSync(home, 4321, 4321);
+    expect(() => loadTokens(home)).toThrow(refusedWith('folder belongs to another user'));
+  });
+
+  it('refuses a token folder others may write to, unless it is sticky and the file is ours', () => {
+    const home = tempHome();
+    loadTokens(home);
+    for (const mode of [0o777, 0o770, 0o703]) {
+      chmodSync(home, mode);
+      expect(() => loadTokens(home)).toThrow(refusedWith('can be written by other users'));
+    }
+    // Sticky, as /tmp is: only a file's owner may rename or delete it there.
+    chmodSync(home, 0o1777);
+    expect(loadTokens(home).generated).toBe(false);
+  });
+
+  it.skipIf(!asRoot)('in a sticky folder a file someone else put there is still refused', () => {
+    const home = tempHome();
+    chmodSync(home, 0o1777);
+    writeFileSync(
+      join(home, 'tokens.json'),
+      JSON.stringify({ v: 1, control: 'a'.repeat(64), viewer: 'b'.repeat(64), created: 'x' }),
+      { mode: 0o600 },
+    );
+    chownSync(join(home, 'tokens.json'), 4321, 4321);
+    expect(() => loadTokens(home)).toThrow(refusedWith('belongs to another user'));
+  });
+
+  it('makes no tokens in a folder others may write to, and leaves a sticky folder its mode', () => {
+    const open = tempHome();
+    chmodSync(open, 0o777);
+    expect(() => loadTokens(open)).toThrow(refusedWith('can be written by other users'));
+    expect(() => statSync(join(open, 'tokens.json'))).toThrow(/ENOENT/);
+    const sticky = tempHome();
+    chmodSync(sticky, 0o1777);
+    const made = loadTokens(sticky);
+    expect(made.generated).toBe(true);
+    expect(statSync(sticky).mode & 0o7777).toBe(0o1777);
+    expect(statSync(made.path).mode & 0o777).toBe(0o600);
+  });
+
+  it('refuses a token file that is a link', () => {
+    const real = tempHome();
+    const { path } = loadTokens(real);
+    const home = tempHome();
+    symlinkSync(path, join(home, 'tokens.json'));
+    expect(() => loadTokens(home)).toThrow(refusedWith('not a regular file'));
   });
 
   it('live under $CELLVIGIL_HOME, else $XDG_CONFIG_HOME/cellvigil, else ~/.config/cellvigil', () => {

@@ -107,6 +107,60 @@ describe('watch: against a live server', () => {
     await client.done;
   });
 
+  it('gives up on an address that never answers, with a clear error (TCP: a closed port refuses the connection)', async () => {
+    // A port that was just listening and is closed now: nothing answers there.
+    const hub = new LiveHub();
+    const { tokens } = loadTokens(tempHome());
+    const gone = await startLiveServer({ hub, listen: '127.0.0.1:0', tokenStore: tokens });
+    const port = gone.port;
+    await gone.close();
+    const links: string[] = [];
+    const started = Date.now();
+    const client = watchLive({
+      url: `ws://127.0.0.1:${port}/live?token=secret`,
+      onMessage: () => {},
+      onLink: (t) => links.push(t),
+      backoffMinMs: 50,
+      backoffMaxMs: 100,
+      firstConnectMs: 600,
+    });
+    await expect(client.done).rejects.toMatchObject({
+      code: 'CV_WATCH_UNREACHABLE',
+      exitCode: 1,
+      message: expect.stringContaining('nothing listens there (connection refused)'),
+    });
+    const err = await client.done.catch((e: Error) => e);
+    expect((err as Error).message).toContain('token=…');
+    expect((err as Error).message).not.toContain('secret');
+    expect(Date.now() - started).toBeLessThan(3000);
+    expect(links.filter((l) => /retrying/.test(l)).length).toBeGreaterThan(1);
+  });
+
+  it('keeps retrying past the first-connection limit once it has been connected', async () => {
+    rig = await startRig();
+    const port = rig.server.port;
+    const got: ServerMessage[] = [];
+    const client = watchLive({
+      url: `ws://127.0.0.1:${port}/live`,
+      onMessage: (m) => got.push(m),
+      onLink: () => {},
+      backoffMinMs: 50,
+      backoffMaxMs: 100,
+      firstConnectMs: 300,
+    });
+    await vi.waitFor(() => expect(got.filter((m) => m.type === 'hello')).toHaveLength(1));
+    await rig.server.close();
+    let settled = false;
+    client.done.then(
+      () => (settled = true),
+      () => (settled = true),
+    );
+    await new Promise((r) => setTimeout(r, 900));
+    expect(settled).toBe(false);
+    client.stop();
+    await client.done;
+  });
+
   it('stops with a clear error when the daemon refuses the viewer token', async () => {
     const hub = new LiveHub();
     const { tokens } = loadTokens(tempHome());

@@ -6,7 +6,7 @@ import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { CellvigilError, ErrorCodes } from '../../src/core/errors.js';
 import { readLines } from '../../src/replay/line-reader.js';
 import { openRunFolder, readRunEvents, readRunSamples } from '../../src/replay/run-folder.js';
-import { parseSampleLine, splitCsvLine, type SampleRecord } from '../../src/replay/sample-csv.js';
+import { SampleReader, splitCsvLine, type SampleRecord } from '../../src/replay/sample-csv.js';
 import { recomputeRun } from '../../src/report/recompute.js';
 import { reportRuns } from '../../src/report/report-runs.js';
 import { formatSampleRow, SAMPLE_HEADER } from '../../src/sinks/sample-row.js';
@@ -82,7 +82,7 @@ describe('sample rows', () => {
       state: 'discharging',
       calibrationId: '0123456789abcdef',
     };
-    const r = parseSampleLine(formatSampleRow(row));
+    const r = new SampleReader().parseLine(formatSampleRow(row));
     expect(r).toMatchObject({
       hostS: 12.345,
       channel: 3,
@@ -212,8 +212,9 @@ describe('a run folder', () => {
     // The first file's rows, then the second's up to the damaged line 58 (header on line 1).
     expect(got).toHaveLength(before.length + 56);
     expect(new Set(got).size).toBe(got.length);
-    expect(got[0]).toEqual(parseSampleLine(before[0]!));
-    expect(got.at(-1)).toEqual(parseSampleLine(lines[56]!));
+    const reader = new SampleReader();
+    expect(got[0]).toEqual(reader.parseLine(before[0]!));
+    expect(got.at(-1)).toEqual(reader.parseLine(lines[56]!));
   });
 
   it('a wrong header is an error naming line 1', async () => {

@@ -1,10 +1,6 @@
 import fc from 'fast-check';
 import { describe, expect, it } from 'vitest';
-import {
-  parseSampleLine,
-  SampleLineError,
-  type SampleRecord,
-} from '../../src/replay/sample-csv.js';
+import { SampleLineError, SampleReader, type SampleRecord } from '../../src/replay/sample-csv.js';
 
 /**
  * A sample-row reader written from docs/run-folder.md (the columns and their formats) with
@@ -151,17 +147,19 @@ const goodRow = (hostS: string, wallTime: string): string =>
 
 describe('sample rows: the reader agrees with a reader written from docs/run-folder.md', () => {
   it('on rows as the daemon writes them and on every kind of damaged field', () => {
+    const reader = new SampleReader();
     fc.assert(
       fc.property(line, (text) => {
         const want = reference(text);
-        if (want === null) expect(() => parseSampleLine(text)).toThrow(SampleLineError);
-        else expect(parseSampleLine(text)).toEqual(want);
+        if (want === null) expect(() => reader.parseLine(text)).toThrow(SampleLineError);
+        else expect(reader.parseLine(text)).toEqual(want);
       }),
       { numRuns: 30_000 },
     );
   });
 
   it('on decimals of 16 to 20 digits, which a double cannot build digit by digit', () => {
+    const reader = new SampleReader();
     fc.assert(
       fc.property(
         fc.stringMatching(/^[0-9]{16,20}$/),
@@ -171,7 +169,7 @@ describe('sample rows: the reader agrees with a reader written from docs/run-fol
             `${digits.slice(0, p)}.${digits.slice(p)}`,
             '2026-11-14T07:30:00.050Z',
           );
-          expect(parseSampleLine(text)).toEqual(reference(text));
+          expect(reader.parseLine(text)).toEqual(reference(text));
         },
       ),
       { numRuns: 2000 },
@@ -179,30 +177,48 @@ describe('sample rows: the reader agrees with a reader written from docs/run-fol
   });
 
   it('an empty or changed calibration id is judged afresh, whatever the row before had', () => {
+    const reader = new SampleReader();
     const row = (id: string): string =>
       `${goodRow('1.000', '2026-11-14T07:30:00.050Z').replace(/,none$/, ',')}${id}`;
-    expect(parseSampleLine(row('none')).calibrationId).toBe('none');
-    expect(() => parseSampleLine(row(''))).toThrow(SampleLineError);
-    expect(() => parseSampleLine(row('nonE'))).toThrow(SampleLineError);
-    expect(parseSampleLine(row('00ff00ff00ff00ff')).calibrationId).toBe('00ff00ff00ff00ff');
-    expect(() => parseSampleLine(row('00ff00ff00ff00fg'))).toThrow(SampleLineError);
+    expect(reader.parseLine(row('none')).calibrationId).toBe('none');
+    expect(() => reader.parseLine(row(''))).toThrow(SampleLineError);
+    expect(() => reader.parseLine(row('nonE'))).toThrow(SampleLineError);
+    expect(reader.parseLine(row('00ff00ff00ff00ff')).calibrationId).toBe('00ff00ff00ff00ff');
+    expect(() => reader.parseLine(row('00ff00ff00ff00fg'))).toThrow(SampleLineError);
   });
 
   it('a valid hour 24:00 does not make 24:30 valid', () => {
-    expect(parseSampleLine(goodRow('1.000', '2026-11-14T24:00:00.000Z')).wallTime).toBe(
+    const reader = new SampleReader();
+    expect(reader.parseLine(goodRow('1.000', '2026-11-14T24:00:00.000Z')).wallTime).toBe(
       '2026-11-14T24:00:00.000Z',
     );
-    expect(() => parseSampleLine(goodRow('1.050', '2026-11-14T24:30:00.000Z'))).toThrow(
+    expect(() => reader.parseLine(goodRow('1.050', '2026-11-14T24:30:00.000Z'))).toThrow(
       SampleLineError,
     );
   });
 
   it('on a day of rows across an hour change, the calibration id changing mid-way', () => {
+    const reader = new SampleReader();
     for (let i = 0; i < 5000; i++) {
       const t = new Date(Date.UTC(2026, 11, 31, 22, 59, 50) + i * 50).toISOString();
       const cal = i < 2500 ? 'none' : '00ff00ff00ff00ff';
       const text = `${(i * 0.05).toFixed(3)},${t},0,${i % 65536},${i * 50},2450,80,2100,01,4.02000,,24.50,${(i * 1.7e-6).toFixed(7)},${(i * 6.8e-6).toFixed(7)},discharging,${cal}`;
-      expect(parseSampleLine(text)).toEqual(reference(text));
+      expect(reader.parseLine(text)).toEqual(reference(text));
+    }
+  });
+
+  it('two readers taken in turn, on files of other hours and ids, each agree with the reference', () => {
+    const readers = [new SampleReader(), new SampleReader()];
+    const files = [
+      { start: Date.UTC(2026, 11, 31, 22, 59, 58), cal: 'none', state: 'discharging' },
+      { start: Date.UTC(2027, 0, 2, 5, 0, 0), cal: '00ff00ff00ff00ff', state: 'stopping' },
+    ];
+    for (let i = 0; i < 200; i++) {
+      for (const [k, f] of files.entries()) {
+        const t = new Date(f.start + i * 50).toISOString();
+        const text = `${(i * 0.05).toFixed(3)},${t},${k},${i},${i * 50},2450,80,2100,01,4.02000,,24.50,0.0000017,0.0000068,${f.state},${f.cal}`;
+        expect(readers[k]!.parseLine(text)).toEqual(reference(text));
+      }
     }
   });
 });

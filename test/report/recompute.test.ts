@@ -2,7 +2,7 @@ import { mkdtemp, readFile, rm } from 'node:fs/promises';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
-import { writeCalibration } from '../../src/calibration/calibration.js';
+import { writeCalibration } from '../../src/calibration/calibration-file.js';
 import { openRunFolder } from '../../src/replay/run-folder.js';
 import { recomputeRun } from '../../src/report/recompute.js';
 import { reportRuns } from '../../src/report/report-runs.js';

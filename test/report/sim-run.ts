@@ -14,18 +14,20 @@ import {
 } from '../../src/calibration/calibration.js';
 import { AnalogChain } from '../../src/chain/analog-chain.js';
 import type { RigProfile } from '../../src/chain/rig-profile-types.js';
-import { findChemistry, loadChemistries } from '../../src/chemistry/chemistries.js';
+import { findChemistry } from '../../src/chemistry/chemistries.js';
+import { loadChemistries } from '../../src/chemistry/chemistry-file.js';
 import { checkRestingVoltage, resolveCutoff } from '../../src/chemistry/limits.js';
 import { VirtualClock } from '../../src/core/clock.js';
 import { encodeCommand } from '../../src/protocol/codec.js';
 import { EventLog } from '../../src/run/event-log.js';
 import { Pipeline } from '../../src/run/pipeline.js';
 import { buildResult, type RunResult } from '../../src/run/result.js';
+import { plausibilityFor } from '../../src/session/plausibility.js';
 import { Session } from '../../src/session/session.js';
 import type { Action } from '../../src/session/session-types.js';
 import { FrontEnd } from '../../src/sim/front-end.js';
 import { mulberry32 } from '../../src/sim/prng.js';
-import { buildSimRig, type SimScenario } from '../../src/sim/scenarios.js';
+import { buildSimRig, type SimOverrides, type SimScenario } from '../../src/sim/scenarios.js';
 import type { SimTruth } from '../../src/sim/sim-rig.js';
 import { writeJsonAtomic } from '../../src/sinks/atomic-json.js';
 import { LogFile } from '../../src/sinks/log-file.js';
@@ -94,6 +96,8 @@ export interface SimRunOptions {
   limitS?: number;
   /** Keep logging rows this long after the run ended (the cell recovering with the load off), s. */
   afterEndS?: number;
+  /** Changes to the scenario's rig: clock, faults of the link or of the circuit. */
+  overrides?: SimOverrides;
 }
 
 export interface SimRun {
@@ -109,7 +113,7 @@ export async function simulateRun(o: SimRunOptions): Promise<SimRun> {
   await mkdir(o.dir, { recursive: true });
   const startedWall = Date.UTC(2026, 11, 2, 11, 0, 0);
   const clock = new VirtualClock(0, startedWall);
-  const rig = buildSimRig(scenario, clock, profile);
+  const rig = buildSimRig(scenario, clock, profile, o.overrides ?? {});
   const chain = new AnalogChain(profile);
   const chemistries = loadChemistries();
   const chemistry = findChemistry(chemistries, scenario.cell.chemistry);
@@ -122,6 +126,11 @@ export async function simulateRun(o: SimRunOptions): Promise<SimRun> {
     floorV: chemistry.floor_V_per_cell.value * cells,
     maxTemperatureC: chemistry.max_temperature_C.value,
     maxCurrentA: 0.98 * chain.fullScale().amps,
+    plausibility: plausibilityFor({
+      maxRestVPerCell: chemistry.max_rest_V_per_cell.value,
+      cells,
+      ampsPerCount: chain.ampsPerCount,
+    }),
     checkRest: (v) => {
       const c = checkRestingVoltage(chemistry, cells, v, cutoff.perCell, chemistries);
       return c.ok ? null : c.error.message;
@@ -250,6 +259,7 @@ export async function simulateRun(o: SimRunOptions): Promise<SimRun> {
     lastLoadedV: session.lastLoadedV,
     cutoffV: session.cutoffV,
     counters: pipeline.counters,
+    implausibleFrames: session.plausibility.implausibleFrames,
     rigClockErrorPpm: pipeline.timeBase.rigClockErrorPpm(),
     calibration,
     calibrationId: pipeline.calibrationId,

@@ -2,7 +2,7 @@ import { readFileSync } from 'node:fs';
 import { fileURLToPath } from 'node:url';
 import { applyCalibration } from '../../src/calibration/calibration.js';
 import { AnalogChain } from '../../src/chain/analog-chain.js';
-import { parseRigProfile } from '../../src/chain/rig-profile.js';
+import { parseRigProfile } from '../../src/chain/rig-profile-file.js';
 import { encodeDataFrame } from '../../src/protocol/codec.js';
 import { FLAG_LOAD_ON } from '../../src/protocol/messages.js';
 import { Pipeline, type LineOutcome } from '../../src/run/pipeline.js';

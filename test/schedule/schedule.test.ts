@@ -8,10 +8,10 @@ import {
   loadOnMsUntil,
   loadPlanAt,
   parseScheduleOption,
-  parseScheduleYaml,
   serviceOutput,
   type Schedule,
 } from '../../src/schedule/schedule.js';
+import { parseScheduleYaml } from '../../src/schedule/schedule-file.js';
 
 const S = 1000;
 const MIN = 60_000;
@@ -193,7 +193,8 @@ describe('schedules: other shapes', () => {
         'continuous cannot be combined with daily',
       ],
       [() => parseScheduleOption('sometimes'), '"sometimes" is not a schedule clause'],
-      [() => parseScheduleOption('on 15 every 60 s'), 'must be a positive duration, got "15"'],
+      [() => parseScheduleOption('on 15 every 60 s'), 'pulse.on "15" has no unit'],
+      [() => parseScheduleOption('on 15 every 1 min'), 'e.g. "15 s" or "15 min"'],
       [
         () => parseScheduleYaml('daily: 4 h\nrepat: true\n', 's.yaml'),
         'repat is not a schedule key',
@@ -211,6 +212,19 @@ describe('schedules: other shapes', () => {
       const e = refusal(f);
       expect(e.code).toBe(ErrorCodes.CONFIG_INVALID);
       expect(e.message).toContain(text);
+    }
+    // An inline duration without a unit is not "counted as seconds": the message must not say so.
+    expect(refusal(() => parseScheduleOption('on 15 every 1 min')).message).not.toContain(
+      'bare number counts as seconds',
+    );
+  });
+
+  it('a --schedule naming a file that is not there says so, not "not a schedule clause"', () => {
+    for (const name of ['plans/pulsed.yaml', 'pulsed.yaml', './sched']) {
+      const e = refusal(() => parseScheduleOption(name));
+      expect(e.code).toBe(ErrorCodes.CONFIG_READ);
+      expect(e.message).toContain(`there is no schedule file "${name}"`);
+      expect(e.message).not.toContain('schedule clause');
     }
   });
 });

@@ -1,7 +1,9 @@
-import { loadChemistries, findChemistry } from '../../src/chemistry/chemistries.js';
+import { findChemistry } from '../../src/chemistry/chemistries.js';
+import { loadChemistries } from '../../src/chemistry/chemistry-file.js';
 import { checkRestingVoltage } from '../../src/chemistry/limits.js';
 import type { HostCommand } from '../../src/protocol/messages.js';
 import { FLAG_LOAD_ON } from '../../src/protocol/messages.js';
+import { plausibilityFor } from '../../src/session/plausibility.js';
 import { Session, type SessionSettings } from '../../src/session/session.js';
 import type { Action, Measurement } from '../../src/session/session-types.js';
 
@@ -25,6 +27,12 @@ export function liIonSettings(over: Partial<SessionSettings> = {}): SessionSetti
     floorV: LI_ION.floor_V_per_cell.value,
     maxTemperatureC: LI_ION.max_temperature_C.value,
     maxCurrentA: 5,
+    // The bench rig's current channel: 3.3 V / 4096 counts / (30.3 × 0.02 Ω) = 1.33 mA a count.
+    plausibility: plausibilityFor({
+      maxRestVPerCell: LI_ION.max_rest_V_per_cell.value,
+      cells: 1,
+      ampsPerCount: 3.3 / 4096 / (30.3 * 0.02),
+    }),
     checkRest: (restV) => {
       const r = checkRestingVoltage(LI_ION, 1, restV, LI_ION.cutoff_V_per_cell.value);
       return r.ok ? null : r.error.message;

@@ -3,7 +3,7 @@ import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { afterEach, beforeEach, describe, expect, it } from 'vitest';
 import { LogFile } from '../../src/sinks/log-file.js';
-import { SAMPLE_HEADER, sampleRowMaxBytes, writeSampleRow } from '../../src/sinks/sample-row.js';
+import { SAMPLE_HEADER, sampleRowMaxBytes, SampleRowWriter } from '../../src/sinks/sample-row.js';
 
 let dir: string;
 beforeEach(async () => {
@@ -95,7 +95,8 @@ describe('LogFile rotation (RFC 4180: a header row per file, whole rows)', () =>
       state: 'discharging',
       calibrationId: 'none',
     }));
-    rows.forEach((r) => log.appendWith(r, sampleRowMaxBytes(r), writeSampleRow));
+    const writer = new SampleRowWriter();
+    rows.forEach((r) => log.appendWith(r, sampleRowMaxBytes(r), writer.write));
     await log.close();
     const files = await readBack();
     expect(files.length).toBeGreaterThan(2);

@@ -1,8 +1,8 @@
 import fc from 'fast-check';
 import { describe, expect, it } from 'vitest';
 import { writeFixed, writeText, writeUint } from '../../src/sinks/ascii-writer.js';
-import { writeIsoTime } from '../../src/sinks/iso-time.js';
-import { formatSampleRow, type SampleRow } from '../../src/sinks/sample-row.js';
+import { IsoTimeWriter } from '../../src/sinks/iso-time.js';
+import { formatSampleRow, SampleRowWriter, type SampleRow } from '../../src/sinks/sample-row.js';
 
 /** What writeFixed puts in a buffer, as text. */
 function fixedDecimal(x: number, digits: number): string {
@@ -87,13 +87,16 @@ describe('writeUint and writeText write the text of String(n) and of the string 
   });
 });
 
-/** What writeIsoTime puts in a buffer (not at its start), as text. */
+/** One writer for every call, as a log has: its kept hour must never leak into another time. */
+const timeWriter = new IsoTimeWriter();
+
+/** What the writer puts in a buffer (not at its start), as text. */
 function isoTime(ms: number): string {
   const buf = Buffer.alloc(40);
-  return buf.toString('latin1', 3, writeIsoTime(buf, 3, ms));
+  return buf.toString('latin1', 3, timeWriter.write(buf, 3, ms));
 }
 
-describe('writeIsoTime writes the text of Date.prototype.toISOString (ECMA-262)', () => {
+describe('IsoTimeWriter writes the text of Date.prototype.toISOString (ECMA-262)', () => {
   it('on any time from 1970 to 9999, whole or not, in any order', () => {
     fc.assert(
       fc.property(
@@ -174,6 +177,18 @@ describe('formatSampleRow', () => {
     fc.assert(
       fc.property(row, (r) => {
         expect(formatSampleRow(r)).toBe(reference(r));
+      }),
+      { numRuns: 5_000 },
+    );
+  });
+
+  it('one writer over many rows (its kept hour, state and id reused or replaced) writes the same', () => {
+    const writer = new SampleRowWriter();
+    const buf = Buffer.alloc(1024);
+    fc.assert(
+      fc.property(row, (r) => {
+        const end = writer.write(r, buf, 0);
+        expect(buf.toString('utf8', 0, end)).toBe(`${reference(r)}\n`);
       }),
       { numRuns: 5_000 },
     );

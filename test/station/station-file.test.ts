@@ -1,7 +1,7 @@
 import { fileURLToPath } from 'node:url';
 import { dirname, join } from 'node:path';
 import { describe, expect, it } from 'vitest';
-import { loadChemistries } from '../../src/chemistry/chemistries.js';
+import { loadChemistries } from '../../src/chemistry/chemistry-file.js';
 import type { CellvigilError } from '../../src/core/errors.js';
 import { loadScenarios } from '../../src/sim/scenarios.js';
 import { checkStationPlan } from '../../src/station/station-check.js';

@@ -142,7 +142,9 @@ describe('time base: rig clock rate', () => {
     const tb = new TimeBase();
     stampAll(frames(40), tb); // 3.9 s
     expect(tb.rigClockErrorPpm()).toBeNull();
+    // A frame's arrival counts as fresh once the next one shows it ended its delivery.
     tb.stamp(40, 5100, 10_100);
+    tb.stamp(41, 5200, 10_200);
     expect(tb.rigClockErrorPpm()).not.toBeNull();
   });
 });

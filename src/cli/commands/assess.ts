@@ -11,6 +11,9 @@ interface AssessArgs {
   'rig-clock-tolerance': number | undefined;
   temperatures: number[] | undefined;
   json: boolean;
+  chemistry: string | undefined;
+  cells: number | undefined;
+  'chemistries-file': string | undefined;
 }
 
 export const assessCommand: CommandModule<object, AssessArgs> = {
@@ -49,6 +52,13 @@ export const assessCommand: CommandModule<object, AssessArgs> = {
         number: true,
         describe: 'Where to give the thermistor step, °C (default 0 25 45 60)',
       })
+      .option('chemistry', {
+        type: 'string',
+        describe:
+          'Chemistry of the battery to test: warn when a full one is beyond the voltage range',
+      })
+      .option('cells', { type: 'number', describe: 'Cells in series of that battery (default 1)' })
+      .option('chemistries-file', { type: 'string', describe: 'Another chemistry profile file' })
       .option('json', { type: 'boolean', default: false, describe: 'Print the report as JSON' })
       .example(
         '$0 assess config/rigs/inverting-10bit.yaml --claim-resolution 0.001',
@@ -74,6 +84,11 @@ export const assessCommand: CommandModule<object, AssessArgs> = {
         ? { rigClockTolerancePct: args['rig-clock-tolerance'] }
         : {}),
       ...(args.temperatures !== undefined ? { temperatures: args.temperatures } : {}),
+      ...(args.chemistry !== undefined ? { chemistry: args.chemistry } : {}),
+      ...(args.cells !== undefined ? { cells: args.cells } : {}),
+      ...(args['chemistries-file'] !== undefined
+        ? { chemistriesFile: args['chemistries-file'] }
+        : {}),
     });
     process.stdout.write(args.json ? `${JSON.stringify(report, null, 2)}\n` : `${text}\n`);
   },

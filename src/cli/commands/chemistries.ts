@@ -1,5 +1,5 @@
 import type { CommandModule } from 'yargs';
-import { DEFAULT_CHEMISTRIES_PATH, loadChemistries } from '../../chemistry/chemistries.js';
+import { DEFAULT_CHEMISTRIES_PATH, loadChemistries } from '../../chemistry/chemistry-file.js';
 import { formatChemistryTable } from '../../chemistry/format.js';
 
 interface ChemistriesArgs {

@@ -1,4 +1,4 @@
-import type { CommandModule } from 'yargs';
+import type { Argv, CommandModule } from 'yargs';
 import { startRun } from '../../run/daemon.js';
 import { DEFAULT_LISTEN, DEFAULT_ROTATE_BYTES, type RunRequest } from '../../run/run-request.js';
 
@@ -26,94 +26,103 @@ interface RunArgs {
   'link-timeout': number;
 }
 
+/** Where the frames come from, and the cell on the rig. */
+function rigAndCellOptions<T>(y: Argv<T>) {
+  return y
+    .option('port', {
+      type: 'string',
+      describe: 'Serial device of the rig (or a pseudo-terminal)',
+      conflicts: 'sim',
+    })
+    .option('sim', {
+      type: 'string',
+      describe: 'Use the built-in simulated rig with this scenario (config/sim-scenarios.yaml)',
+      coerce: (v: unknown) => (v === '' || v === true ? 'demo' : String(v)),
+    })
+    .option('speed', {
+      type: 'number',
+      default: 1,
+      describe: 'Clock speed of the simulated rig (1 = real time)',
+    })
+    .option('rig', {
+      type: 'string',
+      describe: 'Rig profile (YAML); default config/rigs/bench-20mohm.yaml',
+    })
+    .option('calibration', { type: 'string', describe: 'Calibration file of this rig (JSON)' })
+    .option('chemistry', {
+      type: 'string',
+      describe: 'Chemistry profile id (see `cellvigil chemistries`); required with --port',
+    })
+    .option('chemistries-file', { type: 'string', describe: 'Another chemistry profile file' })
+    .option('cells', {
+      type: 'number',
+      describe: "Cells in series (default 1, or the scenario's)",
+    })
+    .option('cutoff', {
+      type: 'number',
+      describe: "End-of-discharge voltage per cell (never below the chemistry's floor)",
+    });
+}
+
+/** The run folder, the live feed, the link and the schedule. */
+function runOptions<T>(y: Argv<T>) {
+  return y
+    .option('label', { type: 'string', describe: "Label in the run folder's name" })
+    .option('runs', {
+      type: 'string',
+      default: 'runs',
+      describe: 'Folder that holds the run folders',
+    })
+    .option('listen', {
+      type: 'string',
+      default: DEFAULT_LISTEN,
+      describe: 'host:port of the live feed',
+    })
+    .option('live', {
+      type: 'boolean',
+      default: true,
+      describe: 'Serve the live feed (--no-live to switch it off)',
+    })
+    .option('once', {
+      type: 'boolean',
+      default: false,
+      describe: 'Exit when the run ends (for scripts)',
+    })
+    .option('baud', {
+      type: 'number',
+      describe: "Serial baud rate (default: the rig profile's frame.baud)",
+    })
+    .option('channel', { type: 'number', default: 0, describe: 'Rig channel the cell is on' })
+    .option('schedule', {
+      type: 'string',
+      describe:
+        'Discharge schedule: a YAML file, or e.g. "on 15 s every 1 min, 8 h per day, to 1.0 V"',
+    })
+    .option('resume', {
+      type: 'string',
+      describe: 'Continue an interrupted run from its folder (same rig, chemistry and limits)',
+    })
+    .option('new', {
+      type: 'boolean',
+      default: false,
+      describe: 'Start a new run even if an unfinished run on this port could be resumed',
+    })
+    .option('link-timeout', {
+      type: 'number',
+      default: 60,
+      describe: "Seconds the rig's port may stay unplugged before the run ends as link_lost",
+    })
+    .option('rotate-mb', {
+      type: 'number',
+      default: DEFAULT_ROTATE_BYTES / 1048576,
+      describe: 'Start a new sample file after this many MiB',
+    });
+}
+
 export const runCommand: CommandModule<object, RunArgs> = {
   command: 'run',
   describe: 'Discharge a cell: acquire, integrate, enforce the limits, log',
-  builder: (y) =>
-    y
-      .option('port', {
-        type: 'string',
-        describe: 'Serial device of the rig (or a pseudo-terminal)',
-        conflicts: 'sim',
-      })
-      .option('sim', {
-        type: 'string',
-        describe: 'Use the built-in simulated rig with this scenario (config/sim-scenarios.yaml)',
-        coerce: (v: unknown) => (v === '' || v === true ? 'demo' : String(v)),
-      })
-      .option('speed', {
-        type: 'number',
-        default: 1,
-        describe: 'Clock speed of the simulated rig (1 = real time)',
-      })
-      .option('rig', {
-        type: 'string',
-        describe: 'Rig profile (YAML); default config/rigs/bench-20mohm.yaml',
-      })
-      .option('calibration', { type: 'string', describe: 'Calibration file of this rig (JSON)' })
-      .option('chemistry', {
-        type: 'string',
-        describe: 'Chemistry profile id (see `cellvigil chemistries`); required with --port',
-      })
-      .option('chemistries-file', { type: 'string', describe: 'Another chemistry profile file' })
-      .option('cells', {
-        type: 'number',
-        describe: "Cells in series (default 1, or the scenario's)",
-      })
-      .option('cutoff', {
-        type: 'number',
-        describe: "End-of-discharge voltage per cell (never below the chemistry's floor)",
-      })
-      .option('label', { type: 'string', describe: "Label in the run folder's name" })
-      .option('runs', {
-        type: 'string',
-        default: 'runs',
-        describe: 'Folder that holds the run folders',
-      })
-      .option('listen', {
-        type: 'string',
-        default: DEFAULT_LISTEN,
-        describe: 'host:port of the live feed',
-      })
-      .option('live', {
-        type: 'boolean',
-        default: true,
-        describe: 'Serve the live feed (--no-live to switch it off)',
-      })
-      .option('once', {
-        type: 'boolean',
-        default: false,
-        describe: 'Exit when the run ends (for scripts)',
-      })
-      .option('baud', {
-        type: 'number',
-        describe: "Serial baud rate (default: the rig profile's frame.baud)",
-      })
-      .option('channel', { type: 'number', default: 0, describe: 'Rig channel the cell is on' })
-      .option('schedule', {
-        type: 'string',
-        describe:
-          'Discharge schedule: a YAML file, or e.g. "on 15 s every 1 min, 8 h per day, to 1.0 V"',
-      })
-      .option('resume', {
-        type: 'string',
-        describe: 'Continue an interrupted run from its folder (same rig, chemistry and limits)',
-      })
-      .option('new', {
-        type: 'boolean',
-        default: false,
-        describe: 'Start a new run even if an unfinished run on this port could be resumed',
-      })
-      .option('link-timeout', {
-        type: 'number',
-        default: 60,
-        describe: "Seconds the rig's port may stay unplugged before the run ends as link_lost",
-      })
-      .option('rotate-mb', {
-        type: 'number',
-        default: DEFAULT_ROTATE_BYTES / 1048576,
-        describe: 'Start a new sample file after this many MiB',
-      }),
+  builder: (y) => runOptions(rigAndCellOptions(y)),
   handler: async (args) => {
     const req: RunRequest = {
       speed: args.speed,

@@ -1,14 +1,14 @@
 import { spawn, type ChildProcess } from 'node:child_process';
 import { existsSync } from 'node:fs';
 import type { CommandModule } from 'yargs';
-import { loadRigProfile } from '../../chain/rig-profile.js';
-import { HostClock } from '../../core/clock.js';
+import { DEFAULT_RIG_PATH, loadRigProfile } from '../../chain/rig-profile-file.js';
+import { HostClock } from '../../core/host-clock.js';
 import { ErrorCodes, makeError } from '../../core/errors.js';
-import { DEFAULT_RIG_PATH, DEFAULT_SCENARIOS_PATH } from '../../run/run-config.js';
 import { writeJsonAtomic } from '../../sinks/atomic-json.js';
 import {
   buildMultiChannelRig,
   buildSimRig,
+  DEFAULT_SCENARIOS_PATH,
   loadScenarios,
   pickScenario,
   type SimOverrides,

@@ -84,11 +84,7 @@
   }
 
   function axisTime(_u, splits) {
-    return splits.map((s) => {
-      if (s == null) return '';
-      const m = Math.round(s / 60);
-      return m < 60 ? `${m}m` : `${Math.floor(m / 60)}h${String(m % 60).padStart(2, '0')}`;
-    });
+    return globalThis.cvTimeAxis.labels(splits);
   }
 
   // ---- charts ------------------------------------------------------------------------
@@ -154,7 +150,7 @@
         },
       ],
       axes: [
-        { ...AXIS, values: axisTime },
+        { ...AXIS, values: axisTime, incrs: globalThis.cvTimeAxis.STEPS, space: 56 },
         { ...AXIS, size: 56 },
       ],
       cursor: { sync: { key: 'cellvigil' }, drag: { x: true, y: false } },
@@ -248,11 +244,12 @@
     );
   }
 
-  function logItem(listId, at, parts, newestFirst = true) {
+  function logItem(listId, at, parts, newestFirst = true, level = null) {
     const list = $(listId);
     const empty = list.querySelector('.empty');
     if (empty) empty.remove();
     const li = document.createElement('li');
+    if (level) li.dataset.level = level;
     const when = document.createElement('span');
     when.className = 'at';
     when.textContent = clock(at);
@@ -288,27 +285,91 @@
       ]);
   }
 
+  /**
+   * Three levels of notice, each with its own look: an alarm (a limit or a fault: the cell may
+   * be at risk, the load is or should be off), a warning (the run goes on but something needs a
+   * look), information (nothing about the figures changes). Unknown kinds count as warnings.
+   */
+  const NOTICE_LEVEL = {
+    over_temperature: 'alarm',
+    link_lost: 'alarm',
+    fault: 'alarm',
+    load_off_unconfirmed: 'alarm',
+    link_down: 'warning',
+    rig_error: 'warning',
+    calibration_rejected: 'warning',
+    chemistry_rejected: 'warning',
+    unlogged_discharge: 'warning',
+    clock_warning: 'info',
+  };
+  const NOTICE_WORDS = {
+    over_temperature: 'over temperature',
+    link_lost: 'link to the rig lost',
+    fault: 'rig or sensor fault',
+    load_off_unconfirmed: 'load off not confirmed',
+    link_down: 'rig port gone',
+    rig_error: 'rig error',
+    calibration_rejected: 'calibration edit rejected',
+    chemistry_rejected: 'chemistry edit rejected',
+    unlogged_discharge: 'discharge while not logging',
+    clock_warning: "rig's clock",
+  };
+  const LEVEL_TITLE = { alarm: 'Alarm', warning: 'Warning', info: 'Note' };
+  const LEVEL_RANK = { info: 0, warning: 1, alarm: 2 };
+  let bannerLevel = null;
+
+  function noticeOf(a) {
+    const level = NOTICE_LEVEL[a.kind] || 'warning';
+    const words = NOTICE_WORDS[a.kind] || String(a.kind).replace(/_/g, ' ');
+    // A limit's detail may repeat its kind ("over_temperature: 60.4 °C …"): say it once.
+    let detail = String(a.detail || '');
+    for (const prefix of [`${a.kind}: `, `${a.kind} `])
+      if (detail.startsWith(prefix)) detail = detail.slice(prefix.length);
+    return { level, words, detail };
+  }
+
   function addAlarm(a, loud) {
-    logItem('alarms', a.host_s, [
-      ['kind', a.kind],
-      ['', a.detail],
-    ]);
-    setText('alarm-title', `Alarm: ${a.kind}`);
-    setText('alarm-text', `${a.detail} (at ${clock(a.host_s)})`);
-    $('alarm-banner').hidden = false;
-    if (loud) {
-      document.title = `⚠ ${a.kind} · ${baseTitle}`;
-      raiseAlert(`cellvigil: ${a.kind}`, a.detail, [880, 660, 880]);
+    const n = noticeOf(a);
+    logItem(
+      'alarms',
+      a.host_s,
+      [
+        ['kind', n.words],
+        ['detail', n.detail],
+      ],
+      true,
+      n.level,
+    );
+    // A lesser notice never hides a standing greater one.
+    const banner = $('alarm-banner');
+    if (!banner.hidden && LEVEL_RANK[n.level] < LEVEL_RANK[bannerLevel]) return;
+    bannerLevel = n.level;
+    banner.dataset.level = n.level;
+    banner.setAttribute('role', n.level === 'alarm' ? 'alert' : 'status');
+    setText('alarm-title', `${LEVEL_TITLE[n.level]}: ${n.words}`);
+    setText('alarm-text', `${n.detail} (at ${clock(a.host_s)})`);
+    banner.hidden = false;
+    if (loud && n.level !== 'info') {
+      document.title = `${n.level === 'alarm' ? '⚠' : '!'} ${n.words} · ${baseTitle}`;
+      raiseAlert(`cellvigil: ${n.words}`, n.detail, n.level === 'alarm' ? [880, 660, 880] : [660]);
     }
   }
 
-  const LIMIT_REASONS = new Set(['over_temperature', 'link_lost', 'fault']);
+  const LIMIT_REASONS = new Set([
+    'over_temperature',
+    'link_lost',
+    'fault',
+    'implausible_reading',
+    'open_load',
+  ]);
   const REASON_TEXT = {
     cutoff: 'cutoff reached',
     stopped: 'stopped by hand',
     over_temperature: 'over temperature',
     link_lost: 'link to the rig lost',
     fault: 'rig fault',
+    implausible_reading: 'readings that cannot be true',
+    open_load: 'load on but no current',
     refused: 'refused at start',
   };
 
@@ -503,8 +564,8 @@
     resetLog('alarms', 'none');
     resetLog('events', 'none yet');
     for (const e of h.events) addEvent(e);
+    $('alarm-banner').hidden = true;
     for (const a of h.alarms) addAlarm(a, false);
-    if (h.alarms.length === 0) $('alarm-banner').hidden = true;
     $('result-banner').hidden = true;
     setControlsEnabled(Boolean(run));
     if (cutoffV != null && !$('cutoff-input').value) $('cutoff-input').value = cutoffV.toFixed(3);

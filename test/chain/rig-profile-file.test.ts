@@ -2,7 +2,7 @@ import { readdir } from 'node:fs/promises';
 import { fileURLToPath } from 'node:url';
 import { describe, expect, it } from 'vitest';
 import { CellvigilError, ErrorCodes } from '../../src/core/errors.js';
-import { loadRigProfile, parseRigProfile } from '../../src/chain/rig-profile.js';
+import { loadRigProfile, parseRigProfile } from '../../src/chain/rig-profile-file.js';
 
 const rigsDir = fileURLToPath(new URL('../../config/rigs/', import.meta.url));
 

@@ -5,7 +5,12 @@
 import { Ajv, type ErrorObject, type SchemaObject } from 'ajv';
 import { parseConfigYaml, readConfigText } from '../core/config-file.js';
 import { ErrorCodes, makeError } from '../core/errors.js';
+import { packagePath } from '../core/paths.js';
+import { checkRigPlausible } from './rig-plausible.js';
 import type { RigProfile } from './rig-profile-types.js';
+
+/** The rig profile shipped with the package, used when no --rig is given. */
+export const DEFAULT_RIG_PATH = packagePath('config/rigs/bench-20mohm.yaml');
 
 const positive = { type: 'number', exclusiveMinimum: 0 };
 
@@ -141,6 +146,7 @@ export function parseRigProfile(text: string, where: string): RigProfile {
       problems.map((p) => p.fix).join(' '),
     );
   }
+  checkRigPlausible(data as RigProfile, where);
   return data as RigProfile;
 }
 

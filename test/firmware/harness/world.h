@@ -1,0 +1,66 @@
+/* The analog world behind one rig channel: a cell, its load, the shunt and amplifier, the
+ * divider and the thermistor, as the board's ADC pins see them. The model keeps its own truth
+ * (charge and energy delivered while the load was on, by emulated time). */
+#ifndef WORLD_H
+#define WORLD_H
+#include <stdbool.h>
+#include <stdint.h>
+
+#define SEGMENTS_MAX 64
+
+/* One stretch of time with the load steady: means of the true values over it, so a test can
+ * give a calibration the true current and voltage of the window it averaged. */
+struct segment {
+	double from_ms, to_ms;
+	double from_real_ms; /* the host's time at its start, by the harness's clock */
+	bool load;
+	double sum_a, sum_v, sum_c; /* time integrals over the stretch, in unit x ms */
+};
+
+struct cell_params {
+	double capacity_mah, soc, internal_ohm, load_ohm, ambient_c, thermal_tau_s, hot_mark_c;
+};
+
+/* What the board gets wrong and the host does not know: the calibration's job to find. */
+struct board_errors {
+	double amp_offset_v;   /* op-amp input offset */
+	double connection_ohm; /* solder and trace in series with the two-terminal shunt */
+	double divider_error;  /* relative error of the cell divider's ratio */
+	double ntc_r25_error;  /* relative error of the NTC's R25 */
+};
+
+struct channel {
+	struct cell_params cell;
+	struct board_errors board;
+	bool load;
+	double soc, temp_c, ambient_c;
+	double current_a, terminal_v;
+	/* truth */
+	double charge_as, energy_ws, load_on_s;
+	double hot_at_ms; /* first time the cell reached hot_mark_c, -1 before */
+	struct segment seg[SEGMENTS_MAX];
+	unsigned nseg, seg_dropped;
+};
+
+/* The board's parts, as drawn in docs/firmware-wiring.md and config/rigs/cv328-reference.yaml. */
+#define DIVIDER_TOP_OHM 10000.0
+#define DIVIDER_BOTTOM_OHM 10000.0
+#define SHUNT_OHM 0.025
+#define AMP_GAIN 50.9 /* 1 + 49.9k / 1k */
+#define NTC_R25_OHM 10000.0
+#define NTC_BETA_K 3950.0
+#define NTC_FIXED_OHM 10000.0
+#define MOSFET_OHM 0.015
+/* The ADC reference and the NTC divider's supply: AVcc, a little under the 5.000 V the rig
+ * profile states, as a USB supply is; a gain error the calibration has to find. */
+#define AVCC_V 4.97
+
+void channel_init(struct channel *c, const struct cell_params *p, const struct board_errors *b);
+/* Advances the physics by dt_ms of emulated time (the load steady meanwhile). */
+void channel_step(struct channel *c, double now_ms, double dt_ms);
+/* Returns true when the load really changed (a new segment began). */
+bool channel_switch(struct channel *c, double now_ms, bool load);
+/* The voltage at ADC input `which` (0 voltage, 1 current, 2 thermistor), in volts, noise-free. */
+double channel_pin_v(const struct channel *c, int which);
+
+#endif
