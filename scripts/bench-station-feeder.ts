@@ -40,9 +40,9 @@ async function main(): Promise<void> {
   const { restV, loadedV, loadA, celsius } = BENCH_CELL;
   // Counts per state, worked out once: the feeder must never be the slow side.
   const counts = (v: number, a: number) => ({
-    vRaw: chain.countsForVolts(v),
-    iRaw: chain.countsForAmps(a),
-    tRaw: chain.countsForCelsius(celsius),
+    vRaw: Math.round(chain.countsForVolts(v)),
+    iRaw: Math.round(chain.countsForAmps(a)),
+    tRaw: Math.round(chain.countsForCelsius(celsius)),
   });
   const rest = counts(restV, 0);
   const loaded = counts(loadedV, loadA);
