@@ -1,4 +1,5 @@
 import { Ajv, type ErrorObject, type ValidateFunction } from 'ajv';
+import { CELL_ID_PATTERN } from '../registry/run-record.js';
 import { LIVE_VERSION, type ClientMessage, type ServerMessage } from './live-types.js';
 
 /**
@@ -236,12 +237,8 @@ export const CLIENT_MESSAGE_SCHEMAS = {
     {
       token,
       id,
-      cell_id: {
-        type: 'string',
-        minLength: 1,
-        maxLength: 64,
-        pattern: '^[^\\u0000-\\u001f\\u007f]+$',
-      },
+      // As the registry files it: letters, digits and . _ : / -, starting with a letter or digit.
+      cell_id: { type: 'string', pattern: CELL_ID_PATTERN.source },
     },
     ['token'],
   ),

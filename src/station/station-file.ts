@@ -38,7 +38,7 @@ const validate = ajv.compile(STATION_FILE_SCHEMA);
 const HINTS = {
   what: 'station file',
   pattern:
-    'Rig names start with a letter and use letters, digits, "_" or "-" (at most 32); channels are 0 to 15; a chemistry is an id `cellvigil chemistries` lists; a cell id has no control characters.',
+    'Rig names start with a letter and use letters, digits, "_" or "-" (at most 32); channels are 0 to 15; a chemistry is an id `cellvigil chemistries` lists; a cell id is 1 to 64 letters, digits or . _ : / -, starting with a letter or digit.',
   fallback: 'Compare it with config/station-demo.yaml and docs/station.md.',
 };
 

@@ -1,3 +1,5 @@
+import { CELL_ID_PATTERN as REGISTRY_CELL_ID } from '../registry/run-record.js';
+
 /**
  * JSON schema of a station file (docs/station.md). Every object is closed, so a misspelt key is
  * an error rather than a silently ignored setting.
@@ -6,8 +8,8 @@ const text = (max: number) => ({ type: 'string', minLength: 1, maxLength: max })
 
 export const RIG_NAME_PATTERN = '^[A-Za-z][A-Za-z0-9_-]{0,31}$';
 export const CHANNEL_KEY_PATTERN = '^(1[0-5]|[0-9])$';
-/** Printable text without control characters: it goes into files, folder names and screens. */
-export const CELL_ID_PATTERN = '^[^\\u0000-\\u001f\\u007f]+$';
+/** A cell id as the registry files it: what is written on the cell, in letters, digits and . _ : / -. */
+export const CELL_ID_PATTERN = REGISTRY_CELL_ID.source;
 
 const channel = {
   type: 'object',
@@ -19,7 +21,7 @@ const channel = {
     /** End-of-discharge volts per cell; never below the chemistry's floor (checked at start). */
     cutoff_V_per_cell: { type: 'number', exclusiveMinimum: 0, maximum: 20 },
     label: text(60),
-    cell_id: { ...text(64), pattern: CELL_ID_PATTERN },
+    cell_id: { type: 'string', pattern: CELL_ID_PATTERN },
     calibration: text(4096),
     schedule: text(4096),
   },

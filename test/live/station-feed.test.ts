@@ -142,12 +142,11 @@ describe('live feed of a station', () => {
     expect(all.of('error')[0]!.error).toContain('which channel');
   });
 
-  it('a start names its cell with printable text only', () => {
+  it('a start names its cell as the registry files it', () => {
     const base = { type: 'start', v: 1, token: 't', channel: 'left/0' };
-    expect(checkClientMessage({ ...base, cell_id: 'A-017 (blue wrap)' })).toMatchObject({
-      ok: true,
-    });
-    expect(checkClientMessage({ ...base, cell_id: 'A\n017' })).toMatchObject({ ok: false });
+    expect(checkClientMessage({ ...base, cell_id: 'LAB/A-017:2' })).toMatchObject({ ok: true });
+    for (const bad of ['A\n017', 'A 017', '-A017', 'x'.repeat(65)])
+      expect(checkClientMessage({ ...base, cell_id: bad })).toMatchObject({ ok: false });
   });
 
   it("the address of a station opens its overview page; ?channel opens that channel's page", async () => {

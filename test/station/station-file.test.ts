@@ -44,9 +44,9 @@ describe('station file', () => {
     expect(plan.runs).toBeNull();
   });
 
-  it('keeps channel settings and resolves relative files; a cell id is free text', () => {
+  it('keeps channel settings and resolves relative files; a cell id is what is written on the cell', () => {
     const plan = parseStationFile(
-      `runs: ../runs\nlisten: off\nrigs:\n  b1:\n    port: ptys/b1\n    baud: 57600\n    link_timeout_s: 20\n    channels:\n      3: { chemistry: nimh, cells: 4, cutoff_V_per_cell: 1.05, label: pack, cell_id: "Eneloop #7 (2019)", calibration: cal/b1-3.json, schedule: "on 15 s every 1 min" }\n`,
+      `runs: ../runs\nlisten: off\nrigs:\n  b1:\n    port: ptys/b1\n    baud: 57600\n    link_timeout_s: 20\n    channels:\n      3: { chemistry: nimh, cells: 4, cutoff_V_per_cell: 1.05, label: pack, cell_id: "ENL/2019:07", calibration: cal/b1-3.json, schedule: "on 15 s every 1 min" }\n`,
       FILE,
     );
     expect(plan.runs).toBe('/runs');
@@ -66,7 +66,7 @@ describe('station file', () => {
           cells: 4,
           cutoffVPerCell: 1.05,
           label: 'pack',
-          cellId: 'Eneloop #7 (2019)',
+          cellId: 'ENL/2019:07',
           calibration: '/lab/cal/b1-3.json',
           schedule: 'on 15 s every 1 min',
         },
@@ -102,9 +102,12 @@ describe('station file', () => {
     expect(e.message).toMatch(/key rigs\.bench\.channels\).*channels are 0 to 15/);
   });
 
-  it('a cell id with a line break is refused (it goes into files and screens)', () => {
-    const e = refused(ONE_RIG('{ chemistry: li-ion, cell_id: "A\\n1" }'));
-    expect(e.message).toContain('key rigs.bench.channels.0.cell_id');
+  it('a cell id the registry could not file is refused here, with its key (a space, a line break)', () => {
+    for (const id of ['"A 1"', '"A\\n1"', '"-A1"']) {
+      const e = refused(ONE_RIG(`{ chemistry: li-ion, cell_id: ${id} }`));
+      expect(e.message).toContain('key rigs.bench.channels.0.cell_id');
+      expect(e.message).toContain('a cell id is 1 to 64 letters, digits or . _ : / -');
+    }
   });
 
   it('two rigs on one port are refused', () => {
