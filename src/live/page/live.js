@@ -472,9 +472,13 @@
 
   function connect() {
     const scheme = location.protocol === 'https:' ? 'wss:' : 'ws:';
-    const q = viewerToken ? `?token=${encodeURIComponent(viewerToken)}` : '';
+    // A station's channel page follows its own channel (`?channel=<rig>/<n>` in the page address).
+    const q = new URLSearchParams();
+    if (viewerToken) q.set('token', viewerToken);
+    if (params.get('channel')) q.set('channel', params.get('channel'));
+    const qs = q.toString() ? `?${q.toString()}` : '';
     setLink('connecting', 'connecting');
-    ws = new WebSocket(`${scheme}//${location.host}/live${q}`);
+    ws = new WebSocket(`${scheme}//${location.host}/live${qs}`);
     ws.addEventListener('message', (ev) => {
       let m;
       try {
