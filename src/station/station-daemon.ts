@@ -19,7 +19,7 @@ import type { Source } from '../sources/source.js';
 import type { ChannelRunner } from './channel-runner.js';
 import { checkStationPlan } from './station-check.js';
 import { loadStationFile } from './station-file.js';
-import type { RigPlan } from './station-types.js';
+import type { RigPlan, StationPlan } from './station-types.js';
 import { Station } from './station.js';
 
 /** What the user asked `station` for, as the CLI parsed it. */
@@ -66,19 +66,14 @@ export function stationExitCode(codes: readonly number[]): number {
   return 0;
 }
 
-/** Reads and checks the station file, opens its rigs and starts every channel. */
-export async function startStation(
-  req: StationRequest,
-  io: StationIo,
-  runner: ChannelRunner,
-): Promise<StationHandle> {
+/** Reads the station file and checks it against the chemistries, simulated rigs and --speed. */
+async function readPlan(req: StationRequest): Promise<StationPlan> {
   const plan = await loadStationFile(req.file);
   checkStationPlan(
     plan,
     loadChemistries(req.chemistriesFile ?? DEFAULT_CHEMISTRIES_PATH),
     loadScenarios(DEFAULT_SCENARIOS_PATH),
   );
-  const simulated = plan.rigs.some((r) => r.link.kind === 'sim');
   if (!(req.speed > 0) || !Number.isFinite(req.speed))
     throw makeError(
       ErrorCodes.USAGE,
@@ -93,13 +88,22 @@ export async function startStation(
       '--speed',
       'Leave --speed out; it applies to stations of simulated rigs only.',
     );
+  return plan;
+}
+
+/**
+ * Each rig's source: its serial port, or its simulated rig on the station's clock (simulated
+ * rigs share one virtual clock, paced at --speed: one station time for all).
+ */
+async function rigSources(
+  plan: StationPlan,
+  paced: PacedClock | null,
+): Promise<(r: RigPlan) => Source> {
   const profiles = new Map<string, RigProfile>();
   for (const r of plan.rigs)
     profiles.set(r.name, await loadRigProfile(r.profile ?? DEFAULT_RIG_PATH));
-  // Simulated rigs share one virtual clock, paced at --speed: one station time for all.
-  const paced = simulated ? new PacedClock(0, Date.now()) : null;
-  const scenarios = simulated ? loadScenarios(DEFAULT_SCENARIOS_PATH) : null;
-  const makeSource = (r: RigPlan): Source => {
+  const scenarios = paced ? loadScenarios(DEFAULT_SCENARIOS_PATH) : null;
+  return (r) => {
     const profile = profiles.get(r.name)!;
     if (r.link.kind === 'port')
       return new SerialSource({ path: r.link.path, baudRate: r.baud ?? profile.frame.baud });
@@ -109,28 +113,33 @@ export async function startStation(
       : buildSimRig(scenarios!.byName.get(r.link.name)!, paced!, profile);
     return new SimSource({ rig, clock: paced!, description: `simulated rig ${r.link.name}` });
   };
+}
 
-  const listen =
-    req.listen === undefined
-      ? plan.listen === undefined
-        ? DEFAULT_LISTEN
-        : plan.listen
-      : req.listen;
+/** Reads and checks the station file, opens its rigs and starts every channel. */
+export async function startStation(
+  req: StationRequest,
+  io: StationIo,
+  runner: ChannelRunner,
+): Promise<StationHandle> {
+  const plan = await readPlan(req);
+  const paced = plan.rigs.some((r) => r.link.kind === 'sim') ? new PacedClock(0, Date.now()) : null;
+  // The command line's choice, else the file's (`off` is null), else the default address.
+  const fromFile = plan.listen === undefined ? DEFAULT_LISTEN : plan.listen;
+  const listen = req.listen !== undefined ? req.listen : fromFile;
   const feed = listen !== null ? new StationFeed() : null;
   const station = new Station({
     plan,
     name: basename(plan.file, extname(plan.file)),
     runs: plan.runs ?? req.runs,
     runner,
-    makeSource,
+    makeSource: await rigSources(plan, paced),
     clock: paced,
     feed,
     linkTimeoutS: req.linkTimeoutS,
     fresh: req.fresh,
     print: io.print,
   });
-  let server: LiveServer | null = null;
-  if (feed && listen !== null) server = await startFeed(feed, listen, io);
+  const server = feed && listen !== null ? await startFeed(feed, listen, io) : null;
   try {
     await station.start();
   } catch (e) {
@@ -144,42 +153,48 @@ export async function startStation(
     );
   }
   paced?.start(req.speed);
+  return ending(station, { paced, server, req, io });
+}
 
+/** Stopping: every channel finished, the rigs and the feed closed, on a signal or with --once. */
+function ending(
+  station: Station,
+  o: { paced: PacedClock | null; server: LiveServer | null; req: StationRequest; io: StationIo },
+): StationHandle {
   let finished!: (code: number) => void;
   const done = new Promise<number>((resolve) => (finished = resolve));
   let stopped: Promise<number> | null = null;
   const stop = (by: string): Promise<number> =>
     (stopped ??= (async () => {
       await station.stopAll(by);
-      paced?.stop();
+      o.paced?.stop();
       await station.close();
       // A moment for viewers to receive the last results before the feed goes away.
-      if (server) await new Promise((r) => setTimeout(r, 300));
-      await server?.close();
+      if (o.server) await new Promise((r) => setTimeout(r, 300));
+      await o.server?.close();
       process.off('SIGINT', onSignal);
       process.off('SIGTERM', onSignal);
-      const codes = [...station.outcomes().values()].flatMap((o) => (o ? [o.exitCode] : []));
+      const codes = [...station.outcomes().values()].flatMap((x) => (x ? [x.exitCode] : []));
       const code = stationExitCode(codes);
       finished(code);
       return code;
     })());
-
   let signals = 0;
   function onSignal(sig: NodeJS.Signals): void {
     signals++;
-    io.print(
+    o.io.print(
       signals > 1
         ? `${sig} again: every load is being switched off first; the station ends when the rigs confirm it.`
         : `${sig}: switching every channel's load off and finishing the runs…`,
     );
     void stop(sig);
   }
-  if (io.signals) {
+  if (o.io.signals) {
     process.on('SIGINT', onSignal);
     process.on('SIGTERM', onSignal);
   }
-  if (req.once) void station.whenIdle().then(() => stop('every channel has ended (--once)'));
-  return { station, liveUrl: server?.url ?? null, done, stop };
+  if (o.req.once) void station.whenIdle().then(() => stop('every channel has ended (--once)'));
+  return { station, liveUrl: o.server?.url ?? null, done, stop };
 }
 
 async function startFeed(feed: StationFeed, listen: string, io: StationIo): Promise<LiveServer> {
