@@ -15,6 +15,8 @@ const SHORT_END: Record<string, string> = {
   link_lost: 'link lost',
   fault: 'fault',
   refused: 'refused',
+  implausible_reading: 'implausible',
+  open_load: 'open load',
   interrupted: 'interrupted',
 };
 

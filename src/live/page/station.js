@@ -29,7 +29,8 @@
 
   function level(c) {
     const end = c.result && c.result.end_reason;
-    if (end === 'over_temperature' || end === 'fault' || end === 'link_lost') return 'alarm';
+    const limits = ['over_temperature', 'fault', 'link_lost', 'implausible_reading', 'open_load'];
+    if (limits.includes(end)) return 'alarm';
     if (end === 'refused') return 'warn';
     if (end) return 'done';
     if (c.alarm) return 'warn';
