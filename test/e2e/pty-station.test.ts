@@ -35,7 +35,7 @@ describe('end to end over pseudo-terminals: a station of two rigs of four channe
   let exitCode: number | null;
   let output = '';
   let stopReply = '';
-  let single: { capacity_Ah: number; uncertainty: { capacity_Ah: { expanded: number } } };
+  let single: { capacity_Ah: number };
 
   beforeAll(async () => {
     a = await startPtyRig('quad-a');
@@ -169,12 +169,12 @@ describe('end to end over pseudo-terminals: a station of two rigs of four channe
     }
     // The worn cell (55 % of the same rating, more resistance) gave much less.
     expect(only('W-1').result!.capacity_Ah / only('Q-0').result!.capacity_Ah).toBeLessThan(0.6);
-    // The same cell alone: equal within the runs' expanded uncertainties (k = 2, GUM).
-    const u = single.uncertainty.capacity_Ah.expanded;
-    for (const cell of ['Q-0', 'Q-2'])
-      expect(Math.abs(only(cell).result!.capacity_Ah - single.capacity_Ah), cell).toBeLessThan(
-        2 * u,
-      );
+    // The same cell alone on `run`: equal within 0.5 %, the one-channel end-to-end check's own
+    // tolerance against the true charge (where two runs stop at the cutoff differs by a frame or so).
+    for (const cell of ['Q-0', 'Q-2']) {
+      const cap = only(cell).result!.capacity_Ah;
+      expect(Math.abs(cap - single.capacity_Ah) / single.capacity_Ah, cell).toBeLessThan(0.005);
+    }
   });
 
   it('the rigs heard the loads switched per channel: the refused cell was never switched on', () => {
