@@ -18,6 +18,8 @@ export interface RunManifest {
   cellvigil_version: string;
   node_version: string;
   label: string;
+  /** What is written on the cell, as the user gave it; absent in runs older than cell ids. */
+  cell_id?: string | null;
   started_wall: string;
   source: { kind: 'sim' | 'serial'; description: string; scenario?: string; speed?: number };
   channel: number;

@@ -39,7 +39,8 @@ import { createRunFolder } from './run-folder.js';
 import { watchFile } from './file-watch.js';
 import { findResumePoint } from './resume.js';
 import { findUnfinishedRun } from './unfinished-run.js';
-import { startLiveLink, type LiveLink } from './live-link.js';
+import { liveObserver, startLiveLink, type LiveLink } from './live-link.js';
+import type { LiveHub } from '../live/live-hub.js';
 import type { RunRequest } from './run-request.js';
 import { StatusPrinter } from './status-line.js';
 
@@ -92,7 +93,21 @@ const FLUSH_EVERY_MS = 1000;
 const CHECKPOINT_EVERY_MS = 5000;
 const STATUS_EVERY_MS = 250;
 
-export async function startRun(req: RunRequest, io: RunIo): Promise<RunHandle> {
+/** What a station hands a channel's run instead of letting it make its own. */
+export interface RunParts {
+  /** The channel's view of its rig's shared link. */
+  source?: Source;
+  /** The station's clock (a simulated station's virtual one); the run neither starts nor stops it. */
+  clock?: Clock;
+  /** The channel's hub in the station's live feed, instead of a live server of the run's own. */
+  hub?: LiveHub;
+}
+
+export async function startRun(
+  req: RunRequest,
+  io: RunIo,
+  parts: RunParts = {},
+): Promise<RunHandle> {
   const resumeDir =
     req.resume ??
     (req.port !== undefined && !req.fresh
@@ -113,12 +128,14 @@ export async function startRun(req: RunRequest, io: RunIo): Promise<RunHandle> {
   const folder = resume ? resume.run.dir : await createRunFolder(req.runs, label, startedWall);
 
   // Measurement time: the simulated rig runs on a virtual clock at --speed; a real rig on the host's.
-  const paced = scenario ? new PacedClock(0, startedWall) : null;
-  const clock: Clock = paced ?? new HostClock();
+  const paced = scenario && !parts.clock ? new PacedClock(0, startedWall) : null;
+  const clock: Clock = parts.clock ?? paced ?? new HostClock();
   const real = new HostClock();
-  const source: Source = scenario
-    ? new SimSource({ scenario, clock, profile })
-    : new SerialSource({ path: req.port!, baudRate: req.baud ?? profile.frame.baud });
+  const source: Source =
+    parts.source ??
+    (scenario
+      ? new SimSource({ scenario, clock, profile })
+      : new SerialSource({ path: req.port!, baudRate: req.baud ?? profile.frame.baud }));
 
   const session = new Session({
     channel: req.channel,
@@ -199,6 +216,7 @@ export async function startRun(req: RunRequest, io: RunIo): Promise<RunHandle> {
     cellvigil_version: packageVersion(),
     node_version: process.version,
     label,
+    cell_id: req.cellId ?? null,
     started_wall: new Date(startedWall).toISOString(),
     source: {
       kind: source.kind,
@@ -529,6 +547,7 @@ export async function startRun(req: RunRequest, io: RunIo): Promise<RunHandle> {
         startedWallMs: startedWall,
         endedWallMs: clock.wallNow(),
         schedule: cfg.schedule ? describeSchedule(cfg.schedule) : null,
+        cellId: resume?.run.manifest.cell_id ?? req.cellId ?? null,
       });
       events.summarise(hostS(), clock.wallNow());
       const rec = events.write(hostS(), clock.wallNow(), 'run_ended', {
@@ -608,22 +627,26 @@ export async function startRun(req: RunRequest, io: RunIo): Promise<RunHandle> {
     if (!resume) await rm(folder, { recursive: true, force: true }).catch(() => undefined);
   };
   let live: LiveLink | null = null;
-  if (req.listen !== null) {
+  const liveInfo = {
+    label,
+    run_folder: folder,
+    chemistry: chemistry.id,
+    cells,
+    cutoff_V: session.cutoffV,
+    floor_V: cfg.floorV,
+    calibration_id: pipeline.calibrationId,
+    started_wall: new Date(startedWall).toISOString(),
+    source: source.description,
+    max_temperature_C: cfg.maxTemperatureC,
+  };
+  if (parts.hub) {
+    parts.hub.setRun(liveInfo);
+    observers.push(liveObserver(parts.hub));
+  } else if (req.listen !== null) {
     try {
       live = await startLiveLink({
         listen: req.listen,
-        info: {
-          label,
-          run_folder: folder,
-          chemistry: chemistry.id,
-          cells,
-          cutoff_V: session.cutoffV,
-          floor_V: cfg.floorV,
-          calibration_id: pipeline.calibrationId,
-          started_wall: new Date(startedWall).toISOString(),
-          source: source.description,
-          max_temperature_C: cfg.maxTemperatureC,
-        },
+        info: liveInfo,
         stop: (by) => dispatch(session.requestStop(clock.now(), by)),
         setCutoff: (volts, by) => setCutoffV(volts, by),
         mark: (note, by) => logEvent('mark', { note, by }),

@@ -93,6 +93,11 @@ export async function startLiveLink(o: LiveLinkOptions): Promise<LiveLink> {
     o.print(`  control token (stop, set-cutoff, mark): ${tokens.tokens.control}`);
     o.print(`  viewer token (watching from another machine): ${tokens.tokens.viewer}`);
   }
+  return { server, observer: liveObserver(hub) };
+}
+
+/** What a run tells a hub: its samples (the newest of each turn), alarms, cutoff and result. */
+export function liveObserver(hub: LiveHub): RunObserver {
   // The hub takes the newest sample of each event-loop turn: a rig's frames arrive one per turn
   // and all reach it, while a burst read from the port in one chunk is not turned into a
   // hundred live samples that no viewer would be sent. Events and the result pass the pending
@@ -125,18 +130,15 @@ export async function startLiveLink(o: LiveLinkOptions): Promise<LiveLink> {
     }
   };
   return {
-    server,
-    observer: {
-      sample: (row, loadOn) => {
-        pendingRow = row;
-        pendingLoadOn = loadOn;
-        queued ??= setImmediate(passSample);
-      },
-      event,
-      ended: (result) => {
-        passSample();
-        hub.result(result as unknown as Record<string, unknown>);
-      },
+    sample: (row, loadOn) => {
+      pendingRow = row;
+      pendingLoadOn = loadOn;
+      queued ??= setImmediate(passSample);
+    },
+    event,
+    ended: (result) => {
+      passSample();
+      hub.result(result as unknown as Record<string, unknown>);
     },
   };
 }

@@ -34,12 +34,15 @@ export interface RunResult {
   schedule: string | null;
   /** Load-on hours to the end point: a scheduled test's service output (null unless it reached the cutoff). */
   service_output_h: number | null;
+  /** What is written on the cell, as the user gave it; null when none was given. */
+  cell_id: string | null;
 }
 
 /** A rig clock off by more than this is worth a warning (its own timing would mislead). */
 export const CLOCK_WARN_PPM = 10_000;
 
 export interface ResultInput {
+  cellId?: string | null;
   end: SessionEnd;
   detail: string;
   loadOffConfirmed: boolean;
@@ -115,6 +118,7 @@ export function buildResult(x: ResultInput): RunResult {
     started_wall: new Date(x.startedWallMs).toISOString(),
     ended_wall: new Date(x.endedWallMs).toISOString(),
     schedule: x.schedule ?? null,
+    cell_id: x.cellId ?? null,
     service_output_h:
       x.schedule !== null && x.schedule !== undefined && x.end === 'cutoff'
         ? r(x.onMs / 3_600_000, 6)

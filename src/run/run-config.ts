@@ -9,6 +9,7 @@ import { DEFAULT_CHEMISTRIES_PATH, loadChemistries } from '../chemistry/chemistr
 import type { ChemistryProfile } from '../chemistry/chemistry-types.js';
 import { resolveCutoff, validateCells, type ResolvedCutoff } from '../chemistry/limits.js';
 import { ErrorCodes, makeError } from '../core/errors.js';
+import { CELL_ID_PATTERN } from '../registry/run-record.js';
 import {
   DEFAULT_SCENARIOS_PATH,
   loadScenarios,
@@ -108,6 +109,13 @@ export async function resolveRunConfig(
       cutoff: resumed.cutoff_per_cell_V,
     };
   }
+  if (req.cellId !== undefined && !CELL_ID_PATTERN.test(req.cellId))
+    throw makeError(
+      ErrorCodes.USAGE,
+      `cell id "${req.cellId}" is not 1 to 64 letters, digits or . _ : / - starting with a letter or digit`,
+      '--cell',
+      'Write the id as it is on the cell with those characters (the registry files runs by it), e.g. A-017.',
+    );
   if ((req.port === undefined) === (req.sim === undefined)) {
     throw makeError(
       ErrorCodes.USAGE,

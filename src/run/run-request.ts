@@ -33,6 +33,8 @@ export interface RunRequest {
   rotateBytes: number;
   /** Rig channel to discharge. */
   channel: number;
+  /** What is written on the cell (free text); kept in the manifest and the result. */
+  cellId?: string;
 }
 
 export const DEFAULT_ROTATE_BYTES = 16 * 1024 * 1024;

@@ -13,6 +13,7 @@ interface RunArgs {
   cells: number | undefined;
   cutoff: number | undefined;
   label: string | undefined;
+  cell: string | undefined;
   runs: string;
   listen: string;
   live: boolean;
@@ -61,6 +62,10 @@ function rigAndCellOptions<T>(y: Argv<T>) {
     .option('cutoff', {
       type: 'number',
       describe: "End-of-discharge voltage per cell (never below the chemistry's floor)",
+    })
+    .option('cell', {
+      type: 'string',
+      describe: 'Cell id: what is written on the cell (kept in the manifest and the result)',
     });
 }
 
@@ -146,6 +151,7 @@ export const runCommand: CommandModule<object, RunArgs> = {
       ...(args.cells !== undefined ? { cells: args.cells } : {}),
       ...(args.cutoff !== undefined ? { cutoff: args.cutoff } : {}),
       ...(args.label !== undefined ? { label: args.label } : {}),
+      ...(args.cell !== undefined ? { cellId: args.cell } : {}),
       ...(args.baud !== undefined ? { baud: args.baud } : {}),
     };
     const run = await startRun(req, { out: process.stdout, err: process.stderr, signals: true });
