@@ -11,11 +11,13 @@ import { packCommand } from './commands/pack.js';
 import { reportCommand } from './commands/report.js';
 import { runCommand } from './commands/run.js';
 import { simCommand } from './commands/sim.js';
+import { stationCommand } from './commands/station.js';
 import { watchCommand } from './commands/watch.js';
 
 /** One entry per command; each lives in ./commands/<name>.ts. */
 const commands = [
   runCommand,
+  stationCommand,
   chemistriesCommand,
   simCommand,
   watchCommand,
