@@ -647,6 +647,7 @@ export async function startRun(
       live = await startLiveLink({
         listen: req.listen,
         info: liveInfo,
+        channel: req.channel,
         stop: (by) => dispatch(session.requestStop(clock.now(), by)),
         setCutoff: (volts, by) => setCutoffV(volts, by),
         mark: (note, by) => logEvent('mark', { note, by }),

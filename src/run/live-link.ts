@@ -14,6 +14,8 @@ import type { RunObserver } from './daemon.js';
 export interface LiveLinkOptions {
   listen: string;
   info: LiveRunInfo;
+  /** The rig channel of the run: every message of the feed carries it (as text). */
+  channel: number;
   stop(by: string): void;
   /** Whole-string volts; the run refuses anything below the floor. */
   setCutoff(volts: number, by: string): { ok: true } | { ok: false; error: string };
@@ -63,7 +65,7 @@ export interface LiveLink {
 
 export async function startLiveLink(o: LiveLinkOptions): Promise<LiveLink> {
   const tokens = loadTokens();
-  const hub = new LiveHub();
+  const hub = new LiveHub({ channel: String(o.channel) });
   hub.setRun(o.info);
   hub.onControl((c) => {
     switch (c.type) {
