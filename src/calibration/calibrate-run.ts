@@ -15,8 +15,13 @@ import {
 import { validateCells } from '../chemistry/limits.js';
 import { HostClock, PacedClock, type Clock } from '../core/clock.js';
 import { ErrorCodes, makeError } from '../core/errors.js';
-import { DEFAULT_RIG_PATH, DEFAULT_SCENARIOS_PATH } from '../run/run-config.js';
-import { loadScenarios, pickScenario, type SimScenario } from '../sim/scenarios.js';
+import { DEFAULT_RIG_PATH } from '../chain/default-rig.js';
+import {
+  DEFAULT_SCENARIOS_PATH,
+  loadScenarios,
+  pickScenario,
+  type SimScenario,
+} from '../sim/scenarios.js';
 import { SerialSource } from '../sources/serial-source.js';
 import { SimSource } from '../sources/sim-source.js';
 import type { Source } from '../sources/source.js';

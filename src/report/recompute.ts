@@ -9,12 +9,13 @@ import { AnalogChain } from '../chain/analog-chain.js';
 import { PACKAGE_VERSION } from '../core/paths.js';
 import { FLAG_LOAD_ON } from '../protocol/messages.js';
 import { forEachRunSample, readRunEvents, type RunFolder } from '../replay/run-folder.js';
-import type { Checkpoint } from '../replay/run-json.js';
-import type { RunManifest } from '../replay/run-manifest.js';
+import type { Checkpoint } from '../record/checkpoint.js';
+import type { RunManifest } from '../record/manifest.js';
 import type { SampleRecord } from '../replay/sample-csv.js';
 import { runUncertainty } from '../results/uncertainty.js';
-import { buildResult, CLOCK_WARN_PPM, type RunResult } from '../run/result.js';
+import { buildResult, CLOCK_WARN_PPM, type RunResult } from '../record/result.js';
 import { Integrator } from '../session/integrator.js';
+import type { SessionEnd } from '../session/session-types.js';
 import { RateEstimator } from '../timebase/rate-estimator.js';
 import { Unwrapper } from '../timebase/unwrap.js';
 import { CurveBuilder, loadedVoltageAtCharge, type CurveBucket, type CurvePoint } from './curve.js';
@@ -39,9 +40,7 @@ export interface RecomputeOptions {
 }
 
 /** result.json as a recompute writes it: the daemon's keys and a few more. */
-export type RecomputedResult = Omit<RunResult, 'end_reason'> & {
-  /** `interrupted`: the run has no result and no end in its event log. */
-  end_reason: RunResult['end_reason'] | 'interrupted';
+export type RecomputedResult = RunResult & {
   midpoint_voltage_V: number | null;
   average_current_A: number | null;
   rated_Ah: number | null;
@@ -458,8 +457,7 @@ export class RunRecompute {
     };
 
     const base = buildResult({
-      end:
-        end && end.reason !== 'interrupted' ? (end.reason as RunResult['end_reason']) : 'stopped',
+      end: end && end.reason !== 'interrupted' ? (end.reason as SessionEnd) : 'stopped',
       detail:
         end?.detail ??
         'interrupted: the run folder has no result and its event log no end; figures are from the rows written',

@@ -11,7 +11,7 @@ import { basename, join } from 'node:path';
 import { loadCalibration, type Calibration } from '../calibration/calibration.js';
 import { ErrorCodes, makeError } from '../core/errors.js';
 import { openRunFolder, type RunFolder } from '../replay/run-folder.js';
-import { writeJsonAtomic } from '../sinks/atomic-json.js';
+import { writeResult } from '../record/result.js';
 import { renderComparisonReport } from './html-compare.js';
 import { renderRunReport } from './html.js';
 import { recomputeRun, type RunFigures } from './recompute.js';
@@ -116,7 +116,7 @@ export async function reportRuns(r: ReportRequest): Promise<ReportOutcome> {
     const resultPath = join(folder, resultName);
     const reportPath =
       r.out !== undefined && r.folders.length === 1 ? r.out : join(folder, reportFileName(figures));
-    await write(resultPath, () => writeJsonAtomic(resultPath, figures.result));
+    await write(resultPath, () => writeResult(resultPath, figures.result));
     await write(reportPath, () =>
       writeFile(reportPath, renderRunReport(figures, { generatedAt, resultFile: resultName })),
     );

@@ -4,6 +4,7 @@ import { TimeBase, type TimeBaseOptions } from '../timebase/time-base.js';
 import type { Session } from '../session/session.js';
 import type { Action } from '../session/session-types.js';
 import type { SampleRow } from '../sinks/sample-row.js';
+import type { RunEvent } from '../record/events.js';
 
 /** Counts to nominal units: the rig profile's analog chain. */
 export interface Converter {
@@ -42,7 +43,7 @@ export type LineOutcome =
   | {
       kind: 'message';
       actions: Action[];
-      event: { name: string; detail: Record<string, unknown> } | null;
+      event: RunEvent | null;
     }
   | { kind: 'ignored' };
 
@@ -167,27 +168,25 @@ export class Pipeline {
         return {
           kind: 'message',
           actions: session.ack(m.command, m.args),
-          event: { name: 'rig_ack', detail: { command: m.command, args: m.args } },
+          event: { event: 'rig_ack', command: m.command, args: m.args },
         };
       case 'hello':
         return {
           kind: 'message',
           actions: [],
           event: {
-            name: 'rig_hello',
-            detail: {
-              rig_id: m.rigId,
-              firmware: m.firmware,
-              adc_bits: m.adcBits,
-              channels: m.channels,
-            },
+            event: 'rig_hello',
+            rig_id: m.rigId,
+            firmware: m.firmware,
+            adc_bits: m.adcBits,
+            channels: m.channels,
           },
         };
       case 'rig-error':
         return {
           kind: 'message',
           actions: [],
-          event: { name: 'rig_error', detail: { code: m.code, text: m.text } },
+          event: { event: 'rig_error', code: m.code, text: m.text },
         };
     }
   }

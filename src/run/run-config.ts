@@ -11,16 +11,18 @@ import {
 import type { ChemistryProfile } from '../chemistry/chemistry-types.js';
 import { resolveCutoff, validateCells, type ResolvedCutoff } from '../chemistry/limits.js';
 import { ErrorCodes, makeError } from '../core/errors.js';
-import { packagePath } from '../core/paths.js';
-import { loadScenarios, pickScenario, type SimScenario } from '../sim/scenarios.js';
-import type { RunManifest } from '../replay/run-manifest.js';
+import {
+  DEFAULT_SCENARIOS_PATH,
+  loadScenarios,
+  pickScenario,
+  type SimScenario,
+} from '../sim/scenarios.js';
+import { DEFAULT_RIG_PATH } from '../chain/default-rig.js';
+import type { RunManifest } from '../record/manifest.js';
 import { parseScheduleOption, parseScheduleYaml, type Schedule } from '../schedule/schedule.js';
 import { readConfigText } from '../core/config-file.js';
 import { existsSync } from 'node:fs';
 import type { RunRequest } from './run-request.js';
-
-export const DEFAULT_RIG_PATH = packagePath('config/rigs/bench-20mohm.yaml');
-export const DEFAULT_SCENARIOS_PATH = packagePath('config/sim-scenarios.yaml');
 
 /** Everything a run needs, checked before anything is opened or switched. */
 export interface RunConfig {

@@ -4,11 +4,15 @@ import type { RigProfile } from '../chain/rig-profile-types.js';
 import type { Clock } from '../core/clock.js';
 import { parseConfigYaml } from '../core/config-file.js';
 import { ErrorCodes, makeError } from '../core/errors.js';
+import { packagePath } from '../core/paths.js';
 import { ChemistryCell, type ChemistryId } from './cell-model.js';
 import { SCENARIO_FILE_SCHEMA } from './scenario-schema.js';
 import { SimRig } from './sim-rig.js';
 
 /** One named scenario of config/sim-scenarios.yaml, after validation (defaults filled in). */
+/** The scenarios shipped with the package (`--sim <name>`). */
+export const DEFAULT_SCENARIOS_PATH = packagePath('config/sim-scenarios.yaml');
+
 export interface SimScenario {
   name: string;
   description: string;

@@ -4,13 +4,14 @@ import type { CommandModule } from 'yargs';
 import { loadRigProfile } from '../../chain/rig-profile.js';
 import { HostClock } from '../../core/clock.js';
 import { ErrorCodes, makeError } from '../../core/errors.js';
-import { DEFAULT_RIG_PATH, DEFAULT_SCENARIOS_PATH } from '../../run/run-config.js';
+import { DEFAULT_RIG_PATH } from '../../chain/default-rig.js';
 import { writeJsonAtomic } from '../../sinks/atomic-json.js';
 import {
   buildSimRig,
   loadScenarios,
   pickScenario,
   type SimOverrides,
+  DEFAULT_SCENARIOS_PATH,
 } from '../../sim/scenarios.js';
 import { attachSimRig, truthSnapshot } from '../../sim/sim-port.js';
 
