@@ -38,6 +38,15 @@ export interface FrameValues {
   loadOn: boolean;
 }
 
+/**
+ * A frame's place in time. `runMs` is whole milliseconds since the run's origin, as the sample
+ * row logs it; `hostMs` is the same instant on the host's clock, and `dtMs` the step from the
+ * frame before in whole milliseconds: what is integrated is exactly what is logged.
+ */
+export interface FrameTime extends Stamp {
+  runMs: number;
+}
+
 /** Frames this far apart on the host clock are a gap: their charge is counted as doubt. */
 export const LONG_GAP_MS = 2000;
 /** Thermistor counts remembered with their °C, by the count's low bits. */
@@ -55,16 +64,20 @@ export class FrameMeasure {
   /** Integral of the uncorrected current while the load was on, for the uncertainty budget. */
   nominalAh = 0;
   private prevNominalA = 0;
-  private prevLoggedMs: number | null = null;
+  private prevRunMs: number | null = null;
   // °C by thermistor count, for the last count seen in each slot: the count wanders over a few
   // values, each a logarithm to work out.
   private readonly celsiusCounts = new Float64Array(CELSIUS_SLOTS).fill(-1);
   private readonly celsiusValues = new Float64Array(CELSIUS_SLOTS);
   private readonly thermistorStates = new Uint8Array(CELSIUS_SLOTS);
 
+  /**
+   * @param originMs host ms of the run's origin (live frames); logged frames carry their own time.
+   */
   constructor(
     private readonly chain: Converter,
     corrector: Corrector,
+    private readonly originMs = 0,
     private readonly timeBaseOptions: TimeBaseOptions = {},
   ) {
     this.corrector = corrector;
@@ -86,24 +99,32 @@ export class FrameMeasure {
   }
 
   /** A live frame, placed on the host clock by the time base from its arrival. */
-  stamp(f: Readonly<FrameCounts>, arrivalMs: number): Stamp {
-    return this.timeBase.stamp(f.seq, f.tickMs, arrivalMs);
+  stamp(f: Readonly<FrameCounts>, arrivalMs: number): FrameTime {
+    const t = this.timeBase.stamp(f.seq, f.tickMs, arrivalMs) as FrameTime;
+    t.runMs = Math.round(t.hostMs - this.originMs);
+    t.hostMs = this.originMs + t.runMs;
+    t.dtMs = this.step(t.runMs);
+    return t;
   }
 
   /**
-   * A logged frame: its host time was fixed when it was logged (`out.hostMs`, filled in by the
+   * A logged frame: its time was fixed when it was logged (`out.runMs`, filled in by the
    * caller); the time base still finds lost frames, rig restarts and gaps, and the rig's clock rate.
    */
-  restamp(f: Readonly<FrameCounts>, out: Stamp): Stamp {
-    const hostMs = out.hostMs;
-    const s = this.timeBase.stamp(f.seq, f.tickMs, hostMs);
-    const prev = this.prevLoggedMs;
-    this.prevLoggedMs = hostMs;
-    out.dtMs = prev === null ? 0 : hostMs - prev;
+  restamp(f: Readonly<FrameCounts>, out: FrameTime): FrameTime {
+    const s = this.timeBase.stamp(f.seq, f.tickMs, out.runMs);
+    out.hostMs = out.runMs;
+    out.dtMs = this.step(out.runMs);
     out.lost = s.lost;
     out.gap = s.gap;
     out.rigRestart = s.rigRestart;
     return out;
+  }
+
+  private step(runMs: number): number {
+    const prev = this.prevRunMs;
+    this.prevRunMs = runMs;
+    return prev === null ? 0 : runMs - prev;
   }
 
   /** The frame's counts in corrected units, written into `out`. */
@@ -141,7 +162,7 @@ export class FrameMeasure {
   newSegment(): void {
     this.timeBase = this.newTimeBase();
     this.prevNominalA = 0;
-    this.prevLoggedMs = null;
+    this.prevRunMs = null;
   }
 
   private newTimeBase(): TimeBase {

@@ -140,13 +140,9 @@ export async function startRun(req: RunRequest, io: RunIo): Promise<RunHandle> {
     corrector: applyCalibration(cfg.calibration),
     session,
     originMs,
+    ...(resume ? { counters: { accepted: resume.rows, ...resume.counters } } : {}),
   });
 
-  if (resume) {
-    pipeline.counters.accepted = resume.rows;
-    pipeline.counters.rejected = resume.counters.rejected;
-    pipeline.counters.lost = resume.counters.lost;
-  }
   const samples = new LogFile({
     dir: folder,
     name: 'samples-',
@@ -465,7 +461,7 @@ export async function startRun(req: RunRequest, io: RunIo): Promise<RunHandle> {
   };
 
   const checkClock = (): void => {
-    const ppm = pipeline.timeBase.rigClockErrorPpm();
+    const ppm = pipeline.rigClockErrorPpm();
     if (clockWarned || ppm === null || Math.abs(ppm) <= CLOCK_WARN_PPM) return;
     clockWarned = true;
     const pct = (ppm / 1e4).toFixed(1);
@@ -521,7 +517,7 @@ export async function startRun(req: RunRequest, io: RunIo): Promise<RunHandle> {
         lastLoadedV: session.lastLoadedV,
         cutoffV: session.cutoffV,
         counters: pipeline.counters,
-        rigClockErrorPpm: pipeline.timeBase.rigClockErrorPpm(),
+        rigClockErrorPpm: pipeline.rigClockErrorPpm(),
         calibration,
         calibrationId: pipeline.calibrationId,
         ampsPerCount: chain.ampsPerCount,

@@ -258,7 +258,7 @@ export async function simulateRun(o: SimRunOptions): Promise<SimRun> {
     lastLoadedV: session.lastLoadedV,
     cutoffV: session.cutoffV,
     counters: pipeline.counters,
-    rigClockErrorPpm: pipeline.timeBase.rigClockErrorPpm(),
+    rigClockErrorPpm: pipeline.rigClockErrorPpm(),
     calibration,
     calibrationId: pipeline.calibrationId,
     ampsPerCount: chain.ampsPerCount,
