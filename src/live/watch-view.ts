@@ -1,6 +1,5 @@
 import { ErrorCodes, makeError } from '../core/errors.js';
-import { exitCodeFor } from '../run/result.js';
-import { SAFETY_END_REASONS, type SessionEnd } from '../session/session-types.js';
+import { exitCodeForResult } from '../record/result.js';
 import type { LiveAlarm, LiveRunInfo, LiveSample, ServerMessage } from './live-types.js';
 
 /** What the terminal viewer shows, folded from the live-feed messages. Pure. */
@@ -70,17 +69,7 @@ export function applyMessage(view: WatchView, m: ServerMessage): boolean {
   }
 }
 
-const END_REASONS = new Set<string>(['cutoff', 'stopped', 'refused', ...SAFETY_END_REASONS]);
-
-/** The run's exit code from result.json's end_reason (and end_detail), the daemon's own mapping. */
-export function exitCodeForResult(result: Record<string, unknown>): number {
-  const reason = result.end_reason;
-  if (typeof reason !== 'string' || !END_REASONS.has(reason)) return 1;
-  return exitCodeFor(
-    reason as SessionEnd,
-    typeof result.end_detail === 'string' ? result.end_detail : '',
-  );
-}
+export { exitCodeForResult };
 
 function fixed(x: number | null | undefined, digits: number): string {
   return typeof x === 'number' && Number.isFinite(x) ? x.toFixed(digits) : '–';

@@ -4,20 +4,24 @@
  * daemon uses. `RunRecompute` is the pure core fed one row at a time; `recomputeRun` streams a
  * run folder through it.
  */
-import { applyCalibration, type Calibration, type Corrector } from '../calibration/calibration.js';
+import { applyCalibration, type Calibration } from '../calibration/calibration.js';
 import { AnalogChain } from '../chain/analog-chain.js';
 import { packageVersion } from '../core/paths.js';
-import { FLAG_LOAD_ON } from '../protocol/messages.js';
+import {
+  emptyFrameValues,
+  FrameMeasure,
+  type FrameTime,
+  type FrameValues,
+} from '../measure/frame-measure.js';
 import { forEachRunSample, readRunEvents, type RunFolder } from '../replay/run-folder.js';
-import type { Checkpoint } from '../replay/run-json.js';
-import type { RunManifest } from '../replay/run-manifest.js';
+import type { Checkpoint } from '../record/checkpoint.js';
+import type { RunManifest } from '../record/manifest.js';
 import type { SampleRecord } from '../replay/sample-csv.js';
 import { runUncertainty } from '../results/uncertainty.js';
-import { buildResult, CLOCK_WARN_PPM, type RunResult } from '../run/result.js';
+import { buildResult, CLOCK_WARN_PPM, type RunResult } from '../record/result.js';
 import { Integrator } from '../session/integrator.js';
 import { Plausibility, plausibilityFor } from '../session/plausibility.js';
-import { RateEstimator } from '../timebase/rate-estimator.js';
-import { Unwrapper } from '../timebase/unwrap.js';
+import type { SessionEnd } from '../session/session-types.js';
 import { CurveBuilder, loadedVoltageAtCharge, type CurveBucket, type CurvePoint } from './curve.js';
 import { DcResistanceTracker, type ResistanceSummary } from './dc-resistance.js';
 import { EventDigest, type EventDigestResult } from './event-digest.js';
@@ -40,9 +44,7 @@ export interface RecomputeOptions {
 }
 
 /** result.json as a recompute writes it: the daemon's keys and a few more. */
-export type RecomputedResult = Omit<RunResult, 'end_reason'> & {
-  /** `interrupted`: the run has no result and no end in its event log. */
-  end_reason: RunResult['end_reason'] | 'interrupted';
+export type RecomputedResult = RunResult & {
   midpoint_voltage_V: number | null;
   average_current_A: number | null;
   rated_Ah: number | null;
@@ -110,16 +112,12 @@ export interface RunFigures {
   notes: string[];
 }
 
-/** Frames this far apart on the host clock are a gap (the daemon's time base flags the same). */
-const LONG_GAP_MS = 2000;
 /** Loaded current steps larger than this (relative) are load changes, not noise. */
 const LEVEL_CHANGE = 0.2;
 /** The first seconds after switch-on, left out of the current range (contact settling). */
 const SETTLE_S = 5;
 /** Distinct codes tracked for the quantisation term; beyond this they are plenty anyway. */
 const MAX_CODES = 65536;
-/** Thermistor counts remembered with their °C, by the count's low bits. */
-const CELSIUS_SLOTS = 4096;
 const rn = (x: number | null, digits: number): number | null =>
   x === null || !Number.isFinite(x) ? null : Number(x.toFixed(digits));
 
@@ -157,7 +155,16 @@ const CHECKED_STATES = new Set(['starting', 'discharging', 'stopping', 'ended'])
 
 export class RunRecompute {
   private readonly chain: AnalogChain;
-  private readonly corrector: Corrector;
+  private readonly frames: FrameMeasure;
+  private readonly values: FrameValues = emptyFrameValues();
+  private readonly stamp: FrameTime = {
+    runMs: 0,
+    hostMs: 0,
+    dtMs: 0,
+    lost: 0,
+    gap: false,
+    rigRestart: false,
+  };
   private readonly integrator = new Integrator();
   /** The live run's check of readings that cannot be true, applied to the same rows. */
   private readonly plausibility: Plausibility;
@@ -166,9 +173,6 @@ export class RunRecompute {
   private readonly curve = new CurveBuilder();
   private readonly steps: VoltageSteps;
   private readonly resistance = new DcResistanceTracker({ levelChange: LEVEL_CHANGE });
-  private readonly rate = new RateEstimator();
-  private readonly ticks = new Unwrapper(2 ** 32);
-  private readonly seqs = new Unwrapper(65536);
   private readonly noiseI = new DiffNoise();
   private readonly noiseV = new DiffNoise();
   private readonly codesI = new DistinctCodes();
@@ -184,15 +188,10 @@ export class RunRecompute {
     celsius: 0,
     loadOn: false,
   };
-  /** °C by thermistor count, for the last count seen in each slot: the count wanders over a few values, each a logarithm to work out. */
-  private readonly celsiusCounts = new Float64Array(CELSIUS_SLOTS).fill(-1);
-  private readonly celsiusValues = new Float64Array(CELSIUS_SLOTS);
   private lastId: string | null = null;
   private readonly stepPerCellV: number;
   private rows = 0;
   private ended = false;
-  private nominalAh = 0;
-  private prevNominalA = 0;
   private prev: {
     hostMs: number;
     loadOn: boolean;
@@ -229,7 +228,7 @@ export class RunRecompute {
     private readonly o: Omit<RecomputeOptions, 'calibration' | 'onProgress'> = {},
   ) {
     this.chain = new AnalogChain(manifest.rig.profile);
-    this.corrector = applyCalibration(calibration);
+    this.frames = new FrameMeasure(this.chain, applyCalibration(calibration));
     this.plausibility = new Plausibility(
       plausibilityFor({
         maxRestVPerCell: manifest.chemistry.profile.max_rest_V_per_cell.value,
@@ -278,29 +277,56 @@ export class RunRecompute {
       this.lastId = s.calibrationId;
       this.liveIds.add(s.calibrationId);
     }
-    const c = this.corrector;
-    const chain = this.chain;
-    const nominalA = chain.amps(s.iRaw);
-    const volts = c.voltage(chain.volts(s.vRaw));
-    const amps = c.current(nominalA);
-    const slot = s.tRaw & (CELSIUS_SLOTS - 1);
-    let celsius = this.celsiusValues[slot]!;
-    if (this.celsiusCounts[slot] !== s.tRaw) {
-      celsius =
-        chain.thermistorState(s.tRaw) === 'ok' ? c.temperature(chain.celsius(s.tRaw)) : Number.NaN;
-      this.celsiusCounts[slot] = s.tRaw;
-      this.celsiusValues[slot] = celsius;
-    }
-    const loadOn = (s.flags & FLAG_LOAD_ON) !== 0;
-    const hostMs = s.hostS * 1000;
+    const v = this.frames.values(s, this.values);
+    // Logged to the millisecond: whole milliseconds, as the daemon integrated them.
+    const hostMs = Math.round(s.hostS * 1000);
     const prev = this.prev;
-    // A new segment where the daemon resumed the run (or the host clock went back): nothing is
-    // bridged across the time it was down; its own estimate of what flowed meanwhile is added.
+    const fresh = prev === null || this.resumedBefore(hostMs);
+    const t = this.stamp;
+    t.runMs = hostMs;
+    this.frames.restamp(s, t);
+    if (t.rigRestart) this.rigRestarts++;
+    this.lost += t.lost;
+    if (t.gap) this.gaps++;
+    // The row's values as the measures, the curve and the resistance tracker take them: in one
+    // object filled in place rather than as arguments (doubles passed to a call are boxed).
+    const point = this.point;
+    point.hostS = s.hostS;
+    point.volts = v.volts;
+    point.amps = v.amps;
+    point.celsius = v.celsius;
+    point.loadOn = v.loadOn;
+    const integrate = this.integrates(s, prev);
+    if (integrate && !this.plausible(s.state, hostMs, v.volts, v.amps, v.loadOn)) {
+      // Left out as the live run left it: its time held at the last trusted reading.
+      this.integrator.hold(t.dtMs, v.loadOn);
+    } else if (integrate) {
+      this.integrator.add(t.dtMs, v.volts, v.amps, v.loadOn, t.gap);
+      this.frames.integrateNominal(v, t.dtMs);
+      this.followLiveTotals(s);
+      this.measure(s, prev, point, fresh);
+      this.lastWall = s.wallTime;
+    }
+    point.chargeAh = this.integrator.chargeAh;
+    point.energyWh = this.integrator.energyWh;
+    this.resistance.add(point);
+    this.curve.add(point);
+    this.keepPrev(s, hostMs, v);
+    if (this.rows === 1) this.firstHostS = s.hostS;
+    this.lastHostS = s.hostS;
+  }
+
+  /**
+   * A new segment where the daemon resumed the run (or the host clock went back): as in the
+   * daemon, the measure starts afresh, nothing is bridged across the time it was down, and its
+   * own estimate of what flowed meanwhile is added.
+   */
+  private resumedBefore(hostMs: number): boolean {
+    const prev = this.prev!;
     const resumptions = this.digest.result().resumptions;
     let unloggedS = 0;
-    let resumed = prev !== null && hostMs < prev.hostMs;
+    let resumed = hostMs < prev.hostMs;
     while (
-      prev !== null &&
       this.nextResumption < resumptions.length &&
       resumptions[this.nextResumption]!.atS * 1000 <= hostMs
     ) {
@@ -310,96 +336,64 @@ export class RunRecompute {
         unloggedS += r.unloggedS;
       }
     }
-    if (resumed) {
-      const integ = this.integrator;
-      integ.restore({
-        chargeAh: integ.chargeAh,
-        energyWh: integ.energyWh,
-        onMs: integ.onMs,
-        bridgedAh: integ.bridgedAh,
-      });
-      if (unloggedS > 0 && !this.ended) {
-        integ.addUnlogged(unloggedS * 1000, prev!.volts, prev!.amps);
-        this.nominalAh += this.chain.amps(prev!.iRaw) * (unloggedS / 3600);
-      }
-      this.prevNominalA = 0;
+    if (!resumed) return false;
+    const integ = this.integrator;
+    integ.restore({
+      chargeAh: integ.chargeAh,
+      energyWh: integ.energyWh,
+      onMs: integ.onMs,
+      bridgedAh: integ.bridgedAh,
+    });
+    if (unloggedS > 0 && !this.ended) {
+      integ.addUnlogged(unloggedS * 1000, prev.volts, prev.amps);
+      this.frames.addUnloggedNominal(this.chain.amps(prev.iRaw), unloggedS * 1000);
     }
-    const fresh = prev === null || resumed;
-    const dtMs = fresh ? 0 : hostMs - prev.hostMs;
-    // The row's values as the measures, the curve and the resistance tracker take them: in one
-    // object filled in place rather than as arguments (doubles passed to a call are boxed).
-    const point = this.point;
-    point.hostS = s.hostS;
-    point.volts = volts;
-    point.amps = amps;
-    point.celsius = celsius;
-    point.loadOn = loadOn;
+    this.frames.newSegment();
+    return true;
+  }
 
-    const tick = this.ticks.next(s.tickMs);
-    const tickStep = this.ticks.step;
-    this.seqs.next(s.seq);
-    const seqStep = this.seqs.step;
-    const rigRestart = tickStep !== null && tickStep < 0;
-    if (rigRestart) {
-      this.rigRestarts++;
-      this.ticks.reset();
-      this.seqs.reset();
-      this.ticks.next(s.tickMs);
-      this.seqs.next(s.seq);
-      this.rate.reset();
-      this.rate.add(s.tickMs, hostMs);
-    } else {
-      this.rate.add(tick, hostMs);
-      if (!fresh) this.lost += Math.max(0, (seqStep ?? 1) - 1);
-    }
-    const gap = !fresh && (dtMs > LONG_GAP_MS || rigRestart);
-    if (gap) this.gaps++;
+  /**
+   * The row that shows the end was integrated only when its frame ended the run; a run ended by
+   * the rig's acknowledgement between frames left it out, and its logged totals did not move.
+   */
+  private integrates(s: Readonly<SampleRecord>, prev: RunRecompute['prev']): boolean {
+    if (this.ended) return false;
+    if (s.state !== 'ended') return true;
+    this.ended = true;
+    const live = this.liveTotals;
+    return (
+      live === null || !prev?.loadOn || s.chargeAh !== live.chargeAh || s.energyWh !== live.energyWh
+    );
+  }
 
-    // The row that shows the end was integrated only when its frame ended the run; a run ended
-    // by the rig's acknowledgement between frames left it out, and its logged totals did not move.
-    let integrate = !this.ended;
-    if (integrate && s.state === 'ended') {
-      this.ended = true;
-      const live = this.liveTotals;
-      integrate =
-        live === null ||
-        !prev?.loadOn ||
-        s.chargeAh !== live.chargeAh ||
-        s.energyWh !== live.energyWh;
-    }
-    if (integrate && !this.plausible(s.state, hostMs, volts, amps, loadOn)) {
-      // Left out as the live run left it: its time held at the last trusted reading.
-      this.integrator.hold(dtMs, loadOn);
-    } else if (integrate) {
-      this.integrator.add(dtMs, volts, amps, loadOn, gap);
-      const onA = loadOn ? nominalA : 0;
-      this.nominalAh += ((this.prevNominalA + onA) / 2) * (dtMs / 3_600_000);
-      this.prevNominalA = onA;
-      if (this.liveTotals === null)
-        this.liveTotals = { chargeAh: s.chargeAh, energyWh: s.energyWh };
-      else {
-        this.liveTotals.chargeAh = s.chargeAh;
-        this.liveTotals.energyWh = s.energyWh;
-      }
-      this.measure(s, prev, point, fresh);
-      this.lastWall = s.wallTime;
-    }
-    point.chargeAh = this.integrator.chargeAh;
-    point.energyWh = this.integrator.energyWh;
-    this.resistance.add(point);
-    this.curve.add(point);
-    // One object for the whole run, updated in place: a new one per row is garbage per row.
-    if (prev === null) this.prev = { hostMs, loadOn, vRaw: s.vRaw, iRaw: s.iRaw, volts, amps };
+  private followLiveTotals(s: Readonly<SampleRecord>): void {
+    if (this.liveTotals === null) this.liveTotals = { chargeAh: s.chargeAh, energyWh: s.energyWh };
     else {
-      prev.hostMs = hostMs;
-      prev.loadOn = loadOn;
-      prev.vRaw = s.vRaw;
-      prev.iRaw = s.iRaw;
-      prev.volts = volts;
-      prev.amps = amps;
+      this.liveTotals.chargeAh = s.chargeAh;
+      this.liveTotals.energyWh = s.energyWh;
     }
-    if (this.rows === 1) this.firstHostS = s.hostS;
-    this.lastHostS = s.hostS;
+  }
+
+  /** One object for the whole run, updated in place: a new one per row is garbage per row. */
+  private keepPrev(s: Readonly<SampleRecord>, hostMs: number, v: Readonly<FrameValues>): void {
+    const prev = this.prev;
+    if (prev === null) {
+      this.prev = {
+        hostMs,
+        loadOn: v.loadOn,
+        vRaw: s.vRaw,
+        iRaw: s.iRaw,
+        volts: v.volts,
+        amps: v.amps,
+      };
+      return;
+    }
+    prev.hostMs = hostMs;
+    prev.loadOn = v.loadOn;
+    prev.vRaw = s.vRaw;
+    prev.iRaw = s.iRaw;
+    prev.volts = v.volts;
+    prev.amps = v.amps;
   }
 
   private measure(
@@ -469,7 +463,7 @@ export class RunRecompute {
     const rejected =
       ctx.original?.frames_rejected ??
       Math.max(ctx.checkpoint?.frames_rejected ?? 0, ev.rejectedLines);
-    const errorPpm = this.rate.errorPpm();
+    const errorPpm = this.frames.rigClockErrorPpm();
     const resistance = this.resistance.result();
     const on = resistance.switch_on?.first ?? null;
     const end =
@@ -496,8 +490,7 @@ export class RunRecompute {
     };
 
     const base = buildResult({
-      end:
-        end && end.reason !== 'interrupted' ? (end.reason as RunResult['end_reason']) : 'stopped',
+      end: end && end.reason !== 'interrupted' ? (end.reason as SessionEnd) : 'stopped',
       detail:
         end?.detail ??
         'interrupted: the run folder has no result and its event log no end; figures are from the rows written',
@@ -506,7 +499,7 @@ export class RunRecompute {
       energyWh: integ.energyWh,
       onMs: integ.onMs,
       bridgedAh: integ.bridgedAh,
-      nominalAh: this.nominalAh,
+      nominalAh: this.frames.nominalAh,
       loadedSamples: this.loadedFrames,
       lastLoadedV: Number.isNaN(this.lastLoadedV) ? null : this.lastLoadedV,
       cutoffV,
@@ -529,7 +522,7 @@ export class RunRecompute {
     const uncertainty = runUncertainty({
       chargeAh: integ.chargeAh,
       energyWh: integ.energyWh,
-      nominalAh: this.nominalAh,
+      nominalAh: this.frames.nominalAh,
       onS: integ.onMs / 1000,
       samples: this.loadedFrames,
       ampsPerCount: this.chain.ampsPerCount,

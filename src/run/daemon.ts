@@ -30,25 +30,20 @@ import {
 import { SerialSource } from '../sources/serial-source.js';
 import { SimSource } from '../sources/sim-source.js';
 import type { Source } from '../sources/source.js';
-import { cautionLines } from './cautions.js';
-import { EventLog, type EventRecord } from './event-log.js';
+import { cautionLines } from '../chemistry/cautions.js';
+import { EventLog } from '../record/event-log.js';
+import { isEventKind, SAFETY_ENDS, type RunEvent } from '../record/events.js';
 import { Pipeline } from './pipeline.js';
-import { buildResult, CLOCK_WARN_PPM, exitCodeFor, type RunResult } from './result.js';
+import { buildResult, CLOCK_WARN_PPM, exitCodeFor, type RunResult } from '../record/result.js';
 import { resolveRunConfig, type RunConfig } from './run-config.js';
 import { createRunFolder } from './run-folder.js';
 import { watchFile } from './file-watch.js';
 import { findResumePoint } from './resume.js';
 import { findUnfinishedRun } from './unfinished-run.js';
 import { startLiveLink, type LiveLink } from './live-link.js';
+import type { RunObserver } from './observer.js';
 import type { RunRequest } from './run-request.js';
 import { StatusPrinter } from './status-line.js';
-
-/** Anything that follows a run live (the status line, the live feed). */
-export interface RunObserver {
-  sample?(row: SampleRow, loadOn: boolean): void;
-  event?(rec: EventRecord): void;
-  ended?(result: RunResult): void;
-}
 
 export interface RunOutcome {
   exitCode: number;
@@ -157,13 +152,9 @@ export async function startRun(req: RunRequest, io: RunIo): Promise<RunHandle> {
     corrector: applyCalibration(cfg.calibration),
     session,
     originMs,
+    ...(resume ? { counters: { accepted: resume.rows, ...resume.counters } } : {}),
   });
 
-  if (resume) {
-    pipeline.counters.accepted = resume.rows;
-    pipeline.counters.rejected = resume.counters.rejected;
-    pipeline.counters.lost = resume.counters.lost;
-  }
   const rowWriter = new SampleRowWriter();
   const samples = new LogFile({
     dir: folder,
@@ -177,13 +168,15 @@ export async function startRun(req: RunRequest, io: RunIo): Promise<RunHandle> {
     onCompressed: (c) => {
       if (ended) return;
       if (c.error)
-        logEvent('compress_failed', {
+        logEvent({
+          event: 'compress_failed',
           file: c.file,
           error: c.error.message,
           note: 'the plain file is kept',
         });
       else
-        logEvent('sample_file_compressed', {
+        logEvent({
+          event: 'sample_file_compressed',
           file: c.file,
           bytes_in: c.bytesIn,
           bytes_out: c.bytesOut,
@@ -236,15 +229,22 @@ export async function startRun(req: RunRequest, io: RunIo): Promise<RunHandle> {
   }
 
   const hostS = (): number => (clock.now() - originMs) / 1000;
-  const logEvent = (name: string, detail: Record<string, unknown> = {}): void => {
-    const rec = events.write(hostS(), clock.wallNow(), name, detail);
+  const logEvent = (ev: RunEvent): void => {
+    const rec = events.write(hostS(), clock.wallNow(), ev);
     for (const o of observers) o.event?.(rec);
+  };
+  /** The session's events: typed by their kind; one this table does not know is logged as it came. */
+  const logSessionEvent = (name: string, detail: Record<string, unknown>): void => {
+    if (isEventKind(name)) logEvent({ event: name, ...detail } as RunEvent);
+    else events.writeForeign(hostS(), clock.wallNow(), name, detail);
   };
 
   let ended = false;
   let diskError: Error | null = null;
   let loadedSamples = 0;
   let gaps = 0;
+  /** Frames that reached the session since this process started: none means the rig never spoke. */
+  let framesSeen = 0;
   let clockWarned = false;
   let stopRequests = 0;
   let unloggedPending = resume?.last?.loadOn === true;
@@ -267,9 +267,17 @@ export async function startRun(req: RunRequest, io: RunIo): Promise<RunHandle> {
       if (a.type === 'send') {
         const line = encodeCommand(a.command);
         const queued = source.write(line);
-        if (a.command.command !== 'BEAT') logEvent('command', { line: line.trim(), queued });
+        if (a.command.command !== 'BEAT') logEvent({ event: 'command', line: line.trim(), queued });
       } else if (a.type === 'event') {
-        logEvent(a.name, a.detail);
+        logSessionEvent(a.name, a.detail);
+        const reason = session.result.reason;
+        if (
+          a.name === 'state' &&
+          a.detail['to'] === 'stopping' &&
+          reason &&
+          SAFETY_ENDS.has(reason)
+        )
+          for (const o of observers) o.limitTripped?.(hostS(), reason, String(a.detail['why']));
         if (a.name === 'state')
           status.line(
             `state: ${String(a.detail['from'])} -> ${String(a.detail['to'])} (${String(a.detail['why'])})`,
@@ -285,6 +293,7 @@ export async function startRun(req: RunRequest, io: RunIo): Promise<RunHandle> {
     const out = pipeline.line(text, clock.now(), clock.wallNow());
     switch (out.kind) {
       case 'sample': {
+        framesSeen++;
         if (unloggedPending) {
           unloggedPending = false;
           bridgeUnlogged(out.row);
@@ -296,15 +305,17 @@ export async function startRun(req: RunRequest, io: RunIo): Promise<RunHandle> {
         }
         const loadOn = session.loadOn;
         if (loadOn) loadedSamples++;
-        if (out.lost > 0) logEvent('frames_lost', { count: out.lost, seq: out.row.seq });
+        if (out.lost > 0) logEvent({ event: 'frames_lost', count: out.lost, seq: out.row.seq });
         if (out.gap) {
           gaps++;
-          logEvent('gap', {
+          logEvent({
+            event: 'gap',
             seq: out.row.seq,
             note: 'a long gap between frames; its charge is interpolated and counted as doubt in the uncertainty',
           });
         }
-        if (out.rigRestart) logEvent('rig_restart', { seq: out.row.seq, tick_ms: out.row.tickMs });
+        if (out.rigRestart)
+          logEvent({ event: 'rig_restart', seq: out.row.seq, tick_ms: out.row.tickMs });
         status.update(out.row);
         for (const o of observers) o.sample?.(out.row, loadOn);
         dispatch(out.actions);
@@ -314,7 +325,7 @@ export async function startRun(req: RunRequest, io: RunIo): Promise<RunHandle> {
         events.rejected(hostS(), clock.wallNow(), out.reason, out.detail, text);
         break;
       case 'message':
-        if (out.event) logEvent(out.event.name, out.event.detail);
+        if (out.event) logEvent(out.event);
         dispatch(out.actions);
         break;
       case 'ignored':
@@ -331,7 +342,8 @@ export async function startRun(req: RunRequest, io: RunIo): Promise<RunHandle> {
     session.integrator.addUnlogged(darkS * 1000, last.volts, last.amps);
     row.chargeAh = session.integrator.chargeAh;
     row.energyWh = session.integrator.energyWh;
-    logEvent('unlogged_discharge', {
+    logEvent({
+      event: 'unlogged_discharge',
       estimated_s: darkS,
       charge_Ah: (darkS / 3600) * last.amps,
       basis: stillOn
@@ -345,10 +357,11 @@ export async function startRun(req: RunRequest, io: RunIo): Promise<RunHandle> {
     if (ended) return { ok: false, error: 'the run has ended' };
     const r = session.setCutoff(volts);
     if (!r.ok) {
-      logEvent('cutoff_refused', { requested_V: volts, by, why: r.why });
+      logEvent({ event: 'cutoff_refused', requested_V: volts, by, why: r.why });
       return { ok: false, error: r.why };
     }
-    logEvent('cutoff_changed', {
+    logEvent({
+      event: 'cutoff_changed',
       cutoff_V: session.cutoffV,
       cutoff_V_per_cell: session.cutoffV / cells,
       by,
@@ -365,12 +378,13 @@ export async function startRun(req: RunRequest, io: RunIo): Promise<RunHandle> {
       const old = pipeline.calibrationId;
       pipeline.setCorrector(applyCalibration(next));
       calibration = next;
-      logEvent('calibration_changed', { old_id: old, new_id: next.id, file: path });
+      logEvent({ event: 'calibration_changed', old_id: old, new_id: next.id, file: path });
       status.line(`Calibration ${next.id} applies from the next sample (was ${old}).`);
     } catch (e) {
       if (ended) return;
       const message = (e as Error).message;
-      logEvent('calibration_rejected', {
+      logEvent({
+        event: 'calibration_rejected',
         file: path,
         error: message,
         kept_id: pipeline.calibrationId,
@@ -395,7 +409,8 @@ export async function startRun(req: RunRequest, io: RunIo): Promise<RunHandle> {
         cutoffV,
       });
       if (!r.ok) throw new Error(r.why);
-      logEvent('chemistry_changed', {
+      logEvent({
+        event: 'chemistry_changed',
         file: path,
         chemistry: next.id,
         floor_V: floorV,
@@ -407,7 +422,7 @@ export async function startRun(req: RunRequest, io: RunIo): Promise<RunHandle> {
       );
     } catch (e) {
       const message = (e as Error).message;
-      logEvent('chemistry_rejected', { file: path, error: message });
+      logEvent({ event: 'chemistry_rejected', file: path, error: message });
       status.line(`The edited chemistry file was rejected; the limits in force stay: ${message}`);
     }
   };
@@ -459,11 +474,11 @@ export async function startRun(req: RunRequest, io: RunIo): Promise<RunHandle> {
   };
 
   const checkClock = (): void => {
-    const ppm = pipeline.timeBase.rigClockErrorPpm();
+    const ppm = pipeline.rigClockErrorPpm();
     if (clockWarned || ppm === null || Math.abs(ppm) <= CLOCK_WARN_PPM) return;
     clockWarned = true;
     const pct = (ppm / 1e4).toFixed(1);
-    logEvent('clock_warning', { rig_clock_error_ppm: Math.round(ppm) });
+    logEvent({ event: 'clock_warning', rig_clock_error_ppm: Math.round(ppm) });
     status.line(
       `warning: the rig's clock runs ${pct} % ${ppm > 0 ? 'fast' : 'slow'} against the host's; cellvigil times every frame by the host clock, so figures are not affected.`,
     );
@@ -476,7 +491,7 @@ export async function startRun(req: RunRequest, io: RunIo): Promise<RunHandle> {
       return;
     }
     stopRequests++;
-    logEvent('signal', { signal: sig });
+    logEvent({ event: 'signal', signal: sig });
     if (stopRequests > 1)
       status.line(
         `${sig} again: the load is being switched off first; the run ends as soon as the rig confirms it.`,
@@ -516,7 +531,7 @@ export async function startRun(req: RunRequest, io: RunIo): Promise<RunHandle> {
         cutoffV: session.cutoffV,
         counters: pipeline.counters,
         implausibleFrames: session.plausibility.implausibleFrames,
-        rigClockErrorPpm: pipeline.timeBase.rigClockErrorPpm(),
+        rigClockErrorPpm: pipeline.rigClockErrorPpm(),
         calibration,
         calibrationId: pipeline.calibrationId,
         ampsPerCount: chain.ampsPerCount,
@@ -531,7 +546,8 @@ export async function startRun(req: RunRequest, io: RunIo): Promise<RunHandle> {
         schedule: cfg.schedule ? describeSchedule(cfg.schedule) : null,
       });
       events.summarise(hostS(), clock.wallNow());
-      const rec = events.write(hostS(), clock.wallNow(), 'run_ended', {
+      const rec = events.write(hostS(), clock.wallNow(), {
+        event: 'run_ended',
         end_reason: end,
         detail,
         load_off_confirmed: loadOffConfirmed,
@@ -550,8 +566,8 @@ export async function startRun(req: RunRequest, io: RunIo): Promise<RunHandle> {
       }
       status.end();
       for (const o of observers) o.ended?.(result);
-      const exitCode = diskError ? 1 : exitCodeFor(end, detail);
-      printSummary(io, result, folder, cfg, diskError);
+      const exitCode = diskError ? 1 : exitCodeFor(end, framesSeen === 0);
+      printSummary(io, result, folder, cfg, diskError, framesSeen === 0);
       resolveDone({ exitCode, folder, result });
     } catch (e) {
       rejectDone(e);
@@ -571,7 +587,8 @@ export async function startRun(req: RunRequest, io: RunIo): Promise<RunHandle> {
     status.line(
       `Resuming an interrupted run: ${(resume.totals.chargeAh * 1000).toFixed(1)} mAh so far from ${resume.rows} logged rows; down for ${downS.toFixed(0)} s. The precheck runs again before the load goes back on.`,
     );
-    logEvent('resumed', {
+    logEvent({
+      event: 'resumed',
       rows: resume.rows,
       charge_Ah: resume.totals.chargeAh,
       energy_Wh: resume.totals.energyWh,
@@ -580,7 +597,8 @@ export async function startRun(req: RunRequest, io: RunIo): Promise<RunHandle> {
       source: source.description,
     });
   } else {
-    logEvent('run_started', {
+    logEvent({
+      event: 'run_started',
       source: source.description,
       chemistry: chemistry.id,
       cells,
@@ -588,15 +606,20 @@ export async function startRun(req: RunRequest, io: RunIo): Promise<RunHandle> {
       version: packageVersion(),
     });
   }
-  logEvent('cautions', { lines: cautionLines(chemistry) });
+  logEvent({ event: 'cautions', lines: cautionLines(chemistry) });
   if (cfg.calibration) {
-    logEvent('calibration', {
+    logEvent({
+      event: 'calibration',
       id: cfg.calibration.id,
       file: cfg.calibrationPath,
       date: cfg.calibration.date,
     });
   } else {
-    logEvent('calibration', { id: 'none', note: 'no calibration: nominal analog chain only' });
+    logEvent({
+      event: 'calibration',
+      id: 'none',
+      note: 'no calibration: nominal analog chain only',
+    });
     status.line(
       'No calibration given: figures use the nominal analog chain, whose offset and gain errors are unknown (see `cellvigil calibrate`).',
     );
@@ -626,9 +649,9 @@ export async function startRun(req: RunRequest, io: RunIo): Promise<RunHandle> {
         },
         stop: (by) => dispatch(session.requestStop(clock.now(), by)),
         setCutoff: (volts, by) => setCutoffV(volts, by),
-        mark: (note, by) => logEvent('mark', { note, by }),
-        log: (name, detail) => {
-          if (!ended) logEvent(name, detail);
+        mark: (note, by) => logEvent({ event: 'mark', note, by }),
+        log: (ev) => {
+          if (!ended) logEvent(ev);
         },
         print: (line) => status.line(line),
       });
@@ -649,7 +672,7 @@ export async function startRun(req: RunRequest, io: RunIo): Promise<RunHandle> {
       },
       closed: (reason) => {
         if (ended) return;
-        logEvent('link_closed', { reason });
+        logEvent({ event: 'link_closed', reason });
         status.line(
           `The rig's port went away (${reason}); reopening it. The rig's watchdog cuts the load after 5 s without heartbeats.`,
         );
@@ -700,7 +723,7 @@ export async function startRun(req: RunRequest, io: RunIo): Promise<RunHandle> {
     done,
     stop: (by) => dispatch(session.requestStop(clock.now(), by)),
     setCutoffPerCell: (volts, by) => setCutoffV(volts * cells, by),
-    mark: (note, by) => logEvent('mark', { note, by }),
+    mark: (note, by) => logEvent({ event: 'mark', note, by }),
     addObserver: (o) => observers.push(o),
     liveUrl: live?.server.url ?? null,
     closeLive: async () => {
@@ -715,12 +738,13 @@ function printSummary(
   folder: string,
   cfg: RunConfig,
   diskError: Error | null,
+  rigNeverSpoke: boolean,
 ): void {
   const w = (s: string): boolean => io.out.write(`${s}\n`);
   w('');
   if (r.end_reason === 'refused') {
     io.err.write(
-      `cellvigil: ${r.end_detail.startsWith('rig_silent') ? ErrorCodes.RIG_SILENT : ErrorCodes.PRECHECK_REFUSED}: ${r.end_detail}\n`,
+      `cellvigil: ${rigNeverSpoke ? ErrorCodes.RIG_SILENT : ErrorCodes.PRECHECK_REFUSED}: ${r.end_detail}\n`,
     );
   }
   w(

@@ -15,7 +15,7 @@ import {
   pickScenario,
   type SimScenario,
 } from '../sim/scenarios.js';
-import type { RunManifest } from '../replay/run-manifest.js';
+import type { RunManifest } from '../record/manifest.js';
 import { parseScheduleOption, type Schedule } from '../schedule/schedule.js';
 import { parseScheduleYaml } from '../schedule/schedule-file.js';
 import { readConfigText } from '../core/config-file.js';

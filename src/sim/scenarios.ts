@@ -10,10 +10,10 @@ import type { CircuitFaults } from './faults.js';
 import { SCENARIO_FILE_SCHEMA } from './scenario-schema.js';
 import { SimRig } from './sim-rig.js';
 
-/** The simulator scenarios shipped with the package. */
+/** One named scenario of config/sim-scenarios.yaml, after validation (defaults filled in). */
+/** The scenarios shipped with the package (`--sim <name>`). */
 export const DEFAULT_SCENARIOS_PATH = packagePath('config/sim-scenarios.yaml');
 
-/** One named scenario of config/sim-scenarios.yaml, after validation (defaults filled in). */
 export interface SimScenario {
   name: string;
   description: string;
