@@ -21,6 +21,7 @@ export const ErrorCodes = {
   LIVE_LISTEN: 'CV_LIVE_LISTEN',
   WATCH_REFUSED: 'CV_WATCH_REFUSED',
   RUN_DATA: 'CV_RUN_DATA',
+  BROKER_CONFIG: 'CV_BROKER_CONFIG',
 } as const;
 
 export type ErrorCode = (typeof ErrorCodes)[keyof typeof ErrorCodes];
@@ -54,6 +55,7 @@ export function makeError(
     code === ErrorCodes.CALIBRATION_INVALID ||
     code === ErrorCodes.TOKEN_FILE ||
     code === ErrorCodes.LIVE_UNPROTECTED ||
-    code === ErrorCodes.WATCH_REFUSED;
+    code === ErrorCodes.WATCH_REFUSED ||
+    code === ErrorCodes.BROKER_CONFIG;
   return new CellvigilError(code, `${what} (${where}). ${fix}`, usage ? 2 : 1);
 }

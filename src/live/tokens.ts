@@ -13,7 +13,7 @@ import {
 import { homedir } from 'node:os';
 import { join } from 'node:path';
 import { Ajv } from 'ajv';
-import { ErrorCodes, makeError } from '../core/errors.js';
+import { ErrorCodes, makeError, type ErrorCode } from '../core/errors.js';
 
 /** The two live-feed tokens: control switches the run, viewer only watches it. */
 export interface LiveTokens {
@@ -59,35 +59,55 @@ function newToken(): string {
   return randomBytes(32).toString('hex');
 }
 
-function unreadable(path: string, e: unknown): Error {
+/** What an owner-only file is called in messages, the error code, and the way out when others can read it. */
+export interface PrivateFileKind {
+  what: string;
+  code: ErrorCode;
+  /** Said after the chmod advice, e.g. "or delete it to have new tokens made". */
+  otherwise: string;
+}
+
+const TOKEN_FILE_KIND: PrivateFileKind = {
+  what: 'the live-feed token file',
+  code: ErrorCodes.TOKEN_FILE,
+  otherwise: 'or delete it to have new tokens made',
+};
+
+function unreadable(path: string, e: unknown, kind: PrivateFileKind): Error {
   return makeError(
-    ErrorCodes.TOKEN_FILE,
-    `cannot read the live-feed token file: ${(e as Error).message}`,
+    kind.code,
+    `cannot read ${kind.what}: ${(e as Error).message}`,
     path,
     'Check the file and folder permissions.',
   );
 }
 
-/** The file's text, or null when there is none; refuses a file other users can read or change. */
-function readPrivateFile(path: string): string | null {
+/**
+ * The file's text, or null when there is none; refuses a file other users can read or change,
+ * since a secret in it may be known.
+ */
+export function readPrivateFile(
+  path: string,
+  kind: PrivateFileKind = TOKEN_FILE_KIND,
+): string | null {
   let mode: number;
   try {
     mode = statSync(path).mode;
   } catch (e) {
     if ((e as NodeJS.ErrnoException).code === 'ENOENT') return null;
-    throw unreadable(path, e);
+    throw unreadable(path, e, kind);
   }
   if (process.platform !== 'win32' && (mode & 0o077) !== 0)
     throw makeError(
-      ErrorCodes.TOKEN_FILE,
-      `the live-feed token file can be read or changed by other users (mode ${(mode & 0o777).toString(8)})`,
+      kind.code,
+      `${kind.what} can be read or changed by other users (mode ${(mode & 0o777).toString(8)})`,
       path,
-      `Run chmod 600 '${path}' if nobody else could have read it, or delete it to have new tokens made.`,
+      `Run chmod 600 '${path}' if nobody else could have read it, ${kind.otherwise}.`,
     );
   try {
     return readFileSync(path, 'utf8');
   } catch (e) {
-    throw unreadable(path, e);
+    throw unreadable(path, e, kind);
   }
 }
 
