@@ -5,6 +5,7 @@ import { CellvigilError } from '../core/errors.js';
 import { assessCommand } from './commands/assess.js';
 import { calibrateCommand } from './commands/calibrate.js';
 import { chemistriesCommand } from './commands/chemistries.js';
+import { fleetCommand } from './commands/fleet.js';
 import { reportCommand } from './commands/report.js';
 import { runCommand } from './commands/run.js';
 import { simCommand } from './commands/sim.js';
@@ -19,6 +20,7 @@ const commands = [
   reportCommand,
   calibrateCommand,
   assessCommand,
+  fleetCommand,
 ];
 
 async function main(): Promise<void> {

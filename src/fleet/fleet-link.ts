@@ -2,6 +2,7 @@ import { hostname } from 'node:os';
 import { HostClock, type Clock, type TimerHandle } from '../core/clock.js';
 import { PACKAGE_VERSION } from '../core/paths.js';
 import type { LiveHub } from '../live/live-hub.js';
+import { loadTokens } from '../live/tokens.js';
 import { openBroker, type BrokerConnection } from './broker-connection.js';
 import type { BrokerConfig } from './broker-options.js';
 import { ChannelFeed, type FeedOutput } from './channel-feed.js';
@@ -257,4 +258,35 @@ export function startFleetLink(o: FleetLinkOptions): FleetLink {
       await conn.close(timeoutMs);
     },
   };
+}
+
+/** What `run --broker …` resolved, before anything was switched on. */
+export interface FleetRunOptions {
+  broker: BrokerConfig;
+  station: string;
+  /** @default 2 */
+  sampleHz?: number;
+}
+
+/** The `fleet` field `run` adds to its request when a broker is given. */
+export interface FleetRunRequest {
+  fleet?: FleetRunOptions;
+}
+
+/**
+ * A one-channel daemon's link: the live hub of its run, the live feed's own control token (so
+ * the broker's commands need exactly what the live page's do), the run's event log.
+ */
+export function linkStation(
+  fleet: FleetRunOptions,
+  hub: LiveHub,
+  channel: number,
+  log: (name: string, detail: Record<string, unknown>) => void,
+): FleetLink {
+  return startFleetLink({
+    ...fleet,
+    channels: [{ channel, hub }],
+    controlToken: loadTokens().tokens.control,
+    log,
+  });
 }

@@ -1,4 +1,5 @@
 import mqtt, { type MqttClient } from 'mqtt';
+import { WebSocket } from 'ws';
 import { LiveHub } from '../../src/live/live-hub.js';
 import type { ControlRequest, LiveRunInfo } from '../../src/live/live-types.js';
 import type { TestBroker } from './mosquitto.js';
@@ -77,5 +78,35 @@ export async function until<T>(
     if (v) return v;
     if (Date.now() - t0 > ms) throw new Error(`timed out waiting for ${what}`);
     await new Promise((r) => setTimeout(r, 20));
+  }
+}
+
+/** A WebSocket client that keeps every JSON message it receives. */
+export class JsonSocket {
+  readonly messages: Array<Record<string, unknown>> = [];
+  readonly ws: WebSocket;
+  readonly open: Promise<void>;
+
+  constructor(url: string, o: { origin?: string } = {}) {
+    this.ws = new WebSocket(url, o);
+    this.ws.on('message', (d) =>
+      this.messages.push(JSON.parse(d.toString()) as Record<string, unknown>),
+    );
+    this.open = new Promise((resolve, reject) => {
+      this.ws.once('open', () => resolve());
+      this.ws.once('error', reject);
+    });
+  }
+
+  of(type: string): Array<Record<string, unknown>> {
+    return this.messages.filter((m) => m['type'] === type);
+  }
+
+  send(m: unknown): void {
+    this.ws.send(JSON.stringify(m));
+  }
+
+  close(): void {
+    this.ws.close();
   }
 }
