@@ -15,6 +15,7 @@ import {
 import { LIVE_VERSION } from '../live/live-types.js';
 import { loadStaticFiles, type StaticFile } from '../live/static-files.js';
 import { tokenMatches, type LiveTokens } from '../live/tokens.js';
+import { textFrame } from '../live/ws-frame.js';
 import {
   channelKey,
   tileOf,
@@ -77,8 +78,10 @@ function pageFiles(): Map<string, StaticFile> {
 
 interface OverviewViewer {
   ws: WebSocket;
+  /** The connection, which a flush writes its frames to in one write (see ws-frame.ts). */
+  socket: Duplex;
   /** Newest message per tile or station, in the order first changed: bounded by the fleet's size. */
-  pending: Map<string, string>;
+  pending: Map<string, Buffer>;
 }
 
 /**
@@ -205,11 +208,13 @@ export async function startFleetServer(o: FleetServerOptions): Promise<FleetServ
           remote,
         );
     }
-    wss.handleUpgrade(req, socket, head, (ws) => (ch ? attachDrill(ws, ch) : attachOverview(ws)));
+    wss.handleUpgrade(req, socket, head, (ws) =>
+      ch ? attachDrill(ws, ch) : attachOverview(ws, socket),
+    );
   });
 
-  function attachOverview(ws: WebSocket): void {
-    const v: OverviewViewer = { ws, pending: new Map() };
+  function attachOverview(ws: WebSocket, socket: Duplex): void {
+    const v: OverviewViewer = { ws, socket, pending: new Map() };
     overview.add(v);
     ws.on('close', () => overview.delete(v));
     ws.on('error', () => ws.terminate());
@@ -238,8 +243,9 @@ export async function startFleetServer(o: FleetServerOptions): Promise<FleetServ
         v.ws.terminate();
         continue;
       }
-      if (v.ws.bufferedAmount > LOW_WATER) continue;
-      for (const text of v.pending.values()) v.ws.send(text);
+      if (v.ws.bufferedAmount > LOW_WATER || v.pending.size === 0 || !v.socket.writable) continue;
+      // Every update of this turn in one write: one system call, not one per tile.
+      v.socket.write(Buffer.concat([...v.pending.values()]));
       v.pending.clear();
     }
   }
@@ -249,10 +255,10 @@ export async function startFleetServer(o: FleetServerOptions): Promise<FleetServ
 
   function offer(key: string, m: unknown): void {
     if (overview.size === 0) return;
-    const text = JSON.stringify(m);
+    const frame = textFrame(Buffer.from(JSON.stringify(m)));
     for (const v of overview) {
       v.pending.delete(key);
-      v.pending.set(key, text);
+      v.pending.set(key, frame);
     }
     immediate ??= setImmediate(flush);
   }
