@@ -12,7 +12,7 @@
  * a sample's made_ms and its receipt are on one time line. Rounds alternate the two setups.
  */
 import { fork, spawn, type ChildProcess } from 'node:child_process';
-import { mkdtempSync, rmSync, writeFileSync } from 'node:fs';
+import { existsSync, mkdtempSync, rmSync, writeFileSync } from 'node:fs';
 import { createServer } from 'node:net';
 import { join } from 'node:path';
 import { fileURLToPath } from 'node:url';
@@ -66,7 +66,8 @@ async function startMosquitto(dir: string): Promise<{ url: string; child: ChildP
       '\n',
     ),
   );
-  const child = spawn('mosquitto', ['-c', conf], { stdio: 'ignore' });
+  const bin = existsSync('/usr/sbin/mosquitto') ? '/usr/sbin/mosquitto' : 'mosquitto';
+  const child = spawn(bin, ['-c', conf], { stdio: 'ignore' });
   const url = `mqtt://127.0.0.1:${port}`;
   for (let i = 0; i < 100; i++) {
     const c = mqtt.connect(url, { reconnectPeriod: 0, connectTimeout: 500 });

@@ -1,12 +1,16 @@
 #!/usr/bin/env bash
 # Debian packages the tests need: socat (pseudo-terminal pairs for the serial end-to-end
-# tests) and chromium (the live page's browser test). Installs only what is missing.
+# tests), chromium (the live page's browser test) and mosquitto (the MQTT broker, with
+# mosquitto_passwd, that the fleet tests and benchmark start on a loopback port of their own).
+# Installs only what is missing.
 set -euo pipefail
 need=()
 command -v socat >/dev/null 2>&1 || need+=(socat)
 command -v chromium >/dev/null 2>&1 || need+=(chromium)
+# /usr/sbin is not on every user's PATH.
+[ -x /usr/sbin/mosquitto ] && [ -x /usr/bin/mosquitto_passwd ] || need+=(mosquitto)
 if [ ${#need[@]} -eq 0 ]; then
-  echo "test tools present: socat, chromium"
+  echo "test tools present: socat, chromium, mosquitto"
   exit 0
 fi
 sudo=""
