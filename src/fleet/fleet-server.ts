@@ -257,10 +257,15 @@ export async function startFleetServer(o: FleetServerOptions): Promise<FleetServ
     if (overview.size === 0) return;
     const frame = textFrame(Buffer.from(JSON.stringify(m)));
     for (const v of overview) {
+      // A page that keeps up gets the update at once; one behind gets the newest per tile later.
+      if (v.pending.size === 0 && v.ws.bufferedAmount <= LOW_WATER && v.socket.writable) {
+        v.socket.write(frame);
+        continue;
+      }
       v.pending.delete(key);
       v.pending.set(key, frame);
+      immediate ??= setImmediate(flush);
     }
-    immediate ??= setImmediate(flush);
   }
 
   await new Promise<void>((resolve, reject) => {
