@@ -13,6 +13,8 @@ import { startFleetView, type FleetView } from '../../src/fleet/fleet-view.js';
 import type { FleetResult } from '../../src/fleet/payloads.js';
 import { channelTopic } from '../../src/fleet/topics.js';
 import { checkServerMessage } from '../../src/live/message-schemas.js';
+import { watchLive } from '../../src/live/watch-client.js';
+import { liveSocketUrl } from '../../src/live/watch-view.js';
 import { bareClient, CONTROL_TOKEN, handFedHub, JsonSocket, sample, until } from './helpers.js';
 import { startBroker, type TestBroker } from './mosquitto.js';
 
@@ -126,6 +128,31 @@ describe('the fleet view', () => {
     live.close();
   });
 
+  it("lets `watch` follow one channel through the fleet view, from the channel page's address", async () => {
+    const v = views[0]!;
+    const got: string[] = [];
+    const client = watchLive({
+      url: liveSocketUrl(`${v.url}channel?station=bench-b&ch=1`),
+      onLink: () => {},
+      onMessage: (m) => got.push(m.type),
+    });
+    await until('hello through watch', () => got.includes('hello'));
+    sample(b.hub, 13, 3.68);
+    await until('a sample through watch', () => got.includes('sample'));
+    client.stop();
+    await client.done;
+  });
+
+  it('serves the overview page and, at /channel, the live page with its assets', async () => {
+    const v = views[0]!;
+    const page = await (await fetch(v.url)).text();
+    expect(page).toContain('/assets/fleet.js');
+    const channel = await (await fetch(`${v.url}channel?station=bench-b&ch=1`)).text();
+    expect(channel).toContain('/assets/live.js');
+    for (const asset of ['fleet.js', 'fleet.css', 'live.js', 'live.css', 'uplot.js'])
+      expect((await fetch(`${v.url}assets/${asset}`)).status, asset).toBe(200);
+  });
+
   it('files each result once, and a fleet view started later catches up from retained messages', async () => {
     a.hub.result({ capacity_Ah: 0.25, end_reason: 'cutoff' });
     await until('result filed', () => filed.length === 1);
@@ -152,7 +179,7 @@ describe('the fleet view', () => {
     const snap = (await res.json()) as { tiles: Array<Record<string, unknown>> };
     const tileA = snap.tiles.find((t) => t['key'] === 'bench-a/0');
     expect(tileA).toMatchObject({ ended: true, end_reason: 'cutoff' });
-    expect(snap.tiles.find((t) => t['key'] === 'bench-b/1')).toMatchObject({ voltage_V: 3.69 });
+    expect(snap.tiles.find((t) => t['key'] === 'bench-b/1')).toMatchObject({ voltage_V: 3.68 });
     expect(filed.filter((r) => r.run_id === '20261203-080000-cell-a')).toHaveLength(2);
     page.close();
   });
