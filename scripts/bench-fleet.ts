@@ -6,10 +6,11 @@
  * bare `mqtt` clients publishing the same payloads on the same schedule and one bare `mqtt`
  * subscriber receiving and parsing them. Target: p99 at most 1.5 × the baseline's p99.
  *
- * Two processes: this one holds the stations (or the bare publishers) and the page's socket
- * (or the bare subscriber); a child holds the fleet view, as on a real lab's machines. Both
- * read the machine's monotonic clock (process.hrtime), injected as the stations' wall clock, so
- * a sample's made_ms and its receipt are on one time line. Rounds alternate the two setups.
+ * Three processes, as on a lab's machines: this one holds the stations (or the bare
+ * publishers), a child the fleet view, another child the page's socket (or the bare
+ * subscriber). All read the machine's monotonic clock (process.hrtime), injected as the
+ * stations' wall clock, so a sample's made_ms and its receipt are on one time line. Rounds
+ * alternate the setups.
  */
 import { fork, spawn, type ChildProcess } from 'node:child_process';
 import { existsSync, mkdtempSync, rmSync, writeFileSync } from 'node:fs';
@@ -132,7 +133,93 @@ function sampleOf(host_s: number) {
   };
 }
 
-/** The product: stations with their links, the fleet view in the child, the page's socket here. */
+/**
+ * The page's side, in a process of its own as a browser on another machine would be: reads
+ * tiles from the fleet view's /fleet socket (`ws`), samples from the broker (`mqtt`) or the
+ * relay's socket (`relay`), and notes each new sample's delay while told to measure.
+ */
+async function readerChild(mode: string, url: string): Promise<void> {
+  const latencies: number[] = [];
+  let measuring = false;
+  let received = 0;
+  // A tile also goes out when a channel's retained status refreshes it; only a message
+  // carrying a sample not seen yet counts.
+  const lastMade = new Map<string, number>();
+  const take = (data: Buffer | string): void => {
+    const m = JSON.parse(data.toString()) as {
+      type?: string;
+      key?: string;
+      station?: string;
+      channel?: number;
+      made_ms?: number | null;
+    };
+    if (!measuring || typeof m.made_ms !== 'number') return;
+    if (m.type !== undefined && m.type !== 'tile') return;
+    const key = m.key ?? `${m.station}/${m.channel}`;
+    if (lastMade.get(key) === m.made_ms) return;
+    lastMade.set(key, m.made_ms);
+    received++;
+    latencies.push(monoMs() - m.made_ms);
+  };
+  if (mode === 'mqtt') {
+    const sub = mqtt.connect(url, { clientId: 'bare-sub', protocolVersion: 5, reconnectPeriod: 0 });
+    await new Promise((r) => sub.once('connect', r));
+    await sub.subscribeAsync('cellvigil/v1/station/+/ch/+/sample', { qos: 0 });
+    sub.on('message', (_topic, payload) => take(payload));
+  } else {
+    const ws = new WebSocket(url, { perMessageDeflate: false });
+    ws.on('message', (d) => take(d as Buffer));
+    await new Promise((r) => ws.once('open', r));
+  }
+  process.on('message', (cmd) => {
+    if (cmd === 'start') measuring = true;
+    else {
+      measuring = false;
+      process.send!({ latencies, received }, () => process.exit(0));
+    }
+  });
+  process.send!('ready');
+}
+
+interface Reader {
+  start(): void;
+  finish(): Promise<{ latencies: number[]; received: number }>;
+}
+
+async function startReader(mode: 'ws' | 'mqtt' | 'relay', url: string): Promise<Reader> {
+  const child = fork(fileURLToPath(import.meta.url), ['--reader-child', mode, url], {
+    stdio: 'inherit',
+  });
+  await new Promise((r) => child.once('message', r));
+  return {
+    start: () => child.send('start'),
+    finish: () =>
+      new Promise((resolve) => {
+        child.once('message', (m) => resolve(m as { latencies: number[]; received: number }));
+        child.send('stop');
+      }),
+  };
+}
+
+/** Drives the schedule through warm-up and measurement; returns the samples made while measured. */
+async function measure(reader: Reader, each: (station: number) => number): Promise<number> {
+  let measuring = false;
+  let sent = 0;
+  const stop = schedule((s) => {
+    const n = each(s);
+    if (measuring) sent += n;
+  });
+  await sleep(WARMUP_S * 1000);
+  measuring = true;
+  reader.start();
+  await sleep(SECONDS * 1000);
+  measuring = false;
+  stop();
+  await sleep(500);
+  return sent;
+}
+
+/** The product: stations with their links here, the fleet view and the page each in a child. */
 async function productRound(url: string): Promise<Round> {
   const { LiveHub } = await product<LiveHubModule>('live/live-hub.js');
   const { startFleetLink } = await product<FleetLinkModule>('fleet/fleet-link.js');
@@ -160,38 +247,14 @@ async function productRound(url: string): Promise<Round> {
     }),
   );
   while (!links.every((l) => l.stats().connected)) await sleep(50);
-  const page = new WebSocket(`${pageUrl.replace('http', 'ws')}fleet`, { perMessageDeflate: false });
-  const latencies: number[] = [];
-  let measuring = false;
-  let received = 0;
-  // A tile also goes out when a channel's retained status refreshes it; only a tile carrying a
-  // sample the page has not had yet counts.
-  const lastMade = new Map<string, number>();
-  page.on('message', (d) => {
-    const m = JSON.parse(d.toString()) as { type: string; key: string; made_ms?: number | null };
-    if (m.type !== 'tile' || typeof m.made_ms !== 'number' || !measuring) return;
-    if (lastMade.get(m.key) === m.made_ms) return;
-    lastMade.set(m.key, m.made_ms);
-    received++;
-    latencies.push(monoMs() - m.made_ms);
-  });
-  await new Promise((r) => page.once('open', r));
+  const reader = await startReader('ws', `${pageUrl.replace('http', 'ws')}fleet`);
   let t = 0;
-  let sent = 0;
-  const stop = schedule((s) => {
+  const sent = await measure(reader, (s) => {
     t += 1;
-    for (const hub of hubs[s]!) {
-      hub.sample(sampleOf(t));
-      if (measuring) sent++;
-    }
+    for (const hub of hubs[s]!) hub.sample(sampleOf(t));
+    return CHANNELS;
   });
-  await sleep(WARMUP_S * 1000);
-  measuring = true;
-  await sleep(SECONDS * 1000);
-  measuring = false;
-  stop();
-  await sleep(500);
-  page.close();
+  const { latencies, received } = await reader.finish();
   await Promise.all(links.map((l) => l.close(500)));
   child.disconnect();
   await new Promise((r) => child.once('exit', r));
@@ -246,34 +309,18 @@ async function baselineRound(url: string, relayed = false): Promise<Round> {
   const pubs = Array.from({ length: STATIONS }, (_, s) =>
     mqtt.connect(url, { clientId: `bare-${s}`, protocolVersion: 5, reconnectPeriod: 0 }),
   );
-  const sub = mqtt.connect(url, { clientId: 'bare-sub', protocolVersion: 5, reconnectPeriod: 0 });
-  await Promise.all([...pubs, sub].map(connected));
-  const latencies: number[] = [];
-  let measuring = false;
-  let received = 0;
-  const take = (payload: Buffer | string): void => {
-    const m = JSON.parse(payload.toString()) as { made_ms: number };
-    if (!measuring) return;
-    received++;
-    latencies.push(monoMs() - m.made_ms);
-  };
+  await Promise.all(pubs.map(connected));
   let child: ChildProcess | null = null;
-  let socket: WebSocket | null = null;
+  let readUrl = url;
   if (relayed) {
     child = fork(fileURLToPath(import.meta.url), ['--relay-child', url], { stdio: 'inherit' });
-    const wsUrl = await new Promise<string>((r) =>
+    readUrl = await new Promise<string>((r) =>
       child!.once('message', (m) => r((m as { url: string }).url)),
     );
-    socket = new WebSocket(wsUrl, { perMessageDeflate: false });
-    socket.on('message', (d) => take(d as Buffer));
-    await new Promise((r) => socket!.once('open', r));
-  } else {
-    await sub.subscribeAsync('cellvigil/v1/station/+/ch/+/sample', { qos: 0 });
-    sub.on('message', (_topic, payload) => take(payload));
   }
+  const reader = await startReader(relayed ? 'relay' : 'mqtt', readUrl);
   let t = 0;
-  let sent = 0;
-  const stop = schedule((s) => {
+  const sent = await measure(reader, (s) => {
     t += 1;
     for (let c = 0; c < CHANNELS; c++) {
       const payload = {
@@ -287,17 +334,11 @@ async function baselineRound(url: string, relayed = false): Promise<Round> {
       pubs[s]!.publish(channelTopic(`station-${s}`, c, 'sample'), JSON.stringify(payload), {
         qos: 0,
       });
-      if (measuring) sent++;
     }
+    return CHANNELS;
   });
-  await sleep(WARMUP_S * 1000);
-  measuring = true;
-  await sleep(SECONDS * 1000);
-  measuring = false;
-  stop();
-  await sleep(500);
-  await Promise.all([...pubs, sub].map((c) => c.endAsync()));
-  socket?.close();
+  const { latencies, received } = await reader.finish();
+  await Promise.all(pubs.map((c) => c.endAsync()));
   if (child) {
     child.disconnect();
     await new Promise((r) => child!.once('exit', r));
@@ -361,8 +402,10 @@ async function main(): Promise<void> {
 
 const i = process.argv.indexOf('--view-child');
 const j = process.argv.indexOf('--relay-child');
+const k = process.argv.indexOf('--reader-child');
 if (i >= 0) void viewChild(process.argv[i + 1]!);
 else if (j >= 0) void relayChild(process.argv[j + 1]!);
+else if (k >= 0) void readerChild(process.argv[k + 1]!, process.argv[k + 2]!);
 else
   main().catch((e: unknown) => {
     console.error((e as Error).stack ?? String(e));
