@@ -5,6 +5,7 @@
  * when a client goes without a DISCONNECT (§3.1.2.5), and a publish the broker does not allow is
  * answered with reason code 0x87 "Not authorized" (§3.4.2.1).
  */
+import { spawn } from 'node:child_process';
 import type { MqttClient } from 'mqtt';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { resolveBroker } from '../../src/fleet/broker-options.js';
@@ -152,6 +153,47 @@ describe('a station on the broker', () => {
       payloads(stationTopic('bench-b')).some((s) => s['commands_refused'] === 3),
     );
     await l.close();
+  });
+
+  it('is marked offline by its last will when its daemon dies without a goodbye (SIGKILL)', async () => {
+    const creds = broker.credentialsFile(ACCOUNTS[0]!);
+    const dist = (rel: string) =>
+      JSON.stringify(new URL(`../../dist/${rel}`, import.meta.url).href);
+    const script = `
+      const { LiveHub } = await import(${dist('live/live-hub.js')});
+      const { startFleetLink } = await import(${dist('fleet/fleet-link.js')});
+      const { resolveBroker } = await import(${dist('fleet/broker-options.js')});
+      const link = startFleetLink({
+        broker: resolveBroker({ url: ${JSON.stringify(broker.url)}, credentialsFile: ${JSON.stringify(creds)} }, 'cv-doomed'),
+        station: 'bench-a', channels: [{ channel: 0, hub: new LiveHub() }], controlToken: null,
+      });
+      const t = setInterval(() => { if (link.stats().connected) { console.log('up'); clearInterval(t); } }, 20);`;
+    const child = spawn(process.execPath, ['--input-type=module', '-e', script], {
+      stdio: ['ignore', 'pipe', 'inherit'],
+    });
+    let out = '';
+    child.stdout!.on('data', (d: Buffer) => (out += d.toString()));
+    await until('the doomed station online', () => out.includes('up'));
+    const before = seen.length;
+    child.kill('SIGKILL');
+    await until('the last will', () =>
+      seen
+        .slice(before)
+        .some(
+          (m) =>
+            m.topic === stationTopic('bench-a') && m.payload.toString().includes('"online":false'),
+        ),
+    );
+    const will = seen
+      .slice(before)
+      .find(
+        (m) =>
+          m.topic === stationTopic('bench-a') && m.payload.toString().includes('"online":false'),
+      )!;
+    expect(parsePayload('station', will.payload)).toMatchObject({
+      ok: true,
+      value: { station: 'bench-a', online: false, reason: 'connection lost' },
+    });
   });
 
   it("keeps a station out of another station's topics (ACL)", async () => {
