@@ -94,6 +94,35 @@ describe('a station on the broker', () => {
     );
   });
 
+  it('sends at most sampleHz samples a second per channel, always the newest at the end', async () => {
+    const c = handFedHub('cell-c');
+    const l = startFleetLink({
+      broker: resolveBroker(
+        { url: broker.url, credentialsFile: broker.credentialsFile(ACCOUNTS[0]!) },
+        'cv-rate',
+      ),
+      station: 'bench-a',
+      channels: [{ channel: 5, hub: c.hub }],
+      controlToken: null,
+      sampleHz: 4,
+    });
+    await until('station online', () => l.stats().connected);
+    const topic = channelTopic('bench-a', 5, 'sample');
+    const t0 = Date.now();
+    // 100 samples a second for one second: a burst of frames as a fast rig sends them.
+    for (let i = 1; i <= 100; i++) {
+      sample(c.hub, i / 100, 4 - i / 1000);
+      await new Promise((r) => setTimeout(r, 10));
+    }
+    const span = (Date.now() - t0) / 1000;
+    await new Promise((r) => setTimeout(r, 400));
+    const got = payloads(topic).map((p) => p['voltage_V']);
+    expect(got.length).toBeGreaterThanOrEqual(2);
+    expect(got.length).toBeLessThanOrEqual(Math.ceil(span * 4) + 1);
+    expect(got.at(-1)).toBeCloseTo(3.9, 9);
+    await l.close(500);
+  });
+
   it('takes a command only with the control token, and counts the refusals', async () => {
     const b = handFedHub('cell-b');
     const l = link('bench-b', b.hub);
