@@ -1,4 +1,3 @@
-import type { Argv } from 'yargs';
 import type { BrokerRequest } from './broker-options.js';
 
 /** The broker options shared by `run` and `fleet`, as yargs parses them. */
@@ -11,32 +10,28 @@ export interface BrokerArgs {
   'broker-key': string | undefined;
 }
 
-export function withBrokerOptions<T>(y: Argv<T>, what: string): Argv<T & BrokerArgs> {
-  return y
-    .option('broker', {
+/** The broker options' definitions, for yargs' `.options()`. */
+export function brokerOptions(what: string) {
+  return {
+    broker: {
       type: 'string',
       describe: `MQTT broker to ${what}: mqtt://host:1883, mqtts://host:8883, ws:// or wss://`,
-    })
-    .option('broker-client-id', {
-      type: 'string',
-      describe: 'MQTT client id (unique on the broker)',
-    })
-    .option('broker-credentials', {
+    },
+    'broker-client-id': { type: 'string', describe: 'MQTT client id (unique on the broker)' },
+    'broker-credentials': {
       type: 'string',
       describe: 'JSON file {"username","password"}, readable by its owner only',
-    })
-    .option('broker-ca', {
+    },
+    'broker-ca': {
       type: 'string',
       describe: "PEM file of the authority that signed the broker's certificate",
-    })
-    .option('broker-cert', {
+    },
+    'broker-cert': {
       type: 'string',
       describe: 'PEM client certificate, for a broker that asks for one',
-    })
-    .option('broker-key', {
-      type: 'string',
-      describe: 'PEM key of the client certificate',
-    }) as Argv<T & BrokerArgs>;
+    },
+    'broker-key': { type: 'string', describe: 'PEM key of the client certificate' },
+  } as const;
 }
 
 export function brokerRequest(a: BrokerArgs & { broker: string }): BrokerRequest {

@@ -1,5 +1,5 @@
 import type { CommandModule } from 'yargs';
-import { brokerRequest, withBrokerOptions, type BrokerArgs } from '../../fleet/broker-args.js';
+import { brokerOptions, brokerRequest, type BrokerArgs } from '../../fleet/broker-args.js';
 import { resolveBroker } from '../../fleet/broker-options.js';
 import { startFleetView } from '../../fleet/fleet-view.js';
 import { loadTokens } from '../../live/tokens.js';
@@ -15,7 +15,7 @@ export const fleetCommand: CommandModule<object, FleetArgs> = {
   command: 'fleet',
   describe: 'Follow every station on an MQTT broker: one page of all stations and channels',
   builder: (y) =>
-    withBrokerOptions(y, 'follow').demandOption('broker').option('listen', {
+    y.options(brokerOptions('follow')).demandOption('broker').option('listen', {
       type: 'string',
       default: DEFAULT_FLEET_LISTEN,
       describe: 'host:port of the fleet page',

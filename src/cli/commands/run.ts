@@ -1,5 +1,5 @@
 import type { CommandModule } from 'yargs';
-import { brokerRequest, withBrokerOptions, type BrokerArgs } from '../../fleet/broker-args.js';
+import { brokerOptions, brokerRequest, type BrokerArgs } from '../../fleet/broker-args.js';
 import { checkStationId, defaultStationId, resolveBroker } from '../../fleet/broker-options.js';
 import type { FleetRunRequest } from '../../fleet/fleet-link.js';
 import { startRun } from '../../run/daemon.js';
@@ -35,23 +35,7 @@ export const runCommand: CommandModule<object, RunArgs> = {
   command: 'run',
   describe: 'Discharge a cell: acquire, integrate, enforce the limits, log',
   builder: (y) =>
-    withBrokerOptions(y, 'publish the run to (docs/fleet.md)')
-      .option('station', {
-        type: 'string',
-        describe: "This station's id on the broker (default: the host name)",
-      })
-      .option('broker-sample-rate', {
-        type: 'number',
-        default: 2,
-        describe: 'Samples per second sent to the broker (the newest of each interval)',
-      })
-      .check((a) => {
-        if (a.broker !== undefined && a.live === false)
-          throw new Error('--broker publishes what the live feed shows: drop --no-live.');
-        if (!(a['broker-sample-rate'] > 0 && a['broker-sample-rate'] <= 20))
-          throw new Error('--broker-sample-rate must be above 0 and at most 20.');
-        return true;
-      })
+    y
       .option('port', {
         type: 'string',
         describe: 'Serial device of the rig (or a pseudo-terminal)',
@@ -134,6 +118,23 @@ export const runCommand: CommandModule<object, RunArgs> = {
         type: 'number',
         default: DEFAULT_ROTATE_BYTES / 1048576,
         describe: 'Start a new sample file after this many MiB',
+      })
+      .options(brokerOptions('publish the run to (docs/fleet.md)'))
+      .option('station', {
+        type: 'string',
+        describe: "This station's id on the broker (default: the host name)",
+      })
+      .option('broker-sample-rate', {
+        type: 'number',
+        default: 2,
+        describe: 'Samples per second sent to the broker (the newest of each interval)',
+      })
+      .check((a) => {
+        if (a.broker !== undefined && a.live === false)
+          throw new Error('--broker publishes what the live feed shows: drop --no-live.');
+        if (!(a['broker-sample-rate'] > 0 && a['broker-sample-rate'] <= 20))
+          throw new Error('--broker-sample-rate must be above 0 and at most 20.');
+        return true;
       }),
   handler: async (args) => {
     // Resolved here, so a wrong broker option or credentials file stops before any load is on.
