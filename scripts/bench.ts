@@ -12,7 +12,16 @@ import { performance } from 'node:perf_hooks';
 import { fileURLToPath } from 'node:url';
 import { BENCH_DIR, fmt, ROOT, type Figure } from './bench-kit.js';
 
-const FIGURES = ['ingest', 'replay', 'fanout', 'stalled', 'soak', 'accuracy', 'registry'] as const;
+const FIGURES = [
+  'ingest',
+  'replay',
+  'fanout',
+  'stalled',
+  'soak',
+  'accuracy',
+  'registry',
+  'fleet',
+] as const;
 /** A benchmark that runs longer than this has hung. */
 const TIMEOUT_MS = 300_000;
 

@@ -7,6 +7,7 @@ import { calibrateCommand } from './commands/calibrate.js';
 import { cellsCommand } from './commands/cells.js';
 import { chemistriesCommand } from './commands/chemistries.js';
 import { packCommand } from './commands/pack.js';
+import { fleetCommand } from './commands/fleet.js';
 import { reportCommand } from './commands/report.js';
 import { runCommand } from './commands/run.js';
 import { simCommand } from './commands/sim.js';
@@ -23,6 +24,7 @@ const commands = [
   assessCommand,
   cellsCommand,
   packCommand,
+  fleetCommand,
 ];
 
 async function main(): Promise<void> {

@@ -136,7 +136,8 @@ export function statusLine(v: WatchView): string {
 
 /**
  * The WebSocket address for what a person types: http(s)://host:port/ becomes ws(s)://…/live,
- * a bare host:port gets ws://, and `token` (when given) is added as ?token=.
+ * a bare host:port gets ws://, and `token` (when given) is added as ?token=. A fleet view's
+ * channel address (/channel?station=…&ch=…) keeps its station and channel.
  */
 export function liveSocketUrl(input: string, token?: string): string {
   const text = /^[a-z][a-z0-9+.-]*:\/\//i.test(input) ? input : `http://${input}`;
@@ -168,5 +169,10 @@ export function liveSocketUrl(input: string, token?: string): string {
   const out = new URL(`${scheme}//${u.host}/live`);
   const t = token ?? u.searchParams.get('token');
   if (t) out.searchParams.set('token', t);
+  // A fleet view's channel page names its station and channel; its /live socket needs them.
+  for (const k of ['station', 'ch']) {
+    const x = u.searchParams.get(k);
+    if (x !== null) out.searchParams.set(k, x);
+  }
   return out.toString();
 }

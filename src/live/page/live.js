@@ -472,9 +472,13 @@
 
   function connect() {
     const scheme = location.protocol === 'https:' ? 'wss:' : 'ws:';
-    const q = viewerToken ? `?token=${encodeURIComponent(viewerToken)}` : '';
+    // A fleet view serves this page for one station's channel, named by station and ch.
+    const q = new URLSearchParams();
+    if (viewerToken) q.set('token', viewerToken);
+    for (const k of ['station', 'ch']) if (params.has(k)) q.set(k, params.get(k));
+    const qs = q.toString();
     setLink('connecting', 'connecting');
-    ws = new WebSocket(`${scheme}//${location.host}/live${q}`);
+    ws = new WebSocket(`${scheme}//${location.host}/live${qs ? `?${qs}` : ''}`);
     ws.addEventListener('message', (ev) => {
       let m;
       try {
