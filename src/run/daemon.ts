@@ -130,25 +130,12 @@ export async function startRun(asked: RunRequest, io: RunIo): Promise<RunHandle>
     );
   announceStart(run, status, { cfg, folder, source: link.description, resume });
 
-  /** A run that never got its rig leaves no folder behind (it would look like one to resume). */
-  const abandon = async (live: LiveLink | null): Promise<void> => {
-    await live?.server.close().catch(() => undefined);
-    await run.abandon();
-    if (!resume) await rm(folder, { recursive: true, force: true }).catch(() => undefined);
-  };
-  let live: LiveLink | null = null;
-  try {
-    live = await startLive(req, cfg, run, status, {
-      label,
-      folder,
-      startedWallMs,
-      source: link.description,
-    });
-    await link.open(run);
-  } catch (e) {
-    await abandon(live);
-    throw e;
-  }
+  const live = await connect(req, cfg, run, link, status, {
+    label,
+    folder,
+    startedWallMs,
+    resumed: resume !== null,
+  });
   if (io.signals) handleSignals(run, status);
   watchers = watchRunFiles(run, status, {
     calibration: cfg.calibrationPath,
@@ -236,6 +223,31 @@ function startTimers(
     void run.writeCheckpoint();
   });
   timers.every(real, STATUS_EVERY_MS, () => status.draw(real.now()));
+}
+
+/**
+ * The live feed, then the rig. A run that never got its rig leaves no folder behind (it would
+ * look like one to resume).
+ */
+async function connect(
+  req: RunRequest,
+  cfg: RunConfig,
+  run: ChannelRun,
+  link: RigLink,
+  status: StatusPrinter,
+  x: { label: string; folder: string; startedWallMs: number; resumed: boolean },
+): Promise<LiveLink | null> {
+  let live: LiveLink | null = null;
+  try {
+    live = await startLive(req, cfg, run, status, { ...x, source: link.description });
+    await link.open(run);
+    return live;
+  } catch (e) {
+    await live?.server.close().catch(() => undefined);
+    await run.abandon();
+    if (!x.resumed) await rm(x.folder, { recursive: true, force: true }).catch(() => undefined);
+    throw e;
+  }
 }
 
 /** The live feed of the run, unless `--no-live`. */
