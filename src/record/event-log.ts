@@ -148,7 +148,7 @@ export interface EventChecks {
   kinds: ReadonlyMap<EventKind, ValidateFunction>;
 }
 
-export function compileEventChecks(): EventChecks {
+function compileEventChecks(): EventChecks {
   const ajv = new Ajv({ strict: true, allErrors: true });
   const kinds = new Map<EventKind, ValidateFunction>();
   for (const kind of Object.keys(EVENT_KINDS) as EventKind[])
@@ -156,10 +156,13 @@ export function compileEventChecks(): EventChecks {
   return { envelope: ajv.compile(ENVELOPE), kinds };
 }
 
+/** Compiled once, when the module loads: compiling every kind's schema costs more than reading a run's events. */
+export const EVENT_CHECKS: EventChecks = compileEventChecks();
+
 /** Checks one line of events.jsonl; a problem is returned as text for the reader's message. */
 export function parseEventLine(
   text: string,
-  checks: EventChecks,
+  checks: EventChecks = EVENT_CHECKS,
 ): { ok: true; event: LoggedEvent } | { ok: false; problem: string } {
   let data: unknown;
   try {

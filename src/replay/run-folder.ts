@@ -7,12 +7,7 @@ import { readdir, readFile, stat } from 'node:fs/promises';
 import { basename, join } from 'node:path';
 import { ErrorCodes, makeError } from '../core/errors.js';
 import { CHECKPOINT_FILE, readCheckpointFile, type Checkpoint } from '../record/checkpoint.js';
-import {
-  compileEventChecks,
-  EVENTS_FILE,
-  parseEventLine,
-  type LoggedEvent,
-} from '../record/event-log.js';
+import { EVENTS_FILE, parseEventLine, type LoggedEvent } from '../record/event-log.js';
 import { MANIFEST_FILE, parseManifest, type RunManifest } from '../record/manifest.js';
 import { readResultFile, RESULT_FILE, type RunResult } from '../record/result.js';
 import { readLineBatchesRaw, readLines, type TextLine } from './line-reader.js';
@@ -281,9 +276,8 @@ export async function* readRunEvents(
   o: { onCutLine?: (cut: CutLine) => void } = {},
 ): AsyncGenerator<LoggedEvent> {
   if (run.eventsPath === null) return;
-  const checks = compileEventChecks();
   for await (const line of readLines(run.eventsPath)) {
-    const parsed = parseEventLine(line.text, checks);
+    const parsed = parseEventLine(line.text);
     if (parsed.ok) {
       yield parsed.event;
     } else if (!line.terminated) {

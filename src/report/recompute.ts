@@ -24,7 +24,7 @@ import { Plausibility, plausibilityFor } from '../session/plausibility.js';
 import type { SessionEnd } from '../session/session-types.js';
 import { CurveBuilder, loadedVoltageAtCharge, type CurveBucket, type CurvePoint } from './curve.js';
 import { DcResistanceTracker, type ResistanceSummary } from './dc-resistance.js';
-import { EventDigest, type EventDigestResult } from './event-digest.js';
+import { EventDigest, type EventDigestResult, type RunEnd } from './event-digest.js';
 import { ratedCapacityVerdict, type Verdict } from './verdicts.js';
 import { VoltageSteps, type VoltageStepRow } from './voltage-steps.js';
 
@@ -249,10 +249,7 @@ export class RunRecompute {
     this.digest.add(e);
   }
 
-  /**
-   * The session's verdict on a row's readings: checked in the states it checks them in (the
-   * row holds the state after its frame, which for a checked frame is one of these too).
-   */
+  /** One row, read and not kept: the caller may reuse the record. */
   private plausible(
     state: string,
     atMs: number,
@@ -270,7 +267,6 @@ export class RunRecompute {
     return this.plausibility.check(x).plausible;
   }
 
-  /** One row, read and not kept: the caller may reuse the record. */
   sample(s: Readonly<SampleRecord>): void {
     this.rows++;
     if (s.calibrationId !== this.lastId) {
@@ -458,14 +454,12 @@ export class RunRecompute {
     const integ = this.integrator;
     const hours = integ.onMs / 3_600_000;
     const avgA = hours > 0 ? integ.chargeAh / hours : null;
-    const ratedAh = this.o.ratedAh ?? null;
     const cutoffV = ev.cutoffChanges.at(-1)?.cutoffV ?? m.cutoff_V;
     const rejected =
       ctx.original?.frames_rejected ??
       Math.max(ctx.checkpoint?.frames_rejected ?? 0, ev.rejectedLines);
     const errorPpm = this.frames.rigClockErrorPpm();
     const resistance = this.resistance.result();
-    const on = resistance.switch_on?.first ?? null;
     const end =
       ev.end ??
       (ctx.original
@@ -476,20 +470,118 @@ export class RunRecompute {
           }
         : null);
 
-    // Noise from raw counts, turned into corrected units through the chain and the calibration's gain.
-    const sdI = this.noiseI.sd();
-    const sdV = this.noiseV.sd();
-    const gainI = cal?.current?.fit.gain ?? 1;
-    const gainV = cal?.voltage?.fit.gain ?? 1;
-    const noiseA = sdI === null ? null : sdI * this.chain.ampsPerCount * gainI;
-    const noiseV = sdV === null ? null : sdV * this.chain.voltsPerCount * gainV;
-    // Noise below half a count does not dither the ADC: only distinct codes round independently.
-    const quantisationSamples = {
-      current: sdI !== null && sdI >= 0.5 ? this.loadedFrames : this.codesI.size,
-      voltage: sdV !== null && sdV >= 0.5 ? this.loadedFrames : this.codesV.size,
-    };
+    const base = this.baseResult(end, cutoffV, rejected, errorPpm, resistance);
+    const noise = this.noise(cal);
+    const uncertainty = this.uncertainty(cal, base.mean_voltage_V, noise);
 
-    const base = buildResult({
+    const { verdict, minA, maxA } = this.verdict(cutoffV, avgA, end?.reason ?? 'interrupted');
+    const steps = this.steps.rows();
+    const midpoint =
+      integ.chargeAh > 0 ? loadedVoltageAtCharge(this.curve.buckets, integ.chargeAh / 2) : null;
+
+    const liveIds = [...this.liveIds];
+    const appliedId = cal?.id ?? 'none';
+    this.addNotes(notes, { liveIds, appliedId, cutLines: ctx.cutLines, ended: end !== null });
+    const result = this.recomputedResult(base, end !== null, {
+      uncertainty,
+      verdict,
+      avgA,
+      steps,
+      midpoint,
+      calibrationFile: ctx.calibrationFile,
+      cutLines: ctx.cutLines,
+    });
+    return {
+      folder: ctx.folder,
+      manifest: m,
+      result,
+      original: ctx.original,
+      calibration: {
+        applied: cal,
+        id: appliedId,
+        own: appliedId === m.calibration.id,
+        file: ctx.calibrationFile,
+        liveIds,
+      },
+      steps,
+      stepPerCellV: this.stepPerCellV,
+      resistance,
+      verdict,
+      ...this.measures(rejected, errorPpm),
+      current: { minA, maxA, noiseA: noise.noiseA },
+      voltageNoiseV: noise.noiseV,
+      loadSwitchOns: this.switchOns,
+      liveTotals: this.liveTotals,
+      curve: this.curve.buckets,
+      events: ev,
+      cautions: m.chemistry.profile.cautions,
+      notes,
+    };
+  }
+
+  /** The daemon's keys, and those only a recompute gives. */
+  private recomputedResult(
+    base: RunResult,
+    ended: boolean,
+    x: {
+      uncertainty: RecomputedResult['uncertainty'];
+      verdict: Verdict | null;
+      avgA: number | null;
+      steps: VoltageStepRow[];
+      midpoint: number | null;
+      calibrationFile: string | null;
+      cutLines: number;
+    },
+  ): RecomputedResult {
+    const { uncertainty, verdict, avgA, steps, midpoint } = x;
+    const ratedAh = this.o.ratedAh ?? null;
+    const integ = this.integrator;
+    return {
+      ...base,
+      end_reason: ended ? base.end_reason : 'interrupted',
+      uncertainty,
+      midpoint_voltage_V: rn(midpoint, 5),
+      average_current_A: rn(avgA, 6),
+      rated_Ah: ratedAh,
+      c_rate: ratedAh !== null && avgA !== null ? rn(avgA / ratedAh, 4) : null,
+      percent_of_rated: ratedAh !== null ? rn((integ.chargeAh / ratedAh) * 100, 2) : null,
+      capacity_by_voltage: steps.map((s) => ({
+        V_per_cell: s.perCellV,
+        V: s.totalV,
+        capacity_Ah: rn(s.chargeAh, 6),
+        energy_Wh: rn(s.energyWh, 6),
+        load_on_s: rn(s.loadOnS, 3),
+      })),
+      verdict: verdict
+        ? {
+            standard: verdict.standard,
+            label: verdict.label,
+            outcome: verdict.outcome,
+            summary: verdict.summary,
+          }
+        : null,
+      recomputed: {
+        cellvigil_version: packageVersion(),
+        calibration_file: x.calibrationFile,
+        from_rows: this.rows,
+        cut_lines: x.cutLines,
+      },
+    };
+  }
+
+  /** The daemon's keys of result.json, built as the daemon builds them. */
+  private baseResult(
+    end: RunEnd | null,
+    cutoffV: number,
+    rejected: number,
+    errorPpm: number | null,
+    resistance: ResistanceSummary,
+  ): RunResult {
+    const m = this.manifest;
+    const cal = this.calibration;
+    const integ = this.integrator;
+    const on = resistance.switch_on?.first ?? null;
+    return buildResult({
       end: end && end.reason !== 'interrupted' ? (end.reason as SessionEnd) : 'stopped',
       detail:
         end?.detail ??
@@ -519,117 +611,15 @@ export class RunRecompute {
       endedWallMs: this.lastWall !== null ? Date.parse(this.lastWall) : Date.parse(m.started_wall),
       schedule: m.schedule?.description ?? null,
     });
-    const uncertainty = runUncertainty({
-      chargeAh: integ.chargeAh,
-      energyWh: integ.energyWh,
-      nominalAh: this.frames.nominalAh,
-      onS: integ.onMs / 1000,
-      samples: this.loadedFrames,
-      ampsPerCount: this.chain.ampsPerCount,
-      voltsPerCount: this.chain.voltsPerCount,
-      meanVoltageV: base.mean_voltage_V ?? 0,
-      bridgedAh: integ.bridgedAh,
-      calibration: cal,
-      ...(noiseA !== null ? { currentNoiseA: noiseA } : {}),
-      ...(noiseV !== null ? { voltageNoiseV: noiseV } : {}),
-      quantisationSamples,
-    });
+  }
 
-    const startC = this.startC;
-    const minA = Number.isFinite(this.minA) ? this.minA : null;
-    const maxA = Number.isFinite(this.maxA) ? this.maxA : null;
-    const verdict = ratedCapacityVerdict({
-      chemistryId: m.chemistry.id,
-      cells: m.cells,
-      cutoffPerCellV: cutoffV / m.cells,
-      ratedAh,
-      averageCurrentA: avgA ?? 0,
-      minCurrentA: minA ?? avgA ?? 0,
-      maxCurrentA: maxA ?? avgA ?? 0,
-      durationS: integ.onMs / 1000,
-      endReason: end?.reason ?? 'interrupted',
-      startTemperatureC: startC,
-      loadSwitchOns: this.switchOns,
-      ...(this.o.rateTolerance !== undefined ? { rateTolerance: this.o.rateTolerance } : {}),
-    });
-    const steps = this.steps.rows();
-    const midpoint =
-      integ.chargeAh > 0 ? loadedVoltageAtCharge(this.curve.buckets, integ.chargeAh / 2) : null;
-
-    const liveIds = [...this.liveIds];
-    const appliedId = cal?.id ?? 'none';
-    if (liveIds.some((id) => id !== appliedId)) {
-      notes.push(
-        `The live run made its rows with calibration ${liveIds.join(', ')}; this recompute applies ${appliedId} to every row.`,
-      );
-    } else if (this.liveTotals && integ.chargeAh > 0) {
-      const d = integ.chargeAh / this.liveTotals.chargeAh - 1;
-      notes.push(
-        `Same calibration as the live run: the recomputed capacity differs from the live total in the log by ${(d * 100).toExponential(1)} %.`,
-      );
-    }
-    if (ctx.cutLines > 0)
-      notes.push(
-        `${ctx.cutLines} line${ctx.cutLines > 1 ? 's were' : ' was'} cut off by the interruption of the run and left out.`,
-      );
-    const resumed = ev.resumptions.length;
-    if (resumed > 0) {
-      const dark = ev.resumptions.reduce((t, r) => t + r.unloggedS, 0);
-      notes.push(
-        `The run was resumed ${resumed} time${resumed > 1 ? 's' : ''}; nothing is interpolated across the time it was down${dark > 0 ? `, and ${dark.toFixed(1)} s of load-on time with nothing logged are counted at the last logged current, in full as doubt in the budget` : ''}.`,
-      );
-    }
-    if (!end)
-      notes.push('The run was interrupted: it has no result.json and its event log no end.');
+  private measures(
+    rejected: number,
+    errorPpm: number | null,
+  ): Pick<RunFigures, 'frames' | 'clock' | 'temperature'> {
     const spanS = this.rows > 0 ? this.lastHostS - this.firstHostS : 0;
-
-    const result: RecomputedResult = {
-      ...base,
-      end_reason: end ? base.end_reason : 'interrupted',
-      uncertainty,
-      midpoint_voltage_V: rn(midpoint, 5),
-      average_current_A: rn(avgA, 6),
-      rated_Ah: ratedAh,
-      c_rate: ratedAh !== null && avgA !== null ? rn(avgA / ratedAh, 4) : null,
-      percent_of_rated: ratedAh !== null ? rn((integ.chargeAh / ratedAh) * 100, 2) : null,
-      capacity_by_voltage: steps.map((s) => ({
-        V_per_cell: s.perCellV,
-        V: s.totalV,
-        capacity_Ah: rn(s.chargeAh, 6),
-        energy_Wh: rn(s.energyWh, 6),
-        load_on_s: rn(s.loadOnS, 3),
-      })),
-      verdict: verdict
-        ? {
-            standard: verdict.standard,
-            label: verdict.label,
-            outcome: verdict.outcome,
-            summary: verdict.summary,
-          }
-        : null,
-      recomputed: {
-        cellvigil_version: packageVersion(),
-        calibration_file: ctx.calibrationFile,
-        from_rows: this.rows,
-        cut_lines: ctx.cutLines,
-      },
-    };
+    const startC = this.startC;
     return {
-      folder: ctx.folder,
-      manifest: m,
-      result,
-      original: ctx.original,
-      calibration: {
-        applied: cal,
-        id: appliedId,
-        own: appliedId === m.calibration.id,
-        file: ctx.calibrationFile,
-        liveIds,
-      },
-      steps,
-      stepPerCellV: this.stepPerCellV,
-      resistance,
-      verdict,
       frames: {
         accepted: this.rows,
         rejected,
@@ -649,15 +639,111 @@ export class RunRecompute {
         maxC: Number.isFinite(this.maxC) ? this.maxC : null,
         endC: Number.isNaN(this.endC) ? null : this.endC,
       },
-      current: { minA, maxA, noiseA },
-      voltageNoiseV: noiseV,
-      loadSwitchOns: this.switchOns,
-      liveTotals: this.liveTotals,
-      curve: this.curve.buckets,
-      events: ev,
-      cautions: m.chemistry.profile.cautions,
-      notes,
     };
+  }
+
+  /** Noise from raw counts, in corrected units through the chain and the calibration's gain. */
+  private noise(cal: Calibration | null): {
+    noiseA: number | null;
+    noiseV: number | null;
+    quantisationSamples: { current: number; voltage: number };
+  } {
+    const sdI = this.noiseI.sd();
+    const sdV = this.noiseV.sd();
+    const gainI = cal?.current?.fit.gain ?? 1;
+    const gainV = cal?.voltage?.fit.gain ?? 1;
+    const noiseA = sdI === null ? null : sdI * this.chain.ampsPerCount * gainI;
+    const noiseV = sdV === null ? null : sdV * this.chain.voltsPerCount * gainV;
+    // Noise below half a count does not dither the ADC: only distinct codes round independently.
+    const quantisationSamples = {
+      current: sdI !== null && sdI >= 0.5 ? this.loadedFrames : this.codesI.size,
+      voltage: sdV !== null && sdV >= 0.5 ? this.loadedFrames : this.codesV.size,
+    };
+    return { noiseA, noiseV, quantisationSamples };
+  }
+
+  private uncertainty(
+    cal: Calibration | null,
+    meanV: number | null,
+    n: ReturnType<RunRecompute['noise']>,
+  ): RecomputedResult['uncertainty'] {
+    const integ = this.integrator;
+    const { noiseA, noiseV, quantisationSamples } = n;
+    return runUncertainty({
+      chargeAh: integ.chargeAh,
+      energyWh: integ.energyWh,
+      nominalAh: this.frames.nominalAh,
+      onS: integ.onMs / 1000,
+      samples: this.loadedFrames,
+      ampsPerCount: this.chain.ampsPerCount,
+      voltsPerCount: this.chain.voltsPerCount,
+      meanVoltageV: meanV ?? 0,
+      bridgedAh: integ.bridgedAh,
+      calibration: cal,
+      ...(noiseA !== null ? { currentNoiseA: noiseA } : {}),
+      ...(noiseV !== null ? { voltageNoiseV: noiseV } : {}),
+      quantisationSamples,
+    });
+  }
+
+  private verdict(
+    cutoffV: number,
+    avgA: number | null,
+    endReason: string,
+  ): { verdict: Verdict | null; minA: number | null; maxA: number | null } {
+    const m = this.manifest;
+    const integ = this.integrator;
+    const ratedAh = this.o.ratedAh ?? null;
+    const startC = this.startC;
+    const minA = Number.isFinite(this.minA) ? this.minA : null;
+    const maxA = Number.isFinite(this.maxA) ? this.maxA : null;
+    const verdict = ratedCapacityVerdict({
+      chemistryId: m.chemistry.id,
+      cells: m.cells,
+      cutoffPerCellV: cutoffV / m.cells,
+      ratedAh,
+      averageCurrentA: avgA ?? 0,
+      minCurrentA: minA ?? avgA ?? 0,
+      maxCurrentA: maxA ?? avgA ?? 0,
+      durationS: integ.onMs / 1000,
+      endReason,
+      startTemperatureC: startC,
+      loadSwitchOns: this.switchOns,
+      ...(this.o.rateTolerance !== undefined ? { rateTolerance: this.o.rateTolerance } : {}),
+    });
+    return { verdict, minA, maxA };
+  }
+
+  private addNotes(
+    notes: string[],
+    x: { liveIds: string[]; appliedId: string; cutLines: number; ended: boolean },
+  ): void {
+    const { liveIds, appliedId } = x;
+    const integ = this.integrator;
+    const ev = this.digest.result();
+    if (liveIds.some((id) => id !== appliedId)) {
+      notes.push(
+        `The live run made its rows with calibration ${liveIds.join(', ')}; this recompute applies ${appliedId} to every row.`,
+      );
+    } else if (this.liveTotals && integ.chargeAh > 0) {
+      const d = integ.chargeAh / this.liveTotals.chargeAh - 1;
+      notes.push(
+        `Same calibration as the live run: the recomputed capacity differs from the live total in the log by ${(d * 100).toExponential(1)} %.`,
+      );
+    }
+    if (x.cutLines > 0)
+      notes.push(
+        `${x.cutLines} line${x.cutLines > 1 ? 's were' : ' was'} cut off by the interruption of the run and left out.`,
+      );
+    const resumed = ev.resumptions.length;
+    if (resumed > 0) {
+      const dark = ev.resumptions.reduce((t, r) => t + r.unloggedS, 0);
+      notes.push(
+        `The run was resumed ${resumed} time${resumed > 1 ? 's' : ''}; nothing is interpolated across the time it was down${dark > 0 ? `, and ${dark.toFixed(1)} s of load-on time with nothing logged are counted at the last logged current, in full as doubt in the budget` : ''}.`,
+      );
+    }
+    if (!x.ended)
+      notes.push('The run was interrupted: it has no result.json and its event log no end.');
   }
 }
 

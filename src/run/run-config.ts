@@ -95,19 +95,8 @@ function checkSameRun(req: RunRequest, m: RunManifest): void {
   if (req.channel !== m.channel) clash('--channel', req.channel, m.channel);
 }
 
-export async function resolveRunConfig(
-  req: RunRequest,
-  resumed: RunManifest | null = null,
-): Promise<RunConfig> {
-  if (resumed) {
-    checkSameRun(req, resumed);
-    req = {
-      ...req,
-      chemistry: resumed.chemistry.id,
-      cells: resumed.cells,
-      cutoff: resumed.cutoff_per_cell_V,
-    };
-  }
+/** The options that need no file: one rig, a speed only for the simulated one, a link timeout, a channel. */
+function checkRunOptions(req: RunRequest): void {
   if ((req.port === undefined) === (req.sim === undefined)) {
     throw makeError(
       ErrorCodes.USAGE,
@@ -148,6 +137,22 @@ export async function resolveRunConfig(
       'Give the rig channel the cell is on, 0 to 15.',
     );
   }
+}
+
+export async function resolveRunConfig(
+  req: RunRequest,
+  resumed: RunManifest | null = null,
+): Promise<RunConfig> {
+  if (resumed) {
+    checkSameRun(req, resumed);
+    req = {
+      ...req,
+      chemistry: resumed.chemistry.id,
+      cells: resumed.cells,
+      cutoff: resumed.cutoff_per_cell_V,
+    };
+  }
+  checkRunOptions(req);
   const scenario =
     req.sim !== undefined ? pickScenario(loadScenarios(DEFAULT_SCENARIOS_PATH), req.sim) : null;
   const rigPath = resumed?.rig.file ?? resolve(req.rig ?? DEFAULT_RIG_PATH);
@@ -166,9 +171,8 @@ export async function resolveRunConfig(
   }
   const chemistry = resumed ? resumed.chemistry.profile : findChemistry(chemistries, chemistryId);
   const cells = validateCells(req.cells ?? scenario?.cell.cells ?? 1);
-  const resumedSchedule =
-    (resumed as { schedule?: { kind: 'file' | 'option'; text: string; where: string } } | null)
-      ?.schedule ?? null;
+  const kept = resumed?.schedule;
+  const resumedSchedule = kept ? { kind: kept.kind, text: kept.text, where: kept.where } : null;
   const scheduleSource =
     resumedSchedule ?? (req.schedule !== undefined ? await readScheduleSource(req.schedule) : null);
   const schedule = scheduleSource ? parseScheduleSource(scheduleSource) : null;
