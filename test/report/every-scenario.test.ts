@@ -108,7 +108,6 @@ const SAME = [
   'frames_lost',
   'gaps',
   'bridged_Ah',
-  'rig_clock_error_ppm',
   'rig_clock_warning',
   'calibration_id',
   'chemistry',
@@ -133,6 +132,11 @@ describe("the recompute of every shipped scenario equals the daemon's live resul
       const before: Record<string, unknown> = { ...live.result };
       const again: Record<string, unknown> = { ...f.result };
       expect(before['frames_accepted']).toBeGreaterThan(100);
+      // The live estimate of the rig's clock takes only frames that arrived fresh, which the rows
+      // do not record; the recompute fits every row, so the two may differ by a few ppm.
+      expect(
+        Math.abs(Number(again['rig_clock_error_ppm']) - Number(before['rig_clock_error_ppm'])),
+      ).toBeLessThanOrEqual(20);
       for (const key of SAME)
         expect({ key, value: again[key] }).toEqual({ key, value: before[key] });
     }, 120_000);
