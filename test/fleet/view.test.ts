@@ -180,6 +180,10 @@ describe('the fleet view', () => {
     const tileA = snap.tiles.find((t) => t['key'] === 'bench-a/0');
     expect(tileA).toMatchObject({ ended: true, end_reason: 'cutoff' });
     expect(snap.tiles.find((t) => t['key'] === 'bench-b/1')).toMatchObject({ voltage_V: 3.68 });
+    // The late view files the retained result too (the registry keeps one of each): wait for it.
+    await until('late view filed', () =>
+      filed.some((r, i) => i > 0 && r.run_id === '20261203-080000-cell-a'),
+    );
     expect(filed.filter((r) => r.run_id === '20261203-080000-cell-a')).toHaveLength(2);
     page.close();
   });
