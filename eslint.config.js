@@ -20,7 +20,7 @@ export default tseslint.config(
     },
   },
   {
-    files: ['src/live/page/**/*.js'],
+    files: ['src/live/page/**/*.js', 'src/fleet/page/**/*.js'],
     languageOptions: {
       globals: {
         window: 'readonly',

@@ -38,15 +38,16 @@ type FrontEndModule = typeof import('../src/sim/front-end.js');
 type PrngModule = typeof import('../src/sim/prng.js');
 type ClockModule = typeof import('../src/core/clock.js');
 type LineBufferModule = typeof import('../src/sources/line-buffer.js');
-type ResultModule = typeof import('../src/run/result.js');
+type ResultModule = typeof import('../src/record/result.js');
 type NominalPointModule = typeof import('../src/calibration/nominal-point.js');
 type CaptureModule = typeof import('../src/calibration/capture.js');
 type AccuracyModule = typeof import('../src/calibration/reference-accuracy.js');
 type SimScenario = import('../src/sim/scenarios.js').SimScenario;
 type Calibration = import('../src/calibration/calibration.js').Calibration;
 type CalibrationPoint = import('../src/calibration/calibration.js').CalibrationPoint;
-type RunResult = import('../src/run/result.js').RunResult;
+type RunResult = import('../src/record/result.js').RunResult;
 type Action = import('../src/session/session-types.js').Action;
+type SessionEnd = import('../src/session/session-types.js').SessionEnd;
 
 const TRIALS = Number(argValue('trials') ?? 50);
 const SEED = Number(argValue('seed') ?? 20261203);
@@ -294,7 +295,7 @@ async function discharge(
         const line = m.codec.encodeCommand(a.command);
         clock.setTimer(() => rig.receive(line), 2);
       } else if (a.type === 'event') {
-        events.write(clock.now() / 1000, clock.wallNow(), a.name, a.detail);
+        events.writeForeign(clock.now() / 1000, clock.wallNow(), a.name, a.detail);
       } else {
         end ??= { reason: a.reason, detail: a.detail, confirmed: a.loadOffConfirmed };
       }
@@ -330,7 +331,7 @@ async function discharge(
   const e = end as { reason: string; detail: string; confirmed: boolean } | null;
   if (!e) throw new Error(`${scenario.name}: the discharge did not end within 3 h`);
   const result = m.result.buildResult({
-    end: e.reason as RunResult['end_reason'],
+    end: e.reason as SessionEnd,
     detail: e.detail,
     loadOffConfirmed: e.confirmed,
     chargeAh: session.integrator.chargeAh,
@@ -342,7 +343,7 @@ async function discharge(
     lastLoadedV: session.lastLoadedV,
     cutoffV: session.cutoffV,
     counters: pipeline.counters,
-    rigClockErrorPpm: pipeline.timeBase.rigClockErrorPpm(),
+    rigClockErrorPpm: pipeline.rigClockErrorPpm(),
     calibration,
     calibrationId: pipeline.calibrationId,
     ampsPerCount: chain.ampsPerCount,

@@ -17,7 +17,8 @@ export type QuantityFitModule = typeof import('../src/calibration/quantity-fit.j
 export type CodecModule = typeof import('../src/protocol/codec.js');
 export type DaemonModule = typeof import('../src/run/daemon.js');
 export type PipelineModule = typeof import('../src/run/pipeline.js');
-export type EventLogModule = typeof import('../src/run/event-log.js');
+export type EventLogModule = typeof import('../src/record/event-log.js');
+export type RunEvent = import('../src/record/events.js').RunEvent;
 export type SessionModule = typeof import('../src/session/session.js');
 export type PlausibilityModule = typeof import('../src/session/plausibility.js');
 export type LogFileModule = typeof import('../src/sinks/log-file.js');
@@ -326,7 +327,7 @@ export class CoreRun {
     const { Session } = await product<SessionModule>('session/session.js');
     const { Pipeline } = await product<PipelineModule>('run/pipeline.js');
     const { LogFile } = await product<LogFileModule>('sinks/log-file.js');
-    const { EventLog } = await product<EventLogModule>('run/event-log.js');
+    const { EventLog } = await product<EventLogModule>('record/event-log.js');
     const { SAMPLE_HEADER, SampleRowWriter, sampleRowMaxBytes } =
       await product<SampleRowModule>('sinks/sample-row.js');
     const rowWriter = { write: new SampleRowWriter().write, maxBytes: sampleRowMaxBytes };
@@ -408,14 +409,20 @@ export class CoreRun {
       if (a.type === 'send') {
         if (a.command.command === 'LOAD') this.rigLoadOn = a.command.on;
         if (a.command.command !== 'BEAT')
-          this.events.write(atMs / 1000, this.startWallMs + atMs, 'command', {
-            command: a.command,
+          this.events.write(atMs / 1000, this.startWallMs + atMs, {
+            event: 'command',
+            line: `${a.command.command}`,
+            queued: true,
           });
       } else if (a.type === 'event') {
-        this.events.write(atMs / 1000, this.startWallMs + atMs, a.name, a.detail);
+        this.events.write(atMs / 1000, this.startWallMs + atMs, {
+          event: a.name,
+          ...a.detail,
+        } as RunEvent);
       } else {
         this.ended = true;
-        this.events.write(atMs / 1000, this.startWallMs + atMs, 'run_ended', {
+        this.events.write(atMs / 1000, this.startWallMs + atMs, {
+          event: 'run_ended',
           end_reason: a.reason,
           detail: a.detail,
           load_off_confirmed: a.loadOffConfirmed,

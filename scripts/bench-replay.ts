@@ -38,7 +38,7 @@ import {
 const ROWS = Number(argValue('rows') ?? 2_000_000);
 const ROUNDS = Number(argValue('rounds') ?? 3);
 /** Bump when the generated data changes, so an old cache is not reused. */
-const DATA_VERSION = 1;
+const DATA_VERSION = 2;
 const DATA_DIR = join(BENCH_DIR, 'data', `replay-${ROWS}`);
 const RUN_DIR = join(DATA_DIR, 'run');
 const MARKER = join(DATA_DIR, 'bench-data.json');

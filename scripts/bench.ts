@@ -20,6 +20,7 @@ const FIGURES = [
   'soak',
   'accuracy',
   'registry',
+  'fleet',
   'station',
 ] as const;
 /** A benchmark that runs longer than this has hung. */

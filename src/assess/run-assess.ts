@@ -34,7 +34,8 @@ function positive(x: number | undefined, where: string, fix: string): void {
     throw usage(`${String(x)} is not a positive number`, where, fix);
 }
 
-export async function runAssess(o: AssessOptions): Promise<{ report: AssessReport; text: string }> {
+/** The test a capacity budget is for, after checking the options that state it. */
+function budgetTest(o: AssessOptions): { currentA: number; hours: number } | undefined {
   positive(o.currentA, '--current', 'Give the test current in amps, e.g. 0.5.');
   positive(o.hours, '--hours', 'Give the test duration in hours, e.g. 5.');
   positive(
@@ -72,6 +73,11 @@ export async function runAssess(o: AssessOptions): Promise<{ report: AssessRepor
       "The calibration file already carries its reference meter's uncertainty; --reference-accuracy is for a calibration still to be taken.",
     );
   }
+  return test;
+}
+
+/** The other options' ranges. */
+function checkRanges(o: AssessOptions): void {
   const tol = o.rigClockTolerancePct;
   if (tol !== undefined && !(tol >= 0 && tol < 100))
     throw usage(
@@ -93,6 +99,12 @@ export async function runAssess(o: AssessOptions): Promise<{ report: AssessRepor
       '--chemistry',
       'Name the chemistry too, e.g. --chemistry lead-acid --cells 6.',
     );
+}
+
+export async function runAssess(o: AssessOptions): Promise<{ report: AssessReport; text: string }> {
+  const test = budgetTest(o);
+  checkRanges(o);
+  const tol = o.rigClockTolerancePct;
   const battery =
     o.chemistry !== undefined
       ? {

@@ -35,7 +35,7 @@ import { formatOutcome } from './fit-report.js';
 import { captureInteractive, type Prompter } from './interactive.js';
 import { makeLoadGuard, type LoadGuard } from './load-guard.js';
 import { capturePoint } from './point-capture.js';
-import { savePointsAfterRefusal } from './points-save.js';
+import { savePointsAfterRefusal } from './refused-points-file.js';
 import { loadPointsFile, type PointsFile } from './points-file.js';
 import { buildCalibration, type QuantityOutcome } from './quantity-fit.js';
 import { RigLink } from './rig-link.js';

@@ -8,6 +8,7 @@ import { cellsCommand } from './commands/cells.js';
 import { chemistriesCommand } from './commands/chemistries.js';
 import { controlCommand } from './commands/control.js';
 import { packCommand } from './commands/pack.js';
+import { fleetCommand } from './commands/fleet.js';
 import { reportCommand } from './commands/report.js';
 import { runCommand } from './commands/run.js';
 import { simCommand } from './commands/sim.js';
@@ -27,6 +28,7 @@ const commands = [
   assessCommand,
   cellsCommand,
   packCommand,
+  fleetCommand,
 ];
 
 async function main(): Promise<void> {

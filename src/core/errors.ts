@@ -31,6 +31,7 @@ export const ErrorCodes = {
   REGISTRY_DUPLICATE: 'CV_REGISTRY_DUPLICATE',
   REGISTRY_UNKNOWN_CELL: 'CV_REGISTRY_UNKNOWN_CELL',
   PACK_TOO_FEW_CELLS: 'CV_PACK_TOO_FEW_CELLS',
+  BROKER_CONFIG: 'CV_BROKER_CONFIG',
 } as const;
 
 export type ErrorCode = (typeof ErrorCodes)[keyof typeof ErrorCodes];
@@ -69,6 +70,7 @@ export function makeError(
     code === ErrorCodes.REGISTRY_CSV ||
     code === ErrorCodes.REGISTRY_DUPLICATE ||
     code === ErrorCodes.REGISTRY_UNKNOWN_CELL ||
-    code === ErrorCodes.PACK_TOO_FEW_CELLS;
+    code === ErrorCodes.PACK_TOO_FEW_CELLS ||
+    code === ErrorCodes.BROKER_CONFIG;
   return new CellvigilError(code, `${what} (${where}). ${fix}`, usage ? 2 : 1);
 }

@@ -1,3 +1,4 @@
+import type { LiveFeedEvent } from '../record/events.js';
 import { createServer, type IncomingMessage, type ServerResponse } from 'node:http';
 import { networkInterfaces } from 'node:os';
 import { performance } from 'node:perf_hooks';
@@ -46,7 +47,7 @@ export interface LiveServerOptions {
   /** Ping period; a viewer that has not answered the previous ping is cut off, ms. @default 30000 */
   pingMs?: number;
   /** Receives viewer arrivals, departures, refusals and control requests (for the event log). */
-  log?: (name: string, detail: Record<string, unknown>) => void;
+  log?: (e: LiveFeedEvent) => void;
 }
 
 export interface ViewerStats {
@@ -132,19 +133,16 @@ function urlHost(host: string): string {
  * At most 30 feed events a minute reach the event log; the rest are counted and reported in one
  * line, so someone hammering the port cannot grow the log without bound.
  */
-function throttled(
-  log: (name: string, detail: Record<string, unknown>) => void,
-  clock: Clock,
-  perMinute = 30,
-) {
+function throttled(log: (e: LiveFeedEvent) => void, clock: Clock, perMinute = 30) {
   let windowStart = clock.now();
   let count = 0;
   let suppressed = 0;
-  return (name: string, detail: Record<string, unknown>): void => {
+  return (e: LiveFeedEvent): void => {
     const now = clock.now();
     if (now - windowStart >= 60_000) {
       if (suppressed > 0)
-        log('live_events_suppressed', {
+        log({
+          event: 'live_events_suppressed',
           count: suppressed,
           seconds: Math.round((now - windowStart) / 1000),
         });
@@ -152,7 +150,7 @@ function throttled(
       count = 0;
       suppressed = 0;
     }
-    if (count++ < perMinute) log(name, detail);
+    if (count++ < perMinute) log(e);
     else suppressed++;
   };
 }
@@ -239,7 +237,8 @@ export async function startLiveServer(o: LiveServerOptions): Promise<LiveServer>
       return reply(res, 405, 'Only GET and HEAD are served here.\n');
     }
     if (!hostAllowed(req.headers.host, loopback)) {
-      log('live_refused', {
+      log({
+        event: 'live_refused',
         remote: req.socket.remoteAddress,
         path: url.pathname,
         why: 'host header names another machine',
@@ -255,7 +254,8 @@ export async function startLiveServer(o: LiveServerOptions): Promise<LiveServer>
       (file || url.pathname === '/api/state') &&
       !canView(requestToken(url, req.headers.authorization))
     ) {
-      log('live_refused', {
+      log({
+        event: 'live_refused',
         remote: req.socket.remoteAddress,
         path: url.pathname,
         why: 'viewer token missing or wrong',
@@ -289,7 +289,7 @@ export async function startLiveServer(o: LiveServerOptions): Promise<LiveServer>
     why: string,
     remote: string | undefined,
   ): void {
-    log('live_refused', { remote, path: '/live', why });
+    log({ event: 'live_refused', remote, path: '/live', why });
     socket.end(
       `HTTP/1.1 ${status} ${text}\r\nConnection: close\r\nContent-Type: text/plain\r\nContent-Length: ${Buffer.byteLength(why) + 1}\r\n\r\n${why}\n`,
     );
@@ -332,13 +332,14 @@ export async function startLiveServer(o: LiveServerOptions): Promise<LiveServer>
   function attach(ws: WebSocket, socket: Duplex, remote: string, feed: ViewerFeed): void {
     const v: Viewer = { ws, feed, socket, queue: new ViewerQueue(o.queue), remote, alive: true };
     viewers.add(v);
-    log('live_viewer_joined', { remote, viewers: viewers.size });
+    log({ event: 'live_viewer_joined', remote, viewers: viewers.size });
     let leaveWhy = 'closed by the viewer';
     ws.on('pong', () => (v.alive = true));
     ws.on('error', (e) => (leaveWhy = e.message));
     ws.on('close', (code) => {
       viewers.delete(v);
-      log('live_viewer_left', {
+      log({
+        event: 'live_viewer_left',
         remote,
         code,
         why: leaveWhy,
@@ -368,7 +369,8 @@ export async function startLiveServer(o: LiveServerOptions): Promise<LiveServer>
     if (!checked.ok) return fail(v, id, 'malformed', checked.error);
     const m = checked.value;
     if (!tokenMatches(m.token, tokens.control)) {
-      log('live_control', {
+      log({
+        event: 'live_control',
         remote: v.remote,
         request: m.type,
         ok: false,
@@ -386,7 +388,8 @@ export async function startLiveServer(o: LiveServerOptions): Promise<LiveServer>
             : { type: m.type, ...(m.cell_id !== undefined ? { cell_id: m.cell_id } : {}) };
     const r = controlFor(v, request, m.channel);
     // A request that passed the token check is always logged: it is the user's own.
-    rawLog('live_control', {
+    rawLog({
+      event: 'live_control',
       remote: v.remote,
       ...request,
       ok: r.ok,
@@ -455,7 +458,7 @@ export async function startLiveServer(o: LiveServerOptions): Promise<LiveServer>
       const step = v.queue.next(v.ws.bufferedAmount, clock.now());
       if (step === null) return;
       if ('disconnect' in step) {
-        log('live_viewer_dropped', { remote: v.remote, why: step.disconnect });
+        log({ event: 'live_viewer_dropped', remote: v.remote, why: step.disconnect });
         v.ws.terminate();
         return;
       }
@@ -503,7 +506,7 @@ export async function startLiveServer(o: LiveServerOptions): Promise<LiveServer>
       () => {
         for (const v of viewers) {
           if (!v.alive) {
-            log('live_viewer_dropped', { remote: v.remote, why: 'no answer to ping' });
+            log({ event: 'live_viewer_dropped', remote: v.remote, why: 'no answer to ping' });
             v.ws.terminate();
             continue;
           }
@@ -533,7 +536,7 @@ export async function startLiveServer(o: LiveServerOptions): Promise<LiveServer>
       resolve(),
     );
   });
-  server.on('error', (e) => log('live_error', { why: e.message }));
+  server.on('error', (e) => log({ event: 'live_error', why: e.message }));
 
   const address = server.address();
   const port = typeof address === 'object' && address !== null ? address.port : wantPort;

@@ -15,7 +15,7 @@ import {
 import { homedir } from 'node:os';
 import { dirname, join } from 'node:path';
 import { Ajv } from 'ajv';
-import { ErrorCodes, makeError } from '../core/errors.js';
+import { ErrorCodes, makeError, type ErrorCode } from '../core/errors.js';
 
 /** The two live-feed tokens: control switches the run, viewer only watches it. */
 export interface LiveTokens {
@@ -61,10 +61,30 @@ function newToken(): string {
   return randomBytes(32).toString('hex');
 }
 
-function unreadable(path: string, e: unknown): Error {
+/** What an owner-only file is called in messages, the error code, and the way out when others can read it. */
+export interface PrivateFileKind {
+  what: string;
+  /** The folder it lives in, as messages name it. */
+  folder: string;
+  code: ErrorCode;
+  /** Said after the chmod advice, e.g. "or delete it to have new tokens made". */
+  otherwise: string;
+  /** The way out when the file is not a plain file of ours. */
+  remake: string;
+}
+
+const TOKEN_FILE_KIND: PrivateFileKind = {
+  what: 'the live-feed token file',
+  folder: 'the live-feed token folder',
+  code: ErrorCodes.TOKEN_FILE,
+  otherwise: 'or delete it to have new tokens made',
+  remake: 'Delete it to have new tokens made (they are made owner-only).',
+};
+
+function unreadable(path: string, e: unknown, kind: PrivateFileKind): Error {
   return makeError(
-    ErrorCodes.TOKEN_FILE,
-    `cannot read the live-feed token file: ${(e as Error).message}`,
+    kind.code,
+    `cannot read ${kind.what}: ${(e as Error).message}`,
     path,
     'Check the file and folder permissions.',
   );
@@ -77,8 +97,8 @@ function ownUid(): number | null {
     : process.getuid();
 }
 
-function refused(path: string, what: string, fix: string): Error {
-  return makeError(ErrorCodes.TOKEN_FILE, what, path, fix);
+function refused(kind: PrivateFileKind, path: string, what: string, fix: string): Error {
+  return makeError(kind.code, what, path, fix);
 }
 
 /**
@@ -87,73 +107,81 @@ function refused(path: string, what: string, fix: string): Error {
  * may write to, unless its sticky bit is set (as on /tmp: there only a file's owner may rename
  * or delete it, and the file's own owner is checked as well).
  */
-function checkFolder(dir: string, st: Stats, uid: number): void {
+function checkFolder(dir: string, st: Stats, uid: number, kind: PrivateFileKind): void {
   if (st.uid !== uid && st.uid !== 0)
     throw refused(
+      kind,
       dir,
-      `the live-feed token folder belongs to another user (uid ${st.uid}), who could place tokens in it`,
+      `${kind.folder} belongs to another user (uid ${st.uid}), who could place tokens in it`,
       'Use a folder of your own: set CELLVIGIL_HOME, or fix the owner of this one.',
     );
   const sticky = (st.mode & 0o1000) !== 0;
   if ((st.mode & 0o022) !== 0 && !sticky)
     throw refused(
+      kind,
       dir,
-      `the live-feed token folder can be written by other users (mode ${(st.mode & 0o777).toString(8)}), who could place tokens in it`,
+      `${kind.folder} can be written by other users (mode ${(st.mode & 0o777).toString(8)}), who could place tokens in it`,
       `Run chmod go-w '${dir}' (or chmod 700), or set CELLVIGIL_HOME to a folder of your own.`,
     );
 }
 
 /** Refuses a token file that is not a plain file of ours, or that others can read or change. */
-function checkFile(path: string, st: Stats, uid: number | null): void {
+function checkFile(path: string, st: Stats, uid: number | null, kind: PrivateFileKind): void {
   if (!st.isFile())
     throw refused(
+      kind,
       path,
-      'the live-feed token file is not a regular file (a link or a device)',
-      'Delete it to have new tokens made.',
+      `${kind.what} is not a regular file (a link or a device)`,
+      kind.remake,
     );
   if (uid !== null && st.uid !== uid)
     throw refused(
+      kind,
       path,
-      `the live-feed token file belongs to another user (uid ${st.uid}), who could have chosen its tokens`,
-      'Delete it to have new tokens made (they are made owner-only).',
+      `${kind.what} belongs to another user (uid ${st.uid}), who could have chosen its tokens`,
+      kind.remake,
     );
   if (uid !== null && (st.mode & 0o077) !== 0)
     throw refused(
+      kind,
       path,
-      `the live-feed token file can be read or changed by other users (mode ${(st.mode & 0o777).toString(8)})`,
-      `Run chmod 600 '${path}' if nobody else could have read it, or delete it to have new tokens made.`,
+      `${kind.what} can be read or changed by other users (mode ${(st.mode & 0o777).toString(8)})`,
+      `Run chmod 600 '${path}' if nobody else could have read it, ${kind.otherwise}.`,
     );
 }
 
 /** The folder's status, or null when it does not exist yet; an unsafe folder is refused. */
-function safeFolder(dir: string): Stats | null {
+function safeFolder(dir: string, kind: PrivateFileKind): Stats | null {
   let st: Stats;
   try {
     st = statSync(dir);
   } catch (e) {
     if ((e as NodeJS.ErrnoException).code === 'ENOENT') return null;
-    throw unreadable(dir, e);
+    throw unreadable(dir, e, kind);
   }
   const uid = ownUid();
-  if (uid !== null) checkFolder(dir, st, uid);
+  if (uid !== null) checkFolder(dir, st, uid, kind);
   return st;
 }
 
 /** The file's text, or null when there is none; refuses a file someone else could have placed or read. */
-function readPrivateFile(path: string): string | null {
-  if (safeFolder(dirname(path)) === null) return null;
+export function readPrivateFile(
+  path: string,
+  kind: PrivateFileKind = TOKEN_FILE_KIND,
+): string | null {
+  if (safeFolder(dirname(path), kind) === null) return null;
   let st: Stats;
   try {
     st = lstatSync(path);
   } catch (e) {
     if ((e as NodeJS.ErrnoException).code === 'ENOENT') return null;
-    throw unreadable(path, e);
+    throw unreadable(path, e, kind);
   }
-  checkFile(path, st, ownUid());
+  checkFile(path, st, ownUid(), kind);
   try {
     return readFileSync(path, 'utf8');
   } catch (e) {
-    throw unreadable(path, e);
+    throw unreadable(path, e, kind);
   }
 }
 

@@ -1,6 +1,5 @@
 import { ErrorCodes, makeError } from '../core/errors.js';
-import { exitCodeFor } from '../run/result.js';
-import { SAFETY_END_REASONS, type SessionEnd } from '../session/session-types.js';
+import { exitCodeForResult } from '../record/result.js';
 import type { LiveAlarm, LiveRunInfo, LiveSample, ServerMessage } from './live-types.js';
 
 /** What the terminal viewer shows, folded from the live-feed messages. Pure. */
@@ -71,17 +70,7 @@ export function applyMessage(view: WatchView, m: ServerMessage): boolean {
   }
 }
 
-const END_REASONS = new Set<string>(['cutoff', 'stopped', 'refused', ...SAFETY_END_REASONS]);
-
-/** The run's exit code from result.json's end_reason (and end_detail), the daemon's own mapping. */
-export function exitCodeForResult(result: Record<string, unknown>): number {
-  const reason = result.end_reason;
-  if (typeof reason !== 'string' || !END_REASONS.has(reason)) return 1;
-  return exitCodeFor(
-    reason as SessionEnd,
-    typeof result.end_detail === 'string' ? result.end_detail : '',
-  );
-}
+export { exitCodeForResult };
 
 function fixed(x: number | null | undefined, digits: number): string {
   return typeof x === 'number' && Number.isFinite(x) ? x.toFixed(digits) : '–';
@@ -148,7 +137,8 @@ export function statusLine(v: WatchView): string {
 
 /**
  * The WebSocket address for what a person types: http(s)://host:port/ becomes ws(s)://…/live,
- * a bare host:port gets ws://, and `token` (when given) is added as ?token=.
+ * a bare host:port gets ws://, and `token` (when given) is added as ?token=. A fleet view's
+ * channel address (/channel?station=…&ch=…) keeps its station and channel.
  */
 export function liveSocketUrl(input: string, token?: string): string {
   const text = /^[a-z][a-z0-9+.-]*:\/\//i.test(input) ? input : `http://${input}`;
@@ -180,5 +170,10 @@ export function liveSocketUrl(input: string, token?: string): string {
   const out = new URL(`${scheme}//${u.host}/live`);
   const t = token ?? u.searchParams.get('token');
   if (t) out.searchParams.set('token', t);
+  // A fleet view's channel page names its station and channel; its /live socket needs them.
+  for (const k of ['station', 'ch']) {
+    const x = u.searchParams.get(k);
+    if (x !== null) out.searchParams.set(k, x);
+  }
   return out.toString();
 }

@@ -5,8 +5,8 @@
 import { readFile } from 'node:fs/promises';
 import { basename, join } from 'node:path';
 import { CellvigilError } from '../core/errors.js';
-import { readResultFile } from '../replay/run-json.js';
-import { parseManifest } from '../replay/run-manifest.js';
+import { readResultFile } from '../record/result.js';
+import { parseManifest } from '../record/manifest.js';
 import { recordFromResult, type ResultFigures, type RunRecord } from './run-record.js';
 
 export type RunSourceOutcome =

@@ -5,13 +5,12 @@
  */
 import { readdir, readFile, stat } from 'node:fs/promises';
 import { basename, join } from 'node:path';
-import { Ajv } from 'ajv';
 import { ErrorCodes, makeError } from '../core/errors.js';
-import type { EventRecord } from '../run/event-log.js';
-import type { RunResult } from '../run/result.js';
+import { CHECKPOINT_FILE, readCheckpointFile, type Checkpoint } from '../record/checkpoint.js';
+import { EVENTS_FILE, parseEventLine, type LoggedEvent } from '../record/event-log.js';
+import { MANIFEST_FILE, parseManifest, type RunManifest } from '../record/manifest.js';
+import { readResultFile, RESULT_FILE, type RunResult } from '../record/result.js';
 import { readLineBatchesRaw, readLines, type TextLine } from './line-reader.js';
-import { readCheckpointFile, readResultFile, type Checkpoint } from './run-json.js';
-import { parseManifest, type RunManifest } from './run-manifest.js';
 import {
   blankSampleRecord,
   SampleReader,
@@ -66,7 +65,7 @@ export async function openRunFolder(dir: string): Promise<RunFolder> {
       'Give the path of a folder written by `cellvigil run` (runs/<date>-<time>-<label>).',
     );
   }
-  const manifestPath = join(dir, 'manifest.json');
+  const manifestPath = join(dir, MANIFEST_FILE);
   let manifestText: string;
   try {
     manifestText = await readFile(manifestPath, 'utf8');
@@ -81,8 +80,8 @@ export async function openRunFolder(dir: string): Promise<RunFolder> {
   const manifest = parseManifest(manifestText, manifestPath);
   const notes: string[] = [];
   const sampleFiles = await listSampleFiles(dir, names, manifest.samples.prefix, notes);
-  const result = await readResultFile(join(dir, 'result.json'));
-  const checkpoint = await readCheckpointFile(join(dir, 'checkpoint.json'));
+  const result = await readResultFile(join(dir, RESULT_FILE));
+  const checkpoint = await readCheckpointFile(join(dir, CHECKPOINT_FILE));
   if (sampleFiles.length === 0) {
     const frames = result?.frames_accepted ?? checkpoint?.frames_accepted ?? 0;
     if (frames > 0) {
@@ -103,7 +102,7 @@ export async function openRunFolder(dir: string): Promise<RunFolder> {
     sampleFiles,
     result,
     checkpoint,
-    eventsPath: names.includes('events.jsonl') ? join(dir, 'events.jsonl') : null,
+    eventsPath: names.includes(EVENTS_FILE) ? join(dir, EVENTS_FILE) : null,
     notes,
   };
 }
@@ -271,42 +270,24 @@ async function* visitRunSamples(
   }
 }
 
-const validateEvent = new Ajv({ strict: true }).compile({
-  type: 'object',
-  required: ['host_s', 'event'],
-  properties: {
-    host_s: { type: 'number' },
-    wall_time: { type: 'string' },
-    event: { type: 'string', minLength: 1 },
-  },
-});
-
 /** Every event of the run, in order; a last line cut off by an interruption is left out and reported. */
 export async function* readRunEvents(
   run: RunFolder,
   o: { onCutLine?: (cut: CutLine) => void } = {},
-): AsyncGenerator<EventRecord> {
+): AsyncGenerator<LoggedEvent> {
   if (run.eventsPath === null) return;
   for await (const line of readLines(run.eventsPath)) {
-    let data: unknown;
-    let problem: string | null = null;
-    try {
-      data = JSON.parse(line.text);
-      if (!validateEvent(data))
-        problem = `not an event: ${validateEvent.errors?.[0]?.message ?? 'invalid'}`;
-    } catch (e) {
-      problem = `not JSON: ${(e as Error).message}`;
-    }
-    if (problem === null) {
-      yield data as EventRecord;
+    const parsed = parseEventLine(line.text);
+    if (parsed.ok) {
+      yield parsed.event;
     } else if (!line.terminated) {
-      o.onCutLine?.({ file: 'events.jsonl', line: line.number });
+      o.onCutLine?.({ file: EVENTS_FILE, line: line.number });
     } else {
       throw makeError(
         ErrorCodes.RUN_DATA,
-        `an event line is ${problem}`,
-        `${join(basename(run.dir), 'events.jsonl')} line ${line.number}`,
-        'Each line of events.jsonl is one JSON object with host_s and event; restore the file or delete the damaged line.',
+        `an event line is ${parsed.problem}`,
+        `${join(basename(run.dir), EVENTS_FILE)} line ${line.number}`,
+        'Each line of events.jsonl is one JSON object with host_s, wall_time, event and the fields of its kind (docs/run-folder.md); restore the file or delete the damaged line.',
       );
     }
   }

@@ -3,30 +3,8 @@
  * name, the events worth listing (up to a limit), how the run ended, where it was resumed, and
  * the rejected-line count.
  */
-import type { EventRecord } from '../run/event-log.js';
-import { SAFETY_END_REASONS } from '../session/session-types.js';
-
-/** Events that call for attention in the report. */
-const ALARMS = new Set([
-  'clock_warning',
-  'frames_lost',
-  'gap',
-  'rig_restart',
-  'rig_error',
-  'load_off_unconfirmed',
-  'link_closed',
-  'cutoff_refused',
-  'load_found_on',
-  'frame_rejected',
-  'rejected_summary',
-  'signal',
-  'unlogged_discharge',
-  'calibration_rejected',
-  'implausible_reading',
-  'implausible_summary',
-  'open_load',
-]);
-const SAFETY_ENDS = new Set<string>(SAFETY_END_REASONS);
+import type { LoggedEvent } from '../record/event-log.js';
+import { flaggedInReport } from '../record/events.js';
 
 export interface ListedEvent {
   hostS: number;
@@ -79,29 +57,11 @@ export class EventDigest {
 
   constructor(private readonly maxListed = 400) {}
 
-  add(e: EventRecord): void {
+  add(e: LoggedEvent): void {
     const r = this.r;
-    const { host_s: hostS, wall_time: _wall, event: name, ...rest } = e;
+    const name = e.event === 'foreign' ? e.name : e.event;
     r.counts[name] = (r.counts[name] ?? 0) + 1;
-    if (name === 'resumed') r.resumptions.push({ atS: hostS, unloggedS: 0 });
-    const resumption = r.resumptions.at(-1);
-    if (name === 'unlogged_discharge' && resumption && typeof rest['estimated_s'] === 'number')
-      resumption.unloggedS = rest['estimated_s'];
-    if (name === 'run_ended') {
-      r.end = {
-        reason: String(rest['end_reason'] ?? 'stopped'),
-        detail: String(rest['detail'] ?? ''),
-        loadOffConfirmed: rest['load_off_confirmed'] !== false,
-      };
-    }
-    if (name === 'cutoff_changed' && typeof rest['cutoff_V'] === 'number')
-      r.cutoffChanges.push({ hostS, cutoffV: rest['cutoff_V'] });
-    if (name === 'frame_rejected') r.rejectedLines++;
-    if (name === 'rejected_summary') {
-      const by = rest['not_logged_by_reason'];
-      if (by && typeof by === 'object')
-        for (const v of Object.values(by)) r.rejectedLines += typeof v === 'number' ? v : 0;
-    }
+    this.follow(e);
     // Commands repeat what the state changes say; the cautions have their own section.
     const quiet =
       (name === 'frame_rejected' && r.counts[name]! > REJECTED_LISTED) ||
@@ -111,9 +71,42 @@ export class EventDigest {
       r.unlisted++;
       return;
     }
-    const alarm =
-      ALARMS.has(name) || (name === 'run_ended' && SAFETY_ENDS.has(String(rest['end_reason'])));
-    r.listed.push({ hostS, name, alarm, detail: compact(rest) });
+    const { host_s: hostS, wall_time: _wall, event: _event, ...rest } = e;
+    const fields = e.event === 'foreign' ? e.fields : rest;
+    r.listed.push({ hostS, name, alarm: flaggedInReport(e), detail: compact(fields) });
+  }
+
+  /** The events whose fields the report uses. */
+  private follow(e: LoggedEvent): void {
+    const r = this.r;
+    switch (e.event) {
+      case 'resumed':
+        r.resumptions.push({ atS: e.host_s, unloggedS: 0 });
+        break;
+      case 'unlogged_discharge': {
+        const resumption = r.resumptions.at(-1);
+        if (resumption) resumption.unloggedS = e.estimated_s;
+        break;
+      }
+      case 'run_ended':
+        r.end = {
+          reason: e.end_reason,
+          detail: e.detail,
+          loadOffConfirmed: e.load_off_confirmed,
+        };
+        break;
+      case 'cutoff_changed':
+        r.cutoffChanges.push({ hostS: e.host_s, cutoffV: e.cutoff_V });
+        break;
+      case 'frame_rejected':
+        r.rejectedLines++;
+        break;
+      case 'rejected_summary':
+        for (const v of Object.values(e.not_logged_by_reason)) r.rejectedLines += v;
+        break;
+      default:
+        break;
+    }
   }
 
   result(): EventDigestResult {
@@ -129,7 +122,7 @@ function shorten(v: unknown): string {
   );
 }
 
-function compact(rest: Record<string, unknown>): string {
+function compact(rest: object): string {
   const parts = Object.entries(rest).map(([k, v]) => `${k}: ${shorten(v)}`);
   const s = parts.join('; ');
   return s.length > 300 ? `${s.slice(0, 297)}…` : s;

@@ -5,7 +5,7 @@
  */
 import { basename } from 'node:path';
 import type { FigureUncertainty } from '../results/uncertainty.js';
-import { cautionLines } from '../run/cautions.js';
+import { cautionLines } from '../chemistry/cautions.js';
 import type { ResistanceMethod, ResistanceSummary } from './dc-resistance.js';
 import { page, section, VOLTAGE_COLOUR } from './html-page.js';
 import { eventRowHtml, eventRows } from './html-events.js';

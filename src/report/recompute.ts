@@ -4,23 +4,27 @@
  * daemon uses. `RunRecompute` is the pure core fed one row at a time; `recomputeRun` streams a
  * run folder through it.
  */
-import { applyCalibration, type Calibration, type Corrector } from '../calibration/calibration.js';
+import { applyCalibration, type Calibration } from '../calibration/calibration.js';
 import { AnalogChain } from '../chain/analog-chain.js';
 import { packageVersion } from '../core/paths.js';
-import { FLAG_LOAD_ON } from '../protocol/messages.js';
+import {
+  emptyFrameValues,
+  FrameMeasure,
+  type FrameTime,
+  type FrameValues,
+} from '../measure/frame-measure.js';
 import { forEachRunSample, readRunEvents, type RunFolder } from '../replay/run-folder.js';
-import type { Checkpoint } from '../replay/run-json.js';
-import type { RunManifest } from '../replay/run-manifest.js';
+import type { Checkpoint } from '../record/checkpoint.js';
+import type { RunManifest } from '../record/manifest.js';
 import type { SampleRecord } from '../replay/sample-csv.js';
 import { runUncertainty } from '../results/uncertainty.js';
-import { buildResult, CLOCK_WARN_PPM, type RunResult } from '../run/result.js';
+import { buildResult, CLOCK_WARN_PPM, type RunResult } from '../record/result.js';
 import { Integrator } from '../session/integrator.js';
 import { Plausibility, plausibilityFor } from '../session/plausibility.js';
-import { RateEstimator } from '../timebase/rate-estimator.js';
-import { Unwrapper } from '../timebase/unwrap.js';
+import type { SessionEnd } from '../session/session-types.js';
 import { CurveBuilder, loadedVoltageAtCharge, type CurveBucket, type CurvePoint } from './curve.js';
 import { DcResistanceTracker, type ResistanceSummary } from './dc-resistance.js';
-import { EventDigest, type EventDigestResult } from './event-digest.js';
+import { EventDigest, type EventDigestResult, type RunEnd } from './event-digest.js';
 import { ratedCapacityVerdict, type Verdict } from './verdicts.js';
 import { VoltageSteps, type VoltageStepRow } from './voltage-steps.js';
 
@@ -40,9 +44,7 @@ export interface RecomputeOptions {
 }
 
 /** result.json as a recompute writes it: the daemon's keys and a few more. */
-export type RecomputedResult = Omit<RunResult, 'end_reason'> & {
-  /** `interrupted`: the run has no result and no end in its event log. */
-  end_reason: RunResult['end_reason'] | 'interrupted';
+export type RecomputedResult = RunResult & {
   midpoint_voltage_V: number | null;
   average_current_A: number | null;
   rated_Ah: number | null;
@@ -110,16 +112,12 @@ export interface RunFigures {
   notes: string[];
 }
 
-/** Frames this far apart on the host clock are a gap (the daemon's time base flags the same). */
-const LONG_GAP_MS = 2000;
 /** Loaded current steps larger than this (relative) are load changes, not noise. */
 const LEVEL_CHANGE = 0.2;
 /** The first seconds after switch-on, left out of the current range (contact settling). */
 const SETTLE_S = 5;
 /** Distinct codes tracked for the quantisation term; beyond this they are plenty anyway. */
 const MAX_CODES = 65536;
-/** Thermistor counts remembered with their °C, by the count's low bits. */
-const CELSIUS_SLOTS = 4096;
 const rn = (x: number | null, digits: number): number | null =>
   x === null || !Number.isFinite(x) ? null : Number(x.toFixed(digits));
 
@@ -157,7 +155,16 @@ const CHECKED_STATES = new Set(['starting', 'discharging', 'stopping', 'ended'])
 
 export class RunRecompute {
   private readonly chain: AnalogChain;
-  private readonly corrector: Corrector;
+  private readonly frames: FrameMeasure;
+  private readonly values: FrameValues = emptyFrameValues();
+  private readonly stamp: FrameTime = {
+    runMs: 0,
+    hostMs: 0,
+    dtMs: 0,
+    lost: 0,
+    gap: false,
+    rigRestart: false,
+  };
   private readonly integrator = new Integrator();
   /** The live run's check of readings that cannot be true, applied to the same rows. */
   private readonly plausibility: Plausibility;
@@ -166,9 +173,6 @@ export class RunRecompute {
   private readonly curve = new CurveBuilder();
   private readonly steps: VoltageSteps;
   private readonly resistance = new DcResistanceTracker({ levelChange: LEVEL_CHANGE });
-  private readonly rate = new RateEstimator();
-  private readonly ticks = new Unwrapper(2 ** 32);
-  private readonly seqs = new Unwrapper(65536);
   private readonly noiseI = new DiffNoise();
   private readonly noiseV = new DiffNoise();
   private readonly codesI = new DistinctCodes();
@@ -184,15 +188,10 @@ export class RunRecompute {
     celsius: 0,
     loadOn: false,
   };
-  /** °C by thermistor count, for the last count seen in each slot: the count wanders over a few values, each a logarithm to work out. */
-  private readonly celsiusCounts = new Float64Array(CELSIUS_SLOTS).fill(-1);
-  private readonly celsiusValues = new Float64Array(CELSIUS_SLOTS);
   private lastId: string | null = null;
   private readonly stepPerCellV: number;
   private rows = 0;
   private ended = false;
-  private nominalAh = 0;
-  private prevNominalA = 0;
   private prev: {
     hostMs: number;
     loadOn: boolean;
@@ -229,7 +228,7 @@ export class RunRecompute {
     private readonly o: Omit<RecomputeOptions, 'calibration' | 'onProgress'> = {},
   ) {
     this.chain = new AnalogChain(manifest.rig.profile);
-    this.corrector = applyCalibration(calibration);
+    this.frames = new FrameMeasure(this.chain, applyCalibration(calibration));
     this.plausibility = new Plausibility(
       plausibilityFor({
         maxRestVPerCell: manifest.chemistry.profile.max_rest_V_per_cell.value,
@@ -250,10 +249,7 @@ export class RunRecompute {
     this.digest.add(e);
   }
 
-  /**
-   * The session's verdict on a row's readings: checked in the states it checks them in (the
-   * row holds the state after its frame, which for a checked frame is one of these too).
-   */
+  /** One row, read and not kept: the caller may reuse the record. */
   private plausible(
     state: string,
     atMs: number,
@@ -271,36 +267,62 @@ export class RunRecompute {
     return this.plausibility.check(x).plausible;
   }
 
-  /** One row, read and not kept: the caller may reuse the record. */
   sample(s: Readonly<SampleRecord>): void {
     this.rows++;
     if (s.calibrationId !== this.lastId) {
       this.lastId = s.calibrationId;
       this.liveIds.add(s.calibrationId);
     }
-    const c = this.corrector;
-    const chain = this.chain;
-    const nominalA = chain.amps(s.iRaw);
-    const volts = c.voltage(chain.volts(s.vRaw));
-    const amps = c.current(nominalA);
-    const slot = s.tRaw & (CELSIUS_SLOTS - 1);
-    let celsius = this.celsiusValues[slot]!;
-    if (this.celsiusCounts[slot] !== s.tRaw) {
-      celsius =
-        chain.thermistorState(s.tRaw) === 'ok' ? c.temperature(chain.celsius(s.tRaw)) : Number.NaN;
-      this.celsiusCounts[slot] = s.tRaw;
-      this.celsiusValues[slot] = celsius;
-    }
-    const loadOn = (s.flags & FLAG_LOAD_ON) !== 0;
-    const hostMs = s.hostS * 1000;
+    const v = this.frames.values(s, this.values);
+    // Logged to the millisecond: whole milliseconds, as the daemon integrated them.
+    const hostMs = Math.round(s.hostS * 1000);
     const prev = this.prev;
-    // A new segment where the daemon resumed the run (or the host clock went back): nothing is
-    // bridged across the time it was down; its own estimate of what flowed meanwhile is added.
+    const fresh = prev === null || this.resumedBefore(hostMs);
+    const t = this.stamp;
+    t.runMs = hostMs;
+    this.frames.restamp(s, t);
+    if (t.rigRestart) this.rigRestarts++;
+    this.lost += t.lost;
+    if (t.gap) this.gaps++;
+    // The row's values as the measures, the curve and the resistance tracker take them: in one
+    // object filled in place rather than as arguments (doubles passed to a call are boxed).
+    const point = this.point;
+    point.hostS = s.hostS;
+    point.volts = v.volts;
+    point.amps = v.amps;
+    point.celsius = v.celsius;
+    point.loadOn = v.loadOn;
+    const integrate = this.integrates(s, prev);
+    if (integrate && !this.plausible(s.state, hostMs, v.volts, v.amps, v.loadOn)) {
+      // Left out as the live run left it: its time held at the last trusted reading.
+      this.integrator.hold(t.dtMs, v.loadOn);
+    } else if (integrate) {
+      this.integrator.add(t.dtMs, v.volts, v.amps, v.loadOn, t.gap);
+      this.frames.integrateNominal(v, t.dtMs);
+      this.followLiveTotals(s);
+      this.measure(s, prev, point, fresh);
+      this.lastWall = s.wallTime;
+    }
+    point.chargeAh = this.integrator.chargeAh;
+    point.energyWh = this.integrator.energyWh;
+    this.resistance.add(point);
+    this.curve.add(point);
+    this.keepPrev(s, hostMs, v);
+    if (this.rows === 1) this.firstHostS = s.hostS;
+    this.lastHostS = s.hostS;
+  }
+
+  /**
+   * A new segment where the daemon resumed the run (or the host clock went back): as in the
+   * daemon, the measure starts afresh, nothing is bridged across the time it was down, and its
+   * own estimate of what flowed meanwhile is added.
+   */
+  private resumedBefore(hostMs: number): boolean {
+    const prev = this.prev!;
     const resumptions = this.digest.result().resumptions;
     let unloggedS = 0;
-    let resumed = prev !== null && hostMs < prev.hostMs;
+    let resumed = hostMs < prev.hostMs;
     while (
-      prev !== null &&
       this.nextResumption < resumptions.length &&
       resumptions[this.nextResumption]!.atS * 1000 <= hostMs
     ) {
@@ -310,96 +332,64 @@ export class RunRecompute {
         unloggedS += r.unloggedS;
       }
     }
-    if (resumed) {
-      const integ = this.integrator;
-      integ.restore({
-        chargeAh: integ.chargeAh,
-        energyWh: integ.energyWh,
-        onMs: integ.onMs,
-        bridgedAh: integ.bridgedAh,
-      });
-      if (unloggedS > 0 && !this.ended) {
-        integ.addUnlogged(unloggedS * 1000, prev!.volts, prev!.amps);
-        this.nominalAh += this.chain.amps(prev!.iRaw) * (unloggedS / 3600);
-      }
-      this.prevNominalA = 0;
+    if (!resumed) return false;
+    const integ = this.integrator;
+    integ.restore({
+      chargeAh: integ.chargeAh,
+      energyWh: integ.energyWh,
+      onMs: integ.onMs,
+      bridgedAh: integ.bridgedAh,
+    });
+    if (unloggedS > 0 && !this.ended) {
+      integ.addUnlogged(unloggedS * 1000, prev.volts, prev.amps);
+      this.frames.addUnloggedNominal(this.chain.amps(prev.iRaw), unloggedS * 1000);
     }
-    const fresh = prev === null || resumed;
-    const dtMs = fresh ? 0 : hostMs - prev.hostMs;
-    // The row's values as the measures, the curve and the resistance tracker take them: in one
-    // object filled in place rather than as arguments (doubles passed to a call are boxed).
-    const point = this.point;
-    point.hostS = s.hostS;
-    point.volts = volts;
-    point.amps = amps;
-    point.celsius = celsius;
-    point.loadOn = loadOn;
+    this.frames.newSegment();
+    return true;
+  }
 
-    const tick = this.ticks.next(s.tickMs);
-    const tickStep = this.ticks.step;
-    this.seqs.next(s.seq);
-    const seqStep = this.seqs.step;
-    const rigRestart = tickStep !== null && tickStep < 0;
-    if (rigRestart) {
-      this.rigRestarts++;
-      this.ticks.reset();
-      this.seqs.reset();
-      this.ticks.next(s.tickMs);
-      this.seqs.next(s.seq);
-      this.rate.reset();
-      this.rate.add(s.tickMs, hostMs);
-    } else {
-      this.rate.add(tick, hostMs);
-      if (!fresh) this.lost += Math.max(0, (seqStep ?? 1) - 1);
-    }
-    const gap = !fresh && (dtMs > LONG_GAP_MS || rigRestart);
-    if (gap) this.gaps++;
+  /**
+   * The row that shows the end was integrated only when its frame ended the run; a run ended by
+   * the rig's acknowledgement between frames left it out, and its logged totals did not move.
+   */
+  private integrates(s: Readonly<SampleRecord>, prev: RunRecompute['prev']): boolean {
+    if (this.ended) return false;
+    if (s.state !== 'ended') return true;
+    this.ended = true;
+    const live = this.liveTotals;
+    return (
+      live === null || !prev?.loadOn || s.chargeAh !== live.chargeAh || s.energyWh !== live.energyWh
+    );
+  }
 
-    // The row that shows the end was integrated only when its frame ended the run; a run ended
-    // by the rig's acknowledgement between frames left it out, and its logged totals did not move.
-    let integrate = !this.ended;
-    if (integrate && s.state === 'ended') {
-      this.ended = true;
-      const live = this.liveTotals;
-      integrate =
-        live === null ||
-        !prev?.loadOn ||
-        s.chargeAh !== live.chargeAh ||
-        s.energyWh !== live.energyWh;
-    }
-    if (integrate && !this.plausible(s.state, hostMs, volts, amps, loadOn)) {
-      // Left out as the live run left it: its time held at the last trusted reading.
-      this.integrator.hold(dtMs, loadOn);
-    } else if (integrate) {
-      this.integrator.add(dtMs, volts, amps, loadOn, gap);
-      const onA = loadOn ? nominalA : 0;
-      this.nominalAh += ((this.prevNominalA + onA) / 2) * (dtMs / 3_600_000);
-      this.prevNominalA = onA;
-      if (this.liveTotals === null)
-        this.liveTotals = { chargeAh: s.chargeAh, energyWh: s.energyWh };
-      else {
-        this.liveTotals.chargeAh = s.chargeAh;
-        this.liveTotals.energyWh = s.energyWh;
-      }
-      this.measure(s, prev, point, fresh);
-      this.lastWall = s.wallTime;
-    }
-    point.chargeAh = this.integrator.chargeAh;
-    point.energyWh = this.integrator.energyWh;
-    this.resistance.add(point);
-    this.curve.add(point);
-    // One object for the whole run, updated in place: a new one per row is garbage per row.
-    if (prev === null) this.prev = { hostMs, loadOn, vRaw: s.vRaw, iRaw: s.iRaw, volts, amps };
+  private followLiveTotals(s: Readonly<SampleRecord>): void {
+    if (this.liveTotals === null) this.liveTotals = { chargeAh: s.chargeAh, energyWh: s.energyWh };
     else {
-      prev.hostMs = hostMs;
-      prev.loadOn = loadOn;
-      prev.vRaw = s.vRaw;
-      prev.iRaw = s.iRaw;
-      prev.volts = volts;
-      prev.amps = amps;
+      this.liveTotals.chargeAh = s.chargeAh;
+      this.liveTotals.energyWh = s.energyWh;
     }
-    if (this.rows === 1) this.firstHostS = s.hostS;
-    this.lastHostS = s.hostS;
+  }
+
+  /** One object for the whole run, updated in place: a new one per row is garbage per row. */
+  private keepPrev(s: Readonly<SampleRecord>, hostMs: number, v: Readonly<FrameValues>): void {
+    const prev = this.prev;
+    if (prev === null) {
+      this.prev = {
+        hostMs,
+        loadOn: v.loadOn,
+        vRaw: s.vRaw,
+        iRaw: s.iRaw,
+        volts: v.volts,
+        amps: v.amps,
+      };
+      return;
+    }
+    prev.hostMs = hostMs;
+    prev.loadOn = v.loadOn;
+    prev.vRaw = s.vRaw;
+    prev.iRaw = s.iRaw;
+    prev.volts = v.volts;
+    prev.amps = v.amps;
   }
 
   private measure(
@@ -464,14 +454,12 @@ export class RunRecompute {
     const integ = this.integrator;
     const hours = integ.onMs / 3_600_000;
     const avgA = hours > 0 ? integ.chargeAh / hours : null;
-    const ratedAh = this.o.ratedAh ?? null;
     const cutoffV = ev.cutoffChanges.at(-1)?.cutoffV ?? m.cutoff_V;
     const rejected =
       ctx.original?.frames_rejected ??
       Math.max(ctx.checkpoint?.frames_rejected ?? 0, ev.rejectedLines);
-    const errorPpm = this.rate.errorPpm();
+    const errorPpm = this.frames.rigClockErrorPpm();
     const resistance = this.resistance.result();
-    const on = resistance.switch_on?.first ?? null;
     const end =
       ev.end ??
       (ctx.original
@@ -482,117 +470,75 @@ export class RunRecompute {
           }
         : null);
 
-    // Noise from raw counts, turned into corrected units through the chain and the calibration's gain.
-    const sdI = this.noiseI.sd();
-    const sdV = this.noiseV.sd();
-    const gainI = cal?.current?.fit.gain ?? 1;
-    const gainV = cal?.voltage?.fit.gain ?? 1;
-    const noiseA = sdI === null ? null : sdI * this.chain.ampsPerCount * gainI;
-    const noiseV = sdV === null ? null : sdV * this.chain.voltsPerCount * gainV;
-    // Noise below half a count does not dither the ADC: only distinct codes round independently.
-    const quantisationSamples = {
-      current: sdI !== null && sdI >= 0.5 ? this.loadedFrames : this.codesI.size,
-      voltage: sdV !== null && sdV >= 0.5 ? this.loadedFrames : this.codesV.size,
-    };
+    const base = this.baseResult(end, cutoffV, rejected, errorPpm, resistance);
+    const noise = this.noise(cal);
+    const uncertainty = this.uncertainty(cal, base.mean_voltage_V, noise);
 
-    const base = buildResult({
-      end:
-        end && end.reason !== 'interrupted' ? (end.reason as RunResult['end_reason']) : 'stopped',
-      detail:
-        end?.detail ??
-        'interrupted: the run folder has no result and its event log no end; figures are from the rows written',
-      loadOffConfirmed: end?.loadOffConfirmed ?? false,
-      chargeAh: integ.chargeAh,
-      energyWh: integ.energyWh,
-      onMs: integ.onMs,
-      bridgedAh: integ.bridgedAh,
-      nominalAh: this.nominalAh,
-      loadedSamples: this.loadedFrames,
-      lastLoadedV: Number.isNaN(this.lastLoadedV) ? null : this.lastLoadedV,
-      cutoffV,
-      counters: { accepted: this.rows, rejected, lost: this.lost },
-      implausibleFrames: this.plausibility.implausibleFrames,
-      rigClockErrorPpm: errorPpm,
-      calibration: cal,
-      calibrationId: cal?.id ?? 'none',
-      ampsPerCount: this.chain.ampsPerCount,
-      voltsPerCount: this.chain.voltsPerCount,
-      chemistry: m.chemistry.id,
-      cells: m.cells,
-      openCircuitV: on?.uBeforeV ?? null,
-      dcResistanceOhm: on?.ohm ?? null,
-      gaps: this.gaps,
-      startedWallMs: Date.parse(m.started_wall),
-      endedWallMs: this.lastWall !== null ? Date.parse(this.lastWall) : Date.parse(m.started_wall),
-      schedule: m.schedule?.description ?? null,
-    });
-    const uncertainty = runUncertainty({
-      chargeAh: integ.chargeAh,
-      energyWh: integ.energyWh,
-      nominalAh: this.nominalAh,
-      onS: integ.onMs / 1000,
-      samples: this.loadedFrames,
-      ampsPerCount: this.chain.ampsPerCount,
-      voltsPerCount: this.chain.voltsPerCount,
-      meanVoltageV: base.mean_voltage_V ?? 0,
-      bridgedAh: integ.bridgedAh,
-      calibration: cal,
-      ...(noiseA !== null ? { currentNoiseA: noiseA } : {}),
-      ...(noiseV !== null ? { voltageNoiseV: noiseV } : {}),
-      quantisationSamples,
-    });
-
-    const startC = this.startC;
-    const minA = Number.isFinite(this.minA) ? this.minA : null;
-    const maxA = Number.isFinite(this.maxA) ? this.maxA : null;
-    const verdict = ratedCapacityVerdict({
-      chemistryId: m.chemistry.id,
-      cells: m.cells,
-      cutoffPerCellV: cutoffV / m.cells,
-      ratedAh,
-      averageCurrentA: avgA ?? 0,
-      minCurrentA: minA ?? avgA ?? 0,
-      maxCurrentA: maxA ?? avgA ?? 0,
-      durationS: integ.onMs / 1000,
-      endReason: end?.reason ?? 'interrupted',
-      startTemperatureC: startC,
-      loadSwitchOns: this.switchOns,
-      ...(this.o.rateTolerance !== undefined ? { rateTolerance: this.o.rateTolerance } : {}),
-    });
+    const { verdict, minA, maxA } = this.verdict(cutoffV, avgA, end?.reason ?? 'interrupted');
     const steps = this.steps.rows();
     const midpoint =
       integ.chargeAh > 0 ? loadedVoltageAtCharge(this.curve.buckets, integ.chargeAh / 2) : null;
 
     const liveIds = [...this.liveIds];
     const appliedId = cal?.id ?? 'none';
-    if (liveIds.some((id) => id !== appliedId)) {
-      notes.push(
-        `The live run made its rows with calibration ${liveIds.join(', ')}; this recompute applies ${appliedId} to every row.`,
-      );
-    } else if (this.liveTotals && integ.chargeAh > 0) {
-      const d = integ.chargeAh / this.liveTotals.chargeAh - 1;
-      notes.push(
-        `Same calibration as the live run: the recomputed capacity differs from the live total in the log by ${(d * 100).toExponential(1)} %.`,
-      );
-    }
-    if (ctx.cutLines > 0)
-      notes.push(
-        `${ctx.cutLines} line${ctx.cutLines > 1 ? 's were' : ' was'} cut off by the interruption of the run and left out.`,
-      );
-    const resumed = ev.resumptions.length;
-    if (resumed > 0) {
-      const dark = ev.resumptions.reduce((t, r) => t + r.unloggedS, 0);
-      notes.push(
-        `The run was resumed ${resumed} time${resumed > 1 ? 's' : ''}; nothing is interpolated across the time it was down${dark > 0 ? `, and ${dark.toFixed(1)} s of load-on time with nothing logged are counted at the last logged current, in full as doubt in the budget` : ''}.`,
-      );
-    }
-    if (!end)
-      notes.push('The run was interrupted: it has no result.json and its event log no end.');
-    const spanS = this.rows > 0 ? this.lastHostS - this.firstHostS : 0;
+    this.addNotes(notes, { liveIds, appliedId, cutLines: ctx.cutLines, ended: end !== null });
+    const result = this.recomputedResult(base, end !== null, {
+      uncertainty,
+      verdict,
+      avgA,
+      steps,
+      midpoint,
+      calibrationFile: ctx.calibrationFile,
+      cutLines: ctx.cutLines,
+    });
+    return {
+      folder: ctx.folder,
+      manifest: m,
+      result,
+      original: ctx.original,
+      calibration: {
+        applied: cal,
+        id: appliedId,
+        own: appliedId === m.calibration.id,
+        file: ctx.calibrationFile,
+        liveIds,
+      },
+      steps,
+      stepPerCellV: this.stepPerCellV,
+      resistance,
+      verdict,
+      ...this.measures(rejected, errorPpm),
+      current: { minA, maxA, noiseA: noise.noiseA },
+      voltageNoiseV: noise.noiseV,
+      loadSwitchOns: this.switchOns,
+      liveTotals: this.liveTotals,
+      curve: this.curve.buckets,
+      events: ev,
+      cautions: m.chemistry.profile.cautions,
+      notes,
+    };
+  }
 
-    const result: RecomputedResult = {
+  /** The daemon's keys, and those only a recompute gives. */
+  private recomputedResult(
+    base: RunResult,
+    ended: boolean,
+    x: {
+      uncertainty: RecomputedResult['uncertainty'];
+      verdict: Verdict | null;
+      avgA: number | null;
+      steps: VoltageStepRow[];
+      midpoint: number | null;
+      calibrationFile: string | null;
+      cutLines: number;
+    },
+  ): RecomputedResult {
+    const { uncertainty, verdict, avgA, steps, midpoint } = x;
+    const ratedAh = this.o.ratedAh ?? null;
+    const integ = this.integrator;
+    return {
       ...base,
-      end_reason: end ? base.end_reason : 'interrupted',
+      end_reason: ended ? base.end_reason : 'interrupted',
       uncertainty,
       midpoint_voltage_V: rn(midpoint, 5),
       average_current_A: rn(avgA, 6),
@@ -616,27 +562,64 @@ export class RunRecompute {
         : null,
       recomputed: {
         cellvigil_version: packageVersion(),
-        calibration_file: ctx.calibrationFile,
+        calibration_file: x.calibrationFile,
         from_rows: this.rows,
-        cut_lines: ctx.cutLines,
+        cut_lines: x.cutLines,
       },
     };
+  }
+
+  /** The daemon's keys of result.json, built as the daemon builds them. */
+  private baseResult(
+    end: RunEnd | null,
+    cutoffV: number,
+    rejected: number,
+    errorPpm: number | null,
+    resistance: ResistanceSummary,
+  ): RunResult {
+    const m = this.manifest;
+    const cal = this.calibration;
+    const integ = this.integrator;
+    const on = resistance.switch_on?.first ?? null;
+    return buildResult({
+      end: end && end.reason !== 'interrupted' ? (end.reason as SessionEnd) : 'stopped',
+      detail:
+        end?.detail ??
+        'interrupted: the run folder has no result and its event log no end; figures are from the rows written',
+      loadOffConfirmed: end?.loadOffConfirmed ?? false,
+      chargeAh: integ.chargeAh,
+      energyWh: integ.energyWh,
+      onMs: integ.onMs,
+      bridgedAh: integ.bridgedAh,
+      nominalAh: this.frames.nominalAh,
+      loadedSamples: this.loadedFrames,
+      lastLoadedV: Number.isNaN(this.lastLoadedV) ? null : this.lastLoadedV,
+      cutoffV,
+      counters: { accepted: this.rows, rejected, lost: this.lost },
+      implausibleFrames: this.plausibility.implausibleFrames,
+      rigClockErrorPpm: errorPpm,
+      calibration: cal,
+      calibrationId: cal?.id ?? 'none',
+      ampsPerCount: this.chain.ampsPerCount,
+      voltsPerCount: this.chain.voltsPerCount,
+      chemistry: m.chemistry.id,
+      cells: m.cells,
+      openCircuitV: on?.uBeforeV ?? null,
+      dcResistanceOhm: on?.ohm ?? null,
+      gaps: this.gaps,
+      startedWallMs: Date.parse(m.started_wall),
+      endedWallMs: this.lastWall !== null ? Date.parse(this.lastWall) : Date.parse(m.started_wall),
+      schedule: m.schedule?.description ?? null,
+    });
+  }
+
+  private measures(
+    rejected: number,
+    errorPpm: number | null,
+  ): Pick<RunFigures, 'frames' | 'clock' | 'temperature'> {
+    const spanS = this.rows > 0 ? this.lastHostS - this.firstHostS : 0;
+    const startC = this.startC;
     return {
-      folder: ctx.folder,
-      manifest: m,
-      result,
-      original: ctx.original,
-      calibration: {
-        applied: cal,
-        id: appliedId,
-        own: appliedId === m.calibration.id,
-        file: ctx.calibrationFile,
-        liveIds,
-      },
-      steps,
-      stepPerCellV: this.stepPerCellV,
-      resistance,
-      verdict,
       frames: {
         accepted: this.rows,
         rejected,
@@ -656,15 +639,111 @@ export class RunRecompute {
         maxC: Number.isFinite(this.maxC) ? this.maxC : null,
         endC: Number.isNaN(this.endC) ? null : this.endC,
       },
-      current: { minA, maxA, noiseA },
-      voltageNoiseV: noiseV,
-      loadSwitchOns: this.switchOns,
-      liveTotals: this.liveTotals,
-      curve: this.curve.buckets,
-      events: ev,
-      cautions: m.chemistry.profile.cautions,
-      notes,
     };
+  }
+
+  /** Noise from raw counts, in corrected units through the chain and the calibration's gain. */
+  private noise(cal: Calibration | null): {
+    noiseA: number | null;
+    noiseV: number | null;
+    quantisationSamples: { current: number; voltage: number };
+  } {
+    const sdI = this.noiseI.sd();
+    const sdV = this.noiseV.sd();
+    const gainI = cal?.current?.fit.gain ?? 1;
+    const gainV = cal?.voltage?.fit.gain ?? 1;
+    const noiseA = sdI === null ? null : sdI * this.chain.ampsPerCount * gainI;
+    const noiseV = sdV === null ? null : sdV * this.chain.voltsPerCount * gainV;
+    // Noise below half a count does not dither the ADC: only distinct codes round independently.
+    const quantisationSamples = {
+      current: sdI !== null && sdI >= 0.5 ? this.loadedFrames : this.codesI.size,
+      voltage: sdV !== null && sdV >= 0.5 ? this.loadedFrames : this.codesV.size,
+    };
+    return { noiseA, noiseV, quantisationSamples };
+  }
+
+  private uncertainty(
+    cal: Calibration | null,
+    meanV: number | null,
+    n: ReturnType<RunRecompute['noise']>,
+  ): RecomputedResult['uncertainty'] {
+    const integ = this.integrator;
+    const { noiseA, noiseV, quantisationSamples } = n;
+    return runUncertainty({
+      chargeAh: integ.chargeAh,
+      energyWh: integ.energyWh,
+      nominalAh: this.frames.nominalAh,
+      onS: integ.onMs / 1000,
+      samples: this.loadedFrames,
+      ampsPerCount: this.chain.ampsPerCount,
+      voltsPerCount: this.chain.voltsPerCount,
+      meanVoltageV: meanV ?? 0,
+      bridgedAh: integ.bridgedAh,
+      calibration: cal,
+      ...(noiseA !== null ? { currentNoiseA: noiseA } : {}),
+      ...(noiseV !== null ? { voltageNoiseV: noiseV } : {}),
+      quantisationSamples,
+    });
+  }
+
+  private verdict(
+    cutoffV: number,
+    avgA: number | null,
+    endReason: string,
+  ): { verdict: Verdict | null; minA: number | null; maxA: number | null } {
+    const m = this.manifest;
+    const integ = this.integrator;
+    const ratedAh = this.o.ratedAh ?? null;
+    const startC = this.startC;
+    const minA = Number.isFinite(this.minA) ? this.minA : null;
+    const maxA = Number.isFinite(this.maxA) ? this.maxA : null;
+    const verdict = ratedCapacityVerdict({
+      chemistryId: m.chemistry.id,
+      cells: m.cells,
+      cutoffPerCellV: cutoffV / m.cells,
+      ratedAh,
+      averageCurrentA: avgA ?? 0,
+      minCurrentA: minA ?? avgA ?? 0,
+      maxCurrentA: maxA ?? avgA ?? 0,
+      durationS: integ.onMs / 1000,
+      endReason,
+      startTemperatureC: startC,
+      loadSwitchOns: this.switchOns,
+      ...(this.o.rateTolerance !== undefined ? { rateTolerance: this.o.rateTolerance } : {}),
+    });
+    return { verdict, minA, maxA };
+  }
+
+  private addNotes(
+    notes: string[],
+    x: { liveIds: string[]; appliedId: string; cutLines: number; ended: boolean },
+  ): void {
+    const { liveIds, appliedId } = x;
+    const integ = this.integrator;
+    const ev = this.digest.result();
+    if (liveIds.some((id) => id !== appliedId)) {
+      notes.push(
+        `The live run made its rows with calibration ${liveIds.join(', ')}; this recompute applies ${appliedId} to every row.`,
+      );
+    } else if (this.liveTotals && integ.chargeAh > 0) {
+      const d = integ.chargeAh / this.liveTotals.chargeAh - 1;
+      notes.push(
+        `Same calibration as the live run: the recomputed capacity differs from the live total in the log by ${(d * 100).toExponential(1)} %.`,
+      );
+    }
+    if (x.cutLines > 0)
+      notes.push(
+        `${x.cutLines} line${x.cutLines > 1 ? 's were' : ' was'} cut off by the interruption of the run and left out.`,
+      );
+    const resumed = ev.resumptions.length;
+    if (resumed > 0) {
+      const dark = ev.resumptions.reduce((t, r) => t + r.unloggedS, 0);
+      notes.push(
+        `The run was resumed ${resumed} time${resumed > 1 ? 's' : ''}; nothing is interpolated across the time it was down${dark > 0 ? `, and ${dark.toFixed(1)} s of load-on time with nothing logged are counted at the last logged current, in full as doubt in the budget` : ''}.`,
+      );
+    }
+    if (!x.ended)
+      notes.push('The run was interrupted: it has no result.json and its event log no end.');
   }
 }
 

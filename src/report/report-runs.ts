@@ -12,7 +12,7 @@ import type { Calibration } from '../calibration/calibration.js';
 import { loadCalibration } from '../calibration/calibration-file.js';
 import { ErrorCodes, makeError } from '../core/errors.js';
 import { openRunFolder, type RunFolder } from '../replay/run-folder.js';
-import { writeJsonAtomic } from '../sinks/atomic-json.js';
+import { writeResult } from '../record/result.js';
 import { renderComparisonReport } from './html-compare.js';
 import { renderRunReport } from './html.js';
 import { checkRatedOption, ratedAgainstRun } from './rated-check.js';
@@ -120,7 +120,7 @@ export async function reportRuns(r: ReportRequest): Promise<ReportOutcome> {
     const resultPath = join(folder, resultName);
     const reportPath =
       r.out !== undefined && r.folders.length === 1 ? r.out : join(folder, reportFileName(figures));
-    await write(resultPath, () => writeJsonAtomic(resultPath, figures.result));
+    await write(resultPath, () => writeResult(resultPath, figures.result));
     await write(reportPath, () =>
       writeFile(reportPath, renderRunReport(figures, { generatedAt, resultFile: resultName })),
     );

@@ -1,55 +1,33 @@
 /**
- * `cellvigil run`: wires a source, the pure core and the sinks together. Lines travel one way
- * (source -> pipeline -> sinks); the only way back to the rig is the session's actions.
+ * `cellvigil run`: wiring. A rig link (the port), one channel's run (session, recorder, result)
+ * on it, the controls (signals, edited files, the live feed's requests) and the timers. Lines
+ * travel one way (link -> channel -> recorder and observers); the only way back to the rig is
+ * the session's actions.
  */
 import { rm } from 'node:fs/promises';
-import { join } from 'node:path';
-import { applyCalibration, type Calibration } from '../calibration/calibration.js';
-import { loadCalibration } from '../calibration/calibration-file.js';
-import { findChemistry } from '../chemistry/chemistries.js';
-import { DEFAULT_CHEMISTRIES_PATH, loadChemistries } from '../chemistry/chemistry-file.js';
-import { checkStartVoltage } from '../chemistry/full-scale.js';
+import { DEFAULT_CHEMISTRIES_PATH } from '../chemistry/chemistry-file.js';
 import type { Clock, TimerHandle } from '../core/clock.js';
 import { HostClock, PacedClock } from '../core/host-clock.js';
-import { CellvigilError, ErrorCodes, makeError } from '../core/errors.js';
-import { packageVersion } from '../core/paths.js';
-import { encodeCommand } from '../protocol/codec.js';
-import { FLAG_LOAD_ON } from '../protocol/messages.js';
-import { describeSchedule } from '../schedule/schedule.js';
-import { plausibilityFor } from '../session/plausibility.js';
-import { Session } from '../session/session.js';
-import type { Action, SessionEnd } from '../session/session-types.js';
-import { writeJsonAtomic } from '../sinks/atomic-json.js';
-import { LogFile } from '../sinks/log-file.js';
-import {
-  SAMPLE_HEADER,
-  sampleRowMaxBytes,
-  SampleRowWriter,
-  type SampleRow,
-} from '../sinks/sample-row.js';
+import type { RunResult } from '../record/result.js';
 import { SerialSource } from '../sources/serial-source.js';
 import { SimSource } from '../sources/sim-source.js';
 import type { Source } from '../sources/source.js';
-import { cautionLines } from './cautions.js';
-import { EventLog, type EventRecord } from './event-log.js';
-import { Pipeline } from './pipeline.js';
-import { buildResult, CLOCK_WARN_PPM, exitCodeFor, type RunResult } from './result.js';
-import { resolveRunConfig, type RunConfig } from './run-config.js';
-import { createRunFolder } from './run-folder.js';
-import { watchFile } from './file-watch.js';
-import { findResumePoint } from './resume.js';
-import { findUnfinishedRun } from './unfinished-run.js';
+import { ChannelRun, type ChannelRunOptions } from './channel-run.js';
+import { handleSignals, watchRunFiles, type Watcher } from './controls.js';
 import { liveObserver, startLiveLink, type LiveLink } from './live-link.js';
 import type { LiveHub } from '../live/live-hub.js';
+import type { RunObserver } from './observer.js';
+import { RunRecorder } from './recorder.js';
+import { findResumePoint, type ResumePoint } from './resume.js';
+import { RigLink } from './rig-link.js';
+import { resolveRunConfig, type RunConfig } from './run-config.js';
+import { createRunFolder } from './run-folder.js';
 import type { RunRequest } from './run-request.js';
+import { announceStart, manifestOf, printSummary } from './start-report.js';
 import { StatusPrinter } from './status-line.js';
+import { findUnfinishedRun } from './unfinished-run.js';
 
-/** Anything that follows a run live (the status line, the live feed). */
-export interface RunObserver {
-  sample?(row: SampleRow, loadOn: boolean): void;
-  event?(rec: EventRecord): void;
-  ended?(result: RunResult): void;
-}
+export type { RunObserver } from './observer.js';
 
 export interface RunOutcome {
   exitCode: number;
@@ -83,15 +61,21 @@ export interface RunIo {
 }
 
 const TICK_MS = 100;
-/**
- * After the daemon died with the load on, the rig kept discharging until its watchdog cut the
- * load: 5 s after the last heartbeat, which came up to 0.5 s before death, which came up to 1 s
- * (one flush) after the last logged row. The middle of that range, ± 0.75 s.
- */
-const UNLOGGED_AFTER_DEATH_S = 5 + 0.5 - 0.25;
 const FLUSH_EVERY_MS = 1000;
 const CHECKPOINT_EVERY_MS = 5000;
 const STATUS_EVERY_MS = 250;
+
+/** Repeating timers on one clock or another, cleared together when the run ends. */
+class RunTimers {
+  private readonly timers: { clock: Clock; handle: TimerHandle }[] = [];
+  every(clock: Clock, ms: number, fn: () => void): void {
+    this.timers.push({ clock, handle: clock.setTimer(fn, ms, true) });
+  }
+  clear(): void {
+    for (const t of this.timers) t.clock.clearTimer(t.handle);
+    this.timers.length = 0;
+  }
+}
 
 /** What a station hands a channel's run instead of letting it make its own. */
 export interface RunParts {
@@ -103,11 +87,10 @@ export interface RunParts {
   hub?: LiveHub;
 }
 
-export async function startRun(
+/** The run to continue, if any: `--resume`, or an unfinished run on the same port. */
+async function locateRun(
   req: RunRequest,
-  io: RunIo,
-  parts: RunParts = {},
-): Promise<RunHandle> {
+): Promise<{ req: RunRequest; resume: ResumePoint | null }> {
   const resumeDir =
     req.resume ??
     (req.port !== undefined && !req.fresh
@@ -117,615 +100,84 @@ export async function startRun(
   // `run --resume <folder>` alone goes back to the port the run was on.
   const src = resume?.run.manifest.source;
   if (src?.kind === 'serial' && req.port === undefined && req.sim === undefined)
-    req = { ...req, port: src.description };
+    return { req: { ...req, port: src.description }, resume };
+  return { req, resume };
+}
+
+export async function startRun(
+  asked: RunRequest,
+  io: RunIo,
+  parts: RunParts = {},
+): Promise<RunHandle> {
+  const { req, resume } = await locateRun(asked);
   const cfg = await resolveRunConfig(req, resume?.run.manifest ?? null);
-  const { profile, chain, chemistry, cells, cutoff, scenario } = cfg;
-  const startedWall = resume ? Date.parse(resume.run.manifest.started_wall) : Date.now();
-  const label =
-    resume?.run.manifest.label ??
-    req.label ??
-    (scenario ? `sim-${scenario.name}` : `${cells}x${chemistry.id}`);
-  const folder = resume ? resume.run.dir : await createRunFolder(req.runs, label, startedWall);
+  const { chemistry, cells, scenario } = cfg;
+  const { startedWallMs, label, folder } = await placeRun(req, cfg, resume);
 
   // Measurement time: the simulated rig runs on a virtual clock at --speed; a real rig on the host's.
-  const paced = scenario && !parts.clock ? new PacedClock(0, startedWall) : null;
+  const paced = scenario && !parts.clock ? new PacedClock(0, startedWallMs) : null;
   const clock: Clock = parts.clock ?? paced ?? new HostClock();
-  const real = new HostClock();
-  const source: Source =
+  const link = new RigLink(
     parts.source ??
-    (scenario
-      ? new SimSource({ scenario, clock, profile })
-      : new SerialSource({ path: req.port!, baudRate: req.baud ?? profile.frame.baud }));
-
-  const session = new Session({
-    channel: req.channel,
-    cutoffV: cutoff.total,
-    floorV: cfg.floorV,
-    maxTemperatureC: cfg.maxTemperatureC,
-    maxCurrentA: cfg.maxCurrentA,
-    linkTimeoutMs: req.linkTimeoutS * 1000,
-    schedule: cfg.schedule,
-    plausibility: plausibilityFor({
-      maxRestVPerCell: chemistry.max_rest_V_per_cell.value,
-      cells,
-      ampsPerCount: chain.ampsPerCount,
-    }),
-    checkRest: (restV) => {
-      const check = checkStartVoltage(
-        chemistry,
-        cells,
-        restV,
-        cutoff.perCell,
-        cfg.chemistries,
-        applyCalibration(cfg.calibration).voltage(chain.fullScale().volts),
-      );
-      return check.ok ? null : check.error.message;
-    },
-  });
-  // A resumed run's row times carry on from its last row, plus the wall time it was down.
-  const originMs = resume
-    ? clock.now() - (resume.lastHostS * 1000 + Math.max(0, Date.now() - resume.lastWallMs))
-    : clock.now();
-  if (resume) session.restore(resume.totals);
-  const pipeline = new Pipeline({
-    channel: req.channel,
-    adcBits: profile.adc.bits,
-    converter: chain,
-    corrector: applyCalibration(cfg.calibration),
-    session,
-    originMs,
-  });
-
-  if (resume) {
-    pipeline.counters.accepted = resume.rows;
-    pipeline.counters.rejected = resume.counters.rejected;
-    pipeline.counters.lost = resume.counters.lost;
-  }
-  const rowWriter = new SampleRowWriter();
-  const samples = new LogFile({
-    dir: folder,
-    name: 'samples-',
-    ext: '.csv',
-    header: SAMPLE_HEADER,
-    rotateBytes: resume?.run.manifest.samples.rotate_bytes ?? req.rotateBytes,
-    firstIndex: resume?.nextIndex ?? 1,
-    // Closed files are gzipped (about 6:1); the file being written always stays plain.
-    compressClosed: true,
-    onCompressed: (c) => {
-      if (ended) return;
-      if (c.error)
-        logEvent('compress_failed', {
-          file: c.file,
-          error: c.error.message,
-          note: 'the plain file is kept',
-        });
-      else
-        logEvent('sample_file_compressed', {
-          file: c.file,
-          bytes_in: c.bytesIn,
-          bytes_out: c.bytesOut,
-        });
-    },
-  });
-  const events = new EventLog(folder);
-  const status = new StatusPrinter(io.out);
-  const observers: RunObserver[] = [];
-  const manifest = {
-    format: 'cellvigil-run',
-    format_version: 1,
-    cellvigil_version: packageVersion(),
-    node_version: process.version,
-    label,
-    cell_id: req.cellId ?? null,
-    started_wall: new Date(startedWall).toISOString(),
-    source: {
-      kind: source.kind,
-      description: source.description,
-      ...(scenario ? { scenario: scenario.name, speed: req.speed } : {}),
-    },
-    channel: req.channel,
-    rig: { file: cfg.rigPath, profile },
-    calibration: {
-      file: cfg.calibrationPath,
-      id: pipeline.calibrationId,
-      content: cfg.calibration,
-    },
-    chemistry: { id: chemistry.id, profile: chemistry },
-    cells,
-    cutoff_V: cutoff.total,
-    cutoff_per_cell_V: cutoff.perCell,
-    cutoff_source: cutoff.source,
-    floor_V: cfg.floorV,
-    limits: { max_temperature_C: cfg.maxTemperatureC, max_current_A: cfg.maxCurrentA },
-    samples: { prefix: 'samples-', rotate_bytes: req.rotateBytes },
-    ...(cfg.scheduleSource && cfg.schedule
-      ? { schedule: { ...cfg.scheduleSource, description: describeSchedule(cfg.schedule) } }
-      : {}),
-  };
-  try {
-    if (!resume) await writeJsonAtomic(join(folder, 'manifest.json'), manifest);
-  } catch (e) {
-    throw makeError(
-      ErrorCodes.RUN_FOLDER,
-      `cannot write the manifest: ${(e as Error).message}`,
-      folder,
-      'Choose a run folder you can write to (--runs). Nothing was switched on.',
-    );
-  }
-
-  const hostS = (): number => (clock.now() - originMs) / 1000;
-  const logEvent = (name: string, detail: Record<string, unknown> = {}): void => {
-    const rec = events.write(hostS(), clock.wallNow(), name, detail);
-    for (const o of observers) o.event?.(rec);
-  };
-
-  let ended = false;
-  let diskError: Error | null = null;
-  let loadedSamples = 0;
-  let gaps = 0;
-  let clockWarned = false;
-  let stopRequests = 0;
-  let unloggedPending = resume?.last?.loadOn === true;
-  let calibration: Calibration | null = cfg.calibration;
-  const watchers: { close(): Promise<void> }[] = [];
-  let resolveDone!: (o: RunOutcome) => void;
-  let rejectDone!: (e: unknown) => void;
-  const done = new Promise<RunOutcome>((res, rej) => {
-    resolveDone = res;
-    rejectDone = rej;
-  });
-  const timers: { clock: Clock; handle: TimerHandle }[] = [];
-  const every = (c: Clock, ms: number, fn: () => void): void => {
-    timers.push({ clock: c, handle: c.setTimer(fn, ms, true) });
-  };
-
-  const dispatch = (actions: Action[]): void => {
-    for (const a of actions) {
-      if (ended) return;
-      if (a.type === 'send') {
-        const line = encodeCommand(a.command);
-        const queued = source.write(line);
-        if (a.command.command !== 'BEAT') logEvent('command', { line: line.trim(), queued });
-      } else if (a.type === 'event') {
-        logEvent(a.name, a.detail);
-        if (a.name === 'state')
-          status.line(
-            `state: ${String(a.detail['from'])} -> ${String(a.detail['to'])} (${String(a.detail['why'])})`,
-          );
-      } else {
-        void finish(a.reason, a.detail, a.loadOffConfirmed);
-      }
-    }
-  };
-
-  const onLine = (text: string): void => {
-    if (ended) return;
-    const out = pipeline.line(text, clock.now(), clock.wallNow());
-    switch (out.kind) {
-      case 'sample': {
-        if (unloggedPending) {
-          unloggedPending = false;
-          bridgeUnlogged(out.row);
-        }
-        try {
-          samples.appendWith(out.row, sampleRowMaxBytes(out.row), rowWriter.write);
-        } catch (e) {
-          onDiskError(e as Error);
-        }
-        const loadOn = session.loadOn;
-        if (loadOn) loadedSamples++;
-        if (out.lost > 0) logEvent('frames_lost', { count: out.lost, seq: out.row.seq });
-        if (out.gap) {
-          gaps++;
-          logEvent('gap', {
-            seq: out.row.seq,
-            note: 'a long gap between frames; its charge is interpolated and counted as doubt in the uncertainty',
-          });
-        }
-        if (out.rigRestart) logEvent('rig_restart', { seq: out.row.seq, tick_ms: out.row.tickMs });
-        status.update(out.row);
-        for (const o of observers) o.sample?.(out.row, loadOn);
-        dispatch(out.actions);
-        break;
-      }
-      case 'rejected':
-        events.rejected(hostS(), clock.wallNow(), out.reason, out.detail, text);
-        break;
-      case 'message':
-        if (out.event) logEvent(out.event.name, out.event.detail);
-        dispatch(out.actions);
-        break;
-      case 'ignored':
-        break;
-    }
-  };
-
-  /** The first frame after resuming: estimate what flowed while nothing was logging. */
-  const bridgeUnlogged = (row: SampleRow): void => {
-    const last = resume!.last!;
-    const sinceS = row.hostS - resume!.lastHostS;
-    const stillOn = (row.flags & FLAG_LOAD_ON) !== 0;
-    const darkS = Math.max(0, stillOn ? sinceS : Math.min(sinceS, UNLOGGED_AFTER_DEATH_S));
-    session.integrator.addUnlogged(darkS * 1000, last.volts, last.amps);
-    row.chargeAh = session.integrator.chargeAh;
-    row.energyWh = session.integrator.energyWh;
-    logEvent('unlogged_discharge', {
-      estimated_s: darkS,
-      charge_Ah: (darkS / 3600) * last.amps,
-      basis: stillOn
-        ? 'the load stayed on through the interruption: the last logged current over the whole gap'
-        : "the rig's watchdog cut the load: the last logged current for about 5.25 s (± 0.75 s)",
-    });
-  };
-
-  /** Whole-string volts, from the CLI handle or the live feed; the session refuses anything below the floor. */
-  const setCutoffV = (volts: number, by: string): { ok: true } | { ok: false; error: string } => {
-    if (ended) return { ok: false, error: 'the run has ended' };
-    const r = session.setCutoff(volts);
-    if (!r.ok) {
-      logEvent('cutoff_refused', { requested_V: volts, by, why: r.why });
-      return { ok: false, error: r.why };
-    }
-    logEvent('cutoff_changed', {
-      cutoff_V: session.cutoffV,
-      cutoff_V_per_cell: session.cutoffV / cells,
-      by,
-    });
-    return { ok: true };
-  };
-
-  /** A calibration file rewritten mid-run applies from the next sample, if it validates. */
-  const reloadCalibration = async (path: string): Promise<void> => {
-    if (ended) return;
-    try {
-      const next = await loadCalibration(path);
-      if (ended || next.id === pipeline.calibrationId) return;
-      const old = pipeline.calibrationId;
-      pipeline.setCorrector(applyCalibration(next));
-      calibration = next;
-      logEvent('calibration_changed', { old_id: old, new_id: next.id, file: path });
-      status.line(`Calibration ${next.id} applies from the next sample (was ${old}).`);
-    } catch (e) {
-      if (ended) return;
-      const message = (e as Error).message;
-      logEvent('calibration_rejected', {
-        file: path,
-        error: message,
-        kept_id: pipeline.calibrationId,
-      });
-      status.line(
-        `The edited calibration was rejected and ${pipeline.calibrationId} stays in force: ${message}`,
-      );
-    }
-  };
-
-  /** A chemistry file edited mid-run: new floor, temperature limit and default cutoff, if it validates. */
-  const reloadChemistry = (path: string): void => {
-    if (ended) return;
-    try {
-      const next = findChemistry(loadChemistries(path), chemistry.id, path);
-      const floorV = next.floor_V_per_cell.value * cells;
-      const wanted = cutoff.fromUser ? cutoff.total : next.cutoff_V_per_cell.value * cells;
-      const cutoffV = Math.max(wanted, floorV);
-      const r = session.updateLimits({
-        floorV,
-        maxTemperatureC: next.max_temperature_C.value,
-        cutoffV,
-      });
-      if (!r.ok) throw new Error(r.why);
-      logEvent('chemistry_changed', {
-        file: path,
-        chemistry: next.id,
-        floor_V: floorV,
-        cutoff_V: cutoffV,
-        max_temperature_C: next.max_temperature_C.value,
-      });
-      status.line(
-        `Chemistry profile reloaded: cutoff ${cutoffV.toFixed(3)} V, floor ${floorV.toFixed(3)} V, limit ${next.max_temperature_C.value} °C.`,
-      );
-    } catch (e) {
-      const message = (e as Error).message;
-      logEvent('chemistry_rejected', { file: path, error: message });
-      status.line(`The edited chemistry file was rejected; the limits in force stay: ${message}`);
-    }
-  };
-
-  const onDiskError = (e: Error): void => {
-    if (diskError) return;
-    diskError = e;
-    status.line(
-      `cellvigil: ${ErrorCodes.RUN_FOLDER}: writing the run folder failed: ${e.message}. Switching the load off.`,
-    );
-    dispatch(session.requestStop(clock.now(), 'a failure writing the run folder'));
-  };
-
-  const flushLogs = async (): Promise<void> => {
-    try {
-      await Promise.all([samples.flush(), events.flush()]);
-    } catch (e) {
-      onDiskError(e as Error);
-    }
-  };
-
-  const checkpoint = (): object => ({
-    host_s: Number(hostS().toFixed(3)),
-    wall_time: new Date(clock.wallNow()).toISOString(),
-    state: session.state,
-    charge_Ah: session.integrator.chargeAh,
-    energy_Wh: session.integrator.energyWh,
-    load_on_s: session.integrator.onMs / 1000,
-    bridged_Ah: session.integrator.bridgedAh,
-    frames_accepted: pipeline.counters.accepted,
-    frames_rejected: pipeline.counters.rejected,
-    frames_lost: pipeline.counters.lost,
-    rows_written: pipeline.counters.accepted,
-    sample_file: samples.files.at(-1) ?? null,
-    cutoff_V: session.cutoffV,
-    calibration_id: pipeline.calibrationId,
-  });
-  let checkpointing = false;
-  const writeCheckpoint = async (): Promise<void> => {
-    if (checkpointing || diskError) return;
-    checkpointing = true;
-    try {
-      await writeJsonAtomic(join(folder, 'checkpoint.json'), checkpoint());
-    } catch (e) {
-      onDiskError(e as Error);
-    } finally {
-      checkpointing = false;
-    }
-  };
-
-  const checkClock = (): void => {
-    const ppm = pipeline.timeBase.rigClockErrorPpm();
-    if (clockWarned || ppm === null || Math.abs(ppm) <= CLOCK_WARN_PPM) return;
-    clockWarned = true;
-    const pct = (ppm / 1e4).toFixed(1);
-    logEvent('clock_warning', { rig_clock_error_ppm: Math.round(ppm) });
-    status.line(
-      `warning: the rig's clock runs ${pct} % ${ppm > 0 ? 'fast' : 'slow'} against the host's; cellvigil times every frame by the host clock, so figures are not affected.`,
-    );
-  };
-
-  const onSignal = (sig: NodeJS.Signals): void => {
-    // Kept until the process exits: a signal while the result is written must not cut it short.
-    if (ended) {
-      status.line(`${sig}: the run has ended; writing its files…`);
-      return;
-    }
-    stopRequests++;
-    logEvent('signal', { signal: sig });
-    if (stopRequests > 1)
-      status.line(
-        `${sig} again: the load is being switched off first; the run ends as soon as the rig confirms it.`,
-      );
-    else status.line(`${sig}: switching the load off and finishing the run…`);
-    dispatch(session.requestStop(clock.now(), sig));
-  };
-  const signalHandlers: [NodeJS.Signals, (s: NodeJS.Signals) => void][] = io.signals
-    ? [
-        ['SIGINT', onSignal],
-        ['SIGTERM', onSignal],
-      ]
-    : [];
-
-  const finish = async (
-    end: SessionEnd,
-    detail: string,
-    loadOffConfirmed: boolean,
-  ): Promise<void> => {
-    if (ended) return;
-    ended = true;
-    try {
-      for (const t of timers) t.clock.clearTimer(t.handle);
-      await Promise.all(watchers.map((w) => w.close())).catch(() => undefined);
-      checkClock();
-      const result = buildResult({
-        end,
-        detail,
-        loadOffConfirmed,
-        chargeAh: session.integrator.chargeAh,
-        energyWh: session.integrator.energyWh,
-        onMs: session.integrator.onMs,
-        bridgedAh: session.integrator.bridgedAh,
-        nominalAh: pipeline.nominalAh,
-        loadedSamples,
-        lastLoadedV: session.lastLoadedV,
-        cutoffV: session.cutoffV,
-        counters: pipeline.counters,
-        implausibleFrames: session.plausibility.implausibleFrames,
-        rigClockErrorPpm: pipeline.timeBase.rigClockErrorPpm(),
-        calibration,
-        calibrationId: pipeline.calibrationId,
-        ampsPerCount: chain.ampsPerCount,
-        voltsPerCount: chain.voltsPerCount,
-        chemistry: chemistry.id,
-        cells,
-        openCircuitV: session.openCircuitV,
-        dcResistanceOhm: session.dcResistanceOhm,
-        gaps,
-        startedWallMs: startedWall,
-        endedWallMs: clock.wallNow(),
-        schedule: cfg.schedule ? describeSchedule(cfg.schedule) : null,
-        cellId: resume?.run.manifest.cell_id ?? req.cellId ?? null,
-      });
-      events.summarise(hostS(), clock.wallNow());
-      const rec = events.write(hostS(), clock.wallNow(), 'run_ended', {
-        end_reason: end,
-        detail,
-        load_off_confirmed: loadOffConfirmed,
-      });
-      for (const o of observers) o.event?.(rec);
-      await source.close().catch(() => undefined);
-      paced?.stop();
-      await Promise.all([samples.close(), events.close()]).catch((e: Error) => onDiskError(e));
-      if (!diskError) {
-        await writeJsonAtomic(join(folder, 'checkpoint.json'), checkpoint()).catch((e: Error) =>
-          onDiskError(e),
-        );
-        await writeJsonAtomic(join(folder, 'result.json'), result).catch((e: Error) =>
-          onDiskError(e),
-        );
-      }
-      status.end();
-      for (const o of observers) o.ended?.(result);
-      const exitCode = diskError ? 1 : exitCodeFor(end, detail);
-      printSummary(io, result, folder, cfg, diskError);
-      resolveDone({ exitCode, folder, result });
-    } catch (e) {
-      rejectDone(e);
-    }
-  };
-
-  // Start: cautions first, then the rig.
-  status.line(
-    `cellvigil ${packageVersion()}: ${cells} × ${chemistry.id} on ${source.description}; cutoff ${cutoff.total.toFixed(3)} V (${cutoff.perCell} V per cell, ${cutoff.source}), limit ${cfg.maxTemperatureC} °C.`,
+      (scenario
+        ? new SimSource({ scenario, clock, profile: cfg.profile })
+        : new SerialSource({ path: req.port!, baudRate: req.baud ?? cfg.profile.frame.baud })),
   );
-  if (cfg.schedule) status.line(`Schedule: ${describeSchedule(cfg.schedule)}.`);
-  status.line('Cautions:');
-  for (const c of cautionLines(chemistry)) status.line(`  - ${c}`);
-  status.line(`Run folder: ${folder}`);
-  if (resume) {
-    const downS = Math.max(0, Date.now() - resume.lastWallMs) / 1000;
-    status.line(
-      `Resuming an interrupted run: ${(resume.totals.chargeAh * 1000).toFixed(1)} mAh so far from ${resume.rows} logged rows; down for ${downS.toFixed(0)} s. The precheck runs again before the load goes back on.`,
-    );
-    logEvent('resumed', {
-      rows: resume.rows,
-      charge_Ah: resume.totals.chargeAh,
-      energy_Wh: resume.totals.energyWh,
-      down_s: downS,
-      cut_bytes: resume.cutBytes,
-      source: source.description,
-    });
-  } else {
-    logEvent('run_started', {
-      source: source.description,
-      chemistry: chemistry.id,
-      cells,
-      cutoff_V: cutoff.total,
-      version: packageVersion(),
-    });
-  }
-  logEvent('cautions', { lines: cautionLines(chemistry) });
-  if (cfg.calibration) {
-    logEvent('calibration', {
-      id: cfg.calibration.id,
-      file: cfg.calibrationPath,
-      date: cfg.calibration.date,
-    });
-  } else {
-    logEvent('calibration', { id: 'none', note: 'no calibration: nominal analog chain only' });
-    status.line(
-      'No calibration given: figures use the nominal analog chain, whose offset and gain errors are unknown (see `cellvigil calibrate`).',
-    );
-  }
-
-  /** A run that never got its rig leaves no folder behind (it would look like one to resume). */
-  const abandon = async (): Promise<void> => {
-    await Promise.all([samples.close(), events.close()]).catch(() => undefined);
-    if (!resume) await rm(folder, { recursive: true, force: true }).catch(() => undefined);
-  };
-  let live: LiveLink | null = null;
-  const liveInfo = {
-    label,
-    run_folder: folder,
-    chemistry: chemistry.id,
-    cells,
-    cutoff_V: session.cutoffV,
-    floor_V: cfg.floorV,
-    calibration_id: pipeline.calibrationId,
-    started_wall: new Date(startedWall).toISOString(),
-    source: source.description,
-    max_temperature_C: cfg.maxTemperatureC,
-  };
-  if (parts.hub) {
-    parts.hub.setRun(liveInfo);
-    observers.push(liveObserver(parts.hub));
-  } else if (req.listen !== null) {
-    try {
-      live = await startLiveLink({
-        listen: req.listen,
-        info: liveInfo,
-        channel: req.channel,
-        stop: (by) => dispatch(session.requestStop(clock.now(), by)),
-        setCutoff: (volts, by) => setCutoffV(volts, by),
-        mark: (note, by) => logEvent('mark', { note, by }),
-        log: (name, detail) => {
-          if (!ended) logEvent(name, detail);
-        },
-        print: (line) => status.line(line),
-      });
-      observers.push(live.observer);
-    } catch (e) {
-      await abandon();
-      throw e;
-    }
-  }
-
-  try {
-    await source.open({
-      line: onLine,
-      overlong: (n) => {
-        const out = pipeline.overlong(n);
-        if (out.kind === 'rejected')
-          events.rejected(hostS(), clock.wallNow(), out.reason, out.detail, '');
-      },
-      closed: (reason) => {
-        if (ended) return;
-        logEvent('link_closed', { reason });
-        status.line(
-          `The rig's port went away (${reason}); reopening it. The rig's watchdog cuts the load after 5 s without heartbeats.`,
-        );
-        dispatch(session.linkDown(clock.now()));
-      },
-      reopened: () => {
-        if (ended) return;
-        status.line('The rig is back; reading its load state before anything else.');
-        dispatch(session.linkUp(clock.now()));
-      },
-    });
-  } catch (e) {
-    ended = true;
-    await live?.server.close().catch(() => undefined);
-    await abandon();
-    throw e instanceof CellvigilError
-      ? e
-      : makeError(
-          ErrorCodes.PORT_OPEN,
-          (e as Error).message,
-          source.description,
-          'Check the rig connection.',
-        );
-  }
-  for (const [sig, h] of signalHandlers) process.on(sig, h);
-  if (cfg.calibrationPath !== null)
-    watchers.push(
-      watchFile(cfg.calibrationPath, () => void reloadCalibration(cfg.calibrationPath!)),
-    );
-  if (!resume) {
-    const chemistriesPath = req.chemistriesFile ?? DEFAULT_CHEMISTRIES_PATH;
-    watchers.push(watchFile(chemistriesPath, () => reloadChemistry(chemistriesPath)));
-  }
-  every(clock, TICK_MS, () => dispatch(session.tick(clock.now())));
-  every(real, FLUSH_EVERY_MS, () => void flushLogs());
-  every(real, CHECKPOINT_EVERY_MS, () => {
-    checkClock();
-    void writeCheckpoint();
+  const status = new StatusPrinter(io.out);
+  const timers = new RunTimers();
+  let watchers: Watcher[] = [];
+  const run = newChannelRun(req, cfg, {
+    folder,
+    startedWallMs,
+    clock,
+    resume,
+    status,
+    link,
+    stopInputs: async () => {
+      timers.clear();
+      await Promise.all(watchers.map((w) => w.close())).catch(() => undefined);
+    },
+    releaseLink: () => paced?.stop(),
   });
-  every(real, STATUS_EVERY_MS, () => status.draw(real.now()));
-  dispatch(session.begin(clock.now()));
+  const manifest = { req, cfg, label, startedWallMs, source: link.source };
+  if (!resume)
+    await RunRecorder.writeManifest(
+      folder,
+      manifestOf({ ...manifest, calibrationId: run.pipeline.calibrationId }),
+    );
+  announceStart(run, status, { cfg, folder, source: link.description, resume });
+
+  const live = await connect(req, cfg, run, link, status, {
+    hub: parts.hub ?? null,
+    label,
+    folder,
+    startedWallMs,
+    resumed: resume !== null,
+  });
+  if (io.signals) handleSignals(run, status);
+  watchers = watchRunFiles(run, status, {
+    calibration: cfg.calibrationPath,
+    // A resumed run keeps the limits it was started with.
+    chemistries: resume ? null : (req.chemistriesFile ?? DEFAULT_CHEMISTRIES_PATH),
+    chemistryId: chemistry.id,
+  });
+  startTimers(timers, run, clock, status);
+  run.begin();
   paced?.start(req.speed);
 
+  const done = run.done.then((end): RunOutcome => {
+    printSummary(io, end, folder, cfg.calibration !== null);
+    return { exitCode: end.exitCode, folder, result: end.result };
+  });
   return {
     folder,
     config: cfg,
-    source,
+    source: link.source,
     done,
-    stop: (by) => dispatch(session.requestStop(clock.now(), by)),
-    setCutoffPerCell: (volts, by) => setCutoffV(volts * cells, by),
-    mark: (note, by) => logEvent('mark', { note, by }),
-    addObserver: (o) => observers.push(o),
+    stop: (by) => run.stop(by),
+    setCutoffPerCell: (volts, by) => run.setCutoff(volts * cells, by),
+    mark: (note, by) => run.mark(note, by),
+    addObserver: (o) => run.addObserver(o),
     liveUrl: live?.server.url ?? null,
     closeLive: async () => {
       await live?.server.close();
@@ -733,43 +185,136 @@ export async function startRun(
   };
 }
 
-function printSummary(
-  io: RunIo,
-  r: RunResult,
-  folder: string,
+function newChannelRun(
+  req: RunRequest,
   cfg: RunConfig,
-  diskError: Error | null,
+  x: Pick<ChannelRunOptions, 'folder' | 'startedWallMs' | 'clock' | 'resume' | 'status'> & {
+    link: RigLink;
+    stopInputs(): Promise<void>;
+    /** After the link is closed. */
+    releaseLink(): void;
+  },
+): ChannelRun {
+  const { link, releaseLink, ...rest } = x;
+  return new ChannelRun({
+    ...rest,
+    cfg,
+    channel: req.channel,
+    linkTimeoutS: req.linkTimeoutS,
+    rotateBytes: req.rotateBytes,
+    send: (line) => link.send(line),
+    releaseLink: async () => {
+      await link.close();
+      releaseLink();
+    },
+  });
+}
+
+/** When the run started, its label and its folder (a resumed run's own). */
+async function placeRun(
+  req: RunRequest,
+  cfg: RunConfig,
+  resume: ResumePoint | null,
+): Promise<{ startedWallMs: number; label: string; folder: string }> {
+  const m = resume?.run.manifest;
+  const startedWallMs = m ? Date.parse(m.started_wall) : Date.now();
+  const label =
+    m?.label ??
+    req.label ??
+    (cfg.scenario ? `sim-${cfg.scenario.name}` : `${cfg.cells}x${cfg.chemistry.id}`);
+  const folder = resume ? resume.run.dir : await createRunFolder(req.runs, label, startedWallMs);
+  return { startedWallMs, label, folder };
+}
+
+/** The session's tick on measurement time; flushes, checkpoints and the status line on real time. */
+function startTimers(
+  timers: RunTimers,
+  run: ChannelRun,
+  clock: Clock,
+  status: StatusPrinter,
 ): void {
-  const w = (s: string): boolean => io.out.write(`${s}\n`);
-  w('');
-  if (r.end_reason === 'refused') {
-    io.err.write(
-      `cellvigil: ${r.end_detail.startsWith('rig_silent') ? ErrorCodes.RIG_SILENT : ErrorCodes.PRECHECK_REFUSED}: ${r.end_detail}\n`,
-    );
+  const real = new HostClock();
+  timers.every(clock, TICK_MS, () => run.tick());
+  timers.every(real, FLUSH_EVERY_MS, () => void run.flush());
+  timers.every(real, CHECKPOINT_EVERY_MS, () => {
+    run.checkClock();
+    void run.writeCheckpoint();
+  });
+  timers.every(real, STATUS_EVERY_MS, () => status.draw(real.now()));
+}
+
+/**
+ * The live feed, then the rig. A run that never got its rig leaves no folder behind (it would
+ * look like one to resume).
+ */
+async function connect(
+  req: RunRequest,
+  cfg: RunConfig,
+  run: ChannelRun,
+  link: RigLink,
+  status: StatusPrinter,
+  x: {
+    hub: LiveHub | null;
+    label: string;
+    folder: string;
+    startedWallMs: number;
+    resumed: boolean;
+  },
+): Promise<LiveLink | null> {
+  let live: LiveLink | null = null;
+  try {
+    live = await startLive(req, cfg, run, status, { ...x, source: link.description });
+    await link.open(run);
+    return live;
+  } catch (e) {
+    await live?.server.close().catch(() => undefined);
+    await run.abandon();
+    if (!x.resumed) await rm(x.folder, { recursive: true, force: true }).catch(() => undefined);
+    throw e;
   }
-  w(
-    `Run ended: ${r.end_reason} (${r.end_detail})${r.load_off_confirmed ? '' : ' — load-off NOT confirmed by the rig; its watchdog cuts the load within 5 s'}`,
-  );
-  const u = r.uncertainty.capacity_Ah;
-  w(
-    `  capacity      ${(r.capacity_Ah * 1000).toFixed(1)} mAh ± ${(u.expanded * 1000).toFixed(1)} mAh (k = 2)`,
-  );
-  w(
-    `  energy        ${r.energy_Wh.toFixed(4)} Wh ± ${r.uncertainty.energy_Wh.expanded.toFixed(4)} Wh (k = 2)`,
-  );
-  w(
-    `  load on       ${r.duration_s.toFixed(1)} s; mean ${r.mean_voltage_V?.toFixed(3) ?? '—'} V, end ${r.end_voltage_V?.toFixed(3) ?? '—'} V, cutoff ${r.cutoff_V.toFixed(3)} V`,
-  );
-  w(
-    `  frames        ${r.frames_accepted} accepted, ${r.frames_rejected} rejected, ${r.frames_lost} lost`,
-  );
-  w(
-    `  rig clock     ${r.rig_clock_error_ppm === null ? 'too short a run to estimate' : `${r.rig_clock_error_ppm} ppm${r.rig_clock_warning ? ' (more than 1 %; the host clock was used)' : ''}`}`,
-  );
-  w(`  calibration   ${r.calibration_id}${cfg.calibration ? '' : ' (nominal chain)'}`);
-  if (diskError)
-    io.err.write(
-      `cellvigil: ${ErrorCodes.RUN_FOLDER}: ${diskError.message} (${folder}). Free space or fix permissions; the load was switched off.\n`,
-    );
-  w(`  run folder    ${folder}`);
+}
+
+/**
+ * The live feed of the run: the station's hub for a station's channel, else a server of the
+ * run's own unless `--no-live`.
+ */
+async function startLive(
+  req: RunRequest,
+  cfg: RunConfig,
+  run: ChannelRun,
+  status: StatusPrinter,
+  x: { hub: LiveHub | null; label: string; folder: string; startedWallMs: number; source: string },
+): Promise<LiveLink | null> {
+  const info = {
+    label: x.label,
+    run_folder: x.folder,
+    chemistry: cfg.chemistry.id,
+    cells: cfg.cells,
+    cutoff_V: run.session.cutoffV,
+    floor_V: cfg.floorV,
+    calibration_id: run.pipeline.calibrationId,
+    started_wall: new Date(x.startedWallMs).toISOString(),
+    source: x.source,
+    max_temperature_C: cfg.maxTemperatureC,
+  };
+  if (x.hub) {
+    x.hub.setRun(info);
+    run.addObserver(liveObserver(x.hub));
+    return null;
+  }
+  if (req.listen === null) return null;
+  const live = await startLiveLink({
+    listen: req.listen,
+    info,
+    channel: req.channel,
+    stop: (by) => run.stop(by),
+    setCutoff: (volts, by) => run.setCutoff(volts, by),
+    mark: (note, by) => run.mark(note, by),
+    log: (ev) => {
+      if (!run.isEnded) run.log(ev);
+    },
+    print: (line) => status.line(line),
+  });
+  run.addObserver(live.observer);
+  return live;
 }

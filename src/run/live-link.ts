@@ -5,11 +5,10 @@
 import { LiveHub } from '../live/live-hub.js';
 import { startLiveServer, type LiveServer } from '../live/live-server.js';
 import type { LiveRunInfo, LiveSample } from '../live/live-types.js';
-import { SAFETY_END_REASONS } from '../session/session-types.js';
 import type { SampleRow } from '../sinks/sample-row.js';
 import { loadTokens } from '../live/tokens.js';
-import type { EventRecord } from './event-log.js';
-import type { RunObserver } from './daemon.js';
+import { attentionOf, type EventRecord, type LiveFeedEvent } from '../record/events.js';
+import type { RunObserver } from './observer.js';
 
 export interface LiveLinkOptions {
   listen: string;
@@ -20,29 +19,36 @@ export interface LiveLinkOptions {
   /** Whole-string volts; the run refuses anything below the floor. */
   setCutoff(volts: number, by: string): { ok: true } | { ok: false; error: string };
   mark(note: string, by: string): void;
-  log(name: string, detail: Record<string, unknown>): void;
+  log(e: LiveFeedEvent): void;
   print(line: string): void;
 }
 
-/** Events that deserve a viewer's attention, not just a line in the log, in words. */
-const ALARM_TEXT: Record<string, (d: Record<string, unknown>) => string> = {
-  clock_warning: (d) =>
-    `the rig's clock is off by ${(Number(d['rig_clock_error_ppm']) / 1e4).toFixed(1)} %; frames are timed by the host`,
-  link_down: () => "the rig's port went away; waiting for it to return",
-  load_off_unconfirmed: () =>
-    'the rig did not confirm the load off; its watchdog cuts it within 5 s',
-  calibration_rejected: (d) =>
-    `an edited calibration was rejected; ${String(d['kept_id'])} stays in force`,
-  chemistry_rejected: () => 'an edited chemistry file was rejected; the limits in force stay',
-  rig_error: (d) => `the rig reports ${String(d['code'])}: ${String(d['text'])}`,
-  implausible_reading: (d) => `a reading that cannot be true was left out: ${String(d['why'])}`,
-  open_load: () =>
-    'the load is on but no current flows: check the fuse, the load resistor and the sense wiring',
-  unlogged_discharge: (d) =>
-    `about ${Number(d['estimated_s']).toFixed(1)} s of discharge went unlogged while the daemon was down`,
-};
-/** A run ending on these is an alarm; at the cutoff or by the user it is the normal end. */
-const LIMIT_REASONS: readonly string[] = SAFETY_END_REASONS;
+/** An alarm in words, for viewers; null for an event that is not one. */
+export function alarmText(rec: EventRecord): string | null {
+  if (attentionOf(rec.event) !== 'alarm') return null;
+  switch (rec.event) {
+    case 'clock_warning':
+      return `the rig's clock is off by ${(rec.rig_clock_error_ppm / 1e4).toFixed(1)} %; frames are timed by the host`;
+    case 'link_down':
+      return "the rig's port went away; waiting for it to return";
+    case 'load_off_unconfirmed':
+      return 'the rig did not confirm the load off; its watchdog cuts it within 5 s';
+    case 'calibration_rejected':
+      return `an edited calibration was rejected; ${rec.kept_id} stays in force`;
+    case 'chemistry_rejected':
+      return 'an edited chemistry file was rejected; the limits in force stay';
+    case 'rig_error':
+      return `the rig reports ${rec.code}: ${rec.text}`;
+    case 'unlogged_discharge':
+      return `about ${rec.estimated_s.toFixed(1)} s of discharge went unlogged while the daemon was down`;
+    case 'implausible_reading':
+      return `a reading that cannot be true was left out: ${rec.why}`;
+    case 'open_load':
+      return 'the load is on but no current flows: check the fuse, the load resistor and the sense wiring';
+    default:
+      return rec.event;
+  }
+}
 
 /** A logged sample as the live feed shows it (an open or shorted thermistor has no temperature). */
 export function toLiveSample(row: SampleRow, loadOn: boolean): LiveSample {
@@ -83,7 +89,7 @@ export async function startLiveLink(o: LiveLinkOptions): Promise<LiveLink> {
     hub,
     listen: o.listen,
     tokenStore: tokens.tokens,
-    log: (name, detail) => o.log(name, detail),
+    log: (e) => o.log(e),
   });
   o.print(`live: ${server.url}`);
   for (const url of server.lanUrls)
@@ -117,18 +123,13 @@ export function liveObserver(hub: LiveHub): RunObserver {
   };
   const event = (rec: EventRecord): void => {
     passSample();
-    const d = rec as Record<string, unknown>;
     if (rec.event === 'state') {
-      const why = String(d['why'] ?? '');
-      hub.state({ host_s: rec.host_s, from: String(d['from']), to: String(d['to']), why });
-      const reason = why.split(':')[0] ?? '';
-      if (d['to'] === 'stopping' && LIMIT_REASONS.includes(reason))
-        hub.alarm({ host_s: rec.host_s, kind: reason, detail: why });
+      hub.state({ host_s: rec.host_s, from: rec.from, to: rec.to, why: rec.why });
     } else if (rec.event === 'cutoff_changed') {
-      hub.cutoffChanged(Number(d['cutoff_V']));
+      hub.cutoffChanged(rec.cutoff_V);
     } else {
-      const text = ALARM_TEXT[rec.event];
-      if (text) hub.alarm({ host_s: rec.host_s, kind: rec.event, detail: text(d) });
+      const text = alarmText(rec);
+      if (text !== null) hub.alarm({ host_s: rec.host_s, kind: rec.event, detail: text });
     }
   };
   return {
@@ -138,6 +139,7 @@ export function liveObserver(hub: LiveHub): RunObserver {
       queued ??= setImmediate(passSample);
     },
     event,
+    limitTripped: (hostS, reason, why) => hub.alarm({ host_s: hostS, kind: reason, detail: why }),
     ended: (result) => {
       passSample();
       hub.result(result as unknown as Record<string, unknown>);

@@ -1,25 +1,19 @@
+import type { Corrector } from '../calibration/calibration.js';
+import {
+  emptyFrameValues,
+  FrameMeasure,
+  type Converter,
+  type FrameValues,
+} from '../measure/frame-measure.js';
 import { decodeRigLine } from '../protocol/codec.js';
-import { FLAG_LOAD_ON, type RejectReason } from '../protocol/messages.js';
-import { TimeBase, type TimeBaseOptions } from '../timebase/time-base.js';
+import type { DataFrame, RejectReason, RigMessage } from '../protocol/messages.js';
+import type { RunEvent } from '../record/events.js';
+import type { TimeBaseOptions } from '../timebase/time-base.js';
 import type { Session } from '../session/session.js';
 import type { Action } from '../session/session-types.js';
 import type { SampleRow } from '../sinks/sample-row.js';
 
-/** Counts to nominal units: the rig profile's analog chain. */
-export interface Converter {
-  volts(raw: number): number;
-  amps(raw: number): number;
-  celsius(raw: number): number;
-  thermistorState(raw: number): 'ok' | 'open' | 'short';
-}
-
-/** Nominal to corrected units: the calibration in force (id 'none' without one). */
-export interface Corrector {
-  readonly id: string;
-  voltage(x: number): number;
-  current(x: number): number;
-  temperature(x: number): number;
-}
+export type { Converter } from '../measure/frame-measure.js';
 
 export interface FrameCounters {
   accepted: number;
@@ -39,11 +33,7 @@ export type LineOutcome =
       rigRestart: boolean;
     }
   | { kind: 'rejected'; reason: RejectReason; detail: string }
-  | {
-      kind: 'message';
-      actions: Action[];
-      event: { name: string; detail: Record<string, unknown> } | null;
-    }
+  | { kind: 'message'; actions: Action[]; event: RunEvent | null }
   | { kind: 'ignored' };
 
 export interface PipelineOptions {
@@ -55,39 +45,47 @@ export interface PipelineOptions {
   timeBase?: TimeBaseOptions;
   /** Host ms at which the run started; sample rows count seconds from it. */
   originMs: number;
+  /** Counters carried on from an interrupted run's folder. */
+  counters?: { accepted: number; rejected: number; lost: number };
 }
 
 /**
- * The core, one direction: line -> codec -> time base -> analog chain -> calibration ->
- * session. Pure and synchronous; the caller supplies arrival and wall times and carries the
- * returned rows and actions to the sinks and the rig.
+ * The core, one direction: line -> codec -> frame measure (time base, analog chain,
+ * calibration) -> session. Pure and synchronous; the caller supplies arrival and wall times and
+ * carries the returned rows and actions to the sinks and the rig.
  */
 export class Pipeline {
-  readonly counters: FrameCounters = {
-    accepted: 0,
-    rejected: 0,
-    lost: 0,
-    otherChannel: 0,
-    rejectedBy: {},
-  };
-  readonly timeBase: TimeBase;
-  private corrector: Corrector;
-  /** Integral of the uncorrected current while the load was on, for the uncertainty budget. */
-  nominalAh = 0;
-  private prevNominalA = 0;
+  readonly counters: FrameCounters;
+  readonly measure: FrameMeasure;
+  private readonly values: FrameValues = emptyFrameValues();
 
   constructor(private readonly o: PipelineOptions) {
-    this.timeBase = new TimeBase(o.timeBase);
-    this.corrector = o.corrector;
+    this.measure = new FrameMeasure(o.converter, o.corrector, o.originMs, o.timeBase);
+    this.counters = {
+      accepted: o.counters?.accepted ?? 0,
+      rejected: o.counters?.rejected ?? 0,
+      lost: o.counters?.lost ?? 0,
+      otherChannel: 0,
+      rejectedBy: {},
+    };
   }
 
   get calibrationId(): string {
-    return this.corrector.id;
+    return this.measure.calibrationId;
+  }
+
+  /** Integral of the uncorrected current while the load was on, for the uncertainty budget. */
+  get nominalAh(): number {
+    return this.measure.nominalAh;
+  }
+
+  rigClockErrorPpm(): number | null {
+    return this.measure.rigClockErrorPpm();
   }
 
   /** A new calibration applies from the next frame on. */
   setCorrector(c: Corrector): void {
-    this.corrector = c;
+    this.measure.setCorrector(c);
   }
 
   /** A run of bytes the line splitter dropped for having no line end: counted like any bad line. */
@@ -105,89 +103,71 @@ export class Pipeline {
     const decoded = decodeRigLine(text, this.o.adcBits);
     if (!decoded.ok) return this.reject(decoded.reason, decoded.detail);
     const m = decoded.message;
+    if (m.kind !== 'data') return this.message(m);
+    if (m.channel !== this.o.channel) {
+      this.counters.otherChannel++;
+      return { kind: 'ignored' };
+    }
+    return this.frame(m, arrivalMs, wallMs);
+  }
+
+  private frame(m: DataFrame, arrivalMs: number, wallMs: number): LineOutcome {
     const session = this.o.session;
+    this.counters.accepted++;
+    const stamp = this.measure.stamp(m, arrivalMs);
+    this.counters.lost += stamp.lost;
+    const v = this.measure.values(m, this.values);
+    this.measure.integrateNominal(v, stamp.dtMs);
+    const actions = session.frame({
+      hostMs: stamp.hostMs,
+      dtMs: stamp.dtMs,
+      gap: stamp.gap,
+      volts: v.volts,
+      amps: v.amps,
+      celsius: v.celsius,
+      thermistor: v.thermistor,
+      flags: m.flags,
+    });
+    const row: SampleRow = {
+      hostS: stamp.runMs / 1000,
+      wallMs,
+      channel: m.channel,
+      seq: m.seq,
+      tickMs: m.tickMs,
+      vRaw: m.vRaw,
+      iRaw: m.iRaw,
+      tRaw: m.tRaw,
+      flags: m.flags,
+      volts: v.volts,
+      amps: v.amps,
+      celsius: v.celsius,
+      chargeAh: session.integrator.chargeAh,
+      energyWh: session.integrator.energyWh,
+      state: session.state,
+      calibrationId: this.measure.calibrationId,
+    };
+    const { lost, gap, rigRestart } = stamp;
+    return { kind: 'sample', row, actions, lost, gap, rigRestart };
+  }
+
+  private message(m: Exclude<RigMessage, DataFrame>): LineOutcome {
     switch (m.kind) {
-      case 'data': {
-        if (m.channel !== this.o.channel) {
-          this.counters.otherChannel++;
-          return { kind: 'ignored' };
-        }
-        this.counters.accepted++;
-        const stamp = this.timeBase.stamp(m.seq, m.tickMs, arrivalMs);
-        this.counters.lost += stamp.lost;
-        const { converter: chain } = this.o;
-        const c = this.corrector;
-        const nominalA = chain.amps(m.iRaw);
-        const thermistor = chain.thermistorState(m.tRaw);
-        const volts = c.voltage(chain.volts(m.vRaw));
-        const amps = c.current(nominalA);
-        const celsius = thermistor === 'ok' ? c.temperature(chain.celsius(m.tRaw)) : Number.NaN;
-        const loadOn = (m.flags & FLAG_LOAD_ON) !== 0;
-        const onA = loadOn ? nominalA : 0;
-        this.nominalAh += ((this.prevNominalA + onA) / 2) * (stamp.dtMs / 3_600_000);
-        this.prevNominalA = onA;
-        const actions = session.frame({
-          hostMs: stamp.hostMs,
-          dtMs: stamp.dtMs,
-          gap: stamp.gap,
-          volts,
-          amps,
-          celsius,
-          thermistor,
-          flags: m.flags,
-        });
-        const row: SampleRow = {
-          hostS: (stamp.hostMs - this.o.originMs) / 1000,
-          wallMs,
-          channel: m.channel,
-          seq: m.seq,
-          tickMs: m.tickMs,
-          vRaw: m.vRaw,
-          iRaw: m.iRaw,
-          tRaw: m.tRaw,
-          flags: m.flags,
-          volts,
-          amps,
-          celsius,
-          chargeAh: session.integrator.chargeAh,
-          energyWh: session.integrator.energyWh,
-          state: session.state,
-          calibrationId: c.id,
-        };
-        return {
-          kind: 'sample',
-          row,
-          actions,
-          lost: stamp.lost,
-          gap: stamp.gap,
-          rigRestart: stamp.rigRestart,
-        };
-      }
       case 'ack':
         return {
           kind: 'message',
-          actions: session.ack(m.command, m.args),
-          event: { name: 'rig_ack', detail: { command: m.command, args: m.args } },
+          actions: this.o.session.ack(m.command, m.args),
+          event: { event: 'rig_ack', command: m.command, args: m.args },
         };
-      case 'hello':
-        return {
-          kind: 'message',
-          actions: [],
-          event: {
-            name: 'rig_hello',
-            detail: {
-              rig_id: m.rigId,
-              firmware: m.firmware,
-              adc_bits: m.adcBits,
-              channels: m.channels,
-            },
-          },
-        };
+      case 'hello': {
+        const { rigId: rig_id, firmware, adcBits: adc_bits, channels } = m;
+        const event: RunEvent = { event: 'rig_hello', rig_id, firmware, adc_bits, channels };
+        return { kind: 'message', actions: [], event };
+      }
       case 'rig-error':
         return {
           kind: 'message',
           actions: [],
-          event: { name: 'rig_error', detail: { code: m.code, text: m.text } },
+          event: { event: 'rig_error', code: m.code, text: m.text },
         };
     }
   }

@@ -95,7 +95,7 @@ export async function findResumePoint(dir: string): Promise<ResumePoint> {
       chargeAh,
       energyWh,
       onMs,
-      bridgedAh: (cp as { bridged_Ah?: number } | null)?.bridged_Ah ?? 0,
+      bridgedAh: cp?.bridged_Ah ?? 0,
     },
     rows,
     lastHostS,

@@ -16,7 +16,7 @@ import {
   pickScenario,
   type SimScenario,
 } from '../sim/scenarios.js';
-import type { RunManifest } from '../replay/run-manifest.js';
+import type { RunManifest } from '../record/manifest.js';
 import { parseScheduleOption, type Schedule } from '../schedule/schedule.js';
 import { parseScheduleYaml } from '../schedule/schedule-file.js';
 import { readConfigText } from '../core/config-file.js';
@@ -42,6 +42,8 @@ export interface RunConfig {
   schedule: Schedule | null;
   /** The schedule as given (file content or option text), for the manifest and a resume. */
   scheduleSource: { kind: 'file' | 'option'; text: string; where: string } | null;
+  /** What is written on the cell (a resumed run keeps its own); null when none was given. */
+  cellId: string | null;
 }
 
 /** `--schedule` names a file (YAML) or is written inline ("on 15 s every 1 min, 8 h per day, to 1.0 V"). */
@@ -96,19 +98,8 @@ function checkSameRun(req: RunRequest, m: RunManifest): void {
   if (req.channel !== m.channel) clash('--channel', req.channel, m.channel);
 }
 
-export async function resolveRunConfig(
-  req: RunRequest,
-  resumed: RunManifest | null = null,
-): Promise<RunConfig> {
-  if (resumed) {
-    checkSameRun(req, resumed);
-    req = {
-      ...req,
-      chemistry: resumed.chemistry.id,
-      cells: resumed.cells,
-      cutoff: resumed.cutoff_per_cell_V,
-    };
-  }
+/** The options that need no file: one rig, a speed only for the simulated one, a link timeout, a channel, a cell id. */
+function checkRunOptions(req: RunRequest): void {
   if (req.cellId !== undefined && !CELL_ID_PATTERN.test(req.cellId))
     throw makeError(
       ErrorCodes.USAGE,
@@ -156,6 +147,22 @@ export async function resolveRunConfig(
       'Give the rig channel the cell is on, 0 to 15.',
     );
   }
+}
+
+export async function resolveRunConfig(
+  req: RunRequest,
+  resumed: RunManifest | null = null,
+): Promise<RunConfig> {
+  if (resumed) {
+    checkSameRun(req, resumed);
+    req = {
+      ...req,
+      chemistry: resumed.chemistry.id,
+      cells: resumed.cells,
+      cutoff: resumed.cutoff_per_cell_V,
+    };
+  }
+  checkRunOptions(req);
   const scenario =
     req.sim !== undefined ? pickScenario(loadScenarios(DEFAULT_SCENARIOS_PATH), req.sim) : null;
   const rigPath = resumed?.rig.file ?? resolve(req.rig ?? DEFAULT_RIG_PATH);
@@ -174,9 +181,8 @@ export async function resolveRunConfig(
   }
   const chemistry = resumed ? resumed.chemistry.profile : findChemistry(chemistries, chemistryId);
   const cells = validateCells(req.cells ?? scenario?.cell.cells ?? 1);
-  const resumedSchedule =
-    (resumed as { schedule?: { kind: 'file' | 'option'; text: string; where: string } } | null)
-      ?.schedule ?? null;
+  const kept = resumed?.schedule;
+  const resumedSchedule = kept ? { kind: kept.kind, text: kept.text, where: kept.where } : null;
   const scheduleSource =
     resumedSchedule ?? (req.schedule !== undefined ? await readScheduleSource(req.schedule) : null);
   const schedule = scheduleSource ? parseScheduleSource(scheduleSource) : null;
@@ -196,6 +202,7 @@ export async function resolveRunConfig(
       : (resumed?.calibration.content ?? null);
   return {
     request: req,
+    cellId: resumed?.cell_id ?? req.cellId ?? null,
     rigPath,
     profile,
     chain,

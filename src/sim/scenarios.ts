@@ -12,10 +12,10 @@ import { SCENARIO_FILE_SCHEMA } from './scenario-schema.js';
 import type { SimChannelOptions, ThermistorWiring } from './sim-channel.js';
 import { SimRig } from './sim-rig.js';
 
-/** The simulator scenarios shipped with the package. */
+/** One named scenario of config/sim-scenarios.yaml, after validation (defaults filled in). */
+/** The scenarios shipped with the package (`--sim <name>`). */
 export const DEFAULT_SCENARIOS_PATH = packagePath('config/sim-scenarios.yaml');
 
-/** One named scenario of config/sim-scenarios.yaml, after validation (defaults filled in). */
 export interface SimScenario {
   name: string;
   description: string;

@@ -76,7 +76,7 @@ describe('a stalled viewer while samples flow fast', () => {
     rig = await startRig({
       queue: { lowWaterBytes: LOW, maxBufferedBytes: MAX, stallMs: 1500 },
       sweepMs: 50,
-      log: (name, detail) => events.push([name, detail]),
+      log: ({ event, ...detail }) => events.push([event, detail]),
     });
     let logged = 0;
     rig.hub.subscribe((m) => {

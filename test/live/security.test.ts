@@ -261,7 +261,7 @@ describe('live server: who may do what', () => {
 
   it('logs refusals, but no more than 30 a minute, so hammering the port cannot grow the event log', async () => {
     const events: string[] = [];
-    rig = await startRig({ log: (name) => events.push(name) });
+    rig = await startRig({ log: (e) => events.push(e.event) });
     const v = viewer(wsUrl(rig.server));
     await v.until((x) => x.of('hello').length === 1);
     for (let i = 0; i < 200; i++) v.send({ type: 'stop', v: 1, token: `guess-${i}` });

@@ -34,7 +34,7 @@ describe('watch: pure parts', () => {
     expect(() => liveSocketUrl('ftp://h/')).toThrow(expect.objectContaining({ code: 'CV_USAGE' }));
   });
 
-  it("maps the end reason to the run's exit code (exit codes of the README: 0 normal, 3 safety limit, 2 refused)", () => {
+  it("maps the end reason to the run's exit code (exit codes of the README: 0 normal, 3 safety limit, 2 refused, 1 a rig that never sent a frame)", () => {
     expect(exitCodeForResult({ end_reason: 'cutoff' })).toBe(0);
     expect(exitCodeForResult({ end_reason: 'stopped' })).toBe(0);
     expect(exitCodeForResult({ end_reason: 'over_temperature' })).toBe(3);
@@ -44,10 +44,15 @@ describe('watch: pure parts', () => {
       exitCodeForResult({
         end_reason: 'refused',
         end_detail: "resting voltage above the chemistry's highest",
+        frames_accepted: 12,
       }),
     ).toBe(2);
     expect(
-      exitCodeForResult({ end_reason: 'refused', end_detail: 'rig_silent: no frame in 5 s' }),
+      exitCodeForResult({
+        end_reason: 'refused',
+        end_detail: 'rig_silent: no frame in 5 s',
+        frames_accepted: 0,
+      }),
     ).toBe(1);
     expect(exitCodeForResult({ end_reason: 'exploded' })).toBe(1);
     expect(exitCodeForResult({})).toBe(1);

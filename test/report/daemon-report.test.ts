@@ -7,7 +7,7 @@ import { describe, expect, it } from 'vitest';
 import { progressBar } from '../../src/cli/progress.js';
 import { reportRuns } from '../../src/report/report-runs.js';
 import { startRun } from '../../src/run/daemon.js';
-import type { RunResult } from '../../src/run/result.js';
+import type { RunResult } from '../../src/record/result.js';
 
 describe('report on a folder written by `cellvigil run`', () => {
   it("recomputes the daemon's own figures from the raw counts", async () => {

@@ -74,9 +74,32 @@ describe('a resumed run', () => {
     ];
     await writeFile(join(dir, 'samples-0001.csv'), `${lines.join('\n')}\n`);
     const events = [
-      { host_s: 0, event: 'run_started' },
-      { host_s: 160, event: 'resumed', rows: 1001 },
-      { host_s: 170.05, event: 'unlogged_discharge', estimated_s: 5.25 },
+      {
+        host_s: 0,
+        event: 'run_started',
+        source: 'test rows',
+        chemistry: 'li-ion',
+        cells: 1,
+        cutoff_V: 3,
+        version: '0.1.0',
+      },
+      {
+        host_s: 160,
+        event: 'resumed',
+        rows: 1001,
+        charge_Ah: 0,
+        energy_Wh: 0,
+        down_s: 60,
+        cut_bytes: 0,
+        source: 'test rows',
+      },
+      {
+        host_s: 170.05,
+        event: 'unlogged_discharge',
+        estimated_s: 5.25,
+        charge_Ah: 0,
+        basis: 'the watchdog cut the load',
+      },
     ];
     await writeFile(
       join(dir, 'events.jsonl'),

@@ -19,12 +19,13 @@ import { loadChemistries } from '../../src/chemistry/chemistry-file.js';
 import { checkRestingVoltage, resolveCutoff } from '../../src/chemistry/limits.js';
 import { VirtualClock } from '../../src/core/clock.js';
 import { encodeCommand } from '../../src/protocol/codec.js';
-import { EventLog } from '../../src/run/event-log.js';
+import { EventLog } from '../../src/record/event-log.js';
+import type { RunEvent } from '../../src/record/events.js';
 import { Pipeline } from '../../src/run/pipeline.js';
-import { buildResult, type RunResult } from '../../src/run/result.js';
+import { buildResult, type RunResult } from '../../src/record/result.js';
 import { plausibilityFor } from '../../src/session/plausibility.js';
 import { Session } from '../../src/session/session.js';
-import type { Action } from '../../src/session/session-types.js';
+import type { Action, SessionEnd } from '../../src/session/session-types.js';
 import { FrontEnd } from '../../src/sim/front-end.js';
 import { mulberry32 } from '../../src/sim/prng.js';
 import { buildSimRig, type SimOverrides, type SimScenario } from '../../src/sim/scenarios.js';
@@ -182,8 +183,7 @@ export async function simulateRun(o: SimRunOptions): Promise<SimRun> {
   });
 
   const hostS = (): number => clock.now() / 1000;
-  const log = (name: string, detail: Record<string, unknown> = {}): void =>
-    void events.write(hostS(), clock.wallNow(), name, detail);
+  const log = (ev: RunEvent): void => void events.write(hostS(), clock.wallNow(), ev);
   let end: { reason: string; detail: string; confirmed: boolean; atMs: number } | null = null;
   const afterEndMs = (o.afterEndS ?? 0) * 1000;
   let loaded = 0;
@@ -193,9 +193,10 @@ export async function simulateRun(o: SimRunOptions): Promise<SimRun> {
       if (a.type === 'send') {
         const line = encodeCommand(a.command);
         clock.setTimer(() => rig.receive(line), 2);
-        if (a.command.command !== 'BEAT') log('command', { line: line.trim() });
+        if (a.command.command !== 'BEAT')
+          log({ event: 'command', line: line.trim(), queued: true });
       } else if (a.type === 'event') {
-        log(a.name, a.detail);
+        log({ event: a.name, ...a.detail } as RunEvent);
       } else if (!end) {
         end = {
           reason: a.reason,
@@ -215,19 +216,26 @@ export async function simulateRun(o: SimRunOptions): Promise<SimRun> {
         samples.append(formatSampleRow(out.row));
         if (session.loadOn) loaded++;
         if (out.gap) gaps++;
-        if (out.lost > 0) log('frames_lost', { count: out.lost, seq: out.row.seq });
+        if (out.lost > 0) log({ event: 'frames_lost', count: out.lost, seq: out.row.seq });
         dispatch(out.actions);
       } else if (out.kind === 'rejected') {
         events.rejected(hostS(), clock.wallNow(), out.reason, out.detail, text);
       } else if (out.kind === 'message') {
-        if (out.event) log(out.event.name, out.event.detail);
+        if (out.event) log(out.event);
         dispatch(out.actions);
       }
     },
     () => undefined,
   );
-  log('run_started', { source: 'sim', chemistry: chemistry.id, cells });
-  log('cautions', { lines: chemistry.cautions });
+  log({
+    event: 'run_started',
+    source: 'sim',
+    chemistry: chemistry.id,
+    cells,
+    cutoff_V: cutoff.total,
+    version: '0.1.0',
+  });
+  log({ event: 'cautions', lines: chemistry.cautions });
   rig.start((chunk) => lines.push(chunk));
   clock.setTimer(() => dispatch(session.tick(clock.now())), 100, true);
   dispatch(session.begin(clock.now()));
@@ -247,7 +255,7 @@ export async function simulateRun(o: SimRunOptions): Promise<SimRun> {
   const e = end as { reason: string; detail: string; confirmed: boolean; atMs: number } | null;
   if (!e) throw new Error('the simulated run did not end within its time limit');
   const result = buildResult({
-    end: e.reason as RunResult['end_reason'],
+    end: e.reason as SessionEnd,
     detail: e.detail,
     loadOffConfirmed: e.confirmed,
     chargeAh: session.integrator.chargeAh,
@@ -260,7 +268,7 @@ export async function simulateRun(o: SimRunOptions): Promise<SimRun> {
     cutoffV: session.cutoffV,
     counters: pipeline.counters,
     implausibleFrames: session.plausibility.implausibleFrames,
-    rigClockErrorPpm: pipeline.timeBase.rigClockErrorPpm(),
+    rigClockErrorPpm: pipeline.rigClockErrorPpm(),
     calibration,
     calibrationId: pipeline.calibrationId,
     ampsPerCount: chain.ampsPerCount,
@@ -275,7 +283,8 @@ export async function simulateRun(o: SimRunOptions): Promise<SimRun> {
     schedule: null,
   });
   events.summarise(hostS(), clock.wallNow());
-  events.write(hostS(), clock.wallNow(), 'run_ended', {
+  events.write(hostS(), clock.wallNow(), {
+    event: 'run_ended',
     end_reason: e.reason,
     detail: e.detail,
     load_off_confirmed: e.confirmed,

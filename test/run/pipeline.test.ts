@@ -84,15 +84,15 @@ describe('pipeline: line -> codec -> time base -> chain -> calibration -> sessio
     rig.run(10_000, () => rig.session.state === 'discharging');
     expect(rig.feed(referenceLine('H,bench-a,1.4.2,12,1'))).toMatchObject({
       kind: 'message',
-      event: { name: 'rig_hello', detail: { adc_bits: 12 } },
+      event: { event: 'rig_hello', adc_bits: 12 },
     });
     expect(rig.feed(referenceLine('E,3,thermistor rail'))).toMatchObject({
       kind: 'message',
-      event: { name: 'rig_error', detail: { code: '3' } },
+      event: { event: 'rig_error', code: '3' },
     });
     rig.session.requestStop(rig.t, 'test');
     const ack = rig.feed(referenceLine('A,LOAD,0,0'));
-    expect(ack).toMatchObject({ kind: 'message', event: { name: 'rig_ack' } });
+    expect(ack).toMatchObject({ kind: 'message', event: { event: 'rig_ack' } });
     if (ack.kind !== 'message') throw new Error(ack.kind);
     expect(ack.actions.some((a) => a.type === 'end')).toBe(true);
     expect(rig.session.state).toBe('ended');

@@ -4,7 +4,7 @@ import { join } from 'node:path';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { openRunFolder } from '../../src/replay/run-folder.js';
 import { recomputeRun } from '../../src/report/recompute.js';
-import { exitCodeFor } from '../../src/run/result.js';
+import { exitCodeForResult } from '../../src/record/result.js';
 import { loadScenarios } from '../../src/sim/scenarios.js';
 import {
   demoScenario,
@@ -77,7 +77,7 @@ describe('implausible readings through the pipeline, on the simulated rig', () =
     expect(r.result.frames_implausible).toBeGreaterThanOrEqual(20);
     expect(r.result.load_off_confirmed).toBe(true);
     expect(r.truth.loadOn).toBe(false);
-    expect(exitCodeFor(r.result.end_reason, r.result.end_detail)).toBe(3);
+    expect(exitCodeForResult(r.result as unknown as Record<string, unknown>)).toBe(3);
     expect(r.result.end_detail).toMatch(/^implausible_reading: 6\.\d+ V is above 1\.875 V/);
     expect(rel(r.result.energy_Wh, r.truth.energyWh)).toBeLessThan(0.005);
   });

@@ -1,8 +1,13 @@
 import type { Argv, CommandModule } from 'yargs';
+import { brokerOptions, brokerRequest, type BrokerArgs } from '../../fleet/broker-args.js';
+import { checkStationId, defaultStationId, resolveBroker } from '../../fleet/broker-options.js';
+import type { FleetRunRequest } from '../../fleet/fleet-link.js';
 import { startRun } from '../../run/daemon.js';
 import { DEFAULT_LISTEN, DEFAULT_ROTATE_BYTES, type RunRequest } from '../../run/run-request.js';
 
-interface RunArgs {
+interface RunArgs extends BrokerArgs {
+  station: string | undefined;
+  'broker-sample-rate': number;
   port: string | undefined;
   sim: string | undefined;
   speed: number;
@@ -124,12 +129,49 @@ function runOptions<T>(y: Argv<T>) {
     });
 }
 
+/** Publishing the run to an MQTT broker (docs/fleet.md). */
+function brokerRunOptions<T>(y: Argv<T>) {
+  return y
+    .options(brokerOptions('publish the run to (docs/fleet.md)'))
+    .option('station', {
+      type: 'string',
+      describe: "This station's id on the broker (default: the host name)",
+    })
+    .option('broker-sample-rate', {
+      type: 'number',
+      default: 2,
+      describe: 'Samples per second sent to the broker (the newest of each interval)',
+    })
+    .check((a) => {
+      if (a.broker !== undefined && a.live === false)
+        throw new Error('--broker publishes what the live feed shows: drop --no-live.');
+      if (!(a['broker-sample-rate'] > 0 && a['broker-sample-rate'] <= 20))
+        throw new Error('--broker-sample-rate must be above 0 and at most 20.');
+      return true;
+    });
+}
+
 export const runCommand: CommandModule<object, RunArgs> = {
   command: 'run',
   describe: 'Discharge a cell: acquire, integrate, enforce the limits, log',
-  builder: (y) => runOptions(rigAndCellOptions(y)),
+  builder: (y) => brokerRunOptions(runOptions(rigAndCellOptions(y))),
   handler: async (args) => {
-    const req: RunRequest = {
+    // Resolved here, so a wrong broker option or credentials file stops before any load is on.
+    const station = args.station !== undefined ? checkStationId(args.station) : defaultStationId();
+    const fleet: FleetRunRequest = args.broker
+      ? {
+          fleet: {
+            broker: resolveBroker(
+              brokerRequest({ ...args, broker: args.broker }),
+              `cellvigil-${station}`,
+            ),
+            station,
+            sampleHz: args['broker-sample-rate'],
+          },
+        }
+      : {};
+    const req: RunRequest & FleetRunRequest = {
+      ...fleet,
       speed: args.speed,
       runs: args.runs,
       listen: args.live ? args.listen : null,

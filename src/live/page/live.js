@@ -472,13 +472,14 @@
 
   function connect() {
     const scheme = location.protocol === 'https:' ? 'wss:' : 'ws:';
-    // A station's channel page follows its own channel (`?channel=<rig>/<n>` in the page address).
+    // A station's channel page follows its own channel (`?channel=<rig>/<n>` in the page address);
+    // a fleet view serves this page for one station's channel, named by station and ch.
     const q = new URLSearchParams();
     if (viewerToken) q.set('token', viewerToken);
-    if (params.get('channel')) q.set('channel', params.get('channel'));
-    const qs = q.toString() ? `?${q.toString()}` : '';
+    for (const k of ['channel', 'station', 'ch']) if (params.has(k)) q.set(k, params.get(k));
+    const qs = q.toString();
     setLink('connecting', 'connecting');
-    ws = new WebSocket(`${scheme}//${location.host}/live${qs}`);
+    ws = new WebSocket(`${scheme}//${location.host}/live${qs ? `?${qs}` : ''}`);
     ws.addEventListener('message', (ev) => {
       let m;
       try {

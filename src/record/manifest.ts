@@ -1,8 +1,10 @@
 /**
- * manifest.json of a run folder (docs/run-folder.md): checked with a schema, and the copies it
- * holds (rig profile, calibration, chemistry profile) checked by their own validators, so a
- * recompute never runs on a profile the daemon itself would have refused.
+ * manifest.json of a run folder (docs/run-folder.md): what was run, written once when the run
+ * starts. Read back checked with a schema, and the copies it holds (rig profile, calibration,
+ * chemistry profile) checked by their own validators, so a recompute never runs on a profile the
+ * daemon itself would have refused.
  */
+import { join } from 'node:path';
 import { Ajv, type SchemaObject } from 'ajv';
 import type { Calibration } from '../calibration/calibration.js';
 import { parseCalibration } from '../calibration/calibration-file.js';
@@ -11,6 +13,10 @@ import type { RigProfile } from '../chain/rig-profile-types.js';
 import { parseChemistries } from '../chemistry/chemistry-file.js';
 import type { ChemistryProfile } from '../chemistry/chemistry-types.js';
 import { CellvigilError, ErrorCodes, makeError } from '../core/errors.js';
+import { writeJsonAtomic } from '../sinks/atomic-json.js';
+import { schemaProblems } from './json-file.js';
+
+export const MANIFEST_FILE = 'manifest.json';
 
 export interface RunManifest {
   format: 'cellvigil-run';
@@ -142,18 +148,13 @@ export function parseManifest(textIn: string, where: string): RunManifest {
       FIX,
     );
   }
-  if (!validate(data)) {
-    const problems = (validate.errors ?? []).map((e) => {
-      const key = e.instancePath.split('/').filter(Boolean).join('.') || '(top level)';
-      return `${key} ${e.message ?? 'is invalid'}`;
-    });
+  if (!validate(data))
     throw makeError(
       ErrorCodes.RUN_DATA,
-      `the manifest is malformed: ${problems.join('; ')}`,
+      `the manifest is malformed: ${schemaProblems(validate).join('; ')}`,
       where,
       FIX,
     );
-  }
   const m = data as RunManifest;
   const nested = <T>(key: string, check: () => T): T => {
     try {
@@ -204,4 +205,8 @@ export function parseManifest(textIn: string, where: string): RunManifest {
     parseChemistries(JSON.stringify({ [m.chemistry.id]: profile }), `${where}: chemistry.profile`),
   );
   return { ...m, chemistry: { id: m.chemistry.id, profile: chemistry! } };
+}
+
+export function writeManifest(folder: string, m: RunManifest): Promise<void> {
+  return writeJsonAtomic(join(folder, MANIFEST_FILE), m);
 }

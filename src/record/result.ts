@@ -1,13 +1,22 @@
+/**
+ * result.json: the figures of a finished run. Built here from the run's totals (by the daemon and
+ * by the report's recompute alike), written by the run's recorder, read back with its schema.
+ */
+import { join } from 'node:path';
+import { Ajv, type SchemaObject } from 'ajv';
 import type { Calibration } from '../calibration/calibration.js';
-import type { EndReason, SessionEnd } from '../session/session-types.js';
+import { SAFETY_END_REASONS, type EndReason, type SessionEnd } from '../session/session-types.js';
 import { runUncertainty, type FigureUncertainty } from '../results/uncertainty.js';
+import { writeJsonAtomic } from '../sinks/atomic-json.js';
+import { parseChecked, readOptional } from './json-file.js';
 
 /** result.json (docs/run-folder.md lists every key). */
 export interface RunResult {
   capacity_Ah: number;
   energy_Wh: number;
   duration_s: number;
-  end_reason: EndReason | 'refused';
+  /** `interrupted` is written by `report` for a run that never finished. */
+  end_reason: EndReason | 'refused' | 'interrupted';
   mean_voltage_V: number | null;
   end_voltage_V: number | null;
   cutoff_V: number;
@@ -126,8 +135,12 @@ export function buildResult(x: ResultInput): RunResult {
   };
 }
 
-/** Exit codes (README): 0 normal end, 2 nothing switched on (configuration, precheck), 3 safety limit. */
-export function exitCodeFor(end: SessionEnd, detail: string): number {
+/**
+ * Exit codes (README): 0 normal end, 2 nothing switched on (configuration, precheck), 3 safety
+ * limit. A refusal before the rig sent a single valid frame is a failure of the set-up, not of
+ * the configuration: 1.
+ */
+export function exitCodeFor(end: SessionEnd, rigNeverSpoke: boolean): number {
   switch (end) {
     case 'cutoff':
     case 'stopped':
@@ -139,7 +152,81 @@ export function exitCodeFor(end: SessionEnd, detail: string): number {
     case 'open_load':
       return 3;
     case 'refused':
-      // A rig that never spoke is a failure of the set-up, not of the configuration.
-      return detail.startsWith('rig_silent') ? 1 : 2;
+      return rigNeverSpoke ? 1 : 2;
   }
+}
+
+const END_REASONS: ReadonlySet<string> = new Set<SessionEnd>([
+  'cutoff',
+  'stopped',
+  'refused',
+  ...SAFETY_END_REASONS,
+]);
+
+/** The exit code a result stands for (a result another program sent: anything unknown is 1). */
+export function exitCodeForResult(result: Record<string, unknown>): number {
+  const reason = result['end_reason'];
+  if (typeof reason !== 'string' || !END_REASONS.has(reason)) return 1;
+  return exitCodeFor(reason as SessionEnd, result['frames_accepted'] === 0);
+}
+
+export const RESULT_FILE = 'result.json';
+
+const num = { type: 'number' };
+const count = { type: 'integer', minimum: 0 };
+const figure = {
+  type: 'object',
+  required: ['standard', 'expanded', 'k'],
+  properties: {
+    standard: num,
+    expanded: num,
+    k: num,
+    basis: { type: 'string' },
+    terms: { type: 'array' },
+  },
+};
+
+// Open: later versions may add keys; the keys a recompute reads must have their types.
+const SCHEMA: SchemaObject = {
+  type: 'object',
+  required: ['capacity_Ah', 'energy_Wh', 'duration_s', 'end_reason', 'calibration_id'],
+  properties: {
+    capacity_Ah: num,
+    energy_Wh: num,
+    duration_s: num,
+    end_reason: { type: 'string' },
+    mean_voltage_V: { type: ['number', 'null'] },
+    end_voltage_V: { type: ['number', 'null'] },
+    cutoff_V: num,
+    frames_accepted: count,
+    frames_rejected: count,
+    frames_lost: count,
+    rig_clock_error_ppm: { type: ['number', 'null'] },
+    calibration_id: { type: 'string' },
+    uncertainty: { type: 'object', properties: { capacity_Ah: figure, energy_Wh: figure } },
+  },
+};
+
+const validate = new Ajv({ allErrors: true, strict: true, strictRequired: false }).compile(SCHEMA);
+
+/** Writes result.json (or a recompute's result-<calibration id>.json) at `path`, atomically. */
+export function writeResult(path: string, result: RunResult): Promise<void> {
+  return writeJsonAtomic(path, result);
+}
+
+export function resultPath(folder: string): string {
+  return join(folder, RESULT_FILE);
+}
+
+/** result.json, or null when the run has none (it was interrupted). */
+export async function readResultFile(path: string): Promise<RunResult | null> {
+  const text = await readOptional(path);
+  return text === null
+    ? null
+    : parseChecked<RunResult>(
+        text,
+        path,
+        validate,
+        'Move the damaged file aside; `cellvigil report` then writes a new result.json from the raw counts.',
+      );
 }

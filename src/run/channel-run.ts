@@ -1,0 +1,425 @@
+/**
+ * One channel's run: its session and pipeline, its recorder (the run folder) and its result.
+ * It takes the rig's lines and link changes from whatever carries them, and hands the session's
+ * commands back through `send`; it never touches a port itself, so one rig link can carry several
+ * channels and one daemon several links.
+ */
+import { applyCalibration, type Calibration } from '../calibration/calibration.js';
+import type { ChemistryProfile } from '../chemistry/chemistry-types.js';
+import { checkStartVoltage } from '../chemistry/full-scale.js';
+import type { Clock } from '../core/clock.js';
+import { ErrorCodes } from '../core/errors.js';
+import { encodeCommand } from '../protocol/codec.js';
+import type { Checkpoint } from '../record/checkpoint.js';
+import { isEventKind, SAFETY_ENDS, type RunEvent } from '../record/events.js';
+import { buildResult, CLOCK_WARN_PPM, exitCodeFor, type RunResult } from '../record/result.js';
+import { describeSchedule } from '../schedule/schedule.js';
+import { plausibilityFor } from '../session/plausibility.js';
+import { Session } from '../session/session.js';
+import type { Action, SessionEnd } from '../session/session-types.js';
+import type { SampleRow } from '../sinks/sample-row.js';
+import type { RunObserver } from './observer.js';
+import { Pipeline } from './pipeline.js';
+import { RunRecorder } from './recorder.js';
+import type { ResumePoint } from './resume.js';
+import type { RunConfig } from './run-config.js';
+import type { StatusPrinter } from './status-line.js';
+import { bridgeUnlogged } from './unlogged.js';
+
+export interface ChannelRunOptions {
+  cfg: RunConfig;
+  channel: number;
+  linkTimeoutS: number;
+  folder: string;
+  rotateBytes: number;
+  /** When the run started (a resumed run: when it first started). */
+  startedWallMs: number;
+  /** Measurement time: the host's monotonic clock, or the simulated rig's virtual one. */
+  clock: Clock;
+  resume: ResumePoint | null;
+  status: StatusPrinter;
+  /** A framed command line for the rig; false when it could not be queued. */
+  send(line: string): boolean;
+  /** When the channel ends: stop everything that feeds it (timers, file watchers). */
+  stopInputs(): Promise<void>;
+  /** After its last event: let go of the rig link. */
+  releaseLink(): Promise<void>;
+}
+
+export interface ChannelOutcome {
+  exitCode: number;
+  result: RunResult;
+  diskError: Error | null;
+  /** The run was refused before a single valid frame: the rig never spoke. */
+  rigNeverSpoke: boolean;
+}
+
+export class ChannelRun {
+  readonly session: Session;
+  readonly pipeline: Pipeline;
+  readonly recorder: RunRecorder;
+  readonly done: Promise<ChannelOutcome>;
+  /** Host ms of the run's origin: sample rows count seconds from it. */
+  readonly originMs: number;
+  private readonly observers: RunObserver[] = [];
+  private ended = false;
+  private loadedSamples = 0;
+  private gaps = 0;
+  /** Frames that reached the session since this process started. */
+  private framesSeen = 0;
+  private clockWarned = false;
+  private unloggedPending: boolean;
+  private calibration: Calibration | null;
+  private settle!: (o: ChannelOutcome) => void;
+  private fail!: (e: unknown) => void;
+
+  constructor(private readonly o: ChannelRunOptions) {
+    const { cfg, resume, clock } = o;
+    this.calibration = cfg.calibration;
+    this.unloggedPending = resume?.last?.loadOn === true;
+    this.session = newSession(o);
+    // A resumed run's row times carry on from its last row, plus the wall time it was down.
+    this.originMs = resume
+      ? clock.now() - (resume.lastHostS * 1000 + Math.max(0, Date.now() - resume.lastWallMs))
+      : clock.now();
+    if (resume) this.session.restore(resume.totals);
+    this.pipeline = new Pipeline({
+      channel: o.channel,
+      adcBits: cfg.profile.adc.bits,
+      converter: cfg.chain,
+      corrector: applyCalibration(cfg.calibration),
+      session: this.session,
+      originMs: this.originMs,
+      ...(resume ? { counters: { accepted: resume.rows, ...resume.counters } } : {}),
+    });
+    this.recorder = new RunRecorder({
+      folder: o.folder,
+      rotateBytes: resume?.run.manifest.samples.rotate_bytes ?? o.rotateBytes,
+      firstIndex: resume?.nextIndex ?? 1,
+      now: () => ({ hostS: this.hostS(), wallMs: clock.wallNow() }),
+      written: (rec) => {
+        for (const ob of this.observers) ob.event?.(rec);
+      },
+      diskError: (e) => this.diskError(e),
+    });
+    this.done = new Promise<ChannelOutcome>((res, rej) => {
+      this.settle = res;
+      this.fail = rej;
+    });
+  }
+
+  get isEnded(): boolean {
+    return this.ended;
+  }
+
+  addObserver(ob: RunObserver): void {
+    this.observers.push(ob);
+  }
+
+  hostS(): number {
+    return (this.o.clock.now() - this.originMs) / 1000;
+  }
+
+  log(ev: RunEvent): void {
+    this.recorder.event(ev);
+  }
+
+  /** Starts the clock for "rig silent" and asks the rig for its hello. */
+  begin(): void {
+    this.dispatch(this.session.begin(this.o.clock.now()));
+  }
+
+  tick(): void {
+    this.dispatch(this.session.tick(this.o.clock.now()));
+  }
+
+  /** One line from the rig. */
+  line(text: string): void {
+    if (this.ended) return;
+    const clock = this.o.clock;
+    const out = this.pipeline.line(text, clock.now(), clock.wallNow());
+    switch (out.kind) {
+      case 'sample':
+        this.sample(out.row, out.lost, out.gap, out.rigRestart);
+        this.dispatch(out.actions);
+        break;
+      case 'rejected':
+        this.recorder.rejected(out.reason, out.detail, text);
+        break;
+      case 'message':
+        if (out.event) this.log(out.event);
+        this.dispatch(out.actions);
+        break;
+      case 'ignored':
+        break;
+    }
+  }
+
+  /** A run of bytes without a line end, dropped by the line splitter. */
+  overlong(length: number): void {
+    const out = this.pipeline.overlong(length);
+    if (out.kind === 'rejected') this.recorder.rejected(out.reason, out.detail, '');
+  }
+
+  linkClosed(reason: string): void {
+    if (this.ended) return;
+    this.log({ event: 'link_closed', reason });
+    this.o.status.line(
+      `The rig's port went away (${reason}); reopening it. The rig's watchdog cuts the load after 5 s without heartbeats.`,
+    );
+    this.dispatch(this.session.linkDown(this.o.clock.now()));
+  }
+
+  linkReopened(): void {
+    if (this.ended) return;
+    this.o.status.line('The rig is back; reading its load state before anything else.');
+    this.dispatch(this.session.linkUp(this.o.clock.now()));
+  }
+
+  /** Asks for a stop: the load off, then the result. */
+  stop(by: string): void {
+    this.dispatch(this.session.requestStop(this.o.clock.now(), by));
+  }
+
+  mark(note: string, by: string): void {
+    this.log({ event: 'mark', note, by });
+  }
+
+  /** Whole-string volts; the session refuses anything below the floor. */
+  setCutoff(volts: number, by: string): { ok: true } | { ok: false; error: string } {
+    if (this.ended) return { ok: false, error: 'the run has ended' };
+    const r = this.session.setCutoff(volts);
+    if (!r.ok) {
+      this.log({ event: 'cutoff_refused', requested_V: volts, by, why: r.why });
+      return { ok: false, error: r.why };
+    }
+    const cutoffV = this.session.cutoffV;
+    this.log({
+      event: 'cutoff_changed',
+      cutoff_V: cutoffV,
+      cutoff_V_per_cell: cutoffV / this.o.cfg.cells,
+      by,
+    });
+    return { ok: true };
+  }
+
+  /** A calibration edited mid-run applies from the next sample; the same one again changes nothing. */
+  useCalibration(next: Calibration, file: string): { old: string } | null {
+    if (this.ended || next.id === this.pipeline.calibrationId) return null;
+    const old = this.pipeline.calibrationId;
+    this.pipeline.setCorrector(applyCalibration(next));
+    this.calibration = next;
+    this.log({ event: 'calibration_changed', old_id: old, new_id: next.id, file });
+    return { old };
+  }
+
+  /** New floor, temperature limit and default cutoff from an edited chemistry profile. */
+  useChemistry(next: ChemistryProfile): { floorV: number; cutoffV: number } {
+    const { cells, cutoff } = this.o.cfg;
+    const floorV = next.floor_V_per_cell.value * cells;
+    const wanted = cutoff.fromUser ? cutoff.total : next.cutoff_V_per_cell.value * cells;
+    const cutoffV = Math.max(wanted, floorV);
+    const r = this.session.updateLimits({
+      floorV,
+      maxTemperatureC: next.max_temperature_C.value,
+      cutoffV,
+    });
+    if (!r.ok) throw new Error(r.why);
+    return { floorV, cutoffV };
+  }
+
+  /** A rig clock far off is worth a warning, once (the host clock times every frame anyway). */
+  checkClock(): void {
+    const ppm = this.pipeline.rigClockErrorPpm();
+    if (this.clockWarned || ppm === null || Math.abs(ppm) <= CLOCK_WARN_PPM) return;
+    this.clockWarned = true;
+    const pct = (ppm / 1e4).toFixed(1);
+    this.log({ event: 'clock_warning', rig_clock_error_ppm: Math.round(ppm) });
+    this.o.status.line(
+      `warning: the rig's clock runs ${pct} % ${ppm > 0 ? 'fast' : 'slow'} against the host's; cellvigil times every frame by the host clock, so figures are not affected.`,
+    );
+  }
+
+  flush(): Promise<void> {
+    return this.recorder.flush();
+  }
+
+  writeCheckpoint(): Promise<void> {
+    return this.recorder.checkpoint(this.checkpoint());
+  }
+
+  /** Closes the recorder of a run that never got its rig. */
+  abandon(): Promise<void> {
+    this.ended = true;
+    return this.recorder.abandon();
+  }
+
+  private sample(row: SampleRow, lost: number, gap: boolean, rigRestart: boolean): void {
+    this.framesSeen++;
+    if (this.unloggedPending) {
+      this.unloggedPending = false;
+      this.log(bridgeUnlogged(this.o.resume!, this.session.integrator, row));
+    }
+    this.recorder.sample(row);
+    const loadOn = this.session.loadOn;
+    if (loadOn) this.loadedSamples++;
+    if (lost > 0) this.log({ event: 'frames_lost', count: lost, seq: row.seq });
+    if (gap) {
+      this.gaps++;
+      this.log({
+        event: 'gap',
+        seq: row.seq,
+        note: 'a long gap between frames; its charge is interpolated and counted as doubt in the uncertainty',
+      });
+    }
+    if (rigRestart) this.log({ event: 'rig_restart', seq: row.seq, tick_ms: row.tickMs });
+    this.o.status.update(row);
+    for (const ob of this.observers) ob.sample?.(row, loadOn);
+  }
+
+  private dispatch(actions: Action[]): void {
+    for (const a of actions) {
+      if (this.ended) return;
+      if (a.type === 'send') {
+        const line = encodeCommand(a.command);
+        const queued = this.o.send(line);
+        if (a.command.command !== 'BEAT') this.log({ event: 'command', line: line.trim(), queued });
+      } else if (a.type === 'event') {
+        this.sessionEvent(a.name, a.detail);
+      } else {
+        void this.finish(a.reason, a.detail, a.loadOffConfirmed);
+      }
+    }
+  }
+
+  /** The session's events, typed by their kind; one the event table does not know is logged as it came. */
+  private sessionEvent(name: string, detail: Record<string, unknown>): void {
+    if (!isEventKind(name)) return this.recorder.foreign(name, detail);
+    const ev = { event: name, ...detail } as RunEvent;
+    this.log(ev);
+    if (ev.event !== 'state') return;
+    this.o.status.line(`state: ${ev.from} -> ${ev.to} (${ev.why})`);
+    const reason = this.session.result.reason;
+    if (ev.to === 'stopping' && reason !== null && SAFETY_ENDS.has(reason))
+      for (const ob of this.observers) ob.limitTripped?.(this.hostS(), reason, ev.why);
+  }
+
+  private diskError(e: Error): void {
+    this.o.status.line(
+      `cellvigil: ${ErrorCodes.RUN_FOLDER}: writing the run folder failed: ${e.message}. Switching the load off.`,
+    );
+    this.dispatch(this.session.requestStop(this.o.clock.now(), 'a failure writing the run folder'));
+  }
+
+  private checkpoint(): Checkpoint {
+    const { session, pipeline, o } = this;
+    const integ = session.integrator;
+    return {
+      host_s: Number(this.hostS().toFixed(3)),
+      wall_time: new Date(o.clock.wallNow()).toISOString(),
+      state: session.state,
+      charge_Ah: integ.chargeAh,
+      energy_Wh: integ.energyWh,
+      load_on_s: integ.onMs / 1000,
+      bridged_Ah: integ.bridgedAh,
+      frames_accepted: pipeline.counters.accepted,
+      frames_rejected: pipeline.counters.rejected,
+      frames_lost: pipeline.counters.lost,
+      rows_written: pipeline.counters.accepted,
+      sample_file: this.recorder.sampleFile,
+      cutoff_V: session.cutoffV,
+      calibration_id: pipeline.calibrationId,
+    };
+  }
+
+  private async finish(end: SessionEnd, detail: string, loadOffConfirmed: boolean): Promise<void> {
+    if (this.ended) return;
+    this.ended = true;
+    try {
+      await this.o.stopInputs();
+      this.checkClock();
+      const result = this.result(end, detail, loadOffConfirmed);
+      this.recorder.ended({
+        event: 'run_ended',
+        end_reason: end,
+        detail,
+        load_off_confirmed: loadOffConfirmed,
+      });
+      await this.o.releaseLink();
+      await this.recorder.close(() => this.checkpoint(), result);
+      this.o.status.end();
+      for (const ob of this.observers) ob.ended?.(result);
+      const diskError = this.recorder.diskError;
+      const rigNeverSpoke = this.framesSeen === 0;
+      const exitCode = diskError ? 1 : exitCodeFor(end, rigNeverSpoke);
+      this.settle({ exitCode, result, diskError, rigNeverSpoke });
+    } catch (e) {
+      this.fail(e);
+    }
+  }
+
+  private result(end: SessionEnd, detail: string, loadOffConfirmed: boolean): RunResult {
+    const { session, pipeline, o } = this;
+    const { cfg } = o;
+    const integ = session.integrator;
+    return buildResult({
+      end,
+      detail,
+      loadOffConfirmed,
+      chargeAh: integ.chargeAh,
+      energyWh: integ.energyWh,
+      onMs: integ.onMs,
+      bridgedAh: integ.bridgedAh,
+      nominalAh: pipeline.nominalAh,
+      loadedSamples: this.loadedSamples,
+      lastLoadedV: session.lastLoadedV,
+      cutoffV: session.cutoffV,
+      counters: pipeline.counters,
+      implausibleFrames: session.plausibility.implausibleFrames,
+      rigClockErrorPpm: pipeline.rigClockErrorPpm(),
+      calibration: this.calibration,
+      calibrationId: pipeline.calibrationId,
+      ampsPerCount: cfg.chain.ampsPerCount,
+      voltsPerCount: cfg.chain.voltsPerCount,
+      chemistry: cfg.chemistry.id,
+      cells: cfg.cells,
+      openCircuitV: session.openCircuitV,
+      dcResistanceOhm: session.dcResistanceOhm,
+      gaps: this.gaps,
+      startedWallMs: o.startedWallMs,
+      endedWallMs: o.clock.wallNow(),
+      schedule: cfg.schedule ? describeSchedule(cfg.schedule) : null,
+      cellId: cfg.cellId,
+    });
+  }
+}
+
+function newSession(o: ChannelRunOptions): Session {
+  const { cfg } = o;
+  const { chemistry, cells, cutoff } = cfg;
+  return new Session({
+    channel: o.channel,
+    cutoffV: cutoff.total,
+    floorV: cfg.floorV,
+    maxTemperatureC: cfg.maxTemperatureC,
+    maxCurrentA: cfg.maxCurrentA,
+    linkTimeoutMs: o.linkTimeoutS * 1000,
+    schedule: cfg.schedule,
+    plausibility: plausibilityFor({
+      maxRestVPerCell: chemistry.max_rest_V_per_cell.value,
+      cells,
+      ampsPerCount: cfg.chain.ampsPerCount,
+    }),
+    checkRest: (restV) => {
+      const check = checkStartVoltage(
+        chemistry,
+        cells,
+        restV,
+        cutoff.perCell,
+        cfg.chemistries,
+        applyCalibration(cfg.calibration).voltage(cfg.chain.fullScale().volts),
+      );
+      return check.ok ? null : check.error.message;
+    },
+  });
+}
