@@ -61,7 +61,8 @@ export class ChannelFeed {
         this.snapshot(m, wallMs);
         return null;
       case 'sample': {
-        const { type: _t, v: _v, ...s } = m;
+        // The broker names a channel by station and number; the feed's own key is left out.
+        const { type: _t, v: _v, channel: _c, ...s } = m;
         const sample: FleetSample = { ...this.head(), made_ms: wallMs, ...s };
         this.last = sample;
         this.state = m.state;

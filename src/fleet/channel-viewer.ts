@@ -90,6 +90,12 @@ export class ChannelViewer {
     if (this.waiting.size >= MAX_WAITING)
       return this.fail(id, 'refused', 'too many requests are waiting for the station');
     const m = checked.value;
+    if (m.type === 'start')
+      return this.fail(
+        id,
+        'refused',
+        "a run is started on its station (cellvigil control, or the station's own page), not through the fleet view",
+      );
     const wireId = randomBytes(12).toString('hex');
     const head = {
       v: 1 as const,
