@@ -221,6 +221,8 @@ export class RunRecompute {
   private maxC = -Infinity;
   private endC = Number.NaN;
   private liveTotals: { chargeAh: number; energyWh: number } | null = null;
+  /** Host ms of the rig's last acknowledgement of the load off, if any. */
+  private lastOffAckMs: number | null = null;
 
   constructor(
     private readonly manifest: RunManifest,
@@ -247,6 +249,13 @@ export class RunRecompute {
   /** Feed every event first: a resumed run starts new integration segments where it resumed. */
   event(e: Parameters<EventDigest['add']>[0]): void {
     this.digest.add(e);
+    if (
+      e.event === 'rig_ack' &&
+      e.command === 'LOAD' &&
+      Number(e.args[0]) === this.manifest.channel &&
+      e.args[1] === '0'
+    )
+      this.lastOffAckMs = Math.round(e.host_s * 1000);
   }
 
   /** One row, read and not kept: the caller may reuse the record. */
@@ -470,6 +479,7 @@ export class RunRecompute {
           }
         : null);
 
+    this.offAfterLastRow(end);
     const base = this.baseResult(end, cutoffV, rejected, errorPpm, resistance);
     const noise = this.noise(cal);
     const uncertainty = this.uncertainty(cal, base.mean_voltage_V, noise);
@@ -517,6 +527,17 @@ export class RunRecompute {
       cautions: m.chemistry.profile.cautions,
       notes,
     };
+  }
+
+  /**
+   * A run ended by the rig's acknowledgement of the load off, after the last row (which showed
+   * the load on): as in the daemon, the switch fell between that row and the acknowledgement.
+   */
+  private offAfterLastRow(end: RunEnd | null): void {
+    const ack = this.lastOffAckMs;
+    const prev = this.prev;
+    if (end?.loadOffConfirmed && ack !== null && prev !== null && ack >= prev.hostMs)
+      this.integrator.offAfterLast(ack - prev.hostMs);
   }
 
   /** The daemon's keys, and those only a recompute gives. */
@@ -610,6 +631,7 @@ export class RunRecompute {
       startedWallMs: Date.parse(m.started_wall),
       endedWallMs: this.lastWall !== null ? Date.parse(this.lastWall) : Date.parse(m.started_wall),
       schedule: m.schedule?.description ?? null,
+      loadSwitches: integ.switches,
     });
   }
 
@@ -683,6 +705,7 @@ export class RunRecompute {
       ...(noiseA !== null ? { currentNoiseA: noiseA } : {}),
       ...(noiseV !== null ? { voltageNoiseV: noiseV } : {}),
       quantisationSamples,
+      loadSwitches: integ.switches,
     });
   }
 

@@ -389,6 +389,7 @@ export class ChannelRun {
       startedWallMs: o.startedWallMs,
       endedWallMs: o.clock.wallNow(),
       schedule: cfg.schedule ? describeSchedule(cfg.schedule) : null,
+      loadSwitches: integ.switches,
     });
   }
 }
