@@ -223,6 +223,8 @@ export class RunRecompute {
   private liveTotals: { chargeAh: number; energyWh: number } | null = null;
   /** Host ms of the rig's last acknowledgement of the load off, if any. */
   private lastOffAckMs: number | null = null;
+  /** Host ms of the last row the run's session took in (the one before it ended). */
+  private lastIntegratedMs: number | null = null;
 
   constructor(
     private readonly manifest: RunManifest,
@@ -302,6 +304,7 @@ export class RunRecompute {
     point.celsius = v.celsius;
     point.loadOn = v.loadOn;
     const integrate = this.integrates(s, prev);
+    if (integrate) this.lastIntegratedMs = hostMs;
     if (integrate && !this.plausible(s.state, hostMs, v.volts, v.amps, v.loadOn)) {
       // Left out as the live run left it: its time held at the last trusted reading.
       this.integrator.hold(t.dtMs, v.loadOn);
@@ -535,9 +538,9 @@ export class RunRecompute {
    */
   private offAfterLastRow(end: RunEnd | null): void {
     const ack = this.lastOffAckMs;
-    const prev = this.prev;
-    if (end?.loadOffConfirmed && ack !== null && prev !== null && ack >= prev.hostMs)
-      this.integrator.offAfterLast(ack - prev.hostMs);
+    const last = this.lastIntegratedMs;
+    if (end?.loadOffConfirmed && ack !== null && last !== null && ack >= last)
+      this.integrator.offAfterLast(ack - last);
   }
 
   /** The daemon's keys, and those only a recompute gives. */
