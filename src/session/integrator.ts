@@ -28,6 +28,7 @@ export class Integrator {
   onMs = 0;
   /** Charge carried across flagged gaps (a figure of doubt, reported with the uncertainty). */
   bridgedAh = 0;
+  /** Where the load switched, as far as the frames tell (for the uncertainty budget). */
   readonly switches: SwitchWindows = { count: 0, sumSqHalfWidthAh: 0, widestMs: 0 };
   // The frame before, as fields rather than an object per frame.
   private hasPrev = false;
@@ -47,8 +48,8 @@ export class Integrator {
     this.prevP = p;
     this.prevOn = loadOn;
     if (!had || dtMs <= 0) return;
-    // The trapezoid puts a switch in the middle of its step (half-width half the step); across
-    // a long gap nothing is counted, so the switch may be anywhere from there (the whole gap).
+    // The trapezoid puts a switch in the middle of its step (half-width: half the step); across
+    // a long gap it counts nothing, which may be wrong by the whole gap.
     if (loadOn !== prevOn) this.switchIn(dtMs, loadOn ? i : prevI, gap ? 1 : 0.5);
     // Across a long gap only a load seen on at both ends is assumed to have stayed on; one seen
     // off at either end may have been cut at any moment in between (the rig's watchdog).
