@@ -67,10 +67,11 @@ describe('reference firmware on an emulated chip: calibrated discharge to the cu
       expect(truthAh).toBeGreaterThan(0.015);
       const err = r.result.capacity_Ah - truthAh;
       expect(Math.abs(err) / truthAh).toBeLessThan(0.003);
-      // Not yet held to the stated interval: integrated over the true switch instants, the
-      // readings still sit 0.01-0.035 % below the harness's charge (channel 0 the most), the same
-      // at a steady current on a large cell, which is more than the calibration's stated
-      // uncertainty; the switching instants are now in the budget (below).
+      // Not yet held to the stated interval: channel 0's calibration (seeded, so the same noise
+      // every run) puts the loaded point about 0.4 count, some 2.5 standard uncertainties of its
+      // 30-frame mean, above what the channel reads at that current in a long steady run: the
+      // readings then sit 0.02-0.035 % low, and k = 2 covers that only now and then. The
+      // switching instants, the other gap, are in the budget (checked below).
       const energy = r.truth.channels[ch].energy_Wh;
       expect(Math.abs(r.result.energy_Wh - energy) / energy).toBeLessThan(0.005);
     });
