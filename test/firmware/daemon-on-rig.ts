@@ -37,6 +37,8 @@ export function daemonOnRig(rig: EmulatedRig, extra: string[] = []): DaemonOnRig
 
 export interface FinishedRun<R> {
   exitCode: number | null;
+  /** Date.now() when the daemon had exited. */
+  exitedAtMs: number;
   /** The daemon's stdout and stderr, to show when an exit code is wrong. */
   output: string;
   truth: HarnessTruth;
@@ -54,11 +56,13 @@ export async function finishedRun<R>(
   d: DaemonRun,
 ): Promise<FinishedRun<R>> {
   const exitCode = await d.exit;
+  const exitedAtMs = Date.now();
   const output = d.stdout() + d.stderr();
   await new Promise((r) => setTimeout(r, 300));
   const truth = rig.truth();
   const folder = onlyRunFolder(on.runs);
-  return { exitCode, output, truth, folder, result: readJson<R>(join(folder, 'result.json')) };
+  const result = readJson<R>(join(folder, 'result.json'));
+  return { exitCode, exitedAtMs, output, truth, folder, result };
 }
 
 /** The run's events, in order. */
