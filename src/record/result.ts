@@ -5,6 +5,7 @@
 import { join } from 'node:path';
 import { Ajv, type SchemaObject } from 'ajv';
 import type { Calibration } from '../calibration/calibration.js';
+import type { SwitchWindows } from '../session/integrator.js';
 import { SAFETY_END_REASONS, type EndReason, type SessionEnd } from '../session/session-types.js';
 import { runUncertainty, type FigureUncertainty } from '../results/uncertainty.js';
 import { writeJsonAtomic } from '../sinks/atomic-json.js';
@@ -80,6 +81,8 @@ export interface ResultInput {
   endedWallMs: number;
   /** The schedule's description; absent or null for a continuous discharge. */
   schedule?: string | null;
+  /** The integrator's switch windows, for the uncertainty budget. */
+  loadSwitches?: SwitchWindows;
 }
 
 const r = (x: number, digits: number): number => Number(x.toFixed(digits));
@@ -99,6 +102,7 @@ export function buildResult(x: ResultInput): RunResult {
     meanVoltageV: meanV ?? 0,
     bridgedAh: x.bridgedAh,
     calibration: x.calibration,
+    ...(x.loadSwitches ? { loadSwitches: x.loadSwitches } : {}),
   });
   return {
     capacity_Ah: r(x.chargeAh, 6),

@@ -221,6 +221,10 @@ export class RunRecompute {
   private maxC = -Infinity;
   private endC = Number.NaN;
   private liveTotals: { chargeAh: number; energyWh: number } | null = null;
+  /** Host ms of the rig's last acknowledgement of the load off, if any. */
+  private lastOffAckMs: number | null = null;
+  /** Host ms of the last row the run's session took in (the one before it ended). */
+  private lastIntegratedMs: number | null = null;
 
   constructor(
     private readonly manifest: RunManifest,
@@ -247,6 +251,13 @@ export class RunRecompute {
   /** Feed every event first: a resumed run starts new integration segments where it resumed. */
   event(e: Parameters<EventDigest['add']>[0]): void {
     this.digest.add(e);
+    if (
+      e.event === 'rig_ack' &&
+      e.command === 'LOAD' &&
+      Number(e.args[0]) === this.manifest.channel &&
+      e.args[1] === '0'
+    )
+      this.lastOffAckMs = Math.round(e.host_s * 1000);
   }
 
   /** One row, read and not kept: the caller may reuse the record. */
@@ -293,6 +304,7 @@ export class RunRecompute {
     point.celsius = v.celsius;
     point.loadOn = v.loadOn;
     const integrate = this.integrates(s, prev);
+    if (integrate) this.lastIntegratedMs = hostMs;
     if (integrate && !this.plausible(s.state, hostMs, v.volts, v.amps, v.loadOn)) {
       // Left out as the live run left it: its time held at the last trusted reading.
       this.integrator.hold(t.dtMs, v.loadOn);
@@ -470,6 +482,7 @@ export class RunRecompute {
           }
         : null);
 
+    this.offAfterLastRow(end);
     const base = this.baseResult(end, cutoffV, rejected, errorPpm, resistance);
     const noise = this.noise(cal);
     const uncertainty = this.uncertainty(cal, base.mean_voltage_V, noise);
@@ -517,6 +530,17 @@ export class RunRecompute {
       cautions: m.chemistry.profile.cautions,
       notes,
     };
+  }
+
+  /**
+   * A run ended by the rig's acknowledgement of the load off, after the last row (which showed
+   * the load on): as in the daemon, the switch fell between that row and the acknowledgement.
+   */
+  private offAfterLastRow(end: RunEnd | null): void {
+    const ack = this.lastOffAckMs;
+    const last = this.lastIntegratedMs;
+    if (end?.loadOffConfirmed && ack !== null && last !== null && ack >= last)
+      this.integrator.offAfterLast(ack - last);
   }
 
   /** The daemon's keys, and those only a recompute gives. */
@@ -610,6 +634,7 @@ export class RunRecompute {
       startedWallMs: Date.parse(m.started_wall),
       endedWallMs: this.lastWall !== null ? Date.parse(this.lastWall) : Date.parse(m.started_wall),
       schedule: m.schedule?.description ?? null,
+      loadSwitches: integ.switches,
     });
   }
 
@@ -683,6 +708,7 @@ export class RunRecompute {
       ...(noiseA !== null ? { currentNoiseA: noiseA } : {}),
       ...(noiseV !== null ? { voltageNoiseV: noiseV } : {}),
       quantisationSamples,
+      loadSwitches: integ.switches,
     });
   }
 

@@ -6,6 +6,7 @@
  */
 import type { Calibration, QuantityCalibration } from '../calibration/calibration.js';
 import { rectangularU } from '../calibration/reference-accuracy.js';
+import type { SwitchWindows } from '../session/integrator.js';
 
 export interface UncertaintyInput {
   chargeAh: number;
@@ -32,6 +33,8 @@ export interface UncertaintyInput {
    * ADC, only the distinct codes visited when it does not. @default samples
    */
   quantisationSamples?: { current?: number; voltage?: number };
+  /** The load's switches as the integral placed them. */
+  loadSwitches?: SwitchWindows;
 }
 
 export interface UncertaintyTerm {
@@ -191,6 +194,8 @@ function chargeReadingTerms(
     basis: 'rectangular ±100 ppm of the load-on time: a/√3',
     over_run: 'correlated',
   });
+  const sw = x.loadSwitches;
+  if (sw && sw.count > 0) qt.push(switchingTerm(sw));
   if (x.bridgedAh > 0) {
     qt.push({
       name: 'charge bridged across long gaps (rectangular, half of it)',
@@ -200,6 +205,22 @@ function chargeReadingTerms(
       over_run: 'correlated',
     });
   }
+}
+
+/**
+ * When the load switched: the host places each switch only within its window, so the charge
+ * near it is known to within a rectangular half-width a = current × (that part of the window);
+ * u = a/√3 for each (JCGM 100:2008 4.3.7), switches independent of one another, in quadrature.
+ */
+export function switchingTerm(sw: SwitchWindows): UncertaintyTerm {
+  const n = sw.count;
+  return {
+    name: 'load switching instants (rectangular, each switch)',
+    u: Math.sqrt(sw.sumSqHalfWidthAh) / Math.sqrt(3),
+    type: 'B',
+    basis: `${n} switch${n === 1 ? '' : 'es'} of the load, each placed within the frames (or the rig's acknowledgement) bracketing it, widest ${Number(sw.widestMs.toPrecision(4))} ms: half-width a = current at the switch × the time the integral may be wrong by, a/√3 each, independent switches in quadrature`,
+    over_run: 'averaged',
+  };
 }
 
 /** The voltage channel's own terms of the energy into `et`. */

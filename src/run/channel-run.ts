@@ -390,6 +390,7 @@ export class ChannelRun {
       endedWallMs: o.clock.wallNow(),
       schedule: cfg.schedule ? describeSchedule(cfg.schedule) : null,
       cellId: cfg.cellId,
+      loadSwitches: integ.switches,
     });
   }
 }

@@ -103,7 +103,7 @@ export class Pipeline {
     const decoded = decodeRigLine(text, this.o.adcBits);
     if (!decoded.ok) return this.reject(decoded.reason, decoded.detail);
     const m = decoded.message;
-    if (m.kind !== 'data') return this.message(m);
+    if (m.kind !== 'data') return this.message(m, arrivalMs);
     if (m.channel !== this.o.channel) {
       this.counters.otherChannel++;
       return { kind: 'ignored' };
@@ -150,12 +150,12 @@ export class Pipeline {
     return { kind: 'sample', row, actions, lost, gap, rigRestart };
   }
 
-  private message(m: Exclude<RigMessage, DataFrame>): LineOutcome {
+  private message(m: Exclude<RigMessage, DataFrame>, arrivalMs: number): LineOutcome {
     switch (m.kind) {
       case 'ack':
         return {
           kind: 'message',
-          actions: this.o.session.ack(m.command, m.args),
+          actions: this.o.session.ack(m.command, m.args, arrivalMs),
           event: { event: 'rig_ack', command: m.command, args: m.args },
         };
       case 'hello': {

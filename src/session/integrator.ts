@@ -1,6 +1,23 @@
 const MS_PER_HOUR = 3_600_000;
 
 /**
+ * The load's switches as the integral placed them, for the uncertainty budget. Each fell
+ * somewhere in a window the host knows: between the last frame in the old state and the first in
+ * the new, or between the last frame with the load on and the rig's acknowledgement of the
+ * switch-off that ended the run. The charge near it is known to within a half-width a = the
+ * current at the switch × the part of the window the integral may be wrong by: half of it where
+ * the trapezoid put the switch in the middle, all of it where the integral stops (or skips a long
+ * gap) at one end. Summed as squares: switches are independent of one another.
+ */
+export interface SwitchWindows {
+  count: number;
+  /** Σ a², Ah², over the switches. */
+  sumSqHalfWidthAh: number;
+  /** The widest window, ms. */
+  widestMs: number;
+}
+
+/**
  * Trapezoidal charge and energy on host time. The current counts only while the load is
  * switched on: with the load off no current flows, whatever an uncorrected offset shows.
  */
@@ -11,6 +28,8 @@ export class Integrator {
   onMs = 0;
   /** Charge carried across flagged gaps (a figure of doubt, reported with the uncertainty). */
   bridgedAh = 0;
+  /** Where the load switched, as far as the frames tell (for the uncertainty budget). */
+  readonly switches: SwitchWindows = { count: 0, sumSqHalfWidthAh: 0, widestMs: 0 };
   // The frame before, as fields rather than an object per frame.
   private hasPrev = false;
   private prevI = 0;
@@ -29,6 +48,9 @@ export class Integrator {
     this.prevP = p;
     this.prevOn = loadOn;
     if (!had || dtMs <= 0) return;
+    // The trapezoid puts a switch in the middle of its step (half-width: half the step); across
+    // a long gap it counts nothing, which may be wrong by the whole gap.
+    if (loadOn !== prevOn) this.switchIn(dtMs, loadOn ? i : prevI, gap ? 1 : 0.5);
     // Across a long gap only a load seen on at both ends is assumed to have stayed on; one seen
     // off at either end may have been cut at any moment in between (the rig's watchdog).
     if (gap && !(loadOn && prevOn)) return;
@@ -38,6 +60,23 @@ export class Integrator {
     // The trapezoid of the on/off indicator: a step in which the load switched counts half.
     this.onMs += (((loadOn ? 1 : 0) + (prevOn ? 1 : 0)) / 2) * dtMs;
     if (gap) this.bridgedAh += Math.abs(dAh);
+  }
+
+  /**
+   * The load went off after the last frame, which showed it on, and before `windowMs` had passed
+   * (the rig's acknowledgement came): the integral stops at that frame, so the charge of up to
+   * the whole window is not in it.
+   */
+  offAfterLast(windowMs: number): void {
+    if (this.hasPrev && this.prevOn && windowMs > 0) this.switchIn(windowMs, this.prevI, 1);
+  }
+
+  private switchIn(windowMs: number, amps: number, part: number): void {
+    const s = this.switches;
+    const a = Math.abs(amps) * ((part * windowMs) / MS_PER_HOUR);
+    s.count++;
+    s.sumSqHalfWidthAh += a * a;
+    s.widestMs = Math.max(s.widestMs, windowMs);
   }
 
   /**

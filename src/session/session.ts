@@ -181,8 +181,11 @@ export class Session {
     this.integrator.restore(totals);
   }
 
-  /** An acknowledgement from the rig (`A,LOAD,<ch>,<0|1>`). */
-  ack(command: string, args: string[]): Action[] {
+  /**
+   * An acknowledgement from the rig (`A,LOAD,<ch>,<0|1>`), arrived at host ms `nowMs`: a load
+   * switched off since the last frame went off before then (for the uncertainty budget).
+   */
+  ack(command: string, args: string[], nowMs?: number): Action[] {
     const out: Action[] = [];
     // A LOAD 1 is confirmed by the next frame instead, which also gives the loaded voltage.
     if (
@@ -190,8 +193,11 @@ export class Session {
       Number(args[0]) === this.s.channel &&
       args[1] === '0' &&
       this.stateValue === 'stopping'
-    )
+    ) {
+      if (nowMs !== undefined && this.lastFrameAt !== null)
+        this.integrator.offAfterLast(nowMs - this.lastFrameAt);
       this.finish(true, out);
+    }
     return out;
   }
 

@@ -1,9 +1,6 @@
-import { readFileSync } from 'node:fs';
-import { join } from 'node:path';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
-import { onlyRunFolder, readJson, startDaemon } from '../e2e/pty-helpers.js';
+import { daemonOnRig, finishedRun, runEvents, type FinishedRun } from './daemon-on-rig.js';
 import {
-  RIG_PROFILE,
   startEmulatedRig,
   waitUntil,
   type EmulatedRig,
@@ -17,28 +14,14 @@ import {
 // off, and runs the precheck again before switching back on; SIGTERM then ends the run.
 describe('reference firmware on an emulated chip: a hung firmware is reset by the watchdog', () => {
   let rig: EmulatedRig;
-  let exitCode: number | null;
-  let output = '';
-  let folder: string;
-  let result: { end_reason: string; load_off_confirmed: boolean };
+  let run: FinishedRun<{ end_reason: string; load_off_confirmed: boolean }>;
   let truth: HarnessTruth;
   let events: { event: string; code?: string; to?: string }[];
 
   beforeAll(async () => {
     rig = await startEmulatedRig({ capacityMah: 200, soc: 0.9, seed: 51 });
-    const runs = join(rig.dir, 'runs');
-    const d = startDaemon([
-      '--port',
-      rig.port,
-      '--rig',
-      RIG_PROFILE,
-      '--chemistry',
-      'li-ion',
-      '--once',
-      '--no-live',
-      '--runs',
-      runs,
-    ]);
+    const on = daemonOnRig(rig);
+    const d = on.start();
     const onStretches = (): number => rig.truth().channels[0].segments.filter((s) => s.load).length;
     await waitUntil(() => onStretches() === 1, 20_000, 'the load to go on');
     await new Promise((r) => setTimeout(r, 1500));
@@ -46,16 +29,9 @@ describe('reference firmware on an emulated chip: a hung firmware is reset by th
     await waitUntil(() => onStretches() === 2, 20_000, 'the host to switch on again');
     await new Promise((r) => setTimeout(r, 1000));
     d.child.kill('SIGTERM');
-    exitCode = await d.exit;
-    output = d.stdout() + d.stderr();
-    await new Promise((r) => setTimeout(r, 300));
-    truth = rig.truth();
-    folder = onlyRunFolder(runs);
-    result = readJson(join(folder, 'result.json'));
-    events = readFileSync(join(folder, 'events.jsonl'), 'utf8')
-      .trim()
-      .split('\n')
-      .map((l) => JSON.parse(l) as { event: string; code?: string; to?: string });
+    run = await finishedRun(rig, on, d);
+    truth = run.truth;
+    events = runEvents(run.folder);
   }, 60_000);
 
   afterAll(async () => {
@@ -91,9 +67,9 @@ describe('reference firmware on an emulated chip: a hung firmware is reset by th
   });
 
   it('SIGTERM then ends the run as stopped, exit code 0, the load off confirmed', () => {
-    expect(exitCode, output).toBe(0);
-    expect(result.end_reason).toBe('stopped');
-    expect(result.load_off_confirmed).toBe(true);
+    expect(run.exitCode, run.output).toBe(0);
+    expect(run.result.end_reason).toBe('stopped');
+    expect(run.result.load_off_confirmed).toBe(true);
     expect(truth.channels[0].load_on).toBe(false);
   });
 });

@@ -1,9 +1,6 @@
-import { readFileSync } from 'node:fs';
-import { join } from 'node:path';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
-import { onlyRunFolder, readJson, startDaemon } from '../e2e/pty-helpers.js';
+import { daemonOnRig, finishedRun, runEvents, type FinishedRun } from './daemon-on-rig.js';
 import {
-  RIG_PROFILE,
   startEmulatedRig,
   waitUntil,
   type EmulatedRig,
@@ -23,28 +20,12 @@ interface Result {
 describe('reference firmware on an emulated chip: daemon SIGKILLed, the firmware cuts, the run resumes', () => {
   let rig: EmulatedRig;
   let afterKill: HarnessTruth;
-  let truth: HarnessTruth;
-  let exitCode: number | null;
-  let output = '';
-  let folder: string;
-  let result: Result;
+  let run: FinishedRun<Result>;
 
   beforeAll(async () => {
     rig = await startEmulatedRig({ capacityMah: 20, soc: 0.7, seed: 41 });
-    const runs = join(rig.dir, 'runs');
-    const args = [
-      '--port',
-      rig.port,
-      '--rig',
-      RIG_PROFILE,
-      '--chemistry',
-      'li-ion',
-      '--once',
-      '--no-live',
-      '--runs',
-      runs,
-    ];
-    const first = startDaemon(args);
+    const on = daemonOnRig(rig);
+    const first = on.start();
     await waitUntil(() => rig.truth().channels[0].load_on, 20_000, 'the load to go on');
     await new Promise((r) => setTimeout(r, 3000));
     first.child.kill('SIGKILL');
@@ -55,13 +36,7 @@ describe('reference firmware on an emulated chip: daemon SIGKILLed, the firmware
       'the firmware to cut the load',
     );
     afterKill = rig.truth();
-    const second = startDaemon(args);
-    exitCode = await second.exit;
-    output = second.stdout() + second.stderr();
-    await new Promise((r) => setTimeout(r, 300));
-    truth = rig.truth();
-    folder = onlyRunFolder(runs);
-    result = readJson<Result>(join(folder, 'result.json'));
+    run = await finishedRun(rig, on, on.start());
   }, 120_000);
 
   afterAll(async () => {
@@ -78,15 +53,12 @@ describe('reference firmware on an emulated chip: daemon SIGKILLed, the firmware
   });
 
   it('the second daemon resumed the run: a new precheck, the load on again, off at the cutoff', () => {
-    expect(exitCode, output).toBe(0);
-    expect(output).toMatch(/Resuming an interrupted run/);
-    expect(result.end_reason).toBe('cutoff');
-    const events = readFileSync(join(folder, 'events.jsonl'), 'utf8')
-      .trim()
-      .split('\n')
-      .map((l) => (JSON.parse(l) as { event: string }).event);
+    expect(run.exitCode, run.output).toBe(0);
+    expect(run.output).toMatch(/Resuming an interrupted run/);
+    expect(run.result.end_reason).toBe('cutoff');
+    const events = runEvents<{ event: string }>(run.folder).map((e) => e.event);
     expect(events).toEqual(expect.arrayContaining(['resumed', 'precheck_passed', 'run_ended']));
-    expect(truth.channels[0].segments.map((s) => s.load)).toEqual([
+    expect(run.truth.channels[0].segments.map((s) => s.load)).toEqual([
       false,
       true,
       false,
@@ -96,10 +68,10 @@ describe('reference firmware on an emulated chip: daemon SIGKILLed, the firmware
   });
 
   it('the capacity, unlogged seconds included, is inside the stated interval around the charge the cell gave (∫ I dt, physics; k = 2, GUM)', () => {
-    const truthAh = truth.channels[0].charge_Ah;
-    expect(result.bridged_Ah).toBeGreaterThan(0);
-    expect(Math.abs(result.capacity_Ah - truthAh)).toBeLessThan(
-      result.uncertainty.capacity_Ah.expanded,
+    const truthAh = run.truth.channels[0].charge_Ah;
+    expect(run.result.bridged_Ah).toBeGreaterThan(0);
+    expect(Math.abs(run.result.capacity_Ah - truthAh)).toBeLessThan(
+      run.result.uncertainty.capacity_Ah.expanded,
     );
   });
 });

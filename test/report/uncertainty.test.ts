@@ -65,6 +65,34 @@ describe('uncertainty budget by the GUM (JCGM 100:2008)', () => {
     expect(term(u, 'current quantisation')).toBeCloseTo(0.0053 / 2 / SQRT3 / Math.sqrt(36_000), 15);
   });
 
+  it('the load switching instants: each switch rectangular with u = a/√3 (4.3.7), independent switches in quadrature (5.1.2), worked by hand', () => {
+    // Worked by hand: on at 2 A inside a 100 ms step, placed mid-step: a = 2 A × 0.05 s =
+    // 0.1 A·s = 2.77778e-5 Ah, u = a/√3 = 1.60375e-5 Ah; off at 1.5 A acknowledged 6 ms after
+    // the last frame: a = 1.5 A × 0.006 s = 2.5e-6 Ah, u = 1.44338e-6 Ah; together
+    // √(u₁² + u₂²) = 1.61023e-5 Ah.
+    const loadSwitches = {
+      count: 2,
+      sumSqHalfWidthAh: (0.1 / 3600) ** 2 + (0.009 / 3600) ** 2,
+      widestMs: 100,
+    };
+    const u = runUncertainty(run({ loadSwitches }));
+    const name = 'load switching instants';
+    expect(term(u.capacity_Ah, name) / 1.61023e-5).toBeCloseTo(1, 5);
+    const t = u.capacity_Ah.terms.find((x) => x.name.startsWith(name))!;
+    expect(t.type).toBe('B');
+    expect(t.basis).toContain('2 switches');
+    expect(t.basis).toContain('100 ms');
+    // The energy's term is the charge's at the mean voltage, as the other charge terms.
+    expect(term(u.energy_Wh, name) / (3.7 * 1.61023e-5)).toBeCloseTo(1, 5);
+    // No switch seen, no term; and the term enters the combined standard uncertainty.
+    const without = runUncertainty(run()).capacity_Ah;
+    expect(without.terms.some((x) => x.name.startsWith(name))).toBe(false);
+    expect(u.capacity_Ah.standard ** 2 / (without.standard ** 2 + 1.61023e-5 ** 2)).toBeCloseTo(
+      1,
+      5,
+    );
+  });
+
   it('combines in quadrature for independent inputs (5.1.2) and linearly for fully correlated ones (5.2.2, r = 1)', () => {
     expect(combineContributions([3, 4])).toBeCloseTo(5, 12);
     expect(combineContributions([3, 4], () => 1)).toBeCloseTo(7, 12);

@@ -132,3 +132,41 @@ describe('integrator: charge is the time integral of current (physics)', () => {
     expect(integ.bridgedAh).toBe(0.01);
   });
 });
+
+describe('integrator: the windows in which the load switched, for the uncertainty budget', () => {
+  it('a switch between two frames is placed mid-step (half the step), one at the end or across a gap anywhere in its window (all of it)', () => {
+    const integ = new Integrator();
+    integ.add(0, 3.7, 0, false, false);
+    // On between two frames 100 ms apart at 2 A: a = 2 A × 50 ms = 0.1 A·s = 0.1/3600 Ah.
+    integ.add(100, 3.7, 2, true, false);
+    integ.add(100, 3.6, 1.5, true, false);
+    // Off acknowledged 6 ms after the last frame at 1.5 A: a = 1.5 A × 6 ms = 0.009/3600 Ah.
+    integ.offAfterLast(6);
+    const s = integ.switches;
+    expect(s.count).toBe(2);
+    expect(s.widestMs).toBe(100);
+    expect(s.sumSqHalfWidthAh).toBeCloseTo((0.1 / 3600) ** 2 + (0.009 / 3600) ** 2, 18);
+
+    // Off across a 3 s gap at 1 A: the integral counts none of it, a = 1 A × 3 s = 3/3600 Ah.
+    const gap = new Integrator();
+    gap.add(0, 3.7, 1, true, false);
+    gap.add(3000, 3.7, 0, false, true);
+    expect(gap.chargeAh).toBe(0);
+    expect(gap.switches.sumSqHalfWidthAh).toBeCloseTo((3 / 3600) ** 2, 15);
+  });
+
+  it('a steady load and a load that was already off add no switch', () => {
+    const steady = integrate(10, 0.1, () => 1);
+    steady.offAfterLast(0);
+    expect(steady.switches.count).toBe(0);
+    const off = integrate(
+      10,
+      0.1,
+      () => 0,
+      undefined,
+      () => false,
+    );
+    off.offAfterLast(5);
+    expect(off.switches).toEqual({ count: 0, sumSqHalfWidthAh: 0, widestMs: 0 });
+  });
+});

@@ -252,6 +252,20 @@ describe('session: safety trips', () => {
     expect(b.session.state).toBe('stopping');
   });
 
+  it('the acknowledgement that ends the run gives the integrator the window of the switch-off: from the last frame to its arrival (a = I × window, for the budget)', () => {
+    const b = new Bench();
+    b.start();
+    // Switched on between two frames 100 ms apart at 1 A: a = 1 A × 50 ms, placed mid-step.
+    expect(b.session.integrator.switches.count).toBe(1);
+    b.rig.obeys = false;
+    b.take(b.session.requestStop(b.t, 'test'));
+    b.take(b.session.ack('LOAD', ['0', '0'], b.t + 6));
+    expect(b.end).toMatchObject({ loadOffConfirmed: true });
+    const s = b.session.integrator.switches;
+    expect(s.count).toBe(2);
+    expect(s.sumSqHalfWidthAh).toBeCloseTo((0.05 / 3600) ** 2 + (0.006 / 3600) ** 2, 18);
+  });
+
   it('a load off never confirmed: LOAD 0 repeated, then the run ends unconfirmed (the rig watchdog is the last defence)', () => {
     const b = new Bench();
     b.start();
