@@ -17,11 +17,17 @@ static uint8_t acc[CHANNELS];
 
 void cc_init(void)
 {
-	/* Timer2 fast PWM (mode 3), no prescaler: 16 MHz / 256 = 62.5 kHz, far above the RC
-	 * filter's corner. The outputs stay disconnected (COM2x = 0) until a channel discharges. */
+	/* Channel 0 on Timer2 (OC2A, PB3), channel 1 on Timer1 (OC1B, PB2), both fast PWM with 8
+	 * bits. Their clocks run only while a channel discharges (see cc_start) and the outputs
+	 * stay disconnected (COM = 0) until then. */
 	TCCR2A = _BV(WGM21) | _BV(WGM20);
-	TCCR2B = _BV(CS20);
+	TCCR1A = _BV(WGM10);
 }
+
+/* Both clk/64: 16 MHz / 64 / 256 = 977 Hz, 290 times the corner of each of the filter's two RC
+ * stages (3.4 Hz): the ripple left at the op-amp is under a hundredth of a PWM step. */
+#define TIMER2_RUN _BV(CS22)
+#define TIMER1_RUN (_BV(WGM12) | _BV(CS11) | _BV(CS10))
 
 static void apply(uint8_t ch)
 {
@@ -36,7 +42,7 @@ void cc_set_target(uint8_t ch, uint16_t counts)
 	/* Counts per PWM step, from the parts (config.h): the duty (OCR + 1) / 256 of AVcc, times
 	 * the divider, across the shunt, amplified and read against the same AVcc. */
 	uint32_t steps_q8 = ((uint32_t)counts * CC_Q8_PER_COUNT_Q8) >> 8;
-	ff_q8[ch] = steps_q8 > 256 + 65535u ? 65535u : steps_q8 < 256 ? 0 : (uint16_t)(steps_q8 - 256);
+	ff_q8[ch] = steps_q8 > 65791UL ? 65535u : steps_q8 < 256 ? 0 : (uint16_t)(steps_q8 - 256);
 	/* A new setpoint while discharging: the trim learnt so far (the board's offsets) stays. */
 	if (running & _BV(ch))
 		apply(ch);
@@ -55,11 +61,13 @@ void cc_start(uint8_t ch)
 	ATOMIC_BLOCK(ATOMIC_RESTORESTATE)
 	{
 		if (ch == 0) {
+			TCCR2B = TIMER2_RUN;
 			OCR2A = duty_q8[0] >> 8;
 			TCCR2A |= _BV(COM2A1);
 		} else {
-			OCR2B = duty_q8[1] >> 8;
-			TCCR2A |= _BV(COM2B1);
+			TCCR1B = TIMER1_RUN;
+			OCR1B = duty_q8[1] >> 8;
+			TCCR1A |= _BV(COM1B1);
 		}
 		running |= _BV(ch);
 	}
@@ -73,9 +81,11 @@ void cc_stop(uint8_t ch)
 		if (ch == 0) {
 			TCCR2A &= ~_BV(COM2A1);
 			PORTB &= ~_BV(PB3);
+			TCCR2B = 0;
 		} else {
-			TCCR2A &= ~_BV(COM2B1);
-			PORTD &= ~_BV(PD3);
+			TCCR1A &= ~_BV(COM1B1);
+			PORTB &= ~_BV(PB2);
+			TCCR1B = 0;
 		}
 	}
 }
@@ -87,7 +97,7 @@ void cc_trim(uint8_t ch, uint16_t measured)
 	/* A quarter of the error per frame: settles in about a second, and averages the reading's
 	 * noise (about one count) down to a fraction of a count. */
 	int32_t err = (int32_t)target[ch] - measured;
-	int32_t t = trim_q8[ch] + ((err * CC_Q8_PER_COUNT_Q8) >> 10);
+	int32_t t = trim_q8[ch] + ((err * (int32_t)CC_Q8_PER_COUNT_Q8) >> 10);
 	bool at = false;
 	if (t > CC_TRIM_MAX_Q8) {
 		t = CC_TRIM_MAX_Q8;
@@ -120,7 +130,7 @@ void cc_tick(void)
 		if (ch == 0)
 			OCR2A = step;
 		else
-			OCR2B = step;
+			OCR1B = step;
 	}
 }
 #endif

@@ -20,14 +20,14 @@ void safe_pins_first(void)
 			 "sbi %[ddr], 0\n\t"
 			 "sbi %[ddr], 1\n\t"
 #if CC_LOAD
-			 /* CC variant: both PWM setpoints (PB3, PD3) and both charger enables
+			 /* CC variant: both PWM setpoints (PB3, PB2) and both charger enables
 			  * (PD4, PD5) as well, right after the loads. */
 			 "cbi %[port], 3\n\t"
+			 "cbi %[port], 2\n\t"
 			 "sbi %[ddr], 3\n\t"
-			 "cbi %[portd], 3\n\t"
+			 "sbi %[ddr], 2\n\t"
 			 "cbi %[portd], 4\n\t"
 			 "cbi %[portd], 5\n\t"
-			 "sbi %[ddrd], 3\n\t"
 			 "sbi %[ddrd], 4\n\t"
 			 "sbi %[ddrd], 5\n\t"
 #endif

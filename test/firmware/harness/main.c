@@ -32,7 +32,8 @@
 #define CHARGER_PINS 0x30 /* PD4: channel 0, PD5: channel 1 */
 #define TCCR2A_ADDR 0xB0
 #define OCR2A_ADDR 0xB3
-#define OCR2B_ADDR 0xB4
+#define TCCR1A_ADDR 0x80
+#define OCR1BL_ADDR 0x8A
 
 static avr_t *avr;
 static struct channel ch[2];
@@ -93,19 +94,19 @@ static double gauss(void)
 
 static double world_ms;
 
-/* The CC variant's PWM pins as their mean voltage over the millisecond: fast PWM gives
+/* The CC variant's PWM pins (OC2A on PB3 for channel 0, OC1B on PB2 for channel 1) as their mean voltage over the millisecond: fast PWM gives
  * (OCR + 1) / 256 of the supply while the output compare drives the pin, else the pin's level.
  * The firmware changes OCR only on the millisecond tick, so one look per millisecond sees
  * every value it sets. */
 static void read_pwm(void)
 {
-	uint8_t com = avr->data[TCCR2A_ADDR];
 	const struct {
-		uint8_t com_bit, ocr, port, bit;
-	} pin[2] = {{0x80, OCR2A_ADDR, PORTB_ADDR, 3}, {0x20, OCR2B_ADDR, PORTD_ADDR, 3}};
+		uint8_t tccr, com_bit, ocr, bit;
+	} pin[2] = {{TCCR2A_ADDR, 0x80, OCR2A_ADDR, 3}, {TCCR1A_ADDR, 0x20, OCR1BL_ADDR, 2}};
 	for (int k = 0; k < 2; k++) {
-		double duty = (com & pin[k].com_bit) ? (avr->data[pin[k].ocr] + 1) / 256.0
-						     : (avr->data[pin[k].port] >> pin[k].bit) & 1;
+		double duty = (avr->data[pin[k].tccr] & pin[k].com_bit)
+				      ? (avr->data[pin[k].ocr] + 1) / 256.0
+				      : (avr->data[PORTB_ADDR] >> pin[k].bit) & 1;
 		ch[k].pwm_v = duty * AVCC_V;
 	}
 }

@@ -127,8 +127,12 @@ void channel_step(struct channel *c, double now_ms, double dt_ms)
 	c->temp_c += (c->ambient_c + rise - c->temp_c) * (dt / c->cell.thermal_tau_s);
 	if (c->hot_at_ms < 0 && c->temp_c >= c->cell.hot_mark_c)
 		c->hot_at_ms = now_ms;
-	if (c->cc.present)
-		c->rc_v += (c->pwm_v - c->rc_v) * (1 - exp(-dt_ms / c->cc.rc_tau_ms));
+	if (c->cc.present) {
+		/* The PWM's filter: two equal RC stages (the second loads the first lightly) */
+		double a = 1 - exp(-dt_ms / c->cc.rc_tau_ms);
+		c->rc1_v += (c->pwm_v - c->rc1_v) * a;
+		c->rc_v += (c->rc1_v - c->rc_v) * a;
+	}
 	int phase = c->phase;
 	solve(c);
 	/* Termination is judged on the current after the step; each phase is its own segment. */

@@ -27,7 +27,7 @@ struct cell_params {
  * does with it, and the charger module on the charger-enable pin. */
 struct cc_params {
 	bool present;		/* the firmware is the CC variant: the load is the op-amp loop */
-	double rc_tau_ms;	/* the PWM's RC filter */
+	double rc_tau_ms;	/* each of the PWM filter's two RC stages */
 	double charge_a;	/* the charger's constant current (its programming resistor) */
 	double charge_v;	/* its constant-voltage level */
 	double term_a;		/* it stops when the current in constant voltage falls below this */
@@ -57,7 +57,7 @@ struct channel {
 	double current_a, terminal_v, load_a, charger_a;
 	/* CC variant: the PWM pin's mean voltage now, the RC filter's output, the charger */
 	struct cc_params cc;
-	double pwm_v, rc_v;
+	double pwm_v, rc1_v, rc_v;
 	bool charger_on;
 	int phase;
 	/* truth: charge_as and energy_ws are what the load drew; charged_as what the charger put in */
