@@ -40,7 +40,9 @@ export interface CcChannelTruth extends ChannelTruth {
   })[];
 }
 
-export type CcTruth = Omit<HarnessTruth, 'channels'> & { channels: [CcChannelTruth, CcChannelTruth] };
+export type CcTruth = Omit<HarnessTruth, 'channels'> & {
+  channels: [CcChannelTruth, CcChannelTruth];
+};
 
 export interface Heard {
   line: string;
@@ -81,7 +83,9 @@ export interface CcRigOptions {
 export async function startCcRig(o: CcRigOptions = {}): Promise<CcRig> {
   for (const f of [CC_FIRMWARE_ELF, HARNESS])
     if (!existsSync(f))
-      throw new Error(`${f} is missing: build it with "make -C firmware && make -C test/firmware".`);
+      throw new Error(
+        `${f} is missing: build it with "make -C firmware && make -C test/firmware".`,
+      );
   const dir = mkdtempSync(join(tmpdir(), 'cellvigil-cc-'));
   const port = join(dir, 'rig');
   const truthPath = join(dir, 'truth.json');
@@ -136,7 +140,9 @@ export async function startCcRig(o: CcRigOptions = {}): Promise<CcRig> {
     },
     beat: (on, everyMs = 200) => {
       if (beater) clearInterval(beater);
-      beater = on ? setInterval(() => serial.write(encodeCommand({ command: 'BEAT' })), everyMs) : null;
+      beater = on
+        ? setInterval(() => serial.write(encodeCommand({ command: 'BEAT' })), everyMs)
+        : null;
     },
     stop: async () => {
       rig.beat(false);
