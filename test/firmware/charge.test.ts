@@ -98,6 +98,12 @@ describe('reference firmware (CC variant) on an emulated chip: charging', () => 
     await rig?.stop();
   });
 
+  it('drives the setpoint and charger pins low within the first instructions after power-on (3-cycle jump, 2 cycles per cbi/sbi: ATmega328P instruction set, from memory)', () => {
+    // The jump, the four load-pin instructions, then eight for PB2, PB3, PD4 and PD5.
+    expect(afterCharge.boot_cc_pins_driven_after_cycles).toBeGreaterThan(0);
+    expect(afterCharge.boot_cc_pins_driven_after_cycles).toBeLessThanOrEqual(3 + 12 * 2);
+  });
+
   it('charges at constant current, then constant voltage, then terminates by itself', () => {
     const ch = afterCharge.channels[0];
     const phases = ch.segments.filter((s) => s.mode === 'charge').map((s) => s.phase);

@@ -237,3 +237,21 @@ describe('protocol 1.1: data-frame flags', () => {
     expect(frameState(0x21)).toHaveProperty('invalid');
   });
 });
+
+describe('protocol 1.1: robustness', () => {
+  it('never throws on any printable line, and accepts a K line only in canonical form (property)', () => {
+    const field = fc.oneof(
+      fc.constantFrom('K', 'I', 'S', 'P', '0', '1', '24', '3000', '', '00', '-1', '4096'),
+      fc.string({ maxLength: 6 }),
+    );
+    fc.assert(
+      fc.property(fc.array(field, { minLength: 1, maxLength: 9 }), (fields) => {
+        const line = referenceLine(['K', ...fields].join(','));
+        const r = decodeRigLine11(line, 12);
+        if (r.ok && r.message.kind === 'capability')
+          expect(encodeCapability(r.message).trimEnd()).toBe(line);
+      }),
+      { numRuns: 3000 },
+    );
+  });
+});

@@ -62,6 +62,9 @@ static struct {
 static unsigned nresets;
 /* Cycles from power-on until the firmware drove both load pins, -1 while not yet. */
 static long boot_driven_after = -1;
+/* CC variant: the same for both setpoint pins (PB2, PB3) and both charger pins (PD4, PD5). */
+static long boot_cc_driven_after = -1;
+#define DDRD_ADDR 0x2A
 static avr_cycle_count_t last_reset_cycle;
 static bool reset_pending;
 static double hung_at_ms = -1;
@@ -219,8 +222,8 @@ static void write_truth(void)
 	fprintf(f, "\"link\":{\"bytes_in\":%llu,\"bytes_out\":%llu,\"bytes_dropped\":%llu,\"last_host_byte_ms\":%.3f},",
 		(unsigned long long)l->bytes_in, (unsigned long long)l->bytes_out,
 		(unsigned long long)l->bytes_dropped, l->last_host_byte_ms);
-	fprintf(f, "\"hung_at_ms\":%.3f,\"boot_pins_driven_after_cycles\":%ld,\"resets\":[", hung_at_ms,
-		boot_driven_after);
+	fprintf(f, "\"hung_at_ms\":%.3f,\"boot_pins_driven_after_cycles\":%ld,\"boot_cc_pins_driven_after_cycles\":%ld,\"resets\":[",
+		hung_at_ms, boot_driven_after, boot_cc_driven_after);
 	for (unsigned i = 0; i < nresets; i++)
 		fprintf(f, "%s{\"at_ms\":%.3f,\"cause\":\"%s\",\"pins_driven_after_cycles\":%ld}", i ? "," : "",
 			resets[i].at_ms, resets[i].cause, resets[i].driven_after);
@@ -421,6 +424,9 @@ int main(int argc, char **argv)
 		long *driven = nresets ? &resets[nresets - 1].driven_after : &boot_driven_after;
 		if (*driven < 0 && (avr->data[DDRB_ADDR] & LOAD_PINS) == LOAD_PINS)
 			*driven = (long)(avr->cycle - last_reset_cycle);
+		if (cc.present && boot_cc_driven_after < 0 && !nresets &&
+		    (avr->data[DDRB_ADDR] & 0x0c) == 0x0c && (avr->data[DDRD_ADDR] & CHARGER_PINS) == CHARGER_PINS)
+			boot_cc_driven_after = (long)avr->cycle;
 		/* A load is on while its PORTB bit is set: driven high as an output, or, as an input,
 		 * through the internal pull-up, which beats the gate's pull-down. */
 		uint8_t now_pins = avr->data[PORTB_ADDR] & LOAD_PINS;
