@@ -1,6 +1,7 @@
 #include "config.h"
 #if CC_LOAD
 #include "cc_load.h"
+#include "tick.h"
 #include <avr/io.h>
 #include <util/atomic.h>
 
@@ -14,6 +15,10 @@ static uint16_t target[CHANNELS];
 static uint8_t bound; /* bit per channel */
 static volatile uint8_t running; /* bit per channel */
 static uint8_t acc[CHANNELS];
+/* Readings before this tick are not trimmed on: the filter is still settling to a new duty
+ * (two stages of 47 ms reach 99.9 % of a step in 0.42 s), and a trim on them would overshoot. */
+static uint32_t settled_at[CHANNELS];
+#define SETTLE_MS 420
 
 void cc_init(void)
 {
@@ -44,8 +49,10 @@ void cc_set_target(uint8_t ch, uint16_t counts)
 	uint32_t steps_q8 = ((uint32_t)counts * CC_Q8_PER_COUNT_Q8) >> 8;
 	ff_q8[ch] = steps_q8 > 65791UL ? 65535u : steps_q8 < 256 ? 0 : (uint16_t)(steps_q8 - 256);
 	/* A new setpoint while discharging: the trim learnt so far (the board's offsets) stays. */
-	if (running & _BV(ch))
+	if (running & _BV(ch)) {
 		apply(ch);
+		settled_at[ch] = tick_ms() + SETTLE_MS;
+	}
 }
 
 uint16_t cc_target(uint8_t ch)
@@ -57,6 +64,7 @@ void cc_start(uint8_t ch)
 {
 	trim_q8[ch] = 0;
 	bound &= ~_BV(ch);
+	settled_at[ch] = tick_ms() + SETTLE_MS;
 	apply(ch);
 	ATOMIC_BLOCK(ATOMIC_RESTORESTATE)
 	{
@@ -92,7 +100,7 @@ void cc_stop(uint8_t ch)
 
 void cc_trim(uint8_t ch, uint16_t measured)
 {
-	if (!(running & _BV(ch)))
+	if (!(running & _BV(ch)) || (int32_t)(tick_ms() - settled_at[ch]) < 0)
 		return;
 	/* A quarter of the error per frame: settles in about a second, and averages the reading's
 	 * noise (about one count) down to a fraction of a count. */

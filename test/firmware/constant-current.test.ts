@@ -27,6 +27,7 @@ describe('reference firmware (CC variant) on an emulated chip: constant-current 
   const during: number[] = [];
   let framesFrom = 0;
   let framesTo = 0;
+  let notHeld = '';
 
   const sleep = (ms: number): Promise<void> => new Promise((r) => setTimeout(r, ms));
   /** The truth's present current, once per emulated 100 ms, for `emuMs`. */
@@ -90,6 +91,9 @@ describe('reference firmware (CC variant) on an emulated chip: constant-current 
       'the cell to reach 3.0 V',
     );
     framesTo = rig.heard.length;
+    // A current the cell can no longer drive through the 2.2 Ω ballast: the trim runs to its bound.
+    rig.send({ command: 'ISET', channel: 0, raw: 2900 });
+    notHeld = await rig.awaitLine(framesTo, /^D,0,(\d+,){5}25\|/, 'a frame with bit 5', 8000);
     rig.send({ command: 'MODE', channel: 0, mode: 'rest' });
     await sleep(500);
   }, 200_000);
@@ -152,6 +156,11 @@ describe('reference firmware (CC variant) on an emulated chip: constant-current 
     }
     const mean = spread(frames.map((f) => f.iRaw)).mean;
     expect(Math.abs(mean - target)).toBeLessThan(0.5);
+  });
+
+  it('says when the setpoint is not held: a current the cell cannot drive sets flag bit 5', () => {
+    expect(notHeld).toMatch(/,25\|/);
+    expect(frameState(0x25)).toMatchObject({ setpointNotHeld: true });
   });
 
   it('the board errors are real: the nominal chain would have been several per cent off', () => {
