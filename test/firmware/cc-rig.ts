@@ -42,6 +42,8 @@ export interface CcChannelTruth extends ChannelTruth {
 
 export type CcTruth = Omit<HarnessTruth, 'channels'> & {
   channels: [CcChannelTruth, CcChannelTruth];
+  /** Cycles from power-on until both setpoint pins and both charger pins were driven outputs. */
+  boot_cc_pins_driven_after_cycles: number;
 };
 
 export interface Heard {
