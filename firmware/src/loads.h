@@ -3,6 +3,7 @@
 #define LOADS_H
 #include <stdbool.h>
 #include <stdint.h>
+#include "config.h"
 
 void loads_set(uint8_t ch, bool on);
 bool loads_on(uint8_t ch);
@@ -14,5 +15,13 @@ void loads_heartbeat(void);
 /* The channels (a bit each) the heartbeat watchdog has cut since the last call, so the main
  * loop can say so. */
 uint8_t loads_take_beat_lost(void);
+
+#if CC_LOAD
+/* Protocol 1.1 modes of a channel (CC variant): rest (everything off), discharge (the
+ * constant-current load on), charge (the charger on). */
+enum { MODE_REST, MODE_DISCHARGE, MODE_CHARGE };
+uint8_t loads_mode(uint8_t ch);
+void loads_mode_set(uint8_t ch, uint8_t mode);
+#endif
 
 #endif

@@ -1,6 +1,7 @@
 /* Reference rig firmware for cellvigil: two discharge channels on an ATmega328P at 16 MHz,
  * speaking protocol v1 over the serial line. */
 #include "adc.h"
+#include "cc_load.h"
 #include "config.h"
 #include "loads.h"
 #include "protocol.h"
@@ -16,8 +17,9 @@
 #include <stdlib.h>
 #include <string.h>
 
-/* ADC inputs of each channel: voltage, current, thermistor. */
-static const uint8_t INPUTS[CHANNELS][3] = {{0, 1, 2}, {3, 4, 5}};
+/* ADC inputs of each channel: voltage, current, thermistor, and (CC variant) the charger's
+ * current monitor on ADC6 and ADC7, the analog-only inputs of the TQFP and QFN packages. */
+static const uint8_t INPUTS[CHANNELS][4] = {{0, 1, 2, 6}, {3, 4, 5, 7}};
 
 static uint16_t seq[CHANNELS];
 
@@ -35,18 +37,28 @@ static char *field(char *p, uint32_t value)
 static void send_hello(void)
 {
 	send_line_P(PSTR("H," RIG_ID "," FIRMWARE_VERSION "," NUMBER(ADC_BITS) "," NUMBER(CHANNELS)));
+#if CC_LOAD
+	/* Protocol 1.1: the capability lines follow the hello at once, before any other line. */
+	send_line_P(PSTR("K,0,I," NUMBER(CC_MIN_COUNTS) "," NUMBER(CC_MAX_COUNTS) ",0,1"));
+	send_line_P(PSTR("K,1,I," NUMBER(CC_MIN_COUNTS) "," NUMBER(CC_MAX_COUNTS) ",0,1"));
+#endif
 }
 
 static void send_frame(uint8_t ch, uint32_t tick)
 {
 	uint8_t flags = loads_flags(ch);
 	uint16_t v = adc_read12(INPUTS[ch][0]);
-	uint16_t i = adc_read12(INPUTS[ch][1]);
+	/* While charging, i is the charger's current (flag bit 4 says it flows into the cell). */
+	uint16_t i = adc_read12(INPUTS[ch][(flags & 0x10) ? 3 : 1]);
 	uint16_t t = adc_read12(INPUTS[ch][2]);
 	/* The flags are read again after the conversions: a load switched meanwhile reports its
 	 * new state only in the next frame, never a current that does not match its flag. */
 	if (loads_flags(ch) != flags)
 		return;
+#if CC_LOAD
+	if (flags & 0x01)
+		cc_trim(ch, i);
+#endif
 	char line[48] = "D";
 	char *p = field(line + 1, ch);
 	p = field(p, seq[ch]++);
@@ -80,6 +92,19 @@ static void report_reset(uint8_t flags)
 	}
 }
 
+#if CC_LOAD
+/* Switches a channel's mode, or says with an E line why not; false when refused. */
+static bool switch_mode(uint8_t ch, uint8_t mode)
+{
+	if (mode == MODE_DISCHARGE && cc_target(ch) == 0) {
+		send_line_P(PSTR("E,SETPOINT,no current set: send ISET before discharging"));
+		return false;
+	}
+	loads_mode_set(ch, mode);
+	return true;
+}
+#endif
+
 static void answer(struct parsed p)
 {
 	char line[64];
@@ -93,8 +118,16 @@ static void answer(struct parsed p)
 		loads_heartbeat();
 		return;
 	case CMD_LOAD: {
+#if CC_LOAD
+		/* v1's LOAD on a CC channel: 1 discharges at the setpoint, 0 rests (charger off too). */
+		uint8_t mode = p.on ? MODE_DISCHARGE : MODE_REST;
+		bool changed = loads_mode(p.channel) != mode;
+		if (!switch_mode(p.channel, mode))
+			return;
+#else
 		bool changed = loads_on(p.channel) != p.on;
 		loads_set(p.channel, p.on);
+#endif
 		strcpy(line, "A,LOAD");
 		field(field(line + 6, p.channel), p.on);
 		send_line(line);
@@ -105,6 +138,36 @@ static void answer(struct parsed p)
 			send_frame(p.channel, tick_ms());
 		return;
 	}
+#if CC_LOAD
+	case CMD_MODE: {
+		bool changed = loads_mode(p.channel) != p.on;
+		if (!switch_mode(p.channel, p.on))
+			return;
+		strcpy(line, "A,MODE");
+		char *q = field(line + 6, p.channel);
+		*q++ = ',';
+		*q++ = "RDC"[p.on];
+		*q = 0;
+		send_line(line);
+		if (changed)
+			send_frame(p.channel, tick_ms());
+		return;
+	}
+	case CMD_ISET:
+		if (p.value < CC_MIN_COUNTS || p.value > CC_MAX_COUNTS) {
+			send_line_P(PSTR("E,RANGE,setpoint outside " NUMBER(CC_MIN_COUNTS) ".." NUMBER(
+			    CC_MAX_COUNTS) " counts"));
+			return;
+		}
+		cc_set_target(p.channel, p.value);
+		strcpy(line, "A,ISET");
+		field(field(line + 6, p.channel), p.value);
+		send_line(line);
+		return;
+	case CMD_PSET:
+		send_line_P(PSTR("E,CAPABLE,no constant power on this rig: use ISET"));
+		return;
+#endif
 	case CMD_BAD:
 		strcpy(line, "E,");
 		strcat_P(line, p.error_code);
@@ -150,6 +213,9 @@ int main(void)
 	tick_init();
 	uart_init();
 	adc_init();
+#if CC_LOAD
+	cc_init();
+#endif
 	set_sleep_mode(SLEEP_MODE_IDLE);
 	/* The hardware watchdog resets the chip when the main loop stops coming round. */
 	wdt_enable(WDTO_500MS);

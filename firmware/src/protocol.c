@@ -64,7 +64,7 @@ static bool crc_ok(const char *line, uint8_t len, uint8_t *payload_len)
 
 static struct parsed bad(const char *code, const char *text)
 {
-	struct parsed p = {CMD_BAD, 0, 0, code, text};
+	struct parsed p = {CMD_BAD, 0, 0, 0, code, text};
 	return p;
 }
 
@@ -85,7 +85,7 @@ static int8_t channel_field(const char *s)
 
 struct parsed parse_line(char *line, uint8_t len)
 {
-	struct parsed p = {CMD_NONE, 0, 0, 0, 0};
+	struct parsed p = {CMD_NONE, 0, 0, 0, 0, 0};
 	if (len && line[len - 1] == '\r')
 		len--;
 	if (len == 0)
@@ -102,22 +102,58 @@ struct parsed parse_line(char *line, uint8_t len)
 		p.cmd = CMD_BEAT;
 		return p;
 	}
-	if (strncmp(line, "C,LOAD,", 7) != 0)
+	bool load = strncmp(line, "C,LOAD,", 7) == 0;
+#if CC_LOAD
+	bool mode = strncmp(line, "C,MODE,", 7) == 0;
+	bool iset = strncmp(line, "C,ISET,", 7) == 0;
+	if (!load && !mode && !iset && strncmp(line, "C,PSET,", 7) != 0)
 		return bad(PSTR("SYNTAX"), PSTR("unknown command"));
+#else
+	if (!load)
+		return bad(PSTR("SYNTAX"), PSTR("unknown command"));
+#endif
 	char *ch = line + 7;
 	char *comma = strchr(ch, ',');
 	if (!comma)
-		return bad(PSTR("SYNTAX"), PSTR("LOAD needs a channel and 0 or 1"));
+		return load ? bad(PSTR("SYNTAX"), PSTR("LOAD needs a channel and 0 or 1"))
+			    : bad(PSTR("SYNTAX"), PSTR("a command needs a channel and a value"));
 	*comma = 0;
-	const char *state = comma + 1;
+	const char *arg = comma + 1;
 	int8_t c = channel_field(ch);
-	if (c < 0 || (strcmp(state, "0") != 0 && strcmp(state, "1") != 0))
-		return bad(PSTR("RANGE"), PSTR("channel 0..15 and state 0 or 1"));
+	if (c < 0)
+		return load ? bad(PSTR("RANGE"), PSTR("channel 0..15 and state 0 or 1"))
+			    : bad(PSTR("RANGE"), PSTR("channel 0..15"));
+	p.channel = (uint8_t)c;
+	if (load) {
+		if (strcmp(arg, "0") != 0 && strcmp(arg, "1") != 0)
+			return bad(PSTR("RANGE"), PSTR("channel 0..15 and state 0 or 1"));
+		p.cmd = CMD_LOAD;
+		p.on = arg[0] == '1';
+	}
+#if CC_LOAD
+	else if (mode) {
+		static const char MODES[] = "RDC"; /* in the order MODE_REST, _DISCHARGE, _CHARGE */
+		const char *m = arg[0] ? strchr(MODES, arg[0]) : 0;
+		if (!m || arg[1])
+			return bad(PSTR("RANGE"), PSTR("mode R, D or C"));
+		p.cmd = CMD_MODE;
+		p.on = (uint8_t)(m - MODES);
+	} else {
+		uint8_t n = (uint8_t)strlen(arg);
+		uint32_t v = 0;
+		for (uint8_t i = 0; i < n; i++) {
+			if (arg[i] < '0' || arg[i] > '9' || n > 5 || (i == 0 && arg[0] == '0' && n > 1))
+				return bad(PSTR("RANGE"), PSTR("a setpoint is a count 0..65535"));
+			v = v * 10 + (uint8_t)(arg[i] - '0');
+		}
+		if (n == 0 || v > 65535)
+			return bad(PSTR("RANGE"), PSTR("a setpoint is a count 0..65535"));
+		p.cmd = iset ? CMD_ISET : CMD_PSET;
+		p.value = (uint16_t)v;
+	}
+#endif
 	if (c >= CHANNELS)
 		return bad(PSTR("CHANNEL"), PSTR("no such channel on this rig"));
-	p.cmd = CMD_LOAD;
-	p.channel = (uint8_t)c;
-	p.on = state[0] == '1';
 	return p;
 }
 

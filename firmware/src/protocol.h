@@ -2,6 +2,7 @@
 #ifndef PROTOCOL_H
 #define PROTOCOL_H
 #include <stdint.h>
+#include "config.h"
 
 /* Longest host line kept; the longest valid command, C,LOAD,15,1|XXXX, is 16 bytes. */
 #define LINE_MAX 48
@@ -17,6 +18,11 @@ enum command {
 	CMD_HELLO,
 	CMD_BEAT,
 	CMD_LOAD,
+#if CC_LOAD
+	CMD_MODE, /* protocol 1.1: `on` holds the mode */
+	CMD_ISET, /* protocol 1.1: `value` holds the setpoint in counts */
+	CMD_PSET, /* protocol 1.1: refused, the reference loads have no constant power */
+#endif
 	CMD_BAD /* answered with an E line: `error_code` and `error_text` say why */
 };
 
@@ -24,6 +30,7 @@ struct parsed {
 	enum command cmd;
 	uint8_t channel;
 	uint8_t on;
+	uint16_t value;
 	const char *error_code; /* both in flash */
 	const char *error_text;
 };

@@ -1,6 +1,7 @@
 #include "reset_cause.h"
 #include <avr/io.h>
 #include <avr/wdt.h>
+#include "config.h"
 
 /* Not cleared by the start-up code, so they survive until main reads them. */
 static uint8_t saved_mcusr __attribute__((section(".noinit"), used));
@@ -18,8 +19,21 @@ void safe_pins_first(void)
 			 "cbi %[port], 1\n\t"
 			 "sbi %[ddr], 0\n\t"
 			 "sbi %[ddr], 1\n\t"
+#if CC_LOAD
+			 /* CC variant: both PWM setpoints (PB3, PB2) and both charger enables
+			  * (PD4, PD5) as well, right after the loads. */
+			 "cbi %[port], 3\n\t"
+			 "cbi %[port], 2\n\t"
+			 "sbi %[ddr], 3\n\t"
+			 "sbi %[ddr], 2\n\t"
+			 "cbi %[portd], 4\n\t"
+			 "cbi %[portd], 5\n\t"
+			 "sbi %[ddrd], 4\n\t"
+			 "sbi %[ddrd], 5\n\t"
+#endif
 			 "sts saved_r2, r2\n\t" ::[port] "I"(_SFR_IO_ADDR(PORTB)),
-			 [ddr] "I"(_SFR_IO_ADDR(DDRB)));
+			 [ddr] "I"(_SFR_IO_ADDR(DDRB)), [portd] "I"(_SFR_IO_ADDR(PORTD)),
+			 [ddrd] "I"(_SFR_IO_ADDR(DDRD)));
 }
 
 /* After a watchdog reset the watchdog stays on at its shortest period (16 ms) and WDRF must be

@@ -81,6 +81,12 @@ const SCHEMA: SchemaObject = {
       additionalProperties: false,
       properties: { max_current_A: positive },
     },
+    charger: {
+      type: 'object',
+      additionalProperties: false,
+      required: ['monitor_A_per_V'],
+      properties: { monitor_A_per_V: positive },
+    },
   },
 };
 
@@ -115,6 +121,9 @@ const MEANING: Record<string, string> = {
   'frame.baud': 'the serial speed in baud, e.g. 115200',
   limits: 'a mapping with max_current_A',
   'limits.max_current_A': 'the highest current the rig may carry, in amps',
+  charger: 'a mapping with monitor_A_per_V',
+  'charger.monitor_A_per_V':
+    "the charger's current per volt of its monitor output, in amps per volt (protocol 1.1 rigs)",
 };
 
 const validate = new Ajv({ allErrors: true, strict: true, strictRequired: false }).compile(SCHEMA);

@@ -29,4 +29,9 @@ export interface RigProfile {
   frame: { baud: number };
   /** Optional limits of this rig. */
   limits?: { max_current_A?: number };
+  /**
+   * A protocol 1.1 rig's chargers: while a frame's flag bit 4 says the current flows into the
+   * cell, `i_raw` is the charger's current monitor, and amps = ADC volts × monitor_A_per_V.
+   */
+  charger?: { monitor_A_per_V: number };
 }

@@ -32,6 +32,8 @@ export const ErrorCodes = {
   REGISTRY_UNKNOWN_CELL: 'CV_REGISTRY_UNKNOWN_CELL',
   PACK_TOO_FEW_CELLS: 'CV_PACK_TOO_FEW_CELLS',
   BROKER_CONFIG: 'CV_BROKER_CONFIG',
+  RIG_INCAPABLE: 'CV_RIG_INCAPABLE',
+  RIG_CAPABILITIES: 'CV_RIG_CAPABILITIES',
 } as const;
 
 export type ErrorCode = (typeof ErrorCodes)[keyof typeof ErrorCodes];
@@ -71,6 +73,7 @@ export function makeError(
     code === ErrorCodes.REGISTRY_DUPLICATE ||
     code === ErrorCodes.REGISTRY_UNKNOWN_CELL ||
     code === ErrorCodes.PACK_TOO_FEW_CELLS ||
-    code === ErrorCodes.BROKER_CONFIG;
+    code === ErrorCodes.BROKER_CONFIG ||
+    code === ErrorCodes.RIG_INCAPABLE;
   return new CellvigilError(code, `${what} (${where}). ${fix}`, usage ? 2 : 1);
 }

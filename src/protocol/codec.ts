@@ -7,11 +7,12 @@ export const MAX_LINE_LENGTH = 200;
 const DEC = /^(0|[1-9][0-9]{0,9})$/;
 const HEX_FLAGS = /^[0-9A-Fa-f]{1,2}$/;
 
-function reject(reason: RejectReason, detail: string): DecodeResult {
+export function reject(reason: RejectReason, detail: string): DecodeResult {
   return { ok: false, reason, detail };
 }
 
-function uint(field: string, max: number): number | null {
+/** A decimal field without sign, point or leading zero: its value, -1 above `max`, null if not one. */
+export function uint(field: string, max: number): number | null {
   if (!DEC.test(field)) return null;
   const n = Number(field);
   return n <= max ? n : -1;
@@ -34,7 +35,7 @@ function hex4(text: string, at: number): number {
 }
 
 /** Strips the checksum and verifies it; returns the payload or a reject reason. */
-function checkFrame(line: string): { payload: string } | DecodeResult {
+export function checkFrame(line: string): { payload: string } | DecodeResult {
   const text = line.endsWith('\r') ? line.slice(0, -1) : line;
   if (text.length > MAX_LINE_LENGTH) return reject('overlong', `${text.length} characters`);
   for (let i = 0; i < text.length; i++) {

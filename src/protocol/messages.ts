@@ -52,3 +52,54 @@ export type DecodeResult =
 /** Host-to-rig commands. */
 export type HostCommand =
   { command: 'LOAD'; channel: number; on: boolean } | { command: 'HELLO' } | { command: 'BEAT' };
+
+/*
+ * Protocol 1.1 (docs/protocol.md, "Version 1.1"): what a channel can do, its mode, and the
+ * setpoint of a constant-current load. Kept apart from the v1 unions above so that a v1 host's
+ * code never sees a 1.1 message or sends a 1.1 command.
+ */
+
+/** How a channel's load draws current: a switched resistor, or a regulated electronic load. */
+export type LoadKind = 'switched' | 'constant_current' | 'constant_power';
+
+/** A `K` line: one channel's capabilities, in the raw counts of its own frames. */
+export interface CapabilityFrame {
+  kind: 'capability';
+  channel: number;
+  load: LoadKind;
+  /** Lowest and highest current setpoint, in counts of the channel's current input (0 for switched). */
+  iMinRaw: number;
+  iMaxRaw: number;
+  /** Highest power setpoint in count units (v_raw × i_raw / 2^adc_bits); 0 when not offered. */
+  pMaxRaw: number;
+  /** A charger switched by the rig (its own termination); its current is reported while charging. */
+  charger: boolean;
+}
+
+export type RigMessage11 = RigMessage | CapabilityFrame;
+
+export type ChannelMode = 'rest' | 'discharge' | 'charge';
+
+/** Mode letters on the wire. */
+export const MODE_LETTER: Record<ChannelMode, 'R' | 'D' | 'C'> = {
+  rest: 'R',
+  discharge: 'D',
+  charge: 'C',
+};
+
+/** Host-to-rig commands that only a 1.1 rig understands. */
+export type HostCommand11 =
+  | { command: 'MODE'; channel: number; mode: ChannelMode }
+  | { command: 'ISET'; channel: number; raw: number }
+  | { command: 'PSET'; channel: number; raw: number };
+
+/* Data-frame flags of 1.1, in bits v1 reserved (a v1 rig sends them as zero). */
+/** Bits 2–3: how the channel's current is set (see `FrameRegulation`). */
+export const FLAG_MODE_MASK = 0x0c;
+export const FLAG_MODE_SHIFT = 2;
+/** Bit 4: the current in `i_raw` flows into the cell (charging). */
+export const FLAG_INTO_CELL = 0x10;
+/** Bit 5: the constant-current trim is at its bound: the setpoint is not being held. */
+export const FLAG_TRIM_AT_BOUND = 0x20;
+/** Bits 6–7 stay reserved in 1.1. */
+export const FLAG_RESERVED_11 = 0xc0;

@@ -27,6 +27,13 @@
 #define DDRB_ADDR 0x24
 #define MCUSR_ADDR 0x54
 #define LOAD_PINS 0x03	/* PB0: channel 0, PB1: channel 1 */
+/* The CC variant's pins and Timer2 (ATmega328P data-space addresses) */
+#define PORTD_ADDR 0x2B
+#define CHARGER_PINS 0x30 /* PD4: channel 0, PD5: channel 1 */
+#define TCCR2A_ADDR 0xB0
+#define OCR2A_ADDR 0xB3
+#define TCCR1A_ADDR 0x80
+#define OCR1BL_ADDR 0x8A
 
 static avr_t *avr;
 static struct channel ch[2];
@@ -55,6 +62,9 @@ static struct {
 static unsigned nresets;
 /* Cycles from power-on until the firmware drove both load pins, -1 while not yet. */
 static long boot_driven_after = -1;
+/* CC variant: the same for both setpoint pins (PB2, PB3) and both charger pins (PD4, PD5). */
+static long boot_cc_driven_after = -1;
+#define DDRD_ADDR 0x2A
 static avr_cycle_count_t last_reset_cycle;
 static bool reset_pending;
 static double hung_at_ms = -1;
@@ -87,6 +97,23 @@ static double gauss(void)
 
 static double world_ms;
 
+/* The CC variant's PWM pins (OC2A on PB3 for channel 0, OC1B on PB2 for channel 1) as their mean voltage over the millisecond: fast PWM gives
+ * (OCR + 1) / 256 of the supply while the output compare drives the pin, else the pin's level.
+ * The firmware changes OCR only on the millisecond tick, so one look per millisecond sees
+ * every value it sets. */
+static void read_pwm(void)
+{
+	const struct {
+		uint8_t tccr, com_bit, ocr, bit;
+	} pin[2] = {{TCCR2A_ADDR, 0x80, OCR2A_ADDR, 3}, {TCCR1A_ADDR, 0x20, OCR1BL_ADDR, 2}};
+	for (int k = 0; k < 2; k++) {
+		double duty = (avr->data[pin[k].tccr] & pin[k].com_bit)
+				      ? (avr->data[pin[k].ocr] + 1) / 256.0
+				      : (avr->data[PORTB_ADDR] >> pin[k].bit) & 1;
+		ch[k].pwm_v = duty * AVCC_V;
+	}
+}
+
 static void advance_world(double now_ms)
 {
 	double dt = now_ms - world_ms;
@@ -107,9 +134,11 @@ static void on_adc_trigger(avr_irq_t *irq, uint32_t value, void *param)
 		avr_adc_mux_t mux;
 		uint32_t v;
 	} e = {.v = value};
-	if (e.mux.kind != ADC_MUX_SINGLE || e.mux.src > 5)
+	if (e.mux.kind != ADC_MUX_SINGLE || e.mux.src > 7)
 		return;
-	int k = e.mux.src / 3, which = e.mux.src % 3;
+	/* ADC0..5: three inputs per channel; ADC6 and ADC7: the chargers' current monitors */
+	int k = e.mux.src < 6 ? e.mux.src / 3 : e.mux.src - 6;
+	int which = e.mux.src < 6 ? e.mux.src % 3 : 3;
 	double v = channel_pin_v(&ch[k], which) + gauss() * (AVCC_V / 1024);
 	uint32_t mv = v <= 0 ? 0 : (uint32_t)lround(v * 1000);
 	avr_raise_irq(avr_io_getirq(avr, AVR_IOCTL_ADC_GETIRQ, ADC_IRQ_ADC0 + e.mux.src), mv);
@@ -154,16 +183,24 @@ static void write_channel(FILE *f, const struct channel *c)
 	fprintf(f,
 		"{\"load_on\":%s,\"soc\":%.6f,\"current_A\":%.6f,\"terminal_V\":%.6f,"
 		"\"temperature_C\":%.4f,\"charge_Ah\":%.9f,\"energy_Wh\":%.9f,\"load_on_s\":%.4f,"
-		"\"hot_at_ms\":%.1f,\"segments_dropped\":%u,\"segments\":[",
+		"\"hot_at_ms\":%.1f,\"segments_dropped\":%u,",
 		c->load ? "true" : "false", c->soc, c->current_a, c->terminal_v, c->temp_c,
 		c->charge_as / 3600, c->energy_ws / 3600, c->load_on_s, c->hot_at_ms, c->seg_dropped);
+	static const char *const MODES[] = {"rest", "discharge", "charge"};
+	static const char *const PHASES[] = {"off", "cc", "cv", "done"};
+	fprintf(f,
+		"\"charger_on\":%s,\"charge_phase\":\"%s\",\"load_A\":%.6f,\"charger_A\":%.6f,"
+		"\"charged_Ah\":%.9f,\"charge_on_s\":%.4f,\"both_on_ms\":%.3f,\"setpoint_rc_V\":%.6f,"
+		"\"segments\":[",
+		c->charger_on ? "true" : "false", PHASES[c->phase], c->load_a, c->charger_a,
+		c->charged_as / 3600, c->charge_on_s, c->both_on_ms, c->rc_v);
 	for (unsigned i = 0; i < c->nseg; i++) {
 		const struct segment *s = &c->seg[i];
 		double span = s->to_ms - s->from_ms;
 		double d = span > 0 ? span : 1;
-		fprintf(f, "%s{\"from_ms\":%.3f,\"from_real_ms\":%.3f,\"to_ms\":%.3f,\"load\":%s,\"mean_A\":%.7f,\"mean_V\":%.7f,\"mean_C\":%.4f}",
-			i ? "," : "", s->from_ms, s->from_real_ms, s->to_ms, s->load ? "true" : "false", s->sum_a / d, s->sum_v / d,
-			s->sum_c / d);
+		fprintf(f, "%s{\"from_ms\":%.3f,\"from_real_ms\":%.3f,\"to_ms\":%.3f,\"load\":%s,\"mode\":\"%s\",\"phase\":\"%s\",\"mean_A\":%.7f,\"mean_V\":%.7f,\"mean_C\":%.4f}",
+			i ? "," : "", s->from_ms, s->from_real_ms, s->to_ms, s->load ? "true" : "false",
+			MODES[s->mode], PHASES[s->phase], s->sum_a / d, s->sum_v / d, s->sum_c / d);
 	}
 	fprintf(f, "]}");
 }
@@ -185,8 +222,8 @@ static void write_truth(void)
 	fprintf(f, "\"link\":{\"bytes_in\":%llu,\"bytes_out\":%llu,\"bytes_dropped\":%llu,\"last_host_byte_ms\":%.3f},",
 		(unsigned long long)l->bytes_in, (unsigned long long)l->bytes_out,
 		(unsigned long long)l->bytes_dropped, l->last_host_byte_ms);
-	fprintf(f, "\"hung_at_ms\":%.3f,\"boot_pins_driven_after_cycles\":%ld,\"resets\":[", hung_at_ms,
-		boot_driven_after);
+	fprintf(f, "\"hung_at_ms\":%.3f,\"boot_pins_driven_after_cycles\":%ld,\"boot_cc_pins_driven_after_cycles\":%ld,\"resets\":[",
+		hung_at_ms, boot_driven_after, boot_cc_driven_after);
 	for (unsigned i = 0; i < nresets; i++)
 		fprintf(f, "%s{\"at_ms\":%.3f,\"cause\":\"%s\",\"pins_driven_after_cycles\":%ld}", i ? "," : "",
 			resets[i].at_ms, resets[i].cause, resets[i].driven_after);
@@ -275,7 +312,12 @@ int main(int argc, char **argv)
 		{"speed", 1, 0, 's'},	     {"hold", 0, 0, 'H'},	{"seed", 1, 0, 'r'},
 		{"stop-after", 1, 0, 'x'},   {"capacity-mah", 1, 0, 'c'}, {"soc", 1, 0, 'q'},
 		{"internal-ohm", 1, 0, 'i'}, {"load-ohm", 1, 0, 'o'},	{"ambient", 1, 0, 'a'},
-		{"thermal-tau", 1, 0, 'u'},  {"hot-mark", 1, 0, 'm'},	{0, 0, 0, 0}};
+		{"thermal-tau", 1, 0, 'u'},  {"hot-mark", 1, 0, 'm'},	{"charge-ma", 1, 0, 'C'},
+		{"charge-v", 1, 0, 'V'},     {"term-ma", 1, 0, 'T'},	{"rc-tau-ms", 1, 0, 'R'},
+		{0, 0, 0, 0}};
+	/* The CC variant's charger module and filter (used only when the firmware is that variant) */
+	struct cc_params cc = {.present = false, .rc_tau_ms = 47, .charge_a = 0.1, .charge_v = 4.2,
+			       .term_a = 0.01};
 	int c;
 	while ((c = getopt_long(argc, argv, "", longopts, NULL)) != -1) {
 		switch (c) {
@@ -293,22 +335,27 @@ int main(int argc, char **argv)
 		case 'a': cell.ambient_c = arg_double(optarg, "--ambient"); break;
 		case 'u': cell.thermal_tau_s = arg_double(optarg, "--thermal-tau"); break;
 		case 'm': cell.hot_mark_c = arg_double(optarg, "--hot-mark"); break;
+		case 'C': cc.charge_a = arg_double(optarg, "--charge-ma") / 1000; break;
+		case 'V': cc.charge_v = arg_double(optarg, "--charge-v"); break;
+		case 'T': cc.term_a = arg_double(optarg, "--term-ma") / 1000; break;
+		case 'R': cc.rc_tau_ms = arg_double(optarg, "--rc-tau-ms"); break;
 		default: exit(2);
 		}
 	}
 	if (!opt.elf || !opt.link || !opt.truth) {
 		fprintf(stderr, "usage: rig-harness --elf <firmware.elf> --link <path> --truth <file.json> "
 				"[--speed 1] [--hold] [--seed n] [--stop-after s] [--capacity-mah 20] [--soc 0.9]\n"
-				"       [--internal-ohm 0.08] [--load-ohm 2.2] [--ambient 25] [--thermal-tau 10] [--hot-mark 60]\n");
+				"       [--internal-ohm 0.08] [--load-ohm 2.2] [--ambient 25] [--thermal-tau 10] [--hot-mark 60]\n"
+				"       [--charge-ma 100] [--charge-v 4.2] [--term-ma 10] [--rc-tau-ms 47]   (CC variant)\n");
 		return 2;
 	}
 	/* Two boards' worth of errors the host does not know: each channel its own. */
 	const struct board_errors errors[2] = {
-		{.amp_offset_v = 150e-6, .connection_ohm = 0.0010, .divider_error = 0.003, .ntc_r25_error = 0.01},
-		{.amp_offset_v = 90e-6, .connection_ohm = 0.0006, .divider_error = -0.002, .ntc_r25_error = -0.01},
+		{.amp_offset_v = 150e-6, .connection_ohm = 0.0010, .divider_error = 0.003, .ntc_r25_error = 0.01,
+		 .cc_divider_error = 0.01, .cc_loop_offset_v = -120e-6, .monitor_error = 0.02},
+		{.amp_offset_v = 90e-6, .connection_ohm = 0.0006, .divider_error = -0.002, .ntc_r25_error = -0.01,
+		 .cc_divider_error = -0.008, .cc_loop_offset_v = 80e-6, .monitor_error = -0.015},
 	};
-	channel_init(&ch[0], &cell, &errors[0]);
-	channel_init(&ch[1], &cell, &errors[1]);
 
 	elf_firmware_t fw;
 	memset(&fw, 0, sizeof fw);
@@ -327,6 +374,10 @@ int main(int argc, char **argv)
 	}
 	avr_load_firmware(avr, &fw);
 	uint32_t exit_pc = symbol_addr(&fw, "_exit");
+	/* The CC variant is known by its trim's tick; its board has the op-amp loop and chargers. */
+	cc.present = symbol_addr(&fw, "cc_tick") != 0;
+	channel_init(&ch[0], &cell, &errors[0], &cc);
+	channel_init(&ch[1], &cell, &errors[1], &cc);
 	/* simavr's default sleep waits in real time; pacing is done here instead, so that the
 	 * emulation can also run flat out. */
 	avr->sleep = sleep_not;
@@ -357,7 +408,7 @@ int main(int argc, char **argv)
 
 	const avr_cycle_count_t per_ms = F_CPU / 1000;
 	avr_cycle_count_t next_ms = per_ms;
-	uint8_t pins = 0;
+	uint8_t pins = 0, chg = 0;
 	unsigned ms_count = 0;
 	while (!stop) {
 		int state = avr_run(avr);
@@ -373,6 +424,9 @@ int main(int argc, char **argv)
 		long *driven = nresets ? &resets[nresets - 1].driven_after : &boot_driven_after;
 		if (*driven < 0 && (avr->data[DDRB_ADDR] & LOAD_PINS) == LOAD_PINS)
 			*driven = (long)(avr->cycle - last_reset_cycle);
+		if (cc.present && boot_cc_driven_after < 0 && !nresets &&
+		    (avr->data[DDRB_ADDR] & 0x0c) == 0x0c && (avr->data[DDRD_ADDR] & CHARGER_PINS) == CHARGER_PINS)
+			boot_cc_driven_after = (long)avr->cycle;
 		/* A load is on while its PORTB bit is set: driven high as an output, or, as an input,
 		 * through the internal pull-up, which beats the gate's pull-down. */
 		uint8_t now_pins = avr->data[PORTB_ADDR] & LOAD_PINS;
@@ -384,10 +438,21 @@ int main(int argc, char **argv)
 					ch[k].seg[ch[k].nseg - 1].from_real_ms = real_ms();
 			pins = now_pins;
 		}
+		uint8_t now_chg = cc.present ? avr->data[PORTD_ADDR] & CHARGER_PINS : 0;
+		if (now_chg != chg) {
+			double t = emulated_ms();
+			advance_world(t);
+			for (int k = 0; k < 2; k++)
+				if (channel_charger(&ch[k], t, now_chg & (0x10 << k)))
+					ch[k].seg[ch[k].nseg - 1].from_real_ms = real_ms();
+			chg = now_chg;
+		}
 		if (avr->cycle < next_ms)
 			continue;
 		next_ms += per_ms;
 		advance_world(emulated_ms());
+		if (cc.present)
+			read_pwm();
 		link_poll(emulated_ms());
 		pace_tick();
 		if (++ms_count % 10 == 0)

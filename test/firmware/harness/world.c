@@ -17,15 +17,58 @@ static double ocv(double soc)
 			double f = (soc - OCV_SOC[i - 1]) / (OCV_SOC[i] - OCV_SOC[i - 1]);
 			return OCV_V[i - 1] + f * (OCV_V[i] - OCV_V[i - 1]);
 		}
-	return OCV_V[OCV_N - 1];
+	/* Past full (only a charger gets there) the voltage climbs steeply. */
+	return OCV_V[OCV_N - 1] + (soc - 1.0) * 3.0;
+}
+
+/* The current the CC variant's loop holds: the filtered PWM voltage through the setpoint
+ * divider (passed by the analog switch while the enable pin is high) appears across the shunt
+ * and its connections, less the loop op-amp's offset; unless the cell cannot drive that much
+ * through the series resistance with the MOSFET fully on. */
+static double cc_load_current(const struct channel *c, double e)
+{
+	double k = CC_DIV_BOTTOM_OHM / (CC_DIV_TOP_OHM + CC_DIV_BOTTOM_OHM) * (1 + c->board.cc_divider_error);
+	double sense = SHUNT_OHM + c->board.connection_ohm;
+	double want = (c->rc_v * k - c->board.cc_loop_offset_v) / sense;
+	double most = e / (c->cell.internal_ohm + c->cell.load_ohm + MOSFET_OHM + sense);
+	want = want < 0 ? 0 : want;
+	return want < most ? want : most;
+}
+
+/* The charger module: its constant current until the cell's terminal voltage reaches its
+ * constant voltage, then what that voltage drives through the cell's resistance, until that
+ * falls below the termination current; then it stays off until its enable is cycled. */
+static double charger_current(struct channel *c, double e)
+{
+	if (!c->charger_on || c->phase == PHASE_DONE)
+		return 0;
+	double cv = (c->cc.charge_v - e) / c->cell.internal_ohm;
+	if (cv >= c->cc.charge_a) {
+		c->phase = PHASE_CC;
+		return c->cc.charge_a;
+	}
+	c->phase = PHASE_CV;
+	return cv > 0 ? cv : 0;
 }
 
 static void solve(struct channel *c)
 {
 	double e = ocv(c->soc);
-	double outside = c->cell.load_ohm + MOSFET_OHM + SHUNT_OHM + c->board.connection_ohm;
-	c->current_a = c->load && e > 0 ? e / (c->cell.internal_ohm + outside) : 0;
+	if (c->cc.present) {
+		c->load_a = c->load && e > 0 ? cc_load_current(c, e) : 0;
+		c->charger_a = charger_current(c, e);
+	} else {
+		double outside = c->cell.load_ohm + MOSFET_OHM + SHUNT_OHM + c->board.connection_ohm;
+		c->load_a = c->load && e > 0 ? e / (c->cell.internal_ohm + outside) : 0;
+		c->charger_a = 0;
+	}
+	c->current_a = c->load_a - c->charger_a;
 	c->terminal_v = e - c->current_a * c->cell.internal_ohm;
+}
+
+static int channel_mode(const struct channel *c)
+{
+	return c->load ? MODE_DISCHARGE : c->charger_on ? MODE_CHARGE : MODE_REST;
 }
 
 static void open_segment(struct channel *c, double now_ms)
@@ -41,13 +84,17 @@ static void open_segment(struct channel *c, double now_ms)
 	memset(s, 0, sizeof *s);
 	s->from_ms = s->to_ms = now_ms;
 	s->load = c->load;
+	s->mode = channel_mode(c);
+	s->phase = c->charger_on ? c->phase : PHASE_OFF;
 }
 
-void channel_init(struct channel *c, const struct cell_params *p, const struct board_errors *b)
+void channel_init(struct channel *c, const struct cell_params *p, const struct board_errors *b,
+		  const struct cc_params *cc)
 {
 	memset(c, 0, sizeof *c);
 	c->cell = *p;
 	c->board = *b;
+	c->cc = *cc;
 	c->soc = p->soc;
 	c->temp_c = c->ambient_c = p->ambient_c;
 	c->hot_at_ms = -1;
@@ -59,10 +106,15 @@ void channel_step(struct channel *c, double now_ms, double dt_ms)
 {
 	double dt = dt_ms / 1000.0;
 	double i = c->current_a, v = c->terminal_v;
-	c->charge_as += i * dt;
-	c->energy_ws += i * v * dt;
+	c->charge_as += c->load_a * dt;
+	c->energy_ws += c->load_a * v * dt;
+	c->charged_as += c->charger_a * dt;
 	if (c->load)
 		c->load_on_s += dt;
+	if (c->charger_on)
+		c->charge_on_s += dt;
+	if (c->load && c->charger_on)
+		c->both_on_ms += dt_ms;
 	struct segment *s = &c->seg[c->nseg - 1];
 	s->sum_a += i * dt_ms;
 	s->sum_v += v * dt_ms;
@@ -75,7 +127,21 @@ void channel_step(struct channel *c, double now_ms, double dt_ms)
 	c->temp_c += (c->ambient_c + rise - c->temp_c) * (dt / c->cell.thermal_tau_s);
 	if (c->hot_at_ms < 0 && c->temp_c >= c->cell.hot_mark_c)
 		c->hot_at_ms = now_ms;
+	if (c->cc.present) {
+		/* The PWM's filter: two equal RC stages (the second loads the first lightly) */
+		double a = 1 - exp(-dt_ms / c->cc.rc_tau_ms);
+		c->rc1_v += (c->pwm_v - c->rc1_v) * a;
+		c->rc_v += (c->rc1_v - c->rc_v) * a;
+	}
+	int phase = c->phase;
 	solve(c);
+	/* Termination is judged on the current after the step; each phase is its own segment. */
+	if (c->phase == PHASE_CV && c->charger_a < c->cc.term_a) {
+		c->phase = PHASE_DONE;
+		solve(c);
+	}
+	if (c->charger_on && c->phase != phase)
+		open_segment(c, now_ms);
 }
 
 bool channel_switch(struct channel *c, double now_ms, bool load)
@@ -83,6 +149,17 @@ bool channel_switch(struct channel *c, double now_ms, bool load)
 	if (load == c->load)
 		return false;
 	c->load = load;
+	solve(c);
+	open_segment(c, now_ms);
+	return true;
+}
+
+bool channel_charger(struct channel *c, double now_ms, bool on)
+{
+	if (on == c->charger_on)
+		return false;
+	c->charger_on = on;
+	c->phase = on ? PHASE_CC : PHASE_OFF;
 	solve(c);
 	open_segment(c, now_ms);
 	return true;
@@ -98,9 +175,15 @@ double channel_pin_v(const struct channel *c, int which)
 	case 1: {
 		/* The amplifier sees the shunt and its connections; its offset adds at the input.
 		 * A single-supply output cannot go below ground nor above its supply. */
-		double in = c->current_a * (SHUNT_OHM + c->board.connection_ohm) + c->board.amp_offset_v;
+		double in = c->load_a * (SHUNT_OHM + c->board.connection_ohm) + c->board.amp_offset_v;
 		double out = in * AMP_GAIN;
 		return out < 0 ? 0 : out > AVCC_V ? AVCC_V : out;
+	}
+	case 3: {
+		/* The charger's monitor: proportional to its current, 1 V at its programmed one. */
+		if (!c->cc.present || c->cc.charge_a <= 0)
+			return 0;
+		return c->charger_a / c->cc.charge_a * MONITOR_V_AT_FULL * (1 + c->board.monitor_error);
 	}
 	default: {
 		double t = c->temp_c + 273.15;
