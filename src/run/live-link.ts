@@ -40,7 +40,7 @@ export function alarmText(rec: EventRecord): string | null {
     case 'rig_error':
       return `the rig reports ${rec.code}: ${rec.text}`;
     case 'unlogged_discharge':
-      return `about ${rec.estimated_s.toFixed(1)} s of discharge went unlogged while the daemon was down`;
+      return `about ${rec.estimated_s.toFixed(1)} s of discharge went unlogged (the daemon down or the port away); estimated at the last current and counted as doubt`;
     case 'implausible_reading':
       return `a reading that cannot be true was left out: ${rec.why}`;
     case 'open_load':
