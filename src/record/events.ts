@@ -65,7 +65,10 @@ export const EVENT_KINDS = {
   },
   // Frames and the rig.
   command: { attention: 'info', fields: { line: 'string', queued: 'boolean' } },
-  frames_lost: { attention: 'notice', fields: { count: 'integer', seq: 'integer' } },
+  frames_lost: {
+    attention: 'notice',
+    fields: { count: 'integer', seq: 'integer', note: 'string?' },
+  },
   gap: { attention: 'notice', fields: { seq: 'integer', ...NOTE } },
   rig_restart: { attention: 'notice', fields: { seq: 'integer', tick_ms: 'integer' } },
   frame_rejected: {

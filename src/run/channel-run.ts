@@ -21,7 +21,7 @@ import type { SampleRow } from '../sinks/sample-row.js';
 import type { RunObserver } from './observer.js';
 import { Pipeline } from './pipeline.js';
 import { RunRecorder } from './recorder.js';
-import type { ResumePoint } from './resume.js';
+import { framesLostAcrossResume, type ResumePoint } from './resume.js';
 import type { RunConfig } from './run-config.js';
 import type { StatusPrinter } from './status-line.js';
 import { bridgeUnlogged } from './unlogged.js';
@@ -69,6 +69,8 @@ export class ChannelRun {
   private framesSeen = 0;
   private clockWarned = false;
   private unloggedPending: boolean;
+  /** The first frame after a resume still to be compared with the last one logged. */
+  private resumeSeqPending: boolean;
   private calibration: Calibration | null;
   private settle!: (o: ChannelOutcome) => void;
   private fail!: (e: unknown) => void;
@@ -77,6 +79,7 @@ export class ChannelRun {
     const { cfg, resume, clock } = o;
     this.calibration = cfg.calibration;
     this.unloggedPending = resume?.last?.loadOn === true;
+    this.resumeSeqPending = resume?.seq != null;
     this.session = newSession(o);
     // A resumed run's row times carry on from its last row, plus the wall time it was down.
     this.originMs = resume
@@ -260,6 +263,10 @@ export class ChannelRun {
       this.unloggedPending = false;
       this.log(bridgeUnlogged(this.o.resume!, this.session.integrator, row));
     }
+    if (this.resumeSeqPending) {
+      this.resumeSeqPending = false;
+      this.lostAcrossResume(row);
+    }
     this.recorder.sample(row);
     const loadOn = this.session.loadOn;
     if (loadOn) this.loadedSamples++;
@@ -275,6 +282,21 @@ export class ChannelRun {
     if (rigRestart) this.log({ event: 'rig_restart', seq: row.seq, tick_ms: row.tickMs });
     this.o.status.update(row);
     for (const ob of this.observers) ob.sample?.(row, loadOn);
+  }
+
+  /** Frames the rig sent while the daemon was down: counted as lost (logged with the frame's own). */
+  private lostAcrossResume(row: SampleRow): void {
+    const { count, estimated } = framesLostAcrossResume(this.o.resume!.seq!, row);
+    if (count === 0) return;
+    this.pipeline.counters.lost += count;
+    this.log({
+      event: 'frames_lost',
+      count,
+      seq: row.seq,
+      note: estimated
+        ? 'across the resume; the rig restarted meanwhile, so estimated from the time down and the frame rate'
+        : 'across the resume, from the sequence numbers',
+    });
   }
 
   private dispatch(actions: Action[]): void {
