@@ -79,7 +79,7 @@ export class ChannelRun {
     const { cfg, resume, clock } = o;
     this.calibration = cfg.calibration;
     this.unloggedPending = resume?.last?.loadOn === true;
-    this.resumeSeqPending = resume?.seq != null;
+    this.resumeSeqPending = (resume?.seq ?? null) !== null;
     this.session = newSession(o);
     // A resumed run's row times carry on from its last row, plus the wall time it was down.
     this.originMs = resume
