@@ -76,6 +76,7 @@ export const EVENT_KINDS = {
     fields: { reason: 'string', detail: 'string', line: 'string' },
   },
   rejected_summary: { attention: 'notice', fields: { not_logged_by_reason: 'counts' } },
+  rig_lines_summary: { attention: 'notice', fields: { not_logged_by_kind: 'counts' } },
   rig_ack: { attention: 'info', fields: { command: 'string', args: 'strings' } },
   rig_hello: {
     attention: 'info',

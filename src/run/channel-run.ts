@@ -26,6 +26,11 @@ import type { RunConfig } from './run-config.js';
 import type { StatusPrinter } from './status-line.js';
 import { bridgeUnlogged } from './unlogged.js';
 
+/** A mark's note: as long as the live feed's schema allows. */
+export const MARK_MAX_CHARS = 500;
+/** Marks taken a minute: a person's notes, never a script's flood filling the event log. */
+export const MARKS_PER_MINUTE = 30;
+
 export interface ChannelRunOptions {
   cfg: RunConfig;
   channel: number;
@@ -68,6 +73,8 @@ export class ChannelRun {
   /** Frames that reached the session since this process started. */
   private framesSeen = 0;
   private clockWarned = false;
+  private markMinuteStart = -Infinity;
+  private marksThisMinute = 0;
   private unloggedPending: boolean;
   /** The first frame after a resume still to be compared with the last one logged. */
   private resumeSeqPending: boolean;
@@ -150,7 +157,7 @@ export class ChannelRun {
         this.recorder.rejected(out.reason, out.detail, text);
         break;
       case 'message':
-        if (out.event) this.log(out.event);
+        this.recorder.rigLine(out.event);
         this.dispatch(out.actions);
         break;
       case 'ignored':
@@ -184,8 +191,27 @@ export class ChannelRun {
     this.dispatch(this.session.requestStop(this.o.clock.now(), by));
   }
 
-  mark(note: string, by: string): void {
+  /** A note from the user in the event log: refused when too long or too frequent. */
+  mark(note: string, by: string): { ok: true } | { ok: false; error: string } {
+    if (this.ended) return { ok: false, error: 'the run has ended' };
+    if (note.length > MARK_MAX_CHARS)
+      return {
+        ok: false,
+        error: `the note is ${note.length} characters; at most ${MARK_MAX_CHARS} are taken`,
+      };
+    const now = this.o.clock.now();
+    if (now - this.markMinuteStart >= 60_000) {
+      this.markMinuteStart = now;
+      this.marksThisMinute = 0;
+    }
+    if (this.marksThisMinute >= MARKS_PER_MINUTE)
+      return {
+        ok: false,
+        error: `at most ${MARKS_PER_MINUTE} marks a minute are taken; this one was not logged, try again in a minute`,
+      };
+    this.marksThisMinute++;
     this.log({ event: 'mark', note, by });
+    return { ok: true };
   }
 
   /** Whole-string volts; the session refuses anything below the floor. */

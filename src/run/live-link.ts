@@ -18,7 +18,8 @@ export interface LiveLinkOptions {
   stop(by: string): void;
   /** Whole-string volts; the run refuses anything below the floor. */
   setCutoff(volts: number, by: string): { ok: true } | { ok: false; error: string };
-  mark(note: string, by: string): void;
+  /** A note for the event log; refused when too long or too frequent. */
+  mark(note: string, by: string): { ok: true } | { ok: false; error: string };
   log(e: LiveFeedEvent): void;
   print(line: string): void;
 }
@@ -81,8 +82,7 @@ export async function startLiveLink(o: LiveLinkOptions): Promise<LiveLink> {
       case 'set-cutoff':
         return o.setCutoff(c.cutoff_V, 'live control');
       case 'mark':
-        o.mark(c.note, 'live control');
-        return { ok: true };
+        return o.mark(c.note, 'live control');
     }
   });
   const server = await startLiveServer({
