@@ -8,7 +8,9 @@ import { applyCalibration, type Calibration } from '../calibration/calibration.j
 import type { ChemistryProfile } from '../chemistry/chemistry-types.js';
 import { checkStartVoltage } from '../chemistry/full-scale.js';
 import type { Clock } from '../core/clock.js';
-import { ErrorCodes } from '../core/errors.js';
+import { ErrorCodes, makeError } from '../core/errors.js';
+import { FLAG_LOAD_ON } from '../protocol/messages.js';
+import { reloadProblem, type OperatingPoint } from '../calibration/reload-check.js';
 import { encodeCommand } from '../protocol/codec.js';
 import type { Checkpoint } from '../record/checkpoint.js';
 import { isEventKind, SAFETY_ENDS, type RunEvent } from '../record/events.js';
@@ -73,6 +75,7 @@ export class ChannelRun {
   /** Frames that reached the session since this process started. */
   private framesSeen = 0;
   private clockWarned = false;
+  private lastRow: SampleRow | null = null;
   private markMinuteStart = -Infinity;
   private marksThisMinute = 0;
   private unloggedPending: boolean;
@@ -232,9 +235,32 @@ export class ChannelRun {
     return { ok: true };
   }
 
-  /** A calibration edited mid-run applies from the next sample; the same one again changes nothing. */
+  /**
+   * A calibration edited mid-run applies from the next sample; the same one again changes
+   * nothing. One `calibrate` would not write, or that would move the readings at the present
+   * operating point too far (src/calibration/reload-check.ts), throws CV_CALIBRATION_INVALID
+   * and the calibration in force stays.
+   */
   useCalibration(next: Calibration, file: string): { old: string } | null {
     if (this.ended || next.id === this.pipeline.calibrationId) return null;
+    const { chain } = this.o.cfg;
+    const problem = reloadProblem(
+      this.calibration,
+      next,
+      {
+        fullScale: chain.fullScale(),
+        voltsPerCount: chain.voltsPerCount,
+        ampsPerCount: chain.ampsPerCount,
+      },
+      this.operatingPoint(),
+    );
+    if (problem !== null)
+      throw makeError(
+        ErrorCodes.CALIBRATION_INVALID,
+        `the edited calibration was refused: ${problem}`,
+        file,
+        'Check the file (a fresh `cellvigil calibrate` writes a sound one); the calibration in force stays until a sound one is saved.',
+      );
     const old = this.pipeline.calibrationId;
     this.pipeline.setCorrector(applyCalibration(next));
     this.calibration = next;
@@ -242,19 +268,49 @@ export class ChannelRun {
     return { old };
   }
 
-  /** New floor, temperature limit and default cutoff from an edited chemistry profile. */
+  /**
+   * New floor, temperature limit and default cutoff from an edited chemistry profile. It may
+   * only tighten the limits in force when the run started (a higher floor or cutoff, a lower
+   * temperature limit); one that would loosen any of them throws and the limits stay.
+   */
   useChemistry(next: ChemistryProfile): { floorV: number; cutoffV: number } {
-    const { cells, cutoff } = this.o.cfg;
+    const { cells, cutoff, floorV: startFloorV, maxTemperatureC: startMaxC } = this.o.cfg;
     const floorV = next.floor_V_per_cell.value * cells;
     const wanted = cutoff.fromUser ? cutoff.total : next.cutoff_V_per_cell.value * cells;
     const cutoffV = Math.max(wanted, floorV);
-    const r = this.session.updateLimits({
-      floorV,
-      maxTemperatureC: next.max_temperature_C.value,
-      cutoffV,
-    });
+    const maxTemperatureC = next.max_temperature_C.value;
+    const loosened = [
+      floorV < startFloorV - 1e-9 &&
+        `the floor ${floorV.toFixed(3)} V is below the ${startFloorV.toFixed(3)} V the run started with`,
+      cutoffV < cutoff.total - 1e-9 &&
+        `the cutoff ${cutoffV.toFixed(3)} V is below the ${cutoff.total.toFixed(3)} V the run started with`,
+      maxTemperatureC > startMaxC &&
+        `the temperature limit ${maxTemperatureC} °C is above the ${startMaxC} °C the run started with`,
+    ].filter((x): x is string => typeof x === 'string');
+    if (loosened.length > 0)
+      throw makeError(
+        ErrorCodes.CONFIG_INVALID,
+        `a reload may tighten the limits in force at the start, never loosen them: ${loosened.join('; ')}`,
+        `chemistry ${next.id}`,
+        'Start a new run to discharge with looser limits; mid-run edits may only raise the floor or cutoff or lower the temperature limit.',
+      );
+    const r = this.session.updateLimits({ floorV, maxTemperatureC, cutoffV });
     if (!r.ok) throw new Error(r.why);
     return { floorV, cutoffV };
+  }
+
+  /** The last frame's nominal readings, for a reload's check; null before the first frame. */
+  private operatingPoint(): OperatingPoint | null {
+    const row = this.lastRow;
+    if (row === null) return null;
+    const { chain } = this.o.cfg;
+    const celsius = chain.thermistorState(row.tRaw) === 'ok' ? chain.celsius(row.tRaw) : null;
+    return {
+      volts: chain.volts(row.vRaw),
+      amps: chain.amps(row.iRaw),
+      celsius,
+      loadOn: (row.flags & FLAG_LOAD_ON) !== 0,
+    };
   }
 
   /** A rig clock far off is worth a warning, once (the host clock times every frame anyway). */
@@ -293,6 +349,7 @@ export class ChannelRun {
       this.resumeSeqPending = false;
       this.lostAcrossResume(row);
     }
+    this.lastRow = row;
     this.recorder.sample(row);
     const loadOn = this.session.loadOn;
     if (loadOn) this.loadedSamples++;

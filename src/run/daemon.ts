@@ -157,8 +157,8 @@ export async function startRun(
   if (io.signals) handleSignals(run, status);
   watchers = watchRunFiles(run, status, {
     calibration: cfg.calibrationPath,
-    // A resumed run keeps the limits it was started with.
-    chemistries: resume ? null : (req.chemistriesFile ?? DEFAULT_CHEMISTRIES_PATH),
+    // A resumed run too: a reload may only tighten the limits it was started with.
+    chemistries: req.chemistriesFile ?? DEFAULT_CHEMISTRIES_PATH,
     chemistryId: chemistry.id,
   });
   startTimers(timers, run, clock, status);

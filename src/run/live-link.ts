@@ -127,6 +127,14 @@ export function liveObserver(hub: LiveHub): RunObserver {
       hub.state({ host_s: rec.host_s, from: rec.from, to: rec.to, why: rec.why });
     } else if (rec.event === 'cutoff_changed') {
       hub.cutoffChanged(rec.cutoff_V);
+    } else if (rec.event === 'chemistry_changed') {
+      hub.updateRun({
+        cutoff_V: rec.cutoff_V,
+        floor_V: rec.floor_V,
+        max_temperature_C: rec.max_temperature_C,
+      });
+    } else if (rec.event === 'calibration_changed') {
+      hub.updateRun({ calibration_id: rec.new_id });
     } else {
       const text = alarmText(rec);
       if (text !== null) hub.alarm({ host_s: rec.host_s, kind: rec.event, detail: text });

@@ -1,46 +1,10 @@
-import { mkdtempSync, readFileSync } from 'node:fs';
-import { tmpdir } from 'node:os';
+import { readFileSync } from 'node:fs';
 import { join } from 'node:path';
-import { PassThrough } from 'node:stream';
 import { describe, expect, it } from 'vitest';
-import { VirtualClock } from '../../src/core/clock.js';
 import { frameLine } from '../../src/protocol/codec.js';
 import { RIG_LINES_PER_MINUTE } from '../../src/record/event-log.js';
-import { ChannelRun, MARK_MAX_CHARS, MARKS_PER_MINUTE } from '../../src/run/channel-run.js';
-import { resolveRunConfig } from '../../src/run/run-config.js';
-import { StatusPrinter } from '../../src/run/status-line.js';
-
-async function channelRun(): Promise<{ run: ChannelRun; clock: VirtualClock; folder: string }> {
-  const folder = mkdtempSync(join(tmpdir(), 'cv-flood-'));
-  const cfg = await resolveRunConfig({
-    sim: 'quick',
-    speed: 1,
-    runs: folder,
-    listen: null,
-    once: true,
-    rotateBytes: 1 << 24,
-    channel: 0,
-    linkTimeoutS: 60,
-  });
-  const clock = new VirtualClock();
-  const out = new PassThrough();
-  out.resume();
-  const run = new ChannelRun({
-    cfg,
-    channel: 0,
-    linkTimeoutS: 60,
-    folder,
-    rotateBytes: 1 << 24,
-    startedWallMs: clock.wallNow(),
-    clock,
-    resume: null,
-    status: new StatusPrinter(out),
-    send: () => true,
-    stopInputs: async () => undefined,
-    releaseLink: async () => undefined,
-  });
-  return { run, clock, folder };
-}
+import { MARK_MAX_CHARS, MARKS_PER_MINUTE } from '../../src/run/channel-run.js';
+import { channelRun } from './channel-run-helper.js';
 
 function events(folder: string): { event: string; [k: string]: unknown }[] {
   return readFileSync(join(folder, 'events.jsonl'), 'utf8')
