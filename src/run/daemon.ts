@@ -44,8 +44,8 @@ export interface RunHandle {
   stop(by: string): void;
   /** Sets the cutoff per cell; refused below the chemistry's floor. */
   setCutoffPerCell(volts: number, by: string): { ok: true } | { ok: false; error: string };
-  /** A note from the user in the event log. */
-  mark(note: string, by: string): void;
+  /** A note from the user in the event log; refused when too long or too frequent. */
+  mark(note: string, by: string): { ok: true } | { ok: false; error: string };
   addObserver(o: RunObserver): void;
   /** The live page's address, or null without a live feed. */
   readonly liveUrl: string | null;
