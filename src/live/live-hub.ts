@@ -72,6 +72,18 @@ export class LiveHub {
     this.emit(this.hello());
   }
 
+  /**
+   * The run's details changed mid-run (an accepted calibration or chemistry reload): kept for
+   * every later `hello`, the cutoff used for the time-to-cutoff, and a fresh `hello` sent to
+   * the viewers connected, without clearing what the hub knew.
+   */
+  updateRun(changes: Partial<Omit<LiveRunInfo, 'label' | 'run_folder' | 'started_wall'>>): void {
+    if (!this.run) return;
+    this.run = { ...this.run, ...changes };
+    if (changes.cutoff_V !== undefined) this.cutoffV = changes.cutoff_V;
+    this.emit(this.hello());
+  }
+
   /** Takes the sample as given (the caller hands over an object it no longer changes). */
   sample(input: LiveSample): void {
     // An open or shorted thermistor reads as no temperature rather than NaN, which JSON cannot carry.

@@ -19,6 +19,15 @@ export const EVENTS_FILE = 'events.jsonl';
 export const REJECTED_PER_MINUTE = 50;
 
 /**
+ * Rig lines (`E`, `H`, `A`) of each kind logged one by one per minute before they are only
+ * counted: a rig that repeats one at the link's full rate must not fill the disk either.
+ */
+export const RIG_LINES_PER_MINUTE = 20;
+
+/** The rig's own lines, as events: logged within their per-minute budget. */
+export type RigLineEvent = Extract<RunEvent, { event: 'rig_ack' | 'rig_hello' | 'rig_error' }>;
+
+/**
  * An event of a kind this version does not define (written by a later one), kept whole so that
  * a report still counts and lists it.
  */
@@ -39,6 +48,9 @@ export class EventLog {
   private minuteStart = -Infinity;
   private rejectedThisMinute = 0;
   private suppressed: Record<string, number> = {};
+  private rigMinuteStart = -Infinity;
+  private rigThisMinute: Record<string, number> = {};
+  private rigSuppressed: Record<string, number> = {};
 
   constructor(dir: string) {
     this.file = new LogFile({ dir, name: EVENTS_FILE });
@@ -82,6 +94,34 @@ export class EventLog {
     }
   }
 
+  /**
+   * A rig line's event: written while its kind is under the per-minute budget, else counted for
+   * the minute's summary. Returns the record written, or null when it was only counted.
+   */
+  rigLine(hostS: number, wallMs: number, event: RigLineEvent): EventRecord | null {
+    if (hostS - this.rigMinuteStart >= 60) {
+      this.summariseRigLines(hostS, wallMs);
+      this.rigMinuteStart = hostS;
+      this.rigThisMinute = {};
+    }
+    const n = this.rigThisMinute[event.event] ?? 0;
+    if (n < RIG_LINES_PER_MINUTE) {
+      this.rigThisMinute[event.event] = n + 1;
+      return this.write(hostS, wallMs, event);
+    }
+    this.rigSuppressed[event.event] = (this.rigSuppressed[event.event] ?? 0) + 1;
+    return null;
+  }
+
+  private summariseRigLines(hostS: number, wallMs: number): void {
+    if (Object.keys(this.rigSuppressed).length === 0) return;
+    this.write(hostS, wallMs, {
+      event: 'rig_lines_summary',
+      not_logged_by_kind: this.rigSuppressed,
+    });
+    this.rigSuppressed = {};
+  }
+
   private rollMinute(hostS: number, wallMs: number): void {
     if (hostS - this.minuteStart < 60) return;
     this.summarise(hostS, wallMs);
@@ -89,8 +129,9 @@ export class EventLog {
     this.rejectedThisMinute = 0;
   }
 
-  /** Writes the count of rejected lines not logged one by one, if any. */
+  /** Writes the counts of rejected lines and rig lines not logged one by one, if any. */
   summarise(hostS: number, wallMs: number): void {
+    this.summariseRigLines(hostS, wallMs);
     if (Object.keys(this.suppressed).length === 0) return;
     this.write(hostS, wallMs, { event: 'rejected_summary', not_logged_by_reason: this.suppressed });
     this.suppressed = {};

@@ -65,7 +65,10 @@ export const EVENT_KINDS = {
   },
   // Frames and the rig.
   command: { attention: 'info', fields: { line: 'string', queued: 'boolean' } },
-  frames_lost: { attention: 'notice', fields: { count: 'integer', seq: 'integer' } },
+  frames_lost: {
+    attention: 'notice',
+    fields: { count: 'integer', seq: 'integer', note: 'string?' },
+  },
   gap: { attention: 'notice', fields: { seq: 'integer', ...NOTE } },
   rig_restart: { attention: 'notice', fields: { seq: 'integer', tick_ms: 'integer' } },
   frame_rejected: {
@@ -73,6 +76,7 @@ export const EVENT_KINDS = {
     fields: { reason: 'string', detail: 'string', line: 'string' },
   },
   rejected_summary: { attention: 'notice', fields: { not_logged_by_reason: 'counts' } },
+  rig_lines_summary: { attention: 'notice', fields: { not_logged_by_kind: 'counts' } },
   rig_ack: { attention: 'info', fields: { command: 'string', args: 'strings' } },
   rig_hello: {
     attention: 'info',

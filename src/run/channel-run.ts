@@ -8,7 +8,9 @@ import { applyCalibration, type Calibration } from '../calibration/calibration.j
 import type { ChemistryProfile } from '../chemistry/chemistry-types.js';
 import { checkStartVoltage } from '../chemistry/full-scale.js';
 import type { Clock } from '../core/clock.js';
-import { ErrorCodes } from '../core/errors.js';
+import { ErrorCodes, makeError } from '../core/errors.js';
+import { FLAG_LOAD_ON } from '../protocol/messages.js';
+import { reloadProblem, type OperatingPoint } from '../calibration/reload-check.js';
 import { encodeCommand } from '../protocol/codec.js';
 import type { Checkpoint } from '../record/checkpoint.js';
 import { isEventKind, SAFETY_ENDS, type RunEvent } from '../record/events.js';
@@ -21,10 +23,15 @@ import type { SampleRow } from '../sinks/sample-row.js';
 import type { RunObserver } from './observer.js';
 import { Pipeline } from './pipeline.js';
 import { RunRecorder } from './recorder.js';
-import type { ResumePoint } from './resume.js';
+import { framesLostAcrossResume, type ResumePoint } from './resume.js';
 import type { RunConfig } from './run-config.js';
 import type { StatusPrinter } from './status-line.js';
 import { bridgeUnlogged } from './unlogged.js';
+
+/** A mark's note: as long as the live feed's schema allows. */
+export const MARK_MAX_CHARS = 500;
+/** Marks taken a minute: a person's notes, never a script's flood filling the event log. */
+export const MARKS_PER_MINUTE = 30;
 
 export interface ChannelRunOptions {
   cfg: RunConfig;
@@ -68,7 +75,12 @@ export class ChannelRun {
   /** Frames that reached the session since this process started. */
   private framesSeen = 0;
   private clockWarned = false;
+  private lastRow: SampleRow | null = null;
+  private markMinuteStart = -Infinity;
+  private marksThisMinute = 0;
   private unloggedPending: boolean;
+  /** The first frame after a resume still to be compared with the last one logged. */
+  private resumeSeqPending: boolean;
   private calibration: Calibration | null;
   private settle!: (o: ChannelOutcome) => void;
   private fail!: (e: unknown) => void;
@@ -77,6 +89,7 @@ export class ChannelRun {
     const { cfg, resume, clock } = o;
     this.calibration = cfg.calibration;
     this.unloggedPending = resume?.last?.loadOn === true;
+    this.resumeSeqPending = (resume?.seq ?? null) !== null;
     this.session = newSession(o);
     // A resumed run's row times carry on from its last row, plus the wall time it was down.
     this.originMs = resume
@@ -147,7 +160,7 @@ export class ChannelRun {
         this.recorder.rejected(out.reason, out.detail, text);
         break;
       case 'message':
-        if (out.event) this.log(out.event);
+        this.recorder.rigLine(out.event);
         this.dispatch(out.actions);
         break;
       case 'ignored':
@@ -181,8 +194,27 @@ export class ChannelRun {
     this.dispatch(this.session.requestStop(this.o.clock.now(), by));
   }
 
-  mark(note: string, by: string): void {
+  /** A note from the user in the event log: refused when too long or too frequent. */
+  mark(note: string, by: string): { ok: true } | { ok: false; error: string } {
+    if (this.ended) return { ok: false, error: 'the run has ended' };
+    if (note.length > MARK_MAX_CHARS)
+      return {
+        ok: false,
+        error: `the note is ${note.length} characters; at most ${MARK_MAX_CHARS} are taken`,
+      };
+    const now = this.o.clock.now();
+    if (now - this.markMinuteStart >= 60_000) {
+      this.markMinuteStart = now;
+      this.marksThisMinute = 0;
+    }
+    if (this.marksThisMinute >= MARKS_PER_MINUTE)
+      return {
+        ok: false,
+        error: `at most ${MARKS_PER_MINUTE} marks a minute are taken; this one was not logged, try again in a minute`,
+      };
+    this.marksThisMinute++;
     this.log({ event: 'mark', note, by });
+    return { ok: true };
   }
 
   /** Whole-string volts; the session refuses anything below the floor. */
@@ -203,9 +235,32 @@ export class ChannelRun {
     return { ok: true };
   }
 
-  /** A calibration edited mid-run applies from the next sample; the same one again changes nothing. */
+  /**
+   * A calibration edited mid-run applies from the next sample; the same one again changes
+   * nothing. One `calibrate` would not write, or that would move the readings at the present
+   * operating point too far (src/calibration/reload-check.ts), throws CV_CALIBRATION_INVALID
+   * and the calibration in force stays.
+   */
   useCalibration(next: Calibration, file: string): { old: string } | null {
     if (this.ended || next.id === this.pipeline.calibrationId) return null;
+    const { chain } = this.o.cfg;
+    const problem = reloadProblem(
+      this.calibration,
+      next,
+      {
+        fullScale: chain.fullScale(),
+        voltsPerCount: chain.voltsPerCount,
+        ampsPerCount: chain.ampsPerCount,
+      },
+      this.operatingPoint(),
+    );
+    if (problem !== null)
+      throw makeError(
+        ErrorCodes.CALIBRATION_INVALID,
+        `the edited calibration was refused: ${problem}`,
+        file,
+        'Check the file (a fresh `cellvigil calibrate` writes a sound one); the calibration in force stays until a sound one is saved.',
+      );
     const old = this.pipeline.calibrationId;
     this.pipeline.setCorrector(applyCalibration(next));
     this.calibration = next;
@@ -213,19 +268,49 @@ export class ChannelRun {
     return { old };
   }
 
-  /** New floor, temperature limit and default cutoff from an edited chemistry profile. */
+  /**
+   * New floor, temperature limit and default cutoff from an edited chemistry profile. It may
+   * only tighten the limits in force when the run started (a higher floor or cutoff, a lower
+   * temperature limit); one that would loosen any of them throws and the limits stay.
+   */
   useChemistry(next: ChemistryProfile): { floorV: number; cutoffV: number } {
-    const { cells, cutoff } = this.o.cfg;
+    const { cells, cutoff, floorV: startFloorV, maxTemperatureC: startMaxC } = this.o.cfg;
     const floorV = next.floor_V_per_cell.value * cells;
     const wanted = cutoff.fromUser ? cutoff.total : next.cutoff_V_per_cell.value * cells;
     const cutoffV = Math.max(wanted, floorV);
-    const r = this.session.updateLimits({
-      floorV,
-      maxTemperatureC: next.max_temperature_C.value,
-      cutoffV,
-    });
+    const maxTemperatureC = next.max_temperature_C.value;
+    const loosened = [
+      floorV < startFloorV - 1e-9 &&
+        `the floor ${floorV.toFixed(3)} V is below the ${startFloorV.toFixed(3)} V the run started with`,
+      cutoffV < cutoff.total - 1e-9 &&
+        `the cutoff ${cutoffV.toFixed(3)} V is below the ${cutoff.total.toFixed(3)} V the run started with`,
+      maxTemperatureC > startMaxC &&
+        `the temperature limit ${maxTemperatureC} °C is above the ${startMaxC} °C the run started with`,
+    ].filter((x): x is string => typeof x === 'string');
+    if (loosened.length > 0)
+      throw makeError(
+        ErrorCodes.CONFIG_INVALID,
+        `a reload may tighten the limits in force at the start, never loosen them: ${loosened.join('; ')}`,
+        `chemistry ${next.id}`,
+        'Start a new run to discharge with looser limits; mid-run edits may only raise the floor or cutoff or lower the temperature limit.',
+      );
+    const r = this.session.updateLimits({ floorV, maxTemperatureC, cutoffV });
     if (!r.ok) throw new Error(r.why);
     return { floorV, cutoffV };
+  }
+
+  /** The last frame's nominal readings, for a reload's check; null before the first frame. */
+  private operatingPoint(): OperatingPoint | null {
+    const row = this.lastRow;
+    if (row === null) return null;
+    const { chain } = this.o.cfg;
+    const celsius = chain.thermistorState(row.tRaw) === 'ok' ? chain.celsius(row.tRaw) : null;
+    return {
+      volts: chain.volts(row.vRaw),
+      amps: chain.amps(row.iRaw),
+      celsius,
+      loadOn: (row.flags & FLAG_LOAD_ON) !== 0,
+    };
   }
 
   /** A rig clock far off is worth a warning, once (the host clock times every frame anyway). */
@@ -260,6 +345,11 @@ export class ChannelRun {
       this.unloggedPending = false;
       this.log(bridgeUnlogged(this.o.resume!, this.session.integrator, row));
     }
+    if (this.resumeSeqPending) {
+      this.resumeSeqPending = false;
+      this.lostAcrossResume(row);
+    }
+    this.lastRow = row;
     this.recorder.sample(row);
     const loadOn = this.session.loadOn;
     if (loadOn) this.loadedSamples++;
@@ -275,6 +365,21 @@ export class ChannelRun {
     if (rigRestart) this.log({ event: 'rig_restart', seq: row.seq, tick_ms: row.tickMs });
     this.o.status.update(row);
     for (const ob of this.observers) ob.sample?.(row, loadOn);
+  }
+
+  /** Frames the rig sent while the daemon was down: counted as lost (logged with the frame's own). */
+  private lostAcrossResume(row: SampleRow): void {
+    const { count, estimated } = framesLostAcrossResume(this.o.resume!.seq!, row);
+    if (count === 0) return;
+    this.pipeline.counters.lost += count;
+    this.log({
+      event: 'frames_lost',
+      count,
+      seq: row.seq,
+      note: estimated
+        ? 'across the resume; the rig restarted meanwhile, so estimated from the time down and the frame rate'
+        : 'across the resume, from the sequence numbers',
+    });
   }
 
   private dispatch(actions: Action[]): void {

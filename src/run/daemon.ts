@@ -44,8 +44,8 @@ export interface RunHandle {
   stop(by: string): void;
   /** Sets the cutoff per cell; refused below the chemistry's floor. */
   setCutoffPerCell(volts: number, by: string): { ok: true } | { ok: false; error: string };
-  /** A note from the user in the event log. */
-  mark(note: string, by: string): void;
+  /** A note from the user in the event log; refused when too long or too frequent. */
+  mark(note: string, by: string): { ok: true } | { ok: false; error: string };
   addObserver(o: RunObserver): void;
   /** The live page's address, or null without a live feed. */
   readonly liveUrl: string | null;
@@ -157,8 +157,8 @@ export async function startRun(
   if (io.signals) handleSignals(run, status);
   watchers = watchRunFiles(run, status, {
     calibration: cfg.calibrationPath,
-    // A resumed run keeps the limits it was started with.
-    chemistries: resume ? null : (req.chemistriesFile ?? DEFAULT_CHEMISTRIES_PATH),
+    // A resumed run too: a reload may only tighten the limits it was started with.
+    chemistries: req.chemistriesFile ?? DEFAULT_CHEMISTRIES_PATH,
     chemistryId: chemistry.id,
   });
   startTimers(timers, run, clock, status);

@@ -18,7 +18,8 @@ export interface LiveLinkOptions {
   stop(by: string): void;
   /** Whole-string volts; the run refuses anything below the floor. */
   setCutoff(volts: number, by: string): { ok: true } | { ok: false; error: string };
-  mark(note: string, by: string): void;
+  /** A note for the event log; refused when too long or too frequent. */
+  mark(note: string, by: string): { ok: true } | { ok: false; error: string };
   log(e: LiveFeedEvent): void;
   print(line: string): void;
 }
@@ -40,7 +41,7 @@ export function alarmText(rec: EventRecord): string | null {
     case 'rig_error':
       return `the rig reports ${rec.code}: ${rec.text}`;
     case 'unlogged_discharge':
-      return `about ${rec.estimated_s.toFixed(1)} s of discharge went unlogged while the daemon was down`;
+      return `about ${rec.estimated_s.toFixed(1)} s of discharge went unlogged (the daemon down or the port away); estimated at the last current and counted as doubt`;
     case 'implausible_reading':
       return `a reading that cannot be true was left out: ${rec.why}`;
     case 'open_load':
@@ -81,8 +82,7 @@ export async function startLiveLink(o: LiveLinkOptions): Promise<LiveLink> {
       case 'set-cutoff':
         return o.setCutoff(c.cutoff_V, 'live control');
       case 'mark':
-        o.mark(c.note, 'live control');
-        return { ok: true };
+        return o.mark(c.note, 'live control');
     }
   });
   const server = await startLiveServer({
@@ -127,6 +127,14 @@ export function liveObserver(hub: LiveHub): RunObserver {
       hub.state({ host_s: rec.host_s, from: rec.from, to: rec.to, why: rec.why });
     } else if (rec.event === 'cutoff_changed') {
       hub.cutoffChanged(rec.cutoff_V);
+    } else if (rec.event === 'chemistry_changed') {
+      hub.updateRun({
+        cutoff_V: rec.cutoff_V,
+        floor_V: rec.floor_V,
+        max_temperature_C: rec.max_temperature_C,
+      });
+    } else if (rec.event === 'calibration_changed') {
+      hub.updateRun({ calibration_id: rec.new_id });
     } else {
       const text = alarmText(rec);
       if (text !== null) hub.alarm({ host_s: rec.host_s, kind: rec.event, detail: text });

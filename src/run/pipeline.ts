@@ -7,7 +7,7 @@ import {
 } from '../measure/frame-measure.js';
 import { decodeRigLine } from '../protocol/codec.js';
 import type { DataFrame, RejectReason, RigMessage } from '../protocol/messages.js';
-import type { RunEvent } from '../record/events.js';
+import type { RigLineEvent } from '../record/event-log.js';
 import type { TimeBaseOptions } from '../timebase/time-base.js';
 import type { Session } from '../session/session.js';
 import type { Action } from '../session/session-types.js';
@@ -33,7 +33,7 @@ export type LineOutcome =
       rigRestart: boolean;
     }
   | { kind: 'rejected'; reason: RejectReason; detail: string }
-  | { kind: 'message'; actions: Action[]; event: RunEvent | null }
+  | { kind: 'message'; actions: Action[]; event: RigLineEvent }
   | { kind: 'ignored' };
 
 export interface PipelineOptions {
@@ -160,7 +160,7 @@ export class Pipeline {
         };
       case 'hello': {
         const { rigId: rig_id, firmware, adcBits: adc_bits, channels } = m;
-        const event: RunEvent = { event: 'rig_hello', rig_id, firmware, adc_bits, channels };
+        const event: RigLineEvent = { event: 'rig_hello', rig_id, firmware, adc_bits, channels };
         return { kind: 'message', actions: [], event };
       }
       case 'rig-error':

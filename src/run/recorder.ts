@@ -6,7 +6,7 @@
  */
 import { ErrorCodes, makeError } from '../core/errors.js';
 import { writeCheckpoint, type Checkpoint } from '../record/checkpoint.js';
-import { EventLog } from '../record/event-log.js';
+import { EventLog, type RigLineEvent } from '../record/event-log.js';
 import type { EventRecord, RunEvent } from '../record/events.js';
 import { writeManifest, type RunManifest } from '../record/manifest.js';
 import { resultPath, writeResult, type RunResult } from '../record/result.js';
@@ -88,6 +88,13 @@ export class RunRecorder {
   foreign(name: string, detail: Record<string, unknown>): void {
     const { hostS, wallMs } = this.o.now();
     this.events.writeForeign(hostS, wallMs, name, detail);
+  }
+
+  /** A rig line's event, within its per-minute budget (see EventLog.rigLine). */
+  rigLine(ev: RigLineEvent): void {
+    const { hostS, wallMs } = this.o.now();
+    const rec = this.events.rigLine(hostS, wallMs, ev);
+    if (rec) this.o.written(rec);
   }
 
   rejected(reason: string, detail: string, line: string): void {

@@ -18,6 +18,20 @@ export interface SwitchWindows {
 }
 
 /**
+ * From the last frame seen with the load on to the moment a rig that hears no more heartbeats
+ * cuts it: its watchdog runs 5 s from the last heartbeat it heard, and heartbeats go out every
+ * 0.5 s, so the last one it heard left up to 0.5 s before that frame or just after it. The
+ * middle of that range, 4.75 s (± 0.25 s); the bridged charge counts in full as doubt anyway.
+ */
+export const WATCHDOG_CUT_AFTER_MS = 5000 - 250;
+
+/** Charge bridged from the last frame with the load on to the rig's estimated watchdog cut. */
+export interface CutBridge {
+  ms: number;
+  chargeAh: number;
+}
+
+/**
  * Trapezoidal charge and energy on host time. The current counts only while the load is
  * switched on: with the load off no current flows, whatever an uncorrected offset shows.
  */
@@ -35,8 +49,15 @@ export class Integrator {
   private prevI = 0;
   private prevP = 0;
   private prevOn = false;
+  /** What the last `add` or `bridgeToCut` bridged to a watchdog cut. */
+  cut: CutBridge = { ms: 0, chargeAh: 0 };
 
-  add(dtMs: number, volts: number, amps: number, loadOn: boolean, gap: boolean): void {
+  /**
+   * One frame after the one before. Returns true when the frame ends a long gap that began
+   * with the load on and ends with it off (the rig's watchdog cut it while the link was away):
+   * the charge to the estimated cut is then bridged at the last current, in `cut`.
+   */
+  add(dtMs: number, volts: number, amps: number, loadOn: boolean, gap: boolean): boolean {
     const i = loadOn ? amps : 0;
     const p = loadOn ? volts * amps : 0;
     const had = this.hasPrev;
@@ -47,19 +68,49 @@ export class Integrator {
     this.prevI = i;
     this.prevP = p;
     this.prevOn = loadOn;
-    if (!had || dtMs <= 0) return;
-    // The trapezoid puts a switch in the middle of its step (half-width: half the step); across
-    // a long gap it counts nothing, which may be wrong by the whole gap.
-    if (loadOn !== prevOn) this.switchIn(dtMs, loadOn ? i : prevI, gap ? 1 : 0.5);
-    // Across a long gap only a load seen on at both ends is assumed to have stayed on; one seen
-    // off at either end may have been cut at any moment in between (the rig's watchdog).
-    if (gap && !(loadOn && prevOn)) return;
+    if (!had || dtMs <= 0) return false;
+    // Across a long gap only a load seen on at both ends is assumed to have stayed on. One seen
+    // on before and off after kept drawing until it was cut: by the rig's watchdog at the latest
+    // (bridged, all of it doubt, which covers when it switched). One seen off before and on
+    // after was switched on somewhere in the gap: the integral may be wrong by the whole gap.
+    if (gap && !(loadOn && prevOn)) {
+      if (loadOn) this.switchIn(dtMs, i, 1);
+      if (!prevOn) return false;
+      this.bridge(prevI, prevP, Math.min(dtMs, WATCHDOG_CUT_AFTER_MS));
+      return true;
+    }
+    // The trapezoid puts a switch in the middle of its step (half-width: half the step).
+    if (loadOn !== prevOn) this.switchIn(dtMs, loadOn ? i : prevI, 0.5);
     const dAh = ((prevI + i) / 2) * (dtMs / MS_PER_HOUR);
     this.chargeAh += dAh;
     this.energyWh += ((prevP + p) / 2) * (dtMs / MS_PER_HOUR);
     // The trapezoid of the on/off indicator: a step in which the load switched counts half.
     this.onMs += (((loadOn ? 1 : 0) + (prevOn ? 1 : 0)) / 2) * dtMs;
     if (gap) this.bridgedAh += Math.abs(dAh);
+    return false;
+  }
+
+  /**
+   * The link gone for good with the load on at the last frame: the charge until the rig's
+   * watchdog cut it, bridged at the last current; the load counts as off from then. Null when
+   * the load was off at the last frame.
+   */
+  bridgeToCut(): CutBridge | null {
+    if (!this.hasPrev || !this.prevOn) return null;
+    this.bridge(this.prevI, this.prevP, WATCHDOG_CUT_AFTER_MS);
+    this.prevOn = false;
+    this.prevI = 0;
+    this.prevP = 0;
+    return this.cut;
+  }
+
+  private bridge(amps: number, watts: number, ms: number): void {
+    const dAh = amps * (ms / MS_PER_HOUR);
+    this.chargeAh += dAh;
+    this.energyWh += watts * (ms / MS_PER_HOUR);
+    this.onMs += ms;
+    this.bridgedAh += Math.abs(dAh);
+    this.cut = { ms, chargeAh: dAh };
   }
 
   /**

@@ -221,6 +221,11 @@ export class Session {
       nowMs - lastSign > (down ? this.s.linkTimeoutMs : this.s.staleLinkMs);
     if (down && st !== 'stopping' && !stale) return out;
     if (stale && down && st !== 'stopping') {
+      if (this.integrator.bridgeToCut())
+        this.bridgedCut(
+          "the port went away with the load on and did not return: the last current until the rig's watchdog cut it, about 4.75 s (± 0.25 s) after the last frame",
+          out,
+        );
       if (st === 'precheck' && !this.loadOn) {
         this.end(
           'link_lost',
@@ -494,9 +499,23 @@ export class Session {
       this.integrator.hold(m.dtMs, this.loadOn);
       return false;
     }
-    this.integrator.add(m.dtMs, m.volts, m.amps, this.loadOn, m.gap);
+    if (this.integrator.add(m.dtMs, m.volts, m.amps, this.loadOn, m.gap))
+      this.bridgedCut(
+        "the load was on before a long gap and off after it: the last current until the rig's watchdog cut it, about 4.75 s (± 0.25 s) after the last frame, or the whole gap if shorter",
+        out,
+      );
     if (this.loadOn) this.lastLoadedV = m.volts;
     return true;
+  }
+
+  /** The charge the integrator bridged to a watchdog cut, as an event (counted in full as doubt). */
+  private bridgedCut(basis: string, out: Action[]): void {
+    const { ms, chargeAh } = this.integrator.cut;
+    out.push({
+      type: 'event',
+      name: 'unlogged_discharge',
+      detail: { estimated_s: ms / 1000, charge_Ah: chargeAh, basis },
+    });
   }
 
   private checkLimits(m: Measurement, out: Action[], plausible: boolean): void {

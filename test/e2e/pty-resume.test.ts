@@ -19,7 +19,12 @@ describe('end to end over a pseudo-terminal: SIGKILL, restart, finish', () => {
   let before: string[];
   let exitCode: number | null;
   let output = '';
-  let result: { capacity_Ah: number; end_reason: string; frames_accepted: number };
+  let result: {
+    capacity_Ah: number;
+    end_reason: string;
+    frames_accepted: number;
+    frames_lost: number;
+  };
 
   beforeAll(async () => {
     rig = await startPtyRig('quick', ['--seed', '11']);
@@ -98,6 +103,16 @@ describe('end to end over a pseudo-terminal: SIGKILL, restart, finish', () => {
     expect(after.slice(0, whole.length)).toEqual(whole);
     expect(new Set(after).size).toBe(after.length);
     expect(result.frames_accepted).toBe(after.length);
+  });
+
+  it('the frames the rig sent while the daemon was down are counted as lost: the sequence step across the resume (the quick rig drops none)', () => {
+    const whole = before.filter((r) => r.split(',').length === 16);
+    const after = sampleRows(folder);
+    const seqOf = (row: string): number => Number(row.split(',')[3]);
+    const step = seqOf(after[whole.length]!) - seqOf(whole.at(-1)!);
+    // 6.5 s at 10 frames a second at the least, plus the second daemon's start.
+    expect(step).toBeGreaterThan(65);
+    expect(result.frames_lost).toBe(step - 1);
   });
 
   it('the capacity equals the charge the cell really gave within one second of samples (charge = ∫ I dt, physics)', () => {

@@ -110,6 +110,29 @@ describe('integrator: charge is the time integral of current (physics)', () => {
     expect(integ.bridgedAh).toBeCloseTo(5 / 3600, 12);
   });
 
+  // Protocol v1: a rig that hears no heartbeat for 5 s cuts its load; heartbeats every 0.5 s.
+  it('a long gap from load on to load off bridges the last current to the watchdog cut (4.75 s), in full as doubt', () => {
+    const integ = new Integrator();
+    integ.add(0, 3.7, 1.2, true, false);
+    expect(integ.add(9000, 3.6, 0, false, true)).toBe(true);
+    expect(integ.cut.ms).toBe(4750);
+    expect(integ.chargeAh).toBeCloseTo((1.2 * 4.75) / 3600, 12);
+    expect(integ.bridgedAh).toBeCloseTo(integ.chargeAh, 12);
+    expect(integ.onMs).toBe(4750);
+    // A shorter gap: the whole of it.
+    const short = new Integrator();
+    short.add(0, 3.7, 1, true, false);
+    short.add(3000, 3.7, 0, false, true);
+    expect(short.chargeAh).toBeCloseTo(3 / 3600, 12);
+    // The link gone for good: bridged once; a frame after it adds nothing more.
+    const gone = new Integrator();
+    gone.add(0, 3.7, 1, true, false);
+    expect(gone.bridgeToCut()?.ms).toBe(4750);
+    expect(gone.bridgeToCut()).toBeNull();
+    expect(gone.add(60_000, 3.7, 0, false, true)).toBe(false);
+    expect(gone.chargeAh).toBeCloseTo(4.75 / 3600, 12);
+  });
+
   it('a zero or negative time step adds nothing', () => {
     const integ = new Integrator();
     integ.add(0, 3.7, 1, true, false);
