@@ -157,7 +157,7 @@ describe('integrator: charge is the time integral of current (physics)', () => {
 });
 
 describe('integrator: the windows in which the load switched, for the uncertainty budget', () => {
-  it('a switch between two frames is placed mid-step (half the step), one at the end or across a gap anywhere in its window (all of it)', () => {
+  it('a switch between two frames is placed mid-step (half the step), one at the end or switched on across a gap anywhere in its window (all of it)', () => {
     const integ = new Integrator();
     integ.add(0, 3.7, 0, false, false);
     // On between two frames 100 ms apart at 2 A: a = 2 A × 50 ms = 0.1 A·s = 0.1/3600 Ah.
@@ -170,12 +170,21 @@ describe('integrator: the windows in which the load switched, for the uncertaint
     expect(s.widestMs).toBe(100);
     expect(s.sumSqHalfWidthAh).toBeCloseTo((0.1 / 3600) ** 2 + (0.009 / 3600) ** 2, 18);
 
-    // Off across a 3 s gap at 1 A: the integral counts none of it, a = 1 A × 3 s = 3/3600 Ah.
+    // Off across a 3 s gap at 1 A: the load drew until the rig's watchdog cut it, bridged in
+    // full as doubt (which covers when it switched), so no switch window is added.
     const gap = new Integrator();
     gap.add(0, 3.7, 1, true, false);
     gap.add(3000, 3.7, 0, false, true);
-    expect(gap.chargeAh).toBe(0);
-    expect(gap.switches.sumSqHalfWidthAh).toBeCloseTo((3 / 3600) ** 2, 15);
+    expect(gap.bridgedAh).toBeCloseTo(3 / 3600, 15);
+    expect(gap.switches.count).toBe(0);
+
+    // On across a 3 s gap at 1 A: switched on anywhere in it; the integral counts none of the
+    // gap, a = 1 A × 3 s = 3/3600 Ah.
+    const on = new Integrator();
+    on.add(0, 3.7, 0, false, false);
+    on.add(3000, 3.7, 1, true, true);
+    expect(on.chargeAh).toBe(0);
+    expect(on.switches.sumSqHalfWidthAh).toBeCloseTo((3 / 3600) ** 2, 15);
   });
 
   it('a steady load and a load that was already off add no switch', () => {
