@@ -132,7 +132,7 @@ describe('charge block in a chemistry file', () => {
 
   it('a missing termination current for cc-cv is named', () => {
     const bad = text.replace(
-      /    termination_current_C: \{ value: 0\.02, source: common practice \}\n/,
+      / {4}termination_current_C: \{ value: 0\.02, source: common practice \}\n/,
       '',
     );
     const e = caught(() => parseChemistries(bad, 'c.yaml'));
