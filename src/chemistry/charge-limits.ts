@@ -155,6 +155,8 @@ export type ChargeableLimits = Exclude<ChargeLimits, { method: 'none' }>;
 
 /** A charge asked for; every field optional (the profile's default is taken). */
 export interface ChargeRequest {
+  /** How the charge ends; the profile's method unless given. */
+  until?: 'cc-cv' | 'charger';
   /** CV voltage per cell (cc-cv only; a charger-terminated charge has none to set). */
   V_per_cell?: number;
   current_C?: number;
@@ -213,6 +215,14 @@ export function resolveCharge(
   code: ErrorCode = ErrorCodes.CONFIG_INVALID,
 ): ResolvedCharge {
   const c = chargeableLimits(p, where, code);
+  const method = req.until ?? c.method;
+  if (method === 'cc-cv' && c.method === 'charger')
+    throw makeError(
+      code,
+      `a ${p.id} charge is ended by the charger (${c.source}), not by a voltage and a current`,
+      `${where}, key until`,
+      'Use `until: charger` (or a timed charge) for this chemistry.',
+    );
   const over = (key: string, asked: number, ceiling: Sourced, unit: string): void => {
     if (asked > ceiling.value + EPS || !(asked > 0))
       throw makeError(
@@ -222,7 +232,7 @@ export function resolveCharge(
         `Ask ${meaningful(ceiling.value)} ${unit} or less; no option lifts this ceiling. A cell whose maker allows more needs its own chemistry profile naming that datasheet.`,
       );
   };
-  if (req.V_per_cell !== undefined && c.method === 'charger')
+  if (req.V_per_cell !== undefined && method === 'charger')
     throw makeError(
       code,
       `a ${p.id} charge ends by the charger, so a charge voltage cannot be set`,
@@ -235,9 +245,9 @@ export function resolveCharge(
   over('current_C', current, c.max_current_C, 'C');
   const timeout = req.timeout_h ?? c.timeout_h.value;
   over('timeout_h', timeout, c.timeout_h, 'h');
-  const termination = resolveTermination(c, req, current, `${where}, key termination_C`, code);
+  const termination = resolveTermination(c, method, req, current, `${where}, key termination_C`, code);
   return {
-    method: c.method,
+    method,
     V_per_cell: V,
     current_C: current,
     timeout_h: timeout,
@@ -253,12 +263,13 @@ export function resolveCharge(
  */
 function resolveTermination(
   c: ChargeableLimits,
+  method: 'cc-cv' | 'charger',
   req: ChargeRequest,
   currentC: number,
   where: string,
   code: ErrorCode,
 ): number | null {
-  if (c.method === 'charger') {
+  if (method === 'charger') {
     if (req.termination_C === undefined) return null;
     throw makeError(
       code,
