@@ -30,10 +30,8 @@ const rest = {
     settle_mV_per_min: positive,
     max_minutes: { type: 'number', exclusiveMinimum: 0, maximum: 10080 },
   },
-  oneOf: [
-    { required: ['minutes'], not: { required: ['settle_mV_per_min'] } },
-    { required: ['settle_mV_per_min', 'max_minutes'], not: { required: ['minutes'] } },
-  ],
+  dependencies: { settle_mV_per_min: ['max_minutes'], max_minutes: ['settle_mV_per_min'] },
+  oneOf: [{ required: ['minutes'] }, { required: ['settle_mV_per_min', 'max_minutes'] }],
 };
 
 const discharge = {
@@ -99,7 +97,11 @@ const SCHEMA: SchemaObject = {
   },
 };
 
-const validate = new Ajv({ strict: true }).compile<ProgramFile>(SCHEMA);
+const validate = new Ajv({
+  strict: true,
+  strictRequired: false,
+  verbose: true,
+}).compile<ProgramFile>(SCHEMA);
 
 const HINTS = {
   what: 'program file',
@@ -116,7 +118,12 @@ export function parseProgram(text: string, where: string): ProgramFile {
     where,
     'Fix the YAML syntax at the line shown (indentation, colons, the "-" before each step).',
   );
-  if (!validate(data)) throw schemaError(where, validate.errors![0]!, HINTS);
+  if (!validate(data)) {
+    // the alternatives of a oneOf each fail on their own; the oneOf says what to give instead
+    const errors = validate.errors ?? [];
+    const shown = errors.find((e) => !e.schemaPath.includes('/oneOf/')) ?? errors[0]!;
+    throw schemaError(where, shown, HINTS);
+  }
   return data;
 }
 
