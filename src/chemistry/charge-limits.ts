@@ -245,7 +245,14 @@ export function resolveCharge(
   over('current_C', current, c.max_current_C, 'C');
   const timeout = req.timeout_h ?? c.timeout_h.value;
   over('timeout_h', timeout, c.timeout_h, 'h');
-  const termination = resolveTermination(c, method, req, current, `${where}, key termination_C`, code);
+  const termination = resolveTermination(
+    c,
+    method,
+    req,
+    current,
+    `${where}, key termination_C`,
+    code,
+  );
   return {
     method,
     V_per_cell: V,
