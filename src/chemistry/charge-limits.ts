@@ -224,12 +224,20 @@ export function resolveCharge(
       'Use `until: charger` (or a timed charge) for this chemistry.',
     );
   const over = (key: string, asked: number, ceiling: Sourced, unit: string): void => {
-    if (asked > ceiling.value + EPS || !(asked > 0))
+    const c = `${meaningful(ceiling.value)} ${unit}`;
+    if (!(asked > 0))
       throw makeError(
         code,
-        `${key} ${meaningful(asked)} ${unit} is ${asked > 0 ? 'above' : 'not above 0, below'} the ${p.id} ceiling of ${meaningful(ceiling.value)} ${unit} (source: ${ceiling.source})`,
+        `${key} ${String(asked)} ${unit} is not a positive number`,
         `${where}, key ${key}`,
-        `Ask ${meaningful(ceiling.value)} ${unit} or less; no option lifts this ceiling. A cell whose maker allows more needs its own chemistry profile naming that datasheet.`,
+        `Give a value above 0 and at most ${c}.`,
+      );
+    if (asked > ceiling.value + EPS)
+      throw makeError(
+        code,
+        `${key} ${meaningful(asked)} ${unit} is above the ${p.id} ceiling of ${c} (source: ${ceiling.source})`,
+        `${where}, key ${key}`,
+        `Ask ${c} or less; no option lifts this ceiling. A cell whose maker allows more needs its own chemistry profile naming that datasheet.`,
       );
   };
   if (req.V_per_cell !== undefined && method === 'charger')

@@ -92,7 +92,7 @@ describe('charge ceilings no request can pass', () => {
       'timeout_h 9 h is above',
     );
     expect(caught(() => resolveCharge(byId('li-ion'), { current_C: 0 }, 'p')).message).toContain(
-      'not above 0',
+      'current_C 0 C is not a positive number',
     );
   });
 
