@@ -79,7 +79,9 @@ export function safetyEnd(
     if (f.temperatureC > step.maxTemperatureC) return 'over_temperature';
     if (f.temperatureC < step.minTemperatureC) return 'under_temperature';
     if (f.voltageV > step.ceilingV) return 'over_voltage';
-    if (elapsed >= step.timeoutS * 1000) return 'charge_timeout';
+    // a timed charge as long as the timeout ends on its time, as planned
+    const timed = step.method === 'time' && elapsed >= step.durationS! * 1000;
+    if (!timed && elapsed >= step.timeoutS * 1000) return 'charge_timeout';
   } else if (step.kind === 'discharge') {
     if (f.temperatureC !== null && f.temperatureC > step.maxTemperatureC) return 'over_temperature';
   }

@@ -201,3 +201,42 @@ describe('rest and discharge ends', () => {
     });
   });
 });
+
+describe('nickel charges, ended by the charger or by time', () => {
+  const nimh = findChemistry(loadChemistries(), 'nimh');
+  const nimhPlan = (steps: string) =>
+    planProgram(parseProgram(`name: n\nrated_Ah: 2\nsteps:\n${steps}`, 'n.yaml'), {
+      profile: nimh,
+      cells: 1,
+      where: 'n.yaml',
+    });
+
+  it('a charger that drops to a C/40 trickle at 7000 s has ended, held 10 s: 7010 s (common practice)', () => {
+    // 0.5 C of 2 Ah = 1 A; ended at or below 0.05 C = 0.1 A; C/40 = 0.05 A
+    const seq = new ProgramSequencer(nimhPlan('  - charge: { until: charger, current_C: 0.5 }\n'));
+    seq.onFrame(frame(0, 1.3, 0, 'rest'));
+    const { u, t } = runUntilEnd(
+      seq,
+      (s) => frame(s, 1.45, s < 7000 ? -1 : -0.05, 'charge'),
+      1,
+      20000,
+    );
+    expect(t).toBe(7010);
+    expect(u.ended[0]!.end_reason).toBe('charger_ended');
+  });
+
+  it('0.1 It for 16 h ends on its time at 57600 s, not as a timeout (IEC 61951-2, from memory)', () => {
+    const seq = new ProgramSequencer(
+      nimhPlan('  - charge: { until: time, hours: 16, current_C: 0.1 }\n'),
+    );
+    expect(seq.onFrame(frame(0, 1.3, 0, 'rest')).intents[0]).toEqual({
+      type: 'set-charge',
+      currentA: 0.2,
+      voltageV: 1.6,
+    });
+    const { u, t } = runUntilEnd(seq, (s) => frame(s, 1.45, -0.2, 'charge'), 1, 60000);
+    expect(t).toBe(57600);
+    expect(u.ended[0]!.end_reason).toBe('charge_time');
+    expect(u.finished).toEqual({ aborted: false, reason: 'complete' });
+  });
+});
