@@ -28,7 +28,7 @@ export const CHARGE_FIELDS = [
   'termination_current_C',
   'storage_V_per_cell',
 ] as const;
-type ChargeField = (typeof CHARGE_FIELDS)[number];
+export type ChargeField = (typeof CHARGE_FIELDS)[number];
 
 /** The schema of a profile's `charge` key (ajv, strict). */
 export const chargeSchema = {
