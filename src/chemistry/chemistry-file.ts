@@ -5,6 +5,7 @@ import { parseConfigYaml } from '../core/config-file.js';
 import { ErrorCodes, makeError, type CellvigilError } from '../core/errors.js';
 import type { ChemistryProfile, Sourced } from './chemistry-types.js';
 import { SOURCED_FIELDS, type SourcedField } from './chemistries.js';
+import { chargeSchema, checkChargeBlock, toChargeLimits, type RawCharge } from './charge-limits.js';
 
 /**
  * The chemistry file shipped with the package. Source (`src/chemistry/`) and build
@@ -38,6 +39,7 @@ const profileSchema = {
     max_rest_V_per_cell: sourcedSchema,
     min_rest_V_per_cell: sourcedSchema,
     max_temperature_C: sourcedSchema,
+    charge: chargeSchema,
     cautions: {
       type: 'array',
       minItems: 1,
@@ -164,7 +166,10 @@ interface RawSourced {
   value: number;
   source: string;
 }
-type RawProfile = { name: string; cautions: string[] } & Record<SourcedField, RawSourced>;
+type RawProfile = { name: string; cautions: string[]; charge?: RawCharge } & Record<
+  SourcedField,
+  RawSourced
+>;
 
 /** Checks that hold between fields (the schema only sees one field at a time). */
 function crossCheck(id: string, p: RawProfile): { key: string; problem: string }[] {
@@ -263,6 +268,22 @@ export function parseChemistries(text: string, where: string): ChemistryProfile[
         '0 < max_temperature_C <= 100.',
     );
   }
+  const chargeProblems = Object.entries(raw).flatMap(([id, p]) =>
+    p.charge === undefined
+      ? []
+      : checkChargeBlock(id, p.charge, {
+          nominalV: p.nominal_V_per_cell.value,
+          cutoffV: p.cutoff_V_per_cell.value,
+          maxDischargeC: p.max_temperature_C.value,
+        }),
+  );
+  if (chargeProblems.length > 0) {
+    throw invalid(
+      where,
+      chargeProblems,
+      'Correct the charge values named; the comments at the top of config/chemistries.yaml list what each method needs.',
+    );
+  }
   return Object.entries(raw).map(([id, p]) => ({
     id,
     name: p.name.trim(),
@@ -273,6 +294,7 @@ export function parseChemistries(text: string, where: string): ChemistryProfile[
     min_rest_V_per_cell: copySourced(p.min_rest_V_per_cell),
     max_temperature_C: copySourced(p.max_temperature_C),
     cautions: p.cautions.map((c) => c.trim()),
+    ...(p.charge !== undefined ? { charge: toChargeLimits(p.charge) } : {}),
   }));
 }
 

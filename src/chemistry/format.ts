@@ -1,5 +1,7 @@
 import type { ChemistryProfile, Sourced } from './chemistry-types.js';
 import type { SourcedField } from './chemistries.js';
+import type { ChargeField } from './charge-limits.js';
+import { meaningful } from '../core/meaningful.js';
 
 /** Widest line the table produces. */
 export const TABLE_WIDTH = 100;
@@ -47,6 +49,34 @@ function formatValue(s: Sourced, unit: 'V' | '°C'): string {
   return `${v.endsWith('0') ? v.slice(0, -1) : v} V`;
 }
 
+const CHARGE_ROWS: readonly { field: ChargeField; label: string; unit: string }[] = [
+  { field: 'max_V_per_cell', label: 'charge voltage ceiling', unit: 'V' },
+  { field: 'min_temperature_C', label: 'charge window, lowest', unit: '°C' },
+  { field: 'max_temperature_C', label: 'charge window, highest', unit: '°C' },
+  { field: 'default_current_C', label: 'charge current', unit: 'C' },
+  { field: 'max_current_C', label: 'highest charge current', unit: 'C' },
+  { field: 'termination_current_C', label: 'termination current', unit: 'C' },
+  { field: 'timeout_h', label: 'charge timeout', unit: 'h' },
+  { field: 'storage_V_per_cell', label: 'storage voltage', unit: 'V' },
+];
+
+/** The charge block as table rows: its method, then each limit it has. */
+function chargeRows(p: ChemistryProfile): { label: string; value: string; source: string }[] {
+  const c = p.charge;
+  if (c === undefined) return [];
+  if (c.method === 'none') return [{ label: 'charge', value: 'never', source: c.source }];
+  const rows: { label: string; value: string; source: string }[] = [
+    { label: 'charge method', value: c.method, source: c.source },
+  ];
+  for (const r of CHARGE_ROWS) {
+    const s = c[r.field];
+    if (s === undefined) continue;
+    const value = r.unit === 'V' ? formatValue(s, 'V') : `${meaningful(s.value)} ${r.unit}`;
+    rows.push({ label: r.label, value, source: s.source });
+  }
+  return rows;
+}
+
 export interface ChemistryTableOptions {
   /** Also list each chemistry's cautions (off by default). */
   cautions?: boolean;
@@ -78,14 +108,14 @@ export function formatChemistryTable(
     const head = wrap(p.name, TABLE_WIDTH - idCol);
     out.push(`${p.id.padEnd(idCol)}${head[0] ?? ''}`);
     for (const rest of head.slice(1)) out.push(`${' '.repeat(idCol)}${rest}`);
-    for (const row of ROWS) {
-      const s = p[row.field];
-      const src = wrap(s.source, sourceWidth);
-      out.push(
-        `${INDENT}${row.label.padEnd(LABEL_WIDTH)}${formatValue(s, row.unit).padEnd(VALUE_WIDTH)}${src[0] ?? ''}`,
-      );
+    const push = (label: string, value: string, source: string): void => {
+      const src = wrap(source, sourceWidth);
+      out.push(`${INDENT}${label.padEnd(LABEL_WIDTH)}${value.padEnd(VALUE_WIDTH)}${src[0] ?? ''}`);
       for (const more of src.slice(1)) out.push(`${' '.repeat(sourceCol)}${more}`);
-    }
+    };
+    for (const row of ROWS)
+      push(row.label, formatValue(p[row.field], row.unit), p[row.field].source);
+    for (const r of chargeRows(p)) push(r.label, r.value, r.source);
     if (options.cautions === true && p.cautions.length > 0) {
       out.push(`${INDENT}cautions:`);
       for (const c of p.cautions) {
@@ -99,7 +129,8 @@ export function formatChemistryTable(
   out.push(
     ...wrap(
       'Cutoff floors are fixed: a --cutoff option or live set-cutoff request below a floor is ' +
-        'refused, and nothing overrides that.',
+        'refused, and nothing overrides that. Charge ceilings are fixed too: a program asking ' +
+        'more is refused.',
       TABLE_WIDTH,
     ),
   );

@@ -56,3 +56,20 @@ describe('formatChemistryTable', () => {
     expect(out.split('\n').filter((l) => l.includes('word')).length).toBeGreaterThan(2);
   });
 });
+
+describe('charge limits in the table', () => {
+  const text = formatChemistryTable(all);
+
+  it('shows each chemistry charge limit with its source (Li-ion 4.20 V, 0–45 °C, 0.05 C: common practice)', () => {
+    expect(text).toMatch(/charge method\s+cc-cv\s+common practice/);
+    expect(text).toMatch(/charge voltage ceiling\s+4\.20 V\s+common practice/);
+    expect(text).toMatch(/charge window, highest\s+45 °C\s+common practice/);
+    expect(text).toMatch(/termination current\s+0\.05 C\s+common practice/);
+    expect(text).toMatch(/charge\s+never\s+common practice \(primary cells/);
+    expect(text).toMatch(/charge timeout\s+16 h\s+IEC 61951-2, from memory of the clause/);
+  });
+
+  it('says the charge ceilings cannot be overridden', () => {
+    expect(text).toMatch(/Charge ceilings are fixed/);
+  });
+});
