@@ -1,4 +1,5 @@
 import { CutoffEstimator, type CutoffEstimateOptions } from './cutoff-estimate.js';
+import { cutoffEndsRunNow } from '../session/limits.js';
 import { DownsampledHistory } from './history.js';
 import {
   HISTORY_FIELDS,
@@ -115,10 +116,18 @@ export class LiveHub {
     this.emit({ type: 'result', v: LIVE_VERSION, result: this.resultValue });
   }
 
-  cutoffChanged(cutoff_V: number): void {
+  /** A cutoff change, with who made it: viewers list it among the run's events. */
+  cutoffChanged(cutoff_V: number, by?: string): void {
     this.cutoffV = cutoff_V;
     if (this.run) this.run.cutoff_V = cutoff_V;
-    this.emit({ type: 'cutoff', v: LIVE_VERSION, cutoff_V });
+    const host_s = this.latest?.host_s;
+    this.emit({
+      type: 'cutoff',
+      v: LIVE_VERSION,
+      cutoff_V,
+      ...(by !== undefined ? { by } : {}),
+      ...(host_s !== undefined ? { host_s } : {}),
+    });
   }
 
   onControl(handler: ControlHandler): void {
@@ -140,6 +149,8 @@ export class LiveHub {
           ok: false,
           error: `cutoff ${c.cutoff_V} V is below the safety floor of ${floor.toFixed(3)} V for ${this.run.cells} ${this.run.chemistry} cell(s)`,
         };
+      const endsNow = cutoffEndsRunNow(c.cutoff_V, this.latest?.voltage_V ?? null);
+      if (endsNow !== null && c.confirm !== true) return { ok: false, error: endsNow };
     }
     const reply = this.handler(c);
     if (reply.ok && c.type === 'mark') {

@@ -13,7 +13,7 @@ import { SerialSource } from '../sources/serial-source.js';
 import { SimSource } from '../sources/sim-source.js';
 import type { Source } from '../sources/source.js';
 import { ChannelRun, type ChannelRunOptions } from './channel-run.js';
-import { handleSignals, watchRunFiles, type Watcher } from './controls.js';
+import { changeCutoff, handleSignals, watchRunFiles, type Watcher } from './controls.js';
 import { liveObserver, startLiveLink, type LiveLink } from './live-link.js';
 import type { LiveHub } from '../live/live-hub.js';
 import type { RunObserver } from './observer.js';
@@ -175,7 +175,7 @@ export async function startRun(
     source: link.source,
     done,
     stop: (by) => run.stop(by),
-    setCutoffPerCell: (volts, by) => run.setCutoff(volts * cells, by),
+    setCutoffPerCell: (volts, by) => changeCutoff(run, status, { volts: volts * cells, by, cells }),
     mark: (note, by) => run.mark(note, by),
     addObserver: (o) => run.addObserver(o),
     liveUrl: live?.server.url ?? null,
@@ -308,7 +308,7 @@ async function startLive(
     info,
     channel: req.channel,
     stop: (by) => run.stop(by),
-    setCutoff: (volts, by) => run.setCutoff(volts, by),
+    setCutoff: (volts, by) => changeCutoff(run, status, { volts, by, cells: cfg.cells }),
     mark: (note, by) => run.mark(note, by),
     log: (ev) => {
       if (!run.isEnded) run.log(ev);

@@ -126,7 +126,7 @@ export function liveObserver(hub: LiveHub): RunObserver {
     if (rec.event === 'state') {
       hub.state({ host_s: rec.host_s, from: rec.from, to: rec.to, why: rec.why });
     } else if (rec.event === 'cutoff_changed') {
-      hub.cutoffChanged(rec.cutoff_V);
+      hub.cutoffChanged(rec.cutoff_V, rec.by);
     } else {
       const text = alarmText(rec);
       if (text !== null) hub.alarm({ host_s: rec.host_s, kind: rec.event, detail: text });

@@ -132,3 +132,17 @@ export class Limits {
     };
   }
 }
+
+/**
+ * Why a new cutoff (whole string, V) would end the run on the spot, or null when it would not:
+ * at or above the present voltage, the very next frames are below it. Such a change is a slip
+ * (5 V typed for a 4.1 V cell) more often than a wish, so it needs to be confirmed.
+ */
+export function cutoffEndsRunNow(cutoffV: number, presentV: number | null): string | null {
+  if (presentV === null || !(cutoffV >= presentV)) return null;
+  return (
+    `a cutoff of ${cutoffV.toFixed(3)} V is at or above the present voltage of ${presentV.toFixed(3)} V: ` +
+    'it would end the run now. If that is what you mean, send it again confirmed ' +
+    '(`cellvigil control <channel> cutoff <V> --confirm`, or confirm on the live page)'
+  );
+}
