@@ -118,7 +118,10 @@ export function handleSignals(run: ChannelRun, status: StatusPrinter): void {
       status.line(
         `${sig} again: the load is being switched off first; the run ends as soon as the rig confirms it.`,
       );
-    else status.line(`${sig}: switching the load off and finishing the run…`);
+    else
+      status.line(
+        `${sig}: switching the load off and finishing the run; cellvigil exits once the result is written…`,
+      );
     run.stop(sig);
   };
   process.on('SIGINT', onSignal);
