@@ -154,6 +154,8 @@ export async function startRun(
     startedWallMs,
     resumed: resume !== null,
   });
+  // Only now: a port that fails to open leaves no folder behind to point to.
+  status.line(`Run folder: ${folder}`);
   if (io.signals) handleSignals(run, status);
   watchers = watchRunFiles(run, status, {
     calibration: cfg.calibrationPath,
@@ -165,8 +167,12 @@ export async function startRun(
   run.begin();
   paced?.start(req.speed);
 
-  const done = run.done.then((end): RunOutcome => {
-    printSummary(io, end, folder, cfg.calibration !== null);
+  // A refused one-channel run measured nothing: its folder would only look like a run.
+  const dropRefused = !resume && parts.source === undefined;
+  const done = run.done.then(async (end): Promise<RunOutcome> => {
+    const removed =
+      dropRefused && end.result.end_reason === 'refused' && (await removeFolder(folder));
+    printSummary(io, end, folder, cfg.calibration !== null, !removed);
     return { exitCode: end.exitCode, folder, result: end.result };
   });
   return {
@@ -183,6 +189,14 @@ export async function startRun(
       await live?.server.close();
     },
   };
+}
+
+/** True once the folder is gone. */
+async function removeFolder(folder: string): Promise<boolean> {
+  return rm(folder, { recursive: true, force: true }).then(
+    () => true,
+    () => false,
+  );
 }
 
 function newChannelRun(
