@@ -7,6 +7,8 @@
 import { rm } from 'node:fs/promises';
 import { DEFAULT_CHEMISTRIES_PATH } from '../chemistry/chemistry-file.js';
 import type { Clock, TimerHandle } from '../core/clock.js';
+import type { CellvigilError } from '../core/errors.js';
+import { missingChannel } from '../protocol/hello-check.js';
 import { HostClock, PacedClock } from '../core/host-clock.js';
 import type { RunResult } from '../record/result.js';
 import { SerialSource } from '../sources/serial-source.js';
@@ -139,6 +141,7 @@ export async function startRun(
     },
     releaseLink: () => paced?.stop(),
   });
+  const wrongChannel = refuseMissingChannel(run, req.channel);
   const manifest = { req, cfg, label, startedWallMs, source: link.source };
   if (!resume)
     await RunRecorder.writeManifest(
@@ -155,7 +158,7 @@ export async function startRun(
     resumed: resume !== null,
   });
   // Only now: a port that fails to open leaves no folder behind to point to.
-  status.line(`Run folder: ${folder}`);
+  if (!run.isEnded) status.line(`Run folder: ${folder}`);
   if (io.signals) handleSignals(run, status);
   watchers = watchRunFiles(run, status, {
     calibration: cfg.calibrationPath,
@@ -170,6 +173,14 @@ export async function startRun(
   // A refused one-channel run measured nothing: its folder would only look like a run.
   const dropRefused = !resume && parts.source === undefined;
   const done = run.done.then(async (end): Promise<RunOutcome> => {
+    const channelError = wrongChannel();
+    if (channelError) {
+      // The load never went on: no frame of that channel can come.
+      const removed = dropRefused && (await removeFolder(folder));
+      io.err.write(`cellvigil: ${channelError.code}: ${channelError.message}\n`);
+      if (!removed) io.out.write(`Its record: ${folder}\n`);
+      return { exitCode: channelError.exitCode, folder, result: end.result };
+    }
     const removed =
       dropRefused && end.result.end_reason === 'refused' && (await removeFolder(folder));
     printSummary(io, end, folder, cfg.calibration !== null, !removed);
@@ -189,6 +200,23 @@ export async function startRun(
       await live?.server.close();
     },
   };
+}
+
+/**
+ * A `--channel` the rig's hello does not have is refused as soon as the hello comes (the run
+ * would otherwise wait for frames that never come and call the rig silent). Returns the error,
+ * once there is one.
+ */
+function refuseMissingChannel(run: ChannelRun, channel: number): () => CellvigilError | null {
+  let error: CellvigilError | null = null;
+  run.addObserver({
+    event: (rec) => {
+      if (rec.event !== 'rig_hello' || error !== null) return;
+      error = missingChannel(channel, { channels: rec.channels, rigId: rec.rig_id });
+      if (error) run.stop(`the rig's hello (it has no channel ${channel})`);
+    },
+  });
+  return () => error;
 }
 
 /** True once the folder is gone. */

@@ -141,6 +141,20 @@ describe('the precheck and the floors', () => {
     expect(existsSync(run.folder)).toBe(false);
   });
 
+  it("a --channel beyond the hello's channel count is refused with the fix: exit 2, nothing switched", async () => {
+    // Protocol v1: the hello states the rig's channel count; channels count from 0.
+    const io = quietIo();
+    const run = await startRun(request({ channel: 3 }), io);
+    const outcome = await run.done;
+    expect(outcome.exitCode).toBe(2);
+    expect(io.text()).toMatch(
+      /CV_USAGE: rig \S+ reports 1 channel in its hello; channel 3 does not exist/,
+    );
+    expect(io.text()).toMatch(/Give --channel with only channel 0/);
+    expect((run.source as SimSource).rig.loadLog().filter((s) => s.on)).toEqual([]);
+    expect(existsSync(run.folder)).toBe(false);
+  });
+
   it('a port that fails to open prints no run folder and leaves none', async () => {
     const io = quietIo();
     const runs = mkdtempSync(join(tmpdir(), 'cellvigil-runs-'));
