@@ -123,7 +123,12 @@ export async function startRun(
     parts.source ??
       (scenario
         ? new SimSource({ scenario, clock, profile: cfg.profile })
-        : new SerialSource({ path: req.port!, baudRate: req.baud ?? cfg.profile.frame.baud })),
+        : new SerialSource({
+            path: req.port!,
+            baudRate: req.baud ?? cfg.profile.frame.baud,
+            // A second run on this port is refused with this: which run holds it.
+            holder: `run "${label}" (${folder})`,
+          })),
   );
   const status = new StatusPrinter(io.out);
   const timers = new RunTimers();
