@@ -147,7 +147,9 @@ export class LiveHub {
       if (!Number.isFinite(c.cutoff_V) || c.cutoff_V < floor)
         return {
           ok: false,
-          error: `cutoff ${c.cutoff_V} V is below the safety floor of ${floor.toFixed(3)} V for ${this.run.cells} ${this.run.chemistry} cell(s)`,
+          error:
+            `cutoff ${c.cutoff_V} V is below the safety floor of ${floor.toFixed(3)} V for ${this.run.cells} ${this.run.chemistry} cell(s); ` +
+            "no command lowers it. To follow a cell maker's datasheet that allows less, start a run with a chemistry profile made from it (docs/chemistry-profiles.md)",
         };
       const endsNow = cutoffEndsRunNow(c.cutoff_V, this.latest?.voltage_V ?? null);
       if (endsNow !== null && c.confirm !== true) return { ok: false, error: endsNow };
