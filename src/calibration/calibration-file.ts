@@ -122,7 +122,7 @@ export function parseCalibration(text: string, where: string): Calibration {
       ErrorCodes.CALIBRATION_INVALID,
       `the calibration file is malformed: ${problems.join('; ')}`,
       where,
-      'Restore the file from the last `cellvigil calibrate` run, or calibrate again; the previous calibration stays in force.',
+      'Restore the file from the last `cellvigil calibrate` run, or calibrate again.',
     );
   }
   const cal = data as Calibration;

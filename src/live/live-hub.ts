@@ -1,4 +1,5 @@
 import { CutoffEstimator, type CutoffEstimateOptions } from './cutoff-estimate.js';
+import { cutoffEndsRunNow } from '../session/limits.js';
 import { DownsampledHistory } from './history.js';
 import {
   HISTORY_FIELDS,
@@ -127,10 +128,18 @@ export class LiveHub {
     this.emit({ type: 'result', v: LIVE_VERSION, result: this.resultValue });
   }
 
-  cutoffChanged(cutoff_V: number): void {
+  /** A cutoff change, with who made it: viewers list it among the run's events. */
+  cutoffChanged(cutoff_V: number, by?: string): void {
     this.cutoffV = cutoff_V;
     if (this.run) this.run.cutoff_V = cutoff_V;
-    this.emit({ type: 'cutoff', v: LIVE_VERSION, cutoff_V });
+    const host_s = this.latest?.host_s;
+    this.emit({
+      type: 'cutoff',
+      v: LIVE_VERSION,
+      cutoff_V,
+      ...(by !== undefined ? { by } : {}),
+      ...(host_s !== undefined ? { host_s } : {}),
+    });
   }
 
   onControl(handler: ControlHandler): void {
@@ -150,8 +159,12 @@ export class LiveHub {
       if (!Number.isFinite(c.cutoff_V) || c.cutoff_V < floor)
         return {
           ok: false,
-          error: `cutoff ${c.cutoff_V} V is below the safety floor of ${floor.toFixed(3)} V for ${this.run.cells} ${this.run.chemistry} cell(s)`,
+          error:
+            `cutoff ${c.cutoff_V} V is below the safety floor of ${floor.toFixed(3)} V for ${this.run.cells} ${this.run.chemistry} cell(s); ` +
+            "no command lowers it. To follow a cell maker's datasheet that allows less, start a run with a chemistry profile made from it (docs/chemistry-profiles.md)",
         };
+      const endsNow = cutoffEndsRunNow(c.cutoff_V, this.latest?.voltage_V ?? null);
+      if (endsNow !== null && c.confirm !== true) return { ok: false, error: endsNow };
     }
     const reply = this.handler(c);
     if (reply.ok && c.type === 'mark') {

@@ -382,7 +382,7 @@ export async function startLiveServer(o: LiveServerOptions): Promise<LiveServer>
       m.type === 'stop'
         ? { type: m.type }
         : m.type === 'set-cutoff'
-          ? { type: m.type, cutoff_V: m.cutoff_V }
+          ? { type: m.type, cutoff_V: m.cutoff_V, ...(m.confirm ? { confirm: true } : {}) }
           : m.type === 'mark'
             ? { type: m.type, note: m.note }
             : { type: m.type, ...(m.cell_id !== undefined ? { cell_id: m.cell_id } : {}) };

@@ -53,7 +53,10 @@ export interface LiveMark {
 }
 
 export type ControlRequest =
-  { type: 'stop' } | { type: 'set-cutoff'; cutoff_V: number } | { type: 'mark'; note: string };
+  | { type: 'stop' }
+  /** `confirm`: the sender knows the cutoff is at or above the present voltage (it ends the run now). */
+  | { type: 'set-cutoff'; cutoff_V: number; confirm?: boolean }
+  | { type: 'mark'; note: string };
 /** Starts the next run on a station's channel (after a cell swap), optionally naming the cell. */
 export interface StartRequest {
   type: 'start';
@@ -137,6 +140,10 @@ export interface CutoffMessage extends ChannelTag {
   type: 'cutoff';
   v: typeof LIVE_VERSION;
   cutoff_V: number;
+  /** Who changed it ("live control", "control 0 cutoff", …), when known. */
+  by?: string;
+  /** Run time of the change, s, when known. */
+  host_s?: number;
 }
 
 export interface AckMessage extends ChannelTag {

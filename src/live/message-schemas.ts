@@ -166,7 +166,7 @@ export const SERVER_MESSAGE_SCHEMAS = {
   alarm: message('alarm', alarmFields, Object.keys(alarmFields)),
   mark: message('mark', markFields, Object.keys(markFields)),
   result: message('result', { result: resultObject }, ['result']),
-  cutoff: message('cutoff', { cutoff_V: num }, ['cutoff_V']),
+  cutoff: message('cutoff', { cutoff_V: num, by: str, host_s: num }, ['cutoff_V']),
   station: message(
     'station',
     {
@@ -226,7 +226,10 @@ const token = { type: 'string', minLength: 1, maxLength: 256 } as const;
 /** One schema per control message a viewer may send, by type. */
 export const CLIENT_MESSAGE_SCHEMAS = {
   stop: message('stop', { token, id }, ['token']),
-  'set-cutoff': message('set-cutoff', { token, id, cutoff_V: num }, ['token', 'cutoff_V']),
+  'set-cutoff': message('set-cutoff', { token, id, cutoff_V: num, confirm: { type: 'boolean' } }, [
+    'token',
+    'cutoff_V',
+  ]),
   mark: message('mark', { token, id, note: { type: 'string', minLength: 1, maxLength: 500 } }, [
     'token',
     'note',

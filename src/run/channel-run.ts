@@ -403,7 +403,9 @@ export class ChannelRun {
     const ev = { event: name, ...detail } as RunEvent;
     this.log(ev);
     if (ev.event !== 'state') return;
-    this.o.status.line(`state: ${ev.from} -> ${ev.to} (${ev.why})`);
+    // A refusal's reason is printed once, as the run's error, after this line.
+    const refused = ev.to === 'ended' && ev.why.startsWith('refused');
+    this.o.status.line(`state: ${ev.from} -> ${ev.to} (${refused ? 'refused' : ev.why})`);
     const reason = this.session.result.reason;
     if (ev.to === 'stopping' && reason !== null && SAFETY_ENDS.has(reason))
       for (const ob of this.observers) ob.limitTripped?.(this.hostS(), reason, ev.why);

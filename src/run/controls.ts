@@ -13,6 +13,26 @@ export interface Watcher {
   close(): Promise<void>;
 }
 
+/**
+ * A cutoff change (whole string, V) from outside the rig, printed and logged with who made it,
+ * whether it applies or is refused.
+ */
+export function changeCutoff(
+  run: ChannelRun,
+  status: StatusPrinter,
+  x: { volts: number; by: string; cells: number },
+): { ok: true } | { ok: false; error: string } {
+  const before = run.session.cutoffV;
+  const r = run.setCutoff(x.volts, x.by);
+  const perCell = (v: number): string => `${(v / x.cells).toFixed(3)} V per cell`;
+  if (r.ok)
+    status.line(
+      `Cutoff changed by ${x.by}: ${before.toFixed(3)} V -> ${run.session.cutoffV.toFixed(3)} V (${perCell(run.session.cutoffV)}).`,
+    );
+  else status.line(`Cutoff change to ${x.volts.toFixed(3)} V by ${x.by} refused: ${r.error}`);
+  return r;
+}
+
 /** A calibration file rewritten mid-run applies from the next sample, if it validates. */
 export async function reloadCalibration(
   run: ChannelRun,
@@ -98,7 +118,10 @@ export function handleSignals(run: ChannelRun, status: StatusPrinter): void {
       status.line(
         `${sig} again: the load is being switched off first; the run ends as soon as the rig confirms it.`,
       );
-    else status.line(`${sig}: switching the load off and finishing the run…`);
+    else
+      status.line(
+        `${sig}: switching the load off and finishing the run; cellvigil exits once the result is written…`,
+      );
     run.stop(sig);
   };
   process.on('SIGINT', onSignal);

@@ -7,13 +7,15 @@
 import { rm } from 'node:fs/promises';
 import { DEFAULT_CHEMISTRIES_PATH } from '../chemistry/chemistry-file.js';
 import type { Clock, TimerHandle } from '../core/clock.js';
+import type { CellvigilError } from '../core/errors.js';
+import { missingChannel } from '../protocol/hello-check.js';
 import { HostClock, PacedClock } from '../core/host-clock.js';
 import type { RunResult } from '../record/result.js';
 import { SerialSource } from '../sources/serial-source.js';
 import { SimSource } from '../sources/sim-source.js';
 import type { Source } from '../sources/source.js';
 import { ChannelRun, type ChannelRunOptions } from './channel-run.js';
-import { handleSignals, watchRunFiles, type Watcher } from './controls.js';
+import { changeCutoff, handleSignals, watchRunFiles, type Watcher } from './controls.js';
 import { liveObserver, startLiveLink, type LiveLink } from './live-link.js';
 import type { LiveHub } from '../live/live-hub.js';
 import type { RunObserver } from './observer.js';
@@ -121,7 +123,12 @@ export async function startRun(
     parts.source ??
       (scenario
         ? new SimSource({ scenario, clock, profile: cfg.profile })
-        : new SerialSource({ path: req.port!, baudRate: req.baud ?? cfg.profile.frame.baud })),
+        : new SerialSource({
+            path: req.port!,
+            baudRate: req.baud ?? cfg.profile.frame.baud,
+            // A second run on this port is refused with this: which run holds it.
+            holder: `run "${label}" (${folder})`,
+          })),
   );
   const status = new StatusPrinter(io.out);
   const timers = new RunTimers();
@@ -139,6 +146,7 @@ export async function startRun(
     },
     releaseLink: () => paced?.stop(),
   });
+  const wrongChannel = refuseMissingChannel(run, req.channel);
   const manifest = { req, cfg, label, startedWallMs, source: link.source };
   if (!resume)
     await RunRecorder.writeManifest(
@@ -154,6 +162,8 @@ export async function startRun(
     startedWallMs,
     resumed: resume !== null,
   });
+  // Only now: a port that fails to open leaves no folder behind to point to.
+  if (!run.isEnded) status.line(`Run folder: ${folder}`);
   if (io.signals) handleSignals(run, status);
   watchers = watchRunFiles(run, status, {
     calibration: cfg.calibrationPath,
@@ -165,8 +175,20 @@ export async function startRun(
   run.begin();
   paced?.start(req.speed);
 
-  const done = run.done.then((end): RunOutcome => {
-    printSummary(io, end, folder, cfg.calibration !== null);
+  // A refused one-channel run measured nothing: its folder would only look like a run.
+  const dropRefused = !resume && parts.source === undefined;
+  const done = run.done.then(async (end): Promise<RunOutcome> => {
+    const channelError = wrongChannel();
+    if (channelError) {
+      // The load never went on: no frame of that channel can come.
+      const removed = dropRefused && (await removeFolder(folder));
+      io.err.write(`cellvigil: ${channelError.code}: ${channelError.message}\n`);
+      if (!removed) io.out.write(`Its record: ${folder}\n`);
+      return { exitCode: channelError.exitCode, folder, result: end.result };
+    }
+    const removed =
+      dropRefused && end.result.end_reason === 'refused' && (await removeFolder(folder));
+    printSummary(io, end, folder, cfg.calibration !== null, !removed);
     return { exitCode: end.exitCode, folder, result: end.result };
   });
   return {
@@ -175,7 +197,7 @@ export async function startRun(
     source: link.source,
     done,
     stop: (by) => run.stop(by),
-    setCutoffPerCell: (volts, by) => run.setCutoff(volts * cells, by),
+    setCutoffPerCell: (volts, by) => changeCutoff(run, status, { volts: volts * cells, by, cells }),
     mark: (note, by) => run.mark(note, by),
     addObserver: (o) => run.addObserver(o),
     liveUrl: live?.server.url ?? null,
@@ -183,6 +205,31 @@ export async function startRun(
       await live?.server.close();
     },
   };
+}
+
+/**
+ * A `--channel` the rig's hello does not have is refused as soon as the hello comes (the run
+ * would otherwise wait for frames that never come and call the rig silent). Returns the error,
+ * once there is one.
+ */
+function refuseMissingChannel(run: ChannelRun, channel: number): () => CellvigilError | null {
+  let error: CellvigilError | null = null;
+  run.addObserver({
+    event: (rec) => {
+      if (rec.event !== 'rig_hello' || error !== null) return;
+      error = missingChannel(channel, { channels: rec.channels, rigId: rec.rig_id });
+      if (error) run.stop(`the rig's hello (it has no channel ${channel})`);
+    },
+  });
+  return () => error;
+}
+
+/** True once the folder is gone. */
+async function removeFolder(folder: string): Promise<boolean> {
+  return rm(folder, { recursive: true, force: true }).then(
+    () => true,
+    () => false,
+  );
 }
 
 function newChannelRun(
@@ -308,7 +355,7 @@ async function startLive(
     info,
     channel: req.channel,
     stop: (by) => run.stop(by),
-    setCutoff: (volts, by) => run.setCutoff(volts, by),
+    setCutoff: (volts, by) => changeCutoff(run, status, { volts, by, cells: cfg.cells }),
     mark: (note, by) => run.mark(note, by),
     log: (ev) => {
       if (!run.isEnded) run.log(ev);

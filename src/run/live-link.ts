@@ -126,7 +126,7 @@ export function liveObserver(hub: LiveHub): RunObserver {
     if (rec.event === 'state') {
       hub.state({ host_s: rec.host_s, from: rec.from, to: rec.to, why: rec.why });
     } else if (rec.event === 'cutoff_changed') {
-      hub.cutoffChanged(rec.cutoff_V);
+      hub.cutoffChanged(rec.cutoff_V, rec.by);
     } else if (rec.event === 'chemistry_changed') {
       hub.updateRun({
         cutoff_V: rec.cutoff_V,

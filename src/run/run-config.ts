@@ -149,6 +149,22 @@ function checkRunOptions(req: RunRequest): void {
   }
 }
 
+/**
+ * A schedule's "to … V" and --cutoff are two end points: differing, one would lose silently
+ * while the header shows the other, so the run is refused and the user picks one.
+ */
+function checkEndPoints(cutoffPerCell: number | undefined, schedule: Schedule | null): void {
+  const endPoint = schedule?.endPointVPerCell ?? null;
+  if (cutoffPerCell === undefined || endPoint === null) return;
+  if (Math.abs(cutoffPerCell - endPoint) < 0.0005) return;
+  throw makeError(
+    ErrorCodes.USAGE,
+    `the schedule ends at ${endPoint} V per cell ("to ${endPoint} V") but --cutoff says ${cutoffPerCell} V`,
+    '--cutoff / --schedule',
+    `Give one end point: leave --cutoff out (the schedule's ${endPoint} V applies), or drop "to ${endPoint} V" from the schedule.`,
+  );
+}
+
 export async function resolveRunConfig(
   req: RunRequest,
   resumed: RunManifest | null = null,
@@ -186,14 +202,16 @@ export async function resolveRunConfig(
   const scheduleSource =
     resumedSchedule ?? (req.schedule !== undefined ? await readScheduleSource(req.schedule) : null);
   const schedule = scheduleSource ? parseScheduleSource(scheduleSource) : null;
-  // The schedule's end point is the cutoff unless --cutoff says otherwise; both meet the floor.
+  if (!resumed) checkEndPoints(req.cutoff, schedule);
   const endPoint = req.cutoff ?? schedule?.endPointVPerCell ?? undefined;
-  const cutoff = resolveCutoff(
+  const resolved = resolveCutoff(
     chemistry,
     cells,
     endPoint,
     req.cutoff !== undefined ? '--cutoff' : "the schedule's end point",
   );
+  // A resumed run's cutoff is the one it started with, from wherever that came.
+  const cutoff = resumed ? { ...resolved, source: resumed.cutoff_source } : resolved;
   const calibrationPath =
     req.calibration !== undefined ? resolve(req.calibration) : (resumed?.calibration.file ?? null);
   const calibration =

@@ -13,7 +13,7 @@ import type { ChannelOutcome, ChannelRun } from './channel-run.js';
 import type { ResumePoint } from './resume.js';
 import type { RunConfig } from './run-config.js';
 import type { RunRequest } from './run-request.js';
-import type { StatusPrinter } from './status-line.js';
+import { formatElapsed, type StatusPrinter } from './status-line.js';
 
 export function manifestOf(x: {
   req: RunRequest;
@@ -69,7 +69,6 @@ export function announceStart(
   if (cfg.schedule) status.line(`Schedule: ${describeSchedule(cfg.schedule)}.`);
   status.line('Cautions:');
   for (const c of cautionLines(chemistry)) status.line(`  - ${c}`);
-  status.line(`Run folder: ${x.folder}`);
   if (resume) {
     const downS = Math.max(0, Date.now() - resume.lastWallMs) / 1000;
     status.line(
@@ -119,11 +118,16 @@ export interface SummaryIo {
   err: NodeJS.WritableStream;
 }
 
+/**
+ * The end of a run in a few lines. A refused run says why once, as an error: it measured
+ * nothing, so it has no figures to show (and `folderKept` says whether its folder stays).
+ */
 export function printSummary(
   io: SummaryIo,
   end: ChannelOutcome,
   folder: string,
   calibrated: boolean,
+  folderKept = true,
 ): void {
   const r: RunResult = end.result;
   const w = (s: string): boolean => io.out.write(`${s}\n`);
@@ -131,6 +135,12 @@ export function printSummary(
   if (r.end_reason === 'refused') {
     const code = end.rigNeverSpoke ? ErrorCodes.RIG_SILENT : ErrorCodes.PRECHECK_REFUSED;
     io.err.write(`cellvigil: ${code}: ${r.end_detail}\n`);
+    w(
+      folderKept
+        ? `Run refused before the load went on; its record: ${folder}`
+        : 'Run refused before the load went on; no run folder was kept.',
+    );
+    return;
   }
   w(
     `Run ended: ${r.end_reason} (${r.end_detail})${r.load_off_confirmed ? '' : ' — load-off NOT confirmed by the rig; its watchdog cuts the load within 5 s'}`,
@@ -143,8 +153,9 @@ export function printSummary(
     `  energy        ${r.energy_Wh.toFixed(4)} Wh ± ${r.uncertainty.energy_Wh.expanded.toFixed(4)} Wh (k = 2)`,
   );
   w(
-    `  load on       ${r.duration_s.toFixed(1)} s; mean ${r.mean_voltage_V?.toFixed(3) ?? '—'} V, end ${r.end_voltage_V?.toFixed(3) ?? '—'} V, cutoff ${r.cutoff_V.toFixed(3)} V`,
+    `  load on       ${formatElapsed(r.duration_s)}; mean ${r.mean_voltage_V?.toFixed(3) ?? '—'} V, end ${r.end_voltage_V?.toFixed(3) ?? '—'} V, cutoff ${r.cutoff_V.toFixed(3)} V`,
   );
+  w(`  DC resistance ${dcResistanceText(r)}`);
   w(
     `  frames        ${r.frames_accepted} accepted, ${r.frames_rejected} rejected, ${r.frames_lost} lost`,
   );
@@ -157,4 +168,13 @@ export function printSummary(
       `cellvigil: ${ErrorCodes.RUN_FOLDER}: ${end.diskError.message} (${folder}). Free space or fix permissions; the load was switched off.\n`,
     );
   w(`  run folder    ${folder}`);
+}
+
+/** DC internal resistance at switch-on, in mΩ, with the voltages it comes from. */
+function dcResistanceText(r: RunResult): string {
+  if (r.dc_resistance_ohm === null) return '— (no loaded frame after a resting one)';
+  const mOhm = r.dc_resistance_ohm * 1000;
+  const from =
+    r.open_circuit_V !== null ? ` (from ${r.open_circuit_V.toFixed(3)} V open-circuit)` : '';
+  return `${mOhm.toFixed(mOhm < 100 ? 1 : 0)} mΩ at switch-on${from}`;
 }

@@ -8,7 +8,7 @@ export class Debounce {
 
   constructor(
     private readonly holdMs: number,
-    private readonly frames: number,
+    private readonly minFrames: number,
   ) {}
 
   /** Feeds one observation; returns true once the condition has been sustained. */
@@ -20,7 +20,17 @@ export class Debounce {
     }
     if (this.since === null) this.since = atMs;
     this.count++;
-    return this.count >= this.frames && atMs - this.since >= this.holdMs;
+    return this.count >= this.minFrames && atMs - this.since >= this.holdMs;
+  }
+
+  /** Consecutive frames the condition has held so far. */
+  get frames(): number {
+    return this.count;
+  }
+
+  /** How long the condition has held at `atMs` (0 when it does not). */
+  heldMs(atMs: number): number {
+    return this.since === null ? 0 : atMs - this.since;
   }
 
   reset(): void {

@@ -5,14 +5,24 @@ export type LimitTrip =
   | { reason: 'over_temperature'; detail: string }
   | { reason: 'fault'; detail: string };
 
+/** How long the loaded voltage must stay below the cutoff before the load goes off. */
+export const CUTOFF_HOLD_MS = 500;
+/** And for how many consecutive frames at least (one noisy frame never ends a run). */
+export const CUTOFF_HOLD_FRAMES = 3;
+
 export interface LimitSettings {
   /** End-of-discharge voltage of the whole series string, V. */
   cutoffV: number;
+  /**
+   * The safety floor of the whole string, V: a loaded reading at or below it switches the load
+   * off at once, without the cutoff's hold. Absent: only the cutoff is checked.
+   */
+  floorV?: number;
   maxTemperatureC: number;
   maxCurrentA: number;
-  /** @default 1000 */
+  /** @default CUTOFF_HOLD_MS */
   debounceMs?: number;
-  /** @default 3 */
+  /** @default CUTOFF_HOLD_FRAMES */
   debounceFrames?: number;
 }
 
@@ -34,10 +44,12 @@ export interface LimitInput {
 /**
  * The safety limits, checked in one place per frame. Temperature, thermistor and current
  * trips need only consecutive frames (a hot cell should not wait a second more); the cutoff
- * waits out the debounce time too, since a loaded voltage is noisy near the knee.
+ * waits out a short hold too, since a loaded voltage is noisy near the knee. The hold never
+ * reaches the floor: a loaded reading at or below the floor cuts at once.
  */
 export class Limits {
   private cutoffV: number;
+  private floorV: number | null;
   private maxT: number;
   private readonly maxI: number;
   private readonly cutoff: Debounce;
@@ -47,10 +59,11 @@ export class Limits {
 
   constructor(s: LimitSettings) {
     this.cutoffV = s.cutoffV;
+    this.floorV = s.floorV ?? null;
     this.maxT = s.maxTemperatureC;
     this.maxI = s.maxCurrentA;
-    const frames = s.debounceFrames ?? 3;
-    this.cutoff = new Debounce(s.debounceMs ?? 1000, frames);
+    const frames = s.debounceFrames ?? CUTOFF_HOLD_FRAMES;
+    this.cutoff = new Debounce(s.debounceMs ?? CUTOFF_HOLD_MS, frames);
     this.hot = new Debounce(0, frames);
     this.sensor = new Debounce(0, frames);
     this.current = new Debounce(0, frames);
@@ -64,6 +77,11 @@ export class Limits {
   setCutoff(volts: number): void {
     this.cutoffV = volts;
     this.cutoff.reset();
+  }
+
+  /** Changes the floor mid-run (a chemistry file edited and validated). */
+  setFloor(volts: number): void {
+    this.floorV = volts;
   }
 
   /** Changes the temperature limit mid-run (a chemistry file edited and validated). */
@@ -93,11 +111,38 @@ export class Limits {
         reason: 'fault',
         detail: `over_current: ${x.amps.toFixed(3)} A is above the limit of ${this.maxI} A`,
       };
-    if (this.cutoff.update(x.loadOn && x.volts < this.cutoffV, x.atMs))
+    return this.checkCutoff(x);
+  }
+
+  private checkCutoff(x: LimitInput): LimitTrip | null {
+    if (x.loadOn && this.floorV !== null && x.volts <= this.floorV) {
+      this.cutoff.reset();
       return {
         reason: 'cutoff',
-        detail: `${x.volts.toFixed(3)} V held below the cutoff of ${this.cutoffV.toFixed(3)} V`,
+        detail: `${x.volts.toFixed(3)} V reached the safety floor of ${this.floorV.toFixed(3)} V: switched off at once`,
       };
-    return null;
+    }
+    const below = x.loadOn && x.volts < this.cutoffV;
+    if (!this.cutoff.update(below, x.atMs)) return null;
+    const frames = this.cutoff.frames;
+    const heldS = this.cutoff.heldMs(x.atMs) / 1000;
+    return {
+      reason: 'cutoff',
+      detail: `fell below the cutoff of ${this.cutoffV.toFixed(3)} V for ${frames} frames / ${heldS.toFixed(1)} s (last ${x.volts.toFixed(3)} V)`,
+    };
   }
+}
+
+/**
+ * Why a new cutoff (whole string, V) would end the run on the spot, or null when it would not:
+ * at or above the present voltage, the very next frames are below it. Such a change is a slip
+ * (5 V typed for a 4.1 V cell) more often than a wish, so it needs to be confirmed.
+ */
+export function cutoffEndsRunNow(cutoffV: number, presentV: number | null): string | null {
+  if (presentV === null || !(cutoffV >= presentV)) return null;
+  return (
+    `a cutoff of ${cutoffV.toFixed(3)} V is at or above the present voltage of ${presentV.toFixed(3)} V: ` +
+    'it would end the run now. If that is what you mean, send it again confirmed ' +
+    '(`cellvigil control <channel> cutoff <V> --confirm`, or confirm on the live page)'
+  );
 }

@@ -316,6 +316,7 @@ export class Session {
       return { ok: false, why: `cutoff ${x.cutoffV} V is below the floor ${x.floorV} V` };
     this.s.floorV = x.floorV;
     this.s.maxTemperatureC = x.maxTemperatureC;
+    this.limits.setFloor(x.floorV);
     this.limits.setMaxTemperature(x.maxTemperatureC);
     this.limits.setCutoff(x.cutoffV);
     return { ok: true };

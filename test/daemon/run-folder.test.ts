@@ -1,4 +1,4 @@
-import { mkdtempSync, readFileSync, readdirSync } from 'node:fs';
+import { existsSync, mkdtempSync, readFileSync, readdirSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { PassThrough } from 'node:stream';
@@ -56,6 +56,9 @@ describe('a run on the simulated rig writes the run folder of the contract', () 
     const outcome = await run.done;
     expect(outcome.exitCode, io.text()).toBe(0);
     expect(run.folder).toMatch(/[/\\]\d{8}-\d{6}-layout-check$/);
+    // The summary: load-on time as h:mm:ss, and the DC internal resistance at switch-on.
+    expect(io.text()).toMatch(/ {2}load on {7}0:00:\d\d; mean/);
+    expect(io.text()).toMatch(/ {2}DC resistance \d+(\.\d)? mΩ at switch-on/);
     const files = readdirSync(run.folder).sort();
     expect(files).toEqual(
       expect.arrayContaining(['checkpoint.json', 'events.jsonl', 'manifest.json', 'result.json']),
@@ -131,6 +134,35 @@ describe('the precheck and the floors', () => {
     expect(outcome.result.end_reason).toBe('refused');
     expect(io.text()).toMatch(/CV_PRECHECK_REFUSED/);
     expect((run.source as SimSource).rig.loadLog().filter((s) => s.on)).toEqual([]);
+    // The reason once (as the error), no empty figures, no folder that looks like a run.
+    expect(io.text().split('Wrong chemistry or cell count').length - 1).toBe(1);
+    expect(io.text()).not.toMatch(/0\.0 mAh/);
+    expect(io.text()).toMatch(/no run folder was kept/);
+    expect(existsSync(run.folder)).toBe(false);
+  });
+
+  it("a --channel beyond the hello's channel count is refused with the fix: exit 2, nothing switched", async () => {
+    // Protocol v1: the hello states the rig's channel count; channels count from 0.
+    const io = quietIo();
+    const run = await startRun(request({ channel: 3 }), io);
+    const outcome = await run.done;
+    expect(outcome.exitCode).toBe(2);
+    expect(io.text()).toMatch(
+      /CV_USAGE: rig \S+ reports 1 channel in its hello; channel 3 does not exist/,
+    );
+    expect(io.text()).toMatch(/Give --channel with only channel 0/);
+    expect((run.source as SimSource).rig.loadLog().filter((s) => s.on)).toEqual([]);
+    expect(existsSync(run.folder)).toBe(false);
+  });
+
+  it('a port that fails to open prints no run folder and leaves none', async () => {
+    const io = quietIo();
+    const runs = mkdtempSync(join(tmpdir(), 'cellvigil-runs-'));
+    const req = request({ runs, chemistry: 'li-ion', port: '/nonexistent/cv-tty' });
+    delete req.sim;
+    await expect(startRun({ ...req, speed: 1 }, io)).rejects.toBeTruthy();
+    expect(io.text()).not.toMatch(/Run folder/);
+    expect(readdirSync(runs)).toEqual([]);
   });
 
   it('refuses a cutoff below the chemistry floor before anything starts (Li-ion floor 2.5 V, common practice)', async () => {
@@ -146,6 +178,9 @@ describe('the precheck and the floors', () => {
     const run = await startRun(request({ speed: 5 }), io);
     expect(run.setCutoffPerCell(2.0, 'test')).toMatchObject({ ok: false });
     expect(run.setCutoffPerCell(3.2, 'test')).toEqual({ ok: true });
+    // Every change printed with who made it, and the refusal too.
+    expect(io.text()).toMatch(/Cutoff change to 2\.000 V by test refused/);
+    expect(io.text()).toMatch(/Cutoff changed by test: 3\.000 V -> 3\.200 V \(3\.200 V per cell\)/);
     run.stop('test');
     const outcome = await run.done;
     expect(outcome.result.cutoff_V).toBeCloseTo(3.2, 6);

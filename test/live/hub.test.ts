@@ -77,11 +77,41 @@ describe('live hub', () => {
     for (const v of [DEMO_RUN.floor_V - 0.001, -1, Number.NaN, Number.NEGATIVE_INFINITY]) {
       const r = hub.control({ type: 'set-cutoff', cutoff_V: v });
       expect(r.ok).toBe(false);
+      // The refusal says the deliberate way to follow a datasheet: a profile made from it.
+      if (!r.ok) expect(r.error).toMatch(/chemistry profile made from it/);
     }
     expect(asked).toEqual([]);
     expect(seen).toEqual([]);
     expect(hub.control({ type: 'set-cutoff', cutoff_V: DEMO_RUN.floor_V })).toEqual({ ok: true });
     expect(asked).toEqual([{ type: 'set-cutoff', cutoff_V: DEMO_RUN.floor_V }]);
+  });
+
+  it('refuses a cutoff at or above the present voltage (it would end the run now) unless confirmed', () => {
+    // Two Li-ion cells loaded at 8.2 V: 10 V (5 V per cell typed for 4.1 V) is a slip.
+    const hub = new LiveHub();
+    hub.setRun(DEMO_RUN);
+    const asked: ControlRequest[] = [];
+    hub.onControl((c) => (asked.push(c), { ok: true }));
+    const seen = recording(hub);
+    const first = [...scriptedDischarge(1)][0]!;
+    hub.sample(first);
+    for (const v of [10, first.voltage_V]) {
+      const r = hub.control({ type: 'set-cutoff', cutoff_V: v });
+      expect(r).toMatchObject({ ok: false, error: expect.stringMatching(/would end the run now/) });
+      if (!r.ok) expect(r.error).toMatch(/--confirm/);
+    }
+    expect(asked).toEqual([]);
+    expect(hub.control({ type: 'set-cutoff', cutoff_V: 7.0 })).toEqual({ ok: true });
+    expect(hub.control({ type: 'set-cutoff', cutoff_V: 10, confirm: true })).toEqual({ ok: true });
+    expect(asked).toHaveLength(2);
+    // The change reaches viewers with who made it, in a form the schema accepts.
+    hub.cutoffChanged(7.0, 'live control');
+    const m = seen.find((x) => x.type === 'cutoff')!;
+    expect(m).toMatchObject({ cutoff_V: 7.0, by: 'live control', host_s: 0 });
+    expect(checkServerMessage(m).ok).toBe(true);
+    expect(
+      checkClientMessage({ type: 'set-cutoff', v: 1, token: 't', cutoff_V: 6, confirm: true }).ok,
+    ).toBe(true);
   });
 
   it("refuses control before a run, without a daemon handler, and after the run ended; passes on the daemon's refusal", () => {

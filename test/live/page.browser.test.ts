@@ -81,15 +81,23 @@ describe.skipIf(skip)('live page in headless Chromium', () => {
     await expect.poll(() => page.textContent('#r-elapsed')).toBe('1:39:55');
     await expect(page.textContent('#r-ttc')).resolves.toMatch(/^≈ \d/);
 
-    // Control asks for the control token, then the daemon side receives the request.
+    // Control asks for the control token, then the daemon side receives the request. 6.25 V is
+    // above the present loaded voltage, so it would end the run now: the page asks first, and a
+    // "no" sends nothing.
+    expect(last.voltage_V).toBeLessThan(6.25);
+    page.once('dialog', (d) => void d.dismiss());
     await page.fill('#cutoff-input', '6.250');
+    await page.click('#cutoff-form button[type=submit]');
+    await expect.poll(() => page.textContent('#control-reply')).toMatch(/not changed/);
+    page.once('dialog', (d) => void d.accept());
     await page.click('#cutoff-form button[type=submit]');
     await page.waitForSelector('#token-dialog[open]');
     await page.fill('#token-input', rig.tokens.control);
     await page.click('#token-ok');
     await expect.poll(() => page.textContent('#control-reply')).toMatch(/done/);
-    expect(rig.accepted).toEqual([{ type: 'set-cutoff', cutoff_V: 6.25 }]);
+    expect(rig.accepted).toEqual([{ type: 'set-cutoff', cutoff_V: 6.25, confirm: true }]);
     await expect.poll(() => page.textContent('#r-cutoff')).toBe('6.250');
+    await expect.poll(() => page.textContent('#events')).toMatch(/cutoff: 6\.250 V/);
     // A cutoff below the floor is refused in the page before it is even sent.
     await page.fill('#cutoff-input', '4');
     await page.click('#cutoff-form button[type=submit]');

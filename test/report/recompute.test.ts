@@ -115,7 +115,7 @@ describe('recompute from raw counts', () => {
     const last = f.steps.at(-1)!;
     expect(last.perCellV).toBe(3.0);
     expect(last.reached).toBe(true);
-    // The cutoff trips after the voltage has held below it for 1 s (the debounce): a few frames more.
+    // The cutoff trips once the voltage has stayed below it for 0.5 s and 3 frames: a few frames more.
     expect(last.chargeAh!).toBeLessThanOrEqual(f.result.capacity_Ah);
     expect(last.chargeAh!).toBeGreaterThan(f.result.capacity_Ah * 0.99);
     expect(f.result.midpoint_voltage_V!).toBeLessThan(reached[0]!.perCellV);

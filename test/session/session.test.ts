@@ -1,5 +1,6 @@
 import { describe, expect, it } from 'vitest';
 import { FLAG_RIG_FAULT } from '../../src/protocol/messages.js';
+import { CUTOFF_HOLD_MS } from '../../src/session/limits.js';
 import { Session } from '../../src/session/session.js';
 import { Bench, LI_ION, liIonSettings, type Reading } from './bench.js';
 
@@ -143,8 +144,8 @@ describe('session: end of discharge with debounce', () => {
     });
     const stopAt = b.run(10_000, () => b.session.state === 'stopping');
     expect(stopAt).not.toBeNull();
-    expect(stopAt! - crossAt).toBeGreaterThanOrEqual(1000);
-    expect(stopAt! - crossAt).toBeLessThanOrEqual(2000);
+    expect(stopAt! - crossAt).toBeGreaterThanOrEqual(CUTOFF_HOLD_MS);
+    expect(stopAt! - crossAt).toBeLessThanOrEqual(CUTOFF_HOLD_MS + 1000);
     expect(b.loadCommands(false)).toEqual([stopAt]);
     b.step(); // the rig reports the load off
     expect(b.end).toMatchObject({ reason: 'cutoff', loadOffConfirmed: true });

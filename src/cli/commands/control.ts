@@ -41,6 +41,11 @@ export const controlCommand: CommandModule<object, ControlArgs> = {
         describe: 'Address the daemon printed',
       })
       .option('cell', { type: 'string', describe: 'With start: what is written on the new cell' })
+      .option('confirm', {
+        type: 'boolean',
+        default: false,
+        describe: 'With cutoff: set it even at or above the present voltage (the run ends now)',
+      })
       .option('token', {
         type: 'string',
         describe: "Control token (default: this machine's, from the cellvigil folder)",
@@ -83,7 +88,11 @@ export const controlCommand: CommandModule<object, ControlArgs> = {
               'Start one first.',
             );
           // The feed takes the whole string's volts; the daemon refuses anything below the floor.
-          return { type: 'set-cutoff', cutoff_V: perCell * hello.run.cells };
+          return {
+            type: 'set-cutoff',
+            cutoff_V: perCell * hello.run.cells,
+            ...(args.confirm ? { confirm: true } : {}),
+          };
         }
       }
     };

@@ -196,10 +196,18 @@ export const runCommand: CommandModule<object, RunArgs> = {
       ...(args.cell !== undefined ? { cellId: args.cell } : {}),
       ...(args.baud !== undefined ? { baud: args.baud } : {}),
     };
+    // Ctrl-C ends the run and the program: the live page is kept up only for a run that ended
+    // by itself (or from the page), to show its result.
+    let signalled = false;
+    const noteSignal = (): void => {
+      signalled = true;
+    };
+    process.on('SIGINT', noteSignal);
+    process.on('SIGTERM', noteSignal);
     const run = await startRun(req, { out: process.stdout, err: process.stderr, signals: true });
     const outcome = await run.done;
     if (run.liveUrl !== null) {
-      if (args.once) {
+      if (args.once || signalled) {
         // A moment for viewers to receive the result before the feed goes away.
         await new Promise((r) => setTimeout(r, 500));
       } else {

@@ -273,7 +273,12 @@
   }
 
   function addEvent(e) {
-    if (e.kind === 'mark')
+    if (e.kind === 'cutoff')
+      logItem('events', e.host_s ?? latest?.host_s ?? 0, [
+        ['kind', 'cutoff: '],
+        ['', `${e.cutoff_V.toFixed(3)} V${e.by ? ` (by ${e.by})` : ''}`],
+      ]);
+    else if (e.kind === 'mark')
       logItem('events', e.host_s, [
         ['kind', 'note: '],
         ['', e.note],
@@ -534,6 +539,7 @@
       case 'cutoff':
         cutoffV = m.cutoff_V;
         if (run) run.cutoff_V = m.cutoff_V;
+        addEvent({ kind: 'cutoff', ...m });
         schedule();
         break;
       case 'result':
@@ -661,7 +667,17 @@
     if (!text || !Number.isFinite(value)) return reply('cutoff: give a number of volts', false);
     if (run && value < run.floor_V)
       return reply(`cutoff: ${value} V is below the floor of ${run.floor_V.toFixed(3)} V`, false);
-    control({ type: 'set-cutoff', cutoff_V: value }, `cutoff ${value.toFixed(3)} V`);
+    // At or above the present voltage the run would end now: a slip more often than a wish.
+    const endsNow = latest !== null && value >= latest.voltage_V;
+    if (
+      endsNow &&
+      !window.confirm(
+        `${value.toFixed(3)} V is at or above the present ${latest.voltage_V.toFixed(3)} V: the run would end now. Set it anyway?`,
+      )
+    )
+      return reply('cutoff: not changed', false);
+    const body = { type: 'set-cutoff', cutoff_V: value, ...(endsNow ? { confirm: true } : {}) };
+    control(body, `cutoff ${value.toFixed(3)} V`);
   });
 
   $('mark-form').addEventListener('submit', (ev) => {
