@@ -13,12 +13,15 @@ export interface TimedChannel {
   draw(realNowMs: number): void;
 }
 
-/** A one-channel run's own periods, kept here so a station's channel sees the same. */
+/**
+ * A one-channel run's own periods, kept here so a station's channel sees the same: a tick every
+ * 100 ms, the status every 250 ms (one pass), a flush every 1 s (4 passes), a checkpoint every
+ * 5 s (20 passes).
+ */
 const TICK_MS = 100;
-const FLUSH_EVERY_MS = 1000;
-/** Every channel's checkpoint every 5 flush passes (5 s), a fifth of the channels per pass. */
-const CHECKPOINT_EVERY_PASSES = 5;
-const STATUS_EVERY_MS = 250;
+const PASS_MS = 250;
+const FLUSH_EVERY_PASSES = 4;
+const CHECKPOINT_EVERY_PASSES = 20;
 
 interface TickGroup {
   clock: Clock;
@@ -28,10 +31,12 @@ interface TickGroup {
 
 /**
  * One set of timers for every channel of a station instead of four per channel: one tick timer
- * per clock (the simulated rigs' virtual clock, the host's for real rigs), one flush pass a
- * second writing and syncing every channel's logs, checkpoints staggered over those passes (each
- * channel still every 5 s, but a fifth of the channels per pass), one status timer. A timer
- * runs only while some channel has joined it, so an idle station holds no timer.
+ * per clock (the simulated rigs' virtual clock, the host's for real rigs) and one pass every
+ * 250 ms on the host's that redraws every status, writes and syncs a quarter of the channels'
+ * logs and checkpoints a twentieth of them. Each channel keeps a run's periods (logs synced every
+ * second, a checkpoint every 5 s), and no turn of the event loop takes the whole station's
+ * writes at once. A timer runs only while some channel has joined it, so an idle station holds
+ * no timer.
  */
 export class StationTimers {
   private readonly ticks: TickGroup[] = [];
@@ -83,11 +88,7 @@ export class StationTimers {
     const every = (ms: number, fn: () => void): void => {
       this.realHandles.push(this.real.setTimer(fn, ms, true));
     };
-    every(FLUSH_EVERY_MS, () => this.flushPass());
-    every(STATUS_EVERY_MS, () => {
-      const now = this.real.now();
-      for (const r of this.runs.keys()) r.draw(now);
-    });
+    every(PASS_MS, () => this.realPass());
   }
 
   private stopReal(): void {
@@ -95,11 +96,16 @@ export class StationTimers {
     this.realHandles = [];
   }
 
-  /** Every channel's rows written and synced; this pass's fifth of the channels checkpointed. */
-  private flushPass(): void {
+  /**
+   * Every status redrawn; the channels whose turn it is flushed (a channel's checkpoint pass is
+   * one of its flush passes, so the checkpoint follows rows already on their way to the disk).
+   */
+  private realPass(): void {
     const turn = this.pass++ % CHECKPOINT_EVERY_PASSES;
+    const now = this.real.now();
     for (const [run, place] of [...this.runs]) {
-      void run.flush();
+      run.draw(now);
+      if (place % FLUSH_EVERY_PASSES === turn % FLUSH_EVERY_PASSES) void run.flush();
       if (place === turn) run.checkpoint();
     }
   }

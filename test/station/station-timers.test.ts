@@ -39,10 +39,9 @@ describe("a station's shared timers", () => {
       expect(c.checkpoints).toHaveLength(2);
       expect(c.checkpoints[1]! - c.checkpoints[0]!).toBe(5000);
     }
-    // Ten channels over five passes: two checkpoints per pass, never all ten at once.
-    const perPass = new Map<number, number>();
-    for (const c of chans) for (const t of c.checkpoints) perPass.set(t, (perPass.get(t) ?? 0) + 1);
-    expect([...perPass.values()].every((n) => n === 2)).toBe(true);
+    // Spread over the passes: never two channels' checkpoints in one turn, nor all ten at once.
+    const at = chans.flatMap((c) => c.checkpoints);
+    expect(new Set(at).size).toBe(at.length);
   });
 
   it("tick each channel on its own clock's time (a simulated rig's virtual clock)", () => {
