@@ -53,6 +53,7 @@ export function channelRunner(o: ChannelRunnerOptions): ChannelRunner {
       { out, err: out, signals: false },
       {
         source: r.source,
+        timers: r.timers,
         ...(r.clock ? { clock: r.clock } : {}),
         ...(r.hub ? { hub: r.hub } : {}),
       },

@@ -70,13 +70,27 @@ const STATUS_EVERY_MS = 250;
 /** Repeating timers on one clock or another, cleared together when the run ends. */
 class RunTimers {
   private readonly timers: { clock: Clock; handle: TimerHandle }[] = [];
+  private readonly leaves: (() => void)[] = [];
   every(clock: Clock, ms: number, fn: () => void): void {
     this.timers.push({ clock, handle: clock.setTimer(fn, ms, true) });
+  }
+  /** Shared timers: `leave` takes the run out of them when the run's timers are cleared. */
+  onClear(leave: () => void): void {
+    this.leaves.push(leave);
   }
   clear(): void {
     for (const t of this.timers) t.clock.clearTimer(t.handle);
     this.timers.length = 0;
+    for (const leave of this.leaves.splice(0)) leave();
   }
+}
+
+/** What a station's shared timers call on a run, on the periods of the run's own timers. */
+export interface TimedRun {
+  tick(): void;
+  flush(): Promise<void>;
+  checkpoint(): void;
+  draw(realNowMs: number): void;
 }
 
 /** What a station hands a channel's run instead of letting it make its own. */
@@ -87,6 +101,8 @@ export interface RunParts {
   clock?: Clock;
   /** The channel's hub in the station's live feed, instead of a live server of the run's own. */
   hub?: LiveHub;
+  /** The station's timers, one set for all its channels (tick on `clock`, null: host time). */
+  timers?: { join(run: TimedRun, clock: Clock | null): () => void };
 }
 
 /** The run to continue, if any: `--resume`, or an unfinished run on the same port. */
@@ -171,7 +187,7 @@ export async function startRun(
     chemistries: req.chemistriesFile ?? DEFAULT_CHEMISTRIES_PATH,
     chemistryId: chemistry.id,
   });
-  startTimers(timers, run, clock, status);
+  startTimers(timers, run, clock, status, parts);
   run.begin();
   paced?.start(req.speed);
 
@@ -279,15 +295,23 @@ function startTimers(
   run: ChannelRun,
   clock: Clock,
   status: StatusPrinter,
+  parts: RunParts,
 ): void {
+  const timed: TimedRun = {
+    tick: () => run.tick(),
+    flush: () => run.flush(),
+    checkpoint: () => {
+      run.checkClock();
+      void run.writeCheckpoint();
+    },
+    draw: (nowMs) => status.draw(nowMs),
+  };
+  if (parts.timers) return timers.onClear(parts.timers.join(timed, parts.clock ?? null));
   const real = new HostClock();
-  timers.every(clock, TICK_MS, () => run.tick());
-  timers.every(real, FLUSH_EVERY_MS, () => void run.flush());
-  timers.every(real, CHECKPOINT_EVERY_MS, () => {
-    run.checkClock();
-    void run.writeCheckpoint();
-  });
-  timers.every(real, STATUS_EVERY_MS, () => status.draw(real.now()));
+  timers.every(clock, TICK_MS, timed.tick);
+  timers.every(real, FLUSH_EVERY_MS, () => void timed.flush());
+  timers.every(real, CHECKPOINT_EVERY_MS, timed.checkpoint);
+  timers.every(real, STATUS_EVERY_MS, () => timed.draw(real.now()));
 }
 
 /**

@@ -46,7 +46,7 @@ export interface SimScenario {
     voltage_gain_error: number;
     noise_counts: number;
     thermistor?: ThermistorWiring;
-    /** The thermistor reads right until this long after the rig's boot, then as `thermistor` says. */
+    /** The thermistor reads right until this long after the load first went on, then as `thermistor` says. */
     thermistor_fails_after_s?: number;
   };
   rig: {

@@ -21,7 +21,10 @@ export interface SimChannelOptions {
   frontEnd: FrontEndErrors;
   /** @default 'ok' */
   thermistor?: ThermistorWiring;
-  /** A thermistor that breaks in use: it reads right until this long after the rig's boot. */
+  /**
+   * A thermistor that breaks in use: it reads right until this long after the load first went
+   * on (a break mid-discharge, however long the host took to start it).
+   */
   thermistorFailsAfterMs?: number;
   /** Faults of this channel's own circuit (an open load, a broken sense wire). */
   circuit?: CircuitFaults;
@@ -52,6 +55,8 @@ export class SimChannel {
   readonly thermal: ThermalModel;
   point: ElectricalPoint = { currentA: 0, terminalV: 0 };
   loadOn = false;
+  /** When the load first went on, ms after the rig's boot; null until then. */
+  private firstOnMs: number | null = null;
   /** Flag bit 1: set when the rig itself cut this channel's load, cleared by the next LOAD on. */
   fault = false;
   seq = 0;
@@ -90,6 +95,7 @@ export class SimChannel {
   /** Switches the load at clock time `atMs`, `sinceBootMs` after the rig's boot. */
   switchLoad(on: boolean, cause: LoadSwitch['cause'], atMs: number, sinceBootMs: number): void {
     this.loadOn = on;
+    if (on) this.firstOnMs ??= sinceBootMs;
     this.point = this.electrical(sinceBootMs);
     this.switches.push({ atMs, on, cause });
   }
@@ -102,9 +108,10 @@ export class SimChannel {
       sense && sinceBootMs >= sense.fromMs && sinceBootMs < sense.toMs ? sense.counts : measured;
     const iRaw = this.frontEnd.current(this.point.currentA).counts;
     const tRaw = this.frontEnd.temperature(this.thermal.temperatureC).counts;
+    const after = this.opts.thermistorFailsAfterMs;
     const broken =
       (this.opts.thermistor ?? 'ok') !== 'ok' &&
-      sinceBootMs >= (this.opts.thermistorFailsAfterMs ?? 0);
+      (after === undefined || (this.firstOnMs !== null && sinceBootMs - this.firstOnMs >= after));
     return { vRaw, iRaw, tRaw: broken ? this.railCount : tRaw };
   }
 

@@ -89,7 +89,7 @@ export class LogFile {
     }
   }
 
-  /** Writes and fsyncs everything queued so far; calls are serialised. */
+  /** Writes and syncs (fdatasync) everything queued so far; calls are serialised. */
   flush(): Promise<void> {
     if (this.used > 0) {
       this.full.push(this.block.subarray(0, this.used));
@@ -188,7 +188,9 @@ export class LogFile {
     if (this.handle && pieces.every((p) => p.length === 0)) return;
     if (!this.handle) await this.openFile();
     for (const rows of pieces) await this.writePiece(rows);
-    await this.handle!.sync();
+    // fdatasync is enough for an appended file: it makes the new size durable with the rows,
+    // and skips the timestamps a full fsync would also write.
+    await this.handle!.datasync();
   }
 
   private async writePiece(rows: Buffer): Promise<void> {
@@ -207,7 +209,7 @@ export class LogFile {
       from = cut;
       // A new file starts only for a row that has to go in it.
       if (from === rows.length) break;
-      await this.handle!.sync();
+      await this.handle!.datasync();
       await this.handle!.close();
       if (this.o.compressClosed) this.compressLater(this.currentPath());
       this.index++;

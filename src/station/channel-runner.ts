@@ -1,6 +1,7 @@
 import type { Clock } from '../core/clock.js';
 import type { LiveHub } from '../live/live-hub.js';
 import type { Source } from '../sources/source.js';
+import type { StationTimers } from './station-timers.js';
 import type { ChannelPlan, RigPlan } from './station-types.js';
 
 /** Everything one channel's run needs from the station. */
@@ -19,6 +20,8 @@ export interface ChannelRunRequest {
   /** The channel's live hub, or null without a live feed. */
   hub: LiveHub | null;
   linkTimeoutS: number;
+  /** The station's timers, one set for all its channels, for the run to join. */
+  timers: StationTimers;
 }
 
 /** How a channel's run ended. */

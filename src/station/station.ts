@@ -6,6 +6,7 @@ import type { Source } from '../sources/source.js';
 import type { ChannelOutcome, ChannelRun, ChannelRunner } from './channel-runner.js';
 import { RunIndex } from './run-index.js';
 import { SharedRigLink } from './shared-link.js';
+import { StationTimers } from './station-timers.js';
 import { channelKey, type ChannelPlan, type RigPlan, type StationPlan } from './station-types.js';
 
 export interface StationOptions {
@@ -54,6 +55,7 @@ export class Station {
   private readonly rigs: Rig[] = [];
   private readonly slots = new Map<string, Slot>();
   private readonly index: RunIndex;
+  private readonly timers = new StationTimers();
   private readonly idleWaiters: Array<() => void> = [];
   private stopping = false;
 
@@ -209,6 +211,7 @@ export class Station {
         cellId: slot.cellId,
         hub: this.o.feed?.hub(slot.key) ?? null,
         linkTimeoutS: slot.rig.plan.linkTimeoutS ?? this.o.linkTimeoutS,
+        timers: this.timers,
       });
       slot.run = run;
       await this.index

@@ -148,11 +148,29 @@ describe('simulated rig with several channels, protocol v1', () => {
       clock,
     );
     clock.advance(300);
+    // A lead that breaks in use: right until 250 ms after its load first went on, the rail after.
+    h.send({ command: 'LOAD', channel: 3, on: true });
+    h.send({ command: 'BEAT' });
+    clock.advance(300);
     const m = decoded(h.lines());
-    expect(dataOf(m, 1).map((f) => f.tRaw)).toEqual([4095, 4095, 4095]);
-    expect(dataOf(m, 2).map((f) => f.tRaw)).toEqual([0, 0, 0]);
-    // A lead that breaks in use: right until then, the rail after.
-    expect(dataOf(m, 3).map((f) => f.tRaw)).toEqual([2048, 2048, 4095]);
+    expect(
+      dataOf(m, 1)
+        .slice(0, 3)
+        .map((f) => f.tRaw),
+    ).toEqual([4095, 4095, 4095]);
+    expect(
+      dataOf(m, 2)
+        .slice(0, 3)
+        .map((f) => f.tRaw),
+    ).toEqual([0, 0, 0]);
+    expect(dataOf(m, 3).map((f) => f.tRaw > 4000)).toEqual([
+      false,
+      false,
+      false,
+      false,
+      false,
+      true,
+    ]);
     // 25 °C: the NTC equals its R25, so the divider of two 10 kΩ sits at half the reference.
     expect(dataOf(m, 0)[0]!.tRaw).toBe(2048);
   });

@@ -2,6 +2,7 @@ import { describe, expect, it } from 'vitest';
 import { channelRequest } from '../../src/cli/station-runner.js';
 import type { ChannelRunRequest } from '../../src/station/channel-runner.js';
 import { parseStationFile } from '../../src/station/station-file.js';
+import { StationTimers } from '../../src/station/station-timers.js';
 
 const plan = parseStationFile(
   `rigs:\n  left:\n    port: /dev/ttyUSB0\n    profile: rigs/left.yaml\n    channels:\n      2: { chemistry: nimh, cells: 4, cutoff_V_per_cell: 1.05, calibration: cal/l2.json }\n      3: { chemistry: li-ion, label: batch-7 }\n`,
@@ -24,6 +25,7 @@ const request = (ch: number, o: Partial<ChannelRunRequest> = {}): ChannelRunRequ
   cellId: null,
   hub: null,
   linkTimeoutS: 60,
+  timers: new StationTimers(),
   ...o,
 });
 
