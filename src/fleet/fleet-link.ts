@@ -10,7 +10,13 @@ import { ChannelFeed, type FeedOutput } from './channel-feed.js';
 import { takeCommand } from './command-intake.js';
 import { Outbox, type Outgoing } from './outbox.js';
 import { FLEET_VERSION, type StationStatus } from './payloads.js';
-import { channelTopic, commandSubscription, parseTopic, stationTopic } from './topics.js';
+import {
+  channelTopic,
+  commandSubscription,
+  parseTopic,
+  SENDER_PROPERTY,
+  stationTopic,
+} from './topics.js';
 
 export interface FleetLinkChannel {
   channel: number;
@@ -76,6 +82,13 @@ function throttledLog(
     }
     if (count++ < 30) log(name, detail);
   };
+}
+
+/** The sender a command names (self-declared, so only printable text, and not much of it). */
+function senderOf(props: Record<string, string | string[]> | undefined): string {
+  const v = props?.[SENDER_PROPERTY];
+  const text = (Array.isArray(v) ? v[0] : v)?.replace(/[^\x20-\x7e]/g, '?').slice(0, 160);
+  return text ? `"${text}"` : 'a client that did not name itself';
 }
 
 /**
@@ -201,13 +214,21 @@ export function startFleetLink(o: FleetLinkOptions): FleetLink {
     slots.set(c.channel, slot);
   }
 
-  conn.client.on('message', (topic, payload) => {
+  conn.client.on('message', (topic, payload, packet) => {
     const t = parseTopic(topic);
     if (!t || t.kind !== 'command' || t.station !== o.station) return;
-    const reply = takeCommand(o.station, t.channel, payload, o.controlToken, (ch) => {
-      const slot = slots.get(ch);
-      return slot ? (c) => slot.hub.control(c) : null;
-    });
+    const from = `fleet command through broker ${o.broker.url}, from ${senderOf(packet.properties?.userProperties)}`;
+    const reply = takeCommand(
+      o.station,
+      t.channel,
+      payload,
+      o.controlToken,
+      (ch) => {
+        const slot = slots.get(ch);
+        return slot ? (c, by) => slot.hub.control(c, by) : null;
+      },
+      from,
+    );
     if (reply.ok) stats.commandsTaken++;
     else {
       stats.commandsRefused++;
