@@ -225,7 +225,12 @@ export async function startFleetServer(o: FleetServerOptions): Promise<FleetServ
   }
 
   function attachDrill(ws: WebSocket, ch: FleetChannel, remote: string | undefined): void {
-    const d = new ChannelViewer(ws, ch, o.sendCommand, `page viewer at ${remote ?? 'an unknown address'}`);
+    const d = new ChannelViewer(
+      ws,
+      ch,
+      o.sendCommand,
+      `page viewer at ${remote ?? 'an unknown address'}`,
+    );
     drills.add(d);
     ws.on('close', () => {
       drills.delete(d);

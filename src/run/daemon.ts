@@ -18,6 +18,7 @@ import { liveObserver, startLiveLink, type LiveLink } from './live-link.js';
 import type { LiveHub } from '../live/live-hub.js';
 import type { RunObserver } from './observer.js';
 import { RunRecorder } from './recorder.js';
+import { startRunHooks } from './run-hooks.js';
 import { findResumePoint, type ResumePoint } from './resume.js';
 import { RigLink } from './rig-link.js';
 import { resolveRunConfig, type RunConfig } from './run-config.js';
@@ -154,6 +155,7 @@ export async function startRun(
     startedWallMs,
     resumed: resume !== null,
   });
+  const hooks = startRunHooks(req, live?.hub ?? null, (line) => status.line(line));
   if (io.signals) handleSignals(run, status);
   watchers = watchRunFiles(run, status, {
     calibration: cfg.calibrationPath,
@@ -165,8 +167,9 @@ export async function startRun(
   run.begin();
   paced?.start(req.speed);
 
-  const done = run.done.then((end): RunOutcome => {
+  const done = run.done.then(async (end): Promise<RunOutcome> => {
     printSummary(io, end, folder, cfg.calibration !== null);
+    await hooks.ended(folder, end.result);
     return { exitCode: end.exitCode, folder, result: end.result };
   });
   return {
@@ -180,6 +183,7 @@ export async function startRun(
     addObserver: (o) => run.addObserver(o),
     liveUrl: live?.server.url ?? null,
     closeLive: async () => {
+      await hooks.close();
       await live?.server.close();
     },
   };

@@ -100,15 +100,21 @@ describe('a command from the broker', () => {
   const FROM = 'fleet command through broker mqtt://h, from "a test"';
 
   it('is refused unless it validates, names its own topic, and carries the control token', () => {
-    expect(takeCommand('s', 0, cmd({ type: 'stop', extra: 1 }), token, accept, FROM)).toMatchObject({
+    expect(takeCommand('s', 0, cmd({ type: 'stop', extra: 1 }), token, accept, FROM)).toMatchObject(
+      {
+        ok: false,
+        code: 'malformed',
+      },
+    );
+    expect(
+      takeCommand('s', 0, cmd({ type: 'stop', channel: 1 }), token, accept, FROM),
+    ).toMatchObject({
       ok: false,
       code: 'malformed',
     });
-    expect(takeCommand('s', 0, cmd({ type: 'stop', channel: 1 }), token, accept, FROM)).toMatchObject({
-      ok: false,
-      code: 'malformed',
-    });
-    expect(takeCommand('s', 0, cmd({ type: 'stop', token: 'nope' }), token, accept, FROM)).toMatchObject({
+    expect(
+      takeCommand('s', 0, cmd({ type: 'stop', token: 'nope' }), token, accept, FROM),
+    ).toMatchObject({
       ok: false,
       code: 'unauthorized',
     });
