@@ -68,8 +68,8 @@ describe('run --broker', () => {
         value: { online: false, reason: 'stopped' },
       });
       const events = readFileSync(join(folder, 'events.jsonl'), 'utf8');
-      const mark = events.split('\n').find((l) => l.includes('via broker'));
-      expect(mark).toMatch(
+      const logged = events.split('\n').find((l) => l.includes('via broker'));
+      expect(logged).toMatch(
         /"by":"fleet command through broker mqtt:\/\/127\.0\.0\.1:\d+, from a client that did not name itself \(command m1\)"/,
       );
       await watcher.endAsync();
