@@ -26,7 +26,7 @@ const TOKENS = { control: 'c'.repeat(64), viewer: 'v'.repeat(64) };
 const dir = mkdtempSync(join(tmpdir(), 'cv-fleet-registry-'));
 const registryPath = join(dir, 'lab.sqlite');
 let broker: TestBroker;
-let links: FleetLink[] = [];
+const links: FleetLink[] = [];
 const lines: string[] = [];
 
 const creds = (name: string) => broker.credentialsFile(ACCOUNTS.find((x) => x.username === name)!);
