@@ -95,8 +95,6 @@ export class ChannelViewer {
     if (this.waiting.size >= MAX_WAITING)
       return this.fail(id, 'refused', 'too many requests are waiting for the station');
     const m = checked.value;
-    if (m.type === 'start')
-      return this.fail(id, 'refused', 'a start goes to the station itself: cellvigil control');
     const wireId = randomBytes(12).toString('hex');
     const head = {
       v: 1 as const,
@@ -110,7 +108,13 @@ export class ChannelViewer {
         ? { ...head, type: 'stop' }
         : m.type === 'set-cutoff'
           ? { ...head, type: 'set-cutoff', cutoff_V: m.cutoff_V }
-          : { ...head, type: 'mark', note: m.note };
+          : m.type === 'mark'
+            ? { ...head, type: 'mark', note: m.note }
+            : {
+                ...head,
+                type: 'start',
+                ...(m.cell_id !== undefined ? { cell_id: m.cell_id } : {}),
+              };
     if (!this.send(cmd, this.from))
       return this.fail(id, 'refused', 'the fleet view is not connected to the broker');
     const timer = setTimeout(() => {

@@ -1,4 +1,4 @@
-import type { ControlReply, ControlRequest } from '../live/live-types.js';
+import type { ControlReply, StationControlRequest } from '../live/live-types.js';
 import { tokenMatches } from '../live/tokens.js';
 import { FLEET_VERSION, parsePayload, type FleetReply, type ReplyCode } from './payloads.js';
 
@@ -8,7 +8,7 @@ import { FLEET_VERSION, parsePayload, type FleetReply, type ReplyCode } from './
  */
 export type ControlTarget = (
   channel: number,
-) => ((c: ControlRequest, by: string) => ControlReply) | null;
+) => ((c: StationControlRequest, by: string) => ControlReply) | null;
 
 /**
  * A command from the broker, taken through the same gates as one from the live feed: the
@@ -55,12 +55,14 @@ export function takeCommand(
   const control = target(topicChannel);
   if (!control)
     return reply(id, m.type, 'refused', `this station has no run on channel ${topicChannel}`);
-  const request: ControlRequest =
+  const request: StationControlRequest =
     m.type === 'stop'
       ? { type: 'stop' }
       : m.type === 'set-cutoff'
         ? { type: 'set-cutoff', cutoff_V: m.cutoff_V }
-        : { type: 'mark', note: m.note };
+        : m.type === 'mark'
+          ? { type: 'mark', note: m.note }
+          : { type: 'start', ...(m.cell_id !== undefined ? { cell_id: m.cell_id } : {}) };
   const r = control(request, id !== null ? `${from} (command ${id})` : from);
   return r.ok ? reply(id, m.type, null) : reply(id, m.type, 'refused', r.error);
 }

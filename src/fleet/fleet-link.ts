@@ -3,6 +3,7 @@ import type { Clock, TimerHandle } from '../core/clock.js';
 import { HostClock } from '../core/host-clock.js';
 import { packageVersion } from '../core/paths.js';
 import type { LiveHub } from '../live/live-hub.js';
+import type { ControlReply, StationControlRequest } from '../live/live-types.js';
 import { loadTokens } from '../live/tokens.js';
 import { openBroker, type BrokerConnection } from './broker-connection.js';
 import type { BrokerConfig } from './broker-options.js';
@@ -21,6 +22,11 @@ import {
 export interface FleetLinkChannel {
   channel: number;
   hub: LiveHub;
+  /**
+   * Where the channel's requests go instead of its hub: a station's, which takes a start as
+   * well (stop, cutoff and mark still pass the hub's checks there). Without it a start is refused.
+   */
+  control?: (c: StationControlRequest, by: string) => ControlReply;
 }
 
 export interface FleetLinkOptions {
@@ -62,6 +68,7 @@ export interface FleetLink {
 interface ChannelSlot {
   feed: ChannelFeed;
   hub: LiveHub;
+  control: FleetLinkChannel['control'];
   pending: FeedOutput | null;
   lastSentMs: number;
   timer: TimerHandle | null;
@@ -82,6 +89,13 @@ function throttledLog(
     }
     if (count++ < 30) log(name, detail);
   };
+}
+
+function controlOf(slot: ChannelSlot, c: StationControlRequest, by: string): ControlReply {
+  if (slot.control) return slot.control(c, by);
+  if (c.type === 'start')
+    return { ok: false, error: 'start is for the channels of a station; this run has one' };
+  return slot.hub.control(c, by);
 }
 
 /** The sender a command names (self-declared, so only printable text, and not much of it). */
@@ -204,6 +218,7 @@ export function startFleetLink(o: FleetLinkOptions): FleetLink {
     const slot: ChannelSlot = {
       feed: new ChannelFeed(o.station, c.channel),
       hub: c.hub,
+      control: c.control,
       pending: null,
       lastSentMs: -Infinity,
       timer: null,
@@ -225,7 +240,7 @@ export function startFleetLink(o: FleetLinkOptions): FleetLink {
       o.controlToken,
       (ch) => {
         const slot = slots.get(ch);
-        return slot ? (c, by) => slot.hub.control(c, by) : null;
+        return slot ? (c, by) => controlOf(slot, c, by) : null;
       },
       from,
     );

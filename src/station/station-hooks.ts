@@ -6,6 +6,7 @@
 import { ErrorCodes, makeError } from '../core/errors.js';
 import { startFleetLink, type FleetLink, type FleetRunOptions } from '../fleet/fleet-link.js';
 import { MAX_CHANNEL } from '../fleet/topics.js';
+import type { StationControlRequest } from '../live/live-types.js';
 import type { StationFeed } from '../live/station-feed.js';
 import { loadTokens } from '../live/tokens.js';
 import { fileAtRunEnd } from '../registry/file-run.js';
@@ -39,7 +40,12 @@ export function linkStationFeed(
   numbers: Map<string, number>,
   print: (line: string) => void,
 ): FleetLink {
-  const channels = feed.keys().map((key) => ({ channel: numbers.get(key)!, hub: feed.hub(key)! }));
+  // Through the station's feed: a start reaches the station, the rest the channel's hub.
+  const channels = feed.keys().map((key) => ({
+    channel: numbers.get(key)!,
+    hub: feed.hub(key)!,
+    control: (c: StationControlRequest, by: string) => feed.control(key, c, by),
+  }));
   const map = feed
     .keys()
     .map((k) => `${k} → ch ${numbers.get(k)}`)

@@ -93,6 +93,30 @@ describe('station --broker --registry', () => {
         { qos: 1, properties: { userProperties: { [SENDER_PROPERTY]: 'a test page' } } },
       );
       await until('reply', () => of(channelTopic('bench-s', 1, 'reply')).length > 0);
+      // A start reaches the station, which refuses it while the channel's run is going; a start
+      // naming a cell id the registry could not file never gets that far.
+      const start = { v: 1, station: 'bench-s', channel: 1, type: 'start', token };
+      await watcher.publishAsync(
+        channelTopic('bench-s', 1, 'command'),
+        JSON.stringify({ ...start, cell_id: 'B-1', id: 's1' }),
+        { qos: 1 },
+      );
+      await watcher.publishAsync(
+        channelTopic('bench-s', 1, 'command'),
+        JSON.stringify({ ...start, cell_id: ' no spaces', id: 's2' }),
+        { qos: 1 },
+      );
+      await until('start replies', () => of(channelTopic('bench-s', 1, 'reply')).length >= 3);
+      const replies = of(channelTopic('bench-s', 1, 'reply')).map(
+        (p) => JSON.parse(p.toString()) as Record<string, unknown>,
+      );
+      expect(replies.find((r) => r['id'] === 's1')).toMatchObject({
+        ok: false,
+        request: 'start',
+        code: 'refused',
+        error: 'b/0 is running; stop it first',
+      });
+      expect(replies.find((r) => r['code'] === 'malformed')).toMatchObject({ ok: false });
       expect(await handle.done).toBe(0);
       for (const ch of [0, 1])
         await until(`result ch ${ch}`, () => of(channelTopic('bench-s', ch, 'result')).length > 0);

@@ -144,6 +144,18 @@ describe('a command from the broker', () => {
     expect(seen).toEqual([`${FROM} (command m7)`, FROM]);
   });
 
+  it('a start passes its cell id on, checked against the ids the registry files under', () => {
+    const got: unknown[] = [];
+    const target = () => (c: unknown) => (got.push(c), { ok: true as const });
+    takeCommand('s', 0, cmd({ type: 'start', cell_id: 'L-031' }), token, target, FROM);
+    takeCommand('s', 0, cmd({ type: 'start' }), token, target, FROM);
+    expect(got).toEqual([{ type: 'start', cell_id: 'L-031' }, { type: 'start' }]);
+    expect(
+      takeCommand('s', 0, cmd({ type: 'start', cell_id: '-dash' }), token, target, FROM),
+    ).toMatchObject({ ok: false, code: 'malformed' });
+    expect(got).toHaveLength(2);
+  });
+
   it('payloads are refused when too long or not JSON, before any parsing of their content', () => {
     expect(parsePayload('sample', Buffer.alloc(70_000, 32))).toMatchObject({ ok: false });
     expect(parsePayload('sample', Buffer.from('{'))).toMatchObject({
