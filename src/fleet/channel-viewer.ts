@@ -6,8 +6,11 @@ import { ViewerQueue } from '../live/viewer-queue.js';
 import type { FleetChannel } from './fleet-state.js';
 import type { FleetCommand, FleetReply } from './payloads.js';
 
-/** Publishes a command for a station's channel; false when the broker is not connected. */
-export type CommandSender = (c: FleetCommand) => boolean;
+/**
+ * Publishes a command for a station's channel, saying which page asked (the station logs it);
+ * false when the broker is not connected.
+ */
+export type CommandSender = (c: FleetCommand, from: string) => boolean;
 
 /** How long a forwarded command waits for the station's reply. */
 const REPLY_TIMEOUT_MS = 10_000;
@@ -30,6 +33,8 @@ export class ChannelViewer {
     readonly ws: WebSocket,
     private readonly ch: FleetChannel,
     private readonly send: CommandSender,
+    /** Who this page is, for the station's log: its viewer's address. */
+    private readonly from: string,
   ) {
     this.unsubscribe = ch.hub.subscribe((m) => this.offer(m));
     ws.on('message', (data, isBinary) => this.onMessage(data, isBinary));
@@ -90,12 +95,6 @@ export class ChannelViewer {
     if (this.waiting.size >= MAX_WAITING)
       return this.fail(id, 'refused', 'too many requests are waiting for the station');
     const m = checked.value;
-    if (m.type === 'start')
-      return this.fail(
-        id,
-        'refused',
-        "a run is started on its station (cellvigil control, or the station's own page), not through the fleet view",
-      );
     const wireId = randomBytes(12).toString('hex');
     const head = {
       v: 1 as const,
@@ -109,8 +108,14 @@ export class ChannelViewer {
         ? { ...head, type: 'stop' }
         : m.type === 'set-cutoff'
           ? { ...head, type: 'set-cutoff', cutoff_V: m.cutoff_V }
-          : { ...head, type: 'mark', note: m.note };
-    if (!this.send(cmd))
+          : m.type === 'mark'
+            ? { ...head, type: 'mark', note: m.note }
+            : {
+                ...head,
+                type: 'start',
+                ...(m.cell_id !== undefined ? { cell_id: m.cell_id } : {}),
+              };
+    if (!this.send(cmd, this.from))
       return this.fail(id, 'refused', 'the fleet view is not connected to the broker');
     const timer = setTimeout(() => {
       this.waiting.delete(wireId);

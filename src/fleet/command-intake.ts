@@ -1,9 +1,14 @@
-import type { ControlReply, ControlRequest } from '../live/live-types.js';
+import type { ControlReply, StationControlRequest } from '../live/live-types.js';
 import { tokenMatches } from '../live/tokens.js';
 import { FLEET_VERSION, parsePayload, type FleetReply, type ReplyCode } from './payloads.js';
 
-/** A control request's destination: the hub of the channel it names, if this station has one. */
-export type ControlTarget = (channel: number) => ((c: ControlRequest) => ControlReply) | null;
+/**
+ * A control request's destination: the hub of the channel it names, if this station has one.
+ * `by` says where the request came from, for the run's event log.
+ */
+export type ControlTarget = (
+  channel: number,
+) => ((c: StationControlRequest, by: string) => ControlReply) | null;
 
 /**
  * A command from the broker, taken through the same gates as one from the live feed: the
@@ -17,6 +22,8 @@ export function takeCommand(
   bytes: Buffer,
   controlToken: string | null,
   target: ControlTarget,
+  /** Where the command came from: the broker and, when it names itself, the sender. */
+  from: string,
 ): FleetReply {
   const reply = (
     id: string | null,
@@ -48,12 +55,14 @@ export function takeCommand(
   const control = target(topicChannel);
   if (!control)
     return reply(id, m.type, 'refused', `this station has no run on channel ${topicChannel}`);
-  const request: ControlRequest =
+  const request: StationControlRequest =
     m.type === 'stop'
       ? { type: 'stop' }
       : m.type === 'set-cutoff'
         ? { type: 'set-cutoff', cutoff_V: m.cutoff_V }
-        : { type: 'mark', note: m.note };
-  const r = control(request);
+        : m.type === 'mark'
+          ? { type: 'mark', note: m.note }
+          : { type: 'start', ...(m.cell_id !== undefined ? { cell_id: m.cell_id } : {}) };
+  const r = control(request, id !== null ? `${from} (command ${id})` : from);
   return r.ok ? reply(id, m.type, null) : reply(id, m.type, 'refused', r.error);
 }

@@ -3,6 +3,7 @@ import type { Clock, TimerHandle } from '../core/clock.js';
 import { HostClock } from '../core/host-clock.js';
 import { packageVersion } from '../core/paths.js';
 import type { LiveHub } from '../live/live-hub.js';
+import type { ControlReply, StationControlRequest } from '../live/live-types.js';
 import { loadTokens } from '../live/tokens.js';
 import { openBroker, type BrokerConnection } from './broker-connection.js';
 import type { BrokerConfig } from './broker-options.js';
@@ -10,11 +11,22 @@ import { ChannelFeed, type FeedOutput } from './channel-feed.js';
 import { takeCommand } from './command-intake.js';
 import { Outbox, type Outgoing } from './outbox.js';
 import { FLEET_VERSION, type StationStatus } from './payloads.js';
-import { channelTopic, commandSubscription, parseTopic, stationTopic } from './topics.js';
+import {
+  channelTopic,
+  commandSubscription,
+  parseTopic,
+  SENDER_PROPERTY,
+  stationTopic,
+} from './topics.js';
 
 export interface FleetLinkChannel {
   channel: number;
   hub: LiveHub;
+  /**
+   * Where the channel's requests go instead of its hub: a station's, which takes a start as
+   * well (stop, cutoff and mark still pass the hub's checks there). Without it a start is refused.
+   */
+  control?: (c: StationControlRequest, by: string) => ControlReply;
 }
 
 export interface FleetLinkOptions {
@@ -56,6 +68,7 @@ export interface FleetLink {
 interface ChannelSlot {
   feed: ChannelFeed;
   hub: LiveHub;
+  control: FleetLinkChannel['control'];
   pending: FeedOutput | null;
   lastSentMs: number;
   timer: TimerHandle | null;
@@ -76,6 +89,20 @@ function throttledLog(
     }
     if (count++ < 30) log(name, detail);
   };
+}
+
+function controlOf(slot: ChannelSlot, c: StationControlRequest, by: string): ControlReply {
+  if (slot.control) return slot.control(c, by);
+  if (c.type === 'start')
+    return { ok: false, error: 'start is for the channels of a station; this run has one' };
+  return slot.hub.control(c, by);
+}
+
+/** The sender a command names (self-declared, so only printable text, and not much of it). */
+function senderOf(props: Record<string, string | string[]> | undefined): string {
+  const v = props?.[SENDER_PROPERTY];
+  const text = (Array.isArray(v) ? v[0] : v)?.replace(/[^\x20-\x7e]/g, '?').slice(0, 160);
+  return text ? `"${text}"` : 'a client that did not name itself';
 }
 
 /**
@@ -191,6 +218,7 @@ export function startFleetLink(o: FleetLinkOptions): FleetLink {
     const slot: ChannelSlot = {
       feed: new ChannelFeed(o.station, c.channel),
       hub: c.hub,
+      control: c.control,
       pending: null,
       lastSentMs: -Infinity,
       timer: null,
@@ -201,13 +229,21 @@ export function startFleetLink(o: FleetLinkOptions): FleetLink {
     slots.set(c.channel, slot);
   }
 
-  conn.client.on('message', (topic, payload) => {
+  conn.client.on('message', (topic, payload, packet) => {
     const t = parseTopic(topic);
     if (!t || t.kind !== 'command' || t.station !== o.station) return;
-    const reply = takeCommand(o.station, t.channel, payload, o.controlToken, (ch) => {
-      const slot = slots.get(ch);
-      return slot ? (c) => slot.hub.control(c) : null;
-    });
+    const from = `fleet command through broker ${o.broker.url}, from ${senderOf(packet.properties?.userProperties)}`;
+    const reply = takeCommand(
+      o.station,
+      t.channel,
+      payload,
+      o.controlToken,
+      (ch) => {
+        const slot = slots.get(ch);
+        return slot ? (c, by) => controlOf(slot, c, by) : null;
+      },
+      from,
+    );
     if (reply.ok) stats.commandsTaken++;
     else {
       stats.commandsRefused++;

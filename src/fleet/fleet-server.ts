@@ -209,7 +209,7 @@ export async function startFleetServer(o: FleetServerOptions): Promise<FleetServ
         );
     }
     wss.handleUpgrade(req, socket, head, (ws) =>
-      ch ? attachDrill(ws, ch) : attachOverview(ws, socket),
+      ch ? attachDrill(ws, ch, remote) : attachOverview(ws, socket),
     );
   });
 
@@ -224,8 +224,13 @@ export async function startFleetServer(o: FleetServerOptions): Promise<FleetServ
     ws.send(JSON.stringify(snapshot()));
   }
 
-  function attachDrill(ws: WebSocket, ch: FleetChannel): void {
-    const d = new ChannelViewer(ws, ch, o.sendCommand);
+  function attachDrill(ws: WebSocket, ch: FleetChannel, remote: string | undefined): void {
+    const d = new ChannelViewer(
+      ws,
+      ch,
+      o.sendCommand,
+      `page viewer at ${remote ?? 'an unknown address'}`,
+    );
     drills.add(d);
     ws.on('close', () => {
       drills.delete(d);

@@ -4,7 +4,7 @@ import type { BrokerConfig } from './broker-options.js';
 import { startFleetServer, type FleetServer } from './fleet-server.js';
 import { FleetState } from './fleet-state.js';
 import type { FleetResult } from './payloads.js';
-import { channelTopic, FLEET_SUBSCRIPTIONS } from './topics.js';
+import { channelTopic, FLEET_SUBSCRIPTIONS, SENDER_PROPERTY } from './topics.js';
 
 /**
  * Where every result the fleet view sees goes besides the page: the seam for filing results
@@ -72,10 +72,13 @@ export async function startFleetView(o: FleetViewOptions): Promise<FleetView> {
       tokenStore: o.tokenStore,
       ...(o.origins ? { origins: o.origins } : {}),
       log,
-      sendCommand: (c) => {
+      sendCommand: (c, from) => {
         if (!conn.connected) return false;
+        // Who asked travels beside the payload (an MQTT 5 user property), for the station's log.
+        const sender = `fleet view ${String(o.broker.options.clientId)}, ${from}`;
         conn.client.publish(channelTopic(c.station, c.channel, 'command'), JSON.stringify(c), {
           qos: 1,
+          properties: { userProperties: { [SENDER_PROPERTY]: sender } },
         });
         return true;
       },

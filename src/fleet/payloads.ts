@@ -1,4 +1,5 @@
 import { Ajv, type ErrorObject, type ValidateFunction } from 'ajv';
+import { CELL_ID_PATTERN } from '../registry/run-record.js';
 import type { LiveRunInfo } from '../live/live-types.js';
 import { MAX_CHANNEL, STATION_ID_PATTERN, type ChannelKind } from './topics.js';
 
@@ -109,7 +110,13 @@ export type FleetCommand = {
   channel: number;
   token: string;
   id?: string;
-} & ({ type: 'stop' } | { type: 'set-cutoff'; cutoff_V: number } | { type: 'mark'; note: string });
+} & (
+  | { type: 'stop' }
+  | { type: 'set-cutoff'; cutoff_V: number }
+  | { type: 'mark'; note: string }
+  /** A station's channel whose run has ended takes its next run (a fresh cell). */
+  | { type: 'start'; cell_id?: string }
+);
 
 export type ReplyCode = 'malformed' | 'unauthorized' | 'refused';
 
@@ -235,13 +242,21 @@ export const FLEET_SCHEMAS = {
         },
         ['id'],
       ),
+      closed(
+        {
+          ...commandHead,
+          type: { const: 'start' },
+          cell_id: { type: 'string', pattern: CELL_ID_PATTERN.source },
+        },
+        ['id', 'cell_id'],
+      ),
     ],
   },
   reply: closed(
     {
       ...head,
       id: { oneOf: [{ type: 'null' }, id] },
-      request: { enum: ['stop', 'set-cutoff', 'mark', null] },
+      request: { enum: ['stop', 'set-cutoff', 'mark', 'start', null] },
       ok: { type: 'boolean' },
       code: { enum: ['malformed', 'unauthorized', 'refused'] },
       error: str,

@@ -43,6 +43,12 @@ export const FLEET_SUBSCRIPTIONS = [
   ...CHANNEL_KINDS.filter((k) => k !== 'command').map((k) => `${TOPIC_ROOT}/station/+/ch/+/${k}`),
 ];
 
+/**
+ * The MQTT 5 user property a command's sender names itself in (the fleet view: its client id
+ * and the page that asked). Self-declared, for the station's log; the token is the check.
+ */
+export const SENDER_PROPERTY = 'cellvigil-sender';
+
 /** The commands one station listens to, on every channel. */
 export function commandSubscription(station: string): string {
   return `${TOPIC_ROOT}/station/${station}/ch/+/command`;

@@ -150,7 +150,7 @@ export class LiveHub {
    * A control request from a viewer whose control token the server has already checked.
    * The floor is enforced here as well as in the daemon, so no path can go below it.
    */
-  control(c: ControlRequest): ControlReply {
+  control(c: ControlRequest, by?: string): ControlReply {
     if (!this.run) return { ok: false, error: 'no run is active yet' };
     if (this.resultValue) return { ok: false, error: 'the run has ended' };
     if (!this.handler) return { ok: false, error: 'the daemon takes no control requests' };
@@ -166,7 +166,7 @@ export class LiveHub {
       const endsNow = cutoffEndsRunNow(c.cutoff_V, this.latest?.voltage_V ?? null);
       if (endsNow !== null && c.confirm !== true) return { ok: false, error: endsNow };
     }
-    const reply = this.handler(c);
+    const reply = this.handler(c, by);
     if (reply.ok && c.type === 'mark') {
       const mark = { host_s: this.latest?.host_s ?? 0, note: c.note };
       this.pushEvent({ kind: 'mark', ...mark });

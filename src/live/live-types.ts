@@ -65,7 +65,8 @@ export interface StartRequest {
 /** What a station's channel takes from a viewer: a run's controls, and a start. */
 export type StationControlRequest = ControlRequest | StartRequest;
 export type ControlReply = { ok: true } | { ok: false; error: string };
-export type ControlHandler = (c: ControlRequest) => ControlReply;
+/** `by` names who asked, for the event log; the live page's own viewers leave it out. */
+export type ControlHandler = (c: ControlRequest, by?: string) => ControlReply;
 
 /** Columns of a history point, in order. */
 export const HISTORY_FIELDS = [

@@ -9,7 +9,11 @@ import {
 } from './live-types.js';
 
 /** A station's handler of viewers' requests, per channel (a start included). */
-export type StationControlHandler = (channel: string, c: StationControlRequest) => ControlReply;
+export type StationControlHandler = (
+  channel: string,
+  c: StationControlRequest,
+  by?: string,
+) => ControlReply;
 
 interface Entry {
   rig: string;
@@ -39,7 +43,7 @@ export class StationFeed {
       for (const l of this.listeners) l(m);
     });
     // A viewer's run controls reach the station's handler, after the hub's own checks (the floor).
-    hub.onControl((c) => this.route(key, c));
+    hub.onControl((c, by) => this.route(key, c, by));
     this.entries.set(key, { rig, ch, hub, cellId });
     return hub;
   }
@@ -68,11 +72,11 @@ export class StationFeed {
    * mark go through the channel's hub, which refuses a cutoff below the floor before asking;
    * a start goes straight to the station, which refuses it while a run is going.
    */
-  control(key: string, c: StationControlRequest): ControlReply {
+  control(key: string, c: StationControlRequest, by?: string): ControlReply {
     const e = this.entries.get(key);
     if (!e) return { ok: false, error: `there is no channel ${key} in this station` };
-    if (c.type === 'start') return this.route(key, c);
-    return e.hub.control(c);
+    if (c.type === 'start') return this.route(key, c, by);
+    return e.hub.control(c, by);
   }
 
   /** Every channel's broadcast messages, each carrying its channel. */
@@ -98,8 +102,8 @@ export class StationFeed {
     return { type: 'station', v: LIVE_VERSION, channels };
   }
 
-  private route(key: string, c: StationControlRequest): ControlReply {
+  private route(key: string, c: StationControlRequest, by?: string): ControlReply {
     if (!this.handler) return { ok: false, error: 'the daemon takes no control requests' };
-    return this.handler(key, c);
+    return this.handler(key, c, by);
   }
 }

@@ -225,12 +225,15 @@ export function resultPath(folder: string): string {
 /** result.json, or null when the run has none (it was interrupted). */
 export async function readResultFile(path: string): Promise<RunResult | null> {
   const text = await readOptional(path);
-  return text === null
-    ? null
-    : parseChecked<RunResult>(
-        text,
-        path,
-        validate,
-        'Move the damaged file aside; `cellvigil report` then writes a new result.json from the raw counts.',
-      );
+  return text === null ? null : parseResult(text, path);
+}
+
+/** A result.json's text, from its file or a copy of it (a broker's), checked as the file is. */
+export function parseResult(text: string, where: string): RunResult {
+  return parseChecked<RunResult>(
+    text,
+    where,
+    validate,
+    'Move the damaged file aside; `cellvigil report` then writes a new result.json from the raw counts.',
+  );
 }

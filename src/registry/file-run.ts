@@ -90,6 +90,24 @@ export function describeFiling(o: FileOutcome, registryPath: string): string {
     case 'skipped':
       return `not filed in the registry: ${o.reason}`;
     case 'failed':
-      return `not filed in the registry (${o.code}): ${o.message}`;
+      return `not filed in the registry (${o.code}): ${o.message}; the run folder keeps the result, and \`cellvigil cells rebuild\` files it later`;
   }
+}
+
+/**
+ * A run's end, as a daemon or a station sees it once result.json is written: a run with a cell
+ * id is filed, and what happened is printed (filed, skipped and why, or failed and why). A run
+ * without a cell id has nothing to be filed under and is left alone, silently. Never throws.
+ */
+export async function fileAtRunEnd(
+  registryPath: string,
+  runFolder: string,
+  cellId: unknown,
+  print: (line: string) => void,
+  options: FileRunOptions = {},
+): Promise<FileOutcome | null> {
+  if (typeof cellId !== 'string' || cellId === '') return null;
+  const outcome = await fileRunResult(registryPath, runFolder, options);
+  print(describeFiling(outcome, registryPath));
+  return outcome;
 }

@@ -2,11 +2,11 @@
  * The one place the registry reads a run folder: its result.json, and its manifest.json when the
  * result does not carry the cell id. Everything else in the registry sees only the outcome.
  */
-import { readFile } from 'node:fs/promises';
 import { basename, join } from 'node:path';
 import { CellvigilError } from '../core/errors.js';
-import { readResultFile } from '../record/result.js';
-import { parseManifest } from '../record/manifest.js';
+import { readOptional } from '../record/json-file.js';
+import { MANIFEST_FILE, parseManifest } from '../record/manifest.js';
+import { readResultFile, resultPath } from '../record/result.js';
 import { recordFromResult, type ResultFigures, type RunRecord } from './run-record.js';
 
 export type RunSourceOutcome =
@@ -21,13 +21,9 @@ export type RunSourceOutcome =
 async function manifestKeys(
   dir: string,
 ): Promise<{ cell_id?: string; started_wall?: string } | null> {
-  const path = join(dir, 'manifest.json');
-  let text: string;
-  try {
-    text = await readFile(path, 'utf8');
-  } catch {
-    return null;
-  }
+  const path = join(dir, MANIFEST_FILE);
+  const text = await readOptional(path);
+  if (text === null) return null;
   const manifest = parseManifest(text, path) as { cell_id?: unknown; started_wall: string };
   return typeof manifest.cell_id === 'string'
     ? { cell_id: manifest.cell_id, started_wall: manifest.started_wall }
@@ -37,7 +33,7 @@ async function manifestKeys(
 /** Reads one run folder for the registry; never throws. */
 export async function readRunForRegistry(dir: string): Promise<RunSourceOutcome> {
   try {
-    const result = (await readResultFile(join(dir, 'result.json'))) as ResultFigures | null;
+    const result = (await readResultFile(resultPath(dir))) as ResultFigures | null;
     if (result === null) return { kind: 'unfinished' };
     const manifest =
       typeof result.cell_id === 'string' && typeof result.started_wall === 'string'

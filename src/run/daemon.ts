@@ -20,6 +20,7 @@ import { liveObserver, startLiveLink, type LiveLink } from './live-link.js';
 import type { LiveHub } from '../live/live-hub.js';
 import type { RunObserver } from './observer.js';
 import { RunRecorder } from './recorder.js';
+import { startRunHooks } from './run-hooks.js';
 import { findResumePoint, type ResumePoint } from './resume.js';
 import { RigLink } from './rig-link.js';
 import { resolveRunConfig, type RunConfig } from './run-config.js';
@@ -180,6 +181,7 @@ export async function startRun(
   });
   // Only now: a port that fails to open leaves no folder behind to point to.
   if (!run.isEnded) status.line(`Run folder: ${folder}`);
+  const hooks = startRunHooks(req, live?.hub ?? null, (line) => status.line(line));
   if (io.signals) handleSignals(run, status);
   watchers = watchRunFiles(run, status, {
     calibration: cfg.calibrationPath,
@@ -205,6 +207,7 @@ export async function startRun(
     const removed =
       dropRefused && end.result.end_reason === 'refused' && (await removeFolder(folder));
     printSummary(io, end, folder, cfg.calibration !== null, !removed);
+    if (!removed) await hooks.ended(folder, end.result);
     return { exitCode: end.exitCode, folder, result: end.result };
   });
   return {
@@ -218,6 +221,7 @@ export async function startRun(
     addObserver: (o) => run.addObserver(o),
     liveUrl: live?.server.url ?? null,
     closeLive: async () => {
+      await hooks.close();
       await live?.server.close();
     },
   };

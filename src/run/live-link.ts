@@ -67,6 +67,8 @@ export function toLiveSample(row: SampleRow, loadOn: boolean): LiveSample {
 
 export interface LiveLink {
   server: LiveServer;
+  /** The run's hub: what the fleet link publishes. */
+  hub: LiveHub;
   observer: RunObserver;
 }
 
@@ -74,15 +76,16 @@ export async function startLiveLink(o: LiveLinkOptions): Promise<LiveLink> {
   const tokens = loadTokens();
   const hub = new LiveHub({ channel: String(o.channel) });
   hub.setRun(o.info);
-  hub.onControl((c) => {
+  // A request relayed from elsewhere (the broker) says who asked; the page's own say nothing.
+  hub.onControl((c, by = 'live control') => {
     switch (c.type) {
       case 'stop':
-        o.stop('live control');
+        o.stop(by);
         return { ok: true };
       case 'set-cutoff':
-        return o.setCutoff(c.cutoff_V, 'live control');
+        return o.setCutoff(c.cutoff_V, by);
       case 'mark':
-        return o.mark(c.note, 'live control');
+        return o.mark(c.note, by);
     }
   });
   const server = await startLiveServer({
@@ -101,7 +104,7 @@ export async function startLiveLink(o: LiveLinkOptions): Promise<LiveLink> {
     o.print(`  control token (stop, set-cutoff, mark): ${tokens.tokens.control}`);
     o.print(`  viewer token (watching from another machine): ${tokens.tokens.viewer}`);
   }
-  return { server, observer: liveObserver(hub) };
+  return { server, hub, observer: liveObserver(hub) };
 }
 
 /** What a run tells a hub: its samples (the newest of each turn), alarms, cutoff and result. */

@@ -1,5 +1,7 @@
-/** What the user asked `run` for, as the CLI parsed it. */
-export interface RunRequest {
+import type { FleetRunRequest } from '../fleet/fleet-link.js';
+
+/** What the user asked `run` for, as the CLI parsed it (`fleet`: what `--broker …` resolved). */
+export interface RunRequest extends FleetRunRequest {
   /** Serial device path (a real rig or a pseudo-terminal). */
   port?: string;
   /** Simulated-rig scenario name (config/sim-scenarios.yaml). */
@@ -35,6 +37,8 @@ export interface RunRequest {
   channel: number;
   /** What is written on the cell (free text); kept in the manifest and the result. */
   cellId?: string;
+  /** The cell registry a finished run with a cell id is filed in; absent: not filed. */
+  registry?: string;
 }
 
 export const DEFAULT_ROTATE_BYTES = 16 * 1024 * 1024;

@@ -16,7 +16,10 @@ import {
 import { SerialSource } from '../sources/serial-source.js';
 import { SimSource } from '../sources/sim-source.js';
 import type { Source } from '../sources/source.js';
+import type { FleetLink, FleetRunOptions } from '../fleet/fleet-link.js';
 import type { ChannelRunner } from './channel-runner.js';
+import { defaultRegistryPath } from '../registry/registry-path.js';
+import { filingRunner, fleetChannels, linkStationFeed } from './station-hooks.js';
 import { checkStationPlan } from './station-check.js';
 import { loadStationFile } from './station-file.js';
 import type { RigPlan, StationPlan } from './station-types.js';
@@ -37,6 +40,13 @@ export interface StationRequest {
   fresh: boolean;
   linkTimeoutS: number;
   chemistriesFile?: string;
+  /**
+   * The cell registry each finished run with a cell id is filed in: a file, or null for the
+   * default beside the station's runs folder; absent: not filed.
+   */
+  registry?: string | null;
+  /** What `--broker …` resolved: every channel is published there. Needs the live feed. */
+  fleet?: FleetRunOptions;
 }
 
 export interface StationIo {
@@ -127,11 +137,16 @@ export async function startStation(
   const fromFile = plan.listen === undefined ? DEFAULT_LISTEN : plan.listen;
   const listen = req.listen !== undefined ? req.listen : fromFile;
   const feed = listen !== null ? new StationFeed() : null;
+  const numbers = req.fleet ? fleetChannels(plan) : null;
+  if (req.fleet && !feed) throw noFeedForBroker(plan.file);
   const station = new Station({
     plan,
     name: basename(plan.file, extname(plan.file)),
     runs: plan.runs ?? req.runs,
-    runner,
+    runner:
+      req.registry !== undefined
+        ? filingRunner(runner, req.registry ?? defaultRegistryPath(plan.runs ?? req.runs), io.print)
+        : runner,
     makeSource: await rigSources(plan, paced),
     clock: paced,
     feed,
@@ -140,9 +155,12 @@ export async function startStation(
     print: io.print,
   });
   const server = feed && listen !== null ? await startFeed(feed, listen, io) : null;
+  const fleet =
+    req.fleet && feed && numbers ? linkStationFeed(req.fleet, feed, numbers, io.print) : null;
   try {
     await station.start();
   } catch (e) {
+    await fleet?.close();
     await server?.close();
     await station.close();
     throw makeError(
@@ -153,13 +171,19 @@ export async function startStation(
     );
   }
   paced?.start(req.speed);
-  return ending(station, { paced, server, req, io });
+  return ending(station, { paced, server, fleet, req, io });
 }
 
 /** Stopping: every channel finished, the rigs and the feed closed, on a signal or with --once. */
 function ending(
   station: Station,
-  o: { paced: PacedClock | null; server: LiveServer | null; req: StationRequest; io: StationIo },
+  o: {
+    paced: PacedClock | null;
+    server: LiveServer | null;
+    fleet: FleetLink | null;
+    req: StationRequest;
+    io: StationIo;
+  },
 ): StationHandle {
   let finished!: (code: number) => void;
   const done = new Promise<number>((resolve) => (finished = resolve));
@@ -171,6 +195,7 @@ function ending(
       await station.close();
       // A moment for viewers to receive the last results before the feed goes away.
       if (o.server) await new Promise((r) => setTimeout(r, 300));
+      await o.fleet?.close();
       await o.server?.close();
       process.off('SIGINT', onSignal);
       process.off('SIGTERM', onSignal);
@@ -195,6 +220,15 @@ function ending(
   }
   if (o.req.once) void station.whenIdle().then(() => stop('every channel has ended (--once)'));
   return { station, liveUrl: o.server?.url ?? null, done, stop };
+}
+
+function noFeedForBroker(file: string): Error {
+  return makeError(
+    ErrorCodes.USAGE,
+    'the broker is given what the live feed shows, and the live feed is off',
+    file,
+    'Drop --no-live (or `listen: off` in the station file) to publish to the broker.',
+  );
 }
 
 async function startFeed(feed: StationFeed, listen: string, io: StationIo): Promise<LiveServer> {

@@ -78,7 +78,7 @@ export class Station {
         o.feed?.add(plan.name, c.channel, c.cellId);
       }
     }
-    o.feed?.onControl((key, c) => this.control(key, c, 'live control'));
+    o.feed?.onControl((key, c, by) => this.control(key, c, by ?? 'live control'));
   }
 
   /** Channel keys in rig and channel order. */

@@ -1,9 +1,8 @@
 /**
  * `cellvigil run --broker …` end to end: the real daemon on the simulated rig publishes to a
  * real Mosquitto, takes a mark through the broker with its control token, and says goodbye with
- * a retained offline status. Skipped until the daemon starts the link (src/run is being
- * rewritten; the call is one line after the live link starts: see docs/fleet.md's "For the
- * daemon"). Remove `.skip` when it lands.
+ * a retained offline status. The mark lands in the run's event log saying it came through the
+ * broker, not from the live page.
  */
 import { spawn } from 'node:child_process';
 import { existsSync, mkdtempSync, readdirSync, readFileSync } from 'node:fs';
@@ -18,7 +17,7 @@ import { startBroker } from './mosquitto.js';
 
 const CLI = fileURLToPath(new URL('../../dist/cli/main.js', import.meta.url));
 
-describe.skip('run --broker', () => {
+describe('run --broker', () => {
   it('publishes the run, takes a broker command with the token, and goes offline when done', async () => {
     expect(existsSync(CLI), 'build first: npm run build').toBe(true);
     const broker = await startBroker([
@@ -68,7 +67,11 @@ describe.skip('run --broker', () => {
         ok: true,
         value: { online: false, reason: 'stopped' },
       });
-      expect(readFileSync(join(folder, 'events.jsonl'), 'utf8')).toContain('via broker');
+      const events = readFileSync(join(folder, 'events.jsonl'), 'utf8');
+      const logged = events.split('\n').find((l) => l.includes('via broker'));
+      expect(logged).toMatch(
+        /"by":"fleet command through broker mqtt:\/\/127\.0\.0\.1:\d+, from a client that did not name itself \(command m1\)"/,
+      );
       await watcher.endAsync();
     } finally {
       await broker.stop();

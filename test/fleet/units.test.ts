@@ -97,29 +97,36 @@ describe('a command from the broker', () => {
   const cmd = (x: Record<string, unknown>) =>
     Buffer.from(JSON.stringify({ v: 1, station: 's', channel: 0, token, ...x }));
   const accept = () => () => ({ ok: true }) as const;
+  const FROM = 'fleet command through broker mqtt://h, from "a test"';
 
   it('is refused unless it validates, names its own topic, and carries the control token', () => {
-    expect(takeCommand('s', 0, cmd({ type: 'stop', extra: 1 }), token, accept)).toMatchObject({
+    expect(takeCommand('s', 0, cmd({ type: 'stop', extra: 1 }), token, accept, FROM)).toMatchObject(
+      {
+        ok: false,
+        code: 'malformed',
+      },
+    );
+    expect(
+      takeCommand('s', 0, cmd({ type: 'stop', channel: 1 }), token, accept, FROM),
+    ).toMatchObject({
       ok: false,
       code: 'malformed',
     });
-    expect(takeCommand('s', 0, cmd({ type: 'stop', channel: 1 }), token, accept)).toMatchObject({
-      ok: false,
-      code: 'malformed',
-    });
-    expect(takeCommand('s', 0, cmd({ type: 'stop', token: 'nope' }), token, accept)).toMatchObject({
+    expect(
+      takeCommand('s', 0, cmd({ type: 'stop', token: 'nope' }), token, accept, FROM),
+    ).toMatchObject({
       ok: false,
       code: 'unauthorized',
     });
-    expect(takeCommand('s', 0, cmd({ type: 'stop' }), null, accept)).toMatchObject({
+    expect(takeCommand('s', 0, cmd({ type: 'stop' }), null, accept, FROM)).toMatchObject({
       ok: false,
       code: 'unauthorized',
     });
-    expect(takeCommand('s', 0, cmd({ type: 'stop' }), token, () => null)).toMatchObject({
+    expect(takeCommand('s', 0, cmd({ type: 'stop' }), token, () => null, FROM)).toMatchObject({
       ok: false,
       code: 'refused',
     });
-    expect(takeCommand('s', 0, cmd({ type: 'stop', id: 'i' }), token, accept)).toEqual({
+    expect(takeCommand('s', 0, cmd({ type: 'stop', id: 'i' }), token, accept, FROM)).toEqual({
       v: 1,
       station: 's',
       channel: 0,
@@ -127,6 +134,26 @@ describe('a command from the broker', () => {
       request: 'stop',
       ok: true,
     });
+  });
+
+  it('reaches the run saying where it came from: the broker, the sender and the command id', () => {
+    const seen: string[] = [];
+    const target = () => (_c: unknown, by: string) => (seen.push(by), { ok: true as const });
+    takeCommand('s', 0, cmd({ type: 'mark', note: 'n', id: 'm7' }), token, target, FROM);
+    takeCommand('s', 0, cmd({ type: 'stop' }), token, target, FROM);
+    expect(seen).toEqual([`${FROM} (command m7)`, FROM]);
+  });
+
+  it('a start passes its cell id on, checked against the ids the registry files under', () => {
+    const got: unknown[] = [];
+    const target = () => (c: unknown) => (got.push(c), { ok: true as const });
+    takeCommand('s', 0, cmd({ type: 'start', cell_id: 'L-031' }), token, target, FROM);
+    takeCommand('s', 0, cmd({ type: 'start' }), token, target, FROM);
+    expect(got).toEqual([{ type: 'start', cell_id: 'L-031' }, { type: 'start' }]);
+    expect(
+      takeCommand('s', 0, cmd({ type: 'start', cell_id: '-dash' }), token, target, FROM),
+    ).toMatchObject({ ok: false, code: 'malformed' });
+    expect(got).toHaveLength(2);
   });
 
   it('payloads are refused when too long or not JSON, before any parsing of their content', () => {

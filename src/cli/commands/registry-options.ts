@@ -12,6 +12,13 @@ export interface RegistryArgs {
   grades: string;
 }
 
+/** `--registry`, as every command that reads or files into the registry takes it. */
+export const registryOption = {
+  type: 'string',
+  describe: 'The cell registry database file (a run with a cell id is filed in it as it ends)',
+  defaultDescription: '<beside --runs>/cellvigil-registry.sqlite',
+} as const;
+
 export function withRegistryOptions<T>(y: Argv<T>): Argv<T & RegistryArgs> {
   return y
     .option('runs', {
@@ -20,11 +27,7 @@ export function withRegistryOptions<T>(y: Argv<T>): Argv<T & RegistryArgs> {
       describe:
         'The folder of run folders (the registry lives beside it unless --registry is given)',
     })
-    .option('registry', {
-      type: 'string',
-      describe: 'The registry database file',
-      defaultDescription: '<beside --runs>/cellvigil-registry.sqlite',
-    })
+    .option('registry', registryOption)
     .option('grades', {
       type: 'string',
       default: DEFAULT_GRADES_FILE,

@@ -2,7 +2,9 @@ import type { Argv, CommandModule } from 'yargs';
 import { brokerOptions, brokerRequest, type BrokerArgs } from '../../fleet/broker-args.js';
 import { checkStationId, defaultStationId, resolveBroker } from '../../fleet/broker-options.js';
 import type { FleetRunRequest } from '../../fleet/fleet-link.js';
+import { defaultRegistryPath } from '../../registry/registry-path.js';
 import { startRun } from '../../run/daemon.js';
+import { registryOption } from './registry-options.js';
 import { DEFAULT_LISTEN, DEFAULT_ROTATE_BYTES, type RunRequest } from '../../run/run-request.js';
 
 interface RunArgs extends BrokerArgs {
@@ -20,6 +22,7 @@ interface RunArgs extends BrokerArgs {
   label: string | undefined;
   cell: string | undefined;
   runs: string;
+  registry: string | undefined;
   listen: string;
   live: boolean;
   once: boolean;
@@ -83,6 +86,7 @@ function runOptions<T>(y: Argv<T>) {
       default: 'runs',
       describe: 'Folder that holds the run folders',
     })
+    .option('registry', registryOption)
     .option('listen', {
       type: 'string',
       default: DEFAULT_LISTEN,
@@ -174,6 +178,7 @@ export const runCommand: CommandModule<object, RunArgs> = {
       ...fleet,
       speed: args.speed,
       runs: args.runs,
+      registry: args.registry ?? defaultRegistryPath(args.runs),
       listen: args.live ? args.listen : null,
       once: args.once,
       channel: args.channel,

@@ -1,11 +1,19 @@
 import type { CommandModule } from 'yargs';
+import {
+  checkPublishArgs,
+  publishOptions,
+  resolvePublishing,
+  type PublishArgs,
+} from '../../fleet/broker-args.js';
+import { registryOption } from './registry-options.js';
 import { DEFAULT_ROTATE_BYTES } from '../../run/run-request.js';
 import { channelRunner } from '../station-runner.js';
 import { startStation, type StationRequest } from '../../station/station-daemon.js';
 
-interface StationArgs {
+interface StationArgs extends PublishArgs {
   file: string;
   runs: string;
+  registry: string | undefined;
   listen: string | undefined;
   live: boolean;
   speed: number;
@@ -66,12 +74,17 @@ export const stationCommand: CommandModule<object, StationArgs> = {
         default: DEFAULT_ROTATE_BYTES / 1048576,
         describe: 'Start a new sample file after this many MiB',
       })
-      .option('chemistries-file', { type: 'string', describe: 'Chemistry profiles to use' }),
+      .option('chemistries-file', { type: 'string', describe: 'Chemistry profiles to use' })
+      .option('registry', registryOption)
+      .options(publishOptions())
+      .check((a) => checkPublishArgs(a)),
   handler: async (args) => {
     const print = (line: string): boolean => process.stdout.write(`${line}\n`);
     const req: StationRequest = {
+      ...resolvePublishing(args),
       file: args.file,
       runs: args.runs,
+      registry: args.registry ?? null,
       listen: args.live ? args.listen : null,
       speed: args.speed,
       once: args.once,
