@@ -61,7 +61,7 @@ export class ChannelFeed {
         this.snapshot(m, wallMs);
         return null;
       case 'sample': {
-        const { type: _t, v: _v, ...s } = m;
+        const { type: _t, v: _v, channel: _c, ...s } = m;
         const sample: FleetSample = { ...this.head(), made_ms: wallMs, ...s };
         this.last = sample;
         this.state = m.state;
