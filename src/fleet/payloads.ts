@@ -1,5 +1,6 @@
 import { Ajv, type ErrorObject, type ValidateFunction } from 'ajv';
-import type { LiveRunInfo } from '../live/live-types.js';
+import type { LiveRunInfo, LiveSample } from '../live/live-types.js';
+import { SAMPLE_FIELDS } from '../live/message-schemas.js';
 import { MAX_CHANNEL, STATION_ID_PATTERN, type ChannelKind } from './topics.js';
 
 /**
@@ -56,20 +57,12 @@ export interface ChannelStatus {
   last_alarm: LastAlarm | null;
 }
 
-export interface FleetSample {
+export interface FleetSample extends LiveSample {
   v: typeof FLEET_VERSION;
   station: string;
   channel: number;
   /** When the station's live feed had the sample, Unix milliseconds of the station's clock. */
   made_ms: number;
-  host_s: number;
-  voltage_V: number;
-  current_A: number;
-  temperature_C: number | null;
-  charge_Ah: number;
-  energy_Wh: number;
-  state: string;
-  load_on: boolean;
   time_to_cutoff_s: number | null;
 }
 
@@ -206,17 +199,12 @@ export const FLEET_SCHEMAS = {
       oneOf: [{ type: 'null' }, closed({ host_s: num, kind: str, detail: str })],
     },
   }),
+  // The live feed's sample fields, with the state's text bounded as every fleet text is.
   sample: closed({
     ...head,
     made_ms: num,
-    host_s: num,
-    voltage_V: num,
-    current_A: num,
-    temperature_C: numOrNull,
-    charge_Ah: num,
-    energy_Wh: num,
+    ...SAMPLE_FIELDS,
     state: str,
-    load_on: { type: 'boolean' },
     time_to_cutoff_s: numOrNull,
   }),
   state: closed({ ...eventHead, from: str, to: str, why: str }),

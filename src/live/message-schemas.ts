@@ -30,7 +30,8 @@ function message(
   };
 }
 
-const sampleFields = {
+/** A sample's measured fields, shared with the fleet's sample payload. */
+export const SAMPLE_FIELDS = {
   host_s: num,
   voltage_V: num,
   current_A: num,
@@ -40,6 +41,7 @@ const sampleFields = {
   state: str,
   load_on: { type: 'boolean' },
 } as const;
+const sampleFields = SAMPLE_FIELDS;
 const sampleRequired = Object.keys(sampleFields);
 
 const runInfo = {
