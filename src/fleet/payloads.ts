@@ -1,6 +1,6 @@
 import { Ajv, type ErrorObject, type ValidateFunction } from 'ajv';
 import type { LiveRunInfo, LiveSample } from '../live/live-types.js';
-import { SAMPLE_FIELDS } from '../live/message-schemas.js';
+import { runInfoFields, SAMPLE_FIELDS } from '../live/message-schemas.js';
 import { MAX_CHANNEL, STATION_ID_PATTERN, type ChannelKind } from './topics.js';
 
 /**
@@ -148,19 +148,7 @@ function closed(properties: Record<string, unknown>, optional: string[] = []) {
 const head = { v: { const: FLEET_VERSION }, station, channel } as const;
 const eventHead = { ...head, wall, host_s: num } as const;
 
-const runInfo = closed({
-  run_id: str,
-  label: str,
-  run_folder: str,
-  chemistry: str,
-  cells: { type: 'integer', minimum: 1 },
-  cutoff_V: num,
-  floor_V: num,
-  calibration_id: str,
-  started_wall: wall,
-  source: str,
-  max_temperature_C: num,
-});
+const runInfo = closed({ run_id: str, ...runInfoFields(str, wall) });
 
 const commandHead = { ...head, token: { type: 'string', minLength: 1, maxLength: 256 }, id };
 

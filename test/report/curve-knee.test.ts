@@ -18,7 +18,7 @@ const CUTOFF = 3.0;
 const volts = (q: number): number => V0 - a * q - b * Math.exp((q - Q) / w);
 const KNEE_AH = Q + w * Math.log((9 * a * w) / b);
 
-function plotted(noiseV: number): Array<readonly [number, number]> {
+function plotted(noiseV: number): ReadonlyArray<readonly [number, number]> {
   const curve = new CurveBuilder();
   for (let i = 0; ; i++) {
     const q = (3 * i * 0.1) / 3600;
