@@ -1,7 +1,7 @@
 import { randomBytes } from 'node:crypto';
 import { WebSocket, type RawData } from 'ws';
 import { LIVE_VERSION, type LiveErrorCode, type ServerMessage } from '../live/live-types.js';
-import { checkClientMessage } from '../live/message-schemas.js';
+import { readControl } from '../live/control-intake.js';
 import { ViewerQueue } from '../live/viewer-queue.js';
 import type { FleetChannel } from './fleet-state.js';
 import type { FleetCommand, FleetReply } from './payloads.js';
@@ -81,40 +81,20 @@ export class ChannelViewer {
   }
 
   private onMessage(data: RawData, isBinary: boolean): void {
-    if (isBinary) return this.fail(null, 'malformed', 'messages are JSON text');
-    let parsed: unknown;
-    try {
-      parsed = JSON.parse(data.toString());
-    } catch {
-      return this.fail(null, 'malformed', 'the message is not JSON');
-    }
-    const rawId = (parsed as { id?: unknown } | null)?.id;
-    const id = typeof rawId === 'string' && rawId.length <= 64 ? rawId : null;
-    const checked = checkClientMessage(parsed);
-    if (!checked.ok) return this.fail(id, 'malformed', checked.error);
+    const m = readControl(data, isBinary);
+    if (!m.ok) return this.fail(m.id, m.code, m.error);
+    const id = m.id;
     if (this.waiting.size >= MAX_WAITING)
       return this.fail(id, 'refused', 'too many requests are waiting for the station');
-    const m = checked.value;
     const wireId = randomBytes(12).toString('hex');
     const head = {
       v: 1 as const,
       station: this.ch.station,
       channel: this.ch.channel,
-      token: m.token,
+      token: m.message.token,
       id: wireId,
     };
-    const cmd: FleetCommand =
-      m.type === 'stop'
-        ? { ...head, type: 'stop' }
-        : m.type === 'set-cutoff'
-          ? { ...head, type: 'set-cutoff', cutoff_V: m.cutoff_V }
-          : m.type === 'mark'
-            ? { ...head, type: 'mark', note: m.note }
-            : {
-                ...head,
-                type: 'start',
-                ...(m.cell_id !== undefined ? { cell_id: m.cell_id } : {}),
-              };
+    const cmd: FleetCommand = { ...head, ...m.request };
     if (!this.send(cmd, this.from))
       return this.fail(id, 'refused', 'the fleet view is not connected to the broker');
     const timer = setTimeout(() => {

@@ -59,7 +59,11 @@ export function takeCommand(
     m.type === 'stop'
       ? { type: 'stop' }
       : m.type === 'set-cutoff'
-        ? { type: 'set-cutoff', cutoff_V: m.cutoff_V }
+        ? {
+            type: 'set-cutoff',
+            cutoff_V: m.cutoff_V,
+            ...(m.confirm === true ? { confirm: true } : {}),
+          }
         : m.type === 'mark'
           ? { type: 'mark', note: m.note }
           : { type: 'start', ...(m.cell_id !== undefined ? { cell_id: m.cell_id } : {}) };

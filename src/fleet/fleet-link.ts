@@ -75,6 +75,20 @@ interface ChannelSlot {
   unsubscribe: () => void;
 }
 
+function controlOf(slot: ChannelSlot, c: StationControlRequest, by: string): ControlReply {
+  if (slot.control) return slot.control(c, by);
+  if (c.type === 'start')
+    return { ok: false, error: 'start is for the channels of a station; this run has one' };
+  return slot.hub.control(c, by);
+}
+
+/** The sender a command names (self-declared, so only printable text, and not much of it). */
+function senderOf(props: Record<string, string | string[]> | undefined): string {
+  const v = props?.[SENDER_PROPERTY];
+  const text = (Array.isArray(v) ? v[0] : v)?.replace(/[^\x20-\x7e]/g, '?').slice(0, 160);
+  return text ? `"${text}"` : 'a client that did not name itself';
+}
+
 function throttledLog(
   log: FleetLinkOptions['log'],
   clock: Clock,
@@ -91,20 +105,6 @@ function throttledLog(
   };
 }
 
-function controlOf(slot: ChannelSlot, c: StationControlRequest, by: string): ControlReply {
-  if (slot.control) return slot.control(c, by);
-  if (c.type === 'start')
-    return { ok: false, error: 'start is for the channels of a station; this run has one' };
-  return slot.hub.control(c, by);
-}
-
-/** The sender a command names (self-declared, so only printable text, and not much of it). */
-function senderOf(props: Record<string, string | string[]> | undefined): string {
-  const v = props?.[SENDER_PROPERTY];
-  const text = (Array.isArray(v) ? v[0] : v)?.replace(/[^\x20-\x7e]/g, '?').slice(0, 160);
-  return text ? `"${text}"` : 'a client that did not name itself';
-}
-
 /**
  * A station's link to the broker: everything its live hubs broadcast goes out under the
  * station's topics, and commands from the broker go into the hubs' control path. The run never
@@ -112,111 +112,123 @@ function senderOf(props: Record<string, string | string[]> | undefined): string 
  * when it can and holds back within the outbox's bounds when it cannot.
  */
 export function startFleetLink(o: FleetLinkOptions): FleetLink {
-  const clock = o.clock ?? new HostClock();
-  const log = throttledLog(o.log, clock);
-  const gapMs = 1000 / (o.sampleHz ?? 2);
-  const maxBuffered = o.maxBufferedBytes ?? 1024 * 1024;
-  const outbox = new Outbox();
-  const slots = new Map<number, ChannelSlot>();
-  const stats = { samplesSent: 0, samplesDropped: 0, commandsTaken: 0, commandsRefused: 0 };
-  let closing = false;
+  const link = new StationLink(o);
+  return { stats: () => link.stats(), close: (timeoutMs) => link.close(timeoutMs) };
+}
 
-  const stationStatus = (online: boolean, reason?: string): StationStatus => ({
-    v: FLEET_VERSION,
-    station: o.station,
-    online,
-    wall: new Date(clock.wallNow()).toISOString(),
-    ...(reason !== undefined ? { reason } : {}),
-    host: hostname(),
-    version: packageVersion(),
-    channels: [...slots.keys()],
-    commands_refused: stats.commandsRefused,
-  });
+class StationLink {
+  private readonly clock: Clock;
+  private readonly log: NonNullable<FleetLinkOptions['log']>;
+  private readonly gapMs: number;
+  private readonly maxBuffered: number;
+  private readonly outbox = new Outbox();
+  private readonly slots = new Map<number, ChannelSlot>();
+  private readonly counts = {
+    samplesSent: 0,
+    samplesDropped: 0,
+    commandsTaken: 0,
+    commandsRefused: 0,
+  };
+  private readonly conn: BrokerConnection;
+  private readonly refresh: TimerHandle;
+  private closing = false;
 
-  const conn: BrokerConnection = openBroker({
-    config: o.broker,
-    will: {
-      topic: stationTopic(o.station),
-      payload: Buffer.from(JSON.stringify(stationStatus(false, 'connection lost'))),
-      qos: 1,
-      retain: true,
-    },
-    onConnect: () => {
-      log('fleet_connected', { broker: o.broker.url, station: o.station });
-      conn.client.subscribe(commandSubscription(o.station), { qos: 1 });
-      outbox.status(stationTopic(o.station), JSON.stringify(stationStatus(true)));
-      for (const s of slots.values()) queueStatus(s);
-      outbox.resendResults();
-      pump();
-    },
-    onDown: (why) => {
-      if (!closing) log('fleet_down', { broker: o.broker.url, why });
-    },
-    ...(o.backoffMinMs !== undefined ? { backoffMinMs: o.backoffMinMs } : {}),
-    ...(o.backoffMaxMs !== undefined ? { backoffMaxMs: o.backoffMaxMs } : {}),
-  });
+  constructor(private readonly o: FleetLinkOptions) {
+    this.clock = o.clock ?? new HostClock();
+    this.log = throttledLog(o.log, this.clock);
+    this.gapMs = 1000 / (o.sampleHz ?? 2);
+    this.maxBuffered = o.maxBufferedBytes ?? 1024 * 1024;
+    this.conn = this.open();
+    for (const c of o.channels) this.follow(c);
+    this.conn.client.on('message', (topic, payload, packet) =>
+      this.onCommand(topic, payload, senderOf(packet.properties?.userProperties)),
+    );
+    // Statuses follow the samples every statusEveryMs, so a hub reading the retained status sees
+    // values at most that old; state changes and alarms refresh it at once.
+    this.refresh = this.clock.setTimer(
+      () => {
+        for (const s of this.slots.values()) this.queueStatus(s);
+        this.pump();
+      },
+      o.statusEveryMs ?? 10_000,
+      true,
+    );
+  }
 
-  function send(m: Outgoing): void {
-    conn.client.publish(m.topic, m.payload, { qos: 1, retain: m.retain }, (err) => {
-      if (!m.isResult) return;
-      if (!err) outbox.acked(m.topic, m.payload);
-      else log('fleet_result_not_taken', { topic: m.topic, why: err.message });
+  stats(): FleetLinkStats {
+    return {
+      connected: this.conn.connected,
+      drops: this.conn.drops,
+      ...this.counts,
+      waiting: this.outbox.waiting,
+      eventsDropped: this.outbox.eventsDropped,
+    };
+  }
+
+  async close(timeoutMs = 2000): Promise<void> {
+    if (this.closing) return;
+    for (const s of this.slots.values()) if (s.pending) this.sendSample(s);
+    this.closing = true;
+    this.clock.clearTimer(this.refresh);
+    for (const s of this.slots.values()) {
+      s.unsubscribe();
+      if (s.timer) this.clock.clearTimer(s.timer);
+      this.queueStatus(s);
+    }
+    this.queueStationStatus(false, 'stopped');
+    this.pump();
+    await this.conn.close(timeoutMs);
+  }
+
+  private stationStatus(online: boolean, reason?: string): StationStatus {
+    return {
+      v: FLEET_VERSION,
+      station: this.o.station,
+      online,
+      wall: new Date(this.clock.wallNow()).toISOString(),
+      ...(reason !== undefined ? { reason } : {}),
+      host: hostname(),
+      version: packageVersion(),
+      channels: [...this.slots.keys()],
+      commands_refused: this.counts.commandsRefused,
+    };
+  }
+
+  private queueStationStatus(online: boolean, reason?: string): void {
+    const status = JSON.stringify(this.stationStatus(online, reason));
+    this.outbox.status(stationTopic(this.o.station), status);
+  }
+
+  /** The broker connection, whose will marks the station offline when the link is lost. */
+  private open(): BrokerConnection {
+    const o = this.o;
+    return openBroker({
+      config: o.broker,
+      will: {
+        topic: stationTopic(o.station),
+        payload: Buffer.from(JSON.stringify(this.stationStatus(false, 'connection lost'))),
+        qos: 1,
+        retain: true,
+      },
+      onConnect: () => {
+        this.log('fleet_connected', { broker: o.broker.url, station: o.station });
+        this.conn.client.subscribe(commandSubscription(o.station), { qos: 1 });
+        this.queueStationStatus(true);
+        for (const s of this.slots.values()) this.queueStatus(s);
+        this.outbox.resendResults();
+        this.pump();
+      },
+      onDown: (why) => {
+        if (!this.closing) this.log('fleet_down', { broker: o.broker.url, why });
+      },
+      ...(o.backoffMinMs !== undefined ? { backoffMinMs: o.backoffMinMs } : {}),
+      ...(o.backoffMaxMs !== undefined ? { backoffMaxMs: o.backoffMaxMs } : {}),
     });
   }
 
-  function pump(): void {
-    if (conn.connected) outbox.take().forEach(send);
-  }
-
-  function queueStatus(s: ChannelSlot): void {
-    const status = s.feed.status(clock.wallNow());
-    outbox.status(channelTopic(o.station, s.feed.channel, 'status'), JSON.stringify(status));
-  }
-
-  function sendSample(s: ChannelSlot): void {
-    if (s.timer) clock.clearTimer(s.timer);
-    s.timer = null;
-    const out = s.pending;
-    s.pending = null;
-    if (!out) return;
-    s.lastSentMs = clock.now();
-    const buffered =
-      (conn.client.stream as { writableLength?: number } | undefined)?.writableLength ?? 0;
-    if (!conn.connected || buffered > maxBuffered) {
-      stats.samplesDropped++;
-      return;
-    }
-    conn.client.publish(
-      channelTopic(o.station, s.feed.channel, 'sample'),
-      JSON.stringify(out.payload),
-      { qos: 0 },
-    );
-    stats.samplesSent++;
-  }
-
-  function onHub(s: ChannelSlot, m: Parameters<Parameters<LiveHub['subscribe']>[0]>[0]): void {
-    if (closing) return;
-    const out = s.feed.take(m, clock.wallNow());
-    if (out?.kind === 'sample') {
-      s.pending = out;
-      const wait = s.lastSentMs + gapMs - clock.now();
-      if (wait <= 0) sendSample(s);
-      else s.timer ??= clock.setTimer(() => sendSample(s), wait);
-      return;
-    }
-    // An event goes after the sample before it, as in the run's own log.
-    if (s.pending) sendSample(s);
-    if (out?.kind === 'result')
-      outbox.result(channelTopic(o.station, s.feed.channel, 'result'), JSON.stringify(out.payload));
-    else if (out)
-      outbox.event(channelTopic(o.station, s.feed.channel, out.kind), JSON.stringify(out.payload));
-    if (s.feed.dirty) queueStatus(s);
-    pump();
-  }
-
-  for (const c of o.channels) {
+  private follow(c: FleetLinkChannel): void {
     const slot: ChannelSlot = {
-      feed: new ChannelFeed(o.station, c.channel),
+      feed: new ChannelFeed(this.o.station, c.channel),
       hub: c.hub,
       control: c.control,
       pending: null,
@@ -224,77 +236,102 @@ export function startFleetLink(o: FleetLinkOptions): FleetLink {
       timer: null,
       unsubscribe: () => {},
     };
-    slot.feed.snapshot(c.hub.hello(), clock.wallNow());
-    slot.unsubscribe = c.hub.subscribe((m) => onHub(slot, m));
-    slots.set(c.channel, slot);
+    slot.feed.snapshot(c.hub.hello(), this.clock.wallNow());
+    slot.unsubscribe = c.hub.subscribe((m) => this.onHub(slot, m));
+    this.slots.set(c.channel, slot);
   }
 
-  conn.client.on('message', (topic, payload, packet) => {
+  private send(m: Outgoing): void {
+    this.conn.client.publish(m.topic, m.payload, { qos: 1, retain: m.retain }, (err) => {
+      if (!m.isResult) return;
+      if (!err) this.outbox.acked(m.topic, m.payload);
+      else this.log('fleet_result_not_taken', { topic: m.topic, why: err.message });
+    });
+  }
+
+  private pump(): void {
+    if (this.conn.connected) this.outbox.take().forEach((m) => this.send(m));
+  }
+
+  private queueStatus(s: ChannelSlot): void {
+    const status = s.feed.status(this.clock.wallNow());
+    this.outbox.status(
+      channelTopic(this.o.station, s.feed.channel, 'status'),
+      JSON.stringify(status),
+    );
+  }
+
+  private sendSample(s: ChannelSlot): void {
+    if (s.timer) this.clock.clearTimer(s.timer);
+    s.timer = null;
+    const out = s.pending;
+    s.pending = null;
+    if (!out) return;
+    s.lastSentMs = this.clock.now();
+    const client = this.conn.client;
+    const buffered =
+      (client.stream as { writableLength?: number } | undefined)?.writableLength ?? 0;
+    if (!this.conn.connected || buffered > this.maxBuffered) {
+      this.counts.samplesDropped++;
+      return;
+    }
+    const topic = channelTopic(this.o.station, s.feed.channel, 'sample');
+    client.publish(topic, JSON.stringify(out.payload), { qos: 0 });
+    this.counts.samplesSent++;
+  }
+
+  private onHub(s: ChannelSlot, m: Parameters<Parameters<LiveHub['subscribe']>[0]>[0]): void {
+    if (this.closing) return;
+    const out = s.feed.take(m, this.clock.wallNow());
+    if (out?.kind === 'sample') {
+      s.pending = out;
+      const wait = s.lastSentMs + this.gapMs - this.clock.now();
+      if (wait <= 0) this.sendSample(s);
+      else s.timer ??= this.clock.setTimer(() => this.sendSample(s), wait);
+      return;
+    }
+    // An event goes after the sample before it, as in the run's own log.
+    if (s.pending) this.sendSample(s);
+    if (out) {
+      const topic = channelTopic(this.o.station, s.feed.channel, out.kind);
+      if (out.kind === 'result') this.outbox.result(topic, JSON.stringify(out.payload));
+      else this.outbox.event(topic, JSON.stringify(out.payload));
+    }
+    if (s.feed.dirty) this.queueStatus(s);
+    this.pump();
+  }
+
+  private onCommand(topic: string, payload: Buffer, sender: string): void {
+    const o = this.o;
     const t = parseTopic(topic);
     if (!t || t.kind !== 'command' || t.station !== o.station) return;
-    const from = `fleet command through broker ${o.broker.url}, from ${senderOf(packet.properties?.userProperties)}`;
+    const from = `fleet command through broker ${o.broker.url}, from ${sender}`;
     const reply = takeCommand(
       o.station,
       t.channel,
       payload,
       o.controlToken,
       (ch) => {
-        const slot = slots.get(ch);
+        const slot = this.slots.get(ch);
         return slot ? (c, by) => controlOf(slot, c, by) : null;
       },
       from,
     );
-    if (reply.ok) stats.commandsTaken++;
+    if (reply.ok) this.counts.commandsTaken++;
     else {
-      stats.commandsRefused++;
-      outbox.status(stationTopic(o.station), JSON.stringify(stationStatus(true)));
+      this.counts.commandsRefused++;
+      this.queueStationStatus(true);
     }
-    log('fleet_command', {
+    this.log('fleet_command', {
       channel: t.channel,
       request: reply.request,
       ok: reply.ok,
       ...(reply.ok ? {} : { code: reply.code, why: reply.error }),
     });
-    conn.client.publish(channelTopic(o.station, t.channel, 'reply'), JSON.stringify(reply), {
-      qos: 1,
-    });
-    pump();
-  });
-
-  // Statuses follow the samples every statusEveryMs, so a hub reading the retained status sees
-  // values at most that old; state changes and alarms refresh it at once.
-  const refresh = clock.setTimer(
-    () => {
-      for (const s of slots.values()) queueStatus(s);
-      pump();
-    },
-    o.statusEveryMs ?? 10_000,
-    true,
-  );
-
-  return {
-    stats: () => ({
-      connected: conn.connected,
-      drops: conn.drops,
-      ...stats,
-      waiting: outbox.waiting,
-      eventsDropped: outbox.eventsDropped,
-    }),
-    close: async (timeoutMs = 2000) => {
-      if (closing) return;
-      for (const s of slots.values()) if (s.pending) sendSample(s);
-      closing = true;
-      clock.clearTimer(refresh);
-      for (const s of slots.values()) {
-        s.unsubscribe();
-        if (s.timer) clock.clearTimer(s.timer);
-        queueStatus(s);
-      }
-      outbox.status(stationTopic(o.station), JSON.stringify(stationStatus(false, 'stopped')));
-      pump();
-      await conn.close(timeoutMs);
-    },
-  };
+    const replyTopic = channelTopic(o.station, t.channel, 'reply');
+    this.conn.client.publish(replyTopic, JSON.stringify(reply), { qos: 1 });
+    this.pump();
+  }
 }
 
 /** What `run --broker …` resolved, before anything was switched on. */

@@ -1,6 +1,7 @@
 import { Ajv, type ErrorObject, type ValidateFunction } from 'ajv';
 import { CELL_ID_PATTERN } from '../registry/run-record.js';
-import type { LiveRunInfo } from '../live/live-types.js';
+import type { LiveRunInfo, LiveSample } from '../live/live-types.js';
+import { runInfoFields, SAMPLE_FIELDS } from '../live/message-schemas.js';
 import { MAX_CHANNEL, STATION_ID_PATTERN, type ChannelKind } from './topics.js';
 
 /**
@@ -57,20 +58,12 @@ export interface ChannelStatus {
   last_alarm: LastAlarm | null;
 }
 
-export interface FleetSample {
+export interface FleetSample extends LiveSample {
   v: typeof FLEET_VERSION;
   station: string;
   channel: number;
   /** When the station's live feed had the sample, Unix milliseconds of the station's clock. */
   made_ms: number;
-  host_s: number;
-  voltage_V: number;
-  current_A: number;
-  temperature_C: number | null;
-  charge_Ah: number;
-  energy_Wh: number;
-  state: string;
-  load_on: boolean;
   time_to_cutoff_s: number | null;
 }
 
@@ -112,7 +105,8 @@ export type FleetCommand = {
   id?: string;
 } & (
   | { type: 'stop' }
-  | { type: 'set-cutoff'; cutoff_V: number }
+  /** `confirm`: the sender confirmed a cutoff at or above the present voltage (added later). */
+  | { type: 'set-cutoff'; cutoff_V: number; confirm?: boolean }
   | { type: 'mark'; note: string }
   /** A station's channel whose run has ended takes its next run (a fresh cell). */
   | { type: 'start'; cell_id?: string }
@@ -162,19 +156,7 @@ function closed(properties: Record<string, unknown>, optional: string[] = []) {
 const head = { v: { const: FLEET_VERSION }, station, channel } as const;
 const eventHead = { ...head, wall, host_s: num } as const;
 
-const runInfo = closed({
-  run_id: str,
-  label: str,
-  run_folder: str,
-  chemistry: str,
-  cells: { type: 'integer', minimum: 1 },
-  cutoff_V: num,
-  floor_V: num,
-  calibration_id: str,
-  started_wall: wall,
-  source: str,
-  max_temperature_C: num,
-});
+const runInfo = closed({ run_id: str, ...runInfoFields(str, wall) });
 
 const commandHead = { ...head, token: { type: 'string', minLength: 1, maxLength: 256 }, id };
 
@@ -213,17 +195,12 @@ export const FLEET_SCHEMAS = {
       oneOf: [{ type: 'null' }, closed({ host_s: num, kind: str, detail: str })],
     },
   }),
+  // The live feed's sample fields, with the state's text bounded as every fleet text is.
   sample: closed({
     ...head,
     made_ms: num,
-    host_s: num,
-    voltage_V: num,
-    current_A: num,
-    temperature_C: numOrNull,
-    charge_Ah: num,
-    energy_Wh: num,
+    ...SAMPLE_FIELDS,
     state: str,
-    load_on: { type: 'boolean' },
     time_to_cutoff_s: numOrNull,
   }),
   state: closed({ ...eventHead, from: str, to: str, why: str }),
@@ -233,7 +210,15 @@ export const FLEET_SCHEMAS = {
   command: {
     oneOf: [
       closed({ ...commandHead, type: { const: 'stop' } }, ['id']),
-      closed({ ...commandHead, type: { const: 'set-cutoff' }, cutoff_V: num }, ['id']),
+      closed(
+        {
+          ...commandHead,
+          type: { const: 'set-cutoff' },
+          cutoff_V: num,
+          confirm: { type: 'boolean' },
+        },
+        ['id', 'confirm'],
+      ),
       closed(
         {
           ...commandHead,

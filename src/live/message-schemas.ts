@@ -30,7 +30,8 @@ function message(
   };
 }
 
-const sampleFields = {
+/** A sample's measured fields, shared with the fleet's sample payload. */
+export const SAMPLE_FIELDS = {
   host_s: num,
   voltage_V: num,
   current_A: num,
@@ -40,35 +41,31 @@ const sampleFields = {
   state: str,
   load_on: { type: 'boolean' },
 } as const;
+const sampleFields = SAMPLE_FIELDS;
 const sampleRequired = Object.keys(sampleFields);
+
+/** A run's details; the fleet's payload takes the same fields with its own bounded texts. */
+export function runInfoFields<T, W>(text: T, wall: W) {
+  return {
+    label: text,
+    run_folder: text,
+    chemistry: text,
+    cells: { type: 'integer', minimum: 1 },
+    cutoff_V: num,
+    floor_V: num,
+    calibration_id: text,
+    started_wall: wall,
+    source: text,
+    max_temperature_C: num,
+  } as const;
+}
+const runInfoProperties = runInfoFields(str, str);
 
 const runInfo = {
   type: 'object',
   additionalProperties: false,
-  required: [
-    'label',
-    'run_folder',
-    'chemistry',
-    'cells',
-    'cutoff_V',
-    'floor_V',
-    'calibration_id',
-    'started_wall',
-    'source',
-    'max_temperature_C',
-  ],
-  properties: {
-    label: str,
-    run_folder: str,
-    chemistry: str,
-    cells: { type: 'integer', minimum: 1 },
-    cutoff_V: num,
-    floor_V: num,
-    calibration_id: str,
-    started_wall: str,
-    source: str,
-    max_temperature_C: num,
-  },
+  required: Object.keys(runInfoProperties),
+  properties: runInfoProperties,
 } as const;
 
 const feedStatus = {

@@ -56,107 +56,138 @@ function unreachable(url: string, why: string, ms: number): CellvigilError {
 }
 
 export function watchLive(o: WatchClientOptions): WatchClient {
-  const clock = o.clock ?? new HostClock();
-  const minMs = o.backoffMinMs ?? 500;
-  const maxMs = o.backoffMaxMs ?? 15_000;
-  let ws: WebSocket | null = null;
-  let timer: TimerHandle | null = null;
-  let attempt = 0;
-  let stopped = false;
-  let finish!: () => void;
-  let refuse!: (e: CellvigilError) => void;
-  const done = new Promise<void>((resolve, reject) => {
-    finish = resolve;
-    refuse = reject;
-  });
-  let lastWhy = 'no answer';
-  const firstMs = o.firstConnectMs ?? FIRST_CONNECT_MS;
-  let giveUp: TimerHandle | null = clock.setTimer(() => {
-    giveUp = null;
-    if (stopped) return;
-    stopped = true;
-    if (timer) clock.clearTimer(timer);
-    timer = null;
-    ws?.terminate();
-    refuse(unreachable(o.url, lastWhy, firstMs));
-  }, firstMs);
-  const connected = (): void => {
-    if (giveUp) clock.clearTimer(giveUp);
-    giveUp = null;
-  };
+  const c = new WatchConnection(o);
+  c.connect();
+  return { stop: () => c.stop(), done: c.done };
+}
 
-  function retry(why: string): void {
-    lastWhy = why;
-    if (stopped) return;
-    const delay = Math.min(maxMs, minMs * 2 ** attempt) * (0.75 + Math.random() * 0.5);
-    attempt++;
-    o.onLink(`${why}; retrying in ${Math.ceil(delay / 1000)} s`);
-    timer = clock.setTimer(connect, delay);
+/** Why the daemon refused a viewer, for the HTTP statuses retrying cannot help. */
+function refused(url: string, status: number): CellvigilError {
+  const why =
+    status === 401
+      ? ': viewer token missing or wrong'
+      : status === 404
+        ? ': no live feed at this address'
+        : '';
+  return makeError(
+    ErrorCodes.WATCH_REFUSED,
+    `the daemon refused this viewer (HTTP ${status}${why})`,
+    url.replace(/token=[^&]*/, 'token=…'),
+    status === 401
+      ? 'Pass the viewer token with --token (see docs/live-feed.md).'
+      : 'Check the address the daemon printed.',
+  );
+}
+
+/** The one connection of a watch, redialled after each drop until stopped or refused. */
+class WatchConnection {
+  readonly done: Promise<void>;
+  private readonly clock: Clock;
+  private readonly minMs: number;
+  private readonly maxMs: number;
+  private readonly firstMs: number;
+  private ws: WebSocket | null = null;
+  private timer: TimerHandle | null = null;
+  private giveUp: TimerHandle | null;
+  private attempt = 0;
+  private stopped = false;
+  private lastWhy = 'no answer';
+  private finish!: () => void;
+  private refuse!: (e: CellvigilError) => void;
+
+  constructor(private readonly o: WatchClientOptions) {
+    this.clock = o.clock ?? new HostClock();
+    this.minMs = o.backoffMinMs ?? 500;
+    this.maxMs = o.backoffMaxMs ?? 15_000;
+    this.firstMs = o.firstConnectMs ?? FIRST_CONNECT_MS;
+    this.done = new Promise<void>((resolve, reject) => {
+      this.finish = resolve;
+      this.refuse = reject;
+    });
+    this.giveUp = this.clock.setTimer(() => this.neverAnswered(), this.firstMs);
   }
 
-  function connect(): void {
-    timer = null;
-    if (stopped) return;
-    o.onLink('connecting');
-    const sock = new WebSocket(o.url, { maxPayload: 16 * 1024 * 1024, perMessageDeflate: false });
-    ws = sock;
+  stop(): void {
+    if (this.stopped) return;
+    this.stopped = true;
+    if (this.timer) this.clock.clearTimer(this.timer);
+    this.connected();
+    this.ws?.close(1000);
+    this.finish();
+  }
+
+  connect(): void {
+    this.timer = null;
+    if (this.stopped) return;
+    this.o.onLink('connecting');
+    const sock = new WebSocket(this.o.url, {
+      maxPayload: 16 * 1024 * 1024,
+      perMessageDeflate: false,
+    });
+    this.ws = sock;
     let why = 'connection closed';
     sock.on('unexpected-response', (_req, res) => {
       const status = res.statusCode ?? 0;
       res.resume();
       sock.terminate();
       if (status === 401 || status === 403 || status === 404) {
-        stopped = true;
-        connected();
-        refuse(
-          makeError(
-            ErrorCodes.WATCH_REFUSED,
-            `the daemon refused this viewer (HTTP ${status}${status === 401 ? ': viewer token missing or wrong' : status === 404 ? ': no live feed at this address' : ''})`,
-            o.url.replace(/token=[^&]*/, 'token=…'),
-            status === 401
-              ? 'Pass the viewer token with --token (see docs/live-feed.md).'
-              : 'Check the address the daemon printed.',
-          ),
-        );
+        this.stopped = true;
+        this.connected();
+        this.refuse(refused(this.o.url, status));
       } else why = `HTTP ${status}`;
     });
     sock.on('error', (e: NodeJS.ErrnoException) => (why = e.code ?? e.message));
     sock.on('open', () => {
-      connected();
-      o.onLink('live');
+      this.connected();
+      this.o.onLink('live');
     });
-    sock.on('message', (data, isBinary) => {
-      if (isBinary) return;
-      let parsed: unknown;
-      try {
-        parsed = JSON.parse(data.toString());
-      } catch {
-        return;
-      }
-      const checked = checkServerMessage(parsed);
-      if (!checked.ok) {
-        o.onLink(`ignored a message the viewer does not understand: ${checked.error}`);
-        return;
-      }
-      if (checked.value.type === 'hello') attempt = 0;
-      o.onMessage(checked.value);
-    });
+    sock.on('message', (data, isBinary) => this.onMessage(data.toString(), isBinary));
     sock.on('close', () => {
-      if (ws === sock) ws = null;
-      retry(why);
+      if (this.ws === sock) this.ws = null;
+      this.retry(why);
     });
   }
 
-  connect();
-  return {
-    stop() {
-      if (stopped) return;
-      stopped = true;
-      if (timer) clock.clearTimer(timer);
-      connected();
-      ws?.close(1000);
-      finish();
-    },
-    done,
-  };
+  /** An address that never answered within firstConnectMs is most likely wrong. */
+  private neverAnswered(): void {
+    this.giveUp = null;
+    if (this.stopped) return;
+    this.stopped = true;
+    if (this.timer) this.clock.clearTimer(this.timer);
+    this.timer = null;
+    this.ws?.terminate();
+    this.refuse(unreachable(this.o.url, this.lastWhy, this.firstMs));
+  }
+
+  private connected(): void {
+    if (this.giveUp) this.clock.clearTimer(this.giveUp);
+    this.giveUp = null;
+  }
+
+  private retry(why: string): void {
+    this.lastWhy = why;
+    if (this.stopped) return;
+    const delay =
+      Math.min(this.maxMs, this.minMs * 2 ** this.attempt) * (0.75 + Math.random() * 0.5);
+    this.attempt++;
+    this.o.onLink(`${why}; retrying in ${Math.ceil(delay / 1000)} s`);
+    this.timer = this.clock.setTimer(() => this.connect(), delay);
+  }
+
+  private onMessage(text: string, isBinary: boolean): void {
+    if (isBinary) return;
+    let parsed: unknown;
+    try {
+      parsed = JSON.parse(text);
+    } catch {
+      return;
+    }
+    const checked = checkServerMessage(parsed);
+    if (!checked.ok) {
+      this.o.onLink(`ignored a message the viewer does not understand: ${checked.error}`);
+      return;
+    }
+    if (checked.value.type === 'hello') this.attempt = 0;
+    this.o.onMessage(checked.value);
+  }
 }

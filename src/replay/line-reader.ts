@@ -207,6 +207,127 @@ function gzipSource(path: string, onBytes?: (n: number) => void): ByteSource {
 }
 
 /**
+ * Keeps the line-length limit without looking for line ends unless a line could pass it: no
+ * line can be longer than what came since the last line end.
+ */
+class LineLengthGuard {
+  private sinceNewline = 0;
+
+  constructor(readonly maxLine: number) {}
+
+  /** True when a line in the chunk bytes[0, length), new from `carried` on, passes the limit. */
+  tooLong(bytes: Buffer, carried: number, length: number): boolean {
+    const got = length - carried;
+    let longest = 0;
+    if (this.sinceNewline + got > this.maxLine) {
+      let from = carried;
+      const data = bytes.subarray(0, length);
+      for (let nl = data.indexOf(10, from); nl >= 0; nl = data.indexOf(10, from)) {
+        longest = Math.max(longest, (from === carried ? this.sinceNewline : 0) + nl - from);
+        from = nl + 1;
+      }
+      this.sinceNewline = (from === carried ? this.sinceNewline : 0) + length - from;
+    } else {
+      const nl = bytes.lastIndexOf(10, length - 1);
+      this.sinceNewline = nl < carried ? this.sinceNewline + got : length - nl - 1;
+    }
+    return Math.max(longest, this.sinceNewline) > this.maxLine;
+  }
+}
+
+/**
+ * Numbers the lines and makes the batches. A line is passed on once the next one is known, so
+ * the last one is known to be last.
+ */
+class LineNumbering {
+  /** Lines numbered so far, the held one included. */
+  n = 0;
+  private held: { text: string; number: number } | null = null;
+
+  /** The complete ASCII lines of a chunk: the last of them is held back. */
+  ascii(bytes: Buffer, starts: number[], ends: number[]): LineBatch[] {
+    const out: LineBatch[] = this.release();
+    const last = starts.length - 1;
+    this.held = {
+      text: bytes.toString('latin1', starts[last], ends[last]),
+      number: this.n + starts.length,
+    };
+    if (last > 0)
+      out.push({
+        bytes,
+        starts: starts.slice(0, last),
+        ends: ends.slice(0, last),
+        first: this.n + 1,
+      });
+    this.n += starts.length;
+    return out;
+  }
+
+  /** The complete lines of a chunk that is not ASCII, as text. */
+  text(lines: string[]): LineBatch[] {
+    const batch: TextLine[] = [];
+    if (this.held) batch.push({ ...this.held, terminated: true });
+    for (let k = 0; k < lines.length - 1; k++)
+      batch.push({ text: lines[k]!, number: ++this.n, terminated: true });
+    this.held = { text: lines[lines.length - 1]!, number: ++this.n };
+    return [batch];
+  }
+
+  /** The unfinished line at the end of the file, now known to be the last. */
+  rest(text: string): LineBatch[] {
+    const out = this.release();
+    this.held = { text, number: ++this.n };
+    return out;
+  }
+
+  /** The last line, with whether the file ended with a line end. */
+  final(terminated: boolean): LineBatch[] {
+    return this.held ? [[{ ...this.held, terminated }]] : [];
+  }
+
+  private release(): LineBatch[] {
+    return this.held ? [[{ ...this.held, terminated: true }]] : [];
+  }
+}
+
+/**
+ * Two buffers taken in turn: the next chunk is read into one while the lines of the other are
+ * worked on. Each has room for the unfinished line carried over in front of a chunk.
+ */
+class ChunkBuffers {
+  /** Bytes of an unfinished line in front of the current buffer's new chunk. */
+  carried = 0;
+  private readonly buffers = [Buffer.allocUnsafe(2 * CHUNK), Buffer.allocUnsafe(2 * CHUNK)];
+  private turn = 0;
+
+  get current(): Buffer {
+    return this.buffers[this.turn]!;
+  }
+
+  /** Carries bytes [tail, length) (none when tail < 0) to the front of the other buffer, and switches. */
+  carry(tail: number, length: number): void {
+    const bytes = this.current;
+    this.turn ^= 1;
+    this.carried = tail < 0 ? 0 : length - tail;
+    if (this.carried + CHUNK > this.current.length)
+      this.buffers[this.turn] = Buffer.allocUnsafe(this.carried + CHUNK);
+    if (this.carried > 0) bytes.copy(this.current, 0, tail, length);
+  }
+}
+
+function readFailure(path: string, gzip: boolean, f: Error, lines: number): Error {
+  const gz = gzip && /unexpected end|incorrect header|invalid/i.test(f.message);
+  return makeError(
+    ErrorCodes.RUN_DATA,
+    `cannot read ${gz ? 'the compressed file' : 'the file'}: ${f.message}`,
+    `${path}${lines > 0 ? ` after line ${lines}` : ''}`,
+    gz
+      ? 'The gzip file is damaged or incomplete; restore it, or decompress what can be saved (zcat) into the .csv of the same number.'
+      : 'Check that the file is readable and is the file the run wrote.',
+  );
+}
+
+/**
  * The lines of a file a chunk at a time (READ_CHUNK_BYTES of the file per batch), in order:
  * the same lines, numbers, `terminated` flags and errors as readLines (which is built on it).
  * ASCII text comes as AsciiLines, anything else as TextLine[]. An AsciiLines batch's bytes are
@@ -216,110 +337,50 @@ export async function* readLineBatchesRaw(
   path: string,
   o: LineReadOptions = {},
 ): AsyncGenerator<LineBatch> {
-  const maxLine = o.maxLineBytes ?? 1024 * 1024;
-  let failure: Error | null = null;
-  const fail = (e: Error): void => {
-    failure ??= e;
-  };
+  const guard = new LineLengthGuard(o.maxLineBytes ?? 1024 * 1024);
+  const numbering = new LineNumbering();
+  const chunks = new ChunkBuffers();
   const splitter = new ByteSplitter();
   const starts: number[] = [];
   const ends: number[] = [];
   const lines: string[] = [];
+  let failure: Error | null = null;
   let lastByte = -1;
-  let sinceNewline = 0;
-  // A line is passed on once the next one is known, so the last one is known to be last.
-  let held: { text: string; number: number } | null = null;
-  let n = 0;
-  // Two buffers taken in turn: the next chunk is read into one while the lines of the other
-  // are worked on. Each has room for the unfinished line carried over in front of a chunk.
-  const buffers = [Buffer.allocUnsafe(2 * CHUNK), Buffer.allocUnsafe(2 * CHUNK)];
-  let current = 0;
-  let carried = 0;
   let source: ByteSource | null = null;
   let reading: Promise<number> | null = null;
   try {
     source = o.gzip ? gzipSource(path, o.onBytes) : await plainSource(path, o.onBytes);
-    reading = source.fill(buffers[0]!, 0);
-    for (;;) {
-      const got = await reading;
-      if (got === 0) break;
-      const bytes = buffers[current]!;
-      const length = carried + got;
+    reading = source.fill(chunks.current, 0);
+    for (let got = await reading; got > 0; got = await reading) {
+      const bytes = chunks.current;
+      const length = chunks.carried + got;
       lastByte = bytes[length - 1]!;
-      let longest = 0;
-      // No line can be longer than what came since the last line end; only when that could
-      // pass the limit are the line ends looked for here.
-      if (sinceNewline + got > maxLine) {
-        let from = carried;
-        const data = bytes.subarray(0, length);
-        for (let nl = data.indexOf(10, from); nl >= 0; nl = data.indexOf(10, from)) {
-          longest = Math.max(longest, (from === carried ? sinceNewline : 0) + nl - from);
-          from = nl + 1;
-        }
-        sinceNewline = (from === carried ? sinceNewline : 0) + length - from;
-      } else {
-        const nl = bytes.lastIndexOf(10, length - 1);
-        sinceNewline = nl < carried ? sinceNewline + got : length - nl - 1;
-      }
-      starts.length = 0;
-      ends.length = 0;
-      lines.length = 0;
-      const tail = splitter.push(bytes, carried, length, starts, ends, lines);
+      const tooLong = guard.tooLong(bytes, chunks.carried, length);
+      starts.length = ends.length = lines.length = 0;
+      const tail = splitter.push(bytes, chunks.carried, length, starts, ends, lines);
       // The unfinished line goes to the front of the other buffer, and the next read after it.
-      current ^= 1;
-      carried = tail < 0 ? 0 : length - tail;
-      if (carried + CHUNK > buffers[current]!.length)
-        buffers[current] = Buffer.allocUnsafe(carried + CHUNK);
-      if (carried > 0) bytes.copy(buffers[current]!, 0, tail, length);
-      reading = source.fill(buffers[current]!, carried);
-      if (tail >= 0 && starts.length > 0) {
-        if (held) yield [{ ...held, terminated: true }];
-        const last = starts.length - 1;
-        held = {
-          text: bytes.toString('latin1', starts[last], ends[last]),
-          number: n + starts.length,
-        };
-        if (last > 0)
-          yield { bytes, starts: starts.slice(0, last), ends: ends.slice(0, last), first: n + 1 };
-        n += starts.length;
-      } else if (lines.length > 0) {
-        const batch: TextLine[] = [];
-        if (held) batch.push({ ...held, terminated: true });
-        for (let k = 0; k < lines.length - 1; k++)
-          batch.push({ text: lines[k]!, number: ++n, terminated: true });
-        held = { text: lines[lines.length - 1]!, number: ++n };
-        yield batch;
-      }
-      if (Math.max(longest, sinceNewline) > maxLine) {
-        fail(new Error(`a line longer than ${maxLine} bytes`));
+      chunks.carry(tail, length);
+      reading = source.fill(chunks.current, chunks.carried);
+      if (tail >= 0 && starts.length > 0) yield* numbering.ascii(bytes, starts, ends);
+      else if (lines.length > 0) yield* numbering.text(lines);
+      if (tooLong) {
+        failure = new Error(`a line longer than ${guard.maxLine} bytes`);
         break;
       }
     }
-    const rest = failure ? null : splitter.end(buffers[current]!.toString('latin1', 0, carried));
-    if (rest !== null) {
-      if (held) yield [{ ...held, terminated: true }];
-      held = { text: rest, number: ++n };
-    }
+    const rest = failure
+      ? null
+      : splitter.end(chunks.current.toString('latin1', 0, chunks.carried));
+    if (rest !== null) yield* numbering.rest(rest);
   } catch (e) {
-    fail(e as Error);
+    failure ??= e as Error;
   } finally {
     // A read may still be under way (a fault, or a caller that stopped early): it ends with the source.
     await source?.close();
     await reading?.catch(() => 0);
   }
-  if (failure) {
-    const f = failure as Error;
-    const gz = o.gzip && /unexpected end|incorrect header|invalid/i.test(f.message);
-    throw makeError(
-      ErrorCodes.RUN_DATA,
-      `cannot read ${gz ? 'the compressed file' : 'the file'}: ${f.message}`,
-      `${path}${n > 0 ? ` after line ${n}` : ''}`,
-      gz
-        ? 'The gzip file is damaged or incomplete; restore it, or decompress what can be saved (zcat) into the .csv of the same number.'
-        : 'Check that the file is readable and is the file the run wrote.',
-    );
-  }
-  if (held) yield [{ ...held, terminated: lastByte === 10 }];
+  if (failure) throw readFailure(path, o.gzip === true, failure, numbering.n);
+  yield* numbering.final(lastByte === 10);
 }
 
 /** The lines of a file a chunk at a time, as text. */

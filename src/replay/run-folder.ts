@@ -10,7 +10,7 @@ import { CHECKPOINT_FILE, readCheckpointFile, type Checkpoint } from '../record/
 import { EVENTS_FILE, parseEventLine, type LoggedEvent } from '../record/event-log.js';
 import { MANIFEST_FILE, parseManifest, type RunManifest } from '../record/manifest.js';
 import { readResultFile, RESULT_FILE, type RunResult } from '../record/result.js';
-import { readLineBatchesRaw, readLines, type TextLine } from './line-reader.js';
+import { readLineBatchesRaw, readLines, type AsciiLines, type TextLine } from './line-reader.js';
 import {
   blankSampleRecord,
   SampleReader,
@@ -180,6 +180,97 @@ export async function forEachRunSample(
   for await (const _ of visitRunSamples(run, o, visit));
 }
 
+/**
+ * One sample file's rows, visited into one record: its header row first, then rows for the
+ * run's channel. A row cut off by an interruption may only be the last file's last line.
+ */
+class SampleFileVisit {
+  private header = false;
+
+  constructor(
+    private readonly run: RunFolder,
+    private readonly file: SampleFile,
+    private readonly mayBeCut: boolean,
+    private readonly reader: SampleReader,
+    private readonly row: SampleRecord,
+    private readonly visit: (row: SampleRecord) => void,
+  ) {}
+
+  /** One line of text; false when it was cut off by an interruption (to be reported once the rows before it are out). */
+  takeText(line: TextLine): boolean {
+    const cut = !line.terminated && this.mayBeCut;
+    if (!this.header) {
+      if (cut) return false;
+      checkSampleHeader(line.text, this.file.name);
+      this.header = true;
+      return true;
+    }
+    try {
+      this.reader.parseLine(line.text, this.row);
+    } catch (e) {
+      if (!(e instanceof SampleLineError)) throw e;
+      if (cut) return false;
+      throw this.malformed(e, line.number);
+    }
+    this.take(line.number);
+    return true;
+  }
+
+  /** Lines from bytes, all terminated: none can be a cut one. */
+  takeBytes({ bytes, starts, ends, first }: AsciiLines): void {
+    let k = 0;
+    if (!this.header) {
+      checkSampleHeader(bytes.toString('latin1', starts[0], ends[0]), this.file.name);
+      this.header = true;
+      k = 1;
+    }
+    try {
+      for (; k < starts.length; k++) {
+        this.reader.parseBytes(bytes, starts[k]!, ends[k]!, this.row);
+        this.take(first + k);
+      }
+    } catch (e) {
+      throw e instanceof SampleLineError ? this.malformed(e, first + k) : e;
+    }
+  }
+
+  /** A file other than the last must have had at least its header row. */
+  finish(): void {
+    if (this.header || this.mayBeCut) return;
+    throw makeError(
+      ErrorCodes.RUN_DATA,
+      'the file is empty, without even its header row',
+      join(basename(this.run.dir), this.file.name),
+      'Restore the file from a backup; the files after it need it.',
+    );
+  }
+
+  private take(number: number): void {
+    const channel = this.run.manifest.channel;
+    if (this.row.channel !== channel)
+      throw makeError(
+        ErrorCodes.RUN_DATA,
+        `a row for channel ${this.row.channel} in a run on channel ${channel}`,
+        this.where(number),
+        'The file does not belong to this run folder; move it back to its own run.',
+      );
+    this.visit(this.row);
+  }
+
+  private where(line: number): string {
+    return `${join(basename(this.run.dir), this.file.name)} line ${line}`;
+  }
+
+  private malformed(e: SampleLineError, number: number): Error {
+    return makeError(
+      ErrorCodes.RUN_DATA,
+      `a sample row is malformed: ${e.message}`,
+      this.where(number),
+      'Rows are written by `cellvigil run` and never edited; restore the file from a backup, or move the damaged rows to another file and recompute what remains.',
+    );
+  }
+}
+
 /** Visits the rows; pauses after each read and before reporting a cut line, so a caller can hand on the rows visited so far first. */
 async function* visitRunSamples(
   run: RunFolder,
@@ -188,85 +279,21 @@ async function* visitRunSamples(
 ): AsyncGenerator<void> {
   const row = blankSampleRecord();
   const reader = new SampleReader();
-  const channel = run.manifest.channel;
   const lastFile = run.sampleFiles.length - 1;
   for (const [fi, f] of run.sampleFiles.entries()) {
-    const mayBeCut = fi === lastFile;
-    let header = false;
-    const where = (line: number): string => `${join(basename(run.dir), f.name)} line ${line}`;
-    const malformed = (e: SampleLineError, number: number): Error =>
-      makeError(
-        ErrorCodes.RUN_DATA,
-        `a sample row is malformed: ${e.message}`,
-        where(number),
-        'Rows are written by `cellvigil run` and never edited; restore the file from a backup, or move the damaged rows to another file and recompute what remains.',
-      );
-    const wrongChannel = (number: number): Error =>
-      makeError(
-        ErrorCodes.RUN_DATA,
-        `a row for channel ${row.channel} in a run on channel ${channel}`,
-        where(number),
-        'The file does not belong to this run folder; move it back to its own run.',
-      );
-    /** One line of text; false when it was cut off by an interruption (to be reported once the rows before it are out). */
-    const takeText = (line: TextLine): boolean => {
-      const cut = !line.terminated && mayBeCut;
-      if (!header) {
-        if (cut) return false;
-        checkSampleHeader(line.text, f.name);
-        header = true;
-        return true;
-      }
-      try {
-        reader.parseLine(line.text, row);
-      } catch (e) {
-        if (!(e instanceof SampleLineError)) throw e;
-        if (cut) return false;
-        throw malformed(e, line.number);
-      }
-      if (row.channel !== channel) throw wrongChannel(line.number);
-      visit(row);
-      return true;
-    };
-    for await (const batch of readLineBatchesRaw(f.path, {
-      gzip: f.gzip,
-      ...(o.onBytes ? { onBytes: o.onBytes } : {}),
-    })) {
-      if (Array.isArray(batch)) {
+    const file = new SampleFileVisit(run, f, fi === lastFile, reader, row, visit);
+    const read = { gzip: f.gzip, ...(o.onBytes ? { onBytes: o.onBytes } : {}) };
+    for await (const batch of readLineBatchesRaw(f.path, read)) {
+      if (!Array.isArray(batch)) file.takeBytes(batch);
+      else
         for (const line of batch) {
-          if (takeText(line)) continue;
+          if (file.takeText(line)) continue;
           yield;
           o.onCutLine?.({ file: f.name, line: line.number });
         }
-      } else {
-        // Lines from bytes are all terminated: none can be a cut one.
-        const { bytes, starts, ends, first } = batch;
-        let k = 0;
-        if (!header) {
-          checkSampleHeader(bytes.toString('latin1', starts[0], ends[0]), f.name);
-          header = true;
-          k = 1;
-        }
-        try {
-          for (; k < starts.length; k++) {
-            reader.parseBytes(bytes, starts[k]!, ends[k]!, row);
-            if (row.channel !== channel) throw wrongChannel(first + k);
-            visit(row);
-          }
-        } catch (e) {
-          throw e instanceof SampleLineError ? malformed(e, first + k) : e;
-        }
-      }
       yield;
     }
-    if (!header && !mayBeCut) {
-      throw makeError(
-        ErrorCodes.RUN_DATA,
-        'the file is empty, without even its header row',
-        join(basename(run.dir), f.name),
-        'Restore the file from a backup; the files after it need it.',
-      );
-    }
+    file.finish();
   }
 }
 

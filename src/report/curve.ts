@@ -1,7 +1,9 @@
 /**
  * The run's curves kept in bounded memory for plotting: consecutive samples are gathered into
- * buckets of equal sample count; when the buckets fill up, neighbours merge in pairs and the
- * count per bucket doubles. Each bucket keeps its extremes, so short pulses still show.
+ * buckets of up to a stride of samples; when the buckets fill up, neighbours merge in pairs and
+ * the stride doubles. Where the voltage bends (the knee at the end of a discharge) buckets close
+ * early and are kept apart, so the bend is drawn finely. Each bucket keeps its extremes, so
+ * short pulses still show.
  */
 export interface CurvePoint {
   hostS: number;
@@ -101,28 +103,41 @@ function absorb(b: CurveBucket, p: CurvePoint): void {
   }
 }
 
+/** A bucket's voltage as its line is drawn: the loaded mean where it has loaded frames. */
+function drawnVoltage(b: CurveBucket): number {
+  return b.nOn > 0 ? b.vOnSum / b.nOn : b.vSum / b.n;
+}
+
+/**
+ * The knee of a discharge comes last and falls fast: an open bucket also closes once its
+ * voltages spread over more than 1/FINE_STEPS of the run's voltage range so far, so the fall is
+ * drawn in steps of about that size however long the run was.
+ */
+const FINE_STEPS = 100;
+
+/** Of the neighbour pairs, the share with the largest voltage change that a thinning keeps apart. */
+const KEEP_APART = 0.25;
+
 export class CurveBuilder {
   private list: CurveBucket[] = [];
   private stride = 1;
+  private vLo = Infinity;
+  private vHi = -Infinity;
 
   /** @param maxBuckets at most this many buckets are kept (between half and all of it at the end). */
   constructor(private readonly maxBuckets = 1024) {}
 
   /** One point; `p` is read, not kept, so a caller may pass the same object every time. */
   add(p: Readonly<CurvePoint>): void {
+    this.vLo = Math.min(this.vLo, p.volts);
+    this.vHi = Math.max(this.vHi, p.volts);
     const last = this.list[this.list.length - 1];
-    if (last !== undefined && last.n < this.stride) {
+    if (last !== undefined && last.n < this.stride && !this.spreads(last, p.volts)) {
       absorb(last, p);
       return;
     }
     if (this.list.length >= this.maxBuckets) {
-      const merged: CurveBucket[] = [];
-      for (let i = 0; i < this.list.length; i += 2) {
-        const b = this.list[i + 1];
-        merged.push(b ? merge(this.list[i]!, b) : this.list[i]!);
-      }
-      this.list = merged;
-      this.stride *= 2;
+      this.thin();
       this.add(p);
       return;
     }
@@ -131,6 +146,38 @@ export class CurveBuilder {
 
   get buckets(): readonly CurveBucket[] {
     return this.list;
+  }
+
+  private spreads(b: CurveBucket, volts: number): boolean {
+    const fine = (this.vHi - this.vLo) / FINE_STEPS;
+    return Math.max(b.vMax, volts) - Math.min(b.vMin, volts) > fine;
+  }
+
+  /**
+   * Merges neighbours in pairs, but for the pairs across which the drawn voltage changes most
+   * (the knee, a step of the load): those stay apart, so the curve stays fine where it bends.
+   * The stride doubles, so memory stays bounded however long the run.
+   */
+  private thin(): void {
+    const pairs = Math.floor(this.list.length / 2);
+    const change = new Float64Array(pairs);
+    for (let k = 0; k < pairs; k++)
+      change[k] = Math.abs(drawnVoltage(this.list[2 * k + 1]!) - drawnVoltage(this.list[2 * k]!));
+    // The pairs by their change, least first; all but the KEEP_APART share with most merge.
+    const order = Array.from({ length: pairs }, (_, k) => k).sort(
+      (x, y) => change[x]! - change[y]!,
+    );
+    const merging = new Uint8Array(pairs);
+    for (let j = 0; j < Math.ceil(pairs * (1 - KEEP_APART)); j++) merging[order[j]!] = 1;
+    const thinned: CurveBucket[] = [];
+    for (let i = 0; i < this.list.length; i += 2) {
+      const a = this.list[i]!;
+      const b = this.list[i + 1];
+      if (b && merging[i / 2] === 1) thinned.push(merge(a, b));
+      else thinned.push(a, ...(b ? [b] : []));
+    }
+    this.list = thinned;
+    this.stride *= 2;
   }
 }
 

@@ -1,40 +1,37 @@
-import { join } from 'node:path';
 import { fileURLToPath } from 'node:url';
 import { describe, expect, it } from 'vitest';
 import { functionSpans, shortName, tsFilesUnder } from './import-graph.js';
 
 /*
- * Small functions (common practice: a function that fits on a screen can be read whole). The
- * folders below keep every function, method and arrow function to MAX_LINES lines or fewer.
+ * Small functions (common practice: a function that fits on a screen can be read whole). Every
+ * folder of src/ keeps every function, method and arrow function to MAX_LINES lines or fewer.
  */
 
 const SRC = fileURLToPath(new URL('../../src/', import.meta.url));
 const MAX_LINES = 80;
-const FOLDERS = [
-  'core',
-  'protocol',
-  'timebase',
-  'chain',
-  'calibration',
-  'chemistry',
-  'session',
-  'schedule',
-  'sim',
-  'sources',
-  'sinks',
-  'assess',
-  'results',
-  'cli',
-];
+
+/**
+ * Named, temporary exceptions, each with the work that removes it. Nothing else may be long.
+ * The rated-capacity verdict is being reworked with the program checks; it is split there.
+ */
+const EXCEPTIONS = ['report/verdicts.ts ratedCapacityVerdict'];
 
 describe(`no function over ${MAX_LINES} lines`, () => {
-  it(`in ${FOLDERS.join(', ')}`, () => {
-    const long = FOLDERS.flatMap((folder) => tsFilesUnder(join(SRC, folder))).flatMap((file) =>
+  const long = (): Array<{ key: string; shown: string }> =>
+    tsFilesUnder(SRC).flatMap((file) =>
       functionSpans(file)
         .filter((f) => f.lines > MAX_LINES)
-        .map((f) => `${shortName(SRC, file)}:${f.line} ${f.name} (${f.lines} lines)`),
+        .map((f) => ({
+          key: `${shortName(SRC, file)} ${f.name}`,
+          shown: `${shortName(SRC, file)}:${f.line} ${f.name} (${f.lines} lines)`,
+        })),
     );
-    expect(long).toEqual([]);
+
+  it('in every folder of src/, but for the named exceptions, which are still long', () => {
+    const found = long();
+    expect(found.filter((f) => !EXCEPTIONS.includes(f.key)).map((f) => f.shown)).toEqual([]);
+    // An exception that was split is taken off the list.
+    expect(EXCEPTIONS.filter((e) => !found.some((f) => f.key === e))).toEqual([]);
   });
 
   it('the measure counts a long function, an arrow function and a method', () => {
