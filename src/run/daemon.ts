@@ -14,13 +14,13 @@ import type { RunResult } from '../record/result.js';
 import { SerialSource } from '../sources/serial-source.js';
 import { SimSource } from '../sources/sim-source.js';
 import type { Source } from '../sources/source.js';
-import { ChannelRun, type ChannelRunOptions } from './channel-run.js';
+import { ChannelRun, type ChannelOutcome, type ChannelRunOptions } from './channel-run.js';
 import { changeCutoff, handleSignals, watchRunFiles, type Watcher } from './controls.js';
 import { liveObserver, startLiveLink, type LiveLink } from './live-link.js';
 import type { LiveHub } from '../live/live-hub.js';
 import type { RunObserver } from './observer.js';
 import { RunRecorder } from './recorder.js';
-import { startRunHooks } from './run-hooks.js';
+import { startRunHooks, type RunHooks } from './run-hooks.js';
 import { findResumePoint, type ResumePoint } from './resume.js';
 import { RigLink } from './rig-link.js';
 import { resolveRunConfig, type RunConfig } from './run-config.js';
@@ -130,22 +130,14 @@ export async function startRun(
 ): Promise<RunHandle> {
   const { req, resume } = await locateRun(asked);
   const cfg = await resolveRunConfig(req, resume?.run.manifest ?? null);
-  const { chemistry, cells, scenario } = cfg;
+  const { chemistry, scenario } = cfg;
   const { startedWallMs, label, folder } = await placeRun(req, cfg, resume);
 
   // Measurement time: the simulated rig runs on a virtual clock at --speed; a real rig on the host's.
   const paced = scenario && !parts.clock ? new PacedClock(0, startedWallMs) : null;
   const clock: Clock = parts.clock ?? paced ?? new HostClock();
   const link = new RigLink(
-    parts.source ??
-      (scenario
-        ? new SimSource({ scenario, clock, profile: cfg.profile })
-        : new SerialSource({
-            path: req.port!,
-            baudRate: req.baud ?? cfg.profile.frame.baud,
-            // A second run on this port is refused with this: which run holds it.
-            holder: `run "${label}" (${folder})`,
-          })),
+    parts.source ?? rigSource(req, cfg, clock, `run "${label}" (${folder})`),
   );
   const status = new StatusPrinter(io.out);
   const timers = new RunTimers();
@@ -193,38 +185,86 @@ export async function startRun(
   run.begin();
   paced?.start(req.speed);
 
-  // A refused one-channel run measured nothing: its folder would only look like a run.
-  const dropRefused = !resume && parts.source === undefined;
-  const done = run.done.then(async (end): Promise<RunOutcome> => {
-    const channelError = wrongChannel();
-    if (channelError) {
-      // The load never went on: no frame of that channel can come.
-      const removed = dropRefused && (await removeFolder(folder));
-      io.err.write(`cellvigil: ${channelError.code}: ${channelError.message}\n`);
-      if (!removed) io.out.write(`Its record: ${folder}\n`);
-      return { exitCode: channelError.exitCode, folder, result: end.result };
-    }
-    const removed =
-      dropRefused && end.result.end_reason === 'refused' && (await removeFolder(folder));
-    printSummary(io, end, folder, cfg.calibration !== null, !removed);
-    if (!removed) await hooks.ended(folder, end.result);
-    return { exitCode: end.exitCode, folder, result: end.result };
-  });
+  const done = run.done.then((end) =>
+    settleRun(end, io, {
+      folder,
+      calibrated: cfg.calibration !== null,
+      // A refused one-channel run measured nothing: its folder would only look like a run.
+      dropRefused: !resume && parts.source === undefined,
+      wrongChannel,
+      hooks,
+    }),
+  );
+  return handleOf(run, status, { folder, cfg, source: link.source, done, live, hooks });
+}
+
+function handleOf(
+  run: ChannelRun,
+  status: StatusPrinter,
+  x: {
+    folder: string;
+    cfg: RunConfig;
+    source: Source;
+    done: Promise<RunOutcome>;
+    live: LiveLink | null;
+    hooks: RunHooks;
+  },
+): RunHandle {
+  const { cells } = x.cfg;
   return {
-    folder,
-    config: cfg,
-    source: link.source,
-    done,
+    folder: x.folder,
+    config: x.cfg,
+    source: x.source,
+    done: x.done,
     stop: (by) => run.stop(by),
     setCutoffPerCell: (volts, by) => changeCutoff(run, status, { volts: volts * cells, by, cells }),
     mark: (note, by) => run.mark(note, by),
     addObserver: (o) => run.addObserver(o),
-    liveUrl: live?.server.url ?? null,
+    liveUrl: x.live?.server.url ?? null,
     closeLive: async () => {
-      await hooks.close();
-      await live?.server.close();
+      await x.hooks.close();
+      await x.live?.server.close();
     },
   };
+}
+
+/** The rig of a one-channel run: the simulated one at --speed, or the port. */
+function rigSource(req: RunRequest, cfg: RunConfig, clock: Clock, holder: string): Source {
+  if (cfg.scenario) return new SimSource({ scenario: cfg.scenario, clock, profile: cfg.profile });
+  return new SerialSource({
+    path: req.port!,
+    baudRate: req.baud ?? cfg.profile.frame.baud,
+    // A second run on this port is refused with this: which run holds it.
+    holder,
+  });
+}
+
+/** After the result: the summary, the refused run's folder removed, the run filed. */
+async function settleRun(
+  end: ChannelOutcome,
+  io: RunIo,
+  x: {
+    folder: string;
+    calibrated: boolean;
+    dropRefused: boolean;
+    wrongChannel: () => CellvigilError | null;
+    hooks: RunHooks;
+  },
+): Promise<RunOutcome> {
+  const { folder } = x;
+  const channelError = x.wrongChannel();
+  if (channelError) {
+    // The load never went on: no frame of that channel can come.
+    const removed = x.dropRefused && (await removeFolder(folder));
+    io.err.write(`cellvigil: ${channelError.code}: ${channelError.message}\n`);
+    if (!removed) io.out.write(`Its record: ${folder}\n`);
+    return { exitCode: channelError.exitCode, folder, result: end.result };
+  }
+  const removed =
+    x.dropRefused && end.result.end_reason === 'refused' && (await removeFolder(folder));
+  printSummary(io, end, folder, x.calibrated, !removed);
+  if (!removed) await x.hooks.ended(folder, end.result);
+  return { exitCode: end.exitCode, folder, result: end.result };
 }
 
 /**
