@@ -39,7 +39,8 @@ export interface ChannelRun {
   stop(by: string): void;
   /** Volts per cell; refused below the chemistry's floor. */
   setCutoffPerCell(volts: number, by: string): { ok: true } | { ok: false; error: string };
-  mark(note: string, by: string): void;
+  /** A note in the channel's event log; refused when too long or too many. */
+  mark(note: string, by: string): { ok: true } | { ok: false; error: string };
 }
 
 /** Starts one channel's run: its folder, precheck, limits, state machine and result. */

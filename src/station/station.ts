@@ -153,8 +153,7 @@ export class Station {
         // The feed speaks for the whole string; the run takes volts per cell.
         return run.setCutoffPerCell(c.cutoff_V / (slot.plan.cells ?? 1), by);
       case 'mark':
-        run.mark(c.note, by);
-        return { ok: true };
+        return run.mark(c.note, by);
     }
   }
 

@@ -15,7 +15,8 @@ function exited(p: ChildProcess): Promise<number | null> {
     : new Promise((r) => p.once('exit', (code) => r(code)));
 }
 
-// The real daemon on the simulated rig (a small Li-ion cell run to its cutoff at 10× speed),
+// The real daemon on the simulated rig (a small Li-ion cell run to its cutoff at 4× speed: long
+// enough for `watch` to connect even when the machine is slow to start it),
 // a WebSocket viewer and `cellvigil watch` following it from start to end.
 describe('live feed of a real run', () => {
   const home = tempHome();
@@ -38,7 +39,7 @@ describe('live feed of a real run', () => {
         '--sim',
         'quick',
         '--speed',
-        '10',
+        '4',
         '--listen',
         '127.0.0.1:0',
         '--once',

@@ -55,7 +55,7 @@ describe('the station daemon', () => {
           stop: () =>
             end({ exitCode: key === 'a/2' ? 3 : 0, folder: '', result: { end_reason: 'stopped' } }),
           setCutoffPerCell: () => ({ ok: true }),
-          mark: () => undefined,
+          mark: () => ({ ok: true }),
         };
         return run;
       },

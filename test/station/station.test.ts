@@ -64,8 +64,9 @@ class FakeRun implements ChannelRun {
     this.cutoffs.push(v);
     return { ok: true as const };
   }
-  mark(note: string): void {
+  mark(note: string): { ok: true } {
     this.marks.push(note);
+    return { ok: true };
   }
 }
 
