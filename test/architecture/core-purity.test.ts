@@ -23,6 +23,8 @@ const CORE_FOLDERS = [
   'chemistry',
   'session',
   'schedule',
+  'measure',
+  'program',
 ];
 
 /** Edge files inside the core folders: they may do I/O, and no pure module may import them. */
