@@ -8,7 +8,8 @@ import { ErrorCodes, makeError, type ErrorCode } from '../core/errors.js';
 import { meaningful } from '../core/meaningful.js';
 import type { ChargeLimits, ChemistryProfile, Sourced } from './chemistry-types.js';
 
-const sourced = {
+/** A value with the source it comes from (a profile's every limit is one). */
+export const SOURCED_SCHEMA = {
   type: 'object',
   additionalProperties: false,
   required: ['value', 'source'],
@@ -38,14 +39,14 @@ export const chargeSchema = {
   properties: {
     method: { type: 'string', enum: ['cc-cv', 'charger', 'none'] },
     source: { type: 'string', minLength: 1, maxLength: 120, pattern: '\\S' },
-    max_V_per_cell: sourced,
-    min_temperature_C: sourced,
-    max_temperature_C: sourced,
-    default_current_C: sourced,
-    max_current_C: sourced,
-    timeout_h: sourced,
-    termination_current_C: sourced,
-    storage_V_per_cell: sourced,
+    max_V_per_cell: SOURCED_SCHEMA,
+    min_temperature_C: SOURCED_SCHEMA,
+    max_temperature_C: SOURCED_SCHEMA,
+    default_current_C: SOURCED_SCHEMA,
+    max_current_C: SOURCED_SCHEMA,
+    timeout_h: SOURCED_SCHEMA,
+    termination_current_C: SOURCED_SCHEMA,
+    storage_V_per_cell: SOURCED_SCHEMA,
   },
 } as const;
 

@@ -5,7 +5,13 @@ import { parseConfigYaml } from '../core/config-file.js';
 import { ErrorCodes, makeError, type CellvigilError } from '../core/errors.js';
 import type { ChemistryProfile, Sourced } from './chemistry-types.js';
 import { SOURCED_FIELDS, type SourcedField } from './chemistries.js';
-import { chargeSchema, checkChargeBlock, toChargeLimits, type RawCharge } from './charge-limits.js';
+import {
+  chargeSchema,
+  checkChargeBlock,
+  SOURCED_SCHEMA,
+  toChargeLimits,
+  type RawCharge,
+} from './charge-limits.js';
 
 /**
  * The chemistry file shipped with the package. Source (`src/chemistry/`) and build
@@ -17,28 +23,18 @@ export const DEFAULT_CHEMISTRIES_PATH: string = fileURLToPath(
 
 const ID_PATTERN = '^[a-z0-9][a-z0-9-]{0,31}$';
 
-const sourcedSchema = {
-  type: 'object',
-  additionalProperties: false,
-  required: ['value', 'source'],
-  properties: {
-    value: { type: 'number' },
-    source: { type: 'string', minLength: 1, maxLength: 120, pattern: '\\S' },
-  },
-} as const;
-
 const profileSchema = {
   type: 'object',
   additionalProperties: false,
   required: ['name', ...SOURCED_FIELDS, 'cautions'],
   properties: {
     name: { type: 'string', minLength: 1, maxLength: 80, pattern: '\\S' },
-    nominal_V_per_cell: sourcedSchema,
-    cutoff_V_per_cell: sourcedSchema,
-    floor_V_per_cell: sourcedSchema,
-    max_rest_V_per_cell: sourcedSchema,
-    min_rest_V_per_cell: sourcedSchema,
-    max_temperature_C: sourcedSchema,
+    nominal_V_per_cell: SOURCED_SCHEMA,
+    cutoff_V_per_cell: SOURCED_SCHEMA,
+    floor_V_per_cell: SOURCED_SCHEMA,
+    max_rest_V_per_cell: SOURCED_SCHEMA,
+    min_rest_V_per_cell: SOURCED_SCHEMA,
+    max_temperature_C: SOURCED_SCHEMA,
     charge: chargeSchema,
     cautions: {
       type: 'array',

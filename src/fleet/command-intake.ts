@@ -1,5 +1,6 @@
 import type { ControlReply, StationControlRequest } from '../live/live-types.js';
 import { tokenMatches } from '../live/tokens.js';
+import { requestOf } from '../live/control-intake.js';
 import { FLEET_VERSION, parsePayload, type FleetReply, type ReplyCode } from './payloads.js';
 
 /**
@@ -55,18 +56,6 @@ export function takeCommand(
   const control = target(topicChannel);
   if (!control)
     return reply(id, m.type, 'refused', `this station has no run on channel ${topicChannel}`);
-  const request: StationControlRequest =
-    m.type === 'stop'
-      ? { type: 'stop' }
-      : m.type === 'set-cutoff'
-        ? {
-            type: 'set-cutoff',
-            cutoff_V: m.cutoff_V,
-            ...(m.confirm === true ? { confirm: true } : {}),
-          }
-        : m.type === 'mark'
-          ? { type: 'mark', note: m.note }
-          : { type: 'start', ...(m.cell_id !== undefined ? { cell_id: m.cell_id } : {}) };
-  const r = control(request, id !== null ? `${from} (command ${id})` : from);
+  const r = control(requestOf(m), id !== null ? `${from} (command ${id})` : from);
   return r.ok ? reply(id, m.type, null) : reply(id, m.type, 'refused', r.error);
 }

@@ -24,8 +24,11 @@ export function readControl(data: RawData, isBinary: boolean): Intake {
   return { ok: true, id, message: m, request: requestOf(m) };
 }
 
-/** The request alone, without the version, token, id and channel that carried it. */
-function requestOf(m: ClientMessage): StationControlRequest {
+/**
+ * The request alone, without the version, token, id and channel that carried it: one reading
+ * for the live feed's messages and the fleet's commands, so both pass the same fields on.
+ */
+export function requestOf(m: StationControlRequest): StationControlRequest {
   if (m.type === 'stop') return { type: m.type };
   if (m.type === 'set-cutoff')
     return { type: m.type, cutoff_V: m.cutoff_V, ...(m.confirm === true ? { confirm: true } : {}) };
