@@ -46,6 +46,54 @@ export interface RunResult {
   service_output_h: number | null;
   /** What is written on the cell, as the user gave it; null when none was given. */
   cell_id: string | null;
+  /** Program runs only (docs/programs.md): the program's name, each segment's and each cycle's figures. */
+  program?: string;
+  segments?: SegmentFigures[];
+  cycles?: CycleFigures[];
+  cycle_trend?: CycleTrendFigures | null;
+}
+
+/** One segment of a program run with what went in or out of the cell during it. */
+export interface SegmentFigures {
+  index: number;
+  kind: 'rest' | 'discharge' | 'charge';
+  purpose: 'program' | 'storage';
+  step: string;
+  cycle: number | null;
+  started_ms: number;
+  ended_ms: number;
+  end_reason: string;
+  setpoint: Record<string, number | string | null>;
+  duration_s: number;
+  /** Charge moved, Ah, never negative: out of the cell for a discharge, into it for a charge. */
+  charge_Ah: number;
+  energy_Wh: number;
+  /** Mean of the current's magnitude while the load or charger was on, A; null at rest. */
+  mean_current_A: number | null;
+  end_voltage_V: number | null;
+  uncertainty: { charge_Ah: FigureUncertainty; energy_Wh: FigureUncertainty };
+}
+
+/** One full discharge of a program (it reached its cutoff): one cycle's capacity. */
+export interface CycleFigures {
+  /** The repeat pass, or the count of full discharges when the program has no repeat. */
+  cycle: number;
+  /** Index of the discharge segment. */
+  segment: number;
+  capacity_Ah: number;
+  energy_Wh: number;
+  mean_current_A: number | null;
+  uncertainty: { capacity_Ah: FigureUncertainty; energy_Wh: FigureUncertainty };
+  /** This cycle's capacity over the first's. */
+  of_first: number;
+}
+
+/** The cycle-to-cycle trend (least squares; null members under two cycles). */
+export interface CycleTrendFigures {
+  slope_Ah_per_cycle: number | null;
+  slope_share_per_cycle: number | null;
+  change_Ah: number | null;
+  change_beyond_uncertainty: boolean | null;
 }
 
 /** A rig clock off by more than this is worth a warning (its own timing would mislead). */
@@ -208,6 +256,38 @@ const SCHEMA: SchemaObject = {
     rig_clock_error_ppm: { type: ['number', 'null'] },
     calibration_id: { type: 'string' },
     uncertainty: { type: 'object', properties: { capacity_Ah: figure, energy_Wh: figure } },
+    program: { type: 'string' },
+    segments: {
+      type: 'array',
+      items: {
+        type: 'object',
+        required: ['index', 'kind', 'cycle', 'charge_Ah', 'energy_Wh', 'end_reason'],
+        properties: {
+          index: count,
+          kind: { enum: ['rest', 'discharge', 'charge'] },
+          cycle: { type: ['integer', 'null'] },
+          charge_Ah: num,
+          energy_Wh: num,
+          end_reason: { type: 'string' },
+          uncertainty: { type: 'object', properties: { charge_Ah: figure, energy_Wh: figure } },
+        },
+      },
+    },
+    cycles: {
+      type: 'array',
+      items: {
+        type: 'object',
+        required: ['cycle', 'segment', 'capacity_Ah'],
+        properties: {
+          cycle: { type: 'integer', minimum: 1 },
+          segment: count,
+          capacity_Ah: num,
+          energy_Wh: num,
+          uncertainty: { type: 'object', properties: { capacity_Ah: figure, energy_Wh: figure } },
+        },
+      },
+    },
+    cycle_trend: { type: ['object', 'null'] },
   },
 };
 
