@@ -116,6 +116,11 @@ export class ProgramSession extends Session {
     return { reason: this.endReasonP, detail: this.endDetailP };
   }
 
+  /** Frames whose readings could not be true, left out of the integrals. */
+  get implausibleCount(): number {
+    return this.implausibleFrames;
+  }
+
   /** The segment running now, or null. */
   get segment(): { index: number; kind: string; step: string; cycle: number | null } | null {
     return this.seq.current;

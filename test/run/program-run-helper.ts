@@ -30,7 +30,7 @@ export function cell(over: Partial<ScriptedCell> = {}): ScriptedCell {
 
 export async function programRun(
   c: ScriptedCell,
-  x: { v1?: boolean; program?: string } = {},
+  x: { v1?: boolean; program?: string; neverEnds?: boolean; stopAtMs?: number } = {},
 ): Promise<{ outcome: RunOutcome; rig: ScriptedRig11; folder: string; err: string }> {
   const dir = mkdtempSync(join(tmpdir(), 'cv-program-'));
   const programPath = join(dir, 'program.yaml');
@@ -45,6 +45,7 @@ export async function programRun(
     chargerA: 0.3,
     chargerV: 4.2,
     ...(x.v1 ? { v1: true } : {}),
+    ...(x.neverEnds ? { neverEnds: true } : {}),
   });
   const io = { out: new PassThrough(), err: new PassThrough() };
   io.out.resume();
@@ -73,6 +74,7 @@ export async function programRun(
   void run.done.then(() => (ended = true));
   for (let t = 0; !ended && t < 3 * 3_600_000; t += 100) {
     clock.advance(100);
+    if (t === x.stopAtMs) run.stop('the test');
     if (t % 1000 === 0) await new Promise((r) => setImmediate(r));
   }
   return { outcome: await run.done, rig, folder: run.folder, err };

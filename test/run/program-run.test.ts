@@ -2,7 +2,7 @@ import { readFileSync } from 'node:fs';
 import { join } from 'node:path';
 import { describe, expect, it } from 'vitest';
 import { readSegments } from '../../src/record/segments.js';
-import { cell, programRun } from './program-run-helper.js';
+import { cell, PROGRAM, programRun } from './program-run-helper.js';
 
 describe('a program run against a scripted protocol 1.1 rig', () => {
   // Charge is the time integral of current (physics): the rig's own integral of its true
@@ -63,6 +63,31 @@ describe('a program run against a scripted protocol 1.1 rig', () => {
     const segs = await readSegments(folder);
     expect(segs).toHaveLength(1);
     expect(segs[0]!.end_reason).toBe('over_temperature');
+    expect(outcome.result.cycles).toEqual([]);
+  }, 60_000);
+
+  // A charge step's timeout (the chemistry's timeout_h caps it; here the program's 0.02 h, 72 s)
+  // ends a charge whose charger never terminates; the charger is switched off.
+  it('a charge that never terminates ends on its timeout, exit 3', async () => {
+    const program = PROGRAM.replace('timeout_h: 1', 'timeout_h: 0.02');
+    const big = cell({ capacityAh: 1 });
+    const { outcome, rig, folder } = await programRun(big, { program, neverEnds: true });
+    expect(outcome.result.end_reason).toBe('charge_timeout');
+    expect(outcome.exitCode).toBe(3);
+    expect(rig.mode).toBe('rest');
+    const segs = await readSegments(folder);
+    expect(segs.map((s) => s.end_reason)).toEqual(['charge_timeout']);
+    expect(segs[0]!.ended_ms - segs[0]!.started_ms).toBeGreaterThanOrEqual(72_000);
+    expect(segs[0]!.ended_ms - segs[0]!.started_ms).toBeLessThan(73_000);
+  }, 60_000);
+
+  it('a stop mid-discharge ends the segment as stopped, exit 0, the channel at rest', async () => {
+    const { outcome, rig, folder } = await programRun(cell(), { stopAtMs: 320_000 });
+    expect(outcome.result.end_reason).toBe('stopped');
+    expect(outcome.exitCode).toBe(0);
+    expect(rig.mode).toBe('rest');
+    const segs = await readSegments(folder);
+    expect(segs.map((s) => s.end_reason)).toEqual(['termination_current', 'rest_time', 'stopped']);
     expect(outcome.result.cycles).toEqual([]);
   }, 60_000);
 });
