@@ -243,6 +243,17 @@ export class ProgramSession extends Session {
     return out;
   }
 
+  /** An edited chemistry may only tighten the limits (the caller checks): the ceiling applies at once. */
+  override updateLimits(x: {
+    floorV: number;
+    maxTemperatureC: number;
+    cutoffV: number;
+  }): { ok: true } | { ok: false; why: string } {
+    const r = super.updateLimits(x);
+    if (r.ok) this.p.maxTemperatureC = x.maxTemperatureC;
+    return r;
+  }
+
   override setCutoff(): { ok: false; why: string } {
     return {
       ok: false,
