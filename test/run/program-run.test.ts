@@ -111,4 +111,17 @@ describe('a program run against a scripted protocol 1.1 rig', () => {
     };
     await expect(resolveRunConfig(req, manifest)).rejects.toThrow(/cannot be resumed.*--new/);
   }, 60_000);
+
+  // Power = voltage × current (physics): a 3 W step on a current-regulated load is held by
+  // re-setting the current from the measured voltage every 5 s, so the mean power of the
+  // segment (its energy over its load-on time) stays within a percent or two of 3 W.
+  it('a constant-power discharge re-sets the current as the voltage falls', async () => {
+    const program = PROGRAM.replace('current_A: 1.0', 'power_W: 3.0');
+    const { outcome, rig } = await programRun(cell(), { program });
+    expect(outcome.result.end_reason).toBe('program_complete');
+    const dis = outcome.result.segments![2]!;
+    const onH = dis.charge_Ah / dis.mean_current_A!;
+    expect(Math.abs(dis.energy_Wh / onH / 3.0 - 1)).toBeLessThan(0.02);
+    expect(rig.received.filter((l) => l.startsWith('C,ISET')).length).toBeGreaterThan(3);
+  }, 60_000);
 });
