@@ -385,6 +385,7 @@ export class ProgramSession extends Session {
       currentA: m.amps,
       temperatureC: m.thermistor === 'ok' ? m.celsius : null,
       mode: st.mode,
+      setpointNotHeld: st.setpointNotHeld,
     });
     this.apply(u, m, out);
     if (this.phase === 'running') this.holdPower(m);

@@ -19,6 +19,8 @@ export interface ProgramFrame {
   temperatureC: number | null;
   /** The mode the rig says is active. */
   mode: ChannelMode;
+  /** The rig says its regulated load cannot hold the setpoint (flag bit 5 of protocol 1.1). */
+  setpointNotHeld?: boolean;
 }
 
 export type Intent =
@@ -34,6 +36,7 @@ export type SegmentEnd =
   | 'cutoff'
   | 'storage_voltage'
   | 'discharge_time'
+  | 'setpoint_not_held'
   | 'rest_time'
   | 'voltage_settled'
   | 'charge_timeout'

@@ -143,5 +143,8 @@ export function plannedEnd(
   if (f.voltageV <= step.cutoffV) return step.done;
   if (step.timeoutS !== null && f.t_ms - tr.startedMs >= step.timeoutS * 1000)
     return 'discharge_time';
+  // The cell can no longer drive the set current through the load: the step is over, and
+  // its current no longer the stated one (so it is no full cycle).
+  if (held(f.setpointNotHeld === true, f, tr, o.holdMs)) return 'setpoint_not_held';
   return null;
 }

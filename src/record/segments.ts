@@ -23,6 +23,7 @@ const SEGMENT_ENDS: readonly (SegmentEnd | 'interrupted')[] = [
   'cutoff',
   'storage_voltage',
   'discharge_time',
+  'setpoint_not_held',
   'rest_time',
   'voltage_settled',
   'charge_timeout',

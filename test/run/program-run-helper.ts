@@ -30,7 +30,13 @@ export function cell(over: Partial<ScriptedCell> = {}): ScriptedCell {
 
 export async function programRun(
   c: ScriptedCell,
-  x: { v1?: boolean; program?: string; neverEnds?: boolean; stopAtMs?: number } = {},
+  x: {
+    v1?: boolean;
+    program?: string;
+    neverEnds?: boolean;
+    stopAtMs?: number;
+    trimBoundBelowV?: number;
+  } = {},
 ): Promise<{ outcome: RunOutcome; rig: ScriptedRig11; folder: string; err: string; out: string }> {
   const dir = mkdtempSync(join(tmpdir(), 'cv-program-'));
   const programPath = join(dir, 'program.yaml');
@@ -46,6 +52,7 @@ export async function programRun(
     chargerV: 4.2,
     ...(x.v1 ? { v1: true } : {}),
     ...(x.neverEnds ? { neverEnds: true } : {}),
+    ...(x.trimBoundBelowV !== undefined ? { trimBoundBelowV: x.trimBoundBelowV } : {}),
   });
   const io = { out: new PassThrough(), err: new PassThrough() };
   let out = '';

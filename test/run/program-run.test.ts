@@ -124,4 +124,18 @@ describe('a program run against a scripted protocol 1.1 rig', () => {
     expect(Math.abs(dis.energy_Wh / onH / 3.0 - 1)).toBeLessThan(0.02);
     expect(rig.received.filter((l) => l.startsWith('C,ISET')).length).toBeGreaterThan(3);
   }, 60_000);
+
+  // docs/protocol.md, "How a host uses 1.1": a setpoint not held for a few seconds ends the step.
+  it('a discharge whose setpoint the load cannot hold ends, and is no cycle', async () => {
+    const { outcome, folder } = await programRun(cell(), { trimBoundBelowV: 3.4 });
+    expect(outcome.result.end_reason).toBe('program_complete');
+    const segs = await readSegments(folder);
+    expect(segs.map((s) => s.end_reason)).toEqual([
+      'termination_current',
+      'rest_time',
+      'setpoint_not_held',
+    ]);
+    expect(outcome.result.cycles).toEqual([]);
+    expect(outcome.result.capacity_Ah).toBe(0);
+  }, 60_000);
 });

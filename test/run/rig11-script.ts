@@ -35,6 +35,8 @@ export interface ScriptedRigOptions {
   chargerA: number;
   chargerV: number;
   frameMs?: number;
+  /** Below this loaded voltage the load's trim is at its bound (flag bit 5), as a real one is. */
+  trimBoundBelowV?: number;
   /** A charger that never ends its charge (its termination broken). */
   neverEnds?: boolean;
 }
@@ -150,7 +152,12 @@ export class ScriptedRig11 implements Source {
       2 ** this.o.profile.adc.bits - 1,
       Math.round(charging ? -amps / chargerApc : amps / this.chain.ampsPerCount),
     );
-    const flags = this.o.v1 ? (this.mode === 'discharge' ? 1 : 0) : FLAGS[this.mode];
+    const bound = this.mode === 'discharge' && volts < (this.o.trimBoundBelowV ?? -Infinity);
+    const flags = this.o.v1
+      ? this.mode === 'discharge'
+        ? 1
+        : 0
+      : FLAGS[this.mode] | (bound ? 0x20 : 0);
     const lines = this.pending.splice(0);
     lines.push(
       encodeDataFrame({
