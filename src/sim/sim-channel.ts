@@ -125,6 +125,11 @@ export class SimChannel {
         `rig profile "${profile.name ?? 'unnamed'}", key charger.monitor_A_per_V`,
         'Use a rig profile for a rig with chargers (config/rigs/sim-cc.yaml for the simulated one).',
       );
+    const cc = opts.constantCurrent;
+    if (cc && !(cc.iMinRaw >= 1 && cc.iMinRaw <= cc.iMaxRaw && cc.iMaxRaw <= top))
+      throw new RangeError(
+        `channel ${this.channel}: setpoint range ${cc.iMinRaw}..${cc.iMaxRaw} must lie in 1..${top}`,
+      );
     this.charger = opts.charger
       ? new Charger({ ...opts.charger, monitorAPerV: this.monitorAPerV })
       : null;
