@@ -8,7 +8,8 @@ import { VirtualClock } from '../../src/core/clock.js';
 import { frameState } from '../../src/protocol/frame-state.js';
 import { SimRig } from '../../src/sim/sim-rig.js';
 import { WATCHDOG_MS } from '../../src/sim/sim-rig.js';
-import { IdealSource } from './helpers.js';
+import { BENCH_PROFILE, IdealSource, SCENARIO_FILE } from './helpers.js';
+import { buildSimRig, loadScenarios, pickScenario } from '../../src/sim/scenarios.js';
 import { raw, rig11, SIM_CC_PROFILE } from './helpers11.js';
 
 describe('simulated rig, protocol 1.1: the hello exchange', () => {
@@ -181,5 +182,23 @@ describe('simulated rig, protocol 1.1: the heartbeat watchdog covers chargers', 
     r.send(raw('MODE,0,C'));
     r.clock.advance(600);
     expect(r.frames().at(-1)!.flags).toBe(0x18);
+  });
+});
+
+describe('cycling scenarios', () => {
+  it('are found by name like the others, kept apart from the v1 scenarios', () => {
+    const set = loadScenarios(SCENARIO_FILE);
+    expect([...set.cycling.keys()]).toEqual(['cc-quick', 'cc-cycle', 'cc-no-end', 'cc-hot-charge']);
+    for (const name of set.cycling.keys()) {
+      expect(set.byName.has(name)).toBe(false);
+      expect(pickScenario(set, name).charger).toBeDefined();
+    }
+  });
+
+  it('a charger on a rig profile without a charger monitor is a configuration error', () => {
+    const set = loadScenarios(SCENARIO_FILE);
+    expect(() =>
+      buildSimRig(pickScenario(set, 'cc-quick'), new VirtualClock(), BENCH_PROFILE),
+    ).toThrow(expect.objectContaining({ code: 'CV_CONFIG_INVALID' }) as Error);
   });
 });
