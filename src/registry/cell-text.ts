@@ -113,7 +113,7 @@ function cyclesText(run: RunRecord): string {
       String(c.cycle),
       `${c.capacity_Ah.toFixed(4)} ± ${dash(c.capacity_u_Ah, (u) => (2 * u).toFixed(4))}`,
       dash(c.of_first, (x) => `${(x * 100).toFixed(1)} %`),
-      c.energy_Wh.toFixed(3),
+      dash(c.energy_Wh, (x) => x.toFixed(3)),
       dash(c.mean_current_A, (x) => x.toFixed(3)),
     ]),
   ])}`;

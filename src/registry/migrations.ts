@@ -64,7 +64,7 @@ export const MIGRATIONS: readonly string[] = [
     cycle          INTEGER NOT NULL,
     capacity_Ah    REAL NOT NULL,
     capacity_u_Ah  REAL,
-    energy_Wh      REAL NOT NULL,
+    energy_Wh      REAL,
     energy_u_Wh    REAL,
     mean_current_A REAL,
     of_first       REAL,

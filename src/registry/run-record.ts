@@ -39,7 +39,7 @@ export interface CycleRecord {
   capacity_Ah: number;
   /** Standard uncertainty (k = 1); null when the result states none. */
   capacity_u_Ah: number | null;
-  energy_Wh: number;
+  energy_Wh: number | null;
   energy_u_Wh: number | null;
   mean_current_A: number | null;
   /** This cycle's capacity over the run's first cycle's. */
@@ -136,7 +136,7 @@ function cyclesOf(cycles: readonly CycleFigures[]): { full_cycles: number; cycle
       segment: c.segment,
       capacity_Ah: c.capacity_Ah,
       capacity_u_Ah: finiteOrNull(c.uncertainty?.capacity_Ah?.standard),
-      energy_Wh: c.energy_Wh,
+      energy_Wh: finiteOrNull(c.energy_Wh),
       energy_u_Wh: finiteOrNull(c.uncertainty?.energy_Wh?.standard),
       mean_current_A: finiteOrNull(c.mean_current_A),
       of_first: finiteOrNull(c.of_first),

@@ -116,6 +116,32 @@ describe('the registry takes each cycle of a program run', () => {
     expect(run!.cycles![2]!.of_first).toBeCloseTo(2.45 / 2.5, 12);
   });
 
+  it('files a cycle that carries only the keys result.json requires', async () => {
+    const { runs, db } = setup();
+    const base = programResult('M-1', '2026-05-01T08:00:00.000Z', [2.5], 'program_complete');
+    const folder = writeRun(join(runs, 'm'), {
+      ...base,
+      cycles: [{ cycle: 1, segment: 2, capacity_Ah: 2.5 }],
+    });
+    expect((await fileRunResult(db, folder)).status).toBe('filed');
+    const reg = Registry.open(db);
+    const h = cellHistory('M-1', null, reg.runsOf('M-1'), TRUST);
+    reg.close();
+    expect(h.rows[0]!.run.cycles).toEqual([
+      {
+        cycle: 1,
+        segment: 2,
+        capacity_Ah: 2.5,
+        capacity_u_Ah: null,
+        energy_Wh: null,
+        energy_u_Wh: null,
+        mean_current_A: null,
+        of_first: null,
+      },
+    ]);
+    expect(historyText({ history: h, grade: null } as never)).toMatch(/^1 +2\.5000 ± — +— +— +—$/m);
+  });
+
   it('a rebuild from the run folders files the same cycles', async () => {
     const { runs, db } = setup();
     writeRun(
