@@ -57,6 +57,7 @@ export interface SimTruth {
   stateOfCharge: number;
   openCircuitV: number;
   terminalV: number;
+  /** Positive out of the cell (discharging), negative into it (charging). */
   currentA: number;
   temperatureC: number;
   loadOn: boolean;
@@ -95,6 +96,11 @@ const PHYSICS_STEP_MS = 10;
  * rig's whole use of it); anything else → `E,<code>,<text>` with code CRC, SYNTAX, RANGE,
  * CHANNEL or OVERLONG. The watchdog is the rig's, not a channel's: it counts true time from the
  * later of the last BEAT and a load switching on, and when it runs out it cuts every load.
+ *
+ * A rig with a channel that has a constant-current load or a charger speaks protocol 1.1
+ * instead (docs/protocol.md, "Version 1.1"): K lines after every hello, ISET, PSET and MODE
+ * answered as commands11.ts decides, a frame at once after every mode change, flags bits 2–5,
+ * and a watchdog over chargers too that says E,BEAT_LOST when it cuts.
  */
 export class SimRig {
   private readonly clock: Clock;
