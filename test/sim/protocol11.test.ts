@@ -6,6 +6,7 @@
 import { describe, expect, it } from 'vitest';
 import { VirtualClock } from '../../src/core/clock.js';
 import { frameState } from '../../src/protocol/frame-state.js';
+import { truthSnapshot } from '../../src/sim/sim-port.js';
 import { SimRig } from '../../src/sim/sim-rig.js';
 import { WATCHDOG_MS } from '../../src/sim/sim-rig.js';
 import { BENCH_PROFILE, IdealSource, SCENARIO_FILE } from './helpers.js';
@@ -200,5 +201,23 @@ describe('cycling scenarios', () => {
     expect(() =>
       buildSimRig(pickScenario(set, 'cc-quick'), new VirtualClock(), BENCH_PROFILE),
     ).toThrow(expect.objectContaining({ code: 'CV_CONFIG_INVALID' }) as Error);
+  });
+});
+
+describe('the truth file of a 1.1 rig', () => {
+  it('carries the mode, the charge put in and the mode log; a v1 rig’s has none of it', () => {
+    const r = rig11('cc-quick');
+    r.send(raw('MODE,0,C'));
+    r.run(60);
+    const snap = truthSnapshot(r.rig, r.clock) as {
+      truth11: { mode: string; chargePhase: string; chargedAh: number };
+      mode_log: unknown[];
+    };
+    expect(snap.truth11.mode).toBe('charge');
+    expect(snap.truth11.chargePhase).toBe('cc');
+    // 25 mA for 60 s is 0.4167 mAh (charge = current × time).
+    expect(snap.truth11.chargedAh).toBeCloseTo((0.025 * 60) / 3600, 6);
+    expect(snap.mode_log).toEqual([{ atMs: 0, mode: 'charge', cause: 'host' }]);
+    expect(truthSnapshot(rig11('quick').rig, new VirtualClock())).not.toHaveProperty('truth11');
   });
 });
