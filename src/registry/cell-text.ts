@@ -3,6 +3,7 @@ import type { PackPlan } from '../pack/pack-plan.js';
 import { gradeLabel } from './grading.js';
 import type { CellView, GradedRow } from './cell-queries.js';
 import { isoDate } from './history-page.js';
+import type { RunRecord } from './run-record.js';
 
 const dash = (x: number | null | undefined, f: (x: number) => string): string =>
   x === null || x === undefined || !Number.isFinite(x) ? '—' : f(x);
@@ -82,6 +83,7 @@ export function historyText(v: CellView): string {
       ]),
     ]),
   );
+  for (const r of h.rows) if (r.run.cycles?.length) lines.push(cyclesText(r.run));
   const f = h.fade;
   lines.push(
     f === null
@@ -100,6 +102,21 @@ export function historyText(v: CellView): string {
       `grade: ${gradeLabel(g)}${g.status === 'ungraded' ? ` (${g.reason})` : g.status === 'recycle' ? ` (${g.why})` : ''}`,
     );
   return `${lines.join('\n')}\n`;
+}
+
+/** A program run's cycles: each full discharge's capacity with its expanded uncertainty. */
+function cyclesText(run: RunRecord): string {
+  const started = run.started_wall.slice(0, 16).replace('T', ' ');
+  return `cycles of the run started ${started} (its figure above is the last one's):\n${table([
+    ['cycle', 'capacity Ah (±, k=2)', 'of first', 'energy Wh', 'mean A'],
+    ...(run.cycles ?? []).map((c) => [
+      String(c.cycle),
+      `${c.capacity_Ah.toFixed(4)} ± ${dash(c.capacity_u_Ah, (u) => (2 * u).toFixed(4))}`,
+      dash(c.of_first, (x) => `${(x * 100).toFixed(1)} %`),
+      dash(c.energy_Wh, (x) => x.toFixed(3)),
+      dash(c.mean_current_A, (x) => x.toFixed(3)),
+    ]),
+  ])}`;
 }
 
 export function packText(plan: PackPlan): string {

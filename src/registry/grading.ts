@@ -30,7 +30,7 @@ const K = 2;
 
 type TrustFields = Pick<
   RunRecord,
-  'end_reason' | 'calibration_id' | 'capacity_Ah' | 'capacity_u_Ah'
+  'end_reason' | 'calibration_id' | 'capacity_Ah' | 'capacity_u_Ah' | 'full_cycles'
 >;
 
 /** What grading reads of a run (lists fetch only these columns). */
@@ -40,8 +40,10 @@ export type GradeRun = TrustFields &
 /** The reasons a run cannot be trusted for grading and fade; empty when it can. */
 export function runDoubts(run: TrustFields, trust: TrustRules): RunDoubt[] {
   const doubts: RunDoubt[] = [];
-  // Only a discharge that reached the end-of-discharge voltage measured the capacity.
-  if (run.end_reason !== 'cutoff') doubts.push('interrupted');
+  // Only a discharge that reached the end-of-discharge voltage measured the capacity: a run
+  // that ended at its cutoff, or a program run with a full cycle (its figures are the latest
+  // full cycle's, whatever ended the program later).
+  if (run.end_reason !== 'cutoff' && !((run.full_cycles ?? 0) > 0)) doubts.push('interrupted');
   if (trust.require_calibration && run.calibration_id === 'none') doubts.push('uncalibrated');
   const u = run.capacity_u_Ah;
   if (

@@ -142,6 +142,27 @@ function runTable(h: CellHistory): string {
   return `<table>${head}<tbody>${rows.join('\n')}</tbody></table>`;
 }
 
+/** Each program run's cycles: the capacity of every full discharge, with its uncertainty. */
+function cycleTables(h: CellHistory): string {
+  const programs = h.rows.filter((r) => r.run.cycles !== undefined);
+  if (programs.length === 0) return '';
+  const head =
+    '<thead><tr><th>cycle</th><th>capacity, Ah (± k = 2)</th><th>of the first cycle</th><th>energy, Wh</th><th>mean current, A</th></tr></thead>';
+  const tables = programs.map(({ run }) => {
+    const rows = (run.cycles ?? []).map((c) => {
+      const u = c.capacity_u_Ah === null ? '—' : num(2 * c.capacity_u_Ah, 4);
+      return `<tr><td>${c.cycle}</td>${td('capacity_Ah', c.capacity_Ah, `${num(c.capacity_Ah, 4)} ± ${u}`)}${td('of_first', c.of_first, c.of_first === null ? '—' : `${num(c.of_first * 100, 1)} %`)}${td('energy_Wh', c.energy_Wh, num(c.energy_Wh, 3))}${td('mean_current_A', c.mean_current_A, num(c.mean_current_A, 3))}</tr>`;
+    });
+    const caption = `Run started ${esc(run.started_wall.slice(0, 16).replace('T', ' '))} (${esc(run.folder)}), ended ${esc(run.end_reason)}: ${run.cycles?.length ?? 0} full cycle(s)`;
+    return `<table><caption>${caption}</caption>${head}<tbody>${rows.join('\n')}</tbody></table>`;
+  });
+  return section(
+    'cycles',
+    'Cycles of program runs',
+    `<p>A program run's own figure in the plots and tables above is its latest full cycle's; grading and fade count each run once.</p>\n${tables.join('\n')}`,
+  );
+}
+
 export function historyPage(h: CellHistory, grade: CellGrade | null, generatedAt: string): string {
   const body = [
     `<h1>Cell ${esc(h.cell_id)}</h1>`,
@@ -150,6 +171,9 @@ export function historyPage(h: CellHistory, grade: CellGrade | null, generatedAt
     section('capacity', 'Capacity over time', capacityPlot(h)),
     section('resistance', 'DC internal resistance over time', resistancePlot(h)),
     section('runs', 'Runs', runTable(h)),
-  ].join('\n');
+    cycleTables(h),
+  ]
+    .filter((s) => s !== '')
+    .join('\n');
   return page(`Cell ${h.cell_id}: history`, body, generatedAt);
 }

@@ -53,4 +53,22 @@ export const MIGRATIONS: readonly string[] = [
     capacity_ms       INTEGER
   ) WITHOUT ROWID;
   `,
+  // 2: a program run's cycles (one row per full discharge, linked to its run), and how many
+  // full cycles the run had (null for a run that was one discharge).
+  `
+  ALTER TABLE runs ADD COLUMN full_cycles INTEGER;
+
+  CREATE TABLE cycles (
+    run_key        TEXT NOT NULL,
+    segment        INTEGER NOT NULL,
+    cycle          INTEGER NOT NULL,
+    capacity_Ah    REAL NOT NULL,
+    capacity_u_Ah  REAL,
+    energy_Wh      REAL,
+    energy_u_Wh    REAL,
+    mean_current_A REAL,
+    of_first       REAL,
+    PRIMARY KEY (run_key, segment)
+  ) WITHOUT ROWID;
+  `,
 ];

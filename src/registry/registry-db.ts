@@ -10,7 +10,7 @@ import { ErrorCodes, makeError } from '../core/errors.js';
 import { RUN_DOUBTS, type TrustRules, type TrustSummary } from './grading.js';
 import type { CellInfo } from './history.js';
 import { MIGRATIONS } from './migrations.js';
-import type { RunRecord } from './run-record.js';
+import type { CycleRecord, RunRecord } from './run-record.js';
 import { registryError } from './sqlite-errors.js';
 
 export interface RegistryOpenOptions {
@@ -58,6 +58,7 @@ type SummaryRow = [
   number | null,
   number | null,
   number | null,
+  number | null,
 ];
 
 export const SORT_KEYS = ['id', 'capacity', 'resistance', 'soh', 'tested', 'rated'] as const;
@@ -93,7 +94,29 @@ const RUN_COLUMNS = [
   'temperature_C',
   'duration_s',
   'calibration_id',
+  'full_cycles',
 ] as const;
+
+const CYCLE_COLUMNS = [
+  'run_key',
+  'segment',
+  'cycle',
+  'capacity_Ah',
+  'capacity_u_Ah',
+  'energy_Wh',
+  'energy_u_Wh',
+  'mean_current_A',
+  'of_first',
+] as const;
+
+const INSERT_CYCLE = `INSERT INTO cycles (${CYCLE_COLUMNS.join(', ')})
+  VALUES (${CYCLE_COLUMNS.map((c) => `@${c}`).join(', ')})`;
+
+/**
+ * A run whose own figure measured the capacity: a discharge that ended at its cutoff, or a
+ * program run with at least one full cycle (its figures are then its latest full cycle's).
+ */
+export const MEASURED_SQL = `(end_reason = 'cutoff' OR coalesce(full_cycles, 0) > 0)`;
 
 const UPSERT_RUN = `INSERT INTO runs (${RUN_COLUMNS.join(', ')}, filed_at)
   VALUES (${RUN_COLUMNS.map((c) => `@${c}`).join(', ')}, @filed_at)
@@ -109,7 +132,7 @@ const SUMMARY_SELECT = `
         FROM runs WHERE %WHERE% GROUP BY cell_id) a
   LEFT JOIN (SELECT cell_id, capacity_Ah, capacity_u_Ah, dc_resistance_ohm, started_ms,
                     row_number() OVER (PARTITION BY cell_id ORDER BY started_ms DESC) AS n
-             FROM runs WHERE end_reason = 'cutoff' AND %WHERE%) l
+             FROM runs WHERE ${MEASURED_SQL} AND %WHERE%) l
     ON l.cell_id = a.cell_id AND l.n = 1`;
 
 export class Registry {
@@ -220,8 +243,8 @@ export class Registry {
     if (records.length === 0) return;
     const filedAt = new Date().toISOString();
     this.write('filing runs', () => {
-      const upsert = this.db.prepare(UPSERT_RUN);
-      for (const r of records) upsert.run({ ...r, filed_at: filedAt });
+      const file = this.runFiler(filedAt);
+      for (const r of records) file(r);
       this.refreshSummaries([...new Set(records.map((r) => r.cell_id))]);
     });
   }
@@ -230,11 +253,27 @@ export class Registry {
   replaceAllRuns(records: readonly RunRecord[]): void {
     const filedAt = new Date().toISOString();
     this.write('rebuilding the runs', () => {
-      this.db.exec('DELETE FROM runs; DELETE FROM cell_summary;');
-      const upsert = this.db.prepare(UPSERT_RUN);
-      for (const r of records) upsert.run({ ...r, filed_at: filedAt });
+      this.db.exec('DELETE FROM runs; DELETE FROM cycles; DELETE FROM cell_summary;');
+      const file = this.runFiler(filedAt);
+      for (const r of records) file(r);
       this.db.exec(`INSERT INTO cell_summary ${SUMMARY_SELECT.replaceAll('%WHERE%', '1')}`);
     });
+  }
+
+  /**
+   * Files one run's row and its cycles, inside the caller's transaction: the run's cycles are
+   * replaced as a whole, so a result filed twice files its cycles once.
+   */
+  private runFiler(filedAt: string): (r: RunRecord) => void {
+    const upsert = this.db.prepare(UPSERT_RUN);
+    const drop = this.db.prepare('DELETE FROM cycles WHERE run_key = ?');
+    const insert = this.db.prepare(INSERT_CYCLE);
+    return (r) => {
+      const { cycles, ...row } = r;
+      upsert.run({ ...row, full_cycles: r.full_cycles ?? null, filed_at: filedAt });
+      drop.run(r.run_key);
+      for (const c of cycles ?? []) insert.run({ ...c, run_key: r.run_key });
+    };
   }
 
   private refreshSummaries(ids: readonly string[]): void {
@@ -257,17 +296,27 @@ export class Registry {
     );
   }
 
-  /** A cell's runs in time order. */
+  /** A cell's runs in time order, each program run with its cycles. */
   runsOf(id: string): RunRecord[] {
-    return this.read(
-      "reading a cell's runs",
-      () =>
-        this.db
-          .prepare(
-            `SELECT ${RUN_COLUMNS.join(', ')} FROM runs WHERE cell_id = ? ORDER BY started_ms`,
-          )
-          .all(id) as RunRecord[],
-    );
+    return this.read("reading a cell's runs", () => {
+      const runs = this.db
+        .prepare(`SELECT ${RUN_COLUMNS.join(', ')} FROM runs WHERE cell_id = ? ORDER BY started_ms`)
+        .all(id) as RunRecord[];
+      const cycles = this.db
+        .prepare(
+          `SELECT ${CYCLE_COLUMNS.map((c) => `y.${c}`).join(', ')} FROM cycles y
+           JOIN runs r ON r.run_key = y.run_key WHERE r.cell_id = ? ORDER BY y.run_key, y.segment`,
+        )
+        .all(id) as Array<CycleRecord & { run_key: string }>;
+      const byRun = new Map<string, CycleRecord[]>();
+      for (const { run_key, ...c } of cycles)
+        byRun.set(run_key, [...(byRun.get(run_key) ?? []), c]);
+      return runs.map((r) => {
+        const own = byRun.get(r.run_key);
+        if (r.full_cycles === null) delete r.full_cycles;
+        return r.full_cycles === undefined ? r : { ...r, cycles: own ?? [] };
+      });
+    });
   }
 
   /**
@@ -283,11 +332,11 @@ export class Registry {
           // run that counts (one pass, no window, no sort; the rows come in key order).
           `SELECT cell_id, count(*), sum(ok), sum(i), sum(c), sum(u),
                   max(CASE WHEN ok THEN started_ms END), end_reason, calibration_id, capacity_Ah,
-                  capacity_u_Ah, dc_resistance_ohm
+                  capacity_u_Ah, dc_resistance_ohm, full_cycles
            FROM (SELECT *, NOT (i OR c OR u) AS ok FROM (
              SELECT cell_id, started_ms, end_reason, calibration_id, capacity_Ah, capacity_u_Ah,
-                    dc_resistance_ohm,
-                    end_reason <> 'cutoff' AS i,
+                    dc_resistance_ohm, full_cycles,
+                    NOT ${MEASURED_SQL} AS i,
                     (@cal AND calibration_id = 'none') AS c,
                     (capacity_u_Ah IS NULL OR NOT capacity_Ah > 0
                       OR 2.0 * capacity_u_Ah / capacity_Ah > @maxrel) AS u
@@ -301,7 +350,21 @@ export class Registry {
           maxrel: trust.max_relative_uncertainty,
         }) as SummaryRow[];
       const out = new Map<string, TrustSummary>();
-      for (const [cell_id, runs, trusted, i, c, u, started, end, cal, cap, capU, res] of rows) {
+      for (const [
+        cell_id,
+        runs,
+        trusted,
+        i,
+        c,
+        u,
+        started,
+        end,
+        cal,
+        cap,
+        capU,
+        res,
+        full,
+      ] of rows) {
         const flags = [i, c, u];
         out.set(cell_id, {
           runs,
@@ -317,6 +380,7 @@ export class Registry {
                   capacity_Ah: cap!,
                   capacity_u_Ah: capU,
                   dc_resistance_ohm: res,
+                  full_cycles: full,
                 },
           doubts: RUN_DOUBTS.filter((_, k) => flags[k]! > 0),
         });

@@ -1,3 +1,5 @@
+import type { CycleFigures } from '../record/result.js';
+
 /**
  * One run as the registry keeps it: the figures of a run folder's result.json that a cell's
  * history needs, keyed so that the same run filed twice is one row. Pure: no I/O.
@@ -24,6 +26,24 @@ export interface ResultFigures {
     energy_Wh?: { standard: number; expanded: number; k: number };
   };
   cell_id?: string;
+  /** A program run's full cycles (result.json `cycles`). */
+  cycles?: CycleFigures[];
+}
+
+/** One full cycle of a program run: its discharge's capacity, filed linked to the run. */
+export interface CycleRecord {
+  /** The repeat pass (or the count of full discharges), as result.json numbers it. */
+  cycle: number;
+  /** Index of the discharge segment in the run. */
+  segment: number;
+  capacity_Ah: number;
+  /** Standard uncertainty (k = 1); null when the result states none. */
+  capacity_u_Ah: number | null;
+  energy_Wh: number | null;
+  energy_u_Wh: number | null;
+  mean_current_A: number | null;
+  /** This cycle's capacity over the run's first cycle's. */
+  of_first: number | null;
 }
 
 export interface RunRecord {
@@ -51,6 +71,13 @@ export interface RunRecord {
   temperature_C: number | null;
   duration_s: number;
   calibration_id: string;
+  /**
+   * A program run's full cycles, counted (null or absent for a run that was one discharge).
+   * The run's own figures are then those of its latest full cycle.
+   */
+  full_cycles?: number | null;
+  /** A program run's cycles in the order they ran; absent for a run that was one discharge. */
+  cycles?: CycleRecord[];
 }
 
 /** Why a run folder gives no record. */
@@ -97,5 +124,22 @@ export function recordFromResult(
     temperature_C: finiteOrNull(result.mean_temperature_C),
     duration_s: result.duration_s,
     calibration_id: result.calibration_id,
+    ...(Array.isArray(result.cycles) ? cyclesOf(result.cycles) : {}),
+  };
+}
+
+function cyclesOf(cycles: readonly CycleFigures[]): { full_cycles: number; cycles: CycleRecord[] } {
+  return {
+    full_cycles: cycles.length,
+    cycles: cycles.map((c) => ({
+      cycle: c.cycle,
+      segment: c.segment,
+      capacity_Ah: c.capacity_Ah,
+      capacity_u_Ah: finiteOrNull(c.uncertainty?.capacity_Ah?.standard),
+      energy_Wh: finiteOrNull(c.energy_Wh),
+      energy_u_Wh: finiteOrNull(c.uncertainty?.energy_Wh?.standard),
+      mean_current_A: finiteOrNull(c.mean_current_A),
+      of_first: finiteOrNull(c.of_first),
+    })),
   };
 }

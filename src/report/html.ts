@@ -8,6 +8,7 @@ import type { FigureUncertainty } from '../results/uncertainty.js';
 import { cautionLines } from '../chemistry/cautions.js';
 import type { ResistanceMethod, ResistanceSummary } from './dc-resistance.js';
 import { page, section, VOLTAGE_COLOUR } from './html-page.js';
+import { programSection } from './html-cycles.js';
 import { eventRowHtml, eventRows } from './html-events.js';
 import { cell, esc, hms, localTime, num, sig } from './html-text.js';
 import type { RunFigures } from './recompute.js';
@@ -219,6 +220,10 @@ export function renderRunReport(f: RunFigures, o: RenderOptions = {}): string {
       'Figures',
       `${figuresTable(f)}${o.resultFile ? `<p class="small">The same figures are in ${esc(o.resultFile)}.</p>` : ''}`,
     ),
+    // Only a program run has this section; a discharge's page stays as it was.
+    ...(f.result.segments !== undefined || f.result.program !== undefined
+      ? [programSection(f.result)]
+      : []),
     section('verdict', 'Against the rating', verdictBox(f.verdict, m.chemistry.profile.name)),
     section(
       'plots',

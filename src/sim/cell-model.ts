@@ -22,6 +22,11 @@ export interface Cell {
   step(dtS: number, currentA: number): void;
   /** 1 = full, 0 = empty; goes below 0 when the cell is driven past empty. */
   readonly stateOfCharge: number;
+  /**
+   * Polarisation volts on top of the open-circuit voltage (positive after charging, negative
+   * after discharging), relaxing at rest; cells without the element omit it (zero).
+   */
+  overpotentialV?(): number;
 }
 
 interface ChemistryCurve {
@@ -118,6 +123,13 @@ const CURVES: Record<ChemistryId, ChemistryCurve> = {
 /** Volts per cell per unit of state of charge below empty: an over-driven cell collapses. */
 const COLLAPSE_SLOPE = 40;
 
+/**
+ * Volts per cell per unit of state of charge above full: a full cell's voltage climbs steeply
+ * when still pushed (1 % over full is 60 mV), which is what makes a constant-voltage charge
+ * taper to its termination current.
+ */
+const OVERCHARGE_SLOPE = 6;
+
 /** Open-circuit volts per cell at a state of charge: linear between the curve's points. */
 export function ocvPerCell(chemistry: ChemistryId, soc: number): number {
   const pts = CURVES[chemistry].ocv;
@@ -130,7 +142,8 @@ export function ocvPerCell(chemistry: ChemistryId, soc: number): number {
       return v0 + ((v1 - v0) * (soc - s0)) / (s1 - s0);
     }
   }
-  return pts[pts.length - 1]![1];
+  const [sLast, vLast] = pts[pts.length - 1]!;
+  return vLast + OVERCHARGE_SLOPE * (soc - sLast);
 }
 
 export function defaultInternalOhmPerCell(chemistry: ChemistryId): number {
@@ -146,12 +159,23 @@ export interface ChemistryCellOptions {
   initialSoc: number;
   /** Internal resistance per cell at 25 °C and mid charge; the chemistry's typical value if omitted. */
   internalOhmPerCell?: number;
+  /**
+   * Polarisation (diffusion) resistance per cell, ohms, behind the internal resistance: under
+   * a steady current it adds current × this after `polarizationTimeS`. Zero if omitted.
+   */
+  polarizationOhmPerCell?: number;
+  /** Time constant of the polarisation, seconds; 60 if omitted. */
+  polarizationTimeS?: number;
+  /** A current the cell drains through itself (a soft internal short), amps; zero if omitted. */
+  leakA?: number;
 }
 
 /** A series string of identical cells following one chemistry's curve. */
 export class ChemistryCell implements Cell {
   private soc: number;
   private readonly r25: number;
+  /** Polarisation volts of the whole string, positive after charging. */
+  private vp = 0;
 
   constructor(private readonly opts: ChemistryCellOptions) {
     if (!(opts.capacityAh > 0))
@@ -180,7 +204,17 @@ export class ChemistryCell implements Cell {
     return this.opts.cells * this.r25 * lowCharge * thermal;
   }
 
+  overpotentialV(): number {
+    return this.vp;
+  }
+
   step(dtS: number, currentA: number): void {
-    this.soc -= (currentA * dtS) / 3600 / this.opts.capacityAh;
+    const leak = this.opts.leakA ?? 0;
+    this.soc -= ((currentA + leak) * dtS) / 3600 / this.opts.capacityAh;
+    const rp = this.opts.cells * (this.opts.polarizationOhmPerCell ?? 0);
+    if (rp === 0) return;
+    // First-order relaxation towards −I·Rp, exact for a current constant over the step.
+    const settle = -currentA * rp;
+    this.vp = settle + (this.vp - settle) * Math.exp(-dtS / (this.opts.polarizationTimeS ?? 60));
   }
 }

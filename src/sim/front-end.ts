@@ -80,6 +80,27 @@ export class FrontEnd {
     return this.convert(sensedV, adcV);
   }
 
+  /**
+   * The true current whose reading is `counts` without noise: what a rig's trim closes on (it
+   * holds the current it measures at the setpoint, so the board's own errors stay in the
+   * current it really draws).
+   */
+  currentForCounts(counts: number): number {
+    const full = 2 ** this.profile.adc.bits;
+    // Mid-count: a floor-quantising ADC reads `counts` across [counts, counts + 1).
+    const adcV = ((counts + 0.5) / full) * this.profile.adc.vref_V;
+    return (
+      (adcV / this.gain - this.errors.inputOffsetV) /
+      (this.profile.current.shunt_ohm + this.errors.connectionOhm)
+    );
+  }
+
+  /** A charger's current monitor output: `aPerV` amps per volt at the ADC pin. */
+  chargerMonitor(currentA: number, aPerV: number): ChainReading {
+    const adcV = Math.max(0, currentA / aPerV);
+    return this.convert(adcV, adcV);
+  }
+
   /** Cell temperature through the NTC and its fixed resistor, ratiometric to the reference. */
   temperature(tempC: number): ChainReading {
     const t = this.profile.temperature;

@@ -36,6 +36,9 @@ const scenario = {
         initial_soc: probability,
         internal_ohm_per_cell: nonNegative,
         state_of_health: { type: 'number', exclusiveMinimum: 0, maximum: 1, default: 1 },
+        polarization_ohm_per_cell: nonNegative,
+        polarization_time_s: positive,
+        leak_A: nonNegative,
       },
     },
     thermal: {
@@ -54,7 +57,32 @@ const scenario = {
       type: 'object',
       additionalProperties: false,
       required: ['load_ohm', 'mosfet_ohm'],
-      properties: { load_ohm: positive, mosfet_ohm: nonNegative },
+      properties: {
+        load_ohm: positive,
+        mosfet_ohm: nonNegative,
+        constant_current: {
+          type: 'object',
+          additionalProperties: false,
+          required: ['i_min_counts', 'i_max_counts', 'trim_error', 'ripple_A'],
+          properties: {
+            i_min_counts: { type: 'integer', minimum: 1, maximum: 16777215 },
+            i_max_counts: { type: 'integer', minimum: 1, maximum: 16777215 },
+            trim_error: { type: 'number', minimum: -0.1, maximum: 0.1 },
+            ripple_A: nonNegative,
+          },
+        },
+      },
+    },
+    charger: {
+      type: 'object',
+      additionalProperties: false,
+      required: ['current_A', 'charge_V', 'termination_A'],
+      properties: {
+        current_A: positive,
+        charge_V: positive,
+        termination_A: nonNegative,
+        heat_to_cell_W: nonNegative,
+      },
     },
     front_end: {
       type: 'object',
@@ -125,6 +153,11 @@ export const SCENARIO_FILE_SCHEMA = {
     scenarios: {
       type: 'object',
       minProperties: 1,
+      propertyNames: { pattern: scenarioName },
+      additionalProperties: scenario,
+    },
+    cycling: {
+      type: 'object',
       propertyNames: { pattern: scenarioName },
       additionalProperties: scenario,
     },

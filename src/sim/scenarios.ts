@@ -27,6 +27,11 @@ export interface SimScenario {
     internal_ohm_per_cell?: number;
     /** Share of the rated capacity the cell still holds (a worn cell is below 1). */
     state_of_health?: number;
+    /** Polarisation resistance per cell and its time constant (zero if omitted). */
+    polarization_ohm_per_cell?: number;
+    polarization_time_s?: number;
+    /** A current the cell drains through itself (a soft internal short), amps. */
+    leak_A?: number;
   };
   thermal: {
     ambient_C: number;
@@ -35,7 +40,24 @@ export interface SimScenario {
     load_heat_fraction: number;
     extra_heat_W: number;
   };
-  load: { load_ohm: number; mosfet_ohm: number };
+  load: {
+    load_ohm: number;
+    mosfet_ohm: number;
+    /** A constant-current load (protocol 1.1); `load_ohm` is then its source resistor. */
+    constant_current?: {
+      i_min_counts: number;
+      i_max_counts: number;
+      trim_error: number;
+      ripple_A: number;
+    };
+  };
+  /** A charger module the rig switches (protocol 1.1). */
+  charger?: {
+    current_A: number;
+    charge_V: number;
+    termination_A: number;
+    heat_to_cell_W?: number;
+  };
   /** The board's true imperfections, unknown to the host (the rig profile's own figures are not used). */
   front_end: {
     /** Current-channel offset as amps through the profile's shunt, or as volts at the amplifier input. */
@@ -76,7 +98,14 @@ export interface SimRigScenario {
 
 export interface ScenarioSet {
   file: string;
+  /** The scenarios of rigs that speak protocol v1 (a switched resistor load). */
   byName: ReadonlyMap<string, SimScenario>;
+  /**
+   * The scenarios under `cycling:`: rigs with a constant-current load and a charger, speaking
+   * protocol 1.1, for programs; they need a host that speaks 1.1 and a rig profile with a
+   * charger monitor (config/rigs/sim-cc.yaml). Names are unique across both maps.
+   */
+  cycling: ReadonlyMap<string, SimScenario>;
   rigs: ReadonlyMap<string, SimRigScenario>;
 }
 
@@ -138,14 +167,27 @@ export function loadScenarios(path: string): ScenarioSet {
   }
   const file = data as {
     scenarios: Record<string, Omit<SimScenario, 'name'>>;
+    cycling?: Record<string, Omit<SimScenario, 'name'>>;
     rigs?: Record<string, RawRig>;
   };
   const byName = new Map<string, SimScenario>();
   for (const [name, s] of Object.entries(file.scenarios)) byName.set(name, { name, ...s });
+  const cycling = new Map<string, SimScenario>();
+  for (const [name, s] of Object.entries(file.cycling ?? {})) {
+    if (byName.has(name))
+      throw makeError(
+        ErrorCodes.CONFIG_INVALID,
+        `the scenario "${name}" is both under scenarios: and under cycling:`,
+        `${path}, key cycling.${name}`,
+        'Give each scenario its own name.',
+      );
+    cycling.set(name, { name, ...s });
+  }
+  const all = new Map([...byName, ...cycling]);
   const rigs = new Map<string, SimRigScenario>();
   for (const [name, r] of Object.entries(file.rigs ?? {}))
-    rigs.set(name, resolveRig(path, name, r, byName));
-  return { file: path, byName, rigs };
+    rigs.set(name, resolveRig(path, name, r, all));
+  return { file: path, byName, cycling, rigs };
 }
 
 type RawRig = Omit<SimRigScenario, 'name' | 'channels'> & { channels: Record<string, string> };
@@ -174,13 +216,13 @@ function resolveRig(
 
 /** The scenario called `name`, or a usage error listing the ones there are. */
 export function pickScenario(set: ScenarioSet, name: string): SimScenario {
-  const s = set.byName.get(name);
+  const s = set.byName.get(name) ?? set.cycling.get(name);
   if (s) return s;
   throw makeError(
     ErrorCodes.USAGE,
     `there is no simulator scenario "${name}"`,
     set.file,
-    `Use one of: ${[...set.byName.keys()].join(', ')}.`,
+    `Use one of: ${[...set.byName.keys(), ...set.cycling.keys()].join(', ')}.`,
   );
 }
 
@@ -213,6 +255,7 @@ export function channelParts(
     ...(scenario.cell.internal_ohm_per_cell !== undefined
       ? { internalOhmPerCell: scenario.cell.internal_ohm_per_cell }
       : {}),
+    ...cellExtras(scenario.cell),
   });
   return {
     cell,
@@ -232,8 +275,52 @@ export function channelParts(
       noiseCounts: fe.noise_counts,
     },
     thermistor: fe.thermistor ?? 'ok',
+    ...regulatedParts(scenario),
     ...(fe.thermistor_fails_after_s !== undefined
       ? { thermistorFailsAfterMs: fe.thermistor_fails_after_s * 1000 }
+      : {}),
+  };
+}
+
+/** The optional cell figures of a 1.1 scenario, only where given. */
+function cellExtras(c: SimScenario['cell']): {
+  polarizationOhmPerCell?: number;
+  polarizationTimeS?: number;
+  leakA?: number;
+} {
+  return {
+    ...(c.polarization_ohm_per_cell !== undefined
+      ? { polarizationOhmPerCell: c.polarization_ohm_per_cell }
+      : {}),
+    ...(c.polarization_time_s !== undefined ? { polarizationTimeS: c.polarization_time_s } : {}),
+    ...(c.leak_A !== undefined ? { leakA: c.leak_A } : {}),
+  };
+}
+
+/** A scenario's constant-current load and charger (protocol 1.1), only where given. */
+function regulatedParts(s: SimScenario): Pick<SimChannelOptions, 'constantCurrent' | 'charger'> {
+  const cc = s.load.constant_current;
+  const ch = s.charger;
+  return {
+    ...(cc
+      ? {
+          constantCurrent: {
+            iMinRaw: cc.i_min_counts,
+            iMaxRaw: cc.i_max_counts,
+            trimError: cc.trim_error,
+            rippleA: cc.ripple_A,
+          },
+        }
+      : {}),
+    ...(ch
+      ? {
+          charger: {
+            currentA: ch.current_A,
+            chargeV: ch.charge_V,
+            terminationA: ch.termination_A,
+            heatToCellW: ch.heat_to_cell_W ?? 0,
+          },
+        }
       : {}),
   };
 }

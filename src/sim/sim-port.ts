@@ -74,7 +74,16 @@ export async function attachSimRig(
  */
 export function truthSnapshot(rig: SimRig, clock: Clock): Record<string, unknown> {
   const channels: Record<string, unknown> = {};
+  // A 1.1 rig's channels also carry their mode, charge and setpoint truth, and their mode log.
+  const more = (ch?: number) =>
+    rig.speaks11 ? { truth11: rig.truth11(ch), mode_log: rig.modeLog(ch) } : {};
   for (const ch of rig.channelNumbers)
-    channels[ch] = { truth: rig.truth(ch), load_log: rig.loadLog(ch) };
-  return { clock_ms: clock.now(), truth: rig.truth(), load_log: rig.loadLog(), channels };
+    channels[ch] = { truth: rig.truth(ch), load_log: rig.loadLog(ch), ...more(ch) };
+  return {
+    clock_ms: clock.now(),
+    truth: rig.truth(),
+    load_log: rig.loadLog(),
+    ...more(),
+    channels,
+  };
 }

@@ -1,13 +1,21 @@
 import type { RigProfile } from '../chain/rig-profile-types.js';
 import type { Clock, TimerHandle } from '../core/clock.js';
 import { decodeHostLine, encodeDataFrame, frameLine, MAX_LINE_LENGTH } from '../protocol/codec.js';
-import { FLAG_LOAD_ON, FLAG_RIG_FAULT } from '../protocol/messages.js';
+import { decodeHostLine11, encodeCapability } from '../protocol/codec11.js';
+import type { ChannelMode, HostCommand, HostCommand11 } from '../protocol/messages.js';
+import { decide11 } from './commands11.js';
 import { FaultInjector, NO_FAULTS, type FaultOptions } from './faults.js';
 import { mulberry32 } from './prng.js';
 import { RigTickCounter } from './rig-clock.js';
-import { SimChannel, type LoadSwitch, type SimChannelOptions } from './sim-channel.js';
+import type { ChargePhase } from './regulators.js';
+import {
+  SimChannel,
+  type LoadSwitch,
+  type ModeSwitch,
+  type SimChannelOptions,
+} from './sim-channel.js';
 
-export type { LoadSwitch } from './sim-channel.js';
+export type { LoadSwitch, ModeSwitch } from './sim-channel.js';
 
 /** Protocol v1: a rig that hears no heartbeat for this long while a load is on cuts every load. */
 export const WATCHDOG_MS = 5000;
@@ -49,6 +57,7 @@ export interface SimTruth {
   stateOfCharge: number;
   openCircuitV: number;
   terminalV: number;
+  /** Positive out of the cell (discharging), negative into it (charging). */
   currentA: number;
   temperatureC: number;
   loadOn: boolean;
@@ -56,6 +65,21 @@ export interface SimTruth {
   framesSent: number;
   framesDropped: number;
   garbageLines: number;
+}
+
+/** What a protocol 1.1 channel adds to its truth. */
+export interface SimTruth11 {
+  mode: ChannelMode;
+  chargePhase: ChargePhase | 'off';
+  /** Charge put into the cell since the start, amp-hours. */
+  chargedAh: number;
+  /** The true current the constant-current load is set to draw, amps (0 without a setpoint). */
+  targetA: number;
+  setpointRaw: number;
+  /** The load cannot hold its setpoint now (flag bit 5). */
+  setpointNotHeld: boolean;
+  /** The cell's polarisation volts now. */
+  overpotentialV: number;
 }
 
 /**
@@ -72,6 +96,11 @@ const PHYSICS_STEP_MS = 10;
  * rig's whole use of it); anything else → `E,<code>,<text>` with code CRC, SYNTAX, RANGE,
  * CHANNEL or OVERLONG. The watchdog is the rig's, not a channel's: it counts true time from the
  * later of the last BEAT and a load switching on, and when it runs out it cuts every load.
+ *
+ * A rig with a channel that has a constant-current load or a charger speaks protocol 1.1
+ * instead (docs/protocol.md, "Version 1.1"): K lines after every hello, ISET, PSET and MODE
+ * answered as commands11.ts decides, a frame at once after every mode change, flags bits 2–5,
+ * and a watchdog over chargers too that says E,BEAT_LOST when it cuts.
  */
 export class SimRig {
   private readonly clock: Clock;
@@ -81,6 +110,8 @@ export class SimRig {
   private readonly byNumber = new Map<number, SimChannel>();
   private readonly framePeriodMs: number;
   private readonly base: SimRigBase;
+  /** A channel declares a constant-current load or a charger: the rig speaks protocol 1.1. */
+  readonly speaks11: boolean;
 
   private write: ((chunk: string) => void) | null = null;
   private stopped = false;
@@ -115,6 +146,7 @@ export class SimRig {
       if (this.byNumber.has(c.channel)) throw new RangeError(`channel ${c.channel} given twice`);
       this.byNumber.set(c.channel, c);
     }
+    this.speaks11 = this.channels.some((c) => c.capability !== null);
     this.ticks = new RigTickCounter(opts.clockError, opts.startTick ?? 0);
     this.faults = new FaultInjector(opts.faults ?? NO_FAULTS, rng);
   }
@@ -130,7 +162,7 @@ export class SimRig {
     this.write = write;
     this.bootAt = this.clock.now();
     this.physicsAt = this.bootAt;
-    this.send(this.helloLine(), true);
+    this.sendHello();
     this.frameTimer = this.clock.setTimer(
       () => this.onFrame(),
       this.ticks.trueMsFor(this.framePeriodMs),
@@ -166,7 +198,10 @@ export class SimRig {
   stop(): void {
     if (this.stopped) return;
     this.catchUp();
-    for (const c of this.channels) if (c.loadOn) c.switchLoad(false, 'stop', ...this.when());
+    for (const c of this.channels) {
+      if (this.speaks11 && c.mode !== 'rest') c.setMode('rest', 'stop', ...this.when());
+      else if (c.loadOn) c.switchLoad(false, 'stop', ...this.when());
+    }
     if (this.frameTimer) this.clock.clearTimer(this.frameTimer);
     this.disarmWatchdog();
     this.stopped = true;
@@ -195,6 +230,26 @@ export class SimRig {
     };
   }
 
+  /** What a protocol 1.1 channel (the first one if not given) adds to its truth. */
+  truth11(channel?: number): SimTruth11 {
+    this.catchUp();
+    const c = this.channelOf(channel);
+    return {
+      mode: c.mode,
+      chargePhase: c.chargePhase,
+      chargedAh: c.truthRec.chargedAh,
+      targetA: c.targetA,
+      setpointRaw: c.setpointRaw,
+      setpointNotHeld: c.loadOn && c.notHeld,
+      overpotentialV: c.cell.overpotentialV?.() ?? 0,
+    };
+  }
+
+  /** Every mode change of a protocol 1.1 channel (the first one if not given), in order. */
+  modeLog(channel?: number): readonly ModeSwitch[] {
+    return this.channelOf(channel).modes;
+  }
+
   /** Every load switch of a channel (the first one if not given) so far, in order. */
   loadLog(channel?: number): readonly LoadSwitch[] {
     return this.channelOf(channel).switches;
@@ -209,14 +264,18 @@ export class SimRig {
   private onLine(raw: string): void {
     const line = raw.endsWith('\r') ? raw.slice(0, -1) : raw;
     if (line === '') return;
-    const cmd = decodeHostLine(line);
+    const cmd = this.speaks11 ? decodeHostLine11(line) : decodeHostLine(line);
     if ('error' in cmd) {
       this.send(frameLine(`E,${errorCode(cmd.error)},${cmd.error}`), true);
       return;
     }
+    if (this.speaks11 && cmd.command !== 'HELLO' && cmd.command !== 'BEAT') {
+      this.onCommand11(cmd);
+      return;
+    }
     switch (cmd.command) {
       case 'HELLO':
-        this.send(this.helloLine(), true);
+        this.sendHello();
         return;
       case 'BEAT':
         if (this.anyLoadOn()) this.armWatchdog();
@@ -235,8 +294,33 @@ export class SimRig {
     }
   }
 
+  /** LOAD, MODE, ISET or PSET on a 1.1 rig: acknowledged and applied, or refused with nothing changed. */
+  private onCommand11(cmd: Extract<HostCommand, { command: 'LOAD' }> | HostCommand11): void {
+    const c = this.byNumber.get(cmd.channel);
+    const d = decide11(cmd, c);
+    if ('refuse' in d) {
+      this.send(frameLine(d.refuse), true);
+      return;
+    }
+    if (d.setpointRaw !== undefined) c!.setpointRaw = d.setpointRaw;
+    const changed = d.mode !== undefined && d.mode !== c!.mode;
+    if (d.mode !== undefined && d.mode !== 'rest') c!.fault = false;
+    if (changed) {
+      c!.setMode(d.mode!, 'host', ...this.when());
+      if (this.anyLoadOn()) this.armWatchdog();
+      else this.disarmWatchdog();
+    }
+    this.send(frameLine(d.ack), !changed);
+    // Every mode change is followed by a frame at once, out of the regular period.
+    if (changed) {
+      const sinceBootMs = this.clock.now() - this.bootAt;
+      this.sendFrame(c!, this.ticks.ticksAt(sinceBootMs), sinceBootMs, true);
+    }
+  }
+
+  /** A load or a charger is on somewhere: the watchdog runs. */
   private anyLoadOn(): boolean {
-    return this.channels.some((c) => c.loadOn);
+    return this.channels.some((c) => c.loadOn || c.chargerOn);
   }
 
   /** Clock time now, and the time since the rig's boot. */
@@ -257,10 +341,13 @@ export class SimRig {
       this.watchdogTimer = null;
       this.catchUp();
       for (const c of this.channels) {
-        if (!c.loadOn) continue;
+        if (!c.loadOn && !c.chargerOn) continue;
         c.fault = true;
-        c.switchLoad(false, 'watchdog', ...this.when());
+        if (this.speaks11) c.setMode('rest', 'watchdog', ...this.when());
+        else c.switchLoad(false, 'watchdog', ...this.when());
       }
+      if (this.speaks11)
+        this.send(frameLine('E,BEAT_LOST,no heartbeat for 5 s: every load cut'), true);
     }, WATCHDOG_MS);
   }
 
@@ -276,7 +363,7 @@ export class SimRig {
     for (const c of this.channels) this.sendFrame(c, tickMs, sinceBootMs);
   }
 
-  private sendFrame(c: SimChannel, tickMs: number, sinceBootMs: number): void {
+  private sendFrame(c: SimChannel, tickMs: number, sinceBootMs: number, flush = false): void {
     const seq = c.seq;
     c.seq = (c.seq + 1) & 0xffff;
     if (this.faults.dropFrame()) {
@@ -289,7 +376,7 @@ export class SimRig {
       seq,
       tickMs,
       ...counts,
-      flags: (c.loadOn ? FLAG_LOAD_ON : 0) | (c.fault ? FLAG_RIG_FAULT : 0),
+      flags: c.flags(),
     });
     const garbage = this.faults.garbageBefore(frame);
     if (garbage !== null) {
@@ -298,7 +385,7 @@ export class SimRig {
     }
     c.framesSent++;
     this.pendingFrames++;
-    this.send(frame, this.pendingFrames >= this.faults.burstFrames);
+    this.send(frame, flush || this.pendingFrames >= this.faults.burstFrames);
   }
 
   /** Queues a line; `flush` writes everything queued, in order, as one chunk. */
@@ -311,9 +398,30 @@ export class SimRig {
     this.write(chunk);
   }
 
-  private helloLine(): string {
+  /** The hello line; a 1.1 rig follows it at once with one `K` line per channel, in one write. */
+  private sendHello(): void {
     const b = this.base;
-    return frameLine(`H,${b.rigId},${b.firmware},${b.profile.adc.bits},${this.channels.length}`);
+    const hello = frameLine(
+      `H,${b.rigId},${b.firmware},${b.profile.adc.bits},${this.channels.length}`,
+    );
+    if (!this.speaks11) {
+      this.send(hello, true);
+      return;
+    }
+    this.send(hello, false);
+    this.channels.forEach((c, k) => {
+      const cap = c.capability;
+      const cc = cap?.constantCurrent ?? null;
+      const line = encodeCapability({
+        channel: c.channel,
+        load: cc ? 'constant_current' : 'switched',
+        iMinRaw: cc?.iMinRaw ?? 0,
+        iMaxRaw: cc?.iMaxRaw ?? 0,
+        pMaxRaw: 0,
+        charger: cap?.charger ?? false,
+      });
+      this.send(line, k === this.channels.length - 1);
+    });
   }
 
   /** Steps the physics of every channel from where it stopped up to the clock's now. */

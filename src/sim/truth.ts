@@ -14,11 +14,15 @@ export class TruthRecorder {
   energyWh = 0;
   loadOnS = 0;
   elapsedS = 0;
+  /** Charge put into the cell (currents below zero), amp-hours, by the same rule. */
+  chargedAh = 0;
 
   /** Adds a step of `dtS` seconds from point `a` to point `b`, the load state fixed within it. */
   add(dtS: number, a: ElectricalPoint, b: ElectricalPoint, loadOn: boolean): void {
     this.chargeAh += ((a.currentA + b.currentA) / 2) * (dtS / 3600);
     this.energyWh += ((a.currentA * a.terminalV + b.currentA * b.terminalV) / 2) * (dtS / 3600);
+    if (a.currentA < 0 || b.currentA < 0)
+      this.chargedAh -= ((Math.min(0, a.currentA) + Math.min(0, b.currentA)) / 2) * (dtS / 3600);
     if (loadOn) this.loadOnS += dtS;
     this.elapsedS += dtS;
   }
