@@ -79,10 +79,22 @@ export interface CcRigOptions {
   chargeMa?: number;
   chargeV?: number;
   termMa?: number;
+  /** The cell's thermal time constant, s of emulated time. */
+  thermalTauS?: number;
   seed?: number;
 }
 
-export async function startCcRig(o: CcRigOptions = {}): Promise<CcRig> {
+/** The harness with the CC firmware alone, its chip held in reset until the host's first byte. */
+export interface CcHarness {
+  dir: string;
+  port: string;
+  truth(): CcTruth;
+  /** A control line to the harness: `hang`, `ambient <°C>`, `leak <ch> <ohm>`. */
+  control(line: string): void;
+  stop(): Promise<void>;
+}
+
+export async function startCcHarness(o: CcRigOptions = {}): Promise<CcHarness> {
   for (const f of [CC_FIRMWARE_ELF, HARNESS])
     if (!existsSync(f))
       throw new Error(
@@ -103,6 +115,7 @@ export async function startCcRig(o: CcRigOptions = {}): Promise<CcRig> {
     ...num('--charge-ma', o.chargeMa),
     ...num('--charge-v', o.chargeV),
     ...num('--term-ma', o.termMa),
+    ...num('--thermal-tau', o.thermalTauS),
     ...num('--seed', o.seed),
   ];
   const child = spawn(HARNESS, args, { stdio: ['pipe', 'pipe', 'pipe'] });
@@ -113,8 +126,22 @@ export async function startCcRig(o: CcRigOptions = {}): Promise<CcRig> {
   const exited = new Promise<void>((r) => child.once('exit', () => r()));
   await waitUntil(() => out.includes('ready ') || child.exitCode !== null, 10_000, 'the harness');
   if (!out.includes('ready ')) throw new Error(`the rig harness did not start: ${out}`);
+  return {
+    dir,
+    port,
+    truth: () => JSON.parse(readFileSync(truthPath, 'utf8')) as CcTruth,
+    control: (line) => child.stdin.write(`${line}\n`),
+    stop: async () => {
+      if (child.exitCode !== null || child.signalCode !== null) return;
+      child.stdin.end();
+      await exited;
+    },
+  };
+}
 
-  const truth = (): CcTruth => JSON.parse(readFileSync(truthPath, 'utf8')) as CcTruth;
+export async function startCcRig(o: CcRigOptions = {}): Promise<CcRig> {
+  const harness = await startCcHarness(o);
+  const { port, truth } = harness;
   const serial = new SerialPort({ path: port, baudRate: 250000, autoOpen: false });
   await new Promise<void>((res, rej) => serial.open((e) => (e ? rej(e) : res())));
   const heard: Heard[] = [];
@@ -125,7 +152,7 @@ export async function startCcRig(o: CcRigOptions = {}): Promise<CcRig> {
     truth,
     heard,
     caps: null,
-    control: (line) => child.stdin.write(`${line}\n`),
+    control: harness.control,
     frames: (ch, from = 0) =>
       heard.slice(from).flatMap((h) => {
         const r = decodeRigLine11(h.line, 12);
@@ -149,10 +176,7 @@ export async function startCcRig(o: CcRigOptions = {}): Promise<CcRig> {
     stop: async () => {
       rig.beat(false);
       if (serial.isOpen) await new Promise<void>((r) => serial.close(() => r()));
-      if (child.exitCode === null && child.signalCode === null) {
-        child.stdin.end();
-        await exited;
-      }
+      await harness.stop();
     },
   };
   let beater: ReturnType<typeof setInterval> | null = null;
