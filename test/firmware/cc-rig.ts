@@ -23,6 +23,12 @@ import { HARNESS, waitUntil, type ChannelTruth, type HarnessTruth } from './emul
 export const CC_FIRMWARE_ELF = fileURLToPath(
   new URL('../../firmware/build/cc/cellvigil-rig-cc.elf', import.meta.url),
 );
+export const CC_RIG_PROFILE = fileURLToPath(
+  new URL('../../config/rigs/cv328-cc.yaml', import.meta.url),
+);
+/** The program files of the end-to-end tests. */
+export const programFixture = (name: string): string =>
+  fileURLToPath(new URL(`../fixtures/programs/${name}`, import.meta.url));
 
 /** What the harness adds to a channel's truth for the CC variant. */
 export interface CcChannelTruth extends ChannelTruth {
