@@ -6,7 +6,7 @@
  */
 import type { Corrector } from '../calibration/calibration.js';
 import { TimeBase, type Stamp, type TimeBaseOptions } from '../timebase/time-base.js';
-import { FLAG_LOAD_ON } from '../protocol/messages.js';
+import { FLAG_INTO_CELL, FLAG_LOAD_ON } from '../protocol/messages.js';
 
 /** Counts to nominal units: the rig profile's analog chain. */
 export interface Converter {
@@ -30,7 +30,10 @@ export interface FrameCounts {
 export interface FrameValues {
   volts: number;
   amps: number;
-  /** The current through the nominal chain, before the calibration. */
+  /**
+   * The current through the nominal chain, before the calibration (a 1.1 charger's current:
+   * its monitor reading, a magnitude).
+   */
   nominalA: number;
   /** NaN when the thermistor is open or shorted. */
   celsius: number;
@@ -79,6 +82,12 @@ export class FrameMeasure {
     corrector: Corrector,
     private readonly originMs = 0,
     private readonly timeBaseOptions: TimeBaseOptions = {},
+    /**
+     * A protocol 1.1 rig's charger: amps per count of `i_raw` while a frame's flag bit 4 says
+     * the current flows into the cell (ADC volts per count × the profile's monitor_A_per_V);
+     * null for a rig without one, whose frames read exactly as v1.
+     */
+    private readonly chargerAmpsPerCount: number | null = null,
   ) {
     this.corrector = corrector;
     this.timeBase = this.newTimeBase();
@@ -130,9 +139,15 @@ export class FrameMeasure {
   /** The frame's counts in corrected units, written into `out`. */
   values(f: Readonly<FrameCounts>, out: FrameValues): FrameValues {
     const { chain, corrector: c } = this;
-    out.nominalA = chain.amps(f.iRaw);
     out.volts = c.voltage(chain.volts(f.vRaw));
-    out.amps = c.current(out.nominalA);
+    if ((f.flags & FLAG_INTO_CELL) !== 0 && this.chargerAmpsPerCount !== null) {
+      // The charger's own monitor: the load's calibration does not apply; signed into the cell.
+      out.nominalA = f.iRaw * this.chargerAmpsPerCount;
+      out.amps = -out.nominalA;
+    } else {
+      out.nominalA = chain.amps(f.iRaw);
+      out.amps = c.current(out.nominalA);
+    }
     out.loadOn = (f.flags & FLAG_LOAD_ON) !== 0;
     const slot = f.tRaw & (CELSIUS_SLOTS - 1);
     if (this.celsiusCounts[slot] !== f.tRaw) {

@@ -110,6 +110,21 @@ export const EVENT_KINDS = {
     },
   },
   load_off_unconfirmed: { attention: 'alarm', fields: NOTE },
+  // A program run's steps (segments.jsonl keeps each ended one in full).
+  segment_started: {
+    attention: 'info',
+    fields: { index: 'integer', kind: 'string', step: 'string', cycle: 'number|null' },
+  },
+  segment_ended: {
+    attention: 'info',
+    fields: {
+      index: 'integer',
+      end_reason: 'string',
+      charge_Ah: 'number',
+      energy_Wh: 'number',
+      duration_s: 'number',
+    },
+  },
   implausible_reading: {
     attention: 'alarm',
     fields: {

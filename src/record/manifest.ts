@@ -16,6 +16,8 @@ import { CellvigilError, ErrorCodes, makeError } from '../core/errors.js';
 import { writeJsonAtomic } from '../sinks/atomic-json.js';
 import { schemaProblems } from './json-file.js';
 
+import type { Plan } from '../program/program-types.js';
+
 export const MANIFEST_FILE = 'manifest.json';
 
 export interface RunManifest {
@@ -41,6 +43,8 @@ export interface RunManifest {
   samples: { prefix: string; rotate_bytes: number };
   /** The discharge schedule as given, when the run had one. */
   schedule?: { kind: 'file' | 'option'; text: string; where: string; description: string };
+  /** A program run's program: its name, the file as read, and its plan as resolved (docs/programs.md). */
+  program?: { name: string; file: string; text: string; plan: Plan };
 }
 
 const positive = { type: 'number', exclusiveMinimum: 0 };
@@ -126,6 +130,16 @@ const SCHEMA: SchemaObject = {
       type: 'object',
       required: ['kind', 'text', 'description'],
       properties: { kind: { enum: ['file', 'option'] }, text, where: text, description: text },
+    },
+    program: {
+      type: 'object',
+      required: ['name', 'file', 'text', 'plan'],
+      properties: {
+        name: text,
+        file: text,
+        text,
+        plan: { type: 'object', required: ['name', 'cells', 'steps'] },
+      },
     },
   },
 };

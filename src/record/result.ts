@@ -196,12 +196,15 @@ export function exitCodeFor(end: SessionEnd, rigNeverSpoke: boolean): number {
   switch (end) {
     case 'cutoff':
     case 'stopped':
+    case 'program_complete':
       return 0;
     case 'over_temperature':
     case 'link_lost':
     case 'fault':
     case 'implausible_reading':
     case 'open_load':
+    case 'charge_timeout':
+    case 'charge_fault':
       return 3;
     case 'refused':
       return rigNeverSpoke ? 1 : 2;
@@ -211,6 +214,7 @@ export function exitCodeFor(end: SessionEnd, rigNeverSpoke: boolean): number {
 const END_REASONS: ReadonlySet<string> = new Set<SessionEnd>([
   'cutoff',
   'stopped',
+  'program_complete',
   'refused',
   ...SAFETY_END_REASONS,
 ]);

@@ -27,6 +27,11 @@ import { framesLostAcrossResume, type ResumePoint } from './resume.js';
 import type { RunConfig } from './run-config.js';
 import type { StatusPrinter } from './status-line.js';
 import { bridgeUnlogged } from './unlogged.js';
+import { chargerAmpsPerCount, newProgramSession } from './program-parts.js';
+import { ProgramSession } from '../program/program-session.js';
+import { withProgram } from '../program/program-result.js';
+import { encodeForRig } from '../protocol/capabilities.js';
+import { appendSegment } from '../record/segments.js';
 
 /** A mark's note: as long as the live feed's schema allows. */
 export const MARK_MAX_CHARS = 500;
@@ -90,11 +95,13 @@ export class ChannelRun {
     this.calibration = cfg.calibration;
     this.unloggedPending = resume?.last?.loadOn === true;
     this.resumeSeqPending = (resume?.seq ?? null) !== null;
-    this.session = newSession(o);
     // A resumed run's row times carry on from its last row, plus the wall time it was down.
     this.originMs = resume
       ? clock.now() - (resume.lastHostS * 1000 + Math.max(0, Date.now() - resume.lastWallMs))
       : clock.now();
+    this.session = cfg.program
+      ? newProgramSession(cfg, { ...o, originMs: this.originMs })
+      : newSession(o);
     if (resume) this.session.restore(resume.totals);
     this.pipeline = new Pipeline({
       channel: o.channel,
@@ -103,6 +110,7 @@ export class ChannelRun {
       corrector: applyCalibration(cfg.calibration),
       session: this.session,
       originMs: this.originMs,
+      chargerAmpsPerCount: chargerAmpsPerCount(cfg),
       ...(resume ? { counters: { accepted: resume.rows, ...resume.counters } } : {}),
     });
     this.recorder = new RunRecorder({
@@ -161,6 +169,9 @@ export class ChannelRun {
         break;
       case 'message':
         this.recorder.rigLine(out.event);
+        this.dispatch(out.actions);
+        break;
+      case 'capability':
         this.dispatch(out.actions);
         break;
       case 'ignored':
@@ -383,6 +394,7 @@ export class ChannelRun {
   }
 
   private dispatch(actions: Action[]): void {
+    if (this.session instanceof ProgramSession) this.programOutputs(this.session);
     for (const a of actions) {
       if (this.ended) return;
       if (a.type === 'send') {
@@ -393,6 +405,34 @@ export class ChannelRun {
         this.sessionEvent(a.name, a.detail);
       } else {
         void this.finish(a.reason, a.detail, a.loadOffConfirmed);
+      }
+    }
+  }
+
+  /** A program's 1.1 commands (through the rig's declared capabilities only) and ended segments. */
+  private programOutputs(session: ProgramSession): void {
+    for (const cmd of session.takeCommands()) {
+      if (this.ended) break;
+      const rig = this.pipeline.rig;
+      let line: string;
+      try {
+        if (rig === null) throw new Error('no hello exchange yet');
+        line = encodeForRig(rig, cmd);
+      } catch (e) {
+        this.log({
+          event: 'command',
+          line: `${cmd.command} refused: ${(e as Error).message}`,
+          queued: false,
+        });
+        continue;
+      }
+      this.log({ event: 'command', line: line.trim(), queued: this.o.send(line) });
+    }
+    for (const seg of session.takeEndedSegments()) {
+      try {
+        appendSegment(this.o.folder, seg);
+      } catch (e) {
+        this.diskError(e as Error);
       }
     }
   }
@@ -469,16 +509,18 @@ export class ChannelRun {
     const { session, pipeline, o } = this;
     const { cfg } = o;
     const integ = session.integrator;
-    return buildResult({
+    // A program's figures are its cycles' (withProgram): nothing of the whole run is one capacity.
+    const program = session instanceof ProgramSession ? session : null;
+    const base = buildResult({
       end,
       detail,
       loadOffConfirmed,
-      chargeAh: integ.chargeAh,
-      energyWh: integ.energyWh,
-      onMs: integ.onMs,
-      bridgedAh: integ.bridgedAh,
-      nominalAh: pipeline.nominalAh,
-      loadedSamples: this.loadedSamples,
+      chargeAh: program ? 0 : integ.chargeAh,
+      energyWh: program ? 0 : integ.energyWh,
+      onMs: program ? 0 : integ.onMs,
+      bridgedAh: program ? 0 : integ.bridgedAh,
+      nominalAh: program ? 0 : pipeline.nominalAh,
+      loadedSamples: program ? 0 : this.loadedSamples,
       lastLoadedV: session.lastLoadedV,
       cutoffV: session.cutoffV,
       counters: pipeline.counters,
@@ -499,6 +541,7 @@ export class ChannelRun {
       cellId: cfg.cellId,
       loadSwitches: integ.switches,
     });
+    return program ? withProgram(base, cfg.program!.plan.name, program.figures) : base;
   }
 }
 

@@ -5,7 +5,8 @@ import {
   type Converter,
   type FrameValues,
 } from '../measure/frame-measure.js';
-import { decodeRigLine } from '../protocol/codec.js';
+import { HelloExchange, type RigCapabilities } from '../protocol/capabilities.js';
+import { decodeRigLine11 } from '../protocol/codec11.js';
 import type { DataFrame, RejectReason, RigMessage } from '../protocol/messages.js';
 import type { RigLineEvent } from '../record/event-log.js';
 import type { TimeBaseOptions } from '../timebase/time-base.js';
@@ -34,6 +35,8 @@ export type LineOutcome =
     }
   | { kind: 'rejected'; reason: RejectReason; detail: string }
   | { kind: 'message'; actions: Action[]; event: RigLineEvent }
+  /** A protocol 1.1 capability line; the actions once the hello exchange is complete. */
+  | { kind: 'capability'; actions: Action[] }
   | { kind: 'ignored' };
 
 export interface PipelineOptions {
@@ -47,6 +50,8 @@ export interface PipelineOptions {
   originMs: number;
   /** Counters carried on from an interrupted run's folder. */
   counters?: { accepted: number; rejected: number; lost: number };
+  /** Amps per count of a 1.1 rig's charger monitor (frames with flag bit 4); null: none. */
+  chargerAmpsPerCount?: number | null;
 }
 
 /**
@@ -58,9 +63,17 @@ export class Pipeline {
   readonly counters: FrameCounters;
   readonly measure: FrameMeasure;
   private readonly values: FrameValues = emptyFrameValues();
+  private readonly exchange = new HelloExchange();
+  private rigCaps: RigCapabilities | null = null;
 
   constructor(private readonly o: PipelineOptions) {
-    this.measure = new FrameMeasure(o.converter, o.corrector, o.originMs, o.timeBase);
+    this.measure = new FrameMeasure(
+      o.converter,
+      o.corrector,
+      o.originMs,
+      o.timeBase,
+      o.chargerAmpsPerCount ?? null,
+    );
     this.counters = {
       accepted: o.counters?.accepted ?? 0,
       rejected: o.counters?.rejected ?? 0,
@@ -99,16 +112,35 @@ export class Pipeline {
     return { kind: 'rejected', reason, detail };
   }
 
+  /** What the rig's last hello exchange declared (v1 or 1.1), or null before one completed. */
+  get rig(): RigCapabilities | null {
+    return this.rigCaps;
+  }
+
   line(text: string, arrivalMs: number, wallMs: number): LineOutcome {
-    const decoded = decodeRigLine(text, this.o.adcBits);
+    // Every v1 line decodes exactly as the v1 codec decodes it; 1.1 adds the capability line.
+    const decoded = decodeRigLine11(text, this.o.adcBits);
+    const caps = this.exchange.feed(decoded);
+    const capsActions = caps === null ? [] : this.o.session.capabilities(caps);
+    if (caps !== null && !(caps instanceof Error)) this.rigCaps = caps;
     if (!decoded.ok) return this.reject(decoded.reason, decoded.detail);
     const m = decoded.message;
-    if (m.kind !== 'data') return this.message(m, arrivalMs);
-    if (m.channel !== this.o.channel) {
-      this.counters.otherChannel++;
-      return { kind: 'ignored' };
-    }
-    return this.frame(m, arrivalMs, wallMs);
+    if (m.kind === 'capability') return { kind: 'capability', actions: capsActions };
+    const out =
+      m.kind !== 'data'
+        ? this.message(m, arrivalMs)
+        : m.channel !== this.o.channel
+          ? this.otherChannel()
+          : this.frame(m, arrivalMs, wallMs);
+    if (capsActions.length === 0) return out;
+    if (out.kind === 'sample' || out.kind === 'message') out.actions.unshift(...capsActions);
+    else return { kind: 'capability', actions: capsActions };
+    return out;
+  }
+
+  private otherChannel(): LineOutcome {
+    this.counters.otherChannel++;
+    return { kind: 'ignored' };
   }
 
   private frame(m: DataFrame, arrivalMs: number, wallMs: number): LineOutcome {
@@ -127,6 +159,7 @@ export class Pipeline {
       celsius: v.celsius,
       thermistor: v.thermistor,
       flags: m.flags,
+      nominalA: v.nominalA,
     });
     const row: SampleRow = {
       hostS: stamp.runMs / 1000,

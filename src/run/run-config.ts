@@ -22,6 +22,16 @@ import { parseScheduleYaml } from '../schedule/schedule-file.js';
 import { readConfigText } from '../core/config-file.js';
 import { existsSync } from 'node:fs';
 import type { RunRequest } from './run-request.js';
+import { parseProgram } from '../program/program-file.js';
+import { planProgram } from '../program/program-plan.js';
+import type { Plan } from '../program/program-types.js';
+
+/** A program run's program: where it came from, its text as read and its resolved plan. */
+export interface RunProgram {
+  where: string;
+  text: string;
+  plan: Plan;
+}
 
 /** Everything a run needs, checked before anything is opened or switched. */
 export interface RunConfig {
@@ -44,6 +54,8 @@ export interface RunConfig {
   scheduleSource: { kind: 'file' | 'option'; text: string; where: string } | null;
   /** What is written on the cell (a resumed run keeps its own); null when none was given. */
   cellId: string | null;
+  /** A program run's program: the file as given and its plan for this chemistry and cells. */
+  program: RunProgram | null;
 }
 
 /** `--schedule` names a file (YAML) or is written inline ("on 15 s every 1 min, 8 h per day, to 1.0 V"). */
@@ -165,11 +177,71 @@ function checkEndPoints(cutoffPerCell: number | undefined, schedule: Schedule | 
   );
 }
 
+/**
+ * A program run cut off by a crash is not continued: its cut step would need its own precheck
+ * and a new segment, which this version does not do. Refused before anything is opened.
+ */
+function programResumeRefused(req: RunRequest, name: string): Error {
+  return makeError(
+    ErrorCodes.USAGE,
+    `the run was running program "${name}"; a program run cannot be resumed`,
+    `--resume ${req.resume ?? ''}`,
+    'Run `cellvigil report` on the folder for what it recorded up to the interruption (the cut step is recorded as interrupted), then start the program again with --new as a new run.',
+  );
+}
+
+/** Reads `--program` and plans it against the chemistry and cells, before anything is opened. */
+async function readRunProgram(
+  req: RunRequest,
+  chemistry: ChemistryProfile,
+  cells: number,
+): Promise<RunProgram | null> {
+  if (req.program === undefined) {
+    if (req.rated !== undefined)
+      throw makeError(
+        ErrorCodes.USAGE,
+        '--rated applies to a program run',
+        '--rated',
+        'Give it with --program <file>, or leave it out.',
+      );
+    return null;
+  }
+  if (req.schedule !== undefined || req.cutoff !== undefined)
+    throw makeError(
+      ErrorCodes.USAGE,
+      'a program sets each discharge itself',
+      req.schedule !== undefined ? '--schedule' : '--cutoff',
+      "Leave it out with --program; write the cutoff in the program's discharge step (cutoff_V_per_cell).",
+    );
+  if (req.rated !== undefined && !(req.rated > 0 && Number.isFinite(req.rated)))
+    throw makeError(
+      ErrorCodes.USAGE,
+      `rated capacity ${req.rated} Ah is not a positive number`,
+      '--rated',
+      'Give the capacity printed on the cell, in Ah, e.g. 2.5.',
+    );
+  const where = resolve(req.program);
+  const text = await readConfigText(
+    where,
+    'program file',
+    'Check the path; the shipped examples are in config/programs/.',
+  );
+  const file = parseProgram(text, where);
+  const plan = planProgram(file, {
+    profile: chemistry,
+    cells,
+    where,
+    ...(req.rated !== undefined ? { ratedAh: req.rated } : {}),
+  });
+  return { where, text, plan };
+}
+
 export async function resolveRunConfig(
   req: RunRequest,
   resumed: RunManifest | null = null,
 ): Promise<RunConfig> {
   if (resumed) {
+    if (resumed.program) throw programResumeRefused(req, resumed.program.name);
     checkSameRun(req, resumed);
     req = {
       ...req,
@@ -203,6 +275,7 @@ export async function resolveRunConfig(
     resumedSchedule ?? (req.schedule !== undefined ? await readScheduleSource(req.schedule) : null);
   const schedule = scheduleSource ? parseScheduleSource(scheduleSource) : null;
   if (!resumed) checkEndPoints(req.cutoff, schedule);
+  const program = await readRunProgram(req, chemistry, cells);
   const endPoint = req.cutoff ?? schedule?.endPointVPerCell ?? undefined;
   const resolved = resolveCutoff(
     chemistry,
@@ -236,5 +309,6 @@ export async function resolveRunConfig(
     scenario,
     schedule,
     scheduleSource,
+    program,
   };
 }

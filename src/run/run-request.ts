@@ -33,6 +33,10 @@ export interface RunRequest extends FleetRunRequest {
   baud?: number;
   /** Sample file size before rotation. */
   rotateBytes: number;
+  /** Program file (docs/programs.md): charge, rest and discharge steps instead of one discharge. */
+  program?: string;
+  /** Rated capacity for the program's C-rates, Ah; replaces the file's rated_Ah. */
+  rated?: number;
   /** Rig channel to discharge. */
   channel: number;
   /** What is written on the cell (free text); kept in the manifest and the result. */

@@ -52,6 +52,16 @@ export function manifestOf(x: {
     ...(cfg.scheduleSource && cfg.schedule
       ? { schedule: { ...cfg.scheduleSource, description: describeSchedule(cfg.schedule) } }
       : {}),
+    ...(cfg.program
+      ? {
+          program: {
+            name: cfg.program.plan.name,
+            file: cfg.program.where,
+            text: cfg.program.text,
+            plan: cfg.program.plan,
+          },
+        }
+      : {}),
   };
 }
 

@@ -156,6 +156,20 @@ export class Integrator {
     this.bridgedAh += Math.abs(dAh);
   }
 
+  /**
+   * A program's next segment: its totals start from zero, and the frame that ended the segment
+   * before stays the first point of this one (the trapezoid from it is this segment's).
+   */
+  zeroTotals(): void {
+    this.chargeAh = 0;
+    this.energyWh = 0;
+    this.onMs = 0;
+    this.bridgedAh = 0;
+    this.switches.count = 0;
+    this.switches.sumSqHalfWidthAh = 0;
+    this.switches.widestMs = 0;
+  }
+
   /** Starts from totals recorded earlier (resuming a run); the next frame starts a new segment. */
   restore(totals: { chargeAh: number; energyWh: number; onMs: number; bridgedAh: number }): void {
     this.chargeAh = totals.chargeAh;

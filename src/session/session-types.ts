@@ -7,7 +7,12 @@ export type EndReason =
   | 'link_lost'
   | 'fault'
   | 'implausible_reading'
-  | 'open_load';
+  | 'open_load'
+  // A program run's own (docs/programs.md): every step done, a charge that never ended, a
+  // charge step's safety end (its detail names the segment's end).
+  | 'program_complete'
+  | 'charge_timeout'
+  | 'charge_fault';
 
 /** Ends on a safety limit (exit code 3); the others are the normal end of a run. */
 export const SAFETY_END_REASONS: readonly EndReason[] = [
@@ -16,13 +21,23 @@ export const SAFETY_END_REASONS: readonly EndReason[] = [
   'fault',
   'implausible_reading',
   'open_load',
+  'charge_timeout',
+  'charge_fault',
 ];
 
 /** A run that never switched the load on ends `refused` (exit 2) instead of with an end reason. */
 export type SessionEnd = EndReason | 'refused';
 
 export type SessionState =
-  'waiting' | 'precheck' | 'starting' | 'discharging' | 'stopping' | 'ended';
+  | 'waiting'
+  | 'precheck'
+  | 'starting'
+  | 'discharging'
+  | 'stopping'
+  | 'ended'
+  // A program run's segments (discharging is shared with a plain run).
+  | 'charging'
+  | 'resting';
 
 /** One frame after the time base, the analog chain and the calibration. */
 export interface Measurement {
@@ -34,6 +49,8 @@ export interface Measurement {
   celsius: number;
   thermistor: 'ok' | 'open' | 'short';
   flags: number;
+  /** The uncorrected current's magnitude (a program's per-segment uncertainty budget). */
+  nominalA?: number;
 }
 
 export type Action =

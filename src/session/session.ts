@@ -1,4 +1,5 @@
-import { ErrorCodes, makeError } from '../core/errors.js';
+import { ErrorCodes, makeError, type CellvigilError } from '../core/errors.js';
+import type { RigCapabilities } from '../protocol/capabilities.js';
 import { FLAG_LOAD_ON, FLAG_RIG_FAULT } from '../protocol/messages.js';
 import { loadPlanAt, type Schedule } from '../schedule/schedule.js';
 import { Integrator } from './integrator.js';
@@ -115,6 +116,14 @@ export class Session {
   begin(nowMs: number): Action[] {
     this.startedAt = nowMs;
     return [{ type: 'send', command: { command: 'HELLO' } }];
+  }
+
+  /**
+   * The rig's capabilities from its hello exchange: a plain discharge reads v1 flags either
+   * way and needs nothing from them (a program run does).
+   */
+  capabilities(_caps: RigCapabilities | CellvigilError): Action[] {
+    return [];
   }
 
   frame(m: Measurement): Action[] {

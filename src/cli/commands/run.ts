@@ -31,6 +31,8 @@ interface RunArgs extends BrokerArgs {
   'rotate-mb': number;
   resume: string | undefined;
   schedule: string | undefined;
+  program: string | undefined;
+  rated: number | undefined;
   new: boolean;
   'link-timeout': number;
 }
@@ -112,6 +114,15 @@ function runOptions<T>(y: Argv<T>) {
       describe:
         'Discharge schedule: a YAML file, or e.g. "on 15 s every 1 min, 8 h per day, to 1.0 V"',
     })
+    .option('program', {
+      type: 'string',
+      describe:
+        'Program file: charge, rest and discharge steps, repeated (docs/programs.md); a protocol 1.1 rig',
+    })
+    .option('rated', {
+      type: 'number',
+      describe: "Rated capacity for the program's C-rates, Ah (replaces the file's rated_Ah)",
+    })
     .option('resume', {
       type: 'string',
       describe: 'Continue an interrupted run from its folder (same rig, chemistry and limits)',
@@ -187,6 +198,8 @@ export const runCommand: CommandModule<object, RunArgs> = {
       fresh: args.new,
       ...(args.resume !== undefined ? { resume: args.resume } : {}),
       ...(args.schedule !== undefined ? { schedule: args.schedule } : {}),
+      ...(args.program !== undefined ? { program: args.program } : {}),
+      ...(args.rated !== undefined ? { rated: args.rated } : {}),
       ...(args.port !== undefined ? { port: args.port } : {}),
       ...(args.sim !== undefined ? { sim: args.sim } : {}),
       ...(args.rig !== undefined ? { rig: args.rig } : {}),
