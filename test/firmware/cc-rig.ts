@@ -40,6 +40,9 @@ export interface CcChannelTruth extends ChannelTruth {
   charge_on_s: number;
   both_on_ms: number;
   setpoint_rc_V: number;
+  /** The soft internal short (0: none) and the charge it has drawn. */
+  leak_ohm: number;
+  leaked_Ah: number;
   segments: (ChannelTruth['segments'][number] & {
     mode: 'rest' | 'discharge' | 'charge';
     phase: 'off' | 'cc' | 'cv' | 'done';
@@ -87,6 +90,8 @@ export interface CcRigOptions {
   termMa?: number;
   /** The cell's thermal time constant, s of emulated time. */
   thermalTauS?: number;
+  /** The truth notes when the cell first reaches this temperature, °C. */
+  hotMarkC?: number;
   seed?: number;
 }
 
@@ -122,6 +127,7 @@ export async function startCcHarness(o: CcRigOptions = {}): Promise<CcHarness> {
     ...num('--charge-v', o.chargeV),
     ...num('--term-ma', o.termMa),
     ...num('--thermal-tau', o.thermalTauS),
+    ...num('--hot-mark', o.hotMarkC),
     ...num('--seed', o.seed),
   ];
   const child = spawn(HARNESS, args, { stdio: ['pipe', 'pipe', 'pipe'] });
