@@ -132,7 +132,8 @@ describe('reference firmware (CC variant) on an emulated chip: a program’s cha
     const last = segments[2]!;
     expect(last.setpoint).toMatchObject({ current_A: DISCHARGE_A });
     expect(run.result.segments[2]!.end_voltage_V).toBeLessThanOrEqual(CUTOFF_V);
-    expect(run.result.segments[2]!.end_voltage_V).toBeGreaterThan(CUTOFF_V - 0.1);
+    // At 1 A this small cell's voltage falls about 0.15 V between two frames at the very end.
+    expect(run.result.segments[2]!.end_voltage_V).toBeGreaterThan(CUTOFF_V - 0.2);
   });
 
   // Not within the run's own expanded uncertainty (0.03 % here): the calibration's zero-current
