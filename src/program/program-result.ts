@@ -51,11 +51,11 @@ function cyclesOf(segments: readonly SegmentFigures[]): {
 }
 
 /** `base` (built as for any run) with the program's keys and the latest full cycle's figures. */
-export function withProgram(
-  base: RunResult,
+export function withProgram<T extends RunResult>(
+  base: T,
   name: string,
   segments: readonly SegmentFigures[],
-): RunResult {
+): T {
   const { cycles, trend } = cyclesOf(segments);
   const last = cycles.at(-1);
   const seg = last ? segments.find((s) => s.index === last.segment)! : null;

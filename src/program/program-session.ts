@@ -103,7 +103,8 @@ export class ProgramSession extends Session {
       ...settings,
     };
     this.seq = new ProgramSequencer(settings.plan, settings.sequencer ?? {});
-    this.accounting = new SegmentAccounting(settings.accounting);
+    // The rows' running totals are the segment's: the accounting integrates into the session's own.
+    this.accounting = new SegmentAccounting(settings.accounting, this.integrator);
     this.commands = new CommandQueue(this.p.confirmMs, MAX_TRIES);
   }
 
@@ -113,6 +114,11 @@ export class ProgramSession extends Session {
 
   override get result(): { reason: EndReason | null; detail: string } {
     return { reason: this.endReasonP, detail: this.endDetailP };
+  }
+
+  /** Frames whose readings could not be true, left out of the integrals. */
+  get implausibleCount(): number {
+    return this.implausibleFrames;
   }
 
   /** The segment running now, or null. */

@@ -58,7 +58,6 @@ function currentFlows(flags: number): boolean {
 }
 
 export class SegmentAccounting {
-  private readonly integ = new Integrator();
   private nominalAh = 0;
   private prevNominalA = 0;
   private samples = 0;
@@ -66,7 +65,14 @@ export class SegmentAccounting {
   private seeded = false;
   private active = false;
 
-  constructor(private readonly s: AccountingSettings) {}
+  /**
+   * @param integ the integrator whose totals the sample rows show (the live session's), or a
+   *   fresh one (the recompute).
+   */
+  constructor(
+    private readonly s: AccountingSettings,
+    private readonly integ: Integrator = new Integrator(),
+  ) {}
 
   get isActive(): boolean {
     return this.active;
@@ -110,8 +116,12 @@ export class SegmentAccounting {
     return true;
   }
 
-  /** The running segment is over: its figures. */
-  close(seg: SegmentLine): SegmentFigures {
+  /** The running segment is over (or was cut off by an interruption): its figures. */
+  close(
+    seg: Omit<SegmentLine, 'end_reason'> & {
+      end_reason: SegmentLine['end_reason'] | 'interrupted';
+    },
+  ): SegmentFigures {
     this.active = false;
     const { integ, s } = this;
     const charger = seg.kind === 'charge';

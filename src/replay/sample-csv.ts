@@ -28,7 +28,17 @@ export interface SampleRecord {
 
 type Column = (typeof SAMPLE_COLUMNS)[number];
 
-const STATES = new Set(['waiting', 'precheck', 'starting', 'discharging', 'stopping', 'ended']);
+// A program run's rows name their segment's kind: charging, resting (discharging is shared).
+const STATES = new Set([
+  'waiting',
+  'precheck',
+  'starting',
+  'discharging',
+  'stopping',
+  'ended',
+  'charging',
+  'resting',
+]);
 const DECIMAL = /^-?(\d+(\.\d*)?|\.\d+)([eE][+-]?\d+)?$/;
 const WHOLE = /^\d+$/;
 

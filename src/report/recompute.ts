@@ -28,6 +28,10 @@ import { EventDigest, type EventDigestResult, type RunEnd } from './event-digest
 import { ratedCapacityVerdict, type Verdict } from './verdicts.js';
 import { VoltageSteps, type VoltageStepRow } from './voltage-steps.js';
 
+import { withProgram } from '../program/program-result.js';
+import { readSegments } from '../record/segments.js';
+import { ProgramRecompute } from './recompute-program.js';
+
 export interface RecomputeOptions {
   /** The calibration to apply: absent, the run's own (from its manifest); null, none (nominal chain). */
   calibration?: Calibration | null;
@@ -795,12 +799,17 @@ export async function recomputeRun(run: RunFolder, o: RecomputeOptions = {}): Pr
         o.onProgress!(done, total);
       }
     : undefined;
-  await forEachRunSample(run, { onCutLine, ...(onBytes ? { onBytes } : {}) }, (s) =>
-    core.sample(s),
-  );
+  // A program run's segments: the same rows through the live run's accounting.
+  const program = run.manifest.program
+    ? new ProgramRecompute(run.manifest, calibration, await readSegments(run.dir))
+    : null;
+  await forEachRunSample(run, { onCutLine, ...(onBytes ? { onBytes } : {}) }, (s) => {
+    core.sample(s);
+    program?.sample(s);
+  });
   const calibrationFile =
     o.calibration === undefined ? run.manifest.calibration.file : (o.calibrationFile ?? null);
-  return core.finish({
+  const figures = core.finish({
     folder: run.dir,
     original: run.result,
     checkpoint: run.checkpoint,
@@ -808,4 +817,8 @@ export async function recomputeRun(run: RunFolder, o: RecomputeOptions = {}): Pr
     cutLines,
     notes,
   });
+  if (program === null || run.manifest.program === undefined) return figures;
+  const segments = program.finish(run.result === null);
+  figures.result = withProgram(figures.result, run.manifest.program.name, segments);
+  return figures;
 }

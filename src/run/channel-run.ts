@@ -524,7 +524,9 @@ export class ChannelRun {
       lastLoadedV: session.lastLoadedV,
       cutoffV: session.cutoffV,
       counters: pipeline.counters,
-      implausibleFrames: session.plausibility.implausibleFrames,
+      implausibleFrames: program
+        ? program.implausibleCount
+        : session.plausibility.implausibleFrames,
       rigClockErrorPpm: pipeline.rigClockErrorPpm(),
       calibration: this.calibration,
       calibrationId: pipeline.calibrationId,

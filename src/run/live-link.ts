@@ -107,6 +107,12 @@ export async function startLiveLink(o: LiveLinkOptions): Promise<LiveLink> {
   return { server, hub, observer: liveObserver(hub) };
 }
 
+const SEGMENT_STATE: Record<string, string> = {
+  charge: 'charging',
+  rest: 'resting',
+  discharge: 'discharging',
+};
+
 /** What a run tells a hub: its samples (the newest of each turn), alarms, cutoff and result. */
 export function liveObserver(hub: LiveHub): RunObserver {
   // The hub takes the newest sample of each event-loop turn: a rig's frames arrive one per turn
@@ -115,6 +121,7 @@ export function liveObserver(hub: LiveHub): RunObserver {
   // sample on first, so the feed keeps the log's order.
   let pendingRow: SampleRow | null = null;
   let pendingLoadOn = false;
+  let lastState = 'waiting';
   let queued: NodeJS.Immediate | null = null;
   const passSample = (): void => {
     if (queued) clearImmediate(queued);
@@ -127,7 +134,15 @@ export function liveObserver(hub: LiveHub): RunObserver {
   const event = (rec: EventRecord): void => {
     passSample();
     if (rec.event === 'state') {
+      lastState = rec.to;
       hub.state({ host_s: rec.host_s, from: rec.from, to: rec.to, why: rec.why });
+    } else if (rec.event === 'segment_started') {
+      // A program's step: a state change for the page and watch, the segment named in its why.
+      const to = SEGMENT_STATE[rec.kind] ?? rec.kind;
+      const cycle = rec.cycle === null ? '' : `, cycle ${rec.cycle}`;
+      const why = `segment ${rec.index}: ${rec.kind}, ${rec.step}${cycle}`;
+      hub.state({ host_s: rec.host_s, from: lastState, to, why });
+      lastState = to;
     } else if (rec.event === 'cutoff_changed') {
       hub.cutoffChanged(rec.cutoff_V, rec.by);
     } else if (rec.event === 'chemistry_changed') {

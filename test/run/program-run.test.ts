@@ -1,83 +1,8 @@
-import { mkdtempSync, readFileSync, writeFileSync } from 'node:fs';
-import { tmpdir } from 'node:os';
+import { readFileSync } from 'node:fs';
 import { join } from 'node:path';
-import { PassThrough } from 'node:stream';
 import { describe, expect, it } from 'vitest';
-import { loadRigProfile } from '../../src/chain/rig-profile-file.js';
-import { VirtualClock } from '../../src/core/clock.js';
 import { readSegments } from '../../src/record/segments.js';
-import { startRun, type RunOutcome } from '../../src/run/daemon.js';
-import { ScriptedRig11, type ScriptedCell } from './rig11-script.js';
-
-const PROGRAM = `name: test cycle
-rated_Ah: 1
-steps:
-  - charge: { until: cc-cv, current_C: 0.5, timeout_h: 1 }
-  - rest: { minutes: 1 }
-  - discharge: { current_A: 1.0 }
-`;
-
-function cell(over: Partial<ScriptedCell> = {}): ScriptedCell {
-  return {
-    capacityAh: 0.02,
-    soc: 0.1,
-    emptyV: 3.0,
-    fullV: 4.2,
-    ohm: 0.1,
-    celsius: () => 25,
-    ...over,
-  };
-}
-
-async function programRun(
-  c: ScriptedCell,
-  x: { v1?: boolean; program?: string } = {},
-): Promise<{ outcome: RunOutcome; rig: ScriptedRig11; folder: string; err: string }> {
-  const dir = mkdtempSync(join(tmpdir(), 'cv-program-'));
-  const programPath = join(dir, 'program.yaml');
-  writeFileSync(programPath, x.program ?? PROGRAM);
-  const rigPath = join(process.cwd(), 'config/rigs/cv328-cc.yaml');
-  const profile = await loadRigProfile(rigPath);
-  const clock = new VirtualClock(0, Date.UTC(2026, 11, 3, 9, 0, 0));
-  const rig = new ScriptedRig11({
-    clock,
-    profile,
-    cell: c,
-    chargerA: 0.3,
-    chargerV: 4.2,
-    ...(x.v1 ? { v1: true } : {}),
-  });
-  const io = { out: new PassThrough(), err: new PassThrough() };
-  io.out.resume();
-  let err = '';
-  io.err.on('data', (d: Buffer) => (err += d.toString()));
-  const run = await startRun(
-    {
-      port: '/dev/null-scripted',
-      speed: 1,
-      runs: dir,
-      listen: null,
-      once: true,
-      rotateBytes: 1 << 24,
-      channel: 0,
-      linkTimeoutS: 60,
-      fresh: true,
-      rig: rigPath,
-      chemistry: 'li-ion',
-      cells: 1,
-      program: programPath,
-    },
-    io,
-    { source: rig, clock },
-  );
-  let ended = false;
-  void run.done.then(() => (ended = true));
-  for (let t = 0; !ended && t < 3 * 3_600_000; t += 100) {
-    clock.advance(100);
-    if (t % 1000 === 0) await new Promise((r) => setImmediate(r));
-  }
-  return { outcome: await run.done, rig, folder: run.folder, err };
-}
+import { cell, PROGRAM, programRun } from './program-run-helper.js';
 
 describe('a program run against a scripted protocol 1.1 rig', () => {
   // Charge is the time integral of current (physics): the rig's own integral of its true
@@ -138,6 +63,31 @@ describe('a program run against a scripted protocol 1.1 rig', () => {
     const segs = await readSegments(folder);
     expect(segs).toHaveLength(1);
     expect(segs[0]!.end_reason).toBe('over_temperature');
+    expect(outcome.result.cycles).toEqual([]);
+  }, 60_000);
+
+  // A charge step's timeout (the chemistry's timeout_h caps it; here the program's 0.02 h, 72 s)
+  // ends a charge whose charger never terminates; the charger is switched off.
+  it('a charge that never terminates ends on its timeout, exit 3', async () => {
+    const program = PROGRAM.replace('timeout_h: 1', 'timeout_h: 0.02');
+    const big = cell({ capacityAh: 1 });
+    const { outcome, rig, folder } = await programRun(big, { program, neverEnds: true });
+    expect(outcome.result.end_reason).toBe('charge_timeout');
+    expect(outcome.exitCode).toBe(3);
+    expect(rig.mode).toBe('rest');
+    const segs = await readSegments(folder);
+    expect(segs.map((s) => s.end_reason)).toEqual(['charge_timeout']);
+    expect(segs[0]!.ended_ms - segs[0]!.started_ms).toBeGreaterThanOrEqual(72_000);
+    expect(segs[0]!.ended_ms - segs[0]!.started_ms).toBeLessThan(73_000);
+  }, 60_000);
+
+  it('a stop mid-discharge ends the segment as stopped, exit 0, the channel at rest', async () => {
+    const { outcome, rig, folder } = await programRun(cell(), { stopAtMs: 320_000 });
+    expect(outcome.result.end_reason).toBe('stopped');
+    expect(outcome.exitCode).toBe(0);
+    expect(rig.mode).toBe('rest');
+    const segs = await readSegments(folder);
+    expect(segs.map((s) => s.end_reason)).toEqual(['termination_current', 'rest_time', 'stopped']);
     expect(outcome.result.cycles).toEqual([]);
   }, 60_000);
 });

@@ -35,6 +35,8 @@ export interface ScriptedRigOptions {
   chargerA: number;
   chargerV: number;
   frameMs?: number;
+  /** A charger that never ends its charge (its termination broken). */
+  neverEnds?: boolean;
 }
 
 const FLAGS: Record<ChannelMode, number> = { rest: 0x00, discharge: 0x05, charge: 0x18 };
@@ -128,7 +130,8 @@ export class ScriptedRig11 implements Source {
     if (this.mode !== 'charge' || this.chargerDone) return 0;
     const cv = (this.o.chargerV - this.ocv()) / cell.ohm;
     const into = Math.max(0, Math.min(this.o.chargerA, cv));
-    if (into < this.o.chargerA / 20) this.chargerDone = true;
+    if (into < this.o.chargerA / 20 && !this.o.neverEnds) this.chargerDone = true;
+    if (this.o.neverEnds) return -this.o.chargerA;
     return this.chargerDone ? 0 : -into;
   }
 
