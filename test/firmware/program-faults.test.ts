@@ -1,5 +1,7 @@
+import { execFile } from 'node:child_process';
 import { existsSync } from 'node:fs';
 import { join } from 'node:path';
+import { promisify } from 'node:util';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import type { SegmentLine } from '../../src/record/segments.js';
 import { readSegments } from '../../src/record/segments.js';
@@ -11,12 +13,17 @@ import {
   type CcTruth,
 } from './cc-rig.js';
 import { daemonOnRig, finishedRun, type FinishedRun } from './daemon-on-rig.js';
-import { onlyRunFolder } from '../e2e/pty-helpers.js';
+import { CLI, onlyRunFolder, readJson } from '../e2e/pty-helpers.js';
 import { waitUntil } from './emulated-rig.js';
 
 interface Result {
   end_reason: string;
   end_detail: string;
+}
+
+interface Recomputed extends Result {
+  segments: { kind: string; end_reason: string; charge_Ah: number }[];
+  cycles: unknown[];
 }
 
 // Charges that go wrong, end to end: `cellvigil run --program` on the CC variant of the reference
@@ -41,6 +48,9 @@ describe('reference firmware (CC variant) on an emulated chip: a program’s cha
   let afterKill: CcTruth;
   let killedFolder = '';
   let killedExit: number | null = 0;
+  let killedHadResult = true;
+  let chargedBeforeKill = 0;
+  let recomputed: Recomputed;
   let timeout: Run;
   const ch = (t: CcTruth) => t.channels[CHANNEL];
 
@@ -88,6 +98,7 @@ describe('reference firmware (CC variant) on an emulated chip: a program’s cha
       ['--channel', String(CHANNEL), '--program', programFixture('small-cell-cycle.yaml')],
       { profile: CC_RIG_PROFILE, runsName: 'killed' },
     );
+    chargedBeforeKill = ch(rig.truth()).charged_Ah;
     const d = on.start();
     await chargerOn();
     await new Promise((r) => setTimeout(r, 1500));
@@ -97,6 +108,10 @@ describe('reference firmware (CC variant) on an emulated chip: a program’s cha
     await new Promise((r) => setTimeout(r, 300));
     afterKill = rig.truth();
     killedFolder = onlyRunFolder(on.runs);
+    killedHadResult = existsSync(join(killedFolder, 'result.json'));
+    // The documented way on: `report` recomputes the folder from the rows it has.
+    await promisify(execFile)(process.execPath, [CLI, 'report', killedFolder]);
+    recomputed = readJson<Recomputed>(join(killedFolder, 'result.json'));
   }, 150_000);
 
   afterAll(async () => {
@@ -135,8 +150,19 @@ describe('reference firmware (CC variant) on an emulated chip: a program’s cha
     expect(silentFor).toBeGreaterThan(BEAT_TIMEOUT_MS);
     expect(silentFor).toBeLessThan(BEAT_TIMEOUT_MS + 10);
     expect(t.both_on_ms).toBe(0);
-    // Killed, the daemon wrote no result; the run folder waits for a resume or a report.
-    expect(existsSync(join(killedFolder, 'result.json'))).toBe(false);
+  });
+
+  it('the killed run’s folder: no result until `report`, which records the charge as interrupted, short of what went in', () => {
+    expect(killedHadResult).toBe(false);
+    expect(recomputed.end_reason).toBe('interrupted');
+    expect(recomputed.segments.map((s) => [s.kind, s.end_reason])).toEqual([
+      ['charge', 'interrupted'],
+    ]);
+    expect(recomputed.cycles).toEqual([]);
+    // The rows stop at the kill; the charger went on for 5 s more, unlogged.
+    const truthAh = ch(afterKill).charged_Ah - chargedBeforeKill;
+    expect(recomputed.segments[0]!.charge_Ah).toBeGreaterThan(0);
+    expect(recomputed.segments[0]!.charge_Ah).toBeLessThan(truthAh);
   });
 
   it('a charge that never terminates ends on its timeout (exit 3), the charger off', () => {
