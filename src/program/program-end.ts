@@ -4,13 +4,12 @@
  * charge window or unknown, a mode the rig never took) as `charge_fault` naming the segment's
  * end; over-temperature and a stop as in any run.
  */
-import type { SegmentFigures } from '../record/result.js';
 import type { EndReason } from '../session/session-types.js';
 import type { SegmentEnd } from './sequence-types.js';
 
 export function endOfProgram(
   finished: { aborted: boolean; reason: SegmentEnd | 'complete' },
-  last: Pick<SegmentFigures, 'index' | 'kind' | 'step'> | null,
+  last: { index: number; kind: string; step: string } | null,
 ): { reason: EndReason; detail: string } {
   const where = last ? `segment ${last.index} (${last.kind}, ${last.step})` : 'the program';
   const r = finished.reason;

@@ -9,8 +9,7 @@ import type { CellvigilError } from '../core/errors.js';
 import type { RigCapabilities } from '../protocol/capabilities.js';
 import { frameState, type FrameState } from '../protocol/frame-state.js';
 import { FLAG_LOAD_ON, type HostCommand11 } from '../protocol/messages.js';
-import type { SegmentFigures } from '../record/result.js';
-import type { SegmentLine } from '../record/segments.js';
+import type { SegmentFigures, SegmentLine } from './segment-figures.js';
 import { Session, type SessionSettings } from '../session/session.js';
 import type { Action, EndReason, Measurement, SessionState } from '../session/session-types.js';
 import { CommandQueue } from './command-queue.js';
@@ -242,6 +241,17 @@ export class ProgramSession extends Session {
     else if (ph === 'running' || ph === 'precheck')
       this.halt('stopped', `stopped by ${by}`, nowMs, out);
     return out;
+  }
+
+  /** An edited chemistry may only tighten the limits (the caller checks): the ceiling applies at once. */
+  override updateLimits(x: {
+    floorV: number;
+    maxTemperatureC: number;
+    cutoffV: number;
+  }): { ok: true } | { ok: false; why: string } {
+    const r = super.updateLimits(x);
+    if (r.ok) this.p.maxTemperatureC = x.maxTemperatureC;
+    return r;
   }
 
   override setCutoff(): { ok: false; why: string } {

@@ -6,8 +6,7 @@
  */
 import type { Calibration } from '../calibration/calibration.js';
 import { frameState } from '../protocol/frame-state.js';
-import type { SegmentFigures } from '../record/result.js';
-import type { SegmentLine } from '../record/segments.js';
+import type { SegmentFigures, SegmentLine } from './segment-figures.js';
 import { runUncertainty } from '../results/uncertainty.js';
 import { Integrator } from '../session/integrator.js';
 

@@ -10,6 +10,7 @@ import { SAFETY_END_REASONS, type EndReason, type SessionEnd } from '../session/
 import { runUncertainty, type FigureUncertainty } from '../results/uncertainty.js';
 import { writeJsonAtomic } from '../sinks/atomic-json.js';
 import { parseChecked, readOptional } from './json-file.js';
+import type { SegmentFigures } from '../program/segment-figures.js';
 
 /** result.json (docs/run-folder.md lists every key). */
 export interface RunResult {
@@ -53,26 +54,7 @@ export interface RunResult {
   cycle_trend?: CycleTrendFigures | null;
 }
 
-/** One segment of a program run with what went in or out of the cell during it. */
-export interface SegmentFigures {
-  index: number;
-  kind: 'rest' | 'discharge' | 'charge';
-  purpose: 'program' | 'storage';
-  step: string;
-  cycle: number | null;
-  started_ms: number;
-  ended_ms: number;
-  end_reason: string;
-  setpoint: Record<string, number | string | null>;
-  duration_s: number;
-  /** Charge moved, Ah, never negative: out of the cell for a discharge, into it for a charge. */
-  charge_Ah: number;
-  energy_Wh: number;
-  /** Mean of the current's magnitude while the load or charger was on, A; null at rest. */
-  mean_current_A: number | null;
-  end_voltage_V: number | null;
-  uncertainty: { charge_Ah: FigureUncertainty; energy_Wh: FigureUncertainty };
-}
+export type { SegmentFigures } from '../program/segment-figures.js';
 
 /** One full discharge of a program (it reached its cutoff): one cycle's capacity. */
 export interface CycleFigures {

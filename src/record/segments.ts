@@ -8,16 +8,13 @@ import { closeSync, fdatasyncSync, openSync, writeSync } from 'node:fs';
 import { join } from 'node:path';
 import { Ajv } from 'ajv';
 import { ErrorCodes, makeError } from '../core/errors.js';
-import type { SegmentEnd, SegmentRecord } from '../program/sequence-types.js';
+import type { SegmentLine } from '../program/segment-figures.js';
+import type { SegmentEnd } from '../program/sequence-types.js';
 import { readOptional, schemaProblems } from './json-file.js';
 
 export const SEGMENTS_FILE = 'segments.jsonl';
 
-/** A segment as the file keeps it: ended, with its reason. */
-export type SegmentLine = SegmentRecord & {
-  ended_ms: number;
-  end_reason: SegmentEnd | 'interrupted';
-};
+export type { SegmentLine } from '../program/segment-figures.js';
 
 const SEGMENT_ENDS: readonly (SegmentEnd | 'interrupted')[] = [
   'termination_current',

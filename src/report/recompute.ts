@@ -28,7 +28,7 @@ import { EventDigest, type EventDigestResult, type RunEnd } from './event-digest
 import { ratedCapacityVerdict, type Verdict } from './verdicts.js';
 import { VoltageSteps, type VoltageStepRow } from './voltage-steps.js';
 
-import { withProgram } from '../program/program-result.js';
+import { withProgram } from './program-result.js';
 import { readSegments } from '../record/segments.js';
 import { ProgramRecompute } from './recompute-program.js';
 

@@ -29,7 +29,7 @@ import type { StatusPrinter } from './status-line.js';
 import { bridgeUnlogged } from './unlogged.js';
 import { chargerAmpsPerCount, newProgramSession } from './program-parts.js';
 import { ProgramSession } from '../program/program-session.js';
-import { withProgram } from '../program/program-result.js';
+import { withProgram } from '../report/program-result.js';
 import { encodeForRig } from '../protocol/capabilities.js';
 import { appendSegment } from '../record/segments.js';
 

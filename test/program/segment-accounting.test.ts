@@ -1,6 +1,6 @@
 import { describe, expect, it } from 'vitest';
 import { endOfProgram } from '../../src/program/program-end.js';
-import { withProgram } from '../../src/program/program-result.js';
+import { withProgram } from '../../src/report/program-result.js';
 import { SegmentAccounting, type AccountedFrame } from '../../src/program/segment-accounting.js';
 import type { RunResult } from '../../src/record/result.js';
 import type { SegmentLine } from '../../src/record/segments.js';

@@ -1,7 +1,9 @@
 import { readFileSync } from 'node:fs';
 import { join } from 'node:path';
 import { describe, expect, it } from 'vitest';
+import { parseManifest } from '../../src/record/manifest.js';
 import { readSegments } from '../../src/record/segments.js';
+import { resolveRunConfig } from '../../src/run/run-config.js';
 import { cell, PROGRAM, programRun } from './program-run-helper.js';
 
 describe('a program run against a scripted protocol 1.1 rig', () => {
@@ -89,5 +91,21 @@ describe('a program run against a scripted protocol 1.1 rig', () => {
     const segs = await readSegments(folder);
     expect(segs.map((s) => s.end_reason)).toEqual(['termination_current', 'rest_time', 'stopped']);
     expect(outcome.result.cycles).toEqual([]);
+  }, 60_000);
+
+  it('a program run is not resumed: refused with what to do instead', async () => {
+    const { folder } = await programRun(cell(), { stopAtMs: 10_000 });
+    const manifest = parseManifest(readFileSync(join(folder, 'manifest.json'), 'utf8'), folder);
+    const req = {
+      speed: 1,
+      runs: folder,
+      listen: null,
+      once: true,
+      rotateBytes: 1 << 24,
+      channel: 0,
+      linkTimeoutS: 60,
+      resume: folder,
+    };
+    await expect(resolveRunConfig(req, manifest)).rejects.toThrow(/cannot be resumed.*--new/);
   }, 60_000);
 });

@@ -5,7 +5,7 @@
  * result here.
  */
 import type { CycleFigures, RunResult, SegmentFigures } from '../record/result.js';
-import { capacityTrend } from '../report/cycle-trend.js';
+import { capacityTrend } from './cycle-trend.js';
 
 const r = (x: number, digits: number): number => Number(x.toFixed(digits));
 
