@@ -57,14 +57,14 @@ describe('reference firmware (CC variant) on an emulated chip: a program’s cha
   const program = async (
     name: string,
     file: string,
-    during?: (on: ReturnType<typeof daemonOnRig>) => Promise<void>,
+    during?: () => Promise<void>,
   ): Promise<Run> => {
     const on = daemonOnRig(rig, ['--channel', String(CHANNEL), '--program', programFixture(file)], {
       profile: CC_RIG_PROFILE,
       runsName: name,
     });
     const d = on.start();
-    if (during) await during(on);
+    if (during) await during();
     const run = await finishedRun<Result, CcTruth>(rig, on, d);
     return { ...run, segments: await readSegments(run.folder) };
   };
