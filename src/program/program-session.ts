@@ -47,6 +47,8 @@ const KIND_STATE: Record<'rest' | 'discharge' | 'charge', SessionState> = {
 /** Implausible frames in a row that end a program (as a plain run ends on them). */
 const IMPLAUSIBLE_END_FRAMES = 5;
 const MAX_TRIES = 3;
+/** A constant power's current setpoint follows the voltage this often, ms. */
+const POWER_EVERY_MS = 5000;
 /** Implausible frames listed one by one in the event log; the rest only counted. */
 const LISTED_IN_FULL = 10;
 
@@ -80,6 +82,9 @@ export class ProgramSession extends Session {
   private restAvg: { sum: number; n: number; since: number } | null = null;
   private implausibleRun = 0;
   private implausibleFrames = 0;
+  /** The current setpoint last sent, counts, and when a constant power last re-set it. */
+  private isetRaw: number | null = null;
+  private powerAtMs = -Infinity;
   private readonly frameIn: AccountedFrame = {
     dtMs: 0,
     gap: false,
@@ -382,6 +387,25 @@ export class ProgramSession extends Session {
       mode: st.mode,
     });
     this.apply(u, m, out);
+    if (this.phase === 'running') this.holdPower(m);
+  }
+
+  /**
+   * A constant-power step on a load that holds a current: the setpoint follows the voltage,
+   * re-set every few seconds when it has moved by a count or more (docs/protocol.md).
+   */
+  private holdPower(m: Measurement): void {
+    const sp = this.seq.current?.setpoint;
+    const watts = sp?.['load'] === 'constant_power' ? sp['power_W'] : null;
+    if (typeof watts !== 'number' || m.hostMs - this.powerAtMs < POWER_EVERY_MS) return;
+    if (this.commands.waiting > 0) return;
+    this.powerAtMs = m.hostMs;
+    const raw = this.p.countsForAmps(watts / Math.max(m.volts, 1e-3));
+    if (raw === this.isetRaw) return;
+    this.outbox.push(
+      ...this.commands.push([{ command: 'ISET', channel: this.p.channel, raw }], m.hostMs),
+    );
+    this.isetRaw = raw;
   }
 
   /** The chemistry's temperature ceiling in every step; a thermistor gone outside a charge is a fault. */
@@ -443,7 +467,9 @@ export class ProgramSession extends Session {
       else if (i.type === 'set-load' && i.load.type !== 'resistor') {
         const amps =
           i.load.type === 'constant_current' ? i.load.A : i.load.W / Math.max(volts, 1e-3);
-        out.push({ command: 'ISET', channel, raw: this.p.countsForAmps(amps) });
+        this.isetRaw = this.p.countsForAmps(amps);
+        this.powerAtMs = -Infinity;
+        out.push({ command: 'ISET', channel, raw: this.isetRaw });
       }
       // set-charge: the rig's charger holds its own current and voltage; the host holds the
       // plan's ceiling, window and timeout against the frames.

@@ -2,6 +2,7 @@
  * What a run says when it starts and when it ends: the manifest it records, the banner and
  * cautions, the first events, and the summary printed after the result.
  */
+import { programSummary } from './program-summary.js';
 import { cautionLines } from '../chemistry/cautions.js';
 import { ErrorCodes } from '../core/errors.js';
 import { packageVersion } from '../core/paths.js';
@@ -144,7 +145,9 @@ export function printSummary(
   w('');
   if (r.end_reason === 'refused') {
     const code = end.rigNeverSpoke ? ErrorCodes.RIG_SILENT : ErrorCodes.PRECHECK_REFUSED;
-    io.err.write(`cellvigil: ${code}: ${r.end_detail}\n`);
+    // A program refused for what the rig lacks carries the protocol's own code already.
+    const own = /^CV_[A-Z_]+: /.test(r.end_detail);
+    io.err.write(`cellvigil: ${own ? '' : `${code}: `}${r.end_detail}\n`);
     w(
       folderKept
         ? `Run refused before the load went on; its record: ${folder}`
@@ -155,6 +158,7 @@ export function printSummary(
   w(
     `Run ended: ${r.end_reason} (${r.end_detail})${r.load_off_confirmed ? '' : ' — load-off NOT confirmed by the rig; its watchdog cuts the load within 5 s'}`,
   );
+  for (const line of programSummary(r)) w(line);
   const u = r.uncertainty.capacity_Ah;
   w(
     `  capacity      ${(r.capacity_Ah * 1000).toFixed(1)} mAh ± ${(u.expanded * 1000).toFixed(1)} mAh (k = 2)`,

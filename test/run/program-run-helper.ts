@@ -31,7 +31,7 @@ export function cell(over: Partial<ScriptedCell> = {}): ScriptedCell {
 export async function programRun(
   c: ScriptedCell,
   x: { v1?: boolean; program?: string; neverEnds?: boolean; stopAtMs?: number } = {},
-): Promise<{ outcome: RunOutcome; rig: ScriptedRig11; folder: string; err: string }> {
+): Promise<{ outcome: RunOutcome; rig: ScriptedRig11; folder: string; err: string; out: string }> {
   const dir = mkdtempSync(join(tmpdir(), 'cv-program-'));
   const programPath = join(dir, 'program.yaml');
   writeFileSync(programPath, x.program ?? PROGRAM);
@@ -48,7 +48,8 @@ export async function programRun(
     ...(x.neverEnds ? { neverEnds: true } : {}),
   });
   const io = { out: new PassThrough(), err: new PassThrough() };
-  io.out.resume();
+  let out = '';
+  io.out.on('data', (d: Buffer) => (out += d.toString()));
   let err = '';
   io.err.on('data', (d: Buffer) => (err += d.toString()));
   const run = await startRun(
@@ -77,5 +78,6 @@ export async function programRun(
     if (t === x.stopAtMs) run.stop('the test');
     if (t % 1000 === 0) await new Promise((r) => setImmediate(r));
   }
-  return { outcome: await run.done, rig, folder: run.folder, err };
+  const outcome = await run.done;
+  return { outcome, rig, folder: run.folder, err, out };
 }

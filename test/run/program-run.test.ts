@@ -11,8 +11,10 @@ describe('a program run against a scripted protocol 1.1 rig', () => {
   // current is the reference; the host's trapezoid over 500 ms frames of 1-count resolution
   // agrees within a few parts per thousand.
   it('charge -> rest -> discharge: three segments, one cycle, exit 0', async () => {
-    const { outcome, rig, folder } = await programRun(cell());
+    const { outcome, rig, folder, out } = await programRun(cell());
     const r = outcome.result;
+    expect(out).toMatch(/program {7}test cycle: 3 segments/);
+    expect(out).toMatch(/cycle 1 {7}\d+\.\d mAh/);
     expect(r.end_reason).toBe('program_complete');
     expect(outcome.exitCode).toBe(0);
     const segs = await readSegments(folder);
@@ -48,7 +50,8 @@ describe('a program run against a scripted protocol 1.1 rig', () => {
   }, 120_000);
 
   it('a v1 rig is refused before anything is switched on, exit 2', async () => {
-    const { outcome, rig } = await programRun(cell(), { v1: true });
+    const { outcome, rig, err } = await programRun(cell(), { v1: true });
+    expect(err).toMatch(/^cellvigil: CV_RIG_INCAPABLE: rig script: speaks protocol v1 only/m);
     expect(outcome.result.end_reason).toBe('refused');
     expect(outcome.result.end_detail).toContain('CV_RIG_INCAPABLE');
     expect(outcome.exitCode).toBe(2);
@@ -107,5 +110,18 @@ describe('a program run against a scripted protocol 1.1 rig', () => {
       resume: folder,
     };
     await expect(resolveRunConfig(req, manifest)).rejects.toThrow(/cannot be resumed.*--new/);
+  }, 60_000);
+
+  // Power = voltage × current (physics): a 3 W step on a current-regulated load is held by
+  // re-setting the current from the measured voltage every 5 s, so the mean power of the
+  // segment (its energy over its load-on time) stays within a percent or two of 3 W.
+  it('a constant-power discharge re-sets the current as the voltage falls', async () => {
+    const program = PROGRAM.replace('current_A: 1.0', 'power_W: 3.0');
+    const { outcome, rig } = await programRun(cell(), { program });
+    expect(outcome.result.end_reason).toBe('program_complete');
+    const dis = outcome.result.segments![2]!;
+    const onH = dis.charge_Ah / dis.mean_current_A!;
+    expect(Math.abs(dis.energy_Wh / onH / 3.0 - 1)).toBeLessThan(0.02);
+    expect(rig.received.filter((l) => l.startsWith('C,ISET')).length).toBeGreaterThan(3);
   }, 60_000);
 });
