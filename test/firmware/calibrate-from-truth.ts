@@ -32,7 +32,12 @@ export interface TruthCalibration {
   loadedTruthA: number;
 }
 
-export async function calibrateFromTruth(channel: number, seed: number): Promise<TruthCalibration> {
+/** `seconds`: how long each point is averaged. */
+export async function calibrateFromTruth(
+  channel: number,
+  seed: number,
+  seconds = 10,
+): Promise<TruthCalibration> {
   // A large cell: its current hardly moves during a point's few seconds.
   const rig = await startEmulatedRig({ capacityMah: 2000, soc: 0.6, seed });
   try {
@@ -54,7 +59,7 @@ export async function calibrateFromTruth(channel: number, seed: number): Promise
       // 100 frames a point: with 30, the mean count of a loaded point is known to only about
       // 0.01 % of its reading, as much as everything else a one-minute discharge is uncertain by.
       '--seconds',
-      '10',
+      String(seconds),
       '--settle',
       '0.5',
       '--out',

@@ -23,6 +23,12 @@ import { HARNESS, waitUntil, type ChannelTruth, type HarnessTruth } from './emul
 export const CC_FIRMWARE_ELF = fileURLToPath(
   new URL('../../firmware/build/cc/cellvigil-rig-cc.elf', import.meta.url),
 );
+export const CC_RIG_PROFILE = fileURLToPath(
+  new URL('../../config/rigs/cv328-cc.yaml', import.meta.url),
+);
+/** The program files of the end-to-end tests. */
+export const programFixture = (name: string): string =>
+  fileURLToPath(new URL(`../fixtures/programs/${name}`, import.meta.url));
 
 /** What the harness adds to a channel's truth for the CC variant. */
 export interface CcChannelTruth extends ChannelTruth {
@@ -34,6 +40,9 @@ export interface CcChannelTruth extends ChannelTruth {
   charge_on_s: number;
   both_on_ms: number;
   setpoint_rc_V: number;
+  /** The soft internal short (0: none) and the charge it has drawn. */
+  leak_ohm: number;
+  leaked_Ah: number;
   segments: (ChannelTruth['segments'][number] & {
     mode: 'rest' | 'discharge' | 'charge';
     phase: 'off' | 'cc' | 'cv' | 'done';
@@ -79,10 +88,24 @@ export interface CcRigOptions {
   chargeMa?: number;
   chargeV?: number;
   termMa?: number;
+  /** The cell's thermal time constant, s of emulated time. */
+  thermalTauS?: number;
+  /** The truth notes when the cell first reaches this temperature, °C. */
+  hotMarkC?: number;
   seed?: number;
 }
 
-export async function startCcRig(o: CcRigOptions = {}): Promise<CcRig> {
+/** The harness with the CC firmware alone, its chip held in reset until the host's first byte. */
+export interface CcHarness {
+  dir: string;
+  port: string;
+  truth(): CcTruth;
+  /** A control line to the harness: `hang`, `ambient <°C>`, `leak <ch> <ohm>`. */
+  control(line: string): void;
+  stop(): Promise<void>;
+}
+
+export async function startCcHarness(o: CcRigOptions = {}): Promise<CcHarness> {
   for (const f of [CC_FIRMWARE_ELF, HARNESS])
     if (!existsSync(f))
       throw new Error(
@@ -103,6 +126,8 @@ export async function startCcRig(o: CcRigOptions = {}): Promise<CcRig> {
     ...num('--charge-ma', o.chargeMa),
     ...num('--charge-v', o.chargeV),
     ...num('--term-ma', o.termMa),
+    ...num('--thermal-tau', o.thermalTauS),
+    ...num('--hot-mark', o.hotMarkC),
     ...num('--seed', o.seed),
   ];
   const child = spawn(HARNESS, args, { stdio: ['pipe', 'pipe', 'pipe'] });
@@ -113,8 +138,22 @@ export async function startCcRig(o: CcRigOptions = {}): Promise<CcRig> {
   const exited = new Promise<void>((r) => child.once('exit', () => r()));
   await waitUntil(() => out.includes('ready ') || child.exitCode !== null, 10_000, 'the harness');
   if (!out.includes('ready ')) throw new Error(`the rig harness did not start: ${out}`);
+  return {
+    dir,
+    port,
+    truth: () => JSON.parse(readFileSync(truthPath, 'utf8')) as CcTruth,
+    control: (line) => child.stdin.write(`${line}\n`),
+    stop: async () => {
+      if (child.exitCode !== null || child.signalCode !== null) return;
+      child.stdin.end();
+      await exited;
+    },
+  };
+}
 
-  const truth = (): CcTruth => JSON.parse(readFileSync(truthPath, 'utf8')) as CcTruth;
+export async function startCcRig(o: CcRigOptions = {}): Promise<CcRig> {
+  const harness = await startCcHarness(o);
+  const { port, truth } = harness;
   const serial = new SerialPort({ path: port, baudRate: 250000, autoOpen: false });
   await new Promise<void>((res, rej) => serial.open((e) => (e ? rej(e) : res())));
   const heard: Heard[] = [];
@@ -125,7 +164,7 @@ export async function startCcRig(o: CcRigOptions = {}): Promise<CcRig> {
     truth,
     heard,
     caps: null,
-    control: (line) => child.stdin.write(`${line}\n`),
+    control: harness.control,
     frames: (ch, from = 0) =>
       heard.slice(from).flatMap((h) => {
         const r = decodeRigLine11(h.line, 12);
@@ -149,10 +188,7 @@ export async function startCcRig(o: CcRigOptions = {}): Promise<CcRig> {
     stop: async () => {
       rig.beat(false);
       if (serial.isOpen) await new Promise<void>((r) => serial.close(() => r()));
-      if (child.exitCode === null && child.signalCode === null) {
-        child.stdin.end();
-        await exited;
-      }
+      await harness.stop();
     },
   };
   let beater: ReturnType<typeof setInterval> | null = null;

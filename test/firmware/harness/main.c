@@ -4,7 +4,8 @@
  *   rig-harness --elf cellvigil-rig.elf --link /tmp/rig --truth truth.json [options]
  *
  * Standard input takes control lines: "hang" (the firmware stops in a loop with interrupts
- * off), "ambient <C>" (the air around both cells), "quit". The harness also quits when its
+ * off), "ambient <C>" (the air around both cells), "leak <ch> <ohm>" (a soft internal short in
+ * that channel's cell, 0 to clear it), "quit". The harness also quits when its
  * standard input closes, so a test that dies takes it along. */
 #define _GNU_SOURCE
 #include "link.h"
@@ -183,9 +184,10 @@ static void write_channel(FILE *f, const struct channel *c)
 	fprintf(f,
 		"{\"load_on\":%s,\"soc\":%.6f,\"current_A\":%.6f,\"terminal_V\":%.6f,"
 		"\"temperature_C\":%.4f,\"charge_Ah\":%.9f,\"energy_Wh\":%.9f,\"load_on_s\":%.4f,"
-		"\"hot_at_ms\":%.1f,\"segments_dropped\":%u,",
+		"\"hot_at_ms\":%.1f,\"segments_dropped\":%u,\"leak_ohm\":%g,\"leaked_Ah\":%.9f,",
 		c->load ? "true" : "false", c->soc, c->current_a, c->terminal_v, c->temp_c,
-		c->charge_as / 3600, c->energy_ws / 3600, c->load_on_s, c->hot_at_ms, c->seg_dropped);
+		c->charge_as / 3600, c->energy_ws / 3600, c->load_on_s, c->hot_at_ms, c->seg_dropped,
+		c->leak_ohm, c->leaked_as / 3600);
 	static const char *const MODES[] = {"rest", "discharge", "charge"};
 	static const char *const PHASES[] = {"off", "cc", "cv", "done"};
 	fprintf(f,
@@ -251,6 +253,7 @@ static void control(uint32_t exit_pc)
 		line[len] = 0;
 		len = 0;
 		double x;
+		int k;
 		if (!strcmp(line, "hang") && exit_pc) {
 			/* avr-libc's _exit: cli, then a jump to itself. The firmware is stuck with its
 			 * interrupts off, as after a runaway pointer; only the watchdog gets it out. */
@@ -258,6 +261,9 @@ static void control(uint32_t exit_pc)
 			hung_at_ms = emulated_ms();
 		} else if (sscanf(line, "ambient %lf", &x) == 1) {
 			ch[0].ambient_c = ch[1].ambient_c = x;
+		} else if (sscanf(line, "leak %d %lf", &k, &x) == 2 && k >= 0 && k < 2) {
+			advance_world(emulated_ms());
+			channel_leak(&ch[k], x);
 		} else if (!strcmp(line, "quit")) {
 			stop = 1;
 		}

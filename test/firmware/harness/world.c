@@ -120,7 +120,9 @@ void channel_step(struct channel *c, double now_ms, double dt_ms)
 	s->sum_v += v * dt_ms;
 	s->sum_c += c->temp_c * dt_ms;
 	s->to_ms = now_ms;
-	c->soc -= i * dt / (c->cell.capacity_mah * 3.6);
+	double leak_a = c->leak_ohm > 0 ? ocv(c->soc) / c->leak_ohm : 0;
+	c->leaked_as += leak_a * dt;
+	c->soc -= (i + leak_a) * dt / (c->cell.capacity_mah * 3.6);
 	/* First-order thermal model: the cell relaxes towards the ambient, warmed by its own
 	 * internal loss (about 30 K/W for a small cell in still air). */
 	double rise = i * i * c->cell.internal_ohm * 30.0;
@@ -163,6 +165,11 @@ bool channel_charger(struct channel *c, double now_ms, bool on)
 	solve(c);
 	open_segment(c, now_ms);
 	return true;
+}
+
+void channel_leak(struct channel *c, double ohm)
+{
+	c->leak_ohm = ohm > 0 ? ohm : 0;
 }
 
 double channel_pin_v(const struct channel *c, int which)

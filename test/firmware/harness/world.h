@@ -63,6 +63,10 @@ struct channel {
 	/* truth: charge_as and energy_ws are what the load drew; charged_as what the charger put in */
 	double charge_as, energy_ws, load_on_s, charged_as, charge_on_s, both_on_ms;
 	double hot_at_ms; /* first time the cell reached hot_mark_c, -1 before */
+	/* A soft internal short (a damaged separator): a resistance across the cell's EMF, inside
+	 * it, so no shunt sees its current; 0 for none. A charger can never bring such a cell's
+	 * current down to a termination current below what the short draws. */
+	double leak_ohm, leaked_as;
 	struct segment seg[SEGMENTS_MAX];
 	unsigned nseg, seg_dropped;
 };
@@ -92,6 +96,8 @@ void channel_step(struct channel *c, double now_ms, double dt_ms);
 bool channel_switch(struct channel *c, double now_ms, bool load);
 /* CC variant: the charger-enable pin; true when it changed (a new segment began). */
 bool channel_charger(struct channel *c, double now_ms, bool on);
+/* A soft internal short of `ohm` from now on (0: none). */
+void channel_leak(struct channel *c, double ohm);
 /* The voltage at ADC input `which` (0 voltage, 1 current, 2 thermistor, 3 the charger's current
  * monitor), in volts, noise-free. */
 double channel_pin_v(const struct channel *c, int which);
