@@ -14,8 +14,8 @@
  * The setups are all up at once and take the schedule in turn, a second each (SLICE_MS), the
  * baseline's and the relay's topics under roots of their own so no reader sees another's
  * messages. On a shared machine the p99 is where other work lands: with rounds of 10 s a side,
- * a busy spell fell on one setup only and one round's ratio swung from 0.7 to 4.0 within a run; sliced
- * this finely, the load falls on every setup alike.
+ * a busy spell fell on one setup only, and one round's ratio swung from 0.7 to 4.0 within a
+ * run; sliced this finely, the load falls on every setup alike.
  *
  * The broker runs with `set_tcp_nodelay true`, as docs/fleet.md sets up a lab's broker, for
  * every setup alike. With Mosquitto's default a message to a subscriber waits for the
