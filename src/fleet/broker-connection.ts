@@ -55,6 +55,10 @@ export function openBroker(o: BrokerConnectionOptions): BrokerConnection {
   client.on('connect', () => {
     attempt = 0;
     lastError = '';
+    // Small messages are the whole traffic: none should wait for the last one's acknowledgement
+    // (Nagle's algorithm, which the client library leaves on). A WebSocket transport has no such
+    // call and is left as it is.
+    (client.stream as { setNoDelay?: (on: boolean) => void } | undefined)?.setNoDelay?.(true);
     o.onConnect();
   });
   // Errors (refused credentials, a broken socket) are followed by `close`, which retries.

@@ -71,6 +71,8 @@ interface ChannelSlot {
   control: FleetLinkChannel['control'];
   pending: FeedOutput | null;
   lastSentMs: number;
+  /** When the channel's status was last queued (host clock, ms). */
+  lastStatusMs: number;
   timer: TimerHandle | null;
   unsubscribe: () => void;
 }
@@ -120,6 +122,7 @@ class StationLink {
   private readonly clock: Clock;
   private readonly log: NonNullable<FleetLinkOptions['log']>;
   private readonly gapMs: number;
+  private readonly statusEveryMs: number;
   private readonly maxBuffered: number;
   private readonly outbox = new Outbox();
   private readonly slots = new Map<number, ChannelSlot>();
@@ -130,28 +133,18 @@ class StationLink {
     commandsRefused: 0,
   };
   private readonly conn: BrokerConnection;
-  private readonly refresh: TimerHandle;
   private closing = false;
 
   constructor(private readonly o: FleetLinkOptions) {
     this.clock = o.clock ?? new HostClock();
     this.log = throttledLog(o.log, this.clock);
     this.gapMs = 1000 / (o.sampleHz ?? 2);
+    this.statusEveryMs = o.statusEveryMs ?? 10_000;
     this.maxBuffered = o.maxBufferedBytes ?? 1024 * 1024;
     this.conn = this.open();
     for (const c of o.channels) this.follow(c);
     this.conn.client.on('message', (topic, payload, packet) =>
       this.onCommand(topic, payload, senderOf(packet.properties?.userProperties)),
-    );
-    // Statuses follow the samples every statusEveryMs, so a hub reading the retained status sees
-    // values at most that old; state changes and alarms refresh it at once.
-    this.refresh = this.clock.setTimer(
-      () => {
-        for (const s of this.slots.values()) this.queueStatus(s);
-        this.pump();
-      },
-      o.statusEveryMs ?? 10_000,
-      true,
     );
   }
 
@@ -169,7 +162,6 @@ class StationLink {
     if (this.closing) return;
     for (const s of this.slots.values()) if (s.pending) this.sendSample(s);
     this.closing = true;
-    this.clock.clearTimer(this.refresh);
     for (const s of this.slots.values()) {
       s.unsubscribe();
       if (s.timer) this.clock.clearTimer(s.timer);
@@ -233,6 +225,7 @@ class StationLink {
       control: c.control,
       pending: null,
       lastSentMs: -Infinity,
+      lastStatusMs: -Infinity,
       timer: null,
       unsubscribe: () => {},
     };
@@ -254,6 +247,7 @@ class StationLink {
   }
 
   private queueStatus(s: ChannelSlot): void {
+    s.lastStatusMs = this.clock.now();
     const status = s.feed.status(this.clock.wallNow());
     this.outbox.status(
       channelTopic(this.o.station, s.feed.channel, 'status'),
@@ -278,6 +272,15 @@ class StationLink {
     const topic = channelTopic(this.o.station, s.feed.channel, 'sample');
     client.publish(topic, JSON.stringify(out.payload), { qos: 0 });
     this.counts.samplesSent++;
+    // The status follows the samples every statusEveryMs, so a hub reading the retained status
+    // sees values at most that old (state changes and alarms refresh it at once). Each channel
+    // on its own samples' time, not all of a station's on one timer: a fleet of stations started
+    // together would otherwise send every status in the same millisecond, and the samples behind
+    // that burst at the fleet view would wait for all of it.
+    if (this.clock.now() - s.lastStatusMs >= this.statusEveryMs) {
+      this.queueStatus(s);
+      this.pump();
+    }
   }
 
   private onHub(s: ChannelSlot, m: Parameters<Parameters<LiveHub['subscribe']>[0]>[0]): void {

@@ -123,6 +123,45 @@ describe('a station on the broker', () => {
     await l.close(500);
   });
 
+  // The topic table of docs/fleet.md: a channel's status every statusEveryMs while samples come.
+  it("refreshes a channel's status on its own samples' time, and leaves an idle channel's alone", async () => {
+    const busy = handFedHub('cell-busy');
+    const idle = handFedHub('cell-idle');
+    const l = startFleetLink({
+      broker: resolveBroker(
+        { url: broker.url, credentialsFile: broker.credentialsFile(ACCOUNTS[1]!) },
+        'cv-refresh',
+      ),
+      station: 'bench-b',
+      channels: [
+        { channel: 6, hub: busy.hub },
+        { channel: 7, hub: idle.hub },
+      ],
+      controlToken: null,
+      sampleHz: 1000,
+      statusEveryMs: 300,
+    });
+    await until('station online', () => l.stats().connected);
+    const statuses = (ch: number) => payloads(channelTopic('bench-b', ch, 'status'));
+    await until('first statuses', () => statuses(6).length >= 1 && statuses(7).length >= 1);
+    const t0 = Date.now();
+    for (let i = 1; i <= 24; i++) {
+      sample(busy.hub, i / 20, 4 - i / 1000);
+      await new Promise((r) => setTimeout(r, 50));
+    }
+    const span = Date.now() - t0;
+    await new Promise((r) => setTimeout(r, 300));
+    const refreshed = statuses(6).slice(1);
+    expect(refreshed.length).toBeGreaterThanOrEqual(2);
+    expect(refreshed.length).toBeLessThanOrEqual(Math.ceil(span / 300) + 1);
+    // Each refresh carries the sample it followed: a later one, a lower voltage.
+    const volts = refreshed.map((p) => p['voltage_V'] as number);
+    expect(volts).toEqual([...volts].sort((a, b) => b - a));
+    expect(volts[0]).toBeLessThan(4);
+    expect(statuses(7)).toHaveLength(1);
+    await l.close(500);
+  });
+
   it('takes a command only with the control token, and counts the refusals', async () => {
     const b = handFedHub('cell-b');
     const l = link('bench-b', b.hub);
