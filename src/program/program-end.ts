@@ -17,11 +17,14 @@ export function endOfProgram(
     return { reason: 'program_complete', detail: 'every step of the program ran' };
   switch (r) {
     case 'charge_timeout':
-      return { reason: 'charge_timeout', detail: `${r}: ${where} did not end before its timeout` };
+      return { reason: 'charge_timeout', detail: `${where} did not end before its timeout` };
     case 'over_temperature':
-      return { reason: 'over_temperature', detail: `${r}: ${where}` };
+      return {
+        reason: 'over_temperature',
+        detail: `the cell went past its temperature limit in ${where}`,
+      };
     case 'stopped':
-      return { reason: 'stopped', detail: `${r}: ${where}` };
+      return { reason: 'stopped', detail: `stopped in ${where}` };
     default:
       return { reason: 'charge_fault', detail: `${r}: ${where}` };
   }

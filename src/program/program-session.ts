@@ -81,6 +81,8 @@ export class ProgramSession extends Session {
   private lastMode: FrameState['mode'] | null = null;
   private restAvg: { sum: number; n: number; since: number } | null = null;
   private implausibleRun = 0;
+  /** A frame of this run has shown a load or a charger on (see runFrame). */
+  private outputOnSeen = false;
   private implausibleFrames = 0;
   /** The current setpoint last sent, counts, and when a constant power last re-set it. */
   private isetRaw: number | null = null;
@@ -356,7 +358,10 @@ export class ProgramSession extends Session {
     const bad = implausibleFrame(f, this.p.accounting.maxVolts);
     if ('invalid' in st)
       return this.halt('fault', `rig_fault: ${bad ?? st.invalid}`, m.hostMs, out);
-    if (st.rigFault)
+    // A rig keeps flag bit 1 from an earlier cut (a crashed host's run) until a host switches
+    // something on again: it is this run's fault only once this run has had an output on.
+    if (st.mode !== 'rest') this.outputOnSeen = true;
+    if (st.rigFault && this.outputOnSeen)
       return this.halt('fault', 'rig_fault: the rig cut its outputs itself', m.hostMs, out);
     if (bad !== null) {
       if (++this.implausibleFrames <= LISTED_IN_FULL)

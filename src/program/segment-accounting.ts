@@ -34,6 +34,8 @@ export interface AccountingSettings {
 }
 
 const MS_PER_HOUR = 3_600_000;
+/** Loaded current below which a switch-on step gives no resistance (noise would dominate). */
+const MIN_STEP_A = 0.005;
 const r = (x: number, digits: number): number => Number(x.toFixed(digits));
 
 /**
@@ -63,6 +65,12 @@ export class SegmentAccounting {
   private endV: number | null = null;
   private seeded = false;
   private active = false;
+  /** The last plausible frame with nothing on, V: the open-circuit voltage before a switch-on. */
+  private restV: number | null = null;
+  private prevOn = false;
+  /** The segment's switch-on step (rest to load): U_open, and R = (U_open − U_load) / I_load. */
+  private openV: number | null = null;
+  private stepOhm: number | null = null;
 
   /**
    * @param integ the integrator whose totals the sample rows show (the live session's), or a
@@ -92,6 +100,8 @@ export class SegmentAccounting {
     this.nominalAh = 0;
     this.samples = 0;
     this.endV = null;
+    this.openV = null;
+    this.stepOhm = null;
     this.active = true;
     if (!this.seeded) {
       this.seeded = true;
@@ -112,7 +122,22 @@ export class SegmentAccounting {
     this.prevNominalA = onN;
     if (on) this.samples++;
     this.endV = f.volts;
+    this.switchOnStep(f, on);
     return true;
+  }
+
+  /**
+   * The DC internal resistance at the segment's first switch-on of a load, from the resting
+   * voltage just before and the first loaded frame (the load-step method of the live session).
+   * The first frame also holds what polarisation one frame period builds up.
+   */
+  private switchOnStep(f: Readonly<AccountedFrame>, on: boolean): void {
+    if (on && !this.prevOn && this.openV === null && this.restV !== null && f.amps >= MIN_STEP_A) {
+      this.openV = this.restV;
+      this.stepOhm = (this.restV - f.volts) / f.amps;
+    }
+    if (!on) this.restV = f.volts;
+    this.prevOn = on;
   }
 
   /** The running segment is over (or was cut off by an interruption): its figures. */
@@ -154,6 +179,8 @@ export class SegmentAccounting {
       energy_Wh: r(integ.energyWh, 6),
       mean_current_A: integ.onMs > 0 ? r(integ.chargeAh / (integ.onMs / MS_PER_HOUR), 6) : null,
       end_voltage_V: this.endV === null ? null : r(this.endV, 5),
+      open_circuit_V: this.openV === null ? null : r(this.openV, 5),
+      dc_resistance_ohm: this.stepOhm === null ? null : r(this.stepOhm, 5),
       uncertainty: { charge_Ah: uncertainty.capacity_Ah, energy_Wh: uncertainty.energy_Wh },
     };
   }

@@ -30,5 +30,8 @@ export interface SegmentFigures {
   /** Mean of the current's magnitude while the load or charger was on, A; null at rest. */
   mean_current_A: number | null;
   end_voltage_V: number | null;
+  /** At the segment's first switch-on of a load: the resting voltage before it, V, and the DC resistance from the step, Ω; null without one. */
+  open_circuit_V?: number | null;
+  dc_resistance_ohm?: number | null;
   uncertainty: { charge_Ah: FigureUncertainty; energy_Wh: FigureUncertainty };
 }

@@ -67,6 +67,10 @@ export function withProgram<T extends RunResult>(
     duration_s: seg?.duration_s ?? 0,
     mean_voltage_V: meanV,
     end_voltage_V: seg?.end_voltage_V ?? null,
+    // The cycle's own switch-on step: the live session's precheck voltage and the recompute's
+    // first step of the run are other moments of a program run.
+    open_circuit_V: seg?.open_circuit_V ?? null,
+    dc_resistance_ohm: seg?.dc_resistance_ohm ?? null,
     cutoff_V: seg !== null ? Number(seg.setpoint['cutoff_V'] ?? base.cutoff_V) : base.cutoff_V,
     uncertainty: seg
       ? { capacity_Ah: seg.uncertainty.charge_Ah, energy_Wh: seg.uncertainty.energy_Wh }

@@ -36,6 +36,7 @@ export async function programRun(
     neverEnds?: boolean;
     stopAtMs?: number;
     trimBoundBelowV?: number;
+    cutByEarlierHost?: boolean;
   } = {},
 ): Promise<{ outcome: RunOutcome; rig: ScriptedRig11; folder: string; err: string; out: string }> {
   const dir = mkdtempSync(join(tmpdir(), 'cv-program-'));
@@ -52,6 +53,7 @@ export async function programRun(
     chargerV: 4.2,
     ...(x.v1 ? { v1: true } : {}),
     ...(x.neverEnds ? { neverEnds: true } : {}),
+    ...(x.cutByEarlierHost ? { cutByEarlierHost: true } : {}),
     ...(x.trimBoundBelowV !== undefined ? { trimBoundBelowV: x.trimBoundBelowV } : {}),
   });
   const io = { out: new PassThrough(), err: new PassThrough() };

@@ -49,6 +49,14 @@ describe('a program run against a scripted protocol 1.1 rig', () => {
     expect(manifest.program.name).toBe('test cycle');
   }, 120_000);
 
+  // docs/protocol.md: flag bit 1 says the rig cut its outputs itself; a rig keeps it from an
+  // earlier host's cut until a host switches something on again.
+  it('a cut flag left from an earlier, crashed host does not end the next run', async () => {
+    const { outcome } = await programRun(cell(), { cutByEarlierHost: true });
+    expect(outcome.result.end_reason, outcome.result.end_detail).toBe('program_complete');
+    expect(outcome.exitCode).toBe(0);
+  }, 120_000);
+
   it('a v1 rig is refused before anything is switched on, exit 2', async () => {
     const { outcome, rig, err } = await programRun(cell(), { v1: true });
     expect(err).toMatch(/^cellvigil: CV_RIG_INCAPABLE: rig script: speaks protocol v1 only/m);

@@ -39,6 +39,11 @@ export interface ScriptedRigOptions {
   trimBoundBelowV?: number;
   /** A charger that never ends its charge (its termination broken). */
   neverEnds?: boolean;
+  /**
+   * The rig's watchdog cut its outputs for an earlier host (one that crashed): flag bit 1 stays
+   * set until a host switches something on again, as the reference firmware keeps it.
+   */
+  cutByEarlierHost?: boolean;
 }
 
 const FLAGS: Record<ChannelMode, number> = { rest: 0x00, discharge: 0x05, charge: 0x18 };
@@ -50,6 +55,7 @@ export class ScriptedRig11 implements Source {
   /** Every command line the host sent, as received. */
   readonly received: string[] = [];
   mode: ChannelMode = 'rest';
+  private staleCut: boolean;
   /** The true charge out of the cell (negative: into it), Ah. */
   chargeOutAh = 0;
   private handlers: SourceHandlers | null = null;
@@ -63,6 +69,7 @@ export class ScriptedRig11 implements Source {
 
   constructor(private readonly o: ScriptedRigOptions) {
     this.chain = new AnalogChain(o.profile);
+    this.staleCut = o.cutByEarlierHost ?? false;
   }
 
   async open(h: SourceHandlers): Promise<void> {
@@ -84,6 +91,7 @@ export class ScriptedRig11 implements Source {
       this.reply(`A,ISET,${cmd.channel},${cmd.raw}`);
     } else if (cmd.command === 'MODE') {
       this.mode = cmd.mode;
+      if (cmd.mode !== 'rest') this.staleCut = false;
       this.chargerDone = false;
       this.lastBeatMs = this.tMs;
       this.reply(
@@ -157,7 +165,7 @@ export class ScriptedRig11 implements Source {
       ? this.mode === 'discharge'
         ? 1
         : 0
-      : FLAGS[this.mode] | (bound ? 0x20 : 0);
+      : FLAGS[this.mode] | (bound ? 0x20 : 0) | (this.staleCut ? 0x02 : 0);
     const lines = this.pending.splice(0);
     lines.push(
       encodeDataFrame({
