@@ -163,22 +163,48 @@ export class CurveBuilder {
     const change = new Float64Array(pairs);
     for (let k = 0; k < pairs; k++)
       change[k] = Math.abs(drawnVoltage(this.list[2 * k + 1]!) - drawnVoltage(this.list[2 * k]!));
-    // The pairs by their change, least first; all but the KEEP_APART share with most merge.
-    const order = Array.from({ length: pairs }, (_, k) => k).sort(
-      (x, y) => change[x]! - change[y]!,
-    );
-    const merging = new Uint8Array(pairs);
-    for (let j = 0; j < Math.ceil(pairs * (1 - KEEP_APART)); j++) merging[order[j]!] = 1;
+    // All but the KEEP_APART share of pairs with most change merge.
+    const merging = leastChange(change, Math.ceil(pairs * (1 - KEEP_APART)));
     const thinned: CurveBucket[] = [];
     for (let i = 0; i < this.list.length; i += 2) {
       const a = this.list[i]!;
       const b = this.list[i + 1];
       if (b && merging[i / 2] === 1) thinned.push(merge(a, b));
-      else thinned.push(a, ...(b ? [b] : []));
+      else {
+        thinned.push(a);
+        if (b) thinned.push(b);
+      }
     }
     this.list = thinned;
     this.stride *= 2;
   }
+}
+
+/**
+ * The `count` pairs with the least change, marked 1: the first `count` of the pairs sorted by
+ * change, equal changes in their own order. A run with noisy readings thins hundreds of times,
+ * so the order is found from a plain numeric sort of the changes (the bar the last one taken
+ * reaches) rather than by sorting the pairs with a comparison function.
+ */
+function leastChange(change: Float64Array, count: number): Uint8Array {
+  const merging = new Uint8Array(change.length);
+  if (count <= 0) return merging;
+  if (!change.every(Number.isFinite)) {
+    // NaN and infinities do not subtract into an order: as a comparison sort leaves them.
+    const order = Array.from({ length: change.length }, (_, k) => k).sort(
+      (x, y) => change[x]! - change[y]!,
+    );
+    for (let j = 0; j < count; j++) merging[order[j]!] = 1;
+    return merging;
+  }
+  const bar = change.slice().sort()[count - 1]!;
+  let atBar = count;
+  for (const c of change) if (c < bar) atBar--;
+  for (let k = 0; k < change.length; k++) {
+    const c = change[k]!;
+    if (c < bar || (c === bar && atBar-- > 0)) merging[k] = 1;
+  }
+  return merging;
 }
 
 /** Loaded voltage at a given charge, interpolated between bucket centres; null without loaded buckets. */
