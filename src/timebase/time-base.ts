@@ -159,6 +159,7 @@ export class TimeBase {
   }
 }
 
+/** The stamp's fields written into `out`, or a new stamp without one. */
 function fill(
   out: Stamp | undefined,
   hostMs: number,
