@@ -5,6 +5,8 @@
  * early and are kept apart, so the bend is drawn finely. Each bucket keeps its extremes, so
  * short pulses still show.
  */
+import quickselect from 'quickselect';
+
 export interface CurvePoint {
   hostS: number;
   chargeAh: number;
@@ -182,7 +184,7 @@ export class CurveBuilder {
  * The `count` pairs with the least change, marked 1: the first `count` of the pairs sorted by
  * change, equal changes in their own order. A run with noisy readings thins hundreds of times,
  * so rather than sorting the pairs, the change the last one taken reaches is selected (in linear
- * time) and the pairs are marked against it.
+ * time, by quickselect) and the pairs are marked against it.
  */
 function leastChange(change: Float64Array, count: number): Uint8Array {
   const merging = new Uint8Array(change.length);
@@ -195,7 +197,9 @@ function leastChange(change: Float64Array, count: number): Uint8Array {
     for (let j = 0; j < count; j++) merging[order[j]!] = 1;
     return merging;
   }
-  const bar = selectSmallest(change.slice(), count - 1);
+  const ordered = Array.from(change);
+  quickselect(ordered, count - 1);
+  const bar = ordered[count - 1]!;
   let atBar = count;
   for (let k = 0; k < change.length; k++) if (change[k]! < bar) atBar--;
   for (let k = 0; k < change.length; k++) {
@@ -208,30 +212,6 @@ function leastChange(change: Float64Array, count: number): Uint8Array {
 function allFinite(xs: Float64Array): boolean {
   for (let k = 0; k < xs.length; k++) if (!Number.isFinite(xs[k]!)) return false;
   return true;
-}
-
-/** The value that would stand at `k` (from 0) if `a` were sorted; reorders `a` (quickselect). */
-function selectSmallest(a: Float64Array, k: number): number {
-  let lo = 0;
-  let hi = a.length - 1;
-  while (lo < hi) {
-    const pivot = a[(lo + hi) >> 1]!;
-    let i = lo;
-    let j = hi;
-    while (i <= j) {
-      while (a[i]! < pivot) i++;
-      while (a[j]! > pivot) j--;
-      if (i <= j) {
-        const t = a[i]!;
-        a[i++] = a[j]!;
-        a[j--] = t;
-      }
-    }
-    if (k <= j) hi = j;
-    else if (k >= i) lo = i;
-    else return a[k]!;
-  }
-  return a[k]!;
 }
 
 /** Loaded voltage at a given charge, interpolated between bucket centres; null without loaded buckets. */
