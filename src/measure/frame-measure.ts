@@ -61,6 +61,10 @@ export function emptyFrameValues(): FrameValues {
   return { volts: 0, amps: 0, nominalA: 0, celsius: 0, thermistor: 'ok', loadOn: false };
 }
 
+function emptyFrameTime(): FrameTime {
+  return { runMs: 0, hostMs: 0, dtMs: 0, lost: 0, gap: false, rigRestart: false };
+}
+
 export class FrameMeasure {
   private timeBase: TimeBase;
   private corrector: Corrector;
@@ -73,6 +77,8 @@ export class FrameMeasure {
   private readonly celsiusCounts = new Float64Array(CELSIUS_SLOTS).fill(-1);
   private readonly celsiusValues = new Float64Array(CELSIUS_SLOTS);
   private readonly thermistorStates = new Uint8Array(CELSIUS_SLOTS);
+  private readonly liveTime: FrameTime = emptyFrameTime();
+  private readonly loggedStamp: FrameTime = emptyFrameTime();
 
   /**
    * @param originMs host ms of the run's origin (live frames); logged frames carry their own time.
@@ -107,9 +113,12 @@ export class FrameMeasure {
     return this.timeBase.rigClockErrorPpm();
   }
 
-  /** A live frame, placed on the host clock by the time base from its arrival. */
+  /**
+   * A live frame, placed on the host clock by the time base from its arrival. The same object
+   * comes back for every frame (one a frame would be garbage a frame): read it at once.
+   */
   stamp(f: Readonly<FrameCounts>, arrivalMs: number): FrameTime {
-    const t = this.timeBase.stamp(f.seq, f.tickMs, arrivalMs) as FrameTime;
+    const t = this.timeBase.stamp(f.seq, f.tickMs, arrivalMs, this.liveTime) as FrameTime;
     t.runMs = Math.round(t.hostMs - this.originMs);
     t.hostMs = this.originMs + t.runMs;
     t.dtMs = this.step(t.runMs);
@@ -121,7 +130,7 @@ export class FrameMeasure {
    * caller); the time base still finds lost frames, rig restarts and gaps, and the rig's clock rate.
    */
   restamp(f: Readonly<FrameCounts>, out: FrameTime): FrameTime {
-    const s = this.timeBase.stamp(f.seq, f.tickMs, out.runMs);
+    const s = this.timeBase.stamp(f.seq, f.tickMs, out.runMs, this.loggedStamp);
     out.hostMs = out.runMs;
     out.dtMs = this.step(out.runMs);
     out.lost = s.lost;

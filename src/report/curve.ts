@@ -5,6 +5,8 @@
  * early and are kept apart, so the bend is drawn finely. Each bucket keeps its extremes, so
  * short pulses still show.
  */
+import quickselect from 'quickselect';
+
 export interface CurvePoint {
   hostS: number;
   chargeAh: number;
@@ -59,28 +61,25 @@ function bucketOf(p: CurvePoint): CurveBucket {
   };
 }
 
-function merge(a: CurveBucket, b: CurveBucket): CurveBucket {
-  return {
-    t0: a.t0,
-    t1: b.t1,
-    q0: a.q0,
-    q1: b.q1,
-    e1: b.e1,
-    n: a.n + b.n,
-    nOn: a.nOn + b.nOn,
-    vMin: Math.min(a.vMin, b.vMin),
-    vMax: Math.max(a.vMax, b.vMax),
-    vSum: a.vSum + b.vSum,
-    vOnSum: a.vOnSum + b.vOnSum,
-    iMin: Math.min(a.iMin, b.iMin),
-    iMax: Math.max(a.iMax, b.iMax),
-    iSum: a.iSum + b.iSum,
-    tempSum: a.tempSum + b.tempSum,
-    tempN: a.tempN + b.tempN,
-  };
+/** Merges `b`, the bucket after `a`, into `a`. */
+function mergeInto(a: CurveBucket, b: CurveBucket): void {
+  a.t1 = b.t1;
+  a.q1 = b.q1;
+  a.e1 = b.e1;
+  a.n += b.n;
+  a.nOn += b.nOn;
+  a.vMin = Math.min(a.vMin, b.vMin);
+  a.vMax = Math.max(a.vMax, b.vMax);
+  a.vSum += b.vSum;
+  a.vOnSum += b.vOnSum;
+  a.iMin = Math.min(a.iMin, b.iMin);
+  a.iMax = Math.max(a.iMax, b.iMax);
+  a.iSum += b.iSum;
+  a.tempSum += b.tempSum;
+  a.tempN += b.tempN;
 }
 
-/** Adds a point to the open bucket in place: the same as merge(b, bucketOf(p)), without two objects per row. */
+/** Adds a point to the open bucket in place: the same as mergeInto(b, bucketOf(p)), without an object per row. */
 function absorb(b: CurveBucket, p: CurvePoint): void {
   const temp = Number.isFinite(p.celsius);
   b.t1 = p.hostS;
@@ -159,26 +158,60 @@ export class CurveBuilder {
    * The stride doubles, so memory stays bounded however long the run.
    */
   private thin(): void {
-    const pairs = Math.floor(this.list.length / 2);
+    const list = this.list;
+    const pairs = Math.floor(list.length / 2);
     const change = new Float64Array(pairs);
     for (let k = 0; k < pairs; k++)
-      change[k] = Math.abs(drawnVoltage(this.list[2 * k + 1]!) - drawnVoltage(this.list[2 * k]!));
-    // The pairs by their change, least first; all but the KEEP_APART share with most merge.
-    const order = Array.from({ length: pairs }, (_, k) => k).sort(
-      (x, y) => change[x]! - change[y]!,
-    );
-    const merging = new Uint8Array(pairs);
-    for (let j = 0; j < Math.ceil(pairs * (1 - KEEP_APART)); j++) merging[order[j]!] = 1;
-    const thinned: CurveBucket[] = [];
-    for (let i = 0; i < this.list.length; i += 2) {
-      const a = this.list[i]!;
-      const b = this.list[i + 1];
-      if (b && merging[i / 2] === 1) thinned.push(merge(a, b));
-      else thinned.push(a, ...(b ? [b] : []));
+      change[k] = Math.abs(drawnVoltage(list[2 * k + 1]!) - drawnVoltage(list[2 * k]!));
+    // All but the KEEP_APART share of pairs with most change merge.
+    const merging = leastChange(change, Math.ceil(pairs * (1 - KEEP_APART)));
+    // In place: each merged pair becomes its first bucket, and the list closes up behind.
+    let w = 0;
+    for (let i = 0; i < list.length; i += 2) {
+      const a = list[i]!;
+      const b = list[i + 1];
+      const merges = b !== undefined && merging[i >> 1] === 1;
+      if (merges) mergeInto(a, b);
+      list[w++] = a;
+      if (b !== undefined && !merges) list[w++] = b;
     }
-    this.list = thinned;
+    list.length = w;
     this.stride *= 2;
   }
+}
+
+/**
+ * The `count` pairs with the least change, marked 1: the first `count` of the pairs sorted by
+ * change, equal changes in their own order. A run with noisy readings thins hundreds of times,
+ * so rather than sorting the pairs, the change the last one taken reaches is selected (in linear
+ * time, by quickselect) and the pairs are marked against it.
+ */
+function leastChange(change: Float64Array, count: number): Uint8Array {
+  const merging = new Uint8Array(change.length);
+  if (count <= 0) return merging;
+  if (!allFinite(change)) {
+    // NaN and infinities do not subtract into an order: as a comparison sort leaves them.
+    const order = Array.from({ length: change.length }, (_, k) => k).sort(
+      (x, y) => change[x]! - change[y]!,
+    );
+    for (let j = 0; j < count; j++) merging[order[j]!] = 1;
+    return merging;
+  }
+  const ordered = Array.from(change);
+  quickselect(ordered, count - 1);
+  const bar = ordered[count - 1]!;
+  let atBar = count;
+  for (let k = 0; k < change.length; k++) if (change[k]! < bar) atBar--;
+  for (let k = 0; k < change.length; k++) {
+    const c = change[k]!;
+    if (c < bar || (c === bar && atBar-- > 0)) merging[k] = 1;
+  }
+  return merging;
+}
+
+function allFinite(xs: Float64Array): boolean {
+  for (let k = 0; k < xs.length; k++) if (!Number.isFinite(xs[k]!)) return false;
+  return true;
 }
 
 /** Loaded voltage at a given charge, interpolated between bucket centres; null without loaded buckets. */

@@ -65,7 +65,11 @@ export class TimeBase {
     this.maxLagMs = options.maxLagMs ?? 1000;
   }
 
-  stamp(seq: number, tickMs: number, arrivalMs: number): Stamp {
+  /**
+   * The frame's stamp, written into `out` when given (a caller stamping a frame at a time reuses
+   * one object), else into a new one.
+   */
+  stamp(seq: number, tickMs: number, arrivalMs: number, out?: Stamp): Stamp {
     const tick = this.ticks.next(tickMs);
     const tickStep = this.ticks.step;
     this.seqs.next(seq);
@@ -73,35 +77,41 @@ export class TimeBase {
     const prev = this.prev;
     const rigRestart = tickStep !== null && tickStep < 0;
     if (prev === null || rigRestart)
-      return this.restart(prev, seq, tickMs, tick, arrivalMs, rigRestart);
+      return this.restart(prev, seq, tickMs, tick, arrivalMs, rigRestart, out);
     // Ticks that ran on while the host stood still (suspended) would wreck the rate estimate.
-    const hostStood =
-      (tick - prev.tick) * this.scale() - (arrivalMs - prev.arrival) > this.longGapMs;
+    const scale = this.scale();
+    const hostStood = (tick - prev.tick) * scale - (arrivalMs - prev.arrival) > this.longGapMs;
     if (hostStood) {
       this.rate.reset();
       this.anchor = null;
-    } else if (
-      arrivalMs - prev.arrival >=
-      SAME_DELIVERY_FRACTION * (tick - prev.tick) * this.scale()
-    ) {
-      // The frame before ended its delivery: its arrival is as fresh as any.
-      this.anchor = { hostMs: prev.arrival, tick: prev.tick, arrival: prev.arrival };
+    } else if (arrivalMs - prev.arrival >= SAME_DELIVERY_FRACTION * (tick - prev.tick) * scale) {
+      // The frame before ended its delivery: its arrival is as fresh as any. The anchor and the
+      // frame before are updated in place: a frame at a time, millions in a recompute.
+      this.setAnchor(prev.arrival, prev.tick);
       this.rate.add(prev.tick, prev.arrival);
     }
     const from = this.anchor ?? prev;
     const predicted = from.hostMs + (tick - from.tick) * this.scale();
     const lower = Math.max(prev.hostMs, arrivalMs - this.maxLagMs);
     const hostMs = Math.min(arrivalMs, Math.max(lower, predicted));
-    this.prev = { hostMs, tick, arrival: arrivalMs };
-    return {
-      hostMs,
-      dtMs: hostMs - prev.hostMs,
-      lost: Math.max(0, (seqStep ?? 1) - 1),
-      // A long silence on the host's clock, or the rig's ticks showing far more time than the
-      // host saw: the monotonic clock stands still while the host is suspended.
-      gap: arrivalMs - prev.arrival > this.longGapMs || hostStood,
-      rigRestart: false,
-    };
+    const prevHostMs = prev.hostMs;
+    // A long silence on the host's clock, or the rig's ticks showing far more time than the
+    // host saw: the monotonic clock stands still while the host is suspended.
+    const gap = arrivalMs - prev.arrival > this.longGapMs || hostStood;
+    prev.hostMs = hostMs;
+    prev.tick = tick;
+    prev.arrival = arrivalMs;
+    return fill(out, hostMs, hostMs - prevHostMs, Math.max(0, (seqStep ?? 1) - 1), gap, false);
+  }
+
+  private setAnchor(at: number, tick: number): void {
+    const a = this.anchor;
+    if (a === null) this.anchor = { hostMs: at, tick, arrival: at };
+    else {
+      a.hostMs = at;
+      a.tick = tick;
+      a.arrival = at;
+    }
   }
 
   rigClockErrorPpm(): number | null {
@@ -126,6 +136,7 @@ export class TimeBase {
     tick: number,
     arrivalMs: number,
     rigRestart: boolean,
+    out: Stamp | undefined,
   ): Stamp {
     if (rigRestart) {
       this.ticks.reset();
@@ -137,12 +148,31 @@ export class TimeBase {
     const hostMs = prev === null ? arrivalMs : Math.max(prev.hostMs, arrivalMs);
     this.anchor = null;
     this.prev = { hostMs, tick: rigRestart ? tickMs : tick, arrival: arrivalMs };
-    return {
+    return fill(
+      out,
       hostMs,
-      dtMs: prev === null ? 0 : hostMs - prev.hostMs,
-      lost: 0,
-      gap: prev !== null,
+      prev === null ? 0 : hostMs - prev.hostMs,
+      0,
+      prev !== null,
       rigRestart,
-    };
+    );
   }
+}
+
+/** The stamp's fields written into `out`, or a new stamp without one. */
+function fill(
+  out: Stamp | undefined,
+  hostMs: number,
+  dtMs: number,
+  lost: number,
+  gap: boolean,
+  rigRestart: boolean,
+): Stamp {
+  if (out === undefined) return { hostMs, dtMs, lost, gap, rigRestart };
+  out.hostMs = hostMs;
+  out.dtMs = dtMs;
+  out.lost = lost;
+  out.gap = gap;
+  out.rigRestart = rigRestart;
+  return out;
 }
