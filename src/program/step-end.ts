@@ -107,6 +107,11 @@ function chargeEnd(
 ): SegmentEnd | null {
   const elapsed = f.t_ms - tr.startedMs;
   if (s.method === 'time') return elapsed >= s.durationS! * 1000 ? 'charge_time' : null;
+  // A storage charge ends when the voltage under charge reaches the storage voltage: a 1.1 rig's
+  // charger holds its own, full-charge voltage (no wire command sets it), so waiting for a taper
+  // there would carry the cell past storage into the over-voltage end. At rest afterwards the
+  // cell reads a little below it (its I·R and polarisation drop away), which storage allows.
+  if (s.done === 'storage_voltage') return f.voltageV >= s.targetV ? s.done : null;
   const into = -f.currentA;
   // a charger not yet started draws nothing either; the mode grace covers its start
   if (elapsed < o.modeGraceMs) return null;

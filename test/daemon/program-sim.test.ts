@@ -174,6 +174,37 @@ steps:
     expect(hot).toEqual([segments[0]!.ended_ms]);
   }, 120_000);
 
+  it('leaves the cell at its storage voltage through a charger that holds its own full-charge voltage', async () => {
+    const dir = mkdtempSync(join(tmpdir(), 'cv-prog-sim-'));
+    const io = quietIo();
+    const program = programFile(
+      dir,
+      `name: discharge then storage
+rated_Ah: 0.05
+steps:
+  - discharge: { current_C: 1 }
+  - rest: { minutes: 10 }
+  - storage: {}
+`,
+    );
+    const run = await startRun(request(dir, { program }), io);
+    const { exitCode, result } = await run.done;
+    expect(result.end_reason, io.text()).toBe('program_complete');
+    expect(exitCode).toBe(0);
+    const segments = await readSegments(run.folder);
+    expect(segments.map((s) => [s.kind, s.purpose, s.end_reason])).toEqual([
+      ['discharge', 'program', 'cutoff'],
+      ['rest', 'program', 'rest_time'],
+      ['charge', 'storage', 'storage_voltage'],
+    ]);
+    // Li-ion storage at about 3.8 V per cell (common practice): the charge ended when the
+    // voltage under charge reached it, so the cell's open-circuit voltage is a little below.
+    const rig = (run.source as SimSource).rig;
+    expect(rig.truth11().mode).toBe('rest');
+    expect(rig.truth().openCircuitV).toBeLessThan(3.8);
+    expect(rig.truth().openCircuitV).toBeGreaterThan(3.65);
+  }, 120_000);
+
   it('refuses a program on a rig that cannot do its steps, switching nothing on', async () => {
     const dir = mkdtempSync(join(tmpdir(), 'cv-prog-sim-'));
     const io = quietIo();
