@@ -20,7 +20,22 @@ import type { RunManifest } from '../record/manifest.js';
 import type { SegmentFigures } from '../record/result.js';
 import type { SegmentLine } from '../record/segments.js';
 import type { SampleRecord } from '../replay/sample-csv.js';
+import { FLAG_LOAD_ON } from '../protocol/messages.js';
 import { plausibilityFor } from '../session/plausibility.js';
+
+/** Loaded current is taken for the verdict's range only this long after a switch-on, s. */
+const SETTLE_S = 5;
+/** Resting temperatures averaged for a discharge's start temperature. */
+const REST_TEMPS = 10;
+
+/** What a rated-capacity check needs of a discharge segment beyond its figures. */
+export interface SegmentConditions {
+  /** Lowest and highest loaded current after the first seconds, A. */
+  minA: number | null;
+  maxA: number | null;
+  /** Mean resting temperature before the load went on, °C. */
+  startC: number | null;
+}
 
 const KIND_OF_STATE: Record<string, SegmentLine['kind']> = {
   charging: 'charge',
@@ -54,6 +69,9 @@ export class ProgramRecompute {
   /** The segment the interruption cut off, once its first row came. */
   private cut: { kind: SegmentLine['kind']; startedMs: number } | null = null;
   private lastMs = 0;
+  private readonly conditions = new Map<number, SegmentConditions>();
+  private readonly restTemps: number[] = [];
+  private onSinceMs: number | null = null;
 
   constructor(
     private readonly manifest: RunManifest,
@@ -92,7 +110,40 @@ export class ProgramRecompute {
     f.nominalA = v.nominalA;
     f.flags = s.flags;
     this.place(t.runMs, s.state, f);
+    this.watch(t.runMs, v.amps, v.celsius, s.flags);
     this.lastMs = t.runMs;
+  }
+
+  /** The loaded current's range and the resting temperature before the load, per segment. */
+  private watch(ms: number, amps: number, celsius: number, flags: number): void {
+    const on = (flags & FLAG_LOAD_ON) !== 0 && amps > 0;
+    if (!on) {
+      this.onSinceMs = null;
+      if (Number.isFinite(celsius)) {
+        this.restTemps.push(celsius);
+        if (this.restTemps.length > REST_TEMPS) this.restTemps.shift();
+      }
+      return;
+    }
+    let c = this.conditions.get(this.current);
+    if (c === undefined) {
+      const t = this.restTemps;
+      c = {
+        minA: null,
+        maxA: null,
+        startC: t.length ? t.reduce((a, b) => a + b, 0) / t.length : null,
+      };
+      this.conditions.set(this.current, c);
+    }
+    this.onSinceMs ??= ms;
+    if (ms - this.onSinceMs < SETTLE_S * 1000) return;
+    c.minA = Math.min(c.minA ?? amps, amps);
+    c.maxA = Math.max(c.maxA ?? amps, amps);
+  }
+
+  /** The conditions of a discharge segment, for the rated-capacity check of its cycle. */
+  conditionsOf(index: number): SegmentConditions {
+    return this.conditions.get(index) ?? { minA: null, maxA: null, startC: null };
   }
 
   private place(ms: number, state: string, f: AccountedFrame): void {

@@ -25,6 +25,7 @@ import type { SessionEnd } from '../session/session-types.js';
 import { CurveBuilder, loadedVoltageAtCharge, type CurveBucket, type CurvePoint } from './curve.js';
 import { DcResistanceTracker, type ResistanceSummary } from './dc-resistance.js';
 import { EventDigest, type EventDigestResult, type RunEnd } from './event-digest.js';
+import { checkedDischarge, programVerdict } from './program-verdict.js';
 import { ratedCapacityVerdict, type Verdict } from './verdicts.js';
 import { VoltageSteps, type VoltageStepRow } from './voltage-steps.js';
 
@@ -819,6 +820,32 @@ export async function recomputeRun(run: RunFolder, o: RecomputeOptions = {}): Pr
   });
   if (program === null || run.manifest.program === undefined) return figures;
   const segments = program.finish(run.result === null);
-  figures.result = withProgram(figures.result, run.manifest.program.name, segments);
+  const result = withProgram(figures.result, run.manifest.program.name, segments);
+  const ratedAh = o.ratedAh ?? run.manifest.program.plan.ratedAh;
+  const verdict = programVerdict({
+    manifest: run.manifest,
+    result,
+    conditions: (i) => program.conditionsOf(i),
+    ratedAh,
+    ...(o.rateTolerance !== undefined ? { rateTolerance: o.rateTolerance } : {}),
+  });
+  const mean = checkedDischarge(result)?.mean_current_A ?? null;
+  figures.verdict = verdict;
+  figures.result = {
+    ...result,
+    // The figures of the discharge the top-level ones come from, not of every row of the run.
+    average_current_A: mean,
+    rated_Ah: ratedAh,
+    c_rate: ratedAh !== null && mean !== null ? rn(mean / ratedAh, 4) : null,
+    percent_of_rated: ratedAh !== null ? rn((result.capacity_Ah / ratedAh) * 100, 2) : null,
+    verdict: verdict
+      ? {
+          standard: verdict.standard,
+          label: verdict.label,
+          outcome: verdict.outcome,
+          summary: verdict.summary,
+        }
+      : null,
+  };
   return figures;
 }
