@@ -123,6 +123,13 @@ const LEVEL_CHANGE = 0.2;
 const SETTLE_S = 5;
 /** Distinct codes tracked for the quantisation term; beyond this they are plenty anyway. */
 const MAX_CODES = 65536;
+/** The verdict as result.json keeps it. */
+function verdictKeys(v: Verdict | null): RecomputedResult['verdict'] {
+  return v
+    ? { standard: v.standard, label: v.label, outcome: v.outcome, summary: v.summary }
+    : null;
+}
+
 const rn = (x: number | null, digits: number): number | null =>
   x === null || !Number.isFinite(x) ? null : Number(x.toFixed(digits));
 
@@ -581,14 +588,7 @@ export class RunRecompute {
         energy_Wh: rn(s.energyWh, 6),
         load_on_s: rn(s.loadOnS, 3),
       })),
-      verdict: verdict
-        ? {
-            standard: verdict.standard,
-            label: verdict.label,
-            outcome: verdict.outcome,
-            summary: verdict.summary,
-          }
-        : null,
+      verdict: verdictKeys(verdict),
       recomputed: {
         cellvigil_version: packageVersion(),
         calibration_file: x.calibrationFile,
@@ -838,14 +838,7 @@ export async function recomputeRun(run: RunFolder, o: RecomputeOptions = {}): Pr
     rated_Ah: ratedAh,
     c_rate: ratedAh !== null && mean !== null ? rn(mean / ratedAh, 4) : null,
     percent_of_rated: ratedAh !== null ? rn((result.capacity_Ah / ratedAh) * 100, 2) : null,
-    verdict: verdict
-      ? {
-          standard: verdict.standard,
-          label: verdict.label,
-          outcome: verdict.outcome,
-          summary: verdict.summary,
-        }
-      : null,
+    verdict: verdictKeys(verdict),
   };
   return figures;
 }
