@@ -99,7 +99,7 @@ async function load(): Promise<Modules> {
     prng: await product<PrngModule>('sim/prng.js'),
     clock: await product<ClockModule>('core/clock.js'),
     lines: await product<LineBufferModule>('sources/line-buffer.js'),
-    result: await product<ResultModule>('run/result.js'),
+    result: await product<ResultModule>('record/result.js'),
     nominal: await product<NominalPointModule>('calibration/nominal-point.js'),
     capture: await product<CaptureModule>('calibration/capture.js'),
     accuracy: await product<AccuracyModule>('calibration/reference-accuracy.js'),
@@ -110,14 +110,14 @@ async function load(): Promise<Modules> {
     plausibility: await product<PlausibilityModule>('session/plausibility.js'),
     pipeline: await product<PipelineModule>('run/pipeline.js'),
     logFile: await product<LogFileModule>('sinks/log-file.js'),
-    eventLog: await product<EventLogModule>('run/event-log.js'),
+    eventLog: await product<EventLogModule>('record/event-log.js'),
     sampleRow: await product<SampleRowModule>('sinks/sample-row.js'),
     atomicJson: await product<AtomicJsonModule>('sinks/atomic-json.js'),
     chemistries: await product<ChemistriesModule>('chemistry/chemistries.js'),
     chemistryFile: await product<ChemistryFileModule>('chemistry/chemistry-file.js'),
     limits: await product<ChemistryLimitsModule>('chemistry/limits.js'),
     chain: await product<AnalogChainModule>('chain/analog-chain.js'),
-    rigProfile: await product<RigProfileModule>('chain/rig-profile.js'),
+    rigProfile: await product<RigProfileModule>('chain/rig-profile-file.js'),
   };
 }
 
