@@ -61,7 +61,7 @@ export function emptyFrameValues(): FrameValues {
   return { volts: 0, amps: 0, nominalA: 0, celsius: 0, thermistor: 'ok', loadOn: false };
 }
 
-function emptyFrameTime(): FrameTime {
+export function emptyFrameTime(): FrameTime {
   return { runMs: 0, hostMs: 0, dtMs: 0, lost: 0, gap: false, rigRestart: false };
 }
 

@@ -10,19 +10,20 @@ import type { RigCapabilities } from '../protocol/capabilities.js';
 import { frameState, type FrameState } from '../protocol/frame-state.js';
 import { FLAG_LOAD_ON, type HostCommand11 } from '../protocol/messages.js';
 import type { SegmentFigures, SegmentLine } from './segment-figures.js';
-import { Session, type SessionSettings } from '../session/session.js';
+import { Session, SESSION_TIMING, type SessionSettings } from '../session/session.js';
 import type { Action, EndReason, Measurement, SessionState } from '../session/session-types.js';
 import { CommandQueue } from './command-queue.js';
 import { endOfProgram } from './program-end.js';
 import type { Plan } from './program-types.js';
 import { planRefusal } from './rig-needs.js';
 import {
+  emptyAccountedFrame,
   implausibleFrame,
   SegmentAccounting,
   type AccountedFrame,
   type AccountingSettings,
 } from './segment-accounting.js';
-import type { Intent, SequencerUpdate } from './sequence-types.js';
+import { SEGMENT_STATE, type Intent, type SequencerUpdate } from './sequence-types.js';
 import { ProgramSequencer } from './sequencer.js';
 import type { SequencerOptions } from './step-end.js';
 
@@ -37,12 +38,6 @@ export interface ProgramSessionSettings extends SessionSettings {
 }
 
 type Phase = 'waiting' | 'precheck' | 'running' | 'stopping' | 'ended';
-
-const KIND_STATE: Record<'rest' | 'discharge' | 'charge', SessionState> = {
-  rest: 'resting',
-  discharge: 'discharging',
-  charge: 'charging',
-};
 
 /** Implausible frames in a row that end a program (as a plain run ends on them). */
 const IMPLAUSIBLE_END_FRAMES = 5;
@@ -87,27 +82,11 @@ export class ProgramSession extends Session {
   /** The current setpoint last sent, counts, and when a constant power last re-set it. */
   private isetRaw: number | null = null;
   private powerAtMs = -Infinity;
-  private readonly frameIn: AccountedFrame = {
-    dtMs: 0,
-    gap: false,
-    volts: 0,
-    amps: 0,
-    nominalA: 0,
-    flags: 0,
-  };
+  private readonly frameIn: AccountedFrame = emptyAccountedFrame();
 
   constructor(settings: ProgramSessionSettings) {
     super(settings);
-    this.p = {
-      precheckMs: 1000,
-      precheckFrames: 5,
-      staleLinkMs: 3000,
-      linkTimeoutMs: 60_000,
-      silentMs: 5000,
-      beatMs: 500,
-      confirmMs: 1000,
-      ...settings,
-    };
+    this.p = { ...SESSION_TIMING, ...settings };
     this.seq = new ProgramSequencer(settings.plan, settings.sequencer ?? {});
     // The rows' running totals are the segment's: the accounting integrates into the session's own.
     this.accounting = new SegmentAccounting(settings.accounting, this.integrator);
@@ -436,7 +415,7 @@ export class ProgramSession extends Session {
     for (const rec of u.ended) this.closeSegment(rec as SegmentLine, out);
     if (u.started) {
       this.accounting.begin(this.frameIn);
-      this.kindState = KIND_STATE[u.started.kind];
+      this.kindState = SEGMENT_STATE[u.started.kind];
       const { index, kind, step, cycle } = u.started;
       out.push({ type: 'event', name: 'segment_started', detail: { index, kind, step, cycle } });
     }

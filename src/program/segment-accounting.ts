@@ -23,6 +23,10 @@ export interface AccountedFrame {
   flags: number;
 }
 
+export function emptyAccountedFrame(): AccountedFrame {
+  return { dtMs: 0, gap: false, volts: 0, amps: 0, nominalA: 0, flags: 0 };
+}
+
 export interface AccountingSettings {
   /** Highest believable string voltage, V (above it a frame is a fault of the wiring). */
   maxVolts: number;

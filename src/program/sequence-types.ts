@@ -29,23 +29,33 @@ export type Intent =
   | { type: 'set-charge'; currentA: number; voltageV: number };
 
 /** Why a segment ended. The first group ends it as planned; the second aborts the program. */
-export type SegmentEnd =
-  | 'termination_current'
-  | 'charger_ended'
-  | 'charge_time'
-  | 'cutoff'
-  | 'storage_voltage'
-  | 'discharge_time'
-  | 'setpoint_not_held'
-  | 'rest_time'
-  | 'voltage_settled'
-  | 'charge_timeout'
-  | 'over_temperature'
-  | 'under_temperature'
-  | 'temperature_unknown'
-  | 'over_voltage'
-  | 'mode_not_confirmed'
-  | 'stopped';
+export const SEGMENT_ENDS = [
+  'termination_current',
+  'charger_ended',
+  'charge_time',
+  'cutoff',
+  'storage_voltage',
+  'discharge_time',
+  'setpoint_not_held',
+  'rest_time',
+  'voltage_settled',
+  'charge_timeout',
+  'over_temperature',
+  'under_temperature',
+  'temperature_unknown',
+  'over_voltage',
+  'mode_not_confirmed',
+  'stopped',
+] as const;
+
+export type SegmentEnd = (typeof SEGMENT_ENDS)[number];
+
+/** The session state a channel is in during a segment of each kind (the rows' `state`). */
+export const SEGMENT_STATE = {
+  rest: 'resting',
+  discharge: 'discharging',
+  charge: 'charging',
+} as const satisfies Record<ChannelMode, string>;
 
 const ABORTS: ReadonlySet<SegmentEnd> = new Set<SegmentEnd>([
   'charge_timeout',

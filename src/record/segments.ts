@@ -9,32 +9,12 @@ import { join } from 'node:path';
 import { Ajv } from 'ajv';
 import { ErrorCodes, makeError } from '../core/errors.js';
 import type { SegmentLine } from '../program/segment-figures.js';
-import type { SegmentEnd } from '../program/sequence-types.js';
+import { SEGMENT_ENDS } from '../program/sequence-types.js';
 import { readOptional, schemaProblems } from './json-file.js';
 
 export const SEGMENTS_FILE = 'segments.jsonl';
 
 export type { SegmentLine } from '../program/segment-figures.js';
-
-const SEGMENT_ENDS: readonly (SegmentEnd | 'interrupted')[] = [
-  'termination_current',
-  'charger_ended',
-  'charge_time',
-  'cutoff',
-  'storage_voltage',
-  'discharge_time',
-  'setpoint_not_held',
-  'rest_time',
-  'voltage_settled',
-  'charge_timeout',
-  'over_temperature',
-  'under_temperature',
-  'temperature_unknown',
-  'over_voltage',
-  'mode_not_confirmed',
-  'stopped',
-  'interrupted',
-];
 
 const ms = { type: 'integer', minimum: 0 };
 
@@ -61,7 +41,7 @@ const validate = new Ajv({ allErrors: true, strict: true, allowUnionTypes: true 
     cycle: { type: ['integer', 'null'], minimum: 1 },
     started_ms: ms,
     ended_ms: ms,
-    end_reason: { enum: SEGMENT_ENDS },
+    end_reason: { enum: [...SEGMENT_ENDS, 'interrupted'] },
     setpoint: {
       type: 'object',
       additionalProperties: { type: ['number', 'string', 'null'] },

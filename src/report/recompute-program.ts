@@ -9,24 +9,29 @@
 import { applyCalibration, type Calibration } from '../calibration/calibration.js';
 import { AnalogChain } from '../chain/analog-chain.js';
 import {
+  emptyFrameTime,
   emptyFrameValues,
   FrameMeasure,
   type FrameTime,
   type FrameValues,
 } from '../measure/frame-measure.js';
 import type { PlannedStep } from '../program/program-types.js';
-import { SegmentAccounting, type AccountedFrame } from '../program/segment-accounting.js';
+import { SEGMENT_STATE } from '../program/sequence-types.js';
+import {
+  emptyAccountedFrame,
+  SegmentAccounting,
+  type AccountedFrame,
+} from '../program/segment-accounting.js';
 import type { RunManifest } from '../record/manifest.js';
 import type { SegmentFigures } from '../record/result.js';
 import type { SegmentLine } from '../record/segments.js';
 import type { SampleRecord } from '../replay/sample-csv.js';
 import { FLAG_LOAD_ON } from '../protocol/messages.js';
 import { plausibilityFor } from '../session/plausibility.js';
+import { RestingTemperature } from './resting-temperature.js';
 
 /** Loaded current is taken for the verdict's range only this long after a switch-on, s. */
 const SETTLE_S = 5;
-/** Resting temperatures averaged for a discharge's start temperature. */
-const REST_TEMPS = 10;
 
 /** What a rated-capacity check needs of a discharge segment beyond its figures. */
 export interface SegmentConditions {
@@ -37,32 +42,17 @@ export interface SegmentConditions {
   startC: number | null;
 }
 
-const KIND_OF_STATE: Record<string, SegmentLine['kind']> = {
-  charging: 'charge',
-  resting: 'rest',
-  discharging: 'discharge',
-};
+/** A row's state back to its segment's kind (the inverse of SEGMENT_STATE). */
+const KIND_OF_STATE: Record<string, SegmentLine['kind']> = Object.fromEntries(
+  Object.entries(SEGMENT_STATE).map(([kind, state]) => [state, kind]),
+) as Record<string, SegmentLine['kind']>;
 
 export class ProgramRecompute {
   private readonly frames: FrameMeasure;
   private readonly accounting: SegmentAccounting;
   private readonly values: FrameValues = emptyFrameValues();
-  private readonly stamp: FrameTime = {
-    runMs: 0,
-    hostMs: 0,
-    dtMs: 0,
-    lost: 0,
-    gap: false,
-    rigRestart: false,
-  };
-  private readonly frame: AccountedFrame = {
-    dtMs: 0,
-    gap: false,
-    volts: 0,
-    amps: 0,
-    nominalA: 0,
-    flags: 0,
-  };
+  private readonly stamp: FrameTime = emptyFrameTime();
+  private readonly frame: AccountedFrame = emptyAccountedFrame();
   private readonly figures: SegmentFigures[] = [];
   /** Index of the segment the last rows went to; -1 before the program started. */
   private current = -1;
@@ -70,7 +60,7 @@ export class ProgramRecompute {
   private cut: { kind: SegmentLine['kind']; startedMs: number } | null = null;
   private lastMs = 0;
   private readonly conditions = new Map<number, SegmentConditions>();
-  private readonly restTemps: number[] = [];
+  private readonly restTemps = new RestingTemperature();
   private onSinceMs: number | null = null;
 
   constructor(
@@ -119,20 +109,12 @@ export class ProgramRecompute {
     const on = (flags & FLAG_LOAD_ON) !== 0 && amps > 0;
     if (!on) {
       this.onSinceMs = null;
-      if (Number.isFinite(celsius)) {
-        this.restTemps.push(celsius);
-        if (this.restTemps.length > REST_TEMPS) this.restTemps.shift();
-      }
+      this.restTemps.add(celsius);
       return;
     }
     let c = this.conditions.get(this.current);
     if (c === undefined) {
-      const t = this.restTemps;
-      c = {
-        minA: null,
-        maxA: null,
-        startC: t.length ? t.reduce((a, b) => a + b, 0) / t.length : null,
-      };
+      c = { minA: null, maxA: null, startC: this.restTemps.mean() };
       this.conditions.set(this.current, c);
     }
     this.onSinceMs ??= ms;

@@ -8,6 +8,7 @@ import { applyCalibration, type Calibration } from '../calibration/calibration.j
 import { AnalogChain } from '../chain/analog-chain.js';
 import { packageVersion } from '../core/paths.js';
 import {
+  emptyFrameTime,
   emptyFrameValues,
   FrameMeasure,
   type FrameTime,
@@ -26,6 +27,7 @@ import { CurveBuilder, loadedVoltageAtCharge, type CurveBucket, type CurvePoint 
 import { DcResistanceTracker, type ResistanceSummary } from './dc-resistance.js';
 import { EventDigest, type EventDigestResult, type RunEnd } from './event-digest.js';
 import { checkedDischarge, programVerdict } from './program-verdict.js';
+import { RestingTemperature } from './resting-temperature.js';
 import { ratedCapacityVerdict, type Verdict } from './verdicts.js';
 import { VoltageSteps, type VoltageStepRow } from './voltage-steps.js';
 
@@ -169,14 +171,7 @@ export class RunRecompute {
   private readonly chain: AnalogChain;
   private readonly frames: FrameMeasure;
   private readonly values: FrameValues = emptyFrameValues();
-  private readonly stamp: FrameTime = {
-    runMs: 0,
-    hostMs: 0,
-    dtMs: 0,
-    lost: 0,
-    gap: false,
-    rigRestart: false,
-  };
+  private readonly stamp: FrameTime = emptyFrameTime();
   private readonly integrator = new Integrator();
   /** The live run's check of readings that cannot be true, applied to the same rows. */
   private readonly plausibility: Plausibility;
@@ -227,7 +222,7 @@ export class RunRecompute {
   private lastLoadedV = Number.NaN;
   private minA = Infinity;
   private maxA = -Infinity;
-  private restTemps: number[] = [];
+  private readonly restTemps = new RestingTemperature();
   private startC: number | null = null;
   private minC = Infinity;
   private maxC = -Infinity;
@@ -428,22 +423,14 @@ export class RunRecompute {
       this.endC = celsius;
       this.minC = Math.min(this.minC, celsius);
       this.maxC = Math.max(this.maxC, celsius);
-      if (this.firstOnS === null && !loadOn) {
-        this.restTemps.push(celsius);
-        if (this.restTemps.length > 10) this.restTemps.shift();
-      }
+      if (this.firstOnS === null && !loadOn) this.restTemps.add(celsius);
     }
     if (!loadOn) return;
     if (fresh || !prev!.loadOn) {
       this.switchOns++;
       if (this.firstOnS === null) {
         this.firstOnS = s.hostS;
-        this.startC =
-          this.restTemps.length > 0
-            ? this.restTemps.reduce((a, b) => a + b, 0) / this.restTemps.length
-            : Number.isFinite(celsius)
-              ? celsius
-              : null;
+        this.startC = this.restTemps.mean() ?? (Number.isFinite(celsius) ? celsius : null);
       }
     } else if (
       Math.abs(amps - prev!.amps) <=

@@ -8,6 +8,7 @@ import type { LiveRunInfo, LiveSample } from '../live/live-types.js';
 import type { SampleRow } from '../sinks/sample-row.js';
 import { loadTokens } from '../live/tokens.js';
 import { attentionOf, type EventRecord, type LiveFeedEvent } from '../record/events.js';
+import { SEGMENT_STATE } from '../program/sequence-types.js';
 import type { RunObserver } from './observer.js';
 
 export interface LiveLinkOptions {
@@ -107,12 +108,6 @@ export async function startLiveLink(o: LiveLinkOptions): Promise<LiveLink> {
   return { server, hub, observer: liveObserver(hub) };
 }
 
-const SEGMENT_STATE: Record<string, string> = {
-  charge: 'charging',
-  rest: 'resting',
-  discharge: 'discharging',
-};
-
 /** What a run tells a hub: its samples (the newest of each turn), alarms, cutoff and result. */
 export function liveObserver(hub: LiveHub): RunObserver {
   // The hub takes the newest sample of each event-loop turn: a rig's frames arrive one per turn
@@ -138,7 +133,7 @@ export function liveObserver(hub: LiveHub): RunObserver {
       hub.state({ host_s: rec.host_s, from: rec.from, to: rec.to, why: rec.why });
     } else if (rec.event === 'segment_started') {
       // A program's step: a state change for the page and watch, the segment named in its why.
-      const to = SEGMENT_STATE[rec.kind] ?? rec.kind;
+      const to = (SEGMENT_STATE as Record<string, string>)[rec.kind] ?? rec.kind;
       const cycle = rec.cycle === null ? '' : `, cycle ${rec.cycle}`;
       const why = `segment ${rec.index}: ${rec.kind}, ${rec.step}${cycle}`;
       hub.state({ host_s: rec.host_s, from: lastState, to, why });

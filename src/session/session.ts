@@ -38,6 +38,17 @@ type PlausibleEnd = { reason: 'implausible_reading' | 'open_load'; detail: strin
 /** Volts compared with a floor get this slack, so that 3 × 0.9 V is not refused as below 2.7000000000000002. */
 const FLOOR_SLACK_V = 1e-9;
 
+/** The precheck's and the link's timing, ms, unless the settings say otherwise. */
+export const SESSION_TIMING = {
+  precheckMs: 1000,
+  precheckFrames: 5,
+  staleLinkMs: 3000,
+  linkTimeoutMs: 60_000,
+  silentMs: 5000,
+  beatMs: 500,
+  confirmMs: 1000,
+} as const;
+
 /**
  * The discharge as an explicit state machine: waiting -> precheck -> starting -> discharging
  * -> stopping -> ended. Pure and synchronous: measurements and time in, actions out. Safety
@@ -81,17 +92,7 @@ export class Session {
   loadOn = false;
 
   constructor(settings: SessionSettings) {
-    this.s = {
-      precheckMs: 1000,
-      precheckFrames: 5,
-      staleLinkMs: 3000,
-      linkTimeoutMs: 60_000,
-      silentMs: 5000,
-      beatMs: 500,
-      confirmMs: 1000,
-      schedule: null,
-      ...settings,
-    };
+    this.s = { ...SESSION_TIMING, schedule: null, ...settings };
     // The floor holds whoever builds the session, not only for changes made while it runs.
     if (!(settings.cutoffV >= settings.floorV - FLOOR_SLACK_V))
       throw makeError(

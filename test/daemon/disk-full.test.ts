@@ -2,10 +2,10 @@ import { execFileSync } from 'node:child_process';
 import { mkdirSync, mkdtempSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
-import { PassThrough } from 'node:stream';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { startRun } from '../../src/run/daemon.js';
 import type { SimSource } from '../../src/sources/sim-source.js';
+import { quietIo } from './quiet-io.js';
 
 // A tiny tmpfs needs root; CI runs as root, so there the test must run, not skip.
 const root = process.getuid?.() === 0;
@@ -18,15 +18,6 @@ function mountTmpfs(options: string): string {
   return dir;
 }
 
-function io(): { out: PassThrough; err: PassThrough; text: () => string } {
-  const out = new PassThrough();
-  const err = new PassThrough();
-  let text = '';
-  out.on('data', (d: Buffer) => (text += d.toString()));
-  err.on('data', (d: Buffer) => (text += d.toString()));
-  return { out, err, text: () => text };
-}
-
 describe.skipIf(!root && !process.env['CI'])('a run folder that cannot be written', () => {
   beforeAll(() => {
     expect(root, 'these tests mount a tmpfs and need root').toBe(true);
@@ -37,7 +28,7 @@ describe.skipIf(!root && !process.env['CI'])('a run folder that cannot be writte
 
   it('a full disk: clear error, the load switched off on the rig, exit 1', async () => {
     const runs = mountTmpfs('size=96k');
-    const out = io();
+    const out = quietIo();
     const run = await startRun(
       {
         sim: 'demo',
@@ -76,7 +67,7 @@ describe.skipIf(!root && !process.env['CI'])('a run folder that cannot be writte
           channel: 0,
           linkTimeoutS: 60,
         },
-        io(),
+        quietIo(),
       ),
     ).rejects.toMatchObject({ code: 'CV_RUN_FOLDER', exitCode: 1 });
   });

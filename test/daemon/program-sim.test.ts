@@ -6,7 +6,6 @@
 import { mkdtempSync, writeFileSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
-import { PassThrough } from 'node:stream';
 import { describe, expect, it } from 'vitest';
 import { readSegments } from '../../src/record/segments.js';
 import { DEFAULT_RIG_PATH } from '../../src/chain/rig-profile-file.js';
@@ -15,6 +14,7 @@ import { recomputeRun } from '../../src/report/recompute.js';
 import { startRun } from '../../src/run/daemon.js';
 import type { RunRequest } from '../../src/run/run-request.js';
 import type { SimSource } from '../../src/sources/sim-source.js';
+import { quietIo } from './quiet-io.js';
 import { packagePath } from '../../src/core/paths.js';
 
 const SIM_CC_RIG = packagePath('config/rigs/sim-cc.yaml');
@@ -38,15 +38,6 @@ function request(dir: string, over: Partial<RunRequest>): RunRequest {
     channel: 0,
     ...over,
   };
-}
-
-function quietIo(): { out: PassThrough; err: PassThrough; text: () => string } {
-  const out = new PassThrough();
-  const err = new PassThrough();
-  let text = '';
-  out.on('data', (d: Buffer) => (text += d.toString()));
-  err.on('data', (d: Buffer) => (text += d.toString()));
-  return { out, err, text: () => text };
 }
 
 const CYCLE = `name: small cell cycle

@@ -1,13 +1,13 @@
 import { existsSync, mkdtempSync, readFileSync, readdirSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
-import { PassThrough } from 'node:stream';
 import { gunzipSync } from 'node:zlib';
 import { describe, expect, it } from 'vitest';
 import { startRun } from '../../src/run/daemon.js';
 import type { RunRequest } from '../../src/run/run-request.js';
 import { SAMPLE_HEADER } from '../../src/sinks/sample-row.js';
 import type { SimSource } from '../../src/sources/sim-source.js';
+import { quietIo } from './quiet-io.js';
 
 function request(over: Partial<RunRequest>): RunRequest {
   return {
@@ -21,15 +21,6 @@ function request(over: Partial<RunRequest>): RunRequest {
     channel: 0,
     ...over,
   };
-}
-
-function quietIo(): { out: PassThrough; err: PassThrough; text: () => string } {
-  const out = new PassThrough();
-  const err = new PassThrough();
-  let text = '';
-  out.on('data', (d: Buffer) => (text += d.toString()));
-  err.on('data', (d: Buffer) => (text += d.toString()));
-  return { out, err, text: () => text };
 }
 
 // docs/run-folder.md: the layout and the result keys are a contract.
