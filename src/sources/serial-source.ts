@@ -1,7 +1,8 @@
-import { SerialPort } from 'serialport';
+import { SerialPortStream } from '@serialport/stream';
 import { LineSplitter } from './line-splitter.js';
 import type { Source, SourceHandlers } from './source.js';
 import { ErrorCodes, makeError } from '../core/errors.js';
+import { pollReadBinding } from './poll-read-binding.js';
 import { lockPort, type PortLock } from './port-lock.js';
 
 export interface SerialSourceOptions {
@@ -20,14 +21,15 @@ export interface SerialSourceOptions {
 const MAX_PENDING_BYTES = 256 * 1024;
 
 /**
- * A real device or a pseudo-terminal, through serialport's native binding. A port that goes
+ * A real device or a pseudo-terminal, through serialport's native binding (read as in
+ * poll-read-binding.ts). A port that goes
  * away (USB unplugged) is reopened with a short backoff, so a returning rig is heard again
  * within about a second of coming back.
  */
 export class SerialSource implements Source {
   readonly kind = 'serial' as const;
   readonly description: string;
-  private port: SerialPort | null = null;
+  private port: SerialPortStream | null = null;
   private wanted = false;
   private retryTimer: NodeJS.Timeout | null = null;
   private lock: PortLock | null = null;
@@ -68,7 +70,8 @@ export class SerialSource implements Source {
   }
 
   private async connect(handlers: SourceHandlers): Promise<void> {
-    const port = new SerialPort({
+    const port = new SerialPortStream({
+      binding: pollReadBinding,
       path: this.options.path,
       baudRate: this.options.baudRate ?? 115200,
       autoOpen: false,
