@@ -137,8 +137,9 @@ export class EventLog {
     this.suppressed = {};
   }
 
-  flush(): Promise<void> {
-    return this.file.flush();
+  /** See LogFile.flush. */
+  flush(sync = true): Promise<void> {
+    return this.file.flush(sync);
   }
 
   close(): Promise<void> {

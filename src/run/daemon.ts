@@ -64,7 +64,9 @@ export interface RunIo {
 }
 
 const TICK_MS = 100;
+/** Rows written to their files (what a crash of the daemon can cost). */
 const FLUSH_EVERY_MS = 1000;
+/** Rows synced to the disk, then the checkpoint (what a power loss can cost). */
 const CHECKPOINT_EVERY_MS = 5000;
 const STATUS_EVERY_MS = 250;
 

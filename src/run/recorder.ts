@@ -110,19 +110,28 @@ export class RunRecorder {
     }
   }
 
-  async flush(): Promise<void> {
+  /**
+   * Writes the queued rows and events to their files (every second: a crash of the daemon loses
+   * at most that much); `sync` also puts them on the disk.
+   */
+  async flush(sync = false): Promise<void> {
     try {
-      await Promise.all([this.samples.flush(), this.events.flush()]);
+      await Promise.all([this.samples.flush(sync), this.events.flush(sync)]);
     } catch (e) {
       this.failed(e as Error);
     }
   }
 
-  /** Replaces checkpoint.json; skipped while one is being written or after a disk error. */
+  /**
+   * Puts the logs on the disk, then replaces checkpoint.json (every few seconds: a power loss
+   * loses at most that much, and the checkpoint never counts rows the disk does not hold);
+   * skipped while one is being written or after a disk error.
+   */
   async checkpoint(c: Checkpoint): Promise<void> {
     if (this.checkpointing || this.failure) return;
     this.checkpointing = true;
     try {
+      await Promise.all([this.samples.flush(true), this.events.flush(true)]);
       await writeCheckpoint(this.o.folder, c);
     } catch (e) {
       this.failed(e as Error);

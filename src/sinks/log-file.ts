@@ -33,9 +33,9 @@ const BLOCK_BYTES = 64 * 1024;
 const SPARE_BLOCKS = 8;
 
 /**
- * An append-only log written in batches off the hot path: rows are gathered as bytes in memory
- * and `flush()` writes and fsyncs them. Rotation happens only between rows, so no row is
- * split, lost, doubled or reordered across files.
+ * An append-only log written in batches off the hot path: rows are gathered as bytes in memory,
+ * `flush()` writes them to the file and, when asked, makes them durable (fdatasync). Rotation
+ * happens only between rows, so no row is split, lost, doubled or reordered across files.
  */
 export class LogFile {
   /** Filled blocks waiting for the next flush, and the block being filled. */
@@ -51,6 +51,8 @@ export class LogFile {
   private index: number;
   private chain: Promise<void> = Promise.resolve();
   private failure: Error | null = null;
+  /** Whether bytes were written since the last fdatasync. */
+  private unsynced = false;
   /** Compressions run one after another, apart from the writes, so a slow gzip never delays a flush. */
   private compressions: Promise<void> = Promise.resolve();
   private settled = false;
@@ -89,8 +91,12 @@ export class LogFile {
     }
   }
 
-  /** Writes and syncs (fdatasync) everything queued so far; calls are serialised. */
-  flush(): Promise<void> {
+  /**
+   * Writes everything queued so far to the file, where a crash of this process cannot take it;
+   * with `sync`, also onto the disk (fdatasync), where a power loss cannot either. Calls are
+   * serialised.
+   */
+  flush(sync = true): Promise<void> {
     if (this.used > 0) {
       this.full.push(this.block.subarray(0, this.used));
       // The written block stays with the write under way; new rows go to another one.
@@ -104,6 +110,12 @@ export class LogFile {
       if (this.failure) throw this.failure;
       try {
         await this.writeRows(pieces);
+        if (sync && this.unsynced) {
+          // fdatasync is enough for an appended file: it makes the new size durable with the
+          // rows, and skips the timestamps a full fsync would also write.
+          await this.handle!.datasync();
+          this.unsynced = false;
+        }
       } catch (err) {
         this.failure = err as Error;
         throw err;
@@ -187,10 +199,13 @@ export class LogFile {
   private async writeRows(pieces: Buffer[]): Promise<void> {
     if (this.handle && pieces.every((p) => p.length === 0)) return;
     if (!this.handle) await this.openFile();
-    for (const rows of pieces) await this.writePiece(rows);
-    // fdatasync is enough for an appended file: it makes the new size durable with the rows,
-    // and skips the timestamps a full fsync would also write.
-    await this.handle!.datasync();
+    const bytes = pieces.reduce((n, p) => n + p.length, 0);
+    if (this.o.rotateBytes === undefined || this.fileBytes + bytes <= this.o.rotateBytes) {
+      // Everything fits in the current file: one gathered write.
+      await writeAll(this.handle!, pieces);
+      this.fileBytes += bytes;
+    } else for (const rows of pieces) await this.writePiece(rows);
+    this.unsynced = true;
   }
 
   private async writePiece(rows: Buffer): Promise<void> {
@@ -220,8 +235,19 @@ export class LogFile {
 
   private async writeBytes(bytes: Buffer): Promise<void> {
     if (bytes.length === 0) return;
-    await this.handle!.write(bytes);
+    await writeAll(this.handle!, [bytes]);
     this.fileBytes += bytes.length;
+  }
+}
+
+/** Writes every byte: a short write (a disk filling up) is followed by the rest, whose failure is the error. */
+async function writeAll(handle: FileHandle, pieces: Buffer[]): Promise<void> {
+  const left = pieces.filter((p) => p.length > 0);
+  while (left.length > 0) {
+    let { bytesWritten } = await handle.writev(left);
+    if (bytesWritten === 0) throw new Error('the disk took no bytes of a write');
+    while (left.length > 0 && bytesWritten >= left[0]!.length) bytesWritten -= left.shift()!.length;
+    if (bytesWritten > 0) left[0] = left[0]!.subarray(bytesWritten);
   }
 }
 

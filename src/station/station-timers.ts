@@ -5,9 +5,9 @@ import { HostClock } from '../core/host-clock.js';
 export interface TimedChannel {
   /** The session's tick (timeouts, the heartbeat's deadline), on measurement time. */
   tick(): void;
-  /** Writes and syncs the channel's queued sample and event rows. */
+  /** Writes the channel's queued sample and event rows to their files. */
   flush(): Promise<void>;
-  /** Replaces the channel's checkpoint (and checks its rig clock). */
+  /** Syncs the channel's logs, replaces its checkpoint (and checks its rig clock). */
   checkpoint(): void;
   /** Redraws the channel's status line. */
   draw(realNowMs: number): void;
@@ -32,9 +32,9 @@ interface TickGroup {
 /**
  * One set of timers for every channel of a station instead of four per channel: one tick timer
  * per clock (the simulated rigs' virtual clock, the host's for real rigs) and one pass every
- * 250 ms on the host's that redraws every status, writes and syncs a quarter of the channels'
- * logs and checkpoints a twentieth of them. Each channel keeps a run's periods (logs synced every
- * second, a checkpoint every 5 s), and no turn of the event loop takes the whole station's
+ * 250 ms on the host's that redraws every status, writes a quarter of the channels' logs and
+ * syncs and checkpoints a twentieth of them. Each channel keeps a run's periods (logs written
+ * every second, synced with a checkpoint every 5 s), and no turn of the event loop takes the whole station's
  * writes at once. A timer runs only while some channel has joined it, so an idle station holds
  * no timer.
  */

@@ -1,7 +1,7 @@
-import { mkdtemp, readdir, readFile, rm, writeFile } from 'node:fs/promises';
+import { mkdtemp, open, readdir, readFile, rm, writeFile } from 'node:fs/promises';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
-import { afterEach, beforeEach, describe, expect, it } from 'vitest';
+import { afterEach, beforeEach, describe, expect, it, vi } from 'vitest';
 import { LogFile } from '../../src/sinks/log-file.js';
 import { SAMPLE_HEADER, sampleRowMaxBytes, SampleRowWriter } from '../../src/sinks/sample-row.js';
 
@@ -176,5 +176,32 @@ describe('LogFile rotation (RFC 4180: a header row per file, whole rows)', () =>
     log.append('1,a');
     await expect(log.flush()).rejects.toThrow();
     expect(() => log.append('2,b')).toThrow();
+  });
+});
+
+describe('LogFile writes and syncs (a crash of the process against a power loss)', () => {
+  it('flush(false) puts the rows in the file without fdatasync; flush() syncs once what is unsynced', async () => {
+    const probe = await open(join(dir, 'probe'), 'w');
+    const handleProto = Object.getPrototypeOf(probe) as { datasync: () => Promise<void> };
+    await probe.close();
+    const syncs = vi.spyOn(handleProto, 'datasync');
+    try {
+      const log = new LogFile({ dir, name: 'events.jsonl' });
+      log.append('{"a":1}');
+      await log.flush(false);
+      // Another process (a reader, a resume after a crash) sees the row at once.
+      expect(await readFile(join(dir, 'events.jsonl'), 'utf8')).toBe('{"a":1}\n');
+      expect(syncs).not.toHaveBeenCalled();
+      log.append('{"a":2}');
+      await log.flush(false);
+      await log.flush(); // nothing new queued, but two writes not yet on the disk
+      expect(syncs).toHaveBeenCalledTimes(1);
+      await log.flush(); // nothing written since: no second sync
+      expect(syncs).toHaveBeenCalledTimes(1);
+      await log.close();
+      expect(await readFile(join(dir, 'events.jsonl'), 'utf8')).toBe('{"a":1}\n{"a":2}\n');
+    } finally {
+      syncs.mockRestore();
+    }
   });
 });
