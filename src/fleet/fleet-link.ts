@@ -74,6 +74,8 @@ interface ChannelSlot {
   /** When the channel's status was last queued (host clock, ms). */
   lastStatusMs: number;
   timer: TimerHandle | null;
+  /** The status owed to samples sent since the last one, due statusEveryMs after it. */
+  statusTimer: TimerHandle | null;
   unsubscribe: () => void;
 }
 
@@ -227,6 +229,7 @@ class StationLink {
       lastSentMs: -Infinity,
       lastStatusMs: -Infinity,
       timer: null,
+      statusTimer: null,
       unsubscribe: () => {},
     };
     slot.feed.snapshot(c.hub.hello(), this.clock.wallNow());
@@ -247,6 +250,8 @@ class StationLink {
   }
 
   private queueStatus(s: ChannelSlot): void {
+    if (s.statusTimer) this.clock.clearTimer(s.statusTimer);
+    s.statusTimer = null;
     s.lastStatusMs = this.clock.now();
     const status = s.feed.status(this.clock.wallNow());
     this.outbox.status(
@@ -277,10 +282,19 @@ class StationLink {
     // on its own samples' time, not all of a station's on one timer: a fleet of stations started
     // together would otherwise send every status in the same millisecond, and the samples behind
     // that burst at the fleet view would wait for all of it.
-    if (this.clock.now() - s.lastStatusMs >= this.statusEveryMs) {
+    // A sample that comes sooner arms the refresh for when it is due, so the last samples
+    // before a channel goes quiet reach the retained status too.
+    const due = s.lastStatusMs + this.statusEveryMs - this.clock.now();
+    if (due <= 0) {
       this.queueStatus(s);
       this.pump();
-    }
+    } else
+      s.statusTimer ??= this.clock.setTimer(() => {
+        s.statusTimer = null;
+        if (this.closing) return;
+        this.queueStatus(s);
+        this.pump();
+      }, due);
   }
 
   private onHub(s: ChannelSlot, m: Parameters<Parameters<LiveHub['subscribe']>[0]>[0]): void {

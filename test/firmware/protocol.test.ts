@@ -100,8 +100,11 @@ describe('reference firmware on an emulated ATmega328P: protocol v1', () => {
         expect(frames[k]!.seq).toBe((frames[k - 1]!.seq + 1) & 0xffff);
       const phase = frames[0]!.tickMs % 100;
       const regular = frames.filter((f) => f.tickMs % 100 === phase);
-      for (let k = 1; k < regular.length; k++)
-        expect(regular[k]!.tickMs - regular[k - 1]!.tickMs).toBe(100);
+      // On the 100 ms grid of its own clock; a slot may be skipped when the link backs up (the
+      // host reading slowly under load blocks the UART), never shifted.
+      const gaps = regular.slice(1).map((f, k) => f.tickMs - regular[k]!.tickMs);
+      for (const g of gaps) expect(g > 0 && g % 100 === 0, `gap ${g} ms`).toBe(true);
+      expect(gaps.filter((g) => g === 100).length).toBeGreaterThanOrEqual(gaps.length - 2);
       // Channel 1 switched twice (on by the host, off by the heartbeat watchdog).
       const extra = frames.filter((f) => f.tickMs % 100 !== phase);
       expect(extra.map((f) => f.flags)).toEqual(ch === 1 ? [0x01, 0x02] : []);

@@ -174,7 +174,12 @@ describe('the fleet view', () => {
     const late = await view();
     const page = new JsonSocket(ws(late, 'fleet'));
     await page.open;
-    await until('late view has both tiles', () => late.state.channels.size === 2);
+    // Both tiles, and station b's with its retained sample (which may come after its status).
+    await until(
+      'late view has both tiles',
+      () =>
+        late.state.channels.size === 2 && late.state.channels.get('bench-b/1')?.hub.status().sample,
+    );
     const res = await fetch(`${late.url}api/fleet`);
     const snap = (await res.json()) as { tiles: Array<Record<string, unknown>> };
     const tileA = snap.tiles.find((t) => t['key'] === 'bench-a/0');
