@@ -40,7 +40,7 @@ describe('registry database', () => {
   it('is versioned by migrations and refuses a newer schema', () => {
     Registry.open(dbPath).close();
     const raw = new Database(dbPath);
-    expect(raw.pragma('user_version', { simple: true })).toBe(2);
+    expect(raw.pragma('user_version', { simple: true })).toBe(3);
     raw.pragma('user_version = 99');
     raw.close();
     expect(() => Registry.open(dbPath)).toThrow(/CV_REGISTRY_OPEN|schema version 99/);
