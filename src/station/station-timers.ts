@@ -34,9 +34,9 @@ interface TickGroup {
  * per clock (the simulated rigs' virtual clock, the host's for real rigs) and one pass every
  * 250 ms on the host's that redraws every status, writes a quarter of the channels' logs and
  * syncs and checkpoints a twentieth of them. Each channel keeps a run's periods (logs written
- * every second, synced with a checkpoint every 5 s), and no turn of the event loop takes the whole station's
- * writes at once. A timer runs only while some channel has joined it, so an idle station holds
- * no timer.
+ * every second, synced with a checkpoint every 5 s), and no turn of the event loop takes the
+ * whole station's writes at once. A timer runs only while some channel has joined it, so an
+ * idle station holds no timer.
  */
 export class StationTimers {
   private readonly ticks: TickGroup[] = [];
