@@ -130,10 +130,11 @@ describe('reference firmware on an emulated ATmega328P: protocol v1', () => {
     expect(on!.load).toBe(true);
     expect(off!.load).toBe(false);
     // Emulated time. The command was the host's last word: its bytes reach the chip at 250 000
-    // baud, the pin rises as soon as the line is complete.
+    // baud, the pin rises once the line is complete and the frame being sent has gone out (a
+    // host reading slowly under load can hold that frame a few milliseconds).
     const heardAt = truth.link.last_host_byte_ms;
     expect(on!.from_ms - heardAt).toBeGreaterThan(0);
-    expect(on!.from_ms - heardAt).toBeLessThan(3);
+    expect(on!.from_ms - heardAt).toBeLessThan(10);
     expect(off!.from_ms - on!.from_ms).toBeGreaterThanOrEqual(5000);
     expect(off!.from_ms - on!.from_ms).toBeLessThan(5002);
     expect(heard.some((h) => /^E,BEAT_LOST,/.test(h.line))).toBe(true);
