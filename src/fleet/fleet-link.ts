@@ -281,20 +281,17 @@ class StationLink {
     // sees values at most that old (state changes and alarms refresh it at once). Each channel
     // on its own samples' time, not all of a station's on one timer: a fleet of stations started
     // together would otherwise send every status in the same millisecond, and the samples behind
-    // that burst at the fleet view would wait for all of it.
-    // A sample that comes sooner arms the refresh for when it is due, so the last samples
-    // before a channel goes quiet reach the retained status too.
+    // that burst at the fleet view would wait for all of it. A sample that comes sooner arms
+    // the refresh for when it is due, so the last samples before a channel goes quiet reach the
+    // retained status too (close() queues every status, which clears that timer).
     const due = s.lastStatusMs + this.statusEveryMs - this.clock.now();
-    if (due <= 0) {
-      this.queueStatus(s);
-      this.pump();
-    } else
-      s.statusTimer ??= this.clock.setTimer(() => {
-        s.statusTimer = null;
-        if (this.closing) return;
-        this.queueStatus(s);
-        this.pump();
-      }, due);
+    if (due <= 0) this.refreshStatus(s);
+    else s.statusTimer ??= this.clock.setTimer(() => this.refreshStatus(s), due);
+  }
+
+  private refreshStatus(s: ChannelSlot): void {
+    this.queueStatus(s);
+    this.pump();
   }
 
   private onHub(s: ChannelSlot, m: Parameters<Parameters<LiveHub['subscribe']>[0]>[0]): void {

@@ -28,8 +28,8 @@ export type Intent =
   | { type: 'set-load'; load: DischargeLoad }
   | { type: 'set-charge'; currentA: number; voltageV: number };
 
-/** Why a segment ended. The first group ends it as planned; the second aborts the program. */
-export const SEGMENT_ENDS = [
+/** Why a segment ended as planned: the program goes on to its next step. */
+const PLANNED_ENDS = [
   'termination_current',
   'charger_ended',
   'charge_time',
@@ -39,6 +39,10 @@ export const SEGMENT_ENDS = [
   'setpoint_not_held',
   'rest_time',
   'voltage_settled',
+] as const;
+
+/** Why a segment ended and stopped the program, leaving the channel at rest. */
+const ABORT_ENDS = [
   'charge_timeout',
   'over_temperature',
   'under_temperature',
@@ -47,6 +51,9 @@ export const SEGMENT_ENDS = [
   'mode_not_confirmed',
   'stopped',
 ] as const;
+
+/** Why a segment ended: the planned ends, then the aborts. */
+export const SEGMENT_ENDS = [...PLANNED_ENDS, ...ABORT_ENDS] as const;
 
 export type SegmentEnd = (typeof SEGMENT_ENDS)[number];
 
@@ -57,15 +64,7 @@ export const SEGMENT_STATE = {
   charge: 'charging',
 } as const satisfies Record<ChannelMode, string>;
 
-const ABORTS: ReadonlySet<SegmentEnd> = new Set<SegmentEnd>([
-  'charge_timeout',
-  'over_temperature',
-  'under_temperature',
-  'temperature_unknown',
-  'over_voltage',
-  'mode_not_confirmed',
-  'stopped',
-]);
+const ABORTS: ReadonlySet<SegmentEnd> = new Set(ABORT_ENDS);
 
 /** True when this end stops the program and leaves the channel at rest. */
 export function isAbort(end: SegmentEnd): boolean {

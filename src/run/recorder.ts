@@ -112,11 +112,11 @@ export class RunRecorder {
 
   /**
    * Writes the queued rows and events to their files (every second: a crash of the daemon loses
-   * at most that much); `sync` also puts them on the disk.
+   * at most that much); the checkpoint puts them on the disk.
    */
-  async flush(sync = false): Promise<void> {
+  async flush(): Promise<void> {
     try {
-      await Promise.all([this.samples.flush(sync), this.events.flush(sync)]);
+      await Promise.all([this.samples.flush(false), this.events.flush(false)]);
     } catch (e) {
       this.failed(e as Error);
     }
