@@ -1,9 +1,9 @@
 /**
  * The run's curves kept in bounded memory for plotting: consecutive samples are gathered into
  * buckets of up to a stride of samples; when the buckets fill up, neighbours merge in pairs and
- * the stride doubles. Where the voltage bends (the knee at the end of a discharge) buckets close
- * early and are kept apart, so the bend is drawn finely. Each bucket keeps its extremes, so
- * short pulses still show.
+ * the stride doubles. Where the drawn voltage moves (the knee at the end of a discharge) buckets
+ * close early and are kept apart, so the bend is drawn finely. Each bucket keeps its extremes,
+ * so short pulses still show.
  */
 import quickselect from 'quickselect';
 
@@ -108,13 +108,33 @@ function drawnVoltage(b: CurveBucket): number {
 }
 
 /**
- * The knee of a discharge comes last and falls fast: an open bucket also closes once its
- * voltages spread over more than 1/FINE_STEPS of the run's voltage range so far, so the fall is
- * drawn in steps of about that size however long the run was.
+ * The knee of a discharge comes last and falls fast: an open bucket also closes once its drawn
+ * voltage has moved more than 1/FINE_STEPS of the run's voltage range so far from the bucket's
+ * before it, so the fall is drawn in steps of about that size however long the run was. The
+ * drawn voltage is a mean: a reading's noise moves it little, where the spread of the readings
+ * themselves would close a bucket every few frames on a noisy rig.
  */
 const FINE_STEPS = 100;
 
-/** Of the neighbour pairs, the share with the largest voltage change that a thinning keeps apart. */
+/**
+ * The fine step is never under this many times the readings' noise: early in a run, while the
+ * range is a few millivolts, a coarse ADC's wobble would otherwise read as a bend everywhere.
+ */
+const NOISE_FLOOR = 3;
+/** Frames the noise is averaged over (an exponential weighting). */
+const NOISE_FRAMES = 1024;
+
+/**
+ * A bucket closes early only once it holds this share of the stride. Without a floor a noisy
+ * start (the range still small) makes buckets of a frame or two, thinned hundreds of times, and
+ * each thinning doubles the stride: the rest of the run came out in a few coarse buckets.
+ */
+const EARLY_SHARE = 1 / 16;
+
+/**
+ * Of the neighbour pairs, the share with the largest voltage change that a thinning may keep
+ * apart; only a change over the fine step is kept (a smaller one is noise or a slow slope).
+ */
 const KEEP_APART = 0.25;
 
 export class CurveBuilder {
@@ -122,6 +142,9 @@ export class CurveBuilder {
   private stride = 1;
   private vLo = Infinity;
   private vHi = -Infinity;
+  /** Mean step between consecutive readings, recent ones weighted most: the readings' noise. */
+  private noise = 0;
+  private lastV = Number.NaN;
 
   /** @param maxBuckets at most this many buckets are kept (between half and all of it at the end). */
   constructor(private readonly maxBuckets = 1024) {}
@@ -130,8 +153,15 @@ export class CurveBuilder {
   add(p: Readonly<CurvePoint>): void {
     this.vLo = Math.min(this.vLo, p.volts);
     this.vHi = Math.max(this.vHi, p.volts);
+    const step = Math.abs(p.volts - this.lastV);
+    if (Number.isFinite(step)) this.noise += (step - this.noise) / NOISE_FRAMES;
+    this.lastV = p.volts;
     const last = this.list[this.list.length - 1];
-    if (last !== undefined && last.n < this.stride && !this.spreads(last, p.volts)) {
+    if (
+      last !== undefined &&
+      last.n < this.stride &&
+      (last.n < this.stride * EARLY_SHARE || !this.departs(last))
+    ) {
       absorb(last, p);
       return;
     }
@@ -147,14 +177,20 @@ export class CurveBuilder {
     return this.list;
   }
 
-  private spreads(b: CurveBucket, volts: number): boolean {
-    const fine = (this.vHi - this.vLo) / FINE_STEPS;
-    return Math.max(b.vMax, volts) - Math.min(b.vMin, volts) > fine;
+  private get fine(): number {
+    return Math.max((this.vHi - this.vLo) / FINE_STEPS, NOISE_FLOOR * this.noise);
+  }
+
+  /** Whether the open bucket's drawn voltage has moved a fine step from the bucket before it. */
+  private departs(b: CurveBucket): boolean {
+    const before = this.list[this.list.length - 2];
+    return before !== undefined && Math.abs(drawnVoltage(b) - drawnVoltage(before)) > this.fine;
   }
 
   /**
-   * Merges neighbours in pairs, but for the pairs across which the drawn voltage changes most
-   * (the knee, a step of the load): those stay apart, so the curve stays fine where it bends.
+   * Merges neighbours in pairs, but for the pairs across which the drawn voltage changes most,
+   * by more than a fine step (the knee, a step of the load): those stay apart, so the curve
+   * stays fine where it bends.
    * The stride doubles, so memory stays bounded however long the run.
    */
   private thin(): void {
@@ -165,6 +201,8 @@ export class CurveBuilder {
       change[k] = Math.abs(drawnVoltage(list[2 * k + 1]!) - drawnVoltage(list[2 * k]!));
     // All but the KEEP_APART share of pairs with most change merge.
     const merging = leastChange(change, Math.ceil(pairs * (1 - KEEP_APART)));
+    const fine = this.fine;
+    for (let k = 0; k < pairs; k++) if (!(change[k]! > fine)) merging[k] = 1;
     // In place: each merged pair becomes its first bucket, and the list closes up behind.
     let w = 0;
     for (let i = 0; i < list.length; i += 2) {

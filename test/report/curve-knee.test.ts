@@ -59,3 +59,41 @@ describe('the knee of a discharge is drawn finely when the curve is thinned', ()
     });
   }
 });
+
+/*
+ * A long run on a coarse, noisy ADC (our own scenario): 400 000 frames, readings on a 1.6 mV
+ * step with up to two steps of wobble, so early on, while the voltage range is still a few
+ * millivolts, the noise is larger than the fine step. The plot should still cover the whole
+ * run evenly, not a few stretches finely and the rest in a handful of coarse buckets.
+ */
+describe('a long run with readings noisier than the fine step', () => {
+  it('spreads its buckets over the whole run', () => {
+    const frames = 400_000;
+    const lsb = 0.0016;
+    const curve = new CurveBuilder();
+    for (let i = 0; i < frames; i++) {
+      const f = i / frames;
+      const v = 4.02 - 0.6 * f - 0.25 * f ** 10 + lsb * (((i * 7919) % 5) - 2);
+      curve.add({
+        hostS: i * 0.05,
+        chargeAh: f * 3,
+        energyWh: f * 11,
+        volts: Math.round(v / lsb) * lsb,
+        amps: 0.12,
+        celsius: 25,
+        loadOn: true,
+      });
+    }
+    const buckets = curve.buckets;
+    expect(buckets.length).toBeGreaterThanOrEqual(512);
+    expect(buckets.length).toBeLessThanOrEqual(1024);
+    const tenths = Array.from({ length: 10 }, () => 0);
+    for (const b of buckets) tenths[Math.min(9, Math.floor(b.t0 / (frames * 0.005)))]!++;
+    // An even spread would give each tenth a tenth of the buckets; none gets under half of
+    // that, nor more than four times it (the fall at the end may take more).
+    for (const n of tenths) {
+      expect(n).toBeGreaterThanOrEqual(buckets.length / 20);
+      expect(n).toBeLessThanOrEqual((buckets.length * 4) / 10);
+    }
+  });
+});
