@@ -10,22 +10,19 @@ import { CHECKPOINT_FILE, readCheckpointFile, type Checkpoint } from '../record/
 import { EVENTS_FILE, parseEventLine, type LoggedEvent } from '../record/event-log.js';
 import { MANIFEST_FILE, parseManifest, type RunManifest } from '../record/manifest.js';
 import { readResultFile, RESULT_FILE, type RunResult } from '../record/result.js';
-import { readLineBatchesRaw, readLines, type AsciiLines, type TextLine } from './line-reader.js';
+import { readLines } from './line-reader.js';
+import { type SampleRecord } from './sample-csv.js';
+import { availableParallelism } from 'node:os';
+import { forEachRowInWorkers, workerAvailable } from './sample-worker-client.js';
 import {
-  blankSampleRecord,
-  SampleReader,
-  checkSampleHeader,
-  SampleLineError,
-  type SampleRecord,
-} from './sample-csv.js';
+  visitRunSamples,
+  type CutLine,
+  type SampleFile,
+  type SampleReadOptions,
+  type SampleSource,
+} from './sample-visit.js';
 
-export interface SampleFile {
-  path: string;
-  name: string;
-  index: number;
-  gzip: boolean;
-  bytes: number;
-}
+export type { CutLine, SampleFile, SampleReadOptions };
 
 export interface RunFolder {
   dir: string;
@@ -39,18 +36,6 @@ export interface RunFolder {
   eventsPath: string | null;
   /** Things noticed while opening the folder, for the report. */
   notes: string[];
-}
-
-/** A line left out because an interrupted write cut it short. */
-export interface CutLine {
-  file: string;
-  line: number;
-}
-
-export interface SampleReadOptions {
-  /** File bytes read since the last call (compressed bytes for .gz files). */
-  onBytes?: (bytes: number) => void;
-  onCutLine?: (cut: CutLine) => void;
 }
 
 export async function openRunFolder(dir: string): Promise<RunFolder> {
@@ -153,7 +138,7 @@ export async function* readRunSamples(
   o: SampleReadOptions = {},
 ): AsyncGenerator<SampleRecord> {
   const out: SampleRecord[] = [];
-  const pauses = visitRunSamples(run, o, (row) => out.push({ ...row }));
+  const pauses = visitRunSamples(sourceOf(run), o, (row) => out.push({ ...row }));
   try {
     for await (const _ of pauses) {
       yield* out;
@@ -166,135 +151,41 @@ export async function* readRunSamples(
   }
 }
 
+/** Sample files of at least this many bytes in all are read on worker threads, on two cores or more. */
+const WORKER_MIN_BYTES = 8 * 1024 * 1024;
+
 /**
  * The rows of readRunSamples, with the same reports and errors in the same order, handed to
  * `visit` one by one for a recompute of millions of rows: no promise, string or object per row
  * (plain ASCII rows are parsed from the bytes read into one record). The record is the same
  * object every time: `visit` reads it and must not keep it.
+ *
+ * A large run's files are read and parsed on worker threads while this one visits the rows
+ * (the same reading code, so the same rows, reports and errors); `worker` forces the choice.
  */
 export async function forEachRunSample(
   run: RunFolder,
-  o: SampleReadOptions,
+  o: SampleReadOptions & { worker?: boolean },
   visit: (row: Readonly<SampleRecord>) => void,
 ): Promise<void> {
-  for await (const _ of visitRunSamples(run, o, visit));
+  const source = sourceOf(run);
+  const bytes = run.sampleFiles.reduce((t, f) => t + f.bytes, 0);
+  const cores = availableParallelism();
+  const auto = bytes >= WORKER_MIN_BYTES && cores >= 2 && workerAvailable();
+  const { worker = auto, ...read } = o;
+  // One worker beside this thread on two cores; with four, two (this thread's measuring of the
+  // rows is then the slower side of the pipe).
+  if (worker) return forEachRowInWorkers(source, read, visit, { workers: cores >= 4 ? 2 : 1 });
+  for await (const _ of visitRunSamples(source, read, visit));
 }
 
-/**
- * One sample file's rows, visited into one record: its header row first, then rows for the
- * run's channel. A row cut off by an interruption may only be the last file's last line.
- */
-class SampleFileVisit {
-  private header = false;
-
-  constructor(
-    private readonly run: RunFolder,
-    private readonly file: SampleFile,
-    private readonly mayBeCut: boolean,
-    private readonly reader: SampleReader,
-    private readonly row: SampleRecord,
-    private readonly visit: (row: SampleRecord) => void,
-  ) {}
-
-  /** One line of text; false when it was cut off by an interruption (to be reported once the rows before it are out). */
-  takeText(line: TextLine): boolean {
-    const cut = !line.terminated && this.mayBeCut;
-    if (!this.header) {
-      if (cut) return false;
-      checkSampleHeader(line.text, this.file.name);
-      this.header = true;
-      return true;
-    }
-    try {
-      this.reader.parseLine(line.text, this.row);
-    } catch (e) {
-      if (!(e instanceof SampleLineError)) throw e;
-      if (cut) return false;
-      throw this.malformed(e, line.number);
-    }
-    this.take(line.number);
-    return true;
-  }
-
-  /** Lines from bytes, all terminated: none can be a cut one. */
-  takeBytes({ bytes, starts, ends, first }: AsciiLines): void {
-    let k = 0;
-    if (!this.header) {
-      checkSampleHeader(bytes.toString('latin1', starts[0], ends[0]), this.file.name);
-      this.header = true;
-      k = 1;
-    }
-    try {
-      for (; k < starts.length; k++) {
-        this.reader.parseBytes(bytes, starts[k]!, ends[k]!, this.row);
-        this.take(first + k);
-      }
-    } catch (e) {
-      throw e instanceof SampleLineError ? this.malformed(e, first + k) : e;
-    }
-  }
-
-  /** A file other than the last must have had at least its header row. */
-  finish(): void {
-    if (this.header || this.mayBeCut) return;
-    throw makeError(
-      ErrorCodes.RUN_DATA,
-      'the file is empty, without even its header row',
-      join(basename(this.run.dir), this.file.name),
-      'Restore the file from a backup; the files after it need it.',
-    );
-  }
-
-  private take(number: number): void {
-    const channel = this.run.manifest.channel;
-    if (this.row.channel !== channel)
-      throw makeError(
-        ErrorCodes.RUN_DATA,
-        `a row for channel ${this.row.channel} in a run on channel ${channel}`,
-        this.where(number),
-        'The file does not belong to this run folder; move it back to its own run.',
-      );
-    this.visit(this.row);
-  }
-
-  private where(line: number): string {
-    return `${join(basename(this.run.dir), this.file.name)} line ${line}`;
-  }
-
-  private malformed(e: SampleLineError, number: number): Error {
-    return makeError(
-      ErrorCodes.RUN_DATA,
-      `a sample row is malformed: ${e.message}`,
-      this.where(number),
-      'Rows are written by `cellvigil run` and never edited; restore the file from a backup, or move the damaged rows to another file and recompute what remains.',
-    );
-  }
-}
-
-/** Visits the rows; pauses after each read and before reporting a cut line, so a caller can hand on the rows visited so far first. */
-async function* visitRunSamples(
-  run: RunFolder,
-  o: SampleReadOptions,
-  visit: (row: SampleRecord) => void,
-): AsyncGenerator<void> {
-  const row = blankSampleRecord();
-  const reader = new SampleReader();
-  const lastFile = run.sampleFiles.length - 1;
-  for (const [fi, f] of run.sampleFiles.entries()) {
-    const file = new SampleFileVisit(run, f, fi === lastFile, reader, row, visit);
-    const read = { gzip: f.gzip, ...(o.onBytes ? { onBytes: o.onBytes } : {}) };
-    for await (const batch of readLineBatchesRaw(f.path, read)) {
-      if (!Array.isArray(batch)) file.takeBytes(batch);
-      else
-        for (const line of batch) {
-          if (file.takeText(line)) continue;
-          yield;
-          o.onCutLine?.({ file: f.name, line: line.number });
-        }
-      yield;
-    }
-    file.finish();
-  }
+function sourceOf(run: RunFolder): SampleSource {
+  return {
+    dir: run.dir,
+    channel: run.manifest.channel,
+    sampleFiles: run.sampleFiles,
+    lastFile: run.sampleFiles.at(-1)?.name ?? '',
+  };
 }
 
 /** Every event of the run, in order; a last line cut off by an interruption is left out and reported. */

@@ -303,7 +303,7 @@ const MINUTE_SECOND = Array.from(
   { length: 3600 },
   (_, k) => `${pad(Math.floor(k / 60), 2)}:${pad(k % 60, 2)}.`,
 );
-const MILLI_Z = Array.from({ length: 1000 }, (_, k) => `${pad(k, 3)}Z`);
+export const MILLI_Z = Array.from({ length: 1000 }, (_, k) => `${pad(k, 3)}Z`);
 
 /**
  * Reads the rows of one sample file, one after another. Each reader keeps what it learnt from the
@@ -324,6 +324,12 @@ export class SampleReader {
   /** The wall time of the last row up to its second (`YYYY-MM-DDTHH:MM:SS.`): rows come many a second. */
   private secondOfHour = -1;
   private secondText = '';
+  /**
+   * The row last parsed the fast way: its wall time is `wallSecond` + MILLI_Z[wallMilli] (the
+   * first part shared by the rows of one second); -1 after a row the rules parsed.
+   */
+  wallMilli = -1;
+  wallSecond = '';
   /** A view of the buffer last read from, for reading four bytes at once. */
   private viewed: Buffer = Buffer.alloc(0);
   private view = new DataView(this.viewed.buffer, this.viewed.byteOffset, 0);
@@ -331,13 +337,13 @@ export class SampleReader {
   /** One row into a record (a new one unless given); throws SampleLineError saying which column is wrong. */
   parseLine(line: string, into: SampleRecord = blankSampleRecord()): SampleRecord {
     // Only ASCII can be a valid row; other text goes straight to the rules and their message.
-    if (Buffer.byteLength(line, 'utf8') !== line.length)
-      return Object.assign(into, parseByRules(line));
-    // With a line end after it, as rows read from a file have.
-    const bytes = Buffer.from(`${line}\n`, 'latin1');
-    return this.readFast(bytes, 0, line.length, into)
-      ? into
-      : Object.assign(into, parseByRules(line));
+    if (Buffer.byteLength(line, 'utf8') === line.length) {
+      // With a line end after it, as rows read from a file have.
+      const bytes = Buffer.from(`${line}\n`, 'latin1');
+      if (this.readFast(bytes, 0, line.length, into)) return into;
+    }
+    this.wallMilli = -1;
+    return Object.assign(into, parseByRules(line));
   }
 
   /** The row in `bytes` from `start` to `end` (ASCII, its line end at `end`); as parseLine. */
@@ -347,9 +353,9 @@ export class SampleReader {
     end: number,
     into: SampleRecord = blankSampleRecord(),
   ): SampleRecord {
-    return this.readFast(bytes, start, end, into)
-      ? into
-      : Object.assign(into, parseByRules(bytes.toString('latin1', start, end)));
+    if (this.readFast(bytes, start, end, into)) return into;
+    this.wallMilli = -1;
+    return Object.assign(into, parseByRules(bytes.toString('latin1', start, end)));
   }
 
   private viewOf(b: Buffer): DataView {
@@ -512,6 +518,8 @@ export class SampleReader {
     const v = this.value;
     r.hostS = v[0]!;
     r.wallTime = this.secondText + MILLI_Z[milli]!;
+    this.wallSecond = this.secondText;
+    this.wallMilli = milli;
     r.channel = v[2]!;
     r.seq = v[3]!;
     r.tickMs = v[4]!;
