@@ -41,7 +41,11 @@ async function copy(): Promise<string> {
   return dir;
 }
 
-/** What a reading hands out, in order: each row as text, each cut line, the bytes, the fault. */
+/**
+ * What a reading hands out, in order: each row as text, each cut line, the bytes, the fault.
+ * Read on this thread (0), on that many workers, or (-1) by the run folder's own choice forced
+ * to workers.
+ */
 async function reading(dir: string, workers: number): Promise<string[]> {
   const opened = await folders.openRunFolder(dir);
   const seen: string[] = [];
@@ -59,7 +63,9 @@ async function reading(dir: string, workers: number): Promise<string[]> {
   };
   try {
     // Batches of 50 rows: a small run crosses many batches and each worker's window of four.
-    if (workers > 0) await client.forEachRowInWorkers(source, o, visit, { workers, batchRows: 50 });
+    if (workers < 0) await folders.forEachRunSample(opened, { ...o, worker: true }, visit);
+    else if (workers > 0)
+      await client.forEachRowInWorkers(source, o, visit, { workers, batchRows: 50 });
     else await folders.forEachRunSample(opened, { ...o, worker: false }, visit);
   } catch (e) {
     const err = e as Error & { code?: string };
@@ -87,7 +93,7 @@ describe('sample rows read on a worker thread', () => {
     const here = await reading(dir, 0);
     expect(here.length).toBeGreaterThan(run.result.frames_accepted);
     expect(here.filter((s) => s.startsWith('cut '))).toHaveLength(1);
-    for (const workers of [1, 2, 3]) expect(await reading(dir, workers)).toEqual(here);
+    for (const workers of [1, 2, 3, -1]) expect(await reading(dir, workers)).toEqual(here);
   });
 
   it('a damaged row: the rows before it, then the same error', async () => {
